@@ -1,0 +1,1 @@
+//! Material constants from creep test data (`lifeledger fit`).

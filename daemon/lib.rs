@@ -1,0 +1,29 @@
+//! lifeledger: a creep and wear life ledger for high-temperature plant parts.
+//!
+//! The crate is split the way data flows through it:
+//!
+//! * [`physics`]: pure functions of the trade (hoop stress, Larson-Miller
+//!   rupture life, Robinson life fraction, Norton-Arrhenius creep strain,
+//!   Archard and fretting wear, time-at-condition histograms). No I/O.
+//! * [`engine`]: per-component integrators that turn timestamped tag samples
+//!   into ledger increments. Pure and deterministic; live service and replay
+//!   call the same code.
+//! * [`settings`]: configuration files, the material library and their
+//!   validation, turned into the engine's plan.
+//! * [`replay`]: historian CSV backfill through the engine.
+//! * [`lineproto`]: InfluxDB line protocol encoding shared by replay and the
+//!   database sink.
+//! * [`fit`]: material constants from creep test data.
+//! * [`report`]: human and JSON renderings of ledgers and derived checks.
+
+pub mod engine;
+pub mod fit;
+pub mod lineproto;
+pub mod physics;
+pub mod replay;
+pub mod report;
+pub mod settings;
+
+/// The caution every output carries. Built-in numbers are screening values.
+pub const CAUTION: &str = "Screening estimate only: limits, material data and acceptance \
+must come from the plant's governing code and a responsible engineer.";

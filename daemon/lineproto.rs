@@ -1,0 +1,1 @@
+//! InfluxDB line protocol.

@@ -1,0 +1,1 @@
+//! larson_miller

@@ -1,0 +1,109 @@
+//! Material data as the physics core sees it: plain numbers, already in
+//! internal units (K, MPa, hours), each carrying the text of its source.
+//!
+//! Loading these from the TOML library files is the job of
+//! `settings::library`; this module only defines the shape of the data and
+//! the small derived quantities that belong with it.
+
+use serde::{Deserialize, Serialize};
+
+/// A number together with where it came from. Every built-in material value
+/// carries one, so that `lifeledger materials show` can print it and nobody
+/// mistakes a screening value for an authoritative one.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Sourced {
+    pub value: f64,
+    pub source: String,
+}
+
+/// How the minimum (lower-bound) rupture curve is derived from the mean curve.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "rule", rename_all = "snake_case", deny_unknown_fields)]
+pub enum MinimumCurveRule {
+    /// Minimum rupture stress is `factor` times the mean rupture stress at the
+    /// same time and temperature (a ±20 % scatter band gives factor 0.8).
+    StressFactor { factor: f64 },
+    /// Minimum log10 rupture time is the mean minus `offset` (for example
+    /// k standard errors of estimate of the fit, in log10 hours).
+    LogTimeOffset { offset: f64 },
+}
+
+/// Larson-Miller master curve of a grade.
+///
+/// `P = T · (C + log10 t_r)` with T in K and t_r in hours; the master curve
+/// gives P as a polynomial in `x = log10(σ / MPa)`:
+/// `P(x) = a0 + a1·x + a2·x² + a3·x³` (`coefficients = [a0, a1, a2, a3]`,
+/// any length from 2 to 4).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LarsonMillerCurve {
+    pub constant_c: f64,
+    pub coefficients: Vec<f64>,
+    /// Stress range of the data behind the curve, MPa `[low, high]`.
+    pub stress_range_mpa: [f64; 2],
+    /// Temperature range of the data behind the curve, K `[low, high]`.
+    pub temperature_range_k: [f64; 2],
+    pub minimum: MinimumCurveRule,
+    pub source: String,
+}
+
+/// Norton-Arrhenius secondary creep law `ε̇ = A · σ^n · exp(−Q / (R·T))`,
+/// with ε̇ in 1/h, σ in MPa, Q in J/mol, T in K.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct NortonLaw {
+    /// A in 1/h per MPa^n.
+    pub a_per_h: f64,
+    pub n: f64,
+    pub q_j_per_mol: f64,
+    pub source: String,
+}
+
+/// A published reference rupture strength, kept with the grade so tests and
+/// `materials show` can compare the master curve against it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ReferenceRuptureStrength {
+    pub temperature_c: f64,
+    pub hours: f64,
+    pub stress_mpa: f64,
+    pub source: String,
+}
+
+/// One material grade with everything the engine needs.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Material {
+    /// Short key used in configuration, for example `"2.25Cr-1Mo"`.
+    pub grade: String,
+    #[serde(default)]
+    pub aliases: Vec<String>,
+    #[serde(default)]
+    pub description: String,
+    /// Solidus or melting temperature in K.
+    pub melting_point_k: Sourced,
+    /// Temperature below which creep is neglected, K. When absent the
+    /// rule of thumb 0.4·Tm applies (see [`Material::creep_threshold_k`]).
+    #[serde(default)]
+    pub creep_threshold_k: Option<Sourced>,
+    pub larson_miller: LarsonMillerCurve,
+    #[serde(default)]
+    pub norton: Option<NortonLaw>,
+    /// Vickers hardness HV (kgf/mm²) at service temperature, for wear.
+    #[serde(default)]
+    pub hardness_hv: Option<Sourced>,
+    /// Published rupture strengths used to check the master curve.
+    #[serde(default)]
+    pub reference_rupture_strengths: Vec<ReferenceRuptureStrength>,
+}
+
+impl Material {
+    /// Creep threshold in K: the grade's own value, else 0.4·Tm.
+    pub fn creep_threshold_k(&self) -> f64 {
+        match &self.creep_threshold_k {
+            Some(s) => s.value,
+            None => super::temperature::default_creep_threshold_k(self.melting_point_k.value),
+        }
+    }
+}

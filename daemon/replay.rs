@@ -1,0 +1,1 @@
+//! Historian CSV replay.
