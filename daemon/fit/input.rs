@@ -311,7 +311,7 @@ fn parse_rows(text: &str, file: &str, kind: Kind) -> Result<(Vec<Row>, Vec<Strin
     };
     let (header_line, header) = loop {
         match lines.next() {
-            Some((n, l)) if is_skip(l) => continue,
+            Some((_, l)) if is_skip(l) => continue,
             Some((n, l)) => break (n, l),
             None => {
                 return Err(FitError::input(

@@ -1,0 +1,451 @@
+//! The per-component integrator: the ledger of one part and how it advances
+//! over an interval of event time.
+//!
+//! Over `[a, b]` the interval is cut where any input changes its formula
+//! (a sample instant, the end of a hold), so each piece has inputs that are
+//! straight lines or constants. Each piece is integrated by composite
+//! Simpson's rule with enough panels to keep the temperature step per panel
+//! small; a piece whose inputs are constant is integrated exactly with one
+//! evaluation. Pieces where an input is in a gap count as unmonitored hours
+//! and are integrated at the gap policy's values.
+
+use super::plan::{ComponentPlan, Input, StressPlan, TagPlan};
+use super::signal::{Breaks, Reading, TagState};
+use crate::physics::histogram::TimeAtCondition;
+use crate::physics::larson_miller::{log10_rupture_life_h, RangeFlags};
+use crate::physics::norton::creep_rate_per_h_ln;
+use crate::physics::remaining::update_recent_rate;
+use crate::physics::stress::{hoop_stress_mpa, remaining_wall_mm};
+use crate::physics::wear::{fretting_sliding_speed_mm_s, FrettingRegime, fretting_regime};
+use crate::settings::schema::{GapPolicy, Interpolation, WearModel};
+use serde::{Deserialize, Serialize};
+
+const MS_PER_H: f64 = 3_600_000.0;
+/// Largest temperature step (K) per Simpson panel on a ramp.
+const PANEL_TEMPERATURE_STEP_K: f64 = 4.0;
+/// Largest relative pressure step per Simpson panel on a ramp.
+const PANEL_PRESSURE_STEP: f64 = 0.05;
+const MAX_PANELS: usize = 64;
+
+/// Conditions at the newest integrated instant.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
+pub struct Conditions {
+    pub metal_temperature_k: f64,
+    pub pressure_mpa: f64,
+    pub hoop_stress_mpa: f64,
+    /// Rupture life at these conditions, hours (infinite below the creep range).
+    #[serde(with = "super::serde_inf")]
+    pub rupture_life_h: f64,
+    /// Instantaneous life-fraction rate, 1/h.
+    pub life_fraction_rate_per_h: f64,
+    /// Instantaneous Norton creep strain rate, 1/h.
+    pub creep_rate_per_h: f64,
+    /// Instantaneous wear depth rate, mm/h.
+    pub wear_rate_mm_per_h: f64,
+    pub fretting_regime: Option<FrettingRegime>,
+    /// Whether the newest piece was unmonitored.
+    pub unmonitored: bool,
+}
+
+/// Sticky flags: set once and kept, so a report shows what ever happened.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
+pub struct LedgerFlags {
+    /// Rupture life was evaluated outside the material data's range.
+    pub extrapolated: RangeFlags,
+    /// Some hours were integrated without trustworthy data.
+    pub unmonitored: bool,
+    /// The metal temperature exceeded the design temperature.
+    pub over_design_temperature: bool,
+    /// The remaining wall reached the formula floor.
+    pub wall_exhausted: bool,
+}
+
+/// The ledger of one component.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ComponentState {
+    /// Event time (ms) up to which the ledger is integrated.
+    pub integrated_to_ms: Option<i64>,
+    /// Event time of the first sample seen.
+    pub first_sample_ms: Option<i64>,
+    /// Robinson life fraction, including the initial value.
+    pub life_fraction: f64,
+    /// Accumulated Norton creep strain (fraction), including the initial.
+    pub creep_strain: f64,
+    /// Accumulated wear depth, mm, including the initial.
+    pub wear_depth_mm: f64,
+    /// Recent (exponentially weighted) rates.
+    pub recent_life_fraction_rate_per_h: f64,
+    pub recent_creep_strain_rate_per_h: f64,
+    pub recent_wear_rate_mm_per_h: f64,
+    /// Hours integrated in all.
+    pub integrated_h: f64,
+    /// Hours with at least one input in a gap.
+    pub unmonitored_h: f64,
+    /// Hours at or above the creep threshold temperature.
+    pub hours_in_creep_range: f64,
+    /// Hours in the creep range with rupture life extrapolated.
+    pub extrapolated_h: f64,
+    /// Hours above the design temperature.
+    pub over_design_h: f64,
+    #[serde(with = "super::serde_inf")]
+    pub peak_temperature_k: f64,
+    pub flags: LedgerFlags,
+    pub now: Conditions,
+    pub histogram: TimeAtCondition,
+}
+
+impl ComponentState {
+    /// A fresh ledger at the component's initial state.
+    pub fn new(plan: &ComponentPlan) -> Self {
+        ComponentState {
+            integrated_to_ms: None,
+            first_sample_ms: None,
+            life_fraction: plan.initial_life_fraction,
+            creep_strain: plan.initial_creep_strain,
+            wear_depth_mm: plan.initial_wear_depth_mm,
+            recent_life_fraction_rate_per_h: 0.0,
+            recent_creep_strain_rate_per_h: 0.0,
+            recent_wear_rate_mm_per_h: 0.0,
+            integrated_h: 0.0,
+            unmonitored_h: 0.0,
+            hours_in_creep_range: 0.0,
+            extrapolated_h: 0.0,
+            over_design_h: 0.0,
+            peak_temperature_k: f64::NEG_INFINITY,
+            flags: LedgerFlags::default(),
+            now: Conditions::default(),
+            histogram: TimeAtCondition::new(
+                plan.temperature_edges_k.clone(),
+                plan.pressure_edges_mpa.clone(),
+            ),
+        }
+    }
+
+    /// Wear index: depth over allowable depth (0 without a wear model).
+    pub fn wear_index(&self, plan: &ComponentPlan) -> f64 {
+        plan.wear.as_ref().map_or(0.0, |w| self.wear_depth_mm / w.allowable_depth_mm)
+    }
+}
+
+/// Input values at one instant, internal units.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+struct Point {
+    t_k: f64,
+    p_mpa: f64,
+    load_n: f64,
+    speed_mm_s: f64,
+    slip_mm: f64,
+    freq_hz: f64,
+}
+
+/// Rates at one instant.
+#[derive(Debug, Clone, Copy, Default)]
+struct Rates {
+    stress_mpa: f64,
+    life_per_h: f64,
+    rupture_h: f64,
+    strain_per_h: f64,
+    wear_mm_per_h: f64,
+    creep: bool,
+    flags: RangeFlags,
+    wall_exhausted: bool,
+}
+
+/// A linear (or constant) input over one piece: value(τ) = v0 + k·(τ − a).
+#[derive(Debug, Clone, Copy, Default)]
+struct Line {
+    v0: f64,
+    k: f64,
+}
+
+impl Line {
+    #[inline]
+    fn at(&self, dt: f64) -> f64 {
+        self.v0 + self.k * dt
+    }
+}
+
+/// One input's line over [a, b] and whether it is in a gap.
+#[inline]
+fn line_of(
+    input: Option<Input>,
+    tags: &[TagState],
+    tag_plans: &[TagPlan],
+    a: f64,
+    b: f64,
+    gap_value: impl Fn(Option<f64>) -> f64,
+) -> (Line, bool) {
+    match input {
+        None => (Line::default(), false),
+        Some(Input::Constant(v)) => (Line { v0: v, k: 0.0 }, false),
+        Some(Input::Tag(id)) => {
+            let (st, tp) = (&tags[id as usize], &tag_plans[id as usize]);
+            let mid = 0.5 * (a + b);
+            match st.read(tp, mid) {
+                Reading::Value(v) if tp.interpolation == Interpolation::Step => (Line { v0: v, k: 0.0 }, false),
+                Reading::Value(_) => {
+                    let va = value_at(st.read(tp, a), st, tp, a);
+                    let vb = value_at(st.read(tp, b), st, tp, b);
+                    let k = if b > a { (vb - va) / (b - a) } else { 0.0 };
+                    (Line { v0: va, k }, false)
+                }
+                Reading::Gap(last) => (Line { v0: gap_value(Some(last)), k: 0.0 }, true),
+                Reading::Missing => (Line { v0: gap_value(None), k: 0.0 }, true),
+            }
+        }
+    }
+}
+
+/// The value at a piece end: a piece end may sit exactly on a hold
+/// boundary, where the reading flips to a gap; take the held value there.
+#[inline]
+fn value_at(r: Reading, _st: &TagState, _tp: &TagPlan, _t: f64) -> f64 {
+    match r {
+        Reading::Value(v) | Reading::Gap(v) => v,
+        Reading::Missing => 0.0,
+    }
+}
+
+/// Integrate one component from its `integrated_to_ms` up to `to_ms`.
+#[allow(clippy::too_many_arguments)]
+pub fn advance(
+    plan: &ComponentPlan,
+    comp_tags: &[super::plan::TagId],
+    state: &mut ComponentState,
+    tags: &[TagState],
+    tag_plans: &[TagPlan],
+    to_ms: i64,
+    policy: GapPolicy,
+    tau_h: f64,
+) {
+    let Some(from_ms) = state.integrated_to_ms else {
+        state.integrated_to_ms = Some(to_ms);
+        return;
+    };
+    if to_ms <= from_ms {
+        return;
+    }
+    let mut breaks = Breaks::new();
+    for &id in comp_tags {
+        tags[id as usize].breakpoints(&tag_plans[id as usize], &mut breaks);
+    }
+    let pieces = breaks.segments(from_ms, to_ms);
+    for w in pieces.windows(2) {
+        integrate_piece(plan, state, tags, tag_plans, w[0], w[1], policy, tau_h);
+    }
+    state.integrated_to_ms = Some(to_ms);
+}
+
+#[allow(clippy::too_many_arguments)]
+#[inline]
+fn integrate_piece(
+    plan: &ComponentPlan,
+    state: &mut ComponentState,
+    tags: &[TagState],
+    tag_plans: &[TagPlan],
+    a_ms: i64,
+    b_ms: i64,
+    policy: GapPolicy,
+    tau_h: f64,
+) {
+    let (a, b) = (a_ms as f64, b_ms as f64);
+    let dt_h = (b_ms - a_ms) as f64 / MS_PER_H;
+    let design_t = plan.design_temperature_k;
+    let design_p = plan.design_pressure_mpa;
+    // Gap values by policy: conservative takes the worse of design and the
+    // last good value; hold-last takes the last good value (design when
+    // there is none); wear inputs hold their last value.
+    let pick = |design: Option<f64>| {
+        move |last: Option<f64>| match (policy, last, design) {
+            (GapPolicy::Conservative, Some(l), Some(d)) => l.max(d),
+            (_, Some(l), _) => l,
+            (_, None, Some(d)) => d,
+            (_, None, None) => 0.0,
+        }
+    };
+    let hold = |last: Option<f64>| last.unwrap_or(0.0);
+    let (lt, gt) = line_of(plan.metal_temperature, tags, tag_plans, a, b, pick(design_t));
+    let (lp, gp) = line_of(plan.pressure, tags, tag_plans, a, b, pick(design_p));
+    let (mut ll, mut ls, mut lsl, mut lf) = (Line::default(), Line::default(), Line::default(), Line::default());
+    let mut gw = false;
+    if let Some(w) = &plan.wear {
+        let (x, g1) = line_of(Some(w.normal_load), tags, tag_plans, a, b, hold);
+        let (y, g2) = line_of(w.sliding_speed, tags, tag_plans, a, b, hold);
+        let (z, g3) = line_of(w.slip_amplitude, tags, tag_plans, a, b, hold);
+        let (f, g4) = line_of(w.frequency, tags, tag_plans, a, b, hold);
+        ll = x;
+        ls = y;
+        lsl = z;
+        lf = f;
+        gw = g1 || g2 || g3 || g4;
+    }
+    let unmonitored = gt || gp || gw;
+    state.integrated_h += dt_h;
+    if unmonitored {
+        state.unmonitored_h += dt_h;
+        state.flags.unmonitored = true;
+        if policy == GapPolicy::Exclude {
+            state.now.unmonitored = true;
+            return;
+        }
+    }
+    let span = b - a;
+    let point = |dt: f64| Point {
+        t_k: lt.at(dt),
+        p_mpa: lp.at(dt),
+        load_n: ll.at(dt),
+        speed_mm_s: ls.at(dt),
+        slip_mm: lsl.at(dt),
+        freq_hz: lf.at(dt),
+    };
+    let thinning = matches!(plan.stress, StressPlan::Hoop { thinning_rate_mm_per_year, .. } if thinning_rate_mm_per_year > 0.0);
+    let constant = lt.k == 0.0 && lp.k == 0.0 && ll.k == 0.0 && ls.k == 0.0 && lsl.k == 0.0 && lf.k == 0.0 && !thinning;
+    let start_ms = state.first_sample_ms.unwrap_or(a_ms);
+    let threshold_k = plan.creep_threshold_k();
+
+    let (mut d_life, mut d_strain, mut d_wear) = (0.0, 0.0, 0.0);
+    let (last_rates, last_point);
+    if constant {
+        let p = point(0.0);
+        let r = rates(plan, &p, a, start_ms, threshold_k);
+        d_life = r.life_per_h * dt_h;
+        d_strain = r.strain_per_h * dt_h;
+        d_wear = r.wear_mm_per_h * dt_h;
+        account_node(plan, state, &p, &r, dt_h);
+        last_rates = r;
+        last_point = p;
+    } else {
+        let dtk = (lt.k * span).abs();
+        let pmax = lp.v0.abs().max(lp.at(span).abs()).max(1e-9);
+        let dpr = (lp.k * span).abs() / pmax;
+        let n = ((dtk / PANEL_TEMPERATURE_STEP_K).max(dpr / PANEL_PRESSURE_STEP).ceil() as usize)
+            .clamp(1, MAX_PANELS);
+        let h = span / n as f64;
+        let h_h = dt_h / n as f64;
+        // Composite Simpson: nodes at panel ends and midpoints,
+        // weights h/6 · (1, 4, 1) per panel.
+        let mut r0p = point(0.0);
+        let mut r0 = rates(plan, &r0p, a, start_ms, threshold_k);
+        for i in 0..n {
+            let xm = h * (i as f64 + 0.5);
+            let x1 = if i + 1 == n { span } else { h * (i + 1) as f64 };
+            let pm = point(xm);
+            let p1 = point(x1);
+            let rm = rates(plan, &pm, a + xm, start_ms, threshold_k);
+            let r1 = rates(plan, &p1, a + x1, start_ms, threshold_k);
+            let w = h_h / 6.0;
+            d_life += w * (r0.life_per_h + 4.0 * rm.life_per_h + r1.life_per_h);
+            d_strain += w * (r0.strain_per_h + 4.0 * rm.strain_per_h + r1.strain_per_h);
+            d_wear += w * (r0.wear_mm_per_h + 4.0 * rm.wear_mm_per_h + r1.wear_mm_per_h);
+            account_node(plan, state, &r0p, &r0, w);
+            account_node(plan, state, &pm, &rm, 4.0 * w);
+            account_node(plan, state, &p1, &r1, w);
+            r0 = r1;
+            r0p = p1;
+        }
+        last_rates = r0;
+        last_point = r0p;
+    }
+    state.life_fraction += d_life;
+    state.creep_strain += d_strain;
+    state.wear_depth_mm += d_wear;
+    if dt_h > 0.0 {
+        state.recent_life_fraction_rate_per_h =
+            update_recent_rate(state.recent_life_fraction_rate_per_h, d_life / dt_h, dt_h, tau_h);
+        state.recent_creep_strain_rate_per_h =
+            update_recent_rate(state.recent_creep_strain_rate_per_h, d_strain / dt_h, dt_h, tau_h);
+        state.recent_wear_rate_mm_per_h =
+            update_recent_rate(state.recent_wear_rate_mm_per_h, d_wear / dt_h, dt_h, tau_h);
+    }
+    state.now = Conditions {
+        metal_temperature_k: last_point.t_k,
+        pressure_mpa: last_point.p_mpa,
+        hoop_stress_mpa: last_rates.stress_mpa,
+        rupture_life_h: last_rates.rupture_h,
+        life_fraction_rate_per_h: last_rates.life_per_h,
+        creep_rate_per_h: last_rates.strain_per_h,
+        wear_rate_mm_per_h: last_rates.wear_mm_per_h,
+        fretting_regime: plan.wear.as_ref().and_then(|w| match w.model {
+            WearModel::Fretting => Some(fretting_regime(last_point.slip_mm, &w.regime_bounds)),
+            WearModel::Archard => None,
+        }),
+        unmonitored,
+    };
+}
+
+/// Book-keeping at one quadrature node carrying `w_h` hours.
+#[inline]
+fn account_node(plan: &ComponentPlan, state: &mut ComponentState, p: &Point, r: &Rates, w_h: f64) {
+    if plan.metal_temperature.is_some() {
+        state.histogram.add(p.t_k, p.p_mpa, w_h);
+        if p.t_k > state.peak_temperature_k {
+            state.peak_temperature_k = p.t_k;
+        }
+        if let Some(d) = plan.design_temperature_k {
+            if p.t_k > d {
+                state.over_design_h += w_h;
+                state.flags.over_design_temperature = true;
+            }
+        }
+    }
+    if r.creep {
+        state.hours_in_creep_range += w_h;
+        if r.flags.any() {
+            state.extrapolated_h += w_h;
+            let f = &mut state.flags.extrapolated;
+            f.stress_below |= r.flags.stress_below;
+            f.stress_above |= r.flags.stress_above;
+            f.temperature_below |= r.flags.temperature_below;
+            f.temperature_above |= r.flags.temperature_above;
+        }
+    }
+    state.flags.wall_exhausted |= r.wall_exhausted;
+}
+
+/// Damage, strain and wear rates at one instant.
+#[inline]
+fn rates(plan: &ComponentPlan, p: &Point, tau_ms: f64, start_ms: i64, threshold_k: f64) -> Rates {
+    let mut r = Rates { rupture_h: f64::INFINITY, ..Rates::default() };
+    let sigma = match plan.stress {
+        StressPlan::Fixed(s) => s,
+        StressPlan::Hoop {
+            basis,
+            outside_diameter_mm,
+            wall_mm,
+            measured_loss_mm,
+            thinning_rate_mm_per_year,
+            wall_reference_ms,
+        } => {
+            let service_h = (tau_ms - wall_reference_ms.unwrap_or(start_ms) as f64) / MS_PER_H;
+            let wall = remaining_wall_mm(wall_mm, measured_loss_mm, thinning_rate_mm_per_year, service_h);
+            r.wall_exhausted = wall <= crate::physics::stress::MIN_WALL_MM;
+            hoop_stress_mpa(basis, p.p_mpa, outside_diameter_mm, wall)
+        }
+    } * plan.stress_factor;
+    r.stress_mpa = sigma;
+    if plan.metal_temperature.is_some() && p.t_k >= threshold_k && sigma > 0.0 {
+        r.creep = true;
+        let ln_s = sigma.ln();
+        let (l10, flags) = log10_rupture_life_h(
+            &plan.material.larson_miller,
+            ln_s * std::f64::consts::LOG10_E,
+            p.t_k,
+            plan.curve_basis,
+        );
+        r.flags = flags;
+        r.rupture_h = 10f64.powf(l10);
+        r.life_per_h = 10f64.powf(-l10);
+        if let Some(n) = &plan.material.norton {
+            r.strain_per_h = creep_rate_per_h_ln(n, ln_s, p.t_k);
+        }
+    }
+    if let Some(w) = &plan.wear {
+        let speed = match w.model {
+            WearModel::Archard => p.speed_mm_s.abs(),
+            WearModel::Fretting => fretting_sliding_speed_mm_s(p.slip_mm, p.freq_hz),
+        };
+        let vol_rate_mm3_s = w.volume_coefficient * p.load_n.max(0.0) * speed;
+        r.wear_mm_per_h = vol_rate_mm3_s / w.contact_area_mm2 * 3600.0;
+    }
+    r
+}

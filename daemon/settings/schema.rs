@@ -1,0 +1,351 @@
+//! The configuration file schema, as typed serde structs.
+//!
+//! Every struct rejects unknown keys, so a misspelt key is an error rather
+//! than a silently ignored setting. Quantities carry their unit
+//! (`{ value = 540, unit = "degC" }`); conversion to internal units happens
+//! in [`super::validate`].
+
+use crate::physics::larson_miller::CurveBasis;
+use crate::physics::material::Material;
+use crate::physics::stress::StressBasis;
+use crate::physics::wear::RegimeBounds;
+use serde::{Deserialize, Serialize};
+
+/// The whole configuration file.
+#[derive(Debug, Clone, Default, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct Settings {
+    /// Plant identity, written as tags on every database point.
+    #[serde(default)]
+    pub plant: PlantSettings,
+    /// Engine defaults that apply to every component.
+    #[serde(default)]
+    pub engine: EngineSettings,
+    /// The plant signals lifeledger reads.
+    #[serde(default, rename = "tag")]
+    pub tags: Vec<TagSettings>,
+    /// The parts whose life is tracked.
+    #[serde(default, rename = "component")]
+    pub components: Vec<ComponentSettings>,
+    /// User material grades, in the same format as the library files.
+    #[serde(default, rename = "material")]
+    pub materials: Vec<Material>,
+    /// Sections used by the live service (MQTT, store, database, alarms,
+    /// HTTP); kept as free-form tables here and typed by the service.
+    #[serde(default)]
+    pub mqtt: Option<toml::Table>,
+    #[serde(default)]
+    pub store: Option<toml::Table>,
+    #[serde(default)]
+    pub database: Option<toml::Table>,
+    #[serde(default)]
+    pub http: Option<toml::Table>,
+    #[serde(default)]
+    pub alarms: Option<toml::Table>,
+}
+
+/// Plant identity.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct PlantSettings {
+    #[serde(default = "default_plant")]
+    pub name: String,
+}
+
+impl Default for PlantSettings {
+    fn default() -> Self {
+        PlantSettings { name: default_plant() }
+    }
+}
+
+fn default_plant() -> String {
+    "plant".into()
+}
+
+/// What to do over intervals without trustworthy data.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Deserialize, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum GapPolicy {
+    /// Integrate at the worse of design conditions and the last good value
+    /// (the default: over-estimates damage rather than under-estimates).
+    #[default]
+    Conservative,
+    /// Integrate at the last good value.
+    HoldLast,
+    /// Integrate nothing; the hours are only counted as unmonitored.
+    Exclude,
+}
+
+/// Engine-wide settings.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct EngineSettings {
+    /// Rupture curve used for life fraction: `minimum` (default) or `mean`.
+    #[serde(default)]
+    pub curve_basis: CurveBasis,
+    /// Policy for gaps longer than a tag's hold time.
+    #[serde(default)]
+    pub gap_policy: GapPolicy,
+    /// Default maximum hold time of a tag, seconds (default 900).
+    #[serde(default = "default_hold")]
+    pub max_hold_s: f64,
+    /// Time constant of the recent damage rate used for projections, hours
+    /// (default 720 h, about a month of operation).
+    #[serde(default = "default_tau")]
+    pub recent_rate_window_h: f64,
+    /// Width of temperature classes in the time-at-condition histogram, K.
+    #[serde(default = "default_tclass")]
+    pub temperature_class_k: f64,
+    /// Number of pressure classes between zero and 1.2 × design pressure.
+    #[serde(default = "default_pclasses")]
+    pub pressure_classes: usize,
+}
+
+impl Default for EngineSettings {
+    fn default() -> Self {
+        EngineSettings {
+            curve_basis: CurveBasis::default(),
+            gap_policy: GapPolicy::default(),
+            max_hold_s: default_hold(),
+            recent_rate_window_h: default_tau(),
+            temperature_class_k: default_tclass(),
+            pressure_classes: default_pclasses(),
+        }
+    }
+}
+
+fn default_hold() -> f64 {
+    900.0
+}
+fn default_tau() -> f64 {
+    720.0
+}
+fn default_tclass() -> f64 {
+    10.0
+}
+fn default_pclasses() -> usize {
+    6
+}
+
+/// Sample-and-hold or straight-line reconstruction between samples.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Deserialize, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Interpolation {
+    /// Straight line between consecutive samples (analog process values).
+    #[default]
+    Linear,
+    /// The value holds until the next sample (report-on-change signals).
+    Step,
+}
+
+/// One plant signal.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct TagSettings {
+    /// The tag name as the plant knows it, for example `U2.SH3.TE-311`.
+    pub name: String,
+    /// Engineering unit of the values, for example `degC`, `barg`, `N`.
+    pub unit: String,
+    /// Values outside `[low, high]` (in the tag's unit) are rejected.
+    #[serde(default)]
+    pub valid_range: Option<[f64; 2]>,
+    /// Longest interval (s) over which the last value is trusted.
+    #[serde(default)]
+    pub max_hold_s: Option<f64>,
+    #[serde(default)]
+    pub interpolation: Interpolation,
+    /// Raw-to-engineering scaling: `value · scale + offset` before the unit.
+    #[serde(default = "one")]
+    pub scale: f64,
+    #[serde(default)]
+    pub offset: f64,
+    /// MQTT ingest settings for this tag (typed by the live service).
+    #[serde(default)]
+    pub mqtt: Option<toml::Table>,
+}
+
+fn one() -> f64 {
+    1.0
+}
+
+/// A number with its unit.
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct QuantitySetting {
+    pub value: f64,
+    pub unit: String,
+}
+
+/// An input that is either a tag name or a constant quantity.
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(untagged)]
+pub enum InputSetting {
+    Tag(String),
+    Constant(QuantitySetting),
+}
+
+/// The kind of part (reporting and defaults only).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ComponentKind {
+    Tube,
+    Header,
+    Pipe,
+    Casing,
+    FurnaceTube,
+    WearContact,
+    Other,
+}
+
+/// Wall and diameter of a pressure part.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct GeometrySettings {
+    pub outside_diameter: QuantitySetting,
+    /// Nominal (or last measured) wall thickness.
+    pub wall: QuantitySetting,
+    /// Wall already lost at `wall_reference_date`, from inspection.
+    #[serde(default)]
+    pub measured_wall_loss: Option<QuantitySetting>,
+    /// Corrosion or erosion allowance included in the wall (reported).
+    #[serde(default)]
+    pub corrosion_allowance: Option<QuantitySetting>,
+    /// Thinning in service, mm per year, from `wall_reference_date` on.
+    #[serde(default)]
+    pub thinning_rate_mm_per_year: f64,
+    /// Date of the wall measurement (RFC 3339 date or date-time); thinning
+    /// counts from here. Default: the first sample.
+    #[serde(default)]
+    pub wall_reference_date: Option<String>,
+}
+
+/// Wear model of a contact.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum WearModel {
+    /// Archard sliding wear: V̇ = K·F·v/H.
+    Archard,
+    /// Fretting work-rate: V̇ = K_w·F·4δf.
+    Fretting,
+}
+
+/// Inputs and constants of a wear contact.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct WearSettings {
+    pub model: WearModel,
+    pub normal_load: InputSetting,
+    /// Archard: sliding speed (tag or constant).
+    #[serde(default)]
+    pub sliding_speed: Option<InputSetting>,
+    /// Fretting: slip amplitude (tag or constant).
+    #[serde(default)]
+    pub slip_amplitude: Option<InputSetting>,
+    /// Fretting: vibration frequency (tag or constant).
+    #[serde(default)]
+    pub frequency: Option<InputSetting>,
+    /// Archard: dimensionless K. Fretting: work-rate coefficient
+    /// K_w in mm³/(N·mm) (equal to 1e-3 × the handbook value in
+    /// mm³/(N·m)... see README).
+    pub wear_coefficient: f64,
+    /// Hardness HV of the softer surface (Archard only); default: the
+    /// material's.
+    #[serde(default)]
+    pub hardness_hv: Option<f64>,
+    /// Apparent contact area, mm².
+    pub contact_area_mm2: f64,
+    /// Allowable wear depth.
+    pub allowable_depth: QuantitySetting,
+    #[serde(default)]
+    pub regime_bounds: Option<RegimeBounds>,
+}
+
+/// State found at the last inspection or carried from an earlier record.
+#[derive(Debug, Clone, Default, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct InitialSettings {
+    #[serde(default)]
+    pub life_fraction: f64,
+    #[serde(default)]
+    pub creep_strain: f64,
+    #[serde(default)]
+    pub wear_depth_mm: f64,
+    /// When these were established (informational).
+    #[serde(default)]
+    pub as_of: Option<String>,
+}
+
+/// Threshold levels of one index.
+#[derive(Debug, Clone, Copy, Default, Deserialize, Serialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct LevelSettings {
+    pub advisory: Option<f64>,
+    pub warning: Option<f64>,
+    pub critical: Option<f64>,
+}
+
+/// Alarm thresholds of a component; absent levels use the defaults.
+#[derive(Debug, Clone, Default, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct ThresholdSettings {
+    #[serde(default)]
+    pub life_fraction: Option<LevelSettings>,
+    #[serde(default)]
+    pub creep_strain: Option<LevelSettings>,
+    #[serde(default)]
+    pub wear_index: Option<LevelSettings>,
+    /// Margin above design temperature, K, that raises an alarm (default 0).
+    #[serde(default)]
+    pub over_design_temperature_k: Option<LevelSettings>,
+    /// Projected hours to the critical life fraction (alarm when below).
+    #[serde(default)]
+    pub hours_to_critical: Option<LevelSettings>,
+}
+
+/// One tracked part.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct ComponentSettings {
+    /// Unique name, for example `U2-SH3-OUTLET-A`.
+    pub name: String,
+    /// Unit or area of the plant, for example `U2`.
+    #[serde(default)]
+    pub unit: String,
+    pub kind: ComponentKind,
+    /// Library grade or user grade.
+    pub material: String,
+    #[serde(default)]
+    pub design_temperature: Option<QuantitySetting>,
+    #[serde(default)]
+    pub design_pressure: Option<QuantitySetting>,
+    #[serde(default)]
+    pub geometry: Option<GeometrySettings>,
+    /// Hoop stress formula (default `mean_diameter`).
+    #[serde(default)]
+    pub stress_basis: Option<StressBasis>,
+    /// For parts not loaded by internal pressure: a fixed stress.
+    #[serde(default)]
+    pub fixed_stress: Option<QuantitySetting>,
+    /// Multiplier on computed stress (stress concentration, system loads).
+    #[serde(default = "one")]
+    pub stress_factor: f64,
+    /// Metal temperature input (tag or constant).
+    #[serde(default)]
+    pub metal_temperature: Option<InputSetting>,
+    /// Internal pressure input (tag or constant).
+    #[serde(default)]
+    pub pressure: Option<InputSetting>,
+    /// Rupture curve override for this component.
+    #[serde(default)]
+    pub curve_basis: Option<CurveBasis>,
+    /// Accept design conditions outside the material data range (the
+    /// engine still flags every extrapolated hour).
+    #[serde(default)]
+    pub allow_extrapolation: bool,
+    #[serde(default)]
+    pub wear: Option<WearSettings>,
+    #[serde(default)]
+    pub initial: InitialSettings,
+    #[serde(default)]
+    pub thresholds: ThresholdSettings,
+}
