@@ -1,1 +1,395 @@
-fn main() {}
+//! The `lifeledger` command: a thin shell over the library. Each
+//! subcommand parses its arguments, calls the library and prints.
+
+use anyhow::{bail, Context, Result};
+use clap::{Parser, Subcommand, ValueEnum};
+use lifeledger::engine::Engine;
+use lifeledger::report::{self, ComponentReport};
+use lifeledger::settings::{library::MaterialLibrary, load_plan};
+use std::io::{IsTerminal, Write};
+use std::path::PathBuf;
+
+const CAUTION_HELP: &str = "CAUTION: lifeledger gives screening estimates for planning inspections. \
+Built-in material data and alarm defaults are not authoritative: limits, material data and \
+acceptance must come from the plant's governing code and a responsible (licensed) engineer.";
+
+/// Creep and wear life ledger for high-temperature plant components.
+///
+/// lifeledger turns metal temperature, pressure, load and vibration tags
+/// into hoop stress, creep life fraction (Larson-Miller rupture life,
+/// Robinson's rule), creep strain (Norton-Arrhenius) and wear (Archard,
+/// fretting work-rate) per component.
+#[derive(Parser)]
+#[command(name = "lifeledger", version, after_help = CAUTION_HELP, max_term_width = 100)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Clone, Copy, ValueEnum, PartialEq)]
+enum Format {
+    /// A table for people.
+    Table,
+    /// JSON for programs.
+    Json,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Replay a historian CSV export through the engine and print the ledger.
+    ///
+    /// The CSV is long format, one sample per row: `timestamp,tag,value[,quality]`,
+    /// with an optional header row. Timestamps are RFC 3339 or epoch seconds;
+    /// quality is good (default), uncertain or bad. The file may be gzipped.
+    /// Values are in each tag's configured unit. Malformed rows are counted
+    /// and listed with their line numbers; they never stop the replay.
+    ///
+    /// Example:
+    ///   lifeledger replay --config config/demo/plant.toml --input config/demo/history.csv.gz
+    #[command(after_help = CAUTION_HELP)]
+    Replay {
+        /// Configuration file (TOML).
+        #[arg(long, short)]
+        config: PathBuf,
+        /// Historian CSV (or .csv.gz); `-` reads standard input.
+        #[arg(long, short)]
+        input: String,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+        /// Also write the component time series as InfluxDB line protocol.
+        #[arg(long, value_name = "FILE")]
+        write_lp: Option<PathBuf>,
+        /// Event-time spacing of the line-protocol series, seconds.
+        #[arg(long, default_value_t = 600)]
+        lp_interval_s: i64,
+        /// Never show a progress bar (it is shown only on a terminal anyway).
+        #[arg(long)]
+        no_progress: bool,
+    },
+    /// Validate a configuration and print the values an engineer should sanity-check.
+    ///
+    /// Prints, per component: hoop stress at design pressure, homologous
+    /// temperature and whether it is in the creep range, rupture life at
+    /// design conditions on the minimum and mean curves, hours at design
+    /// conditions to each life-fraction alarm level, and validity warnings.
+    /// Every problem in the file is listed at once. Exit status 1 if any.
+    #[command(name = "check-config", after_help = CAUTION_HELP)]
+    CheckConfig {
+        /// Configuration file (TOML).
+        config: PathBuf,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+    },
+    /// List the material library or show one grade with every value and its source.
+    #[command(after_help = CAUTION_HELP)]
+    Materials {
+        #[command(subcommand)]
+        action: MaterialsAction,
+    },
+    /// Fit material constants (Larson-Miller, Norton) from your own creep test data.
+    #[command(after_help = CAUTION_HELP)]
+    Fit {
+        #[command(subcommand)]
+        cmd: lifeledger::fit::FitCommand,
+    },
+}
+
+#[derive(Subcommand)]
+enum MaterialsAction {
+    /// List the grades (shipped, plus user grades of a configuration).
+    List {
+        /// Also include the [[material]] grades of this configuration.
+        #[arg(long)]
+        config: Option<PathBuf>,
+    },
+    /// Show one grade: every value, its source, and checks against its reference data.
+    Show {
+        /// Grade name or alias, for example `P22` or `9Cr-1Mo-V`.
+        grade: String,
+        #[arg(long)]
+        config: Option<PathBuf>,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+    },
+}
+
+fn main() {
+    tracing_subscriber::fmt()
+        .with_env_filter(tracing_subscriber::EnvFilter::try_from_default_env().unwrap_or_else(|_| "warn".into()))
+        .with_writer(std::io::stderr)
+        .init();
+    let cli = Cli::parse();
+    let result = match cli.command {
+        Command::Replay { config, input, format, write_lp, lp_interval_s, no_progress } => {
+            cmd_replay(config, input, format, write_lp, lp_interval_s, no_progress)
+        }
+        Command::CheckConfig { config, format } => cmd_check(config, format),
+        Command::Materials { action } => cmd_materials(action),
+        Command::Fit { cmd } => lifeledger::fit::run(&cmd).map(|_| 0),
+    };
+    match result {
+        Ok(code) => std::process::exit(code),
+        Err(e) => {
+            eprintln!("error: {e:#}");
+            std::process::exit(2);
+        }
+    }
+}
+
+
+fn load(config: &PathBuf) -> Result<lifeledger::settings::LoadedConfig> {
+    load_plan(config).map_err(|e| anyhow::anyhow!("{e}"))
+}
+
+fn cmd_replay(
+    config: PathBuf,
+    input: String,
+    format: Format,
+    write_lp: Option<PathBuf>,
+    lp_interval_s: i64,
+    no_progress: bool,
+) -> Result<i32> {
+    let cfg = load(&config)?;
+    for w in &cfg.warnings {
+        eprintln!("warning: {w}");
+    }
+    let mut engine = Engine::new(cfg.plan.clone());
+    let counter = std::sync::Arc::new(std::sync::atomic::AtomicU64::new(0));
+    let total = std::fs::metadata(&input).map(|m| m.len()).unwrap_or(0);
+    let reader = lifeledger::replay::open_input(&input, Some(counter.clone()))
+        .with_context(|| format!("cannot open input {input}"))?;
+    let bar = if !no_progress && std::io::stderr().is_terminal() && total > 0 {
+        let b = indicatif::ProgressBar::new(total);
+        b.set_style(
+            indicatif::ProgressStyle::with_template("{spinner} replay [{bar:40}] {bytes}/{total_bytes} {msg} ({eta})")
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+        );
+        Some(b)
+    } else {
+        None
+    };
+    let mut lp_file = match &write_lp {
+        Some(p) => Some(std::io::BufWriter::new(
+            std::fs::File::create(p).with_context(|| format!("cannot create {}", p.display()))?,
+        )),
+        None => None,
+    };
+    let opts = lifeledger::replay::ReplayOptions { lp_interval_ms: lp_interval_s.max(1) * 1000 };
+    let started = std::time::Instant::now();
+    let outcome = lifeledger::replay::replay(
+        &mut engine,
+        reader,
+        lp_file.as_mut().map(|w| w as &mut dyn Write),
+        &opts,
+        |rows| {
+            if let Some(b) = &bar {
+                b.set_position(counter.load(std::sync::atomic::Ordering::Relaxed));
+                b.set_message(format!("{rows} rows"));
+            }
+        },
+    )
+    .with_context(|| format!("reading {input}"))?;
+    if let Some(b) = bar {
+        b.finish_and_clear();
+    }
+    if let Some(mut f) = lp_file {
+        f.flush()?;
+    }
+    let elapsed = started.elapsed().as_secs_f64();
+    let reports: Vec<ComponentReport> = engine
+        .plan()
+        .components
+        .iter()
+        .zip(engine.components())
+        .map(|(p, s)| ComponentReport::new(p, s))
+        .collect();
+    let mut out = std::io::stdout().lock();
+    match format {
+        Format::Json => {
+            let j = serde_json::json!({
+                "plant": engine.plan().plant,
+                "config": cfg.file,
+                "input": input,
+                "rows": outcome.rows,
+                "malformed_rows": outcome.malformed,
+                "malformed_examples": outcome.malformed_examples,
+                "unknown_tags": outcome.unknown_tags,
+                "first_sample": outcome.first_time_ms.map(report::rfc3339_ms),
+                "last_sample": outcome.last_time_ms.map(report::rfc3339_ms),
+                "counters": engine.counters(),
+                "line_protocol_points": outcome.points_written,
+                "components": reports,
+                "caution": lifeledger::CAUTION,
+            });
+            serde_json::to_writer_pretty(&mut out, &j)?;
+            writeln!(out)?;
+        }
+        Format::Table => {
+            writeln!(out, "lifeledger replay: {} ({} rows in {:.1} s)", engine.plant_name(), outcome.rows, elapsed)?;
+            if let (Some(a), Some(b)) = (outcome.first_time_ms, outcome.last_time_ms) {
+                writeln!(out, "event time {} to {}", report::rfc3339_ms(a), report::rfc3339_ms(b))?;
+            }
+            writeln!(out, "{}", report::counters_line(engine.counters()))?;
+            if outcome.malformed > 0 {
+                writeln!(out, "malformed rows: {}", outcome.malformed)?;
+                for m in &outcome.malformed_examples {
+                    writeln!(out, "  line {}: {}", m.line, m.problem)?;
+                }
+            }
+            for (t, n) in &outcome.unknown_tags {
+                writeln!(out, "unknown tag {t:?}: {n} rows (not in the configuration)")?;
+            }
+            writeln!(out)?;
+            write!(out, "{}", report::summary_table(&reports))?;
+            if let Some(p) = &write_lp {
+                writeln!(out, "\nwrote {} line-protocol points to {}", outcome.points_written, p.display())?;
+            }
+            writeln!(out, "\n{}", lifeledger::CAUTION)?;
+        }
+    }
+    Ok(0)
+}
+
+fn fmt_opt(v: Option<f64>, prec: usize) -> String {
+    v.map_or("-".into(), |x| format!("{x:.prec$}"))
+}
+
+fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
+    let cfg = match load_plan(&config) {
+        Ok(c) => c,
+        Err(e) => {
+            eprint!("{e}");
+            return Ok(1);
+        }
+    };
+    let checks: Vec<_> = cfg.plan.components.iter().map(report::design_check).collect();
+    let mut out = std::io::stdout().lock();
+    if format == Format::Json {
+        let j = serde_json::json!({
+            "config": cfg.file,
+            "ok": true,
+            "warnings": cfg.warnings.iter().map(|w| w.to_string()).collect::<Vec<_>>(),
+            "components": checks,
+            "caution": lifeledger::CAUTION,
+        });
+        serde_json::to_writer_pretty(&mut out, &j)?;
+        writeln!(out)?;
+        return Ok(0);
+    }
+    writeln!(out, "{}: OK, {} tags, {} components", cfg.file, cfg.plan.tags.len(), cfg.plan.components.len())?;
+    for w in &cfg.warnings {
+        writeln!(out, "warning: {w}")?;
+    }
+    for c in &checks {
+        writeln!(out, "\n{} ({})", c.component, c.material)?;
+        writeln!(out, "  hoop stress at design pressure   {} MPa", fmt_opt(c.hoop_stress_at_design_mpa, 1))?;
+        writeln!(
+            out,
+            "  homologous temperature T/Tm      {} (creep threshold {:.0} °C; in creep range: {})",
+            fmt_opt(c.homologous_temperature, 3),
+            c.creep_threshold_c,
+            c.in_creep_range.map_or("-", |b| if b { "yes" } else { "no" })
+        )?;
+        writeln!(
+            out,
+            "  rupture life at design           {} h minimum curve, {} h mean curve",
+            fmt_opt(c.rupture_life_minimum_h, 0),
+            fmt_opt(c.rupture_life_mean_h, 0)
+        )?;
+        for (k, h) in &c.hours_to_levels_at_design {
+            writeln!(out, "  hours at design to {k:<22} {h:.0} h")?;
+        }
+        for w in &c.warnings {
+            writeln!(out, "  warning: {w}")?;
+        }
+    }
+    writeln!(out, "\n{}", lifeledger::CAUTION)?;
+    Ok(0)
+}
+
+fn library_with(config: &Option<PathBuf>) -> Result<MaterialLibrary> {
+    match config {
+        None => Ok(MaterialLibrary::embedded()),
+        Some(p) => Ok(load(p)?.library),
+    }
+}
+
+fn cmd_materials(action: MaterialsAction) -> Result<i32> {
+    use lifeledger::physics::larson_miller::{rupture_strength_mpa, CurveBasis};
+    use lifeledger::physics::units::kelvin_to_celsius as c;
+    let mut out = std::io::stdout().lock();
+    match action {
+        MaterialsAction::List { config } => {
+            let lib = library_with(&config)?;
+            writeln!(out, "{:<14} {:>12} {:>16}  {}", "grade", "T range °C", "σ range MPa", "aliases")?;
+            for m in lib.grades() {
+                let lm = &m.larson_miller;
+                writeln!(
+                    out,
+                    "{:<14} {:>5.0}–{:<6.0} {:>7.0}–{:<8.0}  {}",
+                    m.grade,
+                    c(lm.temperature_range_k[0]),
+                    c(lm.temperature_range_k[1]),
+                    lm.stress_range_mpa[0],
+                    lm.stress_range_mpa[1],
+                    m.aliases.join(", ")
+                )?;
+            }
+            writeln!(out, "\n{}", lifeledger::CAUTION)?;
+            Ok(0)
+        }
+        MaterialsAction::Show { grade, config, format } => {
+            let lib = library_with(&config)?;
+            let Some(m) = lib.get(&grade) else {
+                bail!("unknown grade {grade:?}; known grades: {}", lib.names().join(", "));
+            };
+            if format == Format::Json {
+                serde_json::to_writer_pretty(&mut out, &serde_json::json!({"material": m, "caution": lifeledger::CAUTION}))?;
+                writeln!(out)?;
+                return Ok(0);
+            }
+            writeln!(out, "{} ({})", m.grade, m.aliases.join(", "))?;
+            if !m.description.is_empty() {
+                writeln!(out, "{}", m.description)?;
+            }
+            writeln!(out, "\nmelting point        {:.0} K ({:.0} °C)   source: {}", m.melting_point_k.value, c(m.melting_point_k.value), m.melting_point_k.source)?;
+            match &m.creep_threshold_k {
+                Some(t) => writeln!(out, "creep threshold      {:.0} K ({:.0} °C)   source: {}", t.value, c(t.value), t.source)?,
+                None => writeln!(out, "creep threshold      {:.0} K (0.4 Tm, rule of thumb)", m.creep_threshold_k())?,
+            }
+            if let Some(h) = &m.hardness_hv {
+                writeln!(out, "hardness             {:.0} HV   source: {}", h.value, h.source)?;
+            }
+            let lm = &m.larson_miller;
+            writeln!(out, "\nLarson-Miller        P = T[K]·({} + log10 t_r[h]) = Σ a_i·(log10 σ[MPa])^i", lm.constant_c)?;
+            writeln!(out, "  coefficients       {:?}", lm.coefficients)?;
+            writeln!(out, "  data range         {:.0}–{:.0} MPa, {:.0}–{:.0} °C", lm.stress_range_mpa[0], lm.stress_range_mpa[1], c(lm.temperature_range_k[0]), c(lm.temperature_range_k[1]))?;
+            writeln!(out, "  minimum curve      {:?}", lm.minimum)?;
+            writeln!(out, "  source             {}", lm.source)?;
+            if let Some(n) = &m.norton {
+                writeln!(out, "\nNorton-Arrhenius     ε̇[1/h] = {:e}·σ^{}·exp(−{}/(R·T))", n.a_per_h, n.n, n.q_j_per_mol)?;
+                writeln!(out, "  source             {}", n.source)?;
+            }
+            if !m.reference_rupture_strengths.is_empty() {
+                writeln!(out, "\nreference rupture strengths against the master curve:")?;
+                writeln!(out, "  {:>6} {:>9} {:>10} {:>10} {:>10}  source", "°C", "hours", "ref MPa", "mean MPa", "min MPa")?;
+                for r in &m.reference_rupture_strengths {
+                    let tk = r.temperature_c + 273.15;
+                    writeln!(
+                        out,
+                        "  {:>6.0} {:>9.0} {:>10.1} {:>10} {:>10}  {}",
+                        r.temperature_c,
+                        r.hours,
+                        r.stress_mpa,
+                        fmt_opt(rupture_strength_mpa(lm, tk, r.hours, CurveBasis::Mean), 1),
+                        fmt_opt(rupture_strength_mpa(lm, tk, r.hours, CurveBasis::Minimum), 1),
+                        r.source
+                    )?;
+                }
+            }
+            writeln!(out, "\nThese are screening values. {}", lifeledger::CAUTION)?;
+            Ok(0)
+        }
+    }
+}

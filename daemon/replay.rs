@@ -1,1 +1,348 @@
-//! Historian CSV replay.
+//! Historian backfill: stream a long-format CSV (`timestamp,tag,value[,quality]`)
+//! through the same engine the live service runs.
+//!
+//! Timestamps are RFC 3339 (`2026-10-01T00:00:00Z`, fractions and offsets
+//! allowed) or epoch seconds. Files may be gzip-compressed (detected by
+//! their magic bytes). A malformed row is counted and reported with its
+//! line number; it never stops the replay. Rows for tags that are not in
+//! the configuration are counted per tag.
+
+use crate::engine::{Engine, Quality, Sample, TagId};
+use crate::report::component_point;
+use std::collections::{BTreeMap, HashMap};
+use std::hash::{BuildHasherDefault, Hasher};
+use std::io::{self, BufRead, BufReader, Read, Write};
+
+/// How many malformed rows are kept as examples in the outcome.
+pub const MALFORMED_EXAMPLES: usize = 20;
+
+/// A small, fast hasher for tag names (FNV-1a).
+#[derive(Default)]
+pub struct Fnv(u64);
+
+impl Hasher for Fnv {
+    fn finish(&self) -> u64 {
+        self.0
+    }
+    fn write(&mut self, bytes: &[u8]) {
+        let mut h = if self.0 == 0 { 0xcbf2_9ce4_8422_2325 } else { self.0 };
+        for b in bytes {
+            h ^= *b as u64;
+            h = h.wrapping_mul(0x0100_0000_01b3);
+        }
+        self.0 = h;
+    }
+}
+
+/// Tag name to id map used by decoders.
+pub type TagIndex = HashMap<String, TagId, BuildHasherDefault<Fnv>>;
+
+/// Build the tag index of an engine.
+pub fn tag_index(engine: &Engine) -> TagIndex {
+    engine.plan().tags.iter().enumerate().map(|(i, t)| (t.name.clone(), i as TagId)).collect()
+}
+
+/// A row that could not be read.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct MalformedRow {
+    pub line: u64,
+    pub problem: String,
+}
+
+/// What a replay did.
+#[derive(Debug, Clone, Default, serde::Serialize)]
+pub struct ReplayOutcome {
+    pub rows: u64,
+    pub malformed: u64,
+    pub malformed_examples: Vec<MalformedRow>,
+    pub unknown_tags: BTreeMap<String, u64>,
+    pub first_time_ms: Option<i64>,
+    pub last_time_ms: Option<i64>,
+    pub points_written: u64,
+}
+
+/// Options of a replay.
+#[derive(Debug, Clone)]
+pub struct ReplayOptions {
+    /// Event-time spacing of the component series written as line protocol.
+    pub lp_interval_ms: i64,
+}
+
+impl Default for ReplayOptions {
+    fn default() -> Self {
+        ReplayOptions { lp_interval_ms: 600_000 }
+    }
+}
+
+/// Days from 1970-01-01 to a civil date (proleptic Gregorian), after
+/// H. Hinnant's `days_from_civil`.
+fn days_from_civil(y: i64, m: i64, d: i64) -> i64 {
+    let y = if m <= 2 { y - 1 } else { y };
+    let era = if y >= 0 { y } else { y - 399 } / 400;
+    let yoe = y - era * 400;
+    let mp = (m + 9) % 12;
+    let doy = (153 * mp + 2) / 5 + d - 1;
+    let doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
+    era * 146_097 + doe - 719_468
+}
+
+fn digits(b: &[u8]) -> Option<i64> {
+    let mut v = 0i64;
+    for &c in b {
+        if !c.is_ascii_digit() {
+            return None;
+        }
+        v = v * 10 + (c - b'0') as i64;
+    }
+    Some(v)
+}
+
+/// Parse an RFC 3339 timestamp or epoch seconds to milliseconds.
+pub fn parse_timestamp_ms(s: &str) -> Option<i64> {
+    let b = s.as_bytes();
+    if b.len() >= 20 && b[4] == b'-' && b[7] == b'-' && (b[10] == b'T' || b[10] == b' ' || b[10] == b't') && b[13] == b':' && b[16] == b':' {
+        let y = digits(&b[0..4])?;
+        let mo = digits(&b[5..7])?;
+        let d = digits(&b[8..10])?;
+        let h = digits(&b[11..13])?;
+        let mi = digits(&b[14..16])?;
+        let se = digits(&b[17..19])?;
+        if !(1..=12).contains(&mo) || !(1..=31).contains(&d) || h > 23 || mi > 59 || se > 60 {
+            return None;
+        }
+        let mut i = 19;
+        let mut frac_ms = 0i64;
+        if b[i] == b'.' {
+            i += 1;
+            let start = i;
+            while i < b.len() && b[i].is_ascii_digit() {
+                i += 1;
+            }
+            if i == start {
+                return None;
+            }
+            let f = &b[start..i.min(start + 3)];
+            let mut v = digits(f)?;
+            for _ in f.len()..3 {
+                v *= 10;
+            }
+            frac_ms = v;
+        }
+        let offset_min = match b.get(i)? {
+            b'Z' | b'z' if i + 1 == b.len() => 0,
+            c @ (b'+' | b'-') if i + 6 == b.len() && b[i + 3] == b':' => {
+                let oh = digits(&b[i + 1..i + 3])?;
+                let om = digits(&b[i + 4..i + 6])?;
+                let o = oh * 60 + om;
+                if *c == b'+' {
+                    o
+                } else {
+                    -o
+                }
+            }
+            _ => return None,
+        };
+        let days = days_from_civil(y, mo, d);
+        let secs = days * 86_400 + h * 3600 + mi * 60 + se - offset_min * 60;
+        return Some(secs * 1000 + frac_ms);
+    }
+    // Epoch seconds (integer or decimal).
+    if !b.is_empty() && b.iter().all(|c| c.is_ascii_digit() || *c == b'.' || *c == b'-') {
+        let v: f64 = s.parse().ok()?;
+        if v.is_finite() && v.abs() < 1e13 {
+            return Some((v * 1000.0).round() as i64);
+        }
+    }
+    None
+}
+
+/// Parse a quality word.
+pub fn parse_quality(s: &str) -> Option<Quality> {
+    match s.trim() {
+        "" | "good" | "Good" | "GOOD" | "g" | "192" => Some(Quality::Good),
+        "uncertain" | "Uncertain" | "UNCERTAIN" | "u" | "64" => Some(Quality::Uncertain),
+        "bad" | "Bad" | "BAD" | "b" | "0" => Some(Quality::Bad),
+        _ => None,
+    }
+}
+
+/// One parsed CSV row.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Row<'a> {
+    pub time_ms: i64,
+    pub tag: &'a str,
+    pub value: f64,
+    pub quality: Quality,
+}
+
+/// Parse one data row (without the line ending).
+pub fn parse_row(line: &str) -> Result<Row<'_>, String> {
+    let mut it = line.split(',');
+    let ts = it.next().unwrap_or("");
+    let tag = it.next().ok_or("missing tag and value fields")?;
+    let value = it.next().ok_or("missing value field")?;
+    let quality = it.next().unwrap_or("");
+    if it.next().is_some() {
+        return Err("more than four fields".into());
+    }
+    let time_ms = parse_timestamp_ms(ts.trim()).ok_or_else(|| format!("timestamp {ts:?} is neither RFC 3339 nor epoch seconds"))?;
+    let tag = tag.trim();
+    if tag.is_empty() {
+        return Err("empty tag".into());
+    }
+    let v = value.trim();
+    let value: f64 = v.parse().map_err(|_| format!("value {v:?} is not a number"))?;
+    let quality = parse_quality(quality).ok_or_else(|| format!("quality {quality:?} is not good, uncertain or bad"))?;
+    Ok(Row { time_ms, tag, value, quality })
+}
+
+/// Open a file, or standard input for `-`, decompressing gzip.
+pub fn open_input(path: &str, counter: Option<std::sync::Arc<std::sync::atomic::AtomicU64>>) -> io::Result<Box<dyn BufRead>> {
+    let raw: Box<dyn Read> = if path == "-" { Box::new(io::stdin()) } else { Box::new(std::fs::File::open(path)?) };
+    let raw: Box<dyn Read> = match counter {
+        Some(c) => Box::new(CountingReader { inner: raw, count: c }),
+        None => raw,
+    };
+    let mut br = BufReader::with_capacity(1 << 16, raw);
+    let gz = br.fill_buf()?.starts_with(&[0x1f, 0x8b]);
+    if gz {
+        Ok(Box::new(BufReader::with_capacity(1 << 16, flate2::bufread::MultiGzDecoder::new(br))))
+    } else {
+        Ok(Box::new(br))
+    }
+}
+
+struct CountingReader {
+    inner: Box<dyn Read>,
+    count: std::sync::Arc<std::sync::atomic::AtomicU64>,
+}
+
+impl Read for CountingReader {
+    fn read(&mut self, buf: &mut [u8]) -> io::Result<usize> {
+        let n = self.inner.read(buf)?;
+        self.count.fetch_add(n as u64, std::sync::atomic::Ordering::Relaxed);
+        Ok(n)
+    }
+}
+
+/// Stream rows from `input` through `engine`. Component series are written
+/// to `lp` (line protocol) every `lp_interval_ms` of event time.
+/// `tick` is called every 65 536 rows (for progress display).
+pub fn replay(
+    engine: &mut Engine,
+    mut input: impl BufRead,
+    mut lp: Option<&mut dyn Write>,
+    opts: &ReplayOptions,
+    mut tick: impl FnMut(u64),
+) -> io::Result<ReplayOutcome> {
+    let index = tag_index(engine);
+    let mut out = ReplayOutcome::default();
+    let mut line = String::with_capacity(128);
+    let mut lineno = 0u64;
+    let ncomp = engine.components().len();
+    let mut next_lp: Vec<i64> = vec![i64::MIN; ncomp];
+    let plant = engine.plan().plant.clone();
+    let interval = opts.lp_interval_ms.max(1);
+    loop {
+        line.clear();
+        let n = match input.read_line(&mut line) {
+            Ok(n) => n,
+            Err(e) if e.kind() == io::ErrorKind::InvalidData => {
+                // Not UTF-8: count it and skip to the next line.
+                lineno += 1;
+                out.malformed += 1;
+                if out.malformed_examples.len() < MALFORMED_EXAMPLES {
+                    out.malformed_examples.push(MalformedRow { line: lineno, problem: "not valid UTF-8".into() });
+                }
+                let mut skip = Vec::new();
+                input.read_until(b'\n', &mut skip)?;
+                continue;
+            }
+            Err(e) => return Err(e),
+        };
+        if n == 0 {
+            break;
+        }
+        lineno += 1;
+        let l = line.trim_end_matches(['\n', '\r']);
+        if l.is_empty() || l.starts_with('#') || (lineno == 1 && l.starts_with("timestamp")) {
+            continue;
+        }
+        out.rows += 1;
+        if out.rows & 0xFFFF == 0 {
+            tick(out.rows);
+        }
+        let row = match parse_row(l) {
+            Ok(r) => r,
+            Err(problem) => {
+                out.malformed += 1;
+                if out.malformed_examples.len() < MALFORMED_EXAMPLES {
+                    out.malformed_examples.push(MalformedRow { line: lineno, problem });
+                }
+                continue;
+            }
+        };
+        let Some(&tag) = index.get(row.tag) else {
+            engine.count_unknown_tag();
+            *out.unknown_tags.entry(row.tag.to_string()).or_insert(0) += 1;
+            continue;
+        };
+        out.first_time_ms = Some(out.first_time_ms.map_or(row.time_ms, |t| t.min(row.time_ms)));
+        out.last_time_ms = Some(out.last_time_ms.map_or(row.time_ms, |t| t.max(row.time_ms)));
+        let _ = engine.ingest(&Sample { tag, time_ms: row.time_ms, value: row.value, quality: row.quality });
+        if let Some(w) = lp.as_deref_mut() {
+            for ci in 0..ncomp {
+                let Some(t) = engine.components()[ci].integrated_to_ms else { continue };
+                if t >= next_lp[ci] {
+                    let p = component_point(&plant, &engine.plan().components[ci], &engine.components()[ci], t);
+                    if let Some(line) = p.to_line() {
+                        writeln!(w, "{line}")?;
+                        out.points_written += 1;
+                    }
+                    next_lp[ci] = (t.div_euclid(interval) + 1) * interval;
+                }
+            }
+        }
+    }
+    tick(out.rows);
+    Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn timestamps() {
+        // 2026-10-01T00:00:00Z is 1 790 812 800 s after the epoch
+        // (checked with Python: datetime(2026,10,1,tzinfo=timezone.utc).timestamp()).
+        assert_eq!(parse_timestamp_ms("2026-10-01T00:00:00Z"), Some(1_790_812_800_000));
+        assert_eq!(parse_timestamp_ms("2026-10-01T02:00:00+02:00"), Some(1_790_812_800_000));
+        assert_eq!(parse_timestamp_ms("2026-10-01T00:00:00.25Z"), Some(1_790_812_800_250));
+        assert_eq!(parse_timestamp_ms("1790812800"), Some(1_790_812_800_000));
+        assert_eq!(parse_timestamp_ms("1790812800.5"), Some(1_790_812_800_500));
+        assert_eq!(parse_timestamp_ms("2026-13-01T00:00:00Z"), None);
+        assert_eq!(parse_timestamp_ms("yesterday"), None);
+        assert_eq!(parse_timestamp_ms("1970-01-01T00:00:00Z"), Some(0));
+        assert_eq!(parse_timestamp_ms("2000-02-29T12:00:00Z"), Some(951_825_600_000));
+    }
+
+    #[test]
+    fn timestamps_agree_with_chrono() {
+        for s in ["1999-12-31T23:59:59Z", "2024-02-29T06:30:00.123Z", "2030-07-04T10:00:00-05:30"] {
+            let c = chrono::DateTime::parse_from_rfc3339(s).unwrap().timestamp_millis();
+            assert_eq!(parse_timestamp_ms(s), Some(c), "{s}");
+        }
+    }
+
+    #[test]
+    fn rows() {
+        let r = parse_row("2026-10-01T00:00:00Z,U2.TE-1,540.5,good").unwrap();
+        assert_eq!((r.tag, r.value, r.quality), ("U2.TE-1", 540.5, Quality::Good));
+        assert_eq!(parse_row("1790812800,T,1").unwrap().quality, Quality::Good);
+        assert!(parse_row("2026-10-01T00:00:00Z,T,abc").unwrap_err().contains("not a number"));
+        assert!(parse_row("2026-10-01T00:00:00Z,T").unwrap_err().contains("missing value"));
+        assert!(parse_row("nonsense,T,1").unwrap_err().contains("timestamp"));
+        assert!(parse_row("1,T,1,maybe").unwrap_err().contains("quality"));
+    }
+}

@@ -1,1 +1,354 @@
-//! Reports.
+//! Human and machine renderings of ledgers: the per-component summary used
+//! by `replay`, the status API and the database points, plus the derived
+//! design-condition checks of `check-config`.
+
+use crate::engine::plan::{ComponentPlan, Levels, StressPlan};
+use crate::engine::{ComponentState, Counters};
+use crate::lineproto::Point;
+use crate::physics::larson_miller::{rupture_life_h, CurveBasis, RangeFlags};
+use crate::physics::remaining::hours_to_threshold;
+use crate::physics::stress::hoop_stress_mpa;
+use crate::physics::temperature::homologous_temperature;
+use crate::physics::units::kelvin_to_celsius;
+use serde::Serialize;
+use std::collections::BTreeMap;
+
+/// Hours in one histogram class.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct ClassHours {
+    /// Lower edge (None: open below), in the report unit.
+    pub from: Option<f64>,
+    /// Upper edge (None: open above).
+    pub to: Option<f64>,
+    pub hours: f64,
+}
+
+/// Time-at-condition histograms, in °C and MPa for people.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct Histograms {
+    pub temperature_c: Vec<ClassHours>,
+    pub pressure_mpa: Vec<ClassHours>,
+}
+
+/// A component's ledger summary.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct ComponentReport {
+    pub component: String,
+    pub unit: String,
+    pub kind: String,
+    pub material: String,
+    pub curve_basis: CurveBasis,
+    pub integrated_to: Option<String>,
+    pub creep_life_fraction: f64,
+    pub creep_strain: f64,
+    pub wear_depth_mm: f64,
+    pub wear_index: f64,
+    /// Recent life-fraction rate, 1/h.
+    pub damage_rate_per_h: f64,
+    /// Hours to life fraction 1 or wear index 1 at the recent rates,
+    /// whichever comes first; null when neither is moving.
+    pub remaining_life_h: Option<f64>,
+    /// Hours to each alarm level at the recent rate (`index.severity`).
+    pub hours_to_threshold: BTreeMap<String, Option<f64>>,
+    pub integrated_h: f64,
+    pub unmonitored_h: f64,
+    pub hours_in_creep_range: f64,
+    pub extrapolated_h: f64,
+    pub over_design_h: f64,
+    pub peak_metal_temperature_c: Option<f64>,
+    pub metal_temperature_c: f64,
+    pub pressure_mpa: f64,
+    pub hoop_stress_mpa: f64,
+    pub creep_rate_per_h: f64,
+    pub fretting_regime: Option<String>,
+    /// Highest alarm severity whose level is reached, by index.
+    pub levels_reached: BTreeMap<String, String>,
+    pub flags: Vec<String>,
+    pub histograms: Histograms,
+}
+
+fn classes(edges: &[f64], hours: &[f64], conv: impl Fn(f64) -> f64) -> Vec<ClassHours> {
+    hours
+        .iter()
+        .enumerate()
+        .map(|(i, &h)| ClassHours {
+            from: (i > 0).then(|| conv(edges[i - 1])),
+            to: edges.get(i).map(|&e| conv(e)),
+            hours: h,
+        })
+        .collect()
+}
+
+/// Flag names for range flags.
+pub fn range_flag_names(f: &RangeFlags) -> Vec<&'static str> {
+    let mut v = vec![];
+    if f.stress_below {
+        v.push("stress_below_data_range");
+    }
+    if f.stress_above {
+        v.push("stress_above_data_range");
+    }
+    if f.temperature_below {
+        v.push("temperature_below_data_range");
+    }
+    if f.temperature_above {
+        v.push("temperature_above_data_range");
+    }
+    v
+}
+
+/// RFC 3339 text for an event time in ms.
+pub fn rfc3339_ms(ms: i64) -> String {
+    chrono::DateTime::from_timestamp_millis(ms)
+        .map(|t| t.format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string())
+        .unwrap_or_else(|| ms.to_string())
+}
+
+/// The highest severity whose level `value` has reached.
+pub fn level_reached(levels: &Levels, value: f64) -> Option<&'static str> {
+    levels.iter().filter(|(_, l)| value >= *l).map(|(n, _)| n).last()
+}
+
+impl ComponentReport {
+    /// Summarise one component.
+    pub fn new(plan: &ComponentPlan, st: &ComponentState) -> ComponentReport {
+        let wear_index = st.wear_index(plan);
+        let wear_index_rate = plan.wear.as_ref().map_or(0.0, |w| st.recent_wear_rate_mm_per_h / w.allowable_depth_mm);
+        let mut remaining: Option<f64> = None;
+        let mut take = |h: Option<f64>| {
+            if let Some(h) = h {
+                remaining = Some(remaining.map_or(h, |r: f64| r.min(h)));
+            }
+        };
+        take(hours_to_threshold(st.life_fraction, 1.0, st.recent_life_fraction_rate_per_h));
+        if plan.wear.is_some() {
+            take(hours_to_threshold(wear_index, 1.0, wear_index_rate));
+        }
+        let th = &plan.thresholds;
+        let mut hours_to = BTreeMap::new();
+        let mut reached = BTreeMap::new();
+        let has_creep = plan.metal_temperature.is_some();
+        let indices: [(&str, &Levels, f64, f64, bool); 3] = [
+            ("life_fraction", &th.life_fraction, st.life_fraction, st.recent_life_fraction_rate_per_h, has_creep),
+            ("creep_strain", &th.creep_strain, st.creep_strain, st.recent_creep_strain_rate_per_h, has_creep && plan.material.norton.is_some()),
+            ("wear_index", &th.wear_index, wear_index, wear_index_rate, plan.wear.is_some()),
+        ];
+        for (name, levels, value, rate, applies) in indices {
+            if !applies {
+                continue;
+            }
+            for (sev, l) in levels.iter() {
+                hours_to.insert(format!("{name}.{sev}"), hours_to_threshold(value, l, rate));
+            }
+            if let Some(sev) = level_reached(levels, value) {
+                reached.insert(name.to_string(), sev.to_string());
+            }
+        }
+        let mut flags: Vec<String> = range_flag_names(&st.flags.extrapolated).into_iter().map(String::from).collect();
+        if st.flags.unmonitored {
+            flags.push("unmonitored_hours".into());
+        }
+        if st.flags.over_design_temperature {
+            flags.push("over_design_temperature".into());
+        }
+        if st.flags.wall_exhausted {
+            flags.push("wall_exhausted".into());
+        }
+        let h = &st.histogram;
+        let w = h.pressure_edges_mpa.len() + 1;
+        let _ = w;
+        ComponentReport {
+            component: plan.name.clone(),
+            unit: plan.unit.clone(),
+            kind: format!("{:?}", plan.kind).to_lowercase(),
+            material: plan.material.grade.clone(),
+            curve_basis: plan.curve_basis,
+            integrated_to: st.integrated_to_ms.map(rfc3339_ms),
+            creep_life_fraction: st.life_fraction,
+            creep_strain: st.creep_strain,
+            wear_depth_mm: st.wear_depth_mm,
+            wear_index,
+            damage_rate_per_h: st.recent_life_fraction_rate_per_h,
+            remaining_life_h: remaining,
+            hours_to_threshold: hours_to,
+            integrated_h: st.integrated_h,
+            unmonitored_h: st.unmonitored_h,
+            hours_in_creep_range: st.hours_in_creep_range,
+            extrapolated_h: st.extrapolated_h,
+            over_design_h: st.over_design_h,
+            peak_metal_temperature_c: st.peak_temperature_k.is_finite().then(|| kelvin_to_celsius(st.peak_temperature_k)),
+            metal_temperature_c: kelvin_to_celsius(st.now.metal_temperature_k),
+            pressure_mpa: st.now.pressure_mpa,
+            hoop_stress_mpa: st.now.hoop_stress_mpa,
+            creep_rate_per_h: st.now.creep_rate_per_h,
+            fretting_regime: st.now.fretting_regime.map(|r| format!("{r:?}")),
+            levels_reached: reached,
+            flags,
+            histograms: Histograms {
+                temperature_c: classes(&h.temperature_edges_k, &h.temperature_hours(), kelvin_to_celsius),
+                pressure_mpa: classes(&h.pressure_edges_mpa, &h.pressure_hours(), |p| p),
+            },
+        }
+    }
+}
+
+/// The `component_state` point for the database and line-protocol files.
+pub fn component_point(plant: &str, plan: &ComponentPlan, st: &ComponentState, time_ms: i64) -> Point {
+    let r = ComponentReport::new(plan, st);
+    let mut p = Point::new("component_state", time_ms * 1_000_000)
+        .tag("plant", plant)
+        .tag("unit", &plan.unit)
+        .tag("component", &plan.name)
+        .tag("material", &plan.material.grade);
+    if plan.metal_temperature.is_some() {
+        p = p
+            .float("metal_temperature_k", st.now.metal_temperature_k)
+            .float("pressure_mpa", st.now.pressure_mpa)
+            .float("hoop_stress_mpa", st.now.hoop_stress_mpa)
+            .float("creep_life_fraction", st.life_fraction)
+            .float("damage_rate_per_h", st.recent_life_fraction_rate_per_h)
+            .float("creep_rate_per_h", st.now.creep_rate_per_h)
+            .float("creep_strain", st.creep_strain)
+            .float("hours_in_creep_range", st.hours_in_creep_range);
+    }
+    if plan.wear.is_some() {
+        p = p.float("wear_depth_mm", st.wear_depth_mm).float("wear_index", r.wear_index);
+    }
+    if let Some(h) = r.remaining_life_h {
+        p = p.float("remaining_life_h", h);
+    }
+    p.float("unmonitored_h", st.unmonitored_h)
+}
+
+/// `alarm_threshold` points: one per index and severity, for dashboards.
+pub fn threshold_points(plant: &str, plan: &ComponentPlan, time_ms: i64) -> Vec<Point> {
+    let th = &plan.thresholds;
+    let mut out = vec![];
+    let mut push = |index: &str, l: &Levels| {
+        for (sev, v) in l.iter() {
+            out.push(
+                Point::new("alarm_threshold", time_ms * 1_000_000)
+                    .tag("plant", plant)
+                    .tag("unit", &plan.unit)
+                    .tag("component", &plan.name)
+                    .tag("material", &plan.material.grade)
+                    .tag("index", index)
+                    .tag("severity", sev)
+                    .float("value", v),
+            );
+        }
+    };
+    if plan.metal_temperature.is_some() {
+        push("creep_life_fraction", &th.life_fraction);
+        if plan.material.norton.is_some() {
+            push("creep_strain", &th.creep_strain);
+        }
+    }
+    if plan.wear.is_some() {
+        push("wear_index", &th.wear_index);
+    }
+    out
+}
+
+/// A plain-text summary table.
+pub fn summary_table(reports: &[ComponentReport]) -> String {
+    let mut s = String::new();
+    s.push_str(&format!(
+        "{:<24} {:<12} {:>10} {:>9} {:>9} {:>12} {:>9} {:>9}  {}\n",
+        "component", "material", "life frac", "strain %", "wear idx", "remaining h", "creep h", "unmon h", "levels / flags"
+    ));
+    for r in reports {
+        let levels: Vec<String> = r.levels_reached.iter().map(|(k, v)| format!("{k}:{v}")).collect();
+        let mut notes = levels;
+        notes.extend(r.flags.iter().cloned());
+        s.push_str(&format!(
+            "{:<24} {:<12} {:>10.5} {:>9.4} {:>9.4} {:>12} {:>9.1} {:>9.1}  {}\n",
+            r.component,
+            r.material,
+            r.creep_life_fraction,
+            r.creep_strain * 100.0,
+            r.wear_index,
+            r.remaining_life_h.map_or("-".to_string(), |h| format!("{h:.0}")),
+            r.hours_in_creep_range,
+            r.unmonitored_h,
+            notes.join(", ")
+        ));
+    }
+    s
+}
+
+/// Counter summary line.
+pub fn counters_line(c: &Counters) -> String {
+    format!(
+        "samples accepted {}, uncertain {}, rejected {} (not finite {}, out of range {}, bad quality {}, duplicate {}, late {}, unknown tag {})",
+        c.accepted, c.uncertain, c.rejected(), c.not_finite, c.out_of_range, c.bad_quality, c.duplicate, c.late, c.unknown_tag
+    )
+}
+
+/// Derived design-condition values of one component, for `check-config`.
+#[derive(Debug, Clone, Serialize)]
+pub struct DesignCheck {
+    pub component: String,
+    pub material: String,
+    pub hoop_stress_at_design_mpa: Option<f64>,
+    pub homologous_temperature: Option<f64>,
+    pub creep_threshold_c: f64,
+    pub in_creep_range: Option<bool>,
+    pub rupture_life_minimum_h: Option<f64>,
+    pub rupture_life_mean_h: Option<f64>,
+    /// Hours at design conditions to each life-fraction level from the
+    /// initial value, on the configured curve.
+    pub hours_to_levels_at_design: BTreeMap<String, f64>,
+    pub warnings: Vec<String>,
+}
+
+/// Values an engineer sanity-checks before trusting a configuration.
+pub fn design_check(plan: &ComponentPlan) -> DesignCheck {
+    let mut warnings = vec![];
+    let tm = plan.material.melting_point_k.value;
+    let threshold = plan.creep_threshold_k();
+    let sigma = match (plan.stress, plan.design_pressure_mpa) {
+        (StressPlan::Fixed(s), _) => Some(s * plan.stress_factor),
+        (StressPlan::Hoop { basis, outside_diameter_mm, wall_mm, measured_loss_mm, .. }, Some(p)) => {
+            Some(hoop_stress_mpa(basis, p, outside_diameter_mm, wall_mm - measured_loss_mm) * plan.stress_factor)
+        }
+        _ => None,
+    };
+    let t = plan.design_temperature_k;
+    let mut life_min = None;
+    let mut life_mean = None;
+    let mut hours_to = BTreeMap::new();
+    if let (Some(s), Some(t)) = (sigma, t) {
+        if t >= threshold && s > 0.0 {
+            let (lmin, f) = rupture_life_h(&plan.material.larson_miller, s, t, CurveBasis::Minimum);
+            let (lmean, _) = rupture_life_h(&plan.material.larson_miller, s, t, CurveBasis::Mean);
+            life_min = Some(lmin);
+            life_mean = Some(lmean);
+            for n in range_flag_names(&f) {
+                warnings.push(format!("rupture life at design conditions is extrapolated: {n}"));
+            }
+            let life = if plan.curve_basis == CurveBasis::Minimum { lmin } else { lmean };
+            for (sev, l) in plan.thresholds.life_fraction.iter() {
+                hours_to.insert(format!("life_fraction.{sev}"), ((l - plan.initial_life_fraction).max(0.0)) * life);
+            }
+            if life < 100_000.0 {
+                warnings.push(format!("rupture life at design conditions is only {life:.0} h on the {:?} curve", plan.curve_basis));
+            }
+        }
+    }
+    if plan.design_temperature_k.is_none() && plan.metal_temperature.is_some() {
+        warnings.push("no design temperature: gaps cannot be filled at design conditions".into());
+    }
+    DesignCheck {
+        component: plan.name.clone(),
+        material: plan.material.grade.clone(),
+        hoop_stress_at_design_mpa: sigma,
+        homologous_temperature: t.map(|t| homologous_temperature(t, tm)),
+        creep_threshold_c: kelvin_to_celsius(threshold),
+        in_creep_range: t.map(|t| t >= threshold),
+        rupture_life_minimum_h: life_min,
+        rupture_life_mean_h: life_mean,
+        hours_to_levels_at_design: hours_to,
+        warnings,
+    }
+}

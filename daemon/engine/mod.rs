@@ -214,6 +214,11 @@ impl Engine {
         &self.plan
     }
 
+    /// The plant name of the plan.
+    pub fn plant_name(&self) -> &str {
+        &self.plan.plant
+    }
+
     /// Look a tag up by name.
     pub fn tag_id(&self, name: &str) -> Option<TagId> {
         self.plan.tags.iter().position(|t| t.name == name).map(|i| i as TagId)
