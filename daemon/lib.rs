@@ -15,7 +15,11 @@
 //!   database sink.
 //! * [`fit`]: material constants from creep test data.
 //! * [`report`]: human and JSON renderings of ledgers and derived checks.
+//! * [`store`]: the durable ledger (SQLite, one transaction per batch).
+//! * [`sink`]: delivery of line protocol to the time-series database.
+//! * [`alarm`]: threshold alarms with ISA-18.2 states.
 
+pub mod alarm;
 pub mod engine;
 pub mod fit;
 pub mod lineproto;
@@ -23,6 +27,8 @@ pub mod physics;
 pub mod replay;
 pub mod report;
 pub mod settings;
+pub mod sink;
+pub mod store;
 
 /// The caution every output carries. Built-in numbers are screening values.
 pub const CAUTION: &str = "Screening estimate only: limits, material data and acceptance \

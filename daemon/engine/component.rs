@@ -14,7 +14,6 @@ use super::signal::{Breaks, Reading, TagState};
 use crate::physics::histogram::TimeAtCondition;
 use crate::physics::larson_miller::{log10_rupture_life_h, RangeFlags};
 use crate::physics::norton::creep_rate_per_h_ln;
-use crate::physics::remaining::update_recent_rate;
 use crate::physics::stress::{hoop_stress_mpa, remaining_wall_mm};
 use crate::physics::wear::{fretting_sliding_speed_mm_s, FrettingRegime, fretting_regime};
 use crate::settings::schema::{GapPolicy, Interpolation, WearModel};
@@ -26,6 +25,10 @@ const PANEL_TEMPERATURE_STEP_K: f64 = 4.0;
 /// Largest relative pressure step per Simpson panel on a ramp.
 const PANEL_PRESSURE_STEP: f64 = 0.05;
 const MAX_PANELS: usize = 64;
+/// Largest temperature step (K) integrated by the trapezoid rule.
+const TRAPEZOID_TEMPERATURE_STEP_K: f64 = 0.5;
+/// Largest relative pressure step integrated by the trapezoid rule.
+const TRAPEZOID_PRESSURE_STEP: f64 = 0.005;
 
 /// Conditions at the newest integrated instant.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
@@ -127,6 +130,17 @@ impl ComponentState {
     }
 }
 
+/// Per-component memo of the last rate evaluation. Rates are a pure
+/// function of the inputs, so reusing them for bit-identical inputs changes
+/// no result; it only saves work when values are steady or when one
+/// piece's end is the next piece's start.
+#[derive(Debug, Clone, Default)]
+pub struct Scratch {
+    memo: Option<(Point, Rates)>,
+    /// (piece length h, weight of the recent-rate update) of the last piece.
+    alpha: Option<(f64, f64)>,
+}
+
 /// Input values at one instant, internal units.
 #[derive(Debug, Clone, Copy, Default, PartialEq)]
 struct Point {
@@ -211,6 +225,7 @@ fn value_at(r: Reading, _st: &TagState, _tp: &TagPlan, _t: f64) -> f64 {
 pub fn advance(
     plan: &ComponentPlan,
     comp_tags: &[super::plan::TagId],
+    scratch: &mut Scratch,
     state: &mut ComponentState,
     tags: &[TagState],
     tag_plans: &[TagPlan],
@@ -231,7 +246,7 @@ pub fn advance(
     }
     let pieces = breaks.segments(from_ms, to_ms);
     for w in pieces.windows(2) {
-        integrate_piece(plan, state, tags, tag_plans, w[0], w[1], policy, tau_h);
+        integrate_piece(plan, scratch, state, tags, tag_plans, w[0], w[1], policy, tau_h);
     }
     state.integrated_to_ms = Some(to_ms);
 }
@@ -240,6 +255,7 @@ pub fn advance(
 #[inline]
 fn integrate_piece(
     plan: &ComponentPlan,
+    scratch: &mut Scratch,
     state: &mut ComponentState,
     tags: &[TagState],
     tag_plans: &[TagPlan],
@@ -302,12 +318,24 @@ fn integrate_piece(
     let constant = lt.k == 0.0 && lp.k == 0.0 && ll.k == 0.0 && ls.k == 0.0 && lsl.k == 0.0 && lf.k == 0.0 && !thinning;
     let start_ms = state.first_sample_ms.unwrap_or(a_ms);
     let threshold_k = plan.creep_threshold_k();
+    let mut eval = |p: &Point, tau: f64| -> Rates {
+        if !thinning {
+            if let Some((mp, mr)) = &scratch.memo {
+                if mp == p {
+                    return *mr;
+                }
+            }
+        }
+        let r = rates(plan, p, tau, start_ms, threshold_k);
+        scratch.memo = Some((*p, r));
+        r
+    };
 
     let (mut d_life, mut d_strain, mut d_wear) = (0.0, 0.0, 0.0);
     let (last_rates, last_point);
     if constant {
         let p = point(0.0);
-        let r = rates(plan, &p, a, start_ms, threshold_k);
+        let r = eval(&p, a);
         d_life = r.life_per_h * dt_h;
         d_strain = r.strain_per_h * dt_h;
         d_wear = r.wear_mm_per_h * dt_h;
@@ -320,19 +348,37 @@ fn integrate_piece(
         let dpr = (lp.k * span).abs() / pmax;
         let n = ((dtk / PANEL_TEMPERATURE_STEP_K).max(dpr / PANEL_PRESSURE_STEP).ceil() as usize)
             .clamp(1, MAX_PANELS);
+        // Small steps: the trapezoid rule on the end rates (one new rate
+        // evaluation, the start is memoised from the previous piece). Its
+        // error on an exponential-like rate is about (k·ΔT)²/12 with
+        // k ≈ 0.07 /K, below 2e-4 for ΔT ≤ 0.5 K, and it over-estimates
+        // damage for a convex rate (conservative).
+        let small = dtk <= TRAPEZOID_TEMPERATURE_STEP_K && dpr <= TRAPEZOID_PRESSURE_STEP && !thinning;
         let h = span / n as f64;
         let h_h = dt_h / n as f64;
         // Composite Simpson: nodes at panel ends and midpoints,
         // weights h/6 · (1, 4, 1) per panel.
         let mut r0p = point(0.0);
-        let mut r0 = rates(plan, &r0p, a, start_ms, threshold_k);
-        for i in 0..n {
+        let mut r0 = eval(&r0p, a);
+        if small {
+            let p1 = point(span);
+            let r1 = eval(&p1, b);
+            let w = 0.5 * dt_h;
+            d_life = w * (r0.life_per_h + r1.life_per_h);
+            d_strain = w * (r0.strain_per_h + r1.strain_per_h);
+            d_wear = w * (r0.wear_mm_per_h + r1.wear_mm_per_h);
+            account_node(plan, state, &r0p, &r0, w);
+            account_node(plan, state, &p1, &r1, w);
+            r0 = r1;
+            r0p = p1;
+        }
+        for i in 0..(if small { 0 } else { n }) {
             let xm = h * (i as f64 + 0.5);
             let x1 = if i + 1 == n { span } else { h * (i + 1) as f64 };
             let pm = point(xm);
             let p1 = point(x1);
-            let rm = rates(plan, &pm, a + xm, start_ms, threshold_k);
-            let r1 = rates(plan, &p1, a + x1, start_ms, threshold_k);
+            let rm = eval(&pm, a + xm);
+            let r1 = eval(&p1, a + x1);
             let w = h_h / 6.0;
             d_life += w * (r0.life_per_h + 4.0 * rm.life_per_h + r1.life_per_h);
             d_strain += w * (r0.strain_per_h + 4.0 * rm.strain_per_h + r1.strain_per_h);
@@ -350,12 +396,20 @@ fn integrate_piece(
     state.creep_strain += d_strain;
     state.wear_depth_mm += d_wear;
     if dt_h > 0.0 {
-        state.recent_life_fraction_rate_per_h =
-            update_recent_rate(state.recent_life_fraction_rate_per_h, d_life / dt_h, dt_h, tau_h);
-        state.recent_creep_strain_rate_per_h =
-            update_recent_rate(state.recent_creep_strain_rate_per_h, d_strain / dt_h, dt_h, tau_h);
-        state.recent_wear_rate_mm_per_h =
-            update_recent_rate(state.recent_wear_rate_mm_per_h, d_wear / dt_h, dt_h, tau_h);
+        // The same weight as physics::remaining::update_recent_rate, computed
+        // once per piece length.
+        let alpha = match scratch.alpha {
+            Some((h, a)) if h == dt_h => a,
+            _ => {
+                let a = -(-dt_h / tau_h).exp_m1();
+                scratch.alpha = Some((dt_h, a));
+                a
+            }
+        };
+        let upd = |recent: f64, rate: f64| recent + alpha * (rate - recent);
+        state.recent_life_fraction_rate_per_h = upd(state.recent_life_fraction_rate_per_h, d_life / dt_h);
+        state.recent_creep_strain_rate_per_h = upd(state.recent_creep_strain_rate_per_h, d_strain / dt_h);
+        state.recent_wear_rate_mm_per_h = upd(state.recent_wear_rate_mm_per_h, d_wear / dt_h);
     }
     state.now = Conditions {
         metal_temperature_k: last_point.t_k,
@@ -433,8 +487,9 @@ fn rates(plan: &ComponentPlan, p: &Point, tau_ms: f64, start_ms: i64, threshold_
             plan.curve_basis,
         );
         r.flags = flags;
-        r.rupture_h = 10f64.powf(l10);
-        r.life_per_h = 10f64.powf(-l10);
+        // 10^x as exp(x·ln 10): same value to rounding, several times faster.
+        r.life_per_h = (-l10 * std::f64::consts::LN_10).exp();
+        r.rupture_h = 1.0 / r.life_per_h;
         if let Some(n) = &plan.material.norton {
             r.strain_per_h = creep_rate_per_h_ln(n, ln_s, p.t_k);
         }

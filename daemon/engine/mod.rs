@@ -181,6 +181,8 @@ pub struct Engine {
     consumers: Vec<Vec<u32>>,
     /// Tags each component reads.
     inputs: Vec<Vec<TagId>>,
+    /// Per-component rate memo (not state: results do not depend on it).
+    scratch: Vec<component::Scratch>,
     counters: Counters,
     /// Components changed since the last [`Engine::take_changed`].
     changed: Vec<bool>,
@@ -202,6 +204,7 @@ impl Engine {
             tags: vec![TagState::default(); plan.tags.len()],
             components: plan.components.iter().map(ComponentState::new).collect(),
             changed: vec![false; plan.components.len()],
+            scratch: vec![component::Scratch::default(); plan.components.len()],
             consumers,
             inputs,
             counters: Counters::default(),
@@ -301,6 +304,7 @@ impl Engine {
                     component::advance(
                         &self.plan.components[ci],
                         &self.inputs[ci],
+                        &mut self.scratch[ci],
                         &mut self.components[ci],
                         &self.tags,
                         &self.plan.tags,
@@ -339,6 +343,7 @@ impl Engine {
                 component::advance(
                     &self.plan.components[ci],
                     &self.inputs[ci],
+                    &mut self.scratch[ci],
                     st,
                     &self.tags,
                     &self.plan.tags,

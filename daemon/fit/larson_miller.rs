@@ -96,7 +96,13 @@ pub struct LmOptions {
 
 impl Default for LmOptions {
     fn default() -> Self {
-        LmOptions { constant: None, order: None, criterion: Criterion::Bic, k: 1.645, outlier_threshold: 2.5 }
+        LmOptions {
+            constant: None,
+            order: None,
+            criterion: Criterion::Bic,
+            k: 1.645,
+            outlier_threshold: 2.5,
+        }
     }
 }
 
@@ -108,7 +114,11 @@ pub enum OrderChoice {
     User,
     /// Chosen by an information criterion; the scores of every order
     /// tried (lower is better) and the orders the data could not carry.
-    Criterion { criterion: Criterion, scores: Vec<OrderScore>, not_tried: Vec<String> },
+    Criterion {
+        criterion: Criterion,
+        scores: Vec<OrderScore>,
+        not_tried: Vec<String>,
+    },
 }
 
 /// Score of one candidate order.
@@ -192,7 +202,9 @@ impl LmFit {
 
     /// Minimum-curve rupture life in hours: `10^(log10 t_mean − k·SEE)`.
     pub fn minimum_rupture_life_h(&self, stress_mpa: f64, temperature_k: f64) -> f64 {
-        10f64.powf(self.log10_rupture_life_h(stress_mpa, temperature_k) - self.minimum_offset_log10_h)
+        10f64.powf(
+            self.log10_rupture_life_h(stress_mpa, temperature_k) - self.minimum_offset_log10_h,
+        )
     }
 
     /// The text for the `source` field of the material block.
@@ -200,11 +212,17 @@ impl LmFit {
         let c = if self.constant_fixed {
             format!("C = {} (given)", self.constant_c)
         } else {
-            format!("C = {:.4} ± {:.4} (fitted)", self.constant_c, self.constant_c_se.unwrap_or(f64::NAN))
+            format!(
+                "C = {:.4} ± {:.4} (fitted)",
+                self.constant_c,
+                self.constant_c_se.unwrap_or(f64::NAN)
+            )
         };
         let order = match &self.order_choice {
             OrderChoice::User => format!("order {} (given)", self.order),
-            OrderChoice::Criterion { criterion, .. } => format!("order {} (by {})", self.order, criterion.name()),
+            OrderChoice::Criterion { criterion, .. } => {
+                format!("order {} (by {})", self.order, criterion.name())
+            }
         };
         format!(
             "lifeledger fit larson-miller screening fit of {input_name}: {} tests, {c}, {order}, \
@@ -221,7 +239,9 @@ impl LmFit {
             coefficients: self.coefficients.clone(),
             stress_range_mpa: self.stress_range_mpa,
             temperature_range_k: self.temperature_range_k,
-            minimum: MinimumCurveRule::LogTimeOffset { offset: self.minimum_offset_log10_h },
+            minimum: MinimumCurveRule::LogTimeOffset {
+                offset: self.minimum_offset_log10_h,
+            },
             source: self.provenance(input_name),
         }
     }
@@ -232,7 +252,11 @@ pub(crate) fn poly(c: &[f64], x: f64) -> f64 {
 }
 
 fn poly_slope(c: &[f64], x: f64) -> f64 {
-    c.iter().enumerate().skip(1).rev().fold(0.0, |acc, (i, a)| acc * x + a * i as f64)
+    c.iter()
+        .enumerate()
+        .skip(1)
+        .rev()
+        .fold(0.0, |acc, (i, a)| acc * x + a * i as f64)
 }
 
 /// Distinct values (relative tolerance 1e-9), ascending.
@@ -244,7 +268,9 @@ pub(crate) fn distinct(values: impl Iterator<Item = f64>) -> Vec<f64> {
 }
 
 pub(crate) fn range(values: impl Iterator<Item = f64>) -> [f64; 2] {
-    values.fold([f64::INFINITY, f64::NEG_INFINITY], |[lo, hi], v| [lo.min(v), hi.max(v)])
+    values.fold([f64::INFINITY, f64::NEG_INFINITY], |[lo, hi], v| {
+        [lo.min(v), hi.max(v)]
+    })
 }
 
 fn validate(opts: &LmOptions) -> Result<(), FitError> {
@@ -256,14 +282,22 @@ fn validate(opts: &LmOptions) -> Result<(), FitError> {
     }
     if let Some(o) = opts.order {
         if !(1..=3).contains(&o) {
-            return bad(format!("--order {o}: the master curve order must be 1, 2 or 3"));
+            return bad(format!(
+                "--order {o}: the master curve order must be 1, 2 or 3"
+            ));
         }
     }
     if !opts.k.is_finite() || opts.k < 0.0 {
-        return bad(format!("--k {}: the minimum-curve factor must be zero or positive", opts.k));
+        return bad(format!(
+            "--k {}: the minimum-curve factor must be zero or positive",
+            opts.k
+        ));
     }
     if !opts.outlier_threshold.is_finite() || opts.outlier_threshold <= 0.0 {
-        return bad(format!("--outlier-threshold {}: must be positive", opts.outlier_threshold));
+        return bad(format!(
+            "--outlier-threshold {}: must be positive",
+            opts.outlier_threshold
+        ));
     }
     Ok(())
 }
@@ -278,14 +312,19 @@ fn design(tests: &[RuptureTest], order: usize, constant: Option<f64>) -> (Vec<Ve
         .iter()
         .map(|t| {
             let x = t.stress_mpa.log10();
-            let mut row: Vec<f64> = (0..=order).map(|j| x.powi(j as i32) / t.temperature_k).collect();
+            let mut row: Vec<f64> = (0..=order)
+                .map(|j| x.powi(j as i32) / t.temperature_k)
+                .collect();
             if constant.is_none() {
                 row.push(-1.0);
             }
             row
         })
         .collect();
-    let y = tests.iter().map(|t| t.rupture_h.log10() + constant.unwrap_or(0.0)).collect();
+    let y = tests
+        .iter()
+        .map(|t| t.rupture_h.log10() + constant.unwrap_or(0.0))
+        .collect();
     (rows, y)
 }
 
@@ -345,7 +384,9 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
         }
     }
     if n == 0 {
-        return Err(FitError::TooFewTests { message: "no tests given".into() });
+        return Err(FitError::TooFewTests {
+            message: "no tests given".into(),
+        });
     }
     let temperatures = distinct(tests.iter().map(|t| t.temperature_k));
     let stresses = distinct(tests.iter().map(|t| t.stress_mpa));
@@ -387,7 +428,11 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
     let (order, sol, choice) = match opts.order {
         Some(order) => {
             feasible(order)?;
-            (order, solve(tests, order, opts.constant)?, OrderChoice::User)
+            (
+                order,
+                solve(tests, order, opts.constant)?,
+                OrderChoice::User,
+            )
         }
         None => {
             let mut best: Option<(usize, Solution, f64)> = None;
@@ -399,7 +444,11 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
                 match attempt {
                     Ok(sol) => {
                         let score = opts.criterion.score(n, unknowns(order, fixed), sol.rss);
-                        scores.push(OrderScore { order, score, see: sol.see().unwrap_or(f64::NAN) });
+                        scores.push(OrderScore {
+                            order,
+                            score,
+                            see: sol.see().unwrap_or(f64::NAN),
+                        });
                         if best.as_ref().map_or(true, |b| score < b.2) {
                             best = Some((order, sol, score));
                         }
@@ -411,9 +460,15 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
                 }
             }
             match best {
-                Some((order, sol, _)) => {
-                    (order, sol, OrderChoice::Criterion { criterion: opts.criterion, scores, not_tried })
-                }
+                Some((order, sol, _)) => (
+                    order,
+                    sol,
+                    OrderChoice::Criterion {
+                        criterion: opts.criterion,
+                        scores,
+                        not_tried,
+                    },
+                ),
                 None => return Err(first_error.expect("at least one order was tried")),
             }
         }
@@ -431,7 +486,11 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
     let log_t: Vec<f64> = tests.iter().map(|t| t.rupture_h.log10()).collect();
     let mean = log_t.iter().sum::<f64>() / n as f64;
     let tss: f64 = log_t.iter().map(|v| (v - mean).powi(2)).sum();
-    let r_squared = if tss > 0.0 { 1.0 - sol.rss / tss } else { f64::NAN };
+    let r_squared = if tss > 0.0 {
+        1.0 - sol.rss / tss
+    } else {
+        f64::NAN
+    };
     let std_res = sol.standardized_residuals();
     let residuals: Vec<LmResidual> = tests
         .iter()
@@ -481,7 +540,11 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
             10f64.powf(*b)
         ));
     }
-    let outliers: Vec<usize> = residuals.iter().filter(|r| r.outlier).map(|r| r.line).collect();
+    let outliers: Vec<usize> = residuals
+        .iter()
+        .filter(|r| r.outlier)
+        .map(|r| r.line)
+        .collect();
     if !outliers.is_empty() {
         warnings.push(format!(
             "{} test(s) with |standardized residual| > {}: line(s) {}; check them before accepting the fit",
@@ -492,14 +555,16 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
     }
     if fixed && temperatures.len() < 2 {
         warnings.push(format!(
-            "all tests are at one temperature ({:.2} K): the given C carries the whole temperature dependence",
+            "all tests are at one temperature ({:.2} K): the given C carries the whole temperature \
+             dependence, and temperature_range_k is that single temperature (the material check \
+             wants low < high; widen it only with a documented reason)",
             temperatures[0]
         ));
     }
     let p = unknowns(order, fixed);
     if n < 2 * p + 2 {
         warnings.push(format!(
-            "only {n} tests for {p} unknowns: the standard errors and the minimum curve rest on {} degrees of freedom",
+            "only {n} tests for {p} unknowns: the standard errors and the minimum curve rest on {} degree(s) of freedom",
             n - p
         ));
     }
@@ -534,7 +599,14 @@ mod tests {
     use super::*;
 
     fn test(line: usize, t: f64, s: f64, h: f64) -> RuptureTest {
-        RuptureTest { line, temperature_k: t, stress_mpa: s, rupture_h: h, heat: None, specimen: None }
+        RuptureTest {
+            line,
+            temperature_k: t,
+            stress_mpa: s,
+            rupture_h: h,
+            heat: None,
+            specimen: None,
+        }
     }
 
     /// Exact data on P = 30000 − 4000·x with C = 20 (numbers chosen here).
@@ -554,7 +626,14 @@ mod tests {
     #[test]
     fn recovers_exact_constants() {
         let tests = exact(20.0);
-        let fit = fit_larson_miller(&tests, &LmOptions { order: Some(1), ..Default::default() }).unwrap();
+        let fit = fit_larson_miller(
+            &tests,
+            &LmOptions {
+                order: Some(1),
+                ..Default::default()
+            },
+        )
+        .unwrap();
         assert!((fit.constant_c - 20.0).abs() < 1e-8, "{}", fit.constant_c);
         assert!((fit.coefficients[0] - 30000.0).abs() < 1e-5);
         assert!((fit.coefficients[1] + 4000.0).abs() < 1e-5);
@@ -563,20 +642,63 @@ mod tests {
 
     #[test]
     fn single_temperature_needs_given_constant() {
-        let tests: Vec<_> = exact(20.0).into_iter().filter(|t| t.temperature_k == 873.15).collect();
-        let e = fit_larson_miller(&tests, &LmOptions::default()).unwrap_err().to_string();
-        assert!(e.contains("one temperature") && e.contains("lines 6-9"), "{e}");
-        let fit = fit_larson_miller(&tests, &LmOptions { constant: Some(20.0), order: Some(1), ..Default::default() }).unwrap();
+        let tests: Vec<_> = exact(20.0)
+            .into_iter()
+            .filter(|t| t.temperature_k == 873.15)
+            .collect();
+        let e = fit_larson_miller(&tests, &LmOptions::default())
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("one temperature") && e.contains("lines 6-9"),
+            "{e}"
+        );
+        let fit = fit_larson_miller(
+            &tests,
+            &LmOptions {
+                constant: Some(20.0),
+                order: Some(1),
+                ..Default::default()
+            },
+        )
+        .unwrap();
         assert!((fit.coefficients[1] + 4000.0).abs() < 1e-6);
     }
 
     #[test]
     fn too_few_tests_and_stresses() {
-        let tests = exact(20.0)[..4].to_vec();
-        let e = fit_larson_miller(&tests, &LmOptions { order: Some(3), ..Default::default() }).unwrap_err();
+        let all = exact(20.0);
+        let tests = vec![
+            all[0].clone(),
+            all[4].clone(),
+            all[8].clone(),
+            all[1].clone(),
+        ];
+        let e = fit_larson_miller(
+            &tests,
+            &LmOptions {
+                order: Some(3),
+                ..Default::default()
+            },
+        )
+        .unwrap_err();
         assert!(matches!(e, FitError::TooFewTests { .. }), "{e}");
-        let tests: Vec<_> = exact(20.0).into_iter().filter(|t| t.stress_mpa < 100.0).collect();
-        let e = fit_larson_miller(&tests, &LmOptions { order: Some(2), ..Default::default() }).unwrap_err();
-        assert!(e.to_string().contains("at least 3 distinct stresses; the tests have 2"), "{e}");
+        let tests: Vec<_> = exact(20.0)
+            .into_iter()
+            .filter(|t| t.stress_mpa < 100.0)
+            .collect();
+        let e = fit_larson_miller(
+            &tests,
+            &LmOptions {
+                order: Some(2),
+                ..Default::default()
+            },
+        )
+        .unwrap_err();
+        assert!(
+            e.to_string()
+                .contains("at least 3 distinct stresses; the tests have 2"),
+            "{e}"
+        );
     }
 }

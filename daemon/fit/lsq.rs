@@ -47,7 +47,9 @@ impl Solution {
 
     /// Standard errors `√diag(s²(XᵀX)⁻¹)`.
     pub fn standard_errors(&self) -> Option<Vec<f64>> {
-        self.covariance.as_ref().map(|c| (0..c.len()).map(|i| c[i][i].sqrt()).collect())
+        self.covariance
+            .as_ref()
+            .map(|c| (0..c.len()).map(|i| c[i][i].sqrt()).collect())
     }
 
     /// Internally studentized residuals `e_i / (s·√(1 − h_ii))`; `None`
@@ -88,7 +90,9 @@ pub fn least_squares(rows: &[Vec<f64>], y: &[f64]) -> Result<Solution, LsqError>
     }
     // Column-major scaled copy.
     let mut norms = vec![0.0; p];
-    let mut a: Vec<Vec<f64>> = (0..p).map(|j| rows.iter().map(|r| r[j]).collect()).collect();
+    let mut a: Vec<Vec<f64>> = (0..p)
+        .map(|j| rows.iter().map(|r| r[j]).collect())
+        .collect();
     for (j, col) in a.iter_mut().enumerate() {
         let d = col.iter().map(|v| v * v).sum::<f64>().sqrt();
         if d == 0.0 || !d.is_finite() {
@@ -131,7 +135,10 @@ pub fn least_squares(rows: &[Vec<f64>], y: &[f64]) -> Result<Solution, LsqError>
         beta_s[i] = (qty[i] - s) / r(i, i);
     }
     let beta: Vec<f64> = beta_s.iter().zip(&norms).map(|(b, d)| b / d).collect();
-    let fitted: Vec<f64> = rows.iter().map(|row| row.iter().zip(&beta).map(|(x, b)| x * b).sum()).collect();
+    let fitted: Vec<f64> = rows
+        .iter()
+        .map(|row| row.iter().zip(&beta).map(|(x, b)| x * b).sum())
+        .collect();
     let residuals: Vec<f64> = y.iter().zip(&fitted).map(|(y, f)| y - f).collect();
     let rss: f64 = residuals.iter().map(|e| e * e).sum();
     let dof = n - p;
@@ -145,48 +152,63 @@ pub fn least_squares(rows: &[Vec<f64>], y: &[f64]) -> Result<Solution, LsqError>
             let f = tau * dot;
             q[k..].iter_mut().zip(v).for_each(|(c, vi)| *c -= f * vi);
         }
-        leverage.iter_mut().zip(&q).for_each(|(h, qi)| *h += qi * qi);
+        leverage
+            .iter_mut()
+            .zip(&q)
+            .for_each(|(h, qi)| *h += qi * qi);
     }
     let covariance = (dof > 0).then(|| {
-        // R⁻¹ (upper triangular), then R⁻¹R⁻ᵀ, then unscale.
-        let mut rinv = vec![vec![0.0; p]; p];
-        for j in 0..p {
-            rinv[j][j] = 1.0 / r(j, j);
+        // Columns of R⁻¹ (upper triangular) by back substitution of R·c = e_j.
+        let back = |j: usize| -> Vec<f64> {
+            let mut c = vec![0.0; p];
+            c[j] = 1.0 / r(j, j);
             for i in (0..j).rev() {
-                let s: f64 = (i + 1..=j).map(|k| r(i, k) * rinv[k][j]).sum();
-                rinv[i][j] = -s / r(i, i);
+                let s: f64 = (i + 1..=j).map(|k| r(i, k) * c[k]).sum();
+                c[i] = -s / r(i, i);
             }
-        }
+            c
+        };
+        let cols: Vec<Vec<f64>> = (0..p).map(back).collect();
+        let rinv = |i: usize, k: usize| cols[k][i];
         let s2 = rss / dof as f64;
         let mut cov = vec![vec![0.0; p]; p];
         for i in 0..p {
             for j in 0..p {
-                let m: f64 = (i.max(j)..p).map(|k| rinv[i][k] * rinv[j][k]).sum();
+                let m: f64 = (i.max(j)..p).map(|k| rinv(i, k) * rinv(j, k)).sum();
                 cov[i][j] = s2 * m / (norms[i] * norms[j]);
             }
         }
         cov
     });
-    Ok(Solution { beta, covariance, fitted, residuals, leverage, rss, dof })
+    Ok(Solution {
+        beta,
+        covariance,
+        fitted,
+        residuals,
+        leverage,
+        rss,
+        dof,
+    })
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
 
-    // Straight line through (0,1), (1,3), (2,4), (3,4): β = (1.5, 1.0),
-    // RSS = 1.5 (worked by hand: x̄ = 1.5, ȳ = 3, Sxy = 5, Sxx = 5), and
-    // Var(slope) = s²/Sxx = 0.75/5, Var(intercept) = s²(1/n + x̄²/Sxx).
+    // Straight line through (0,1), (1,3), (2,4), (3,4), worked by hand:
+    // x̄ = 1.5, ȳ = 3, Sxy = 5, Sxx = 5, so β = (1.5, 1.0), residuals
+    // (−0.5, 0.5, 0.5, −0.5), RSS = 1, s² = 0.5; Var(slope) = s²/Sxx,
+    // Var(intercept) = s²(1/n + x̄²/Sxx), Cov = −s²·x̄/Sxx.
     #[test]
     fn straight_line_by_hand() {
         let rows: Vec<Vec<f64>> = (0..4).map(|i| vec![1.0, i as f64]).collect();
         let sol = least_squares(&rows, &[1.0, 3.0, 4.0, 4.0]).unwrap();
         assert!((sol.beta[0] - 1.5).abs() < 1e-12 && (sol.beta[1] - 1.0).abs() < 1e-12);
-        assert!((sol.rss - 1.5).abs() < 1e-12);
+        assert!((sol.rss - 1.0).abs() < 1e-12);
         let cov = sol.covariance.unwrap();
-        assert!((cov[1][1] - 0.15).abs() < 1e-12);
-        assert!((cov[0][0] - 0.75 * (0.25 + 2.25 / 5.0)).abs() < 1e-12);
-        assert!((cov[0][1] + 0.75 * 1.5 / 5.0).abs() < 1e-12);
+        assert!((cov[1][1] - 0.1).abs() < 1e-12);
+        assert!((cov[0][0] - 0.35).abs() < 1e-12);
+        assert!((cov[0][1] + 0.15).abs() < 1e-12 && (cov[1][0] + 0.15).abs() < 1e-12);
         // Leverages of a straight line: 1/n + (x − x̄)²/Sxx; they sum to p.
         let h: f64 = sol.leverage.iter().sum();
         assert!((h - 2.0).abs() < 1e-12);
@@ -195,15 +217,27 @@ mod tests {
 
     #[test]
     fn collinear_columns_are_found() {
-        let rows: Vec<Vec<f64>> = (0..5).map(|i| vec![1.0, i as f64, 2.0 * i as f64 - 1.0]).collect();
-        assert_eq!(least_squares(&rows, &[0.0; 5]), Err(LsqError::RankDeficient { column: 2 }));
+        let rows: Vec<Vec<f64>> = (0..5)
+            .map(|i| vec![1.0, i as f64, 2.0 * i as f64 - 1.0])
+            .collect();
+        assert_eq!(
+            least_squares(&rows, &[0.0; 5]),
+            Err(LsqError::RankDeficient { column: 2 })
+        );
         let rows: Vec<Vec<f64>> = (0..5).map(|_| vec![1.0, 0.0]).collect();
-        assert_eq!(least_squares(&rows, &[0.0; 5]), Err(LsqError::RankDeficient { column: 1 }));
+        assert_eq!(
+            least_squares(&rows, &[0.0; 5]),
+            Err(LsqError::RankDeficient { column: 1 })
+        );
     }
 
     #[test]
     fn square_system_is_exact() {
-        let rows = vec![vec![2.0, 1.0, 0.0], vec![1.0, 3.0, 1.0], vec![0.0, 1.0, 4.0]];
+        let rows = vec![
+            vec![2.0, 1.0, 0.0],
+            vec![1.0, 3.0, 1.0],
+            vec![0.0, 1.0, 4.0],
+        ];
         let sol = least_squares(&rows, &[3.0, 5.0, 5.0]).unwrap();
         for b in &sol.beta {
             assert!((b - 1.0).abs() < 1e-12);

@@ -43,7 +43,9 @@ pub struct NortonOptions {
 
 impl Default for NortonOptions {
     fn default() -> Self {
-        NortonOptions { outlier_threshold: 2.5 }
+        NortonOptions {
+            outlier_threshold: 2.5,
+        }
     }
 }
 
@@ -99,7 +101,8 @@ pub struct NortonFit {
 impl NortonFit {
     /// Fitted minimum creep rate in 1/h.
     pub fn rate_per_h(&self, stress_mpa: f64, temperature_k: f64) -> f64 {
-        (self.ln_a + self.n * stress_mpa.ln() - self.q_j_per_mol / (GAS_CONSTANT * temperature_k)).exp()
+        (self.ln_a + self.n * stress_mpa.ln() - self.q_j_per_mol / (GAS_CONSTANT * temperature_k))
+            .exp()
     }
 
     /// The text for the `source` field of the `[norton]` block.
@@ -117,7 +120,10 @@ impl NortonFit {
         format!(
             "lifeledger fit norton screening fit of {input_name}: {how}; data {:.1}-{:.1} MPa, \
              {:.2}-{:.2} K. Not accepted material data until reviewed by a responsible engineer.",
-            self.stress_range_mpa[0], self.stress_range_mpa[1], self.temperature_range_k[0], self.temperature_range_k[1]
+            self.stress_range_mpa[0],
+            self.stress_range_mpa[1],
+            self.temperature_range_k[0],
+            self.temperature_range_k[1]
         )
     }
 
@@ -136,12 +142,17 @@ impl NortonFit {
 pub fn fit_norton(tests: &[RateTest], opts: &NortonOptions) -> Result<NortonFit, FitError> {
     if !opts.outlier_threshold.is_finite() || opts.outlier_threshold <= 0.0 {
         return Err(FitError::InvalidOption {
-            message: format!("--outlier-threshold {}: must be positive", opts.outlier_threshold),
+            message: format!(
+                "--outlier-threshold {}: must be positive",
+                opts.outlier_threshold
+            ),
         });
     }
     let n_tests = tests.len();
     for t in tests {
-        let ok = [t.temperature_k, t.stress_mpa, t.rate_per_h].iter().all(|v| v.is_finite() && *v > 0.0);
+        let ok = [t.temperature_k, t.stress_mpa, t.rate_per_h]
+            .iter()
+            .all(|v| v.is_finite() && *v > 0.0);
         if !ok {
             return Err(FitError::input(
                 "tests",
@@ -185,7 +196,13 @@ pub fn fit_norton(tests: &[RateTest], opts: &NortonOptions) -> Result<NortonFit,
     }
     let rows: Vec<Vec<f64>> = tests
         .iter()
-        .map(|t| vec![1.0, t.stress_mpa.ln(), -1.0 / (GAS_CONSTANT * t.temperature_k)])
+        .map(|t| {
+            vec![
+                1.0,
+                t.stress_mpa.ln(),
+                -1.0 / (GAS_CONSTANT * t.temperature_k),
+            ]
+        })
         .collect();
     let y: Vec<f64> = tests.iter().map(|t| t.rate_per_h.ln()).collect();
     let sol = least_squares(&rows, &y).map_err(|e| match e {
@@ -249,9 +266,15 @@ pub fn fit_norton(tests: &[RateTest], opts: &NortonOptions) -> Result<NortonFit,
         ));
     }
     if q <= 0.0 {
-        warnings.push(format!("fitted Q = {q:.0} J/mol is not positive: the rates do not rise with temperature"));
+        warnings.push(format!(
+            "fitted Q = {q:.0} J/mol is not positive: the rates do not rise with temperature"
+        ));
     }
-    let outliers: Vec<usize> = residuals.iter().filter(|r| r.outlier).map(|r| r.line).collect();
+    let outliers: Vec<usize> = residuals
+        .iter()
+        .filter(|r| r.outlier)
+        .map(|r| r.line)
+        .collect();
     if !outliers.is_empty() {
         warnings.push(format!(
             "{} test(s) with |standardized residual| > {}: line(s) {}",
@@ -289,7 +312,14 @@ mod tests {
     use super::*;
 
     fn rt(line: usize, t: f64, s: f64, r: f64) -> RateTest {
-        RateTest { line, temperature_k: t, stress_mpa: s, rate_per_h: r, heat: None, specimen: None }
+        RateTest {
+            line,
+            temperature_k: t,
+            stress_mpa: s,
+            rate_per_h: r,
+            heat: None,
+            specimen: None,
+        }
     }
 
     // Hand-made exact system: with A = 1e10, n = 5, Q = 300 kJ/mol the
@@ -298,7 +328,11 @@ mod tests {
     #[test]
     fn three_tests_are_solved_exactly() {
         let law = |t: f64, s: f64| 1e10 * s.powf(5.0) * (-300_000.0 / (GAS_CONSTANT * t)).exp();
-        let tests = vec![rt(2, 850.0, 100.0, law(850.0, 100.0)), rt(3, 850.0, 200.0, law(850.0, 200.0)), rt(4, 900.0, 100.0, law(900.0, 100.0))];
+        let tests = vec![
+            rt(2, 850.0, 100.0, law(850.0, 100.0)),
+            rt(3, 850.0, 200.0, law(850.0, 200.0)),
+            rt(4, 900.0, 100.0, law(900.0, 100.0)),
+        ];
         let fit = fit_norton(&tests, &NortonOptions::default()).unwrap();
         assert!(fit.exact && fit.n_se.is_none());
         assert!((fit.n - 5.0).abs() < 1e-9);
@@ -308,15 +342,42 @@ mod tests {
 
     #[test]
     fn degenerate_sets_are_errors() {
-        let one_t = vec![rt(2, 850.0, 100.0, 1e-5), rt(3, 850.0, 150.0, 1e-4), rt(4, 850.0, 200.0, 1e-3)];
-        assert!(fit_norton(&one_t, &NortonOptions::default()).unwrap_err().to_string().contains("one temperature"));
-        let one_s = vec![rt(2, 850.0, 100.0, 1e-5), rt(3, 875.0, 100.0, 1e-4), rt(4, 900.0, 100.0, 1e-3)];
-        assert!(fit_norton(&one_s, &NortonOptions::default()).unwrap_err().to_string().contains("one stress"));
+        let one_t = vec![
+            rt(2, 850.0, 100.0, 1e-5),
+            rt(3, 850.0, 150.0, 1e-4),
+            rt(4, 850.0, 200.0, 1e-3),
+        ];
+        assert!(fit_norton(&one_t, &NortonOptions::default())
+            .unwrap_err()
+            .to_string()
+            .contains("one temperature"));
+        let one_s = vec![
+            rt(2, 850.0, 100.0, 1e-5),
+            rt(3, 875.0, 100.0, 1e-4),
+            rt(4, 900.0, 100.0, 1e-3),
+        ];
+        assert!(fit_norton(&one_s, &NortonOptions::default())
+            .unwrap_err()
+            .to_string()
+            .contains("one stress"));
         // ln σ exactly linear in 1/T: n and Q cannot be told apart.
         let k = |t: f64| (1000.0 * (1.0 / t)).exp();
-        let coupled = vec![rt(2, 800.0, k(800.0), 1e-5), rt(3, 850.0, k(850.0), 1e-4), rt(4, 900.0, k(900.0), 1e-3), rt(5, 950.0, k(950.0), 1e-2)];
-        let e = fit_norton(&coupled, &NortonOptions::default()).unwrap_err().to_string();
-        assert!(e.contains("vary together") && e.contains("lines 2-5"), "{e}");
-        assert!(matches!(fit_norton(&one_t[..2], &NortonOptions::default()), Err(FitError::TooFewTests { .. })));
+        let coupled = vec![
+            rt(2, 800.0, k(800.0), 1e-5),
+            rt(3, 850.0, k(850.0), 1e-4),
+            rt(4, 900.0, k(900.0), 1e-3),
+            rt(5, 950.0, k(950.0), 1e-2),
+        ];
+        let e = fit_norton(&coupled, &NortonOptions::default())
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("vary together") && e.contains("lines 2-5"),
+            "{e}"
+        );
+        assert!(matches!(
+            fit_norton(&one_t[..2], &NortonOptions::default()),
+            Err(FitError::TooFewTests { .. })
+        ));
     }
 }

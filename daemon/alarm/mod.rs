@@ -1,0 +1,1 @@
+//! Alarms (in progress).

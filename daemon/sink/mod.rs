@@ -1,0 +1,1 @@
+//! Time-series database sink (in progress).

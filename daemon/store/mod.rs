@@ -1,0 +1,1 @@
+//! Ledger store (in progress).
