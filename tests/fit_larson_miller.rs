@@ -226,7 +226,7 @@ fn matches_numpy_least_squares() {
 // Example 9.2 in earlier editions), S-590 alloy on the Larson-Miller plot
 // of Larson & Miller 1952: at 140 MPa the parameter is 24.0·10³ (C = 20,
 // T in K, t_r in h), so at 800 °C (1073 K, as the book rounds it)
-// 22.37 = 20 + log t_r and t_r = 233 h (read in the book's text).
+// 22.37 = 20 + log t_r and t_r = 233 h (from memory of the book's worked example).
 //
 // The S-590 tests behind the book's figure are not reproduced here. The
 // tests below lie exactly on a straight master curve through the book's
