@@ -244,9 +244,8 @@ pub struct WearSettings {
     /// Fretting: vibration frequency (tag or constant).
     #[serde(default)]
     pub frequency: Option<InputSetting>,
-    /// Archard: dimensionless K. Fretting: work-rate coefficient
-    /// K_w in mm³/(N·mm) (equal to 1e-3 × the handbook value in
-    /// mm³/(N·m)... see README).
+    /// Archard: dimensionless K. Fretting: work-rate coefficient K_w in
+    /// mm³/(N·mm) = mm²/N (a value in Pa⁻¹ times 10⁶).
     pub wear_coefficient: f64,
     /// Hardness HV of the softer surface (Archard only); default: the
     /// material's.

@@ -1,0 +1,195 @@
+//! The command line as a user meets it: replay of the shipped demo,
+//! check-config on good and broken files, materials show.
+
+use std::process::Command;
+
+fn bin() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+}
+
+fn run(args: &[&str]) -> (i32, String, String) {
+    let o = bin().args(args).output().unwrap();
+    (o.status.code().unwrap_or(-1), String::from_utf8_lossy(&o.stdout).into(), String::from_utf8_lossy(&o.stderr).into())
+}
+
+#[test]
+fn demo_replay_json_has_every_field() {
+    let dir = tempfile::tempdir().unwrap();
+    let lp = dir.path().join("series.lp");
+    let (code, out, err) = run(&[
+        "replay", "--config", "config/demo/plant.toml", "--input", "config/demo/history.csv.gz",
+        "--format", "json", "--write-lp", lp.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+    assert!(v["rows"].as_u64().unwrap() > 500_000);
+    // The demo history has three deliberately malformed rows, each reported
+    // with its line number.
+    assert_eq!(v["malformed_rows"], 3);
+    for m in v["malformed_examples"].as_array().unwrap() {
+        assert!(m["line"].as_u64().unwrap() > 1);
+        assert!(!m["problem"].as_str().unwrap().is_empty());
+    }
+    let comps = v["components"].as_array().unwrap();
+    assert!(comps.len() >= 6);
+    for c in comps {
+        for key in [
+            "creep_life_fraction", "creep_strain", "wear_depth_mm", "wear_index", "remaining_life_h",
+            "unmonitored_h", "hours_in_creep_range", "histograms", "flags",
+        ] {
+            assert!(c.get(key).is_some(), "{} lacks {key}", c["component"]);
+        }
+    }
+    assert!(v["caution"].as_str().unwrap().contains("governing code"));
+    // The line-protocol file has one component_state line per point.
+    let text = std::fs::read_to_string(&lp).unwrap();
+    let n = text.lines().filter(|l| l.starts_with("component_state,")).count();
+    assert_eq!(n as u64, v["line_protocol_points"].as_u64().unwrap());
+    assert!(n > 1000);
+}
+
+#[test]
+fn replay_table_reports_malformed_rows_with_line_numbers() {
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("h.csv");
+    std::fs::write(
+        &csv,
+        "timestamp,tag,value,quality\n\
+         2026-10-01T00:00:00Z,U2.SH3.TE-311A,1000,good\n\
+         2026-10-01T00:01:00Z,U2.SH3.TE-311A,abc,good\n\
+         not-a-time,U2.SH3.TE-311A,1000\n\
+         2026-10-01T00:02:00Z\n\
+         2026-10-01T00:03:00Z,NO.SUCH.TAG,1\n",
+    )
+    .unwrap();
+    let (code, out, err) = run(&["replay", "--config", "config/demo/plant.toml", "--input", csv.to_str().unwrap()]);
+    assert_eq!(code, 0, "{err}");
+    assert!(out.contains("malformed rows: 3"), "{out}");
+    assert!(out.contains("line 3: value \"abc\" is not a number"), "{out}");
+    assert!(out.contains("line 4: timestamp"), "{out}");
+    assert!(out.contains("line 5: missing tag"), "{out}");
+    assert!(out.contains("unknown tag \"NO.SUCH.TAG\": 1 rows"), "{out}");
+}
+
+#[test]
+fn check_config_prints_design_values() {
+    let (code, out, err) = run(&["check-config", "config/demo/plant.toml"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(out.contains("hoop stress at design pressure"));
+    assert!(out.contains("homologous temperature"));
+    assert!(out.contains("rupture life at design"));
+    assert!(out.contains("governing code"));
+}
+
+#[test]
+fn broken_config_lists_every_problem_with_its_fix() {
+    let dir = tempfile::tempdir().unwrap();
+    let f = dir.path().join("bad.toml");
+    std::fs::write(
+        &f,
+        r#"
+[[tag]]
+name = "T1"
+unit = "degR"
+[[tag]]
+name = "T1"
+unit = "degC"
+[[tag]]
+name = "P1"
+unit = "bar"
+
+[[component]]
+name = "A"
+kind = "tube"
+material = "unobtainium"
+metal_temperature = "T1"
+pressure = "P1"
+[component.geometry]
+outside_diameter = { value = 10, unit = "mm" }
+wall = { value = 6, unit = "mm" }
+
+[[component]]
+name = "A"
+kind = "tube"
+material = "P22"
+metal_temperature = "T9"
+pressure = "P1"
+design_temperature = { value = 700, unit = "degC" }
+[component.geometry]
+outside_diameter = { value = 40, unit = "mm" }
+wall = { value = -1, unit = "mm" }
+
+[[component]]
+name = "bad\u0007name"
+kind = "tube"
+material = "P22"
+metal_temperature = "T1"
+fixed_stress = { value = 50, unit = "MPa" }
+"#,
+    )
+    .unwrap();
+    let (code, _out, err) = run(&["check-config", f.to_str().unwrap()]);
+    assert_eq!(code, 1);
+    for needle in [
+        "bad.toml",
+        "tag \"T1\", key `unit`: unknown unit \"degR\"",
+        "duplicate tag",
+        "unknown grade \"unobtainium\"",
+        "not larger than twice the wall",
+        "duplicate component name",
+        "tag \"T9\" is not defined",
+        "wall thickness must be positive",
+        "outside the data range of 2.25Cr-1Mo",
+        "control character U+0007",
+        "fix:",
+    ] {
+        assert!(err.contains(needle), "missing {needle:?} in:\n{err}");
+    }
+}
+
+#[test]
+fn unknown_keys_and_syntax_errors_name_the_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let f = dir.path().join("typo.toml");
+    std::fs::write(&f, "[engine]\nmax_hold = 5\n").unwrap();
+    let (code, _, err) = run(&["check-config", f.to_str().unwrap()]);
+    assert_eq!(code, 1);
+    assert!(err.contains("unknown field `max_hold`"), "{err}");
+    assert!(err.contains("line 2"), "{err}");
+}
+
+#[test]
+fn environment_overrides_apply() {
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("h.csv");
+    std::fs::write(&csv, "2026-10-01T00:00:00Z,U2.SH3.TE-311A,1000\n").unwrap();
+    let o = bin()
+        .args(["replay", "--config", "config/demo/plant.toml", "--input", csv.to_str().unwrap(), "--format", "json"])
+        .env("LIFELEDGER__PLANT__NAME", "Override Works")
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["plant"], "Override Works");
+}
+
+#[test]
+fn materials_show_prints_sources_and_caution() {
+    let (code, out, _) = run(&["materials", "show", "t91"]);
+    assert_eq!(code, 0);
+    assert!(out.contains("9Cr-1Mo-V"));
+    assert!(out.contains("source"));
+    assert!(out.contains("screening values"));
+    let (code, _, err) = run(&["materials", "show", "kryptonite"]);
+    assert_eq!(code, 2);
+    assert!(err.contains("unknown grade"));
+}
+
+#[test]
+fn help_teaches_and_cautions() {
+    for sub in [vec!["--help"], vec!["replay", "--help"], vec!["check-config", "--help"], vec!["materials", "--help"]] {
+        let (code, out, _) = run(&sub);
+        assert_eq!(code, 0);
+        assert!(out.contains("governing code"), "{sub:?}");
+    }
+}
