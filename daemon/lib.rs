@@ -22,10 +22,12 @@
 pub mod alarm;
 pub mod engine;
 pub mod fit;
+pub mod ingest;
 pub mod lineproto;
 pub mod physics;
 pub mod replay;
 pub mod report;
+pub mod service;
 pub mod settings;
 pub mod sink;
 pub mod store;

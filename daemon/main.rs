@@ -87,12 +87,34 @@ enum Command {
         #[command(subcommand)]
         action: MaterialsAction,
     },
+    /// Run the live service: subscribe to the plant's MQTT tags, keep the ledger, write the database, raise alarms.
+    ///
+    /// Reads [mqtt], [store], [database], [http] and [alarms] from the
+    /// configuration (see README). Messages are acknowledged only after the
+    /// ledger transaction that holds them has committed. SIGTERM/SIGINT stop
+    /// cleanly; SIGHUP reloads the configuration and keeps every ledger.
+    /// Logs go to standard error, filtered by RUST_LOG (default info).
+    #[command(after_help = CAUTION_HELP)]
+    Run {
+        /// Configuration file (TOML).
+        #[arg(long, short)]
+        config: PathBuf,
+        /// Log format.
+        #[arg(long, value_enum, default_value_t = LogFormat::Human)]
+        log_format: LogFormat,
+    },
     /// Fit material constants (Larson-Miller, Norton) from your own creep test data.
     #[command(after_help = CAUTION_HELP)]
     Fit {
         #[command(subcommand)]
         cmd: lifeledger::fit::FitCommand,
     },
+}
+
+#[derive(Clone, Copy, ValueEnum, PartialEq)]
+enum LogFormat {
+    Human,
+    Json,
 }
 
 #[derive(Subcommand)]
@@ -114,13 +136,30 @@ enum MaterialsAction {
     },
 }
 
+fn init_logs(default: &str, json: bool) {
+    let filter = tracing_subscriber::EnvFilter::try_from_default_env().unwrap_or_else(|_| default.into());
+    let b = tracing_subscriber::fmt().with_env_filter(filter).with_writer(std::io::stderr);
+    if json {
+        b.json().init();
+    } else {
+        b.init();
+    }
+}
+
+fn cmd_run(config: PathBuf) -> Result<i32> {
+    let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
+    rt.block_on(lifeledger::service::run(&config))?;
+    Ok(0)
+}
+
 fn main() {
-    tracing_subscriber::fmt()
-        .with_env_filter(tracing_subscriber::EnvFilter::try_from_default_env().unwrap_or_else(|_| "warn".into()))
-        .with_writer(std::io::stderr)
-        .init();
     let cli = Cli::parse();
+    match &cli.command {
+        Command::Run { log_format, .. } => init_logs("info", *log_format == LogFormat::Json),
+        _ => init_logs("warn", false),
+    }
     let result = match cli.command {
+        Command::Run { config, .. } => cmd_run(config),
         Command::Replay { config, input, format, write_lp, lp_interval_s, no_progress } => {
             cmd_replay(config, input, format, write_lp, lp_interval_s, no_progress)
         }

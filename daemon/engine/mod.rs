@@ -357,6 +357,13 @@ impl Engine {
         Ok(())
     }
 
+    /// Mark a component changed (so the next [`Engine::take_changed`] lists it).
+    pub fn mark_changed(&mut self, ci: usize) {
+        if let Some(c) = self.changed.get_mut(ci) {
+            *c = true;
+        }
+    }
+
     /// Indices of components changed since the last call.
     pub fn take_changed(&mut self) -> Vec<usize> {
         let mut v = Vec::new();

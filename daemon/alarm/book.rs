@@ -1,0 +1,786 @@
+//! The alarm book: every alarm record of the plant and the ISA-18.2 state
+//! machine that moves them.
+//!
+//! | from | on | to |
+//! |---|---|---|
+//! | normal | condition becomes active | unacknowledged |
+//! | unacknowledged | acknowledge | acknowledged |
+//! | unacknowledged | condition clears | rtn_unacknowledged |
+//! | acknowledged | condition clears | normal |
+//! | acknowledged | escalation (e.g. warning → critical) | unacknowledged |
+//! | rtn_unacknowledged | acknowledge | normal |
+//! | rtn_unacknowledged | condition active again | unacknowledged |
+//! | any | shelve | shelved |
+//! | shelved | unshelve, or shelve end reached | unacknowledged if active, else normal |
+//!
+//! * A value is turned into a severity by [`super::deadband::next_severity`]
+//!   (levels plus hysteresis), a boolean condition into warning or clear.
+//! * Escalation while active (warning → critical) re-enters
+//!   `unacknowledged`: the operator acknowledged something less serious.
+//!   Stepping down while active keeps the acknowledge state and emits a
+//!   `stepped_down` event for the record.
+//! * While shelved the condition is still followed (so the record always
+//!   shows what the value implies) but no event is emitted except the
+//!   shelve and unshelve events themselves. When the shelve is lifted, by
+//!   command or by time ([`AlarmBook::tick`], or any evaluation at or after
+//!   its end), the alarm takes the state its condition implies: active
+//!   means `unacknowledged` even if it was acknowledged before shelving,
+//!   since it went unwatched meanwhile.
+//! * Records are created on first evaluation and never removed, so an
+//!   acknowledge or shelve of an alarm the book has never seen is an error,
+//!   while one that has nothing to do (already acknowledged, not shelved)
+//!   succeeds with no events: commands may be repeated safely.
+//!
+//! Time is the caller's: every call takes event time in milliseconds.
+
+use super::command::AlarmCommand;
+use super::deadband::{next_severity, Deadband};
+use super::event::{AlarmEvent, Transition};
+use super::index::{AlarmIndex, Direction, Severity};
+use super::record::{key, AlarmRecord, AlarmState, Shelve};
+use super::AlarmError;
+use crate::engine::plan::{ComponentPlan, Levels};
+use crate::engine::ComponentState;
+use crate::physics::remaining::hours_to_threshold;
+use crate::report::rfc3339_ms;
+use serde::{Deserialize, Serialize};
+use std::collections::BTreeMap;
+
+/// Longest shelve accepted, hours (30 days). ISA-18.2 wants shelving
+/// time-limited so that a suppressed alarm comes back to someone's
+/// attention; the length is a choice of this program.
+pub const MAX_SHELVE_H: f64 = 720.0;
+const MS_PER_H: f64 = 3_600_000.0;
+
+/// Book-wide settings.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct AlarmConfig {
+    /// Deadbands by index; an index not listed uses
+    /// [`Deadband::default_for`].
+    #[serde(default)]
+    pub deadbands: BTreeMap<AlarmIndex, Deadband>,
+    /// Damage-rate levels (recent life-fraction rate, 1/h) for every
+    /// component with a metal temperature. Default: none, not alarmed;
+    /// component thresholds do not carry damage-rate levels.
+    #[serde(default)]
+    pub damage_rate: Levels,
+}
+
+impl AlarmConfig {
+    /// The deadband of an index.
+    pub fn deadband(&self, index: AlarmIndex) -> Deadband {
+        self.deadbands
+            .get(&index)
+            .copied()
+            .unwrap_or_else(|| Deadband::default_for(index))
+    }
+}
+
+/// Every alarm record, keyed by `component/index`.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct AlarmBook {
+    #[serde(default)]
+    config: AlarmConfig,
+    records: BTreeMap<String, AlarmRecord>,
+}
+
+/// What a component's alarms look like now, for its retained state topic.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ComponentAlarmSummary {
+    pub component: String,
+    pub unit: String,
+    /// Worst severity of the active alarms that are not shelved.
+    pub worst_severity: Option<Severity>,
+    /// Active alarms (condition active, not shelved).
+    pub active: usize,
+    /// Alarms waiting for an acknowledge (active or returned to normal).
+    pub unacknowledged: usize,
+    pub shelved: usize,
+    /// Event time of the latest change, RFC 3339.
+    pub updated: Option<String>,
+    /// Every record of the component, in index order.
+    pub alarms: Vec<AlarmRecord>,
+    pub caution: &'static str,
+}
+
+impl ComponentAlarmSummary {
+    /// The summary as one JSON object.
+    pub fn to_json(&self) -> String {
+        serde_json::to_string(self).expect("an alarm summary always serialises")
+    }
+}
+
+/// How a record's value is judged: levels with a deadband, or a boolean.
+#[derive(Clone, Copy)]
+enum Judge<'a> {
+    Levels {
+        levels: &'a Levels,
+        deadband: Deadband,
+    },
+    Condition,
+}
+
+impl Judge<'_> {
+    fn level(&self, s: Severity) -> Option<f64> {
+        match self {
+            Judge::Levels { levels, .. } => s.level(levels),
+            Judge::Condition => None,
+        }
+    }
+}
+
+impl AlarmBook {
+    /// An empty book with the default configuration.
+    pub fn new() -> AlarmBook {
+        AlarmBook::default()
+    }
+
+    /// This book with another configuration.
+    pub fn with_config(mut self, config: AlarmConfig) -> AlarmBook {
+        self.config = config;
+        self
+    }
+
+    pub fn config(&self) -> &AlarmConfig {
+        &self.config
+    }
+
+    pub fn set_config(&mut self, config: AlarmConfig) {
+        self.config = config;
+    }
+
+    /// A book from stored records (default configuration; chain
+    /// [`AlarmBook::with_config`]).
+    pub fn from_records(records: impl IntoIterator<Item = AlarmRecord>) -> AlarmBook {
+        AlarmBook {
+            config: AlarmConfig::default(),
+            records: records.into_iter().map(|r| (r.key(), r)).collect(),
+        }
+    }
+
+    /// Every record, in key order.
+    pub fn records(&self) -> impl Iterator<Item = &AlarmRecord> {
+        self.records.values()
+    }
+
+    /// One record by key (`component/index`).
+    pub fn record(&self, key: &str) -> Option<&AlarmRecord> {
+        self.records.get(key)
+    }
+
+    /// Names of the components that have records, sorted.
+    pub fn components(&self) -> Vec<&str> {
+        let mut v: Vec<&str> = self
+            .records
+            .values()
+            .map(|r| r.component.as_str())
+            .collect();
+        v.sort_unstable();
+        v.dedup();
+        v
+    }
+
+    /// Judge a value of `index` against `levels` (the index's direction
+    /// decides whether higher or lower is worse). A NaN value changes
+    /// nothing; an infinite one (no projection) means clear.
+    pub fn evaluate(
+        &mut self,
+        component: &str,
+        unit: &str,
+        index: AlarmIndex,
+        value: f64,
+        levels: &Levels,
+        time_ms: i64,
+    ) -> Vec<AlarmEvent> {
+        if value.is_nan() {
+            return vec![];
+        }
+        let deadband = self.config.deadband(index);
+        let mut events = vec![];
+        let rec = self.entry(component, unit, index, time_ms, &mut events);
+        // The severity held for the deadband is what the condition implied
+        // last time (shelved or not).
+        let new = next_severity(index.direction(), levels, &deadband, rec.condition, value);
+        rec.value = value;
+        events.extend(update(
+            rec,
+            new,
+            Judge::Levels { levels, deadband },
+            time_ms,
+        ));
+        events
+    }
+
+    /// Judge a boolean condition (sensor or service fault); active means
+    /// warning. `detail` says what is wrong, in words (kept on the record
+    /// when not empty).
+    pub fn evaluate_condition(
+        &mut self,
+        component: &str,
+        unit: &str,
+        index: AlarmIndex,
+        active: bool,
+        detail: &str,
+        time_ms: i64,
+    ) -> Vec<AlarmEvent> {
+        let mut events = vec![];
+        let rec = self.entry(component, unit, index, time_ms, &mut events);
+        rec.value = if active { 1.0 } else { 0.0 };
+        if !detail.trim().is_empty() {
+            rec.detail = Some(detail.trim().to_string());
+        }
+        events.extend(update(
+            rec,
+            active.then_some(Severity::Warning),
+            Judge::Condition,
+            time_ms,
+        ));
+        events
+    }
+
+    /// Judge every index that applies to one component from its thresholds:
+    ///
+    /// * creep life fraction and hours to critical: with a metal
+    ///   temperature input; hours to critical is the projection to the
+    ///   critical life-fraction level (or the highest one set) at the
+    ///   recent rate, infinite (clear) when damage is not increasing;
+    /// * creep strain: also needs Norton constants for the material;
+    /// * wear index: with a wear plan;
+    /// * metal temperature over design: with a design temperature, once
+    ///   data has been integrated and only when the newest piece was
+    ///   monitored (a gap-filled temperature is not a measurement: the
+    ///   alarm keeps its state and the sensor alarms tell the story);
+    /// * damage rate: with a metal temperature and book-wide levels.
+    ///
+    /// An index without levels is skipped unless it already has a record
+    /// (so removing the levels clears an active alarm).
+    pub fn evaluate_component(
+        &mut self,
+        plan: &ComponentPlan,
+        state: &ComponentState,
+        time_ms: i64,
+    ) -> Vec<AlarmEvent> {
+        let th = &plan.thresholds;
+        let has_creep = plan.metal_temperature.is_some();
+        let critical_lf = th.life_fraction.top();
+        let hours = critical_lf
+            .and_then(|l| {
+                hours_to_threshold(
+                    state.life_fraction,
+                    l,
+                    state.recent_life_fraction_rate_per_h,
+                )
+            })
+            .unwrap_or(f64::INFINITY);
+        let over_design = plan
+            .design_temperature_k
+            .filter(|_| state.integrated_to_ms.is_some() && !state.now.unmonitored)
+            .map(|d| state.now.metal_temperature_k - d);
+        let damage_rate = self.config.damage_rate;
+        let checks: [(AlarmIndex, bool, &Levels, f64); 6] = [
+            (
+                AlarmIndex::CreepLifeFraction,
+                has_creep,
+                &th.life_fraction,
+                state.life_fraction,
+            ),
+            (
+                AlarmIndex::CreepStrain,
+                has_creep && plan.material.norton.is_some(),
+                &th.creep_strain,
+                state.creep_strain,
+            ),
+            (
+                AlarmIndex::WearIndex,
+                plan.wear.is_some(),
+                &th.wear_index,
+                state.wear_index(plan),
+            ),
+            (
+                AlarmIndex::MetalTemperatureOverDesign,
+                has_creep && over_design.is_some(),
+                &th.over_design_temperature_k,
+                over_design.unwrap_or(f64::NAN),
+            ),
+            (
+                AlarmIndex::DamageRate,
+                has_creep,
+                &damage_rate,
+                state.recent_life_fraction_rate_per_h,
+            ),
+            (
+                AlarmIndex::HoursToCritical,
+                has_creep && critical_lf.is_some(),
+                &th.hours_to_critical,
+                hours,
+            ),
+        ];
+        let mut events = vec![];
+        for (index, applies, levels, value) in checks {
+            let known = self.records.contains_key(&key(&plan.name, index));
+            if applies && (levels.iter().next().is_some() || known) {
+                events.extend(self.evaluate(&plan.name, &plan.unit, index, value, levels, time_ms));
+            }
+        }
+        events
+    }
+
+    /// Acknowledge one alarm (a key, or a component and an index) or every
+    /// alarm of a component (no index). Unknown alarms are an error; an
+    /// alarm with nothing to acknowledge gives no event.
+    pub fn acknowledge(
+        &mut self,
+        key_or_component: &str,
+        index: Option<AlarmIndex>,
+        by: &str,
+        time_ms: i64,
+    ) -> Result<Vec<AlarmEvent>, AlarmError> {
+        let keys = self.targets(key_or_component, index)?;
+        let mut events = self.expire_keys(&keys, time_ms);
+        for k in keys {
+            let rec = self.records.get_mut(&k).expect("target exists");
+            let sev = rec.severity;
+            let was = rec.state;
+            rec.state = match was {
+                AlarmState::Unacknowledged => AlarmState::Acknowledged,
+                AlarmState::RtnUnacknowledged => AlarmState::Normal,
+                _ => continue,
+            };
+            rec.since_ms = time_ms;
+            rec.updated_ms = time_ms;
+            rec.acknowledged_by = Some(by.to_string());
+            rec.acknowledged_ms = Some(time_ms);
+            let threshold = rec.threshold;
+            let mut msg = format!(
+                "{} {} {} acknowledged by {by}",
+                rec.component,
+                rec.index.label(),
+                sev.map_or("alarm", |s| s.name())
+            );
+            if was == AlarmState::RtnUnacknowledged {
+                msg.push_str("; the condition had already cleared, back to normal");
+                rec.severity = None;
+                rec.threshold = None;
+            }
+            let mut e = AlarmEvent::of(rec, Transition::Acknowledged, sev, threshold, time_ms, msg);
+            e.by = Some(by.to_string());
+            events.push(e);
+        }
+        Ok(events)
+    }
+
+    /// Shelve one alarm or every alarm of a component until `until_ms`
+    /// (after `time_ms`, at most [`MAX_SHELVE_H`] later). Shelving a
+    /// shelved alarm moves its end and emits a new event.
+    #[allow(clippy::too_many_arguments)]
+    pub fn shelve(
+        &mut self,
+        key_or_component: &str,
+        index: Option<AlarmIndex>,
+        until_ms: i64,
+        by: &str,
+        reason: &str,
+        time_ms: i64,
+    ) -> Result<Vec<AlarmEvent>, AlarmError> {
+        if until_ms <= time_ms {
+            return Err(AlarmError::ShelveNotAhead {
+                target: key_or_component.to_string(),
+                until: rfc3339_ms(until_ms),
+                now: rfc3339_ms(time_ms),
+            });
+        }
+        if (until_ms - time_ms) as f64 > MAX_SHELVE_H * MS_PER_H {
+            return Err(AlarmError::ShelveTooLong {
+                target: key_or_component.to_string(),
+                hours: (until_ms - time_ms) as f64 / MS_PER_H,
+                max_h: MAX_SHELVE_H,
+            });
+        }
+        let keys = self.targets(key_or_component, index)?;
+        let mut events = vec![];
+        for k in keys {
+            let rec = self.records.get_mut(&k).expect("target exists");
+            if rec.state != AlarmState::Shelved {
+                rec.state = AlarmState::Shelved;
+                rec.since_ms = time_ms;
+            }
+            // While shelved the record shows what its condition implies
+            // (an alarm pending acknowledge after clearing shows clear).
+            rec.severity = rec.condition;
+            if rec.condition.is_none() {
+                rec.threshold = None;
+            }
+            rec.updated_ms = time_ms;
+            rec.shelve = Some(Shelve {
+                until_ms,
+                by: by.to_string(),
+                reason: reason.to_string(),
+                since_ms: time_ms,
+            });
+            let until = rfc3339_ms(until_ms);
+            let mut msg = format!(
+                "{} {} shelved by {by} until {until}",
+                rec.component,
+                rec.index.label()
+            );
+            if !reason.trim().is_empty() {
+                msg.push_str(&format!(": {}", reason.trim()));
+            }
+            let mut e = AlarmEvent::of(
+                rec,
+                Transition::Shelved,
+                rec.condition,
+                rec.threshold,
+                time_ms,
+                msg,
+            );
+            e.by = Some(by.to_string());
+            e.reason = Some(reason.to_string());
+            e.shelved_until = Some(until);
+            events.push(e);
+        }
+        Ok(events)
+    }
+
+    /// Lift the shelve of one alarm or of every alarm of a component;
+    /// alarms that are not shelved give no event.
+    pub fn unshelve(
+        &mut self,
+        key_or_component: &str,
+        index: Option<AlarmIndex>,
+        by: &str,
+        time_ms: i64,
+    ) -> Result<Vec<AlarmEvent>, AlarmError> {
+        let keys = self.targets(key_or_component, index)?;
+        let mut events = vec![];
+        for k in keys {
+            let rec = self.records.get_mut(&k).expect("target exists");
+            if rec.state == AlarmState::Shelved {
+                let mut e = lift_shelve(
+                    rec,
+                    Transition::Unshelved,
+                    &format!("unshelved by {by}"),
+                    time_ms,
+                );
+                e.by = Some(by.to_string());
+                events.push(e);
+            }
+        }
+        Ok(events)
+    }
+
+    /// Lift every shelve that has ended by `now_ms`.
+    pub fn tick(&mut self, now_ms: i64) -> Vec<AlarmEvent> {
+        let keys: Vec<String> = self.records.keys().cloned().collect();
+        self.expire_keys(&keys, now_ms)
+    }
+
+    /// Carry out an operator command received at `time_ms`.
+    pub fn apply(
+        &mut self,
+        command: &AlarmCommand,
+        time_ms: i64,
+    ) -> Result<Vec<AlarmEvent>, AlarmError> {
+        match command {
+            AlarmCommand::Acknowledge { target, by } => {
+                self.acknowledge(&target.component, target.index, by, time_ms)
+            }
+            AlarmCommand::Shelve {
+                target,
+                duration_h,
+                by,
+                reason,
+            } => {
+                let until_ms = time_ms.saturating_add((duration_h * MS_PER_H).round() as i64);
+                self.shelve(
+                    &target.component,
+                    target.index,
+                    until_ms,
+                    by,
+                    reason,
+                    time_ms,
+                )
+            }
+            AlarmCommand::Unshelve { target, by } => {
+                self.unshelve(&target.component, target.index, by, time_ms)
+            }
+        }
+    }
+
+    /// A component's alarms now.
+    pub fn current(&self, component: &str) -> ComponentAlarmSummary {
+        let alarms: Vec<AlarmRecord> = self
+            .records
+            .values()
+            .filter(|r| r.component == component)
+            .cloned()
+            .collect();
+        let active: Vec<&AlarmRecord> = alarms
+            .iter()
+            .filter(|r| r.is_active() && r.state != AlarmState::Shelved)
+            .collect();
+        ComponentAlarmSummary {
+            component: component.to_string(),
+            unit: alarms.first().map(|r| r.unit.clone()).unwrap_or_default(),
+            worst_severity: active.iter().filter_map(|r| r.condition).max(),
+            active: active.len(),
+            unacknowledged: alarms
+                .iter()
+                .filter(|r| r.state.needs_acknowledge())
+                .count(),
+            shelved: alarms
+                .iter()
+                .filter(|r| r.state == AlarmState::Shelved)
+                .count(),
+            updated: alarms.iter().map(|r| r.updated_ms).max().map(rfc3339_ms),
+            alarms,
+            caution: crate::CAUTION,
+        }
+    }
+
+    /// The record of `component/index`, created in `normal` if new; a
+    /// shelve that has ended by `time_ms` is lifted first (its event goes
+    /// to `events`).
+    fn entry(
+        &mut self,
+        component: &str,
+        unit: &str,
+        index: AlarmIndex,
+        time_ms: i64,
+        events: &mut Vec<AlarmEvent>,
+    ) -> &mut AlarmRecord {
+        let rec = self
+            .records
+            .entry(key(component, index))
+            .or_insert_with(|| AlarmRecord::new(component, unit, index, time_ms));
+        rec.unit = unit.to_string();
+        rec.updated_ms = time_ms;
+        if let Some(e) = expire(rec, time_ms) {
+            events.push(e);
+        }
+        rec
+    }
+
+    fn expire_keys(&mut self, keys: &[String], now_ms: i64) -> Vec<AlarmEvent> {
+        keys.iter()
+            .filter_map(|k| self.records.get_mut(k).and_then(|r| expire(r, now_ms)))
+            .collect()
+    }
+
+    /// Keys addressed by a command: an exact key, a component and index, or
+    /// all of a component's alarms.
+    fn targets(
+        &self,
+        key_or_component: &str,
+        index: Option<AlarmIndex>,
+    ) -> Result<Vec<String>, AlarmError> {
+        if let Some(rec) = self.records.get(key_or_component) {
+            return match index {
+                Some(i) if i != rec.index => Err(AlarmError::UnknownAlarm {
+                    key: format!("{key_or_component}/{i}"),
+                    known: vec![],
+                }),
+                _ => Ok(vec![key_or_component.to_string()]),
+            };
+        }
+        let of_component: Vec<String> = self
+            .records
+            .iter()
+            .filter(|(_, r)| r.component == key_or_component)
+            .map(|(k, _)| k.clone())
+            .collect();
+        match index {
+            Some(i) => {
+                let k = key(key_or_component, i);
+                if self.records.contains_key(&k) {
+                    Ok(vec![k])
+                } else {
+                    Err(AlarmError::UnknownAlarm {
+                        key: k,
+                        known: of_component,
+                    })
+                }
+            }
+            None if of_component.is_empty() => Err(AlarmError::UnknownComponent {
+                component: key_or_component.to_string(),
+            }),
+            None => Ok(of_component),
+        }
+    }
+}
+
+/// Lift a shelve that has ended by `now_ms`.
+fn expire(rec: &mut AlarmRecord, now_ms: i64) -> Option<AlarmEvent> {
+    let until = rec
+        .shelve
+        .as_ref()
+        .filter(|_| rec.state == AlarmState::Shelved)?
+        .until_ms;
+    (now_ms >= until).then(|| {
+        lift_shelve(
+            rec,
+            Transition::ShelveExpired,
+            &format!("shelve ended at {}", rfc3339_ms(until)),
+            now_ms,
+        )
+    })
+}
+
+/// Return a shelved record to the state its condition implies.
+fn lift_shelve(
+    rec: &mut AlarmRecord,
+    transition: Transition,
+    how: &str,
+    time_ms: i64,
+) -> AlarmEvent {
+    rec.shelve = None;
+    rec.since_ms = time_ms;
+    rec.updated_ms = time_ms;
+    let tail = match rec.condition {
+        Some(s) => {
+            rec.state = AlarmState::Unacknowledged;
+            rec.acknowledged_by = None;
+            rec.acknowledged_ms = None;
+            format!("the condition is active at {s}, awaiting acknowledge")
+        }
+        None => {
+            rec.state = AlarmState::Normal;
+            "the condition is clear".to_string()
+        }
+    };
+    let msg = format!("{} {} {how}; {tail}", rec.component, rec.index.label());
+    AlarmEvent::of(rec, transition, rec.condition, rec.threshold, time_ms, msg)
+}
+
+/// Move a record to the severity `new` now implied (value already set).
+fn update(
+    rec: &mut AlarmRecord,
+    new: Option<Severity>,
+    judge: Judge<'_>,
+    time_ms: i64,
+) -> Option<AlarmEvent> {
+    rec.condition = new;
+    if rec.state == AlarmState::Shelved {
+        // Followed silently; the severity shown is the condition's.
+        rec.severity = new;
+        rec.threshold = new.and_then(|s| judge.level(s));
+        return None;
+    }
+    let shown = matches!(
+        rec.state,
+        AlarmState::Unacknowledged | AlarmState::Acknowledged
+    );
+    let old = rec.severity.filter(|_| shown);
+    let transition = match (old, new) {
+        (None, None) => return None,
+        (None, Some(_)) => Transition::Activated,
+        (Some(o), Some(s)) if s > o => Transition::Escalated,
+        (Some(o), Some(s)) if s < o => Transition::SteppedDown,
+        (Some(_), Some(_)) => return None,
+        (Some(_), None) => Transition::Cleared,
+    };
+    let was = rec.state;
+    rec.state = match (transition, was) {
+        (Transition::Activated | Transition::Escalated, _) => AlarmState::Unacknowledged,
+        (Transition::Cleared, AlarmState::Unacknowledged) => AlarmState::RtnUnacknowledged,
+        (Transition::Cleared, _) => AlarmState::Normal,
+        _ => was,
+    };
+    if rec.state != was {
+        rec.since_ms = time_ms;
+    }
+    if rec.state == AlarmState::Unacknowledged && was != AlarmState::Unacknowledged {
+        rec.acknowledged_by = None;
+        rec.acknowledged_ms = None;
+    }
+    let (sev, threshold) = match new {
+        Some(s) => (s, judge.level(s)),
+        None => (old.expect("cleared from a severity"), rec.threshold),
+    };
+    let msg = message(rec, transition, old, sev, threshold, judge);
+    match transition {
+        Transition::Cleared if rec.state == AlarmState::Normal => {
+            rec.severity = None;
+            rec.threshold = None;
+        }
+        Transition::Cleared => {}
+        _ => {
+            rec.severity = Some(sev);
+            rec.threshold = threshold;
+        }
+    }
+    Some(AlarmEvent::of(
+        rec,
+        transition,
+        Some(sev),
+        threshold,
+        time_ms,
+        msg,
+    ))
+}
+
+/// Plain words for a value transition.
+fn message(
+    rec: &AlarmRecord,
+    transition: Transition,
+    old: Option<Severity>,
+    sev: Severity,
+    threshold: Option<f64>,
+    judge: Judge<'_>,
+) -> String {
+    let (c, i) = (&rec.component, rec.index);
+    let head = format!("{c} {}", i.label());
+    let detail = rec
+        .detail
+        .as_deref()
+        .map(|d| format!(": {d}"))
+        .unwrap_or_default();
+    let deadband = match judge {
+        Judge::Levels { deadband, .. } => Some(deadband),
+        Judge::Condition => None,
+    };
+    let lvl = |l: Option<f64>| l.map_or("(no level)".to_string(), |l| i.display(l));
+    let (reach, back) = match i.direction() {
+        Direction::HigherIsWorse => ("reached", "below"),
+        Direction::LowerIsWorse => ("fell to or below", "above"),
+    };
+    let value = i.display(rec.value);
+    let awaiting = if rec.state == AlarmState::RtnUnacknowledged {
+        ", awaiting acknowledge"
+    } else {
+        ""
+    };
+    match (transition, deadband) {
+        (Transition::Activated, None) => format!("{head}{detail}"),
+        (Transition::Escalated, None) => format!("{head} rose to {sev}{detail}"),
+        (Transition::SteppedDown, None) => format!("{head} eased to {sev}{detail}"),
+        (Transition::Cleared, None) => format!("{head} cleared{awaiting}{detail}"),
+        (Transition::Activated, Some(_)) => {
+            format!("{head} {value} {reach} the {sev} level {}", lvl(threshold))
+        }
+        (Transition::Escalated, Some(_)) => {
+            format!(
+                "{head} {value} {reach} the {sev} level {} (was {})",
+                lvl(threshold),
+                old.map_or("clear", |o| o.name())
+            )
+        }
+        (Transition::SteppedDown | Transition::Cleared, Some(db)) => {
+            let o = old.expect("stepping from a severity");
+            let old_level = judge.level(o).or(rec.threshold);
+            let band = old_level.map_or("its deadband".to_string(), |l| {
+                format!("its deadband {}", i.display(db.width(l)))
+            });
+            let moved = format!(
+                "{head} {value} is back {back} the {o} level {} by more than {band}",
+                lvl(old_level)
+            );
+            if transition == Transition::Cleared {
+                format!("{moved}; cleared{awaiting}")
+            } else {
+                format!("{moved}; now at the {sev} level {}", lvl(threshold))
+            }
+        }
+        _ => format!("{head} {}", transition.name()),
+    }
+}

@@ -1,0 +1,272 @@
+//! Operator commands from the MQTT command topic, parsed strictly.
+//!
+//! ```json
+//! {"action":"acknowledge","component":"U2-SH3-OUTLET-LEG-A","index":"creep_life_fraction","by":"operator 7"}
+//! {"action":"shelve","component":"U2-SH3-OUTLET-LEG-A","index":"creep_life_fraction","duration_h":8,"by":"operator 7","reason":"thermocouple replacement"}
+//! {"action":"unshelve","component":"U2-SH3-OUTLET-LEG-A","by":"operator 7"}
+//! ```
+//!
+//! `component` may also be a full key (`component/index`); leaving out
+//! `index` (or giving null) addresses every alarm of the component. `by` is
+//! required (ISA-18.2 asks who acknowledged or shelved), and a shelve needs
+//! a `reason` and a `duration_h` of at most [`MAX_SHELVE_H`]. Unknown
+//! fields are rejected rather than ignored: a misspelt `duration_h` must not
+//! turn into a default. Each error names the field and what is wrong.
+
+use super::book::MAX_SHELVE_H;
+use super::index::AlarmIndex;
+use super::AlarmError;
+use serde_json::{Map, Value};
+
+/// Which alarms a command addresses.
+#[derive(Debug, Clone, PartialEq)]
+pub struct AlarmTarget {
+    /// A component name, or a full `component/index` key.
+    pub component: String,
+    /// `None`: every alarm of the component.
+    pub index: Option<AlarmIndex>,
+}
+
+/// One operator command.
+#[derive(Debug, Clone, PartialEq)]
+pub enum AlarmCommand {
+    Acknowledge {
+        target: AlarmTarget,
+        by: String,
+    },
+    Shelve {
+        target: AlarmTarget,
+        duration_h: f64,
+        by: String,
+        reason: String,
+    },
+    Unshelve {
+        target: AlarmTarget,
+        by: String,
+    },
+}
+
+impl AlarmCommand {
+    /// Who sent the command.
+    pub fn by(&self) -> &str {
+        match self {
+            AlarmCommand::Acknowledge { by, .. }
+            | AlarmCommand::Shelve { by, .. }
+            | AlarmCommand::Unshelve { by, .. } => by,
+        }
+    }
+
+    /// The alarms addressed.
+    pub fn target(&self) -> &AlarmTarget {
+        match self {
+            AlarmCommand::Acknowledge { target, .. }
+            | AlarmCommand::Shelve { target, .. }
+            | AlarmCommand::Unshelve { target, .. } => target,
+        }
+    }
+}
+
+fn bad(field: &str, problem: impl Into<String>) -> AlarmError {
+    AlarmError::Command {
+        field: field.to_string(),
+        problem: problem.into(),
+    }
+}
+
+fn kind(v: &Value) -> &'static str {
+    match v {
+        Value::Null => "null",
+        Value::Bool(_) => "a boolean",
+        Value::Number(_) => "a number",
+        Value::String(_) => "a string",
+        Value::Array(_) => "an array",
+        Value::Object(_) => "an object",
+    }
+}
+
+/// A required non-empty text field, trimmed.
+fn text(o: &Map<String, Value>, field: &str) -> Result<String, AlarmError> {
+    match o.get(field) {
+        None | Some(Value::Null) => Err(bad(field, "is missing")),
+        Some(Value::String(s)) if s.trim().is_empty() => Err(bad(field, "is empty")),
+        Some(Value::String(s)) => match s.chars().find(|c| c.is_control()) {
+            Some(c) => Err(bad(
+                field,
+                format!("contains the control character U+{:04X}", c as u32),
+            )),
+            None => Ok(s.trim().to_string()),
+        },
+        Some(v) => Err(bad(field, format!("must be a string, got {}", kind(v)))),
+    }
+}
+
+/// Parse one command message.
+pub fn parse_command(json: &[u8]) -> Result<AlarmCommand, AlarmError> {
+    let v: Value = serde_json::from_slice(json).map_err(|e| AlarmError::CommandJson {
+        problem: e.to_string(),
+    })?;
+    let Value::Object(o) = v else {
+        return Err(AlarmError::CommandJson {
+            problem: format!("expected a JSON object, got {}", kind(&v)),
+        });
+    };
+    let action = text(&o, "action")?;
+    let allowed: &[&str] = match action.as_str() {
+        "acknowledge" | "unshelve" => &["action", "component", "index", "by"],
+        "shelve" => &["action", "component", "index", "by", "duration_h", "reason"],
+        other => {
+            return Err(bad(
+                "action",
+                format!("unknown action \"{other}\"; expected acknowledge, shelve or unshelve"),
+            ))
+        }
+    };
+    if let Some(k) = o.keys().find(|k| !allowed.contains(&k.as_str())) {
+        return Err(bad(
+            k,
+            format!(
+                "is not a field of {action}; its fields are {}",
+                allowed.join(", ")
+            ),
+        ));
+    }
+    let component = text(&o, "component")?;
+    let index = match o.get("index") {
+        None | Some(Value::Null) => None,
+        Some(Value::String(s)) => Some(AlarmIndex::from_name(s.trim()).ok_or_else(|| {
+            let names: Vec<&str> = AlarmIndex::ALL.iter().map(|i| i.name()).collect();
+            bad(
+                "index",
+                format!(
+                    "unknown index \"{s}\"; expected one of {}",
+                    names.join(", ")
+                ),
+            )
+        })?),
+        Some(v) => return Err(bad("index", format!("must be a string, got {}", kind(v)))),
+    };
+    let by = text(&o, "by")?;
+    let target = AlarmTarget { component, index };
+    Ok(match action.as_str() {
+        "acknowledge" => AlarmCommand::Acknowledge { target, by },
+        "unshelve" => AlarmCommand::Unshelve { target, by },
+        _ => {
+            let duration_h = match o.get("duration_h") {
+                None | Some(Value::Null) => {
+                    return Err(bad(
+                        "duration_h",
+                        "is missing: a shelve needs a duration in hours",
+                    ))
+                }
+                Some(Value::Number(n)) => n.as_f64().unwrap_or(f64::NAN),
+                Some(v) => {
+                    return Err(bad(
+                        "duration_h",
+                        format!("must be a number of hours, got {}", kind(v)),
+                    ))
+                }
+            };
+            if !(duration_h > 0.0 && duration_h <= MAX_SHELVE_H) {
+                return Err(bad(
+                    "duration_h",
+                    format!(
+                        "must be more than 0 and at most {MAX_SHELVE_H} hours, got {duration_h}"
+                    ),
+                ));
+            }
+            let reason = text(&o, "reason")?;
+            AlarmCommand::Shelve {
+                target,
+                duration_h,
+                by,
+                reason,
+            }
+        }
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn err(json: &str) -> String {
+        parse_command(json.as_bytes()).unwrap_err().to_string()
+    }
+
+    #[test]
+    fn parses_the_three_actions() {
+        let a = parse_command(br#"{"action":"acknowledge","component":"U2-SH3-OUTLET-LEG-A","index":"creep_life_fraction","by":"operator 7"}"#).unwrap();
+        assert_eq!(
+            a,
+            AlarmCommand::Acknowledge {
+                target: AlarmTarget {
+                    component: "U2-SH3-OUTLET-LEG-A".into(),
+                    index: Some(AlarmIndex::CreepLifeFraction)
+                },
+                by: "operator 7".into()
+            }
+        );
+        let s = parse_command(br#"{"action":"shelve","component":"C","index":"sensor_stale","duration_h":8,"by":"op","reason":"TC swap"}"#).unwrap();
+        assert_eq!(
+            s,
+            AlarmCommand::Shelve {
+                target: AlarmTarget {
+                    component: "C".into(),
+                    index: Some(AlarmIndex::SensorStale)
+                },
+                duration_h: 8.0,
+                by: "op".into(),
+                reason: "TC swap".into()
+            }
+        );
+        let u = parse_command(br#"{"action":"unshelve","component":"C","by":"op"}"#).unwrap();
+        assert_eq!(u.target().index, None);
+        assert_eq!(u.by(), "op");
+    }
+
+    #[test]
+    fn errors_name_the_field_and_the_problem() {
+        assert!(err("{not json").contains("not a valid JSON object"));
+        assert!(err("[1]").contains("expected a JSON object, got an array"));
+        assert!(err(r#"{"component":"C","by":"op"}"#).contains("\"action\": is missing"));
+        assert!(err(r#"{"action":"silence","component":"C","by":"op"}"#)
+            .contains("unknown action \"silence\""));
+        assert!(err(r#"{"action":"acknowledge","by":"op"}"#).contains("\"component\": is missing"));
+        assert!(err(r#"{"action":"acknowledge","component":" ","by":"op"}"#)
+            .contains("\"component\": is empty"));
+        assert!(err(r#"{"action":"acknowledge","component":"C"}"#).contains("\"by\": is missing"));
+        assert!(err(r#"{"action":"acknowledge","component":"C","by":7}"#)
+            .contains("\"by\": must be a string, got a number"));
+        let e = err(r#"{"action":"acknowledge","component":"C","index":"creep","by":"op"}"#);
+        assert!(
+            e.contains("\"index\": unknown index \"creep\"") && e.contains("creep_life_fraction"),
+            "{e}"
+        );
+        assert!(
+            err(r#"{"action":"shelve","component":"C","by":"op","reason":"r"}"#)
+                .contains("\"duration_h\": is missing")
+        );
+        assert!(err(
+            r#"{"action":"shelve","component":"C","by":"op","reason":"r","duration_h":"8"}"#
+        )
+        .contains("got a string"));
+        assert!(err(
+            r#"{"action":"shelve","component":"C","by":"op","reason":"r","duration_h":0}"#
+        )
+        .contains("more than 0"));
+        assert!(err(
+            r#"{"action":"shelve","component":"C","by":"op","reason":"r","duration_h":1000}"#
+        )
+        .contains("at most 720"));
+        assert!(
+            err(r#"{"action":"shelve","component":"C","by":"op","duration_h":8}"#)
+                .contains("\"reason\": is missing")
+        );
+        let e = err(r#"{"action":"shelve","component":"C","by":"op","reason":"r","duraton_h":8}"#);
+        assert!(e.contains("\"duraton_h\": is not a field of shelve"), "{e}");
+        assert!(
+            err(r#"{"action":"acknowledge","component":"C","by":"op","duration_h":8}"#)
+                .contains("\"duration_h\": is not a field of acknowledge")
+        );
+    }
+}

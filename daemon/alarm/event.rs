@@ -1,0 +1,145 @@
+//! Alarm events: what changed, in plain words, for the MQTT event topic
+//! (JSON) and the time-series database (`alarm_event` points).
+//!
+//! Every event carries [`crate::CAUTION`]: the levels it compares against
+//! are defaults or configuration, and only the plant's governing code and
+//! a responsible engineer can make them limits.
+
+use super::index::{AlarmIndex, Severity};
+use super::record::{AlarmRecord, AlarmState};
+use crate::lineproto::Point;
+use crate::report::rfc3339_ms;
+use serde::Serialize;
+
+/// What happened to an alarm.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Transition {
+    /// The condition became active (from normal or rtn_unacknowledged).
+    Activated,
+    /// A higher severity was reached while active; needs a new acknowledge.
+    Escalated,
+    /// A lower severity while still active (past the deadband); the
+    /// acknowledge state is kept.
+    SteppedDown,
+    /// The condition cleared (past the deadband).
+    Cleared,
+    /// An operator acknowledged.
+    Acknowledged,
+    /// An operator shelved the alarm.
+    Shelved,
+    /// An operator unshelved the alarm.
+    Unshelved,
+    /// The shelve time ran out.
+    ShelveExpired,
+}
+
+impl Transition {
+    /// Stable snake_case name.
+    pub fn name(self) -> &'static str {
+        match self {
+            Transition::Activated => "activated",
+            Transition::Escalated => "escalated",
+            Transition::SteppedDown => "stepped_down",
+            Transition::Cleared => "cleared",
+            Transition::Acknowledged => "acknowledged",
+            Transition::Shelved => "shelved",
+            Transition::Unshelved => "unshelved",
+            Transition::ShelveExpired => "shelve_expired",
+        }
+    }
+}
+
+/// One alarm event.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct AlarmEvent {
+    pub component: String,
+    pub unit: String,
+    pub index: AlarmIndex,
+    pub transition: Transition,
+    /// Severity concerned (the cleared one for `cleared`); `None` when no
+    /// severity applies (for example unshelving an alarm that is clear).
+    pub severity: Option<Severity>,
+    /// State after the event.
+    pub state: AlarmState,
+    /// Latest value in the index's unit; `None` when not finite (an
+    /// infinite projection).
+    pub value: Option<f64>,
+    /// Level of `severity`; `None` for conditions.
+    pub threshold: Option<f64>,
+    /// Event time, RFC 3339 UTC.
+    pub time: String,
+    pub time_ms: i64,
+    pub message: String,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub by: Option<String>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub reason: Option<String>,
+    /// End of the shelve, RFC 3339, for `shelved` events.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub shelved_until: Option<String>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub detail: Option<String>,
+    pub caution: &'static str,
+}
+
+impl AlarmEvent {
+    /// An event from a record as it stands after the transition.
+    pub(crate) fn of(
+        rec: &AlarmRecord,
+        transition: Transition,
+        severity: Option<Severity>,
+        threshold: Option<f64>,
+        time_ms: i64,
+        message: String,
+    ) -> AlarmEvent {
+        AlarmEvent {
+            component: rec.component.clone(),
+            unit: rec.unit.clone(),
+            index: rec.index,
+            transition,
+            severity,
+            state: rec.state,
+            value: rec.value.is_finite().then_some(rec.value),
+            threshold,
+            time: rfc3339_ms(time_ms),
+            time_ms,
+            message,
+            by: None,
+            reason: None,
+            shelved_until: None,
+            detail: rec.detail.clone(),
+            caution: crate::CAUTION,
+        }
+    }
+
+    /// The key of the alarm this event is about.
+    pub fn key(&self) -> String {
+        super::record::key(&self.component, self.index)
+    }
+
+    /// The event as one JSON object.
+    pub fn to_json(&self) -> String {
+        serde_json::to_string(self).expect("an alarm event always serialises")
+    }
+
+    /// The `alarm_event` database point: tags plant, unit, component,
+    /// index, severity, state; fields value, threshold, message, transition.
+    pub fn to_point(&self, plant: &str) -> Point {
+        let mut p = Point::new("alarm_event", self.time_ms.saturating_mul(1_000_000))
+            .tag("plant", plant)
+            .tag("unit", &self.unit)
+            .tag("component", &self.component)
+            .tag("index", self.index.name())
+            .tag("severity", self.severity.map_or("", |s| s.name()))
+            .tag("state", self.state.name());
+        if let Some(v) = self.value {
+            p = p.float("value", v);
+        }
+        if let Some(t) = self.threshold {
+            p = p.float("threshold", t);
+        }
+        p.string("message", &self.message)
+            .string("transition", self.transition.name())
+    }
+}

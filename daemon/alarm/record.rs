@@ -1,0 +1,128 @@
+//! One alarm's durable record: its ISA-18.2 state, what its condition
+//! implies now, and who acknowledged or shelved it.
+//!
+//! The record keeps two things apart: `condition`, what the latest value
+//! implies (kept up to date even while shelved), and `state`, what the
+//! operator sees. The state machine lives in [`super::book`]; this file only
+//! holds the data, serialisable so the store can keep it as JSON keyed by
+//! [`AlarmRecord::key`] and a restart resumes exactly where it stopped.
+
+use super::index::{AlarmIndex, Severity};
+use serde::{Deserialize, Serialize};
+
+/// ISA-18.2 alarm states.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum AlarmState {
+    /// Condition clear, nothing to acknowledge.
+    Normal,
+    /// Condition active, not yet acknowledged.
+    Unacknowledged,
+    /// Condition active, acknowledged.
+    Acknowledged,
+    /// Condition cleared before anyone acknowledged it.
+    RtnUnacknowledged,
+    /// Suppressed by an operator until a time or until unshelved.
+    Shelved,
+}
+
+impl AlarmState {
+    /// Stable snake_case name.
+    pub fn name(self) -> &'static str {
+        match self {
+            AlarmState::Normal => "normal",
+            AlarmState::Unacknowledged => "unacknowledged",
+            AlarmState::Acknowledged => "acknowledged",
+            AlarmState::RtnUnacknowledged => "rtn_unacknowledged",
+            AlarmState::Shelved => "shelved",
+        }
+    }
+
+    /// Whether an operator still has to acknowledge.
+    pub fn needs_acknowledge(self) -> bool {
+        matches!(
+            self,
+            AlarmState::Unacknowledged | AlarmState::RtnUnacknowledged
+        )
+    }
+}
+
+/// Who shelved an alarm, why and until when.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Shelve {
+    /// Event time (ms) the shelve ends.
+    pub until_ms: i64,
+    pub by: String,
+    pub reason: String,
+    /// Event time (ms) it was shelved.
+    pub since_ms: i64,
+}
+
+/// One alarm: a component and an index.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AlarmRecord {
+    pub component: String,
+    pub unit: String,
+    pub index: AlarmIndex,
+    pub state: AlarmState,
+    /// What the latest value implies after deadband (`None`: clear).
+    pub condition: Option<Severity>,
+    /// The severity last annunciated: while active the current one; in
+    /// `rtn_unacknowledged` the one that cleared unacknowledged.
+    pub severity: Option<Severity>,
+    /// Latest value (index unit; 1 or 0 for conditions).
+    #[serde(with = "crate::engine::serde_inf")]
+    pub value: f64,
+    /// Level of `severity`, if it has one (conditions have none).
+    pub threshold: Option<f64>,
+    /// Words from the caller for condition alarms (which tag, what fault).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub detail: Option<String>,
+    /// Event time (ms) the record entered its state.
+    pub since_ms: i64,
+    /// Event time (ms) of the latest evaluation or command.
+    pub updated_ms: i64,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub acknowledged_by: Option<String>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub acknowledged_ms: Option<i64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub shelve: Option<Shelve>,
+}
+
+impl AlarmRecord {
+    /// A record in `normal` that has not seen a value yet.
+    pub fn new(component: &str, unit: &str, index: AlarmIndex, time_ms: i64) -> AlarmRecord {
+        AlarmRecord {
+            component: component.to_string(),
+            unit: unit.to_string(),
+            index,
+            state: AlarmState::Normal,
+            condition: None,
+            severity: None,
+            value: f64::NAN,
+            threshold: None,
+            detail: None,
+            since_ms: time_ms,
+            updated_ms: time_ms,
+            acknowledged_by: None,
+            acknowledged_ms: None,
+            shelve: None,
+        }
+    }
+
+    /// The store key: `component/index`.
+    pub fn key(&self) -> String {
+        key(&self.component, self.index)
+    }
+
+    /// Whether the condition is active.
+    pub fn is_active(&self) -> bool {
+        self.condition.is_some()
+    }
+}
+
+/// The key of a component's index: `component/index`.
+pub fn key(component: &str, index: AlarmIndex) -> String {
+    format!("{component}/{}", index.name())
+}

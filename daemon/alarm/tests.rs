@@ -1,0 +1,781 @@
+//! The alarm book as a specification: every ISA-18.2 transition, deadband,
+//! escalation, the lower-is-worse index, shelving, errors, persistence and
+//! the caution on every message.
+
+use super::*;
+use crate::engine::plan::Levels;
+use crate::engine::ComponentState;
+use crate::settings::validate::{plan_settings, DEFAULT_HOURS_TO_CRITICAL, DEFAULT_LIFE_FRACTION};
+
+const C: &str = "U2-SH3-OUTLET-LEG-A";
+const U: &str = "U2";
+const LF: AlarmIndex = AlarmIndex::CreepLifeFraction;
+const H: i64 = 3_600_000;
+
+fn lf(book: &mut AlarmBook, value: f64, t: i64) -> Vec<AlarmEvent> {
+    book.evaluate(C, U, LF, value, &DEFAULT_LIFE_FRACTION, t)
+}
+
+fn state(book: &AlarmBook) -> AlarmState {
+    book.record(&format!("{C}/creep_life_fraction"))
+        .unwrap()
+        .state
+}
+
+fn one(events: Vec<AlarmEvent>) -> AlarmEvent {
+    assert_eq!(events.len(), 1, "{events:#?}");
+    events.into_iter().next().unwrap()
+}
+
+#[test]
+fn normal_to_unacknowledged_when_the_condition_becomes_active() {
+    let mut b = AlarmBook::new();
+    assert!(lf(&mut b, 0.2, 0).is_empty());
+    assert_eq!(state(&b), AlarmState::Normal);
+    let e = one(lf(&mut b, 0.35, H));
+    assert_eq!(
+        (e.transition, e.severity, e.state),
+        (
+            Transition::Activated,
+            Some(Severity::Advisory),
+            AlarmState::Unacknowledged
+        )
+    );
+    let mut b = AlarmBook::new();
+    let e = one(lf(&mut b, 0.512, H));
+    assert_eq!(
+        e.message,
+        "U2-SH3-OUTLET-LEG-A creep life fraction 0.512 reached the warning level 0.5"
+    );
+    assert_eq!((e.value, e.threshold), (Some(0.512), Some(0.5)));
+    assert_eq!(e.time, "1970-01-01T01:00:00.000Z");
+    assert_eq!(e.caution, crate::CAUTION);
+    // Same severity again: no event.
+    assert!(lf(&mut b, 0.52, 2 * H).is_empty());
+}
+
+#[test]
+fn acknowledge_then_clear_goes_back_to_normal() {
+    let mut b = AlarmBook::new();
+    lf(&mut b, 0.55, 0);
+    let e = one(b.acknowledge(C, Some(LF), "operator 7", H).unwrap());
+    assert_eq!(
+        (e.transition, e.state, e.by.as_deref()),
+        (
+            Transition::Acknowledged,
+            AlarmState::Acknowledged,
+            Some("operator 7")
+        )
+    );
+    assert!(
+        e.message.contains("acknowledged by operator 7"),
+        "{}",
+        e.message
+    );
+    // Acknowledging again is harmless.
+    assert!(b
+        .acknowledge(C, Some(LF), "operator 7", H)
+        .unwrap()
+        .is_empty());
+    let e = one(lf(&mut b, 0.1, 2 * H));
+    assert_eq!(
+        (e.transition, e.state, e.severity),
+        (
+            Transition::Cleared,
+            AlarmState::Normal,
+            Some(Severity::Warning)
+        )
+    );
+    assert!(
+        e.message.contains(
+            "is back below the warning level 0.5 by more than its deadband 0.01; cleared"
+        ),
+        "{}",
+        e.message
+    );
+    let r = b.record(&format!("{C}/creep_life_fraction")).unwrap();
+    assert_eq!((r.severity, r.condition), (None, None));
+}
+
+#[test]
+fn clearing_unacknowledged_waits_for_an_acknowledge() {
+    let mut b = AlarmBook::new();
+    lf(&mut b, 0.55, 0);
+    let e = one(lf(&mut b, 0.1, H));
+    assert_eq!(
+        (e.transition, e.state),
+        (Transition::Cleared, AlarmState::RtnUnacknowledged)
+    );
+    assert!(
+        e.message.ends_with("cleared, awaiting acknowledge"),
+        "{}",
+        e.message
+    );
+    assert_eq!(b.current(C).unacknowledged, 1);
+    let e = one(b.acknowledge(C, None, "op", 2 * H).unwrap());
+    assert_eq!(
+        (e.transition, e.state, e.severity),
+        (
+            Transition::Acknowledged,
+            AlarmState::Normal,
+            Some(Severity::Warning)
+        )
+    );
+    assert_eq!(state(&b), AlarmState::Normal);
+}
+
+#[test]
+fn returned_to_normal_reactivates_to_unacknowledged() {
+    let mut b = AlarmBook::new();
+    lf(&mut b, 0.35, 0);
+    lf(&mut b, 0.1, H);
+    assert_eq!(state(&b), AlarmState::RtnUnacknowledged);
+    let e = one(lf(&mut b, 0.36, 2 * H));
+    assert_eq!(
+        (e.transition, e.state),
+        (Transition::Activated, AlarmState::Unacknowledged)
+    );
+}
+
+#[test]
+fn escalation_reenters_unacknowledged() {
+    let mut b = AlarmBook::new();
+    lf(&mut b, 0.51, 0);
+    b.acknowledge(C, Some(LF), "op", H).unwrap();
+    let e = one(lf(&mut b, 0.71, 2 * H));
+    assert_eq!(
+        (e.transition, e.severity, e.state),
+        (
+            Transition::Escalated,
+            Some(Severity::Critical),
+            AlarmState::Unacknowledged
+        )
+    );
+    assert!(
+        e.message
+            .ends_with("reached the critical level 0.7 (was warning)"),
+        "{}",
+        e.message
+    );
+    let r = b.record(&format!("{C}/creep_life_fraction")).unwrap();
+    assert_eq!(r.acknowledged_by, None);
+    // Straight from unacknowledged too, skipping a level.
+    let mut b = AlarmBook::new();
+    lf(&mut b, 0.31, 0);
+    let e = one(lf(&mut b, 0.8, H));
+    assert_eq!(
+        (e.transition, e.severity),
+        (Transition::Escalated, Some(Severity::Critical))
+    );
+}
+
+#[test]
+fn stepping_down_keeps_the_acknowledge() {
+    let mut b = AlarmBook::new();
+    lf(&mut b, 0.75, 0);
+    b.acknowledge(C, Some(LF), "op", H).unwrap();
+    let e = one(lf(&mut b, 0.6, 2 * H));
+    assert_eq!(
+        (e.transition, e.severity, e.state),
+        (
+            Transition::SteppedDown,
+            Some(Severity::Warning),
+            AlarmState::Acknowledged
+        )
+    );
+    assert!(
+        e.message.contains("back below the critical level 0.7")
+            && e.message.ends_with("now at the warning level 0.5"),
+        "{}",
+        e.message
+    );
+}
+
+#[test]
+fn deadband_stops_chattering() {
+    let mut b = AlarmBook::new();
+    // Around the warning level 0.5, inside its 0.01 band once reached.
+    let seq = [
+        0.49, 0.501, 0.497, 0.502, 0.4915, 0.5, 0.495, 0.503, 0.492, 0.499,
+    ];
+    let n: usize = seq
+        .iter()
+        .enumerate()
+        .map(|(k, &v)| lf(&mut b, v, k as i64 * H).len())
+        .sum();
+    // 0.49 raises advisory, 0.501 escalates to warning; then nothing.
+    assert_eq!(n, 2);
+    // Past the band it steps down; back up it escalates again.
+    assert_eq!(
+        one(lf(&mut b, 0.489, 20 * H)).transition,
+        Transition::SteppedDown
+    );
+    assert_eq!(
+        one(lf(&mut b, 0.5, 21 * H)).transition,
+        Transition::Escalated
+    );
+    // Without a band every crossing would be an event.
+    let mut b = AlarmBook::new().with_config(AlarmConfig {
+        deadbands: [(
+            LF,
+            Deadband {
+                fraction: 0.0,
+                minimum: 0.0,
+            },
+        )]
+        .into(),
+        ..AlarmConfig::default()
+    });
+    let n: usize = seq
+        .iter()
+        .enumerate()
+        .map(|(k, &v)| lf(&mut b, v, k as i64 * H).len())
+        .sum();
+    assert_eq!(n, 9);
+}
+
+#[test]
+fn hours_to_critical_is_lower_is_worse() {
+    let mut b = AlarmBook::new();
+    let idx = AlarmIndex::HoursToCritical;
+    let mut ev = |v: f64, t: i64| b.evaluate(C, U, idx, v, &DEFAULT_HOURS_TO_CRITICAL, t);
+    assert!(ev(30_000.0, 0).is_empty());
+    let e = one(ev(17_000.0, H));
+    assert_eq!(
+        (e.transition, e.severity),
+        (Transition::Activated, Some(Severity::Warning))
+    );
+    assert_eq!(e.message, "U2-SH3-OUTLET-LEG-A projected hours to critical life fraction 17000 h fell to or below the warning level 17520 h");
+    assert_eq!(one(ev(8_000.0, 2 * H)).severity, Some(Severity::Critical));
+    // Within 2 % above 8760 h: still critical.
+    assert!(ev(8_900.0, 3 * H).is_empty());
+    let e = one(ev(9_000.0, 4 * H));
+    assert_eq!(
+        (e.transition, e.severity),
+        (Transition::SteppedDown, Some(Severity::Warning))
+    );
+    assert!(
+        e.message
+            .contains("back above the critical level 8760 h by more than its deadband 175.2 h"),
+        "{}",
+        e.message
+    );
+    assert!(ev(17_800.0, 5 * H).is_empty());
+    // Damage stopped: no projection, the alarm clears.
+    let e = one(ev(f64::INFINITY, 6 * H));
+    assert_eq!((e.transition, e.value), (Transition::Cleared, None));
+    assert!(e.message.contains("not projected"), "{}", e.message);
+}
+
+#[test]
+fn shelving_suppresses_and_expiry_restores() {
+    let mut b = AlarmBook::new();
+    lf(&mut b, 0.51, 0);
+    b.acknowledge(C, Some(LF), "op", H).unwrap();
+    let e = one(b
+        .shelve(C, Some(LF), 9 * H, "op", "thermocouple swap", H)
+        .unwrap());
+    assert_eq!(
+        (e.transition, e.state),
+        (Transition::Shelved, AlarmState::Shelved)
+    );
+    assert_eq!(
+        (e.by.as_deref(), e.reason.as_deref()),
+        (Some("op"), Some("thermocouple swap"))
+    );
+    assert_eq!(e.shelved_until.as_deref(), Some("1970-01-01T09:00:00.000Z"));
+    // No events while shelved, whatever the value does.
+    assert!(lf(&mut b, 0.75, 2 * H).is_empty());
+    assert!(lf(&mut b, 0.1, 3 * H).is_empty());
+    assert!(lf(&mut b, 0.72, 4 * H).is_empty());
+    assert!(b.acknowledge(C, Some(LF), "op", 4 * H).unwrap().is_empty());
+    assert!(b.tick(8 * H).is_empty());
+    assert_eq!(b.current(C).worst_severity, None);
+    assert_eq!(b.current(C).shelved, 1);
+    // Expiry: active, so unacknowledged at what the condition implies.
+    let e = one(b.tick(9 * H));
+    assert_eq!(
+        (e.transition, e.state, e.severity),
+        (
+            Transition::ShelveExpired,
+            AlarmState::Unacknowledged,
+            Some(Severity::Critical)
+        )
+    );
+    assert_eq!(e.threshold, Some(0.7));
+    assert!(b.tick(10 * H).is_empty());
+    assert_eq!(b.current(C).worst_severity, Some(Severity::Critical));
+}
+
+#[test]
+fn shelve_expiry_of_a_clear_alarm_is_normal_and_evaluation_expires_too() {
+    let mut b = AlarmBook::new();
+    lf(&mut b, 0.51, 0);
+    b.shelve(C, None, 2 * H, "op", "r", 0).unwrap();
+    assert!(lf(&mut b, 0.1, H).is_empty());
+    // The next evaluation after the end lifts the shelve first.
+    let ev = lf(&mut b, 0.1, 3 * H);
+    let e = one(ev);
+    assert_eq!(
+        (e.transition, e.state),
+        (Transition::ShelveExpired, AlarmState::Normal)
+    );
+    assert!(
+        e.message.ends_with("the condition is clear"),
+        "{}",
+        e.message
+    );
+}
+
+#[test]
+fn unshelve_by_command() {
+    let mut b = AlarmBook::new();
+    lf(&mut b, 0.31, 0);
+    b.shelve(
+        &format!("{C}/creep_life_fraction"),
+        None,
+        5 * H,
+        "op",
+        "r",
+        0,
+    )
+    .unwrap();
+    let e = one(b.unshelve(C, Some(LF), "op 2", H).unwrap());
+    assert_eq!(
+        (e.transition, e.state, e.by.as_deref()),
+        (
+            Transition::Unshelved,
+            AlarmState::Unacknowledged,
+            Some("op 2")
+        )
+    );
+    assert!(b.unshelve(C, Some(LF), "op 2", H).unwrap().is_empty());
+    // An alarm that had returned to normal unacknowledged comes back normal.
+    lf(&mut b, 0.1, 2 * H);
+    assert_eq!(state(&b), AlarmState::RtnUnacknowledged);
+    b.shelve(C, Some(LF), 3 * H, "op", "r", 2 * H).unwrap();
+    let r = b.record(&format!("{C}/creep_life_fraction")).unwrap();
+    assert_eq!((r.severity, r.threshold), (None, None));
+    let e = one(b.unshelve(C, Some(LF), "op", 2 * H).unwrap());
+    assert_eq!((e.state, e.severity), (AlarmState::Normal, None));
+    assert!(b.tick(6 * H).is_empty());
+}
+
+#[test]
+fn shelve_window_is_checked() {
+    let mut b = AlarmBook::new();
+    lf(&mut b, 0.31, 0);
+    let e = b.shelve(C, Some(LF), H, "op", "r", H).unwrap_err();
+    assert!(matches!(e, AlarmError::ShelveNotAhead { .. }), "{e}");
+    let e = b.shelve(C, Some(LF), 1_000 * H, "op", "r", 0).unwrap_err();
+    assert!(e.to_string().contains("at most 720 h"), "{e}");
+}
+
+#[test]
+fn unknown_alarms_are_errors_that_name_them() {
+    let mut b = AlarmBook::new();
+    lf(&mut b, 0.1, 0);
+    let e = b
+        .acknowledge(C, Some(AlarmIndex::WearIndex), "op", 0)
+        .unwrap_err()
+        .to_string();
+    assert!(
+        e.contains("no alarm \"U2-SH3-OUTLET-LEG-A/wear_index\"")
+            && e.contains("U2-SH3-OUTLET-LEG-A/creep_life_fraction"),
+        "{e}"
+    );
+    let e = b
+        .acknowledge("U9-NOPE", None, "op", 0)
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("\"U9-NOPE\""), "{e}");
+    let e = b
+        .shelve("U9-NOPE", Some(LF), H, "op", "r", 0)
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("\"U9-NOPE/creep_life_fraction\""), "{e}");
+    assert!(b.unshelve("U9-NOPE", None, "op", 0).is_err());
+}
+
+#[test]
+fn nan_changes_nothing() {
+    let mut b = AlarmBook::new();
+    lf(&mut b, 0.51, 0);
+    assert!(lf(&mut b, f64::NAN, H).is_empty());
+    assert_eq!(
+        b.record(&format!("{C}/creep_life_fraction")).unwrap().value,
+        0.51
+    );
+}
+
+#[test]
+fn conditions_follow_the_same_states() {
+    let mut b = AlarmBook::new();
+    let idx = AlarmIndex::SensorStale;
+    assert!(b.evaluate_condition(C, U, idx, false, "", 0).is_empty());
+    let e = one(b.evaluate_condition(
+        C,
+        U,
+        idx,
+        true,
+        "tag TT-301 has had no sample for 20 min",
+        H,
+    ));
+    assert_eq!(
+        (e.severity, e.state, e.threshold),
+        (Some(Severity::Warning), AlarmState::Unacknowledged, None)
+    );
+    assert_eq!(
+        e.message,
+        "U2-SH3-OUTLET-LEG-A sensor stale: tag TT-301 has had no sample for 20 min"
+    );
+    assert!(b.evaluate_condition(C, U, idx, true, "", 2 * H).is_empty());
+    let e = one(b.evaluate_condition(C, U, idx, false, "", 3 * H));
+    assert_eq!(
+        (e.transition, e.state),
+        (Transition::Cleared, AlarmState::RtnUnacknowledged)
+    );
+    assert!(
+        e.message
+            .starts_with("U2-SH3-OUTLET-LEG-A sensor stale cleared, awaiting acknowledge"),
+        "{}",
+        e.message
+    );
+    let s = one(b.evaluate_condition(
+        "service",
+        "",
+        AlarmIndex::ServiceHealth,
+        true,
+        "outbox over quota",
+        0,
+    ));
+    assert_eq!(s.key(), "service/service_health");
+}
+
+#[test]
+fn book_round_trips_through_json_and_records() {
+    let config = AlarmConfig {
+        deadbands: [(
+            AlarmIndex::HoursToCritical,
+            Deadband {
+                fraction: 0.05,
+                minimum: 24.0,
+            },
+        )]
+        .into(),
+        ..AlarmConfig::default()
+    };
+    let mut b = AlarmBook::new().with_config(config.clone());
+    lf(&mut b, 0.75, 0);
+    b.acknowledge(C, Some(LF), "op", H).unwrap();
+    b.evaluate(
+        C,
+        U,
+        AlarmIndex::HoursToCritical,
+        f64::INFINITY,
+        &DEFAULT_HOURS_TO_CRITICAL,
+        H,
+    );
+    b.evaluate_condition(C, U, AlarmIndex::SensorBadQuality, true, "quality 0x00", H);
+    b.shelve(
+        C,
+        Some(AlarmIndex::SensorBadQuality),
+        5 * H,
+        "op",
+        "known fault",
+        H,
+    )
+    .unwrap();
+    let json = serde_json::to_string(&b).unwrap();
+    let back: AlarmBook = serde_json::from_str(&json).unwrap();
+    assert_eq!(serde_json::to_string(&back).unwrap(), json);
+    assert!(back
+        .record(&format!("{C}/hours_to_critical"))
+        .unwrap()
+        .value
+        .is_infinite());
+    // Record by record, as the store keeps them.
+    let stored: Vec<(String, String)> = b
+        .records()
+        .map(|r| (r.key(), serde_json::to_string(r).unwrap()))
+        .collect();
+    assert_eq!(stored.len(), 3);
+    assert_eq!(back.config(), &config);
+    let restored = AlarmBook::from_records(
+        stored
+            .iter()
+            .map(|(_, j)| serde_json::from_str::<AlarmRecord>(j).unwrap()),
+    );
+    let restored = restored.with_config(config);
+    assert_eq!(serde_json::to_string(&restored).unwrap(), json);
+    // And it carries on where it left off.
+    let mut restored = restored;
+    assert_eq!(
+        one(restored.tick(5 * H)).transition,
+        Transition::ShelveExpired
+    );
+    assert!(lf(&mut restored, 0.76, 6 * H).is_empty());
+}
+
+#[test]
+fn summary_of_a_component() {
+    let mut b = AlarmBook::new();
+    lf(&mut b, 0.55, 0);
+    b.evaluate_condition(C, U, AlarmIndex::SensorStale, true, "TT", 0);
+    b.evaluate(
+        C,
+        U,
+        AlarmIndex::WearIndex,
+        0.9,
+        &Levels {
+            advisory: None,
+            warning: Some(0.5),
+            critical: Some(0.8),
+        },
+        0,
+    );
+    b.shelve(C, Some(AlarmIndex::WearIndex), H, "op", "r", 0)
+        .unwrap();
+    b.acknowledge(C, Some(AlarmIndex::SensorStale), "op", 0)
+        .unwrap();
+    let s = b.current(C);
+    assert_eq!(
+        (s.worst_severity, s.active, s.unacknowledged, s.shelved),
+        (Some(Severity::Warning), 2, 1, 1)
+    );
+    assert_eq!(s.unit, "U2");
+    assert_eq!(s.alarms.len(), 3);
+    let j: serde_json::Value = serde_json::from_str(&s.to_json()).unwrap();
+    assert_eq!(j["caution"], crate::CAUTION);
+    assert_eq!(j["worst_severity"], "warning");
+    assert_eq!(b.components(), vec![C]);
+    assert!(b.current("other").alarms.is_empty());
+}
+
+#[test]
+fn commands_drive_the_book() {
+    let mut b = AlarmBook::new();
+    lf(&mut b, 0.55, 0);
+    let cmd = parse_command(br#"{"action":"shelve","component":"U2-SH3-OUTLET-LEG-A","index":"creep_life_fraction","duration_h":8,"by":"operator 7","reason":"probe swap"}"#).unwrap();
+    let e = one(b.apply(&cmd, H).unwrap());
+    assert_eq!(e.shelved_until.as_deref(), Some("1970-01-01T09:00:00.000Z"));
+    let cmd = parse_command(br#"{"action":"unshelve","component":"U2-SH3-OUTLET-LEG-A/creep_life_fraction","by":"operator 7"}"#).unwrap();
+    assert_eq!(
+        one(b.apply(&cmd, 2 * H).unwrap()).state,
+        AlarmState::Unacknowledged
+    );
+    let cmd = parse_command(
+        br#"{"action":"acknowledge","component":"U2-SH3-OUTLET-LEG-A","by":"operator 7"}"#,
+    )
+    .unwrap();
+    assert_eq!(
+        one(b.apply(&cmd, 3 * H).unwrap()).state,
+        AlarmState::Acknowledged
+    );
+    let cmd = parse_command(br#"{"action":"acknowledge","component":"U2-OTHER","index":"creep_strain","by":"operator 7"}"#).unwrap();
+    assert!(b
+        .apply(&cmd, 3 * H)
+        .unwrap_err()
+        .to_string()
+        .contains("U2-OTHER/creep_strain"));
+}
+
+#[test]
+fn every_event_carries_the_caution() {
+    let mut b = AlarmBook::new();
+    let mut all = vec![];
+    all.extend(lf(&mut b, 0.35, 0));
+    all.extend(lf(&mut b, 0.75, H));
+    all.extend(b.acknowledge(C, None, "op", H).unwrap());
+    all.extend(lf(&mut b, 0.6, 2 * H));
+    all.extend(lf(&mut b, 0.1, 3 * H));
+    all.extend(lf(&mut b, 0.35, 4 * H));
+    all.extend(b.shelve(C, None, 6 * H, "op", "r", 4 * H).unwrap());
+    all.extend(b.unshelve(C, None, "op", 5 * H).unwrap());
+    all.extend(b.shelve(C, None, 6 * H, "op", "r", 5 * H).unwrap());
+    all.extend(b.tick(7 * H));
+    all.extend(b.evaluate_condition(
+        C,
+        U,
+        AlarmIndex::SensorOutOfRange,
+        true,
+        "TT above 900 degC",
+        7 * H,
+    ));
+    let kinds: std::collections::BTreeSet<&str> = all.iter().map(|e| e.transition.name()).collect();
+    assert_eq!(kinds.len(), 8, "{kinds:?}");
+    for e in &all {
+        let j: serde_json::Value = serde_json::from_str(&e.to_json()).unwrap();
+        assert_eq!(j["caution"], crate::CAUTION, "{}", e.to_json());
+        assert!(j["message"].as_str().unwrap().starts_with(C));
+        assert_eq!(j["time_ms"], e.time_ms);
+    }
+}
+
+#[test]
+fn event_as_a_database_point() {
+    let mut b = AlarmBook::new();
+    let e = one(lf(&mut b, 0.512, 1_700_000_000_000));
+    let p = e.to_point("North Works");
+    assert_eq!(p.measurement, "alarm_event");
+    assert_eq!(p.time_ns, 1_700_000_000_000_000_000);
+    let tags: Vec<(&str, &str)> = p
+        .tags
+        .iter()
+        .map(|(k, v)| (k.as_str(), v.as_str()))
+        .collect();
+    assert_eq!(
+        tags,
+        [
+            ("plant", "North Works"),
+            ("unit", U),
+            ("component", C),
+            ("index", "creep_life_fraction"),
+            ("severity", "warning"),
+            ("state", "unacknowledged")
+        ]
+    );
+    let line = p.to_line().unwrap();
+    assert!(line.contains("value=0.512,threshold=0.5,message=\"U2-SH3-OUTLET-LEG-A creep life fraction 0.512 reached the warning level 0.5\""), "{line}");
+}
+
+const CONFIG: &str = r#"
+[plant]
+name = "Test Works"
+
+[[material]]
+grade = "TESTSTEEL"
+melting_point_k = { value = 1780.0, source = "synthetic" }
+creep_threshold_k = { value = 700.0, source = "synthetic" }
+hardness_hv = { value = 200.0, source = "synthetic" }
+[material.larson_miller]
+constant_c = 20.0
+coefficients = [28000.0, -1500.0, -800.0]
+stress_range_mpa = [20.0, 300.0]
+temperature_range_k = [723.0, 923.0]
+minimum = { rule = "stress_factor", factor = 0.8 }
+source = "synthetic"
+[material.norton]
+a_per_h = 1.0e10
+n = 5.0
+q_j_per_mol = 300000.0
+source = "synthetic"
+
+[[tag]]
+name = "TT"
+unit = "degC"
+[[tag]]
+name = "PT"
+unit = "bar"
+[[tag]]
+name = "LOAD"
+unit = "N"
+[[tag]]
+name = "SLIP"
+unit = "um"
+
+[[component]]
+name = "TUBE"
+unit = "U1"
+kind = "tube"
+material = "TESTSTEEL"
+design_temperature = { value = 560, unit = "degC" }
+design_pressure = { value = 180, unit = "bar" }
+metal_temperature = "TT"
+pressure = "PT"
+[component.geometry]
+outside_diameter = { value = 50.8, unit = "mm" }
+wall = { value = 6.0, unit = "mm" }
+
+[[component]]
+name = "SUPPORT"
+unit = "U1"
+kind = "wear_contact"
+material = "TESTSTEEL"
+[component.wear]
+model = "fretting"
+normal_load = "LOAD"
+slip_amplitude = "SLIP"
+frequency = { value = 20, unit = "Hz" }
+wear_coefficient = 1.0e-8
+contact_area_mm2 = 40.0
+allowable_depth = { value = 1.0, unit = "mm" }
+"#;
+
+#[test]
+fn component_evaluation_runs_the_indices_that_apply() {
+    let plan = plan_settings("test", toml::from_str(CONFIG).unwrap())
+        .unwrap()
+        .plan;
+    let tube = plan.components.iter().find(|c| c.name == "TUBE").unwrap();
+    let support = plan
+        .components
+        .iter()
+        .find(|c| c.name == "SUPPORT")
+        .unwrap();
+    let mut b = AlarmBook::new();
+
+    let mut st = ComponentState::new(tube);
+    st.integrated_to_ms = Some(0);
+    st.life_fraction = 0.55;
+    st.recent_life_fraction_rate_per_h = 0.15 / 10_000.0; // 10 000 h to 0.7
+    st.creep_strain = 0.001;
+    st.now.metal_temperature_k = tube.design_temperature_k.unwrap() + 3.0;
+    let ev = b.evaluate_component(tube, &st, H);
+    let mut got: Vec<(&str, Option<Severity>)> =
+        ev.iter().map(|e| (e.index.name(), e.severity)).collect();
+    got.sort();
+    assert_eq!(
+        got,
+        [
+            ("creep_life_fraction", Some(Severity::Warning)),
+            ("hours_to_critical", Some(Severity::Warning)),
+            ("metal_temperature_over_design", Some(Severity::Warning)),
+        ]
+    );
+    let keys: Vec<String> = b.records().map(|r| r.key()).collect();
+    assert_eq!(
+        keys,
+        [
+            "TUBE/creep_life_fraction",
+            "TUBE/creep_strain",
+            "TUBE/hours_to_critical",
+            "TUBE/metal_temperature_over_design"
+        ]
+    );
+    let hours = b.record("TUBE/hours_to_critical").unwrap().value;
+    assert!((hours - 10_000.0).abs() < 1e-6, "{hours}");
+
+    // An unmonitored temperature leaves the over-design alarm as it was.
+    st.now.unmonitored = true;
+    st.now.metal_temperature_k = 0.0;
+    assert!(b.evaluate_component(tube, &st, 2 * H).is_empty());
+
+    let mut st = ComponentState::new(support);
+    st.wear_depth_mm = 0.85;
+    let e = one(b.evaluate_component(support, &st, H));
+    assert_eq!(
+        (e.index, e.severity),
+        (AlarmIndex::WearIndex, Some(Severity::Critical))
+    );
+    assert!(b.record("SUPPORT/creep_life_fraction").is_none());
+
+    // Book-wide damage-rate levels switch that index on.
+    let mut b = AlarmBook::new().with_config(AlarmConfig {
+        damage_rate: Levels {
+            advisory: None,
+            warning: Some(1e-5),
+            critical: None,
+        },
+        ..AlarmConfig::default()
+    });
+    let mut st = ComponentState::new(tube);
+    st.recent_life_fraction_rate_per_h = 2e-5;
+    let ev = b.evaluate_component(tube, &st, H);
+    assert!(
+        ev.iter().any(|e| e.index == AlarmIndex::DamageRate
+            && e.message
+                .contains("2e-5 /h reached the warning level 1e-5 /h")),
+        "{ev:#?}"
+    );
+}

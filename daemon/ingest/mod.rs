@@ -1,0 +1,252 @@
+//! MQTT ingest: broker settings, the connection options, and the task that
+//! polls the rumqttc event loop and hands every tag message to the ledger.
+//!
+//! Sessions are persistent (clean session off) and subscriptions QoS 1 with
+//! manual acknowledgements: this task never acknowledges anything; the
+//! ledger acknowledges a message only after the transaction holding its
+//! effect has committed. If the ledger falls behind, the hand-over channel
+//! fills, this task stops reading, and the broker keeps the backlog.
+
+pub mod decode;
+
+use decode::{PayloadSettings, TopicTemplate};
+use rumqttc::{AsyncClient, Event, EventLoop, LastWill, MqttOptions, Packet, Publish, QoS, TlsConfiguration, Transport};
+use serde::Deserialize;
+use std::path::PathBuf;
+use std::time::Duration;
+use tokio::sync::{broadcast, mpsc};
+
+/// TLS settings of the broker connection.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TlsSettings {
+    /// PEM file of the certificate authority that signed the broker's certificate.
+    pub ca_file: PathBuf,
+    /// PEM client certificate and key, for brokers that require them.
+    #[serde(default)]
+    pub client_cert_file: Option<PathBuf>,
+    #[serde(default)]
+    pub client_key_file: Option<PathBuf>,
+}
+
+/// One subscription: a topic template and how its payloads look.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SubscriptionSettings {
+    /// Topic template, for example `brackenmoor/{unit}/{tag}`.
+    pub topic: String,
+    /// Tag name built from the captures (default `{tag}`).
+    #[serde(default = "default_tag_template")]
+    pub tag: String,
+    #[serde(default)]
+    pub payload: PayloadSettings,
+}
+
+fn default_tag_template() -> String {
+    "{tag}".into()
+}
+
+/// The `[mqtt]` section.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct MqttSettings {
+    #[serde(default = "default_host")]
+    pub host: String,
+    #[serde(default = "default_port")]
+    pub port: u16,
+    /// Stable client id: the broker keeps the session (and the backlog) under it.
+    #[serde(default = "default_client_id")]
+    pub client_id: String,
+    #[serde(default = "default_keep_alive")]
+    pub keep_alive_s: u64,
+    #[serde(default)]
+    pub username: Option<String>,
+    /// Name of an environment variable holding the password.
+    #[serde(default)]
+    pub password_env: Option<String>,
+    /// File holding the password (trailing whitespace trimmed).
+    #[serde(default)]
+    pub password_file: Option<PathBuf>,
+    #[serde(default)]
+    pub tls: Option<TlsSettings>,
+    /// Tag subscriptions.
+    #[serde(default, rename = "subscription")]
+    pub subscriptions: Vec<SubscriptionSettings>,
+    /// Prefix of lifeledger's own topics (status, alarms, commands).
+    #[serde(default = "default_prefix")]
+    pub topic_prefix: String,
+    /// Reconnect backoff bounds, seconds.
+    #[serde(default = "default_backoff_min")]
+    pub reconnect_min_s: f64,
+    #[serde(default = "default_backoff_max")]
+    pub reconnect_max_s: f64,
+}
+
+fn default_host() -> String {
+    "127.0.0.1".into()
+}
+fn default_port() -> u16 {
+    1883
+}
+fn default_client_id() -> String {
+    "lifeledger".into()
+}
+fn default_keep_alive() -> u64 {
+    30
+}
+fn default_prefix() -> String {
+    "lifeledger".into()
+}
+fn default_backoff_min() -> f64 {
+    0.5
+}
+fn default_backoff_max() -> f64 {
+    30.0
+}
+
+impl MqttSettings {
+    /// Topic of the retained online/offline status (also the last will).
+    pub fn status_topic(&self) -> String {
+        format!("{}/status", self.topic_prefix)
+    }
+    /// Topic of alarm events.
+    pub fn alarm_event_topic(&self) -> String {
+        format!("{}/alarms/events", self.topic_prefix)
+    }
+    /// Retained current-state topic of a component.
+    pub fn alarm_state_topic(&self, component: &str) -> String {
+        format!("{}/alarms/state/{}", self.topic_prefix, component.replace(['/', '+', '#'], "_"))
+    }
+    /// Command topic (acknowledge, shelve, unshelve).
+    pub fn command_topic(&self) -> String {
+        format!("{}/commands", self.topic_prefix)
+    }
+
+    /// The password, from the environment or a file; never logged.
+    pub fn password(&self) -> Result<Option<String>, String> {
+        if let Some(var) = &self.password_env {
+            return std::env::var(var).map(Some).map_err(|_| format!("[mqtt] password_env: environment variable {var} is not set"));
+        }
+        if let Some(f) = &self.password_file {
+            return std::fs::read_to_string(f)
+                .map(|s| Some(s.trim_end().to_string()))
+                .map_err(|e| format!("[mqtt] password_file {}: {e}", f.display()));
+        }
+        Ok(None)
+    }
+
+    /// Compiled topic templates, in order.
+    pub fn templates(&self) -> Result<Vec<(TopicTemplate, PayloadSettings)>, String> {
+        self.subscriptions
+            .iter()
+            .enumerate()
+            .map(|(i, s)| {
+                TopicTemplate::new(&s.topic, &s.tag)
+                    .map(|t| (t, s.payload.clone()))
+                    .map_err(|e| format!("[[mqtt.subscription]] #{}: {e}", i + 1))
+            })
+            .collect()
+    }
+
+    /// rumqttc options: persistent session, manual acks, last will.
+    pub fn options(&self) -> Result<MqttOptions, String> {
+        let mut o = MqttOptions::new(&self.client_id, &self.host, self.port);
+        o.set_keep_alive(Duration::from_secs(self.keep_alive_s.max(5)));
+        o.set_clean_session(false);
+        o.set_manual_acks(true);
+        o.set_request_channel_capacity(4096);
+        o.set_inflight(1000);
+        o.set_max_packet_size(1 << 20, 1 << 20);
+        o.set_last_will(LastWill::new(self.status_topic(), offline_payload(), QoS::AtLeastOnce, true));
+        if let Some(user) = &self.username {
+            o.set_credentials(user, self.password()?.unwrap_or_default());
+        }
+        if let Some(t) = &self.tls {
+            let read = |p: &PathBuf, key: &str| std::fs::read(p).map_err(|e| format!("[mqtt.tls] {key} {}: {e}", p.display()));
+            let ca = read(&t.ca_file, "ca_file")?;
+            let client_auth = match (&t.client_cert_file, &t.client_key_file) {
+                (Some(c), Some(k)) => Some((read(c, "client_cert_file")?, read(k, "client_key_file")?)),
+                (None, None) => None,
+                _ => return Err("[mqtt.tls] client_cert_file and client_key_file go together".into()),
+            };
+            o.set_transport(Transport::Tls(TlsConfiguration::Simple { ca, alpn: None, client_auth }));
+        }
+        Ok(o)
+    }
+}
+
+/// Retained status payloads.
+pub fn online_payload() -> Vec<u8> {
+    br#"{"status":"online"}"#.to_vec()
+}
+/// Last-will payload.
+pub fn offline_payload() -> Vec<u8> {
+    br#"{"status":"offline"}"#.to_vec()
+}
+
+/// What the ingest task hands to the ledger.
+#[derive(Debug)]
+pub enum Inbound {
+    /// A message (tag or command), with its receive time (ms since epoch).
+    Message { publish: Publish, received_ms: i64 },
+    /// Connection state changed.
+    Connection { connected: bool },
+}
+
+/// Wall-clock now in ms since the epoch (shell only; the engine never reads clocks).
+pub fn now_ms() -> i64 {
+    std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map(|d| d.as_millis() as i64).unwrap_or(0)
+}
+
+/// Poll the event loop until shutdown: subscribe on every connection
+/// without a kept session, forward publishes, reconnect with exponential
+/// backoff.
+pub async fn run_event_loop(
+    settings: MqttSettings,
+    client: AsyncClient,
+    mut eventloop: EventLoop,
+    filters: Vec<String>,
+    to_ledger: mpsc::Sender<Inbound>,
+    mut shutdown: broadcast::Receiver<()>,
+) {
+    let mut delay = settings.reconnect_min_s;
+    loop {
+        let ev = tokio::select! {
+            ev = eventloop.poll() => ev,
+            _ = shutdown.recv() => break,
+        };
+        match ev {
+            Ok(Event::Incoming(Packet::ConnAck(ack))) => {
+                delay = settings.reconnect_min_s;
+                tracing::info!(session_present = ack.session_present, "connected to MQTT broker {}:{}", settings.host, settings.port);
+                // Subscriptions live in the broker's session; renew them anyway
+                // (harmless when present, needed when the broker lost the session).
+                for f in &filters {
+                    if let Err(e) = client.try_subscribe(f, QoS::AtLeastOnce) {
+                        tracing::error!("subscribe {f}: {e}");
+                    }
+                }
+                let _ = client.try_publish(settings.status_topic(), QoS::AtLeastOnce, true, online_payload());
+                let _ = to_ledger.send(Inbound::Connection { connected: true }).await;
+            }
+            Ok(Event::Incoming(Packet::Publish(p))) => {
+                let msg = Inbound::Message { publish: p, received_ms: now_ms() };
+                // After the ledger has closed, intake is stopped: the
+                // message stays unacknowledged and the broker redelivers it
+                // to the next session. Keep polling so the last
+                // acknowledgements still go out.
+                let _ = to_ledger.send(msg).await;
+            }
+            Ok(_) => {}
+            Err(e) => {
+                tracing::warn!("MQTT connection to {}:{} lost or refused: {e}; retrying in {delay:.1} s", settings.host, settings.port);
+                let _ = to_ledger.send(Inbound::Connection { connected: false }).await;
+                tokio::select! {
+                    _ = tokio::time::sleep(Duration::from_secs_f64(delay)) => {}
+                    _ = shutdown.recv() => break,
+                }
+                delay = (delay * 2.0).min(settings.reconnect_max_s);
+            }
+        }
+    }
+}

@@ -1,0 +1,662 @@
+//! The ledger thread: the one owner of the engine, the alarm book and the
+//! store's write connection.
+//!
+//! It takes messages from the ingest task, decodes and integrates them,
+//! and group-commits: whenever its queue runs dry (or a batch is full) it
+//! writes, in one transaction, the changed component ledgers, the tag
+//! cursors, the alarm records, the counters and the new outbox points; only
+//! then does it acknowledge the MQTT messages of the batch and publish the
+//! alarm messages. A crash at any instant therefore loses nothing that was
+//! acknowledged and, because cursors commit with the ledgers, counts nothing
+//! twice when the broker redelivers.
+
+use super::settings::ServiceSettings;
+use super::snapshot::{ServiceCounters, Snapshot};
+use crate::alarm::{parse_command, AlarmBook, AlarmEvent, AlarmIndex, AlarmRecord};
+use crate::engine::{ComponentState, Engine, EngineState, Quality, Rejection, Sample, TagState};
+use crate::ingest::decode::{decode_payload, PayloadSettings, TopicTemplate};
+use crate::ingest::{now_ms, Inbound};
+use crate::replay::{tag_index, TagIndex};
+use crate::report::{component_point, rfc3339_ms, threshold_points, ComponentReport};
+use crate::settings::LoadedConfig;
+use crate::store::{Commit, Store};
+use rumqttc::{AsyncClient, Publish, QoS};
+use std::collections::{BTreeMap, BTreeSet, HashMap};
+use std::sync::Arc;
+use std::time::{Duration, Instant};
+use tokio::sync::{mpsc, watch};
+
+/// Control messages from the main task.
+#[derive(Debug)]
+pub enum Control {
+    /// Replace the configuration, keeping every ledger.
+    Reload(Box<LoadedConfig>, Box<ServiceSettings>),
+    /// Stop taking messages, commit, acknowledge, and return.
+    Stop,
+}
+
+/// Rate-limited warnings: at most one line per reason every 10 s, with a
+/// count of what was suppressed.
+struct RateLimitedLog {
+    last: HashMap<&'static str, (Instant, u64)>,
+}
+
+impl RateLimitedLog {
+    fn warn(&mut self, reason: &'static str, msg: impl FnOnce() -> String) {
+        let now = Instant::now();
+        let e = self.last.entry(reason).or_insert((now - Duration::from_secs(3600), 0));
+        if now.duration_since(e.0) >= Duration::from_secs(10) {
+            let suppressed = e.1;
+            tracing::warn!(reason, suppressed, "{}", msg());
+            *e = (now, 0);
+        } else {
+            e.1 += 1;
+        }
+    }
+}
+
+/// The ledger: engine, alarms, store and the batch being built.
+pub struct Ledger {
+    cfg: Arc<LoadedConfig>,
+    service: ServiceSettings,
+    engine: Engine,
+    book: AlarmBook,
+    store: Store,
+    client: AsyncClient,
+    templates: Vec<(TopicTemplate, PayloadSettings)>,
+    index: TagIndex,
+    command_topic: String,
+    /// Messages of the open batch, acknowledged after the commit.
+    pending: Vec<Publish>,
+    pending_samples: usize,
+    dirty_tags: BTreeSet<usize>,
+    dirty_alarms: BTreeSet<String>,
+    events: Vec<AlarmEvent>,
+    next_series_ms: Vec<i64>,
+    /// Newest event time seen on any tag.
+    newest_ms: Option<i64>,
+    /// Per tag: (out of range now, bad quality now).
+    sensor: Vec<(bool, bool)>,
+    retired: Vec<(String, ComponentState)>,
+    retired_tags: Vec<(String, TagState)>,
+    counters: ServiceCounters,
+    log: RateLimitedLog,
+    snapshot_tx: watch::Sender<Arc<Snapshot>>,
+    last_snapshot: Instant,
+    last_health: Instant,
+    started: String,
+    mqtt_connected: bool,
+    outbox: crate::store::OutboxStats,
+    holding: bool,
+    /// Outbox lines not tied to a component change (thresholds, health).
+    extra_outbox: Vec<String>,
+}
+
+fn quota(s: &ServiceSettings) -> u64 {
+    s.database.as_ref().map_or(u64::MAX, |d| d.outbox_quota_bytes)
+}
+
+impl Ledger {
+    /// Open the ledger: load every stored ledger, cursor and alarm record.
+    pub fn open(
+        cfg: LoadedConfig,
+        service: ServiceSettings,
+        client: AsyncClient,
+        snapshot_tx: watch::Sender<Arc<Snapshot>>,
+    ) -> anyhow::Result<Ledger> {
+        let store = Store::open(&service.store.path)?;
+        let loaded = store.load()?;
+        let mut engine = Engine::new(cfg.plan.clone());
+        let parse = |what: &str, name: &str, json: &str| -> anyhow::Result<()> {
+            let _ = (what, name, json);
+            Ok(())
+        };
+        let mut tags = vec![];
+        for (name, json) in &loaded.tags {
+            parse("tag", name, json)?;
+            let t: TagState = serde_json::from_str(json).map_err(|e| anyhow::anyhow!("ledger {}: tag {name}: {e}", service.store.path.display()))?;
+            tags.push((name.clone(), t));
+        }
+        let mut components = vec![];
+        for (name, json) in &loaded.components {
+            let c: ComponentState = serde_json::from_str(json)
+                .map_err(|e| anyhow::anyhow!("ledger {}: component {name}: {e}", service.store.path.display()))?;
+            components.push((name.clone(), c));
+        }
+        let mut counters = crate::engine::Counters::default();
+        let mut svc = ServiceCounters::default();
+        for (k, json) in &loaded.meta {
+            match k.as_str() {
+                "engine_counters" => counters = serde_json::from_str(json).unwrap_or_default(),
+                "decode_rejected" => svc.decode_rejected = serde_json::from_str(json).unwrap_or_default(),
+                _ => {}
+            }
+        }
+        let left = engine.import_state(EngineState { tags, components, counters });
+        let mut records = vec![];
+        for (key, json) in &loaded.alarms {
+            match serde_json::from_str::<AlarmRecord>(json) {
+                Ok(r) => records.push(r),
+                Err(e) => tracing::error!("ledger {}: alarm record {key} unreadable ({e}); it starts afresh", service.store.path.display()),
+            }
+        }
+        let book = AlarmBook::from_records(records).with_config(service.alarms.clone());
+        let templates = service.mqtt.templates().map_err(|e| anyhow::anyhow!(e))?;
+        let index = tag_index(&engine);
+        let ntags = engine.plan().tags.len();
+        let ncomp = engine.plan().components.len();
+        let newest_ms = engine.tags().iter().filter_map(|t| t.cursor_ms).max();
+        let stats = store.outbox_stats()?;
+        tracing::info!(
+            components = ncomp,
+            tags = ntags,
+            stored_components = loaded.components.len(),
+            outbox_lines = stats.lines,
+            "ledger {} opened",
+            service.store.path.display()
+        );
+        let mut l = Ledger {
+            command_topic: service.mqtt.command_topic(),
+            cfg: Arc::new(cfg),
+            engine,
+            book,
+            store,
+            client,
+            templates,
+            index,
+            pending: vec![],
+            pending_samples: 0,
+            dirty_tags: BTreeSet::new(),
+            dirty_alarms: BTreeSet::new(),
+            events: vec![],
+            next_series_ms: vec![i64::MIN; ncomp],
+            newest_ms,
+            sensor: vec![(false, false); ntags],
+            retired: left.components,
+            retired_tags: left.tags,
+            counters: svc,
+            log: RateLimitedLog { last: HashMap::new() },
+            snapshot_tx,
+            last_snapshot: Instant::now() - Duration::from_secs(60),
+            last_health: Instant::now(),
+            started: rfc3339_ms(now_ms()),
+            mqtt_connected: false,
+            outbox: stats,
+            holding: false,
+            extra_outbox: vec![],
+            service,
+        };
+        // Thresholds go to the database at start-up, at the newest event time.
+        let t = l.newest_ms.unwrap_or_else(now_ms);
+        l.queue_thresholds(t);
+        l.publish_snapshot(true);
+        Ok(l)
+    }
+
+    fn queue_thresholds(&mut self, t: i64) {
+        let plant = self.cfg.plan.plant.clone();
+        let mut lines = vec![];
+        for c in &self.cfg.plan.components {
+            lines.extend(threshold_points(&plant, c, t).into_iter().filter_map(|p| p.to_line()));
+        }
+        self.extra_outbox.extend(lines);
+    }
+
+    /// The subscription filters: tag templates and the command topic.
+    pub fn filters(service: &ServiceSettings) -> Vec<String> {
+        let mut f: Vec<String> = service.mqtt.templates().unwrap_or_default().iter().map(|(t, _)| t.filter()).collect();
+        f.push(service.mqtt.command_topic());
+        f
+    }
+
+    /// Run until stopped: the group-commit loop.
+    pub fn run(mut self, mut rx: mpsc::Receiver<Inbound>, mut control: std::sync::mpsc::Receiver<Control>, rt: tokio::runtime::Handle) {
+        loop {
+            match control.try_recv() {
+                Ok(Control::Stop) | Err(std::sync::mpsc::TryRecvError::Disconnected) => {
+                    // Take what is already queued, then finish.
+                    while let Ok(m) = rx.try_recv() {
+                        self.handle(m);
+                    }
+                    self.commit();
+                    break;
+                }
+                Ok(Control::Reload(cfg, service)) => {
+                    self.commit();
+                    self.reload(*cfg, *service);
+                }
+                Err(std::sync::mpsc::TryRecvError::Empty) => {}
+            }
+            if self.holding {
+                self.check_quota();
+                if self.holding {
+                    std::thread::sleep(Duration::from_millis(200));
+                    self.periodic();
+                    continue;
+                }
+            }
+            let msg = if self.pending.is_empty() && self.extra_outbox.is_empty() {
+                match rt.block_on(async { tokio::time::timeout(Duration::from_millis(500), rx.recv()).await }) {
+                    Ok(Some(m)) => Some(m),
+                    Ok(None) => {
+                        self.commit();
+                        break;
+                    }
+                    Err(_) => {
+                        self.periodic();
+                        continue;
+                    }
+                }
+            } else {
+                match rx.try_recv() {
+                    Ok(m) => Some(m),
+                    Err(mpsc::error::TryRecvError::Empty) => None,
+                    Err(mpsc::error::TryRecvError::Disconnected) => {
+                        self.commit();
+                        break;
+                    }
+                }
+            };
+            match msg {
+                Some(m) => {
+                    self.handle(m);
+                    if self.pending_samples >= self.service.store.commit_max_samples {
+                        self.commit();
+                    }
+                }
+                // The queue ran dry: commit what we have (group commit).
+                None => {
+                    self.commit();
+                    self.periodic();
+                }
+            }
+        }
+        let _ = &mut control;
+        self.publish_snapshot(true);
+        tracing::info!("ledger closed cleanly");
+    }
+
+    fn periodic(&mut self) {
+        let now = now_ms();
+        if let Ok(s) = self.store.outbox_stats() {
+            self.outbox = s;
+        }
+        let ev = self.book.tick(now);
+        if !ev.is_empty() {
+            for e in &ev {
+                self.dirty_alarms.insert(e.key());
+            }
+            self.events.extend(ev);
+            self.commit();
+        }
+        if self.last_health.elapsed() >= Duration::from_secs(self.service.store.health_interval_s.max(1)) {
+            self.last_health = Instant::now();
+            let p = self.health_point(now);
+            self.extra_outbox.push(p);
+            self.commit();
+        }
+        self.publish_snapshot(false);
+    }
+
+    fn health_point(&self, now: i64) -> String {
+        let e = self.engine.counters();
+        let mut p = crate::lineproto::Point::new("service_health", now * 1_000_000)
+            .tag("plant", &self.cfg.plan.plant)
+            .int("samples_accepted", e.accepted as i64)
+            .int("duplicates", (e.duplicate + e.late) as i64)
+            .int("outbox_lines", self.outbox.lines as i64)
+            .int("outbox_bytes", self.outbox.bytes as i64)
+            .float("commit_latency_ms", self.counters.last_commit_ms)
+            .boolean("mqtt_connected", self.mqtt_connected);
+        for r in Rejection::ALL {
+            p = p.int(&format!("rejected_{}", r.name()), e.get(r) as i64);
+        }
+        for (k, v) in &self.counters.decode_rejected {
+            p = p.int(&format!("rejected_{k}"), *v as i64);
+        }
+        p.to_line().unwrap_or_default()
+    }
+
+    fn reject(&mut self, reason: &'static str, topic: &str, detail: String) {
+        *self.counters.decode_rejected.entry(reason.to_string()).or_insert(0) += 1;
+        self.log.warn(reason, || format!("message on {topic} rejected: {detail}"));
+    }
+
+    fn handle(&mut self, m: Inbound) {
+        match m {
+            Inbound::Connection { connected } => {
+                self.mqtt_connected = connected;
+                self.publish_snapshot(true);
+            }
+            Inbound::Message { publish, received_ms } => {
+                let topic = publish.topic.clone();
+                if topic == self.command_topic {
+                    self.command(&publish.payload);
+                } else {
+                    self.sample(&topic, &publish.payload, received_ms);
+                }
+                self.pending.push(publish);
+            }
+        }
+    }
+
+    fn command(&mut self, payload: &[u8]) {
+        let now = now_ms();
+        match parse_command(payload).and_then(|c| self.book.apply(&c, now)) {
+            Ok(ev) => {
+                self.counters.commands_applied += 1;
+                for e in &ev {
+                    self.dirty_alarms.insert(e.key());
+                }
+                self.events.extend(ev);
+            }
+            Err(e) => {
+                self.counters.commands_rejected += 1;
+                tracing::warn!("alarm command rejected: {e}");
+            }
+        }
+    }
+
+    fn sample(&mut self, topic: &str, payload: &[u8], received_ms: i64) {
+        let Some((tag, p)) = self.templates.iter().find_map(|(t, p)| t.tag_for(topic).map(|tag| (tag, p))) else {
+            self.reject("unknown_topic", topic, "no topic template matches".into());
+            return;
+        };
+        let d = match decode_payload(p, payload, received_ms) {
+            Ok(d) => d,
+            Err(e) => {
+                let reason = e.reason();
+                self.reject(reason, topic, e.to_string());
+                return;
+            }
+        };
+        if d.receive_time {
+            self.counters.receive_time_used += 1;
+        }
+        let Some(&id) = self.index.get(tag.as_str()) else {
+            self.engine.count_unknown_tag();
+            self.log.warn("unknown_tag", || format!("message on {topic}: tag {tag:?} is not in the configuration"));
+            return;
+        };
+        self.pending_samples += 1;
+        let s = Sample { tag: id, time_ms: d.time_ms, value: d.value, quality: d.quality };
+        let r = self.engine.ingest(&s);
+        let ti = id as usize;
+        let (oor, badq) = self.sensor[ti];
+        match r {
+            Ok(()) => {
+                self.dirty_tags.insert(ti);
+                self.newest_ms = Some(self.newest_ms.map_or(d.time_ms, |n| n.max(d.time_ms)));
+                if oor || badq {
+                    self.sensor[ti] = (false, false);
+                    self.sensor_alarm(ti, AlarmIndex::SensorOutOfRange, false, d.time_ms);
+                    self.sensor_alarm(ti, AlarmIndex::SensorBadQuality, false, d.time_ms);
+                }
+            }
+            Err(reason) => {
+                self.log.warn(reason.name(), || format!("sample of {tag} at {} rejected: {}", rfc3339_ms(d.time_ms), reason.name()));
+                match reason {
+                    Rejection::OutOfRange | Rejection::NotFinite if !oor => {
+                        self.sensor[ti].0 = true;
+                        self.sensor_alarm(ti, AlarmIndex::SensorOutOfRange, true, d.time_ms);
+                    }
+                    Rejection::BadQuality if !badq => {
+                        self.sensor[ti].1 = true;
+                        self.sensor_alarm(ti, AlarmIndex::SensorBadQuality, true, d.time_ms);
+                    }
+                    _ => {}
+                }
+            }
+        }
+        let _ = Quality::Good;
+    }
+
+    /// A sensor alarm is raised against every component that reads the tag.
+    fn sensor_alarm(&mut self, ti: usize, index: AlarmIndex, active: bool, t: i64) {
+        let tag = self.engine.plan().tags[ti].name.clone();
+        let comps: Vec<(String, String)> = self
+            .engine
+            .plan()
+            .components
+            .iter()
+            .filter(|c| c.tags().contains(&(ti as u32)))
+            .map(|c| (c.name.clone(), c.unit.clone()))
+            .collect();
+        for (name, unit) in comps {
+            let ev = self.book.evaluate_condition(&name, &unit, index, active, &format!("tag {tag}"), t);
+            for e in &ev {
+                self.dirty_alarms.insert(e.key());
+            }
+            self.events.extend(ev);
+        }
+    }
+
+    fn stale_check(&mut self) {
+        let Some(newest) = self.newest_ms else { return };
+        for ti in 0..self.engine.plan().tags.len() {
+            let tp = &self.engine.plan().tags[ti];
+            let Some(last) = self.engine.tags()[ti].cursor_ms else { continue };
+            let stale = newest - last > tp.max_hold_ms;
+            let comps: Vec<(String, String)> = self
+                .engine
+                .plan()
+                .components
+                .iter()
+                .filter(|c| c.tags().contains(&(ti as u32)))
+                .map(|c| (c.name.clone(), c.unit.clone()))
+                .collect();
+            let detail = format!("tag {}", tp.name);
+            for (name, unit) in comps {
+                let ev = self.book.evaluate_condition(&name, &unit, AlarmIndex::SensorStale, stale, &detail, newest);
+                for e in &ev {
+                    self.dirty_alarms.insert(e.key());
+                }
+                self.events.extend(ev);
+            }
+        }
+    }
+
+    /// Write the batch in one transaction, then acknowledge and publish.
+    pub fn commit(&mut self) {
+        let changed = self.engine.take_changed();
+        if changed.is_empty() && self.pending.is_empty() && self.extra_outbox.is_empty() && self.events.is_empty() && self.dirty_alarms.is_empty() {
+            return;
+        }
+        let started = Instant::now();
+        let plant = self.cfg.plan.plant.clone();
+        let interval = self.service.store.series_interval_s.max(1) * 1000;
+        let mut components = Vec::with_capacity(changed.len());
+        let mut outbox = std::mem::take(&mut self.extra_outbox);
+        for &ci in &changed {
+            let plan = &self.engine.plan().components[ci];
+            let st = &self.engine.components()[ci];
+            components.push((plan.name.clone(), serde_json::to_string(st).unwrap_or_default()));
+            if let Some(t) = st.integrated_to_ms {
+                if t >= self.next_series_ms[ci] {
+                    if let Some(l) = component_point(&plant, plan, st, t).to_line() {
+                        outbox.push(l);
+                    }
+                    outbox.extend(threshold_points(&plant, plan, t).into_iter().filter_map(|p| p.to_line()));
+                    self.next_series_ms[ci] = (t.div_euclid(interval) + 1) * interval;
+                }
+                let ev = self.book.evaluate_component(plan, st, t);
+                for e in &ev {
+                    self.dirty_alarms.insert(e.key());
+                }
+                self.events.extend(ev);
+            }
+        }
+        self.stale_check();
+        let tags: Vec<(String, String)> = self
+            .dirty_tags
+            .iter()
+            .map(|&ti| (self.engine.plan().tags[ti].name.clone(), serde_json::to_string(&self.engine.tags()[ti]).unwrap_or_default()))
+            .collect();
+        let alarms: Vec<(String, String)> = self
+            .dirty_alarms
+            .iter()
+            .filter_map(|k| self.book.record(k).map(|r| (k.clone(), serde_json::to_string(r).unwrap_or_default())))
+            .collect();
+        for e in &self.events {
+            if let Some(l) = e.to_point(&plant).to_line() {
+                outbox.push(l);
+            }
+        }
+        if self.service.database.is_none() {
+            // No database configured: nothing will ever drain an outbox.
+            outbox.clear();
+        }
+        let meta = vec![
+            ("engine_counters".to_string(), serde_json::to_string(self.engine.counters()).unwrap_or_default()),
+            ("decode_rejected".to_string(), serde_json::to_string(&self.counters.decode_rejected).unwrap_or_default()),
+        ];
+        let commit = Commit { components: &components, tags: &tags, alarms: &alarms, meta: &meta, outbox: &outbox };
+        match self.store.commit(&commit) {
+            Ok(stats) => {
+                self.outbox = stats.outbox;
+                let ms = started.elapsed().as_secs_f64() * 1000.0;
+                let c = &mut self.counters;
+                c.commits += 1;
+                c.last_commit_ms = ms;
+                c.max_commit_ms = c.max_commit_ms.max(ms);
+                c.total_commit_ms += ms;
+                // Durable: now, and only now, acknowledge.
+                for p in self.pending.drain(..) {
+                    if let Err(e) = self.client.try_ack(&p) {
+                        tracing::error!("MQTT acknowledge failed (the broker will redeliver): {e}");
+                    } else {
+                        c.acked += 1;
+                    }
+                }
+                self.pending_samples = 0;
+                self.dirty_tags.clear();
+                self.dirty_alarms.clear();
+                let events = std::mem::take(&mut self.events);
+                self.publish_alarms(&events);
+                self.check_quota();
+            }
+            Err(e) => {
+                // Nothing is acknowledged; the state stays in memory and the
+                // next commit writes it (upserts carry whole ledgers).
+                self.counters.commit_failures += 1;
+                tracing::error!("ledger commit failed, nothing acknowledged: {e}");
+                for &ci in &changed {
+                    self.engine.mark_changed(ci);
+                }
+                self.extra_outbox = outbox;
+            }
+        }
+        self.publish_snapshot(false);
+    }
+
+    fn check_quota(&mut self) {
+        let q = quota(&self.service);
+        if q == u64::MAX {
+            return;
+        }
+        if let Ok(s) = self.store.outbox_stats() {
+            self.outbox = s;
+        }
+        let over = self.outbox.bytes > q;
+        let under = (self.outbox.bytes as f64) < 0.9 * q as f64;
+        let t = now_ms();
+        if over && !self.holding {
+            self.holding = true;
+            tracing::error!(
+                outbox_bytes = self.outbox.bytes,
+                quota = q,
+                "outbox over its disk quota: intake paused (the broker keeps the backlog) until the database accepts points again"
+            );
+            let ev = self.book.evaluate_condition("lifeledger", "", AlarmIndex::ServiceHealth, true, "outbox over quota; intake paused", t);
+            self.note_events(ev);
+        } else if self.holding && under {
+            self.holding = false;
+            tracing::info!("outbox below its quota again: intake resumed");
+            let ev = self.book.evaluate_condition("lifeledger", "", AlarmIndex::ServiceHealth, false, "outbox below quota", t);
+            self.note_events(ev);
+        }
+    }
+
+    fn note_events(&mut self, ev: Vec<AlarmEvent>) {
+        for e in &ev {
+            self.dirty_alarms.insert(e.key());
+        }
+        self.events.extend(ev);
+    }
+
+    fn publish_alarms(&self, events: &[AlarmEvent]) {
+        let mut comps = BTreeSet::new();
+        for e in events {
+            let _ = self.client.try_publish(self.service.mqtt.alarm_event_topic(), QoS::AtLeastOnce, false, e.to_json());
+            comps.insert(e.component.clone());
+        }
+        for c in comps {
+            let s = self.book.current(&c);
+            let _ = self.client.try_publish(self.service.mqtt.alarm_state_topic(&c), QoS::AtLeastOnce, true, s.to_json());
+        }
+    }
+
+    fn reload(&mut self, cfg: LoadedConfig, service: ServiceSettings) {
+        let mut state = self.engine.export_state();
+        state.components.extend(self.retired.drain(..));
+        state.tags.extend(self.retired_tags.drain(..));
+        let mut engine = Engine::new(cfg.plan.clone());
+        let left = engine.import_state(state);
+        self.retired = left.components;
+        self.retired_tags = left.tags;
+        self.engine = engine;
+        self.index = tag_index(&self.engine);
+        self.templates = service.mqtt.templates().unwrap_or_default();
+        self.book.set_config(service.alarms.clone());
+        self.next_series_ms = vec![i64::MIN; cfg.plan.components.len()];
+        self.sensor = vec![(false, false); cfg.plan.tags.len()];
+        self.cfg = Arc::new(cfg);
+        self.service = service;
+        let t = self.newest_ms.unwrap_or_else(now_ms);
+        self.queue_thresholds(t);
+        tracing::info!(
+            components = self.cfg.plan.components.len(),
+            retired = self.retired.len(),
+            "configuration reloaded; every ledger kept"
+        );
+        self.publish_snapshot(true);
+    }
+
+    fn publish_snapshot(&mut self, force: bool) {
+        if !force && self.last_snapshot.elapsed() < Duration::from_millis(500) {
+            return;
+        }
+        self.last_snapshot = Instant::now();
+        let components: Vec<ComponentReport> = self
+            .engine
+            .plan()
+            .components
+            .iter()
+            .zip(self.engine.components())
+            .map(|(p, s)| ComponentReport::new(p, s))
+            .collect();
+        let alarms = self.engine.plan().components.iter().map(|c| self.book.current(&c.name)).collect();
+        let snap = Snapshot {
+            plant: self.cfg.plan.plant.clone(),
+            started: self.started.clone(),
+            mqtt_connected: self.mqtt_connected,
+            store_path: self.service.store.path.display().to_string(),
+            outbox_lines: self.outbox.lines,
+            outbox_bytes: self.outbox.bytes,
+            outbox_quota_bytes: quota(&self.service),
+            holding: self.holding,
+            database_configured: self.service.database.is_some(),
+            database_reachable: None,
+            engine: self.engine.counters().clone(),
+            service: self.counters.clone(),
+            components,
+            alarms,
+            retired_components: self.retired.iter().map(|(n, _)| n.clone()).collect(),
+            caution: crate::CAUTION,
+        };
+        let _ = self.snapshot_tx.send(Arc::new(snap));
+    }
+}
+
+#[allow(dead_code)]
+fn _types(_: BTreeMap<(), ()>) {}

@@ -1,0 +1,128 @@
+//! The live service (`lifeledger run`): a thin async shell around the pure
+//! engine.
+//!
+//! Tasks and their one job each:
+//! * ingest (`crate::ingest::run_event_loop`): polls the MQTT event loop,
+//!   hands messages over, never acknowledges;
+//! * ledger thread ([`ledger`]): owns engine, alarms and the store's write
+//!   connection; group-commits, then acknowledges;
+//! * outbox sender ([`outbox`]): drains the outbox to the database;
+//! * HTTP ([`http`]): health, readiness, metrics, JSON snapshot.
+//!
+//! Shutdown is a broadcast signal every task listens for. SIGTERM or SIGINT:
+//! intake stops, the ledger commits and acknowledges what it has, the
+//! outbox gets a last flush, the service publishes its offline status and
+//! disconnects. SIGHUP reloads the configuration and keeps every ledger.
+
+pub mod http;
+pub mod ledger;
+pub mod outbox;
+pub mod settings;
+pub mod snapshot;
+
+use crate::ingest::{offline_payload, run_event_loop, Inbound};
+use crate::settings::load_plan;
+use anyhow::Context;
+use ledger::{Control, Ledger};
+pub use settings::ServiceSettings;
+use std::path::Path;
+use std::sync::Arc;
+use std::time::Duration;
+use tokio::sync::{broadcast, mpsc, watch};
+
+/// Load and type a configuration for the service.
+pub fn load_service(path: &Path) -> anyhow::Result<(crate::settings::LoadedConfig, ServiceSettings)> {
+    let cfg = load_plan(path).map_err(|e| anyhow::anyhow!("{e}"))?;
+    let svc = ServiceSettings::from_settings(&cfg.settings)
+        .map_err(|errs| anyhow::anyhow!("configuration {}:\n  - {}", path.display(), errs.join("\n  - ")))?;
+    Ok((cfg, svc))
+}
+
+/// Run the service until SIGTERM or SIGINT.
+pub async fn run(config_path: &Path) -> anyhow::Result<()> {
+    let (cfg, svc) = load_service(config_path)?;
+    for w in &cfg.warnings {
+        tracing::warn!("{w}");
+    }
+    tracing::info!("{}", crate::CAUTION);
+    let (shutdown_tx, _) = broadcast::channel::<()>(4);
+    let options = svc.mqtt.options().map_err(|e| anyhow::anyhow!(e))?;
+    let (client, eventloop) = rumqttc::AsyncClient::new(options, 4096);
+    let (snap_tx, snap_rx) = watch::channel(Arc::new(snapshot::Snapshot::default()));
+    let ledger = Ledger::open(cfg, svc.clone(), client.clone(), snap_tx)
+        .with_context(|| format!("opening the ledger {}", svc.store.path.display()))?;
+    let filters = Ledger::filters(&svc);
+
+    // HTTP first, so health is visible from the start.
+    let listener = tokio::net::TcpListener::bind(&svc.http.listen)
+        .await
+        .with_context(|| format!("[http] listen {}: cannot bind", svc.http.listen))?;
+    tracing::info!("status on http://{}/", listener.local_addr()?);
+    let http_state = http::HttpState { snapshot: snap_rx.clone() };
+    let mut http_shutdown = shutdown_tx.subscribe();
+    let http_task = tokio::spawn(async move {
+        let _ = axum::serve(listener, http::router(http_state))
+            .with_graceful_shutdown(async move {
+                let _ = http_shutdown.recv().await;
+            })
+            .await;
+    });
+
+    let (in_tx, in_rx) = mpsc::channel::<Inbound>(1024);
+    let (ctl_tx, ctl_rx) = std::sync::mpsc::channel::<Control>();
+    let rt = tokio::runtime::Handle::current();
+    let ledger_task = tokio::task::spawn_blocking(move || ledger.run(in_rx, ctl_rx, rt));
+
+    // The event loop keeps polling until the very end so that the last
+    // acknowledgements and the offline status reach the broker.
+    let (loop_stop_tx, _) = broadcast::channel::<()>(1);
+    let ingest_task = tokio::spawn(run_event_loop(svc.mqtt.clone(), client.clone(), eventloop, filters, in_tx, loop_stop_tx.subscribe()));
+
+    let (reach_tx, _reach_rx) = watch::channel(None);
+    let sender_task = svc.database.clone().map(|d| {
+        tokio::spawn(outbox::run_sender(d, svc.store.path.clone(), reach_tx, shutdown_tx.subscribe()))
+    });
+
+    // Signals.
+    #[cfg(unix)]
+    {
+        use tokio::signal::unix::{signal, SignalKind};
+        let mut term = signal(SignalKind::terminate())?;
+        let mut int = signal(SignalKind::interrupt())?;
+        let mut hup = signal(SignalKind::hangup())?;
+        loop {
+            tokio::select! {
+                _ = term.recv() => { tracing::info!("SIGTERM: stopping"); break; }
+                _ = int.recv() => { tracing::info!("SIGINT: stopping"); break; }
+                _ = hup.recv() => {
+                    match load_service(config_path) {
+                        Ok((c, s)) => { let _ = ctl_tx.send(Control::Reload(Box::new(c), Box::new(s))); }
+                        Err(e) => tracing::error!("SIGHUP: configuration not reloaded, the running one stays: {e:#}"),
+                    }
+                }
+            }
+        }
+    }
+    #[cfg(not(unix))]
+    {
+        tokio::signal::ctrl_c().await?;
+    }
+
+    // Stop intake, let the ledger commit and acknowledge.
+    let _ = ctl_tx.send(Control::Stop);
+    let _ = ledger_task.await;
+    let _ = client.try_publish(svc.mqtt.status_topic(), rumqttc::QoS::AtLeastOnce, true, offline_payload());
+    // Let the event loop carry the last acknowledgements and the status out.
+    tokio::time::sleep(Duration::from_millis(300)).await;
+    let _ = client.try_disconnect();
+    tokio::time::sleep(Duration::from_millis(200)).await;
+    let _ = loop_stop_tx.send(());
+    let _ = shutdown_tx.send(());
+    if let Some(t) = sender_task {
+        let _ = tokio::time::timeout(Duration::from_secs(10), t).await;
+    }
+    let _ = tokio::time::timeout(Duration::from_secs(2), ingest_task).await;
+    let _ = tokio::time::timeout(Duration::from_secs(2), http_task).await;
+    tracing::info!("stopped");
+    Ok(())
+}

@@ -1,0 +1,90 @@
+//! The outbox sender: drains points from the ledger's outbox to the
+//! time-series database, oldest first, at least once.
+//!
+//! It uses its own connection to the ledger file (SQLite in WAL mode lets it
+//! read while the ledger thread writes). A batch is removed from the outbox
+//! only after the database accepted it; a failed batch is retried with
+//! exponential backoff and jitter. Because every point carries its event
+//! time, a batch that was accepted but not yet removed when the process
+//! died is simply written again and overwrites itself.
+
+use crate::sink::{Backoff, DatabaseSettings, Writer};
+use crate::store::Store;
+use std::path::PathBuf;
+use std::time::Duration;
+use tokio::sync::{broadcast, watch};
+
+/// Run until shutdown; on shutdown, one last pass with a short deadline.
+pub async fn run_sender(
+    settings: DatabaseSettings,
+    ledger_path: PathBuf,
+    reachable: watch::Sender<Option<bool>>,
+    mut shutdown: broadcast::Receiver<()>,
+) {
+    let writer = match Writer::new(&settings) {
+        Ok(w) => w,
+        Err(e) => {
+            tracing::error!("database writer: {e}");
+            return;
+        }
+    };
+    let mut store = match tokio::task::block_in_place(|| Store::open(&ledger_path)) {
+        Ok(s) => s,
+        Err(e) => {
+            tracing::error!("outbox sender cannot open the ledger: {e}");
+            return;
+        }
+    };
+    let mut backoff = Backoff::from_settings(&settings);
+    let mut stopping = false;
+    loop {
+        let batch = match tokio::task::block_in_place(|| store.outbox_batch(settings.batch_lines.max(1), 8 << 20)) {
+            Ok(b) => b,
+            Err(e) => {
+                tracing::error!("outbox read failed: {e}");
+                Vec::new()
+            }
+        };
+        if batch.is_empty() {
+            if stopping {
+                break;
+            }
+            tokio::select! {
+                _ = tokio::time::sleep(Duration::from_millis(200)) => {}
+                _ = shutdown.recv() => { stopping = true; }
+            }
+            continue;
+        }
+        let last_id = batch.last().map(|(id, _)| *id).unwrap_or(0);
+        let lines: Vec<String> = batch.into_iter().map(|(_, l)| l).collect();
+        match writer.write_lines(&lines).await {
+            Ok(()) => {
+                backoff.reset();
+                let _ = reachable.send(Some(true));
+                if let Err(e) = tokio::task::block_in_place(|| store.outbox_remove_through(last_id)) {
+                    tracing::error!("outbox cleanup failed (points will be written again): {e}");
+                }
+            }
+            Err(e) if e.is_bad_data() => {
+                // The database refuses these lines as they are; retrying
+                // would block everything behind them. Say so loudly, keep
+                // them in the log, and move on.
+                tracing::error!(lines = lines.len(), "database refused a batch as malformed, dropping it from the outbox: {e}; first line: {}", lines[0]);
+                let _ = tokio::task::block_in_place(|| store.outbox_remove_through(last_id));
+            }
+            Err(e) => {
+                let _ = reachable.send(Some(false));
+                if stopping {
+                    tracing::warn!("database unreachable at shutdown; {} points stay in the outbox for the next start: {e}", lines.len());
+                    break;
+                }
+                let d = backoff.next_delay();
+                tracing::warn!("database write failed, retrying in {:.1} s: {e}", d.as_secs_f64());
+                tokio::select! {
+                    _ = tokio::time::sleep(d) => {}
+                    _ = shutdown.recv() => { stopping = true; }
+                }
+            }
+        }
+    }
+}

@@ -1,0 +1,147 @@
+//! Typed settings of the live service: the `[mqtt]`, `[store]`,
+//! `[database]`, `[http]` and `[alarms]` sections of the configuration.
+
+use crate::alarm::AlarmConfig;
+use crate::ingest::MqttSettings;
+use crate::settings::Settings;
+use crate::sink::DatabaseSettings;
+use serde::de::DeserializeOwned;
+use serde::Deserialize;
+use std::path::PathBuf;
+
+/// The `[store]` section.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct StoreSettings {
+    /// Ledger file (SQLite). Default `lifeledger.ledger` in the working directory.
+    #[serde(default = "default_path")]
+    pub path: PathBuf,
+    /// Largest number of samples in one group commit.
+    #[serde(default = "default_batch")]
+    pub commit_max_samples: usize,
+    /// Event-time spacing of `component_state` points, seconds.
+    #[serde(default = "default_series")]
+    pub series_interval_s: i64,
+    /// Wall-clock spacing of `service_health` points, seconds.
+    #[serde(default = "default_health")]
+    pub health_interval_s: u64,
+}
+
+fn default_path() -> PathBuf {
+    PathBuf::from("lifeledger.ledger")
+}
+fn default_batch() -> usize {
+    2000
+}
+fn default_series() -> i64 {
+    60
+}
+fn default_health() -> u64 {
+    10
+}
+
+impl Default for StoreSettings {
+    fn default() -> Self {
+        StoreSettings {
+            path: default_path(),
+            commit_max_samples: default_batch(),
+            series_interval_s: default_series(),
+            health_interval_s: default_health(),
+        }
+    }
+}
+
+/// The `[http]` section.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct HttpSettings {
+    /// Listen address; loopback by default.
+    #[serde(default = "default_listen")]
+    pub listen: String,
+    /// Environment variable holding a token that allows acknowledge and
+    /// shelve through HTTP; without it the HTTP side is read-only.
+    #[serde(default)]
+    pub token_env: Option<String>,
+}
+
+fn default_listen() -> String {
+    "127.0.0.1:8470".into()
+}
+
+impl Default for HttpSettings {
+    fn default() -> Self {
+        HttpSettings { listen: default_listen(), token_env: None }
+    }
+}
+
+/// Everything the service needs beyond the engine plan.
+#[derive(Debug, Clone)]
+pub struct ServiceSettings {
+    pub mqtt: MqttSettings,
+    pub store: StoreSettings,
+    pub database: Option<DatabaseSettings>,
+    pub http: HttpSettings,
+    pub alarms: AlarmConfig,
+}
+
+fn section<T: DeserializeOwned>(name: &str, t: &Option<toml::Table>) -> Result<Option<T>, String> {
+    match t {
+        None => Ok(None),
+        Some(t) => T::deserialize(toml::Value::Table(t.clone())).map(Some).map_err(|e| format!("[{name}]: {e}")),
+    }
+}
+
+impl ServiceSettings {
+    /// Type the free-form service sections of a configuration.
+    pub fn from_settings(s: &Settings) -> Result<ServiceSettings, Vec<String>> {
+        let mut errors = vec![];
+        let mqtt = section::<MqttSettings>("mqtt", &s.mqtt).unwrap_or_else(|e| {
+            errors.push(e);
+            None
+        });
+        let mqtt = match mqtt {
+            Some(m) => m,
+            None => match toml::from_str::<MqttSettings>("") {
+                Ok(m) => m,
+                Err(e) => {
+                    errors.push(e.to_string());
+                    return Err(errors);
+                }
+            },
+        };
+        if let Err(e) = mqtt.templates() {
+            errors.push(e);
+        }
+        let store = section::<StoreSettings>("store", &s.store).unwrap_or_else(|e| {
+            errors.push(e);
+            None
+        });
+        let database = section::<DatabaseSettings>("database", &s.database).unwrap_or_else(|e| {
+            errors.push(e);
+            None
+        });
+        if let Some(d) = &database {
+            if let Err(e) = d.validate() {
+                errors.push(format!("[database]: {e}"));
+            }
+        }
+        let http = section::<HttpSettings>("http", &s.http).unwrap_or_else(|e| {
+            errors.push(e);
+            None
+        });
+        let alarms = section::<AlarmConfig>("alarms", &s.alarms).unwrap_or_else(|e| {
+            errors.push(e);
+            None
+        });
+        if !errors.is_empty() {
+            return Err(errors);
+        }
+        Ok(ServiceSettings {
+            mqtt,
+            store: store.unwrap_or_default(),
+            database,
+            http: http.unwrap_or_default(),
+            alarms: alarms.unwrap_or_default(),
+        })
+    }
+}

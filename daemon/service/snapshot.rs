@@ -1,0 +1,97 @@
+//! The published snapshot of the service: what the HTTP side reads. The
+//! ledger thread owns all state and publishes an immutable snapshot through
+//! a `tokio::sync::watch` channel; readers never lock anything.
+
+use crate::alarm::ComponentAlarmSummary;
+use crate::engine::Counters;
+use crate::report::ComponentReport;
+use serde::Serialize;
+use std::collections::BTreeMap;
+
+/// Service counters beyond the engine's.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct ServiceCounters {
+    /// Messages rejected before the engine, by reason.
+    pub decode_rejected: BTreeMap<String, u64>,
+    /// Samples that carried no timestamp (receive time used).
+    pub receive_time_used: u64,
+    pub commands_applied: u64,
+    pub commands_rejected: u64,
+    pub commits: u64,
+    pub commit_failures: u64,
+    pub last_commit_ms: f64,
+    pub max_commit_ms: f64,
+    /// Sum of commit latencies, for the mean.
+    pub total_commit_ms: f64,
+    pub acked: u64,
+}
+
+/// What `/api/components`, `/metrics`, `/healthz` and `/readyz` show.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct Snapshot {
+    pub plant: String,
+    pub started: String,
+    pub mqtt_connected: bool,
+    pub store_path: String,
+    pub outbox_lines: u64,
+    pub outbox_bytes: u64,
+    pub outbox_quota_bytes: u64,
+    /// Intake is paused because the outbox is over its quota.
+    pub holding: bool,
+    pub database_configured: bool,
+    pub database_reachable: Option<bool>,
+    pub engine: Counters,
+    pub service: ServiceCounters,
+    pub components: Vec<ComponentReport>,
+    pub alarms: Vec<ComponentAlarmSummary>,
+    /// Components kept in the ledger but no longer configured.
+    pub retired_components: Vec<String>,
+    pub caution: &'static str,
+}
+
+/// Prometheus text exposition of a snapshot.
+pub fn metrics_text(s: &Snapshot) -> String {
+    use std::fmt::Write;
+    let mut o = String::new();
+    let mut metric = |name: &str, help: &str, kind: &str, rows: Vec<(String, f64)>| {
+        let _ = writeln!(o, "# HELP {name} {help}\n# TYPE {name} {kind}");
+        for (labels, v) in rows {
+            let _ = writeln!(o, "{name}{labels} {v}");
+        }
+    };
+    let e = &s.engine;
+    metric("lifeledger_samples_accepted_total", "Samples integrated.", "counter", vec![(String::new(), e.accepted as f64)]);
+    let mut rej: Vec<(String, f64)> = crate::engine::Rejection::ALL
+        .iter()
+        .map(|r| (format!("{{reason=\"{}\"}}", r.name()), e.get(*r) as f64))
+        .collect();
+    for (k, v) in &s.service.decode_rejected {
+        rej.push((format!("{{reason=\"{k}\"}}"), *v as f64));
+    }
+    metric("lifeledger_samples_rejected_total", "Samples or messages not integrated, by reason.", "counter", rej);
+    metric("lifeledger_duplicates_total", "Samples at or before their tag's cursor.", "counter", vec![(String::new(), (e.duplicate + e.late) as f64)]);
+    metric("lifeledger_outbox_lines", "Points waiting for the database.", "gauge", vec![(String::new(), s.outbox_lines as f64)]);
+    metric("lifeledger_outbox_bytes", "Bytes waiting for the database.", "gauge", vec![(String::new(), s.outbox_bytes as f64)]);
+    metric("lifeledger_commits_total", "Ledger transactions committed.", "counter", vec![(String::new(), s.service.commits as f64)]);
+    metric("lifeledger_commit_latency_ms", "Latency of the last ledger commit.", "gauge", vec![(String::new(), s.service.last_commit_ms)]);
+    metric("lifeledger_commit_latency_max_ms", "Largest ledger commit latency.", "gauge", vec![(String::new(), s.service.max_commit_ms)]);
+    metric("lifeledger_mqtt_connected", "1 when connected to the broker.", "gauge", vec![(String::new(), s.mqtt_connected as u8 as f64)]);
+    metric("lifeledger_intake_holding", "1 when intake is paused (outbox over quota).", "gauge", vec![(String::new(), s.holding as u8 as f64)]);
+    let lf: Vec<(String, f64)> = s
+        .components
+        .iter()
+        .map(|c| (format!("{{component=\"{}\",unit=\"{}\"}}", esc(&c.component), esc(&c.unit)), c.creep_life_fraction))
+        .collect();
+    metric("lifeledger_creep_life_fraction", "Robinson life fraction per component.", "gauge", lf);
+    let wi: Vec<(String, f64)> = s
+        .components
+        .iter()
+        .map(|c| (format!("{{component=\"{}\",unit=\"{}\"}}", esc(&c.component), esc(&c.unit)), c.wear_index))
+        .collect();
+    metric("lifeledger_wear_index", "Wear depth over allowable depth per component.", "gauge", wi);
+    o
+}
+
+fn esc(s: &str) -> String {
+    s.replace('\\', "\\\\").replace('"', "\\\"").replace('\n', "\\n")
+}

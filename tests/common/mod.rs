@@ -1,0 +1,67 @@
+//! Shared harness for the integration tests: real servers, started per test.
+//!
+//! Each test that needs a broker or a database starts its own
+//! [`Mosquitto`] or [`VictoriaMetrics`] on a free loopback port with its own
+//! temporary directory, and the server is stopped when the handle drops.
+//! Nothing here mocks a server; nothing listens beyond 127.0.0.1.
+//!
+//! * [`free_port`]: a port the kernel just handed out on 127.0.0.1.
+//! * [`poll_until`]: the one bounded waiting loop (a count, not a clock).
+//! * [`Mosquitto`]: `/usr/sbin/mosquitto` with a generated config.
+//! * [`VictoriaMetrics`]: `victoria-metrics` taking InfluxDB v2 writes at
+//!   `/api/v2/write`, with [`VictoriaMetrics::export`] and
+//!   [`VictoriaMetrics::query`] to read back what arrived.
+//! * [`http`]: a tiny blocking HTTP/1.1 client over `std::net::TcpStream`,
+//!   so the harness needs no HTTP crate.
+//! * [`workspace_bin`]: path of the built `lifeledger` binary.
+//!
+//! Use it from a test file with `mod common;`. Every test crate compiles
+//! this module again and uses only part of it, hence the `allow` below.
+#![allow(dead_code, unused_imports)]
+
+pub mod http;
+mod mosquitto;
+mod process;
+mod victoria;
+
+use std::net::TcpListener;
+use std::path::PathBuf;
+use std::time::Duration;
+
+pub use mosquitto::Mosquitto;
+pub use victoria::{ExportedSeries, VictoriaMetrics};
+
+/// How many times [`poll_until`] tries before it gives up.
+pub const POLL_TRIES: u32 = 400;
+/// Pause between two tries of [`poll_until`].
+pub const POLL_PAUSE: Duration = Duration::from_millis(50);
+
+/// A TCP port on 127.0.0.1 that was free a moment ago (bind to port 0 and
+/// let the kernel choose). Another process could take it before the server
+/// binds it; the servers' start functions then fail with their log.
+pub fn free_port() -> u16 {
+    let listener = TcpListener::bind("127.0.0.1:0").expect("bind 127.0.0.1:0");
+    listener.local_addr().expect("local address").port()
+}
+
+/// Calls `probe` up to [`POLL_TRIES`] times, [`POLL_PAUSE`] apart, until it
+/// returns `Some`; panics naming `what` when it never does. Bounded by count
+/// so a slow machine waits longer per try but never flakes on a deadline
+/// tighter than the count allows.
+pub fn poll_until<T>(what: &str, mut probe: impl FnMut() -> Option<T>) -> T {
+    for _ in 0..POLL_TRIES {
+        if let Some(v) = probe() {
+            return v;
+        }
+        std::thread::sleep(POLL_PAUSE);
+    }
+    panic!("gave up waiting for {what} after {POLL_TRIES} tries {POLL_PAUSE:?} apart");
+}
+
+/// Path of the `lifeledger` binary cargo built for these tests.
+///
+/// `CARGO_BIN_EXE_<name>` is set only while compiling integration tests;
+/// this module is compiled as part of each of them, so `env!` works here.
+pub fn workspace_bin() -> PathBuf {
+    PathBuf::from(env!("CARGO_BIN_EXE_lifeledger"))
+}
