@@ -475,6 +475,7 @@ impl Ledger {
                 if t >= self.next_series_ms[ci] {
                     if let Some(l) = component_point(&plant, plan, st, t).to_line() {
                         outbox.push(l);
+                        self.counters.series_points += 1;
                     }
                     outbox.extend(threshold_points(&plant, plan, t).into_iter().filter_map(|p| p.to_line()));
                     self.next_series_ms[ci] = (t.div_euclid(interval) + 1) * interval;

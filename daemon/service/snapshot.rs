@@ -24,6 +24,8 @@ pub struct ServiceCounters {
     /// Sum of commit latencies, for the mean.
     pub total_commit_ms: f64,
     pub acked: u64,
+    /// `component_state` points queued for the database since start.
+    pub series_points: u64,
 }
 
 /// What `/api/components`, `/metrics`, `/healthz` and `/readyz` show.

@@ -1,0 +1,509 @@
+//! The live service against real servers: a real mosquitto broker, a real
+//! VictoriaMetrics speaking the InfluxDB v2 write API, a real MQTT client
+//! publishing QoS 1 and waiting for every acknowledgement. These tests are
+//! the acceptance tests of the design invariants:
+//! * live and replay of the same samples give identical ledgers;
+//! * `kill -9` at any moment loses nothing acknowledged, counts nothing twice;
+//! * a database outage loses no point;
+//! * SIGTERM stops cleanly, SIGHUP reloads and keeps every ledger;
+//! * alarms go out on MQTT (event and retained state topics) and can be
+//!   acknowledged by command.
+
+mod common;
+
+use common::{free_port, http, poll_until, Mosquitto, VictoriaMetrics};
+use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
+use std::path::{Path, PathBuf};
+use std::process::{Child, Command, Stdio};
+use std::time::Duration;
+
+const T0: i64 = 1_790_812_800; // 2026-10-01T00:00:00Z
+
+fn config(dir: &Path, mqtt_port: u16, http_port: u16, db: Option<&str>, extra: &str) -> PathBuf {
+    let database = db.map_or(String::new(), |u| format!("[database]\nurl = \"{u}\"\norg = \"test\"\nbucket = \"test\"\nbackoff_initial_s = 0.1\nbackoff_max_s = 0.5\n"));
+    let text = format!(
+        r#"
+[plant]
+name = "Test Station"
+[engine]
+max_hold_s = 600
+[[tag]]
+name = "TE-1"
+unit = "degC"
+valid_range = [0, 800]
+[[tag]]
+name = "PT-1"
+unit = "bar"
+[[tag]]
+name = "LOAD-1"
+unit = "N"
+[[tag]]
+name = "SLIP-1"
+unit = "um"
+[[component]]
+name = "SH-TUBE"
+unit = "U1"
+kind = "tube"
+material = "2.25Cr-1Mo"
+design_temperature = {{ value = 570, unit = "degC" }}
+design_pressure = {{ value = 180, unit = "bar" }}
+metal_temperature = "TE-1"
+pressure = "PT-1"
+[component.geometry]
+outside_diameter = {{ value = 44.5, unit = "mm" }}
+wall = {{ value = 5.0, unit = "mm" }}
+[component.thresholds]
+life_fraction = {{ advisory = 0.00002, warning = 0.5, critical = 0.7 }}
+[[component]]
+name = "SUPPORT"
+unit = "U1"
+kind = "wear_contact"
+material = "P22"
+[component.wear]
+model = "fretting"
+normal_load = "LOAD-1"
+slip_amplitude = "SLIP-1"
+frequency = {{ value = 25, unit = "Hz" }}
+wear_coefficient = 1.0e-9
+contact_area_mm2 = 30.0
+allowable_depth = {{ value = 0.5, unit = "mm" }}
+[mqtt]
+port = {mqtt_port}
+client_id = "lifeledger-test"
+reconnect_min_s = 0.1
+reconnect_max_s = 0.5
+[[mqtt.subscription]]
+topic = "plant/{{tag}}"
+[store]
+path = "{store}"
+health_interval_s = 1
+[http]
+listen = "127.0.0.1:{http_port}"
+{database}
+{extra}
+"#,
+        store = dir.join("ledger.sqlite").display()
+    );
+    let p = dir.join("service.toml");
+    std::fs::write(&p, text).unwrap();
+    p
+}
+
+/// The sample stream: minute by minute, four tags, a start-up ramp, a
+/// load swing and an over-temperature hour.
+fn samples(minutes: i64) -> Vec<(String, i64, f64)> {
+    let mut v = vec![];
+    for m in 0..minutes {
+        let ts = T0 + 60 * m;
+        let x = m as f64;
+        let te = if m < 120 { 300.0 + 2.3 * x } else { 568.0 + 6.0 * (x / 37.0).sin() + if (300..360).contains(&m) { 25.0 } else { 0.0 } };
+        let pt = 150.0 + 20.0 * (x / 90.0).cos();
+        v.push(("TE-1".into(), ts, te));
+        v.push(("PT-1".into(), ts, pt));
+        v.push(("LOAD-1".into(), ts, 80.0 + 10.0 * (x / 13.0).sin()));
+        v.push(("SLIP-1".into(), ts, 40.0 + 5.0 * (x / 29.0).cos()));
+    }
+    v
+}
+
+fn csv(dir: &Path, s: &[(String, i64, f64)]) -> PathBuf {
+    let mut t = String::from("timestamp,tag,value\n");
+    for (tag, ts, v) in s {
+        t.push_str(&format!("{ts},{tag},{v:?}\n"));
+    }
+    let p = dir.join("history.csv");
+    std::fs::write(&p, t).unwrap();
+    p
+}
+
+fn payload(ts: i64, v: f64) -> Vec<u8> {
+    format!("{{\"value\": {v:?}, \"timestamp\": {ts}}}").into_bytes()
+}
+
+/// Publish with QoS 1 and wait until the broker acknowledged every message.
+fn publish_all(port: u16, s: &[(String, i64, f64)], id: &str) {
+    let mut o = MqttOptions::new(id, "127.0.0.1", port);
+    o.set_keep_alive(Duration::from_secs(30));
+    o.set_inflight(100);
+    let (client, mut conn) = Client::new(o, 1000);
+    let n = s.len();
+    let pubber = {
+        let s = s.to_vec();
+        std::thread::spawn(move || {
+            for (tag, ts, v) in s {
+                client.publish(format!("plant/{tag}"), QoS::AtLeastOnce, false, payload(ts, v)).unwrap();
+            }
+            client
+        })
+    };
+    let mut acked = 0;
+    for ev in conn.iter() {
+        match ev {
+            Ok(Event::Incoming(Packet::PubAck(_))) => {
+                acked += 1;
+                if acked == n {
+                    break;
+                }
+            }
+            Ok(_) => {}
+            Err(e) => panic!("publisher connection failed: {e}"),
+        }
+    }
+    let client = pubber.join().unwrap();
+    let _ = client.disconnect();
+}
+
+struct Service {
+    child: Child,
+    http_port: u16,
+}
+
+impl Service {
+    fn start(config: &Path, http_port: u16) -> Service {
+        let log = std::fs::File::create(config.with_extension(format!("log{}", free_port()))).unwrap();
+        let child = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+            .args(["run", "--config", config.to_str().unwrap()])
+            .env("RUST_LOG", "info")
+            .stdout(Stdio::null())
+            .stderr(log)
+            .spawn()
+            .unwrap();
+        let s = Service { child, http_port };
+        poll_until("the service's /healthz", || http::get(http_port, "/healthz").ok().filter(|r| r.status == 200));
+        s
+    }
+
+    fn snapshot(&self) -> Option<serde_json::Value> {
+        let r = http::get(self.http_port, "/api/components").ok()?;
+        serde_json::from_str(&r.text()).ok()
+    }
+
+    fn wait_connected(&self) {
+        poll_until("MQTT connection", || self.snapshot().filter(|s| s["mqtt_connected"] == true));
+    }
+
+    /// Wait until every tag's newest sample is integrated.
+    fn wait_until_integrated(&self, last_ts: i64) -> serde_json::Value {
+        let want = chrono::DateTime::from_timestamp(last_ts, 0).unwrap().format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string();
+        poll_until("the ledger to reach the last sample", || {
+            self.snapshot().filter(|s| s["components"].as_array().is_some_and(|c| c.iter().all(|c| c["integrated_to"] == want.as_str())))
+        })
+    }
+
+    fn kill9(mut self) {
+        self.child.kill().unwrap();
+        self.child.wait().unwrap();
+    }
+
+    fn sigterm(mut self) -> std::process::ExitStatus {
+        signal(&self.child, "TERM");
+        self.child.wait().unwrap()
+    }
+}
+
+impl Drop for Service {
+    fn drop(&mut self) {
+        let _ = self.child.kill();
+        let _ = self.child.wait();
+    }
+}
+
+fn signal(child: &Child, sig: &str) {
+    Command::new("kill").args([&format!("-{sig}"), &child.id().to_string()]).status().unwrap();
+}
+
+fn replay_json(config: &Path, csv: &Path) -> serde_json::Value {
+    let o = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+        .args(["replay", "--config", config.to_str().unwrap(), "--input", csv.to_str().unwrap(), "--format", "json"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    serde_json::from_slice(&o.stdout).unwrap()
+}
+
+const LEDGER_FIELDS: [&str; 9] = [
+    "creep_life_fraction",
+    "creep_strain",
+    "wear_depth_mm",
+    "integrated_h",
+    "unmonitored_h",
+    "hours_in_creep_range",
+    "over_design_h",
+    "damage_rate_per_h",
+    "histograms",
+];
+
+fn compare(live: &serde_json::Value, replay: &serde_json::Value, rel: f64) {
+    let a = live["components"].as_array().unwrap();
+    let b = replay["components"].as_array().unwrap();
+    assert_eq!(a.len(), b.len());
+    for (x, y) in a.iter().zip(b) {
+        assert_eq!(x["component"], y["component"]);
+        for f in LEDGER_FIELDS {
+            if rel == 0.0 || !x[f].is_number() {
+                assert_eq!(x[f], y[f], "{} {f}", x["component"]);
+            } else {
+                let (p, q) = (x[f].as_f64().unwrap(), y[f].as_f64().unwrap());
+                assert!((p - q).abs() <= rel * q.abs().max(1e-300), "{} {f}: live {p} replay {q}", x["component"]);
+            }
+        }
+    }
+}
+
+#[test]
+fn live_and_replay_give_identical_ledgers() {
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, None, "");
+    let s = samples(600);
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    publish_all(broker.port, &s, "publisher-identity");
+    let live = svc.wait_until_integrated(s.last().unwrap().1);
+    let replay = replay_json(&cfg, &csv(dir.path(), &s));
+    compare(&live, &replay, 0.0);
+    assert_eq!(live["engine"]["accepted"], replay["counters"]["accepted"]);
+    assert!(live["components"][0]["creep_life_fraction"].as_f64().unwrap() > 0.0);
+    assert!(live["components"][1]["wear_depth_mm"].as_f64().unwrap() > 0.0);
+    assert!(svc.sigterm().success());
+}
+
+#[test]
+fn kill_9_loses_nothing_and_counts_nothing_twice() {
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, None, "");
+    let s = samples(3000);
+    // First run: make the persistent session exist.
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    let publisher = {
+        let s = s.clone();
+        let port = broker.port;
+        std::thread::spawn(move || {
+            for (i, chunk) in s.chunks(400).enumerate() {
+                publish_all(port, chunk, &format!("publisher-kill-{i}"));
+                std::thread::sleep(Duration::from_millis(100));
+            }
+        })
+    };
+    // Kill the service repeatedly while the stream runs; restart each time.
+    let mut svc = svc;
+    let mut last_accepted = 0;
+    let mut kills = 0;
+    for round in 0..5 {
+        let seen = poll_until("progress before a kill", || {
+            svc.snapshot().and_then(|v| v["engine"]["accepted"].as_u64()).filter(|&a| a > last_accepted)
+        });
+        if seen >= s.len() as u64 {
+            break;
+        }
+        last_accepted = seen;
+        svc.kill9();
+        kills += 1;
+        eprintln!("round {round}: killed at {seen} of {} samples", s.len());
+        svc = Service::start(&cfg, http_port);
+    }
+    assert!(kills >= 2, "the stream ended before two kills ({kills})");
+    publisher.join().unwrap();
+    let live = svc.wait_until_integrated(s.last().unwrap().1);
+    let replay = replay_json(&cfg, &csv(dir.path(), &s));
+    // The design asks for 1e-12 relative; the engine is deterministic, so
+    // the ledgers are in fact identical.
+    compare(&live, &replay, 1e-12);
+    compare(&live, &replay, 0.0);
+    let accepted = live["engine"]["accepted"].as_u64().unwrap();
+    assert_eq!(accepted, s.len() as u64, "every sample integrated exactly once");
+    drop(svc);
+}
+
+#[test]
+fn database_outage_loses_no_point() {
+    let broker = Mosquitto::start();
+    let mut vm = VictoriaMetrics::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, Some(&vm.url()), "");
+    let s = samples(400);
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    publish_all(broker.port, &s[..800], "publisher-outage-1");
+    svc.wait_until_integrated(s[799].1);
+    vm.stop();
+    publish_all(broker.port, &s[800..], "publisher-outage-2");
+    let during = svc.wait_until_integrated(s.last().unwrap().1);
+    assert!(during["outbox_lines"].as_u64().unwrap() > 0, "points wait in the outbox while the database is down");
+    vm.start_again();
+    let done = poll_until("the outbox to drain", || svc.snapshot().filter(|v| v["outbox_lines"] == 0));
+    let series_points = done["service"]["series_points"].as_u64().unwrap();
+    vm.flush();
+    let exported = vm.export("{__name__=\"component_state_unmonitored_h\"}");
+    let n: usize = exported.iter().map(|e| e.samples().len()).sum();
+    assert_eq!(n as u64, series_points, "every component_state point arrived");
+    // Values: the newest point of the tube equals the ledger.
+    let lf = vm.export("{__name__=\"component_state_creep_life_fraction\",component=\"SH-TUBE\"}");
+    let newest = lf[0].samples().last().unwrap().1;
+    let ledger = done["components"][0]["creep_life_fraction"].as_f64().unwrap();
+    assert!((newest / ledger - 1.0).abs() < 1e-6, "{newest} vs {ledger}");
+    // Thresholds and alarm events reached the database too.
+    assert!(!vm.export("{__name__=\"alarm_threshold_value\"}").is_empty());
+    assert!(!vm.export("{__name__=~\"alarm_event_.*\"}").is_empty());
+    assert!(!vm.export("{__name__=~\"service_health_.*\"}").is_empty());
+    drop(svc);
+}
+
+#[test]
+fn sigterm_stops_cleanly_and_restart_resumes() {
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, None, "");
+    let s = samples(300);
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    publish_all(broker.port, &s[..600], "publisher-term-1");
+    svc.wait_until_integrated(s[599].1);
+    assert!(svc.sigterm().success(), "clean exit on SIGTERM");
+    // While it is down the broker keeps the backlog of the persistent session.
+    publish_all(broker.port, &s[600..], "publisher-term-2");
+    let svc = Service::start(&cfg, http_port);
+    let live = svc.wait_until_integrated(s.last().unwrap().1);
+    compare(&live, &replay_json(&cfg, &csv(dir.path(), &s)), 0.0);
+    assert_eq!(live["engine"]["duplicate"], 0);
+    // SIGHUP with a configuration that drops a component keeps its ledger.
+    let text = std::fs::read_to_string(&cfg).unwrap();
+    let cut = text.find("[[component]]\nname = \"SUPPORT\"").unwrap();
+    let end = text.find("[mqtt]").unwrap();
+    std::fs::write(&cfg, format!("{}{}", &text[..cut], &text[end..])).unwrap();
+    signal(&svc.child, "HUP");
+    let after = poll_until("reload", || svc.snapshot().filter(|v| v["components"].as_array().is_some_and(|c| c.len() == 1)));
+    assert_eq!(after["retired_components"][0], "SUPPORT");
+    assert_eq!(after["components"][0]["creep_life_fraction"], live["components"][0]["creep_life_fraction"]);
+    assert!(svc.sigterm().success());
+}
+
+#[test]
+fn alarms_go_out_on_mqtt_and_can_be_acknowledged() {
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, None, "");
+    // A listener for the alarm topics.
+    let mut o = MqttOptions::new("alarm-listener", "127.0.0.1", broker.port);
+    o.set_keep_alive(Duration::from_secs(30));
+    let (client, mut conn) = Client::new(o, 100);
+    client.subscribe("lifeledger/alarms/#", QoS::AtLeastOnce).unwrap();
+    let (tx, rx) = std::sync::mpsc::channel::<(String, serde_json::Value)>();
+    std::thread::spawn(move || {
+        for ev in conn.iter() {
+            match ev {
+                Ok(Event::Incoming(Packet::Publish(p))) => {
+                    if let Ok(v) = serde_json::from_slice(&p.payload) {
+                        if tx.send((p.topic.clone(), v)).is_err() {
+                            break;
+                        }
+                    }
+                }
+                Ok(_) => {}
+                Err(_) => break,
+            }
+        }
+    });
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    let s = samples(400);
+    publish_all(broker.port, &s, "publisher-alarms");
+    svc.wait_until_integrated(s.last().unwrap().1);
+    let mut got = vec![];
+    let event = poll_until("an alarm event on MQTT", || {
+        while let Ok(m) = rx.try_recv() {
+            got.push(m);
+        }
+        got.iter().find(|(t, v)| t == "lifeledger/alarms/events" && v["index"] == "creep_life_fraction").cloned()
+    });
+    let e = &event.1;
+    assert_eq!(e["component"], "SH-TUBE");
+    assert_eq!(e["severity"], "advisory");
+    assert_eq!(e["state"], "unacknowledged");
+    assert!(e["caution"].as_str().unwrap().contains("governing code"));
+    assert!(e["threshold"].as_f64().is_some() && e["value"].as_f64().is_some() && e["time"].is_string());
+    assert!(got.iter().any(|(t, _)| t == "lifeledger/alarms/state/SH-TUBE"));
+    // Acknowledge by command.
+    client
+        .publish(
+            "lifeledger/commands",
+            QoS::AtLeastOnce,
+            false,
+            br#"{"action":"acknowledge","component":"SH-TUBE","index":"creep_life_fraction","by":"test operator"}"#.to_vec(),
+        )
+        .unwrap();
+    poll_until("the acknowledged state", || {
+        while let Ok(m) = rx.try_recv() {
+            got.push(m);
+        }
+        got.iter().find(|(t, v)| t == "lifeledger/alarms/events" && v["state"] == "acknowledged").cloned()
+    });
+    // Durable: after a restart the alarm is still acknowledged.
+    assert!(svc.sigterm().success());
+    let svc = Service::start(&cfg, http_port);
+    let snap = poll_until("snapshot", || svc.snapshot());
+    let recs = snap["alarms"][0]["alarms"].as_array().unwrap();
+    assert!(recs.iter().any(|r| r["index"] == "creep_life_fraction" && r["state"] == "acknowledged"), "{recs:?}");
+    let _ = client.disconnect();
+}
+
+#[test]
+fn bad_messages_are_counted_and_the_service_keeps_running() {
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, None, "");
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    let mut o = MqttOptions::new("bad-publisher", "127.0.0.1", broker.port);
+    o.set_keep_alive(Duration::from_secs(30));
+    let (client, mut conn) = Client::new(o, 100);
+    let bad: Vec<(&str, Vec<u8>)> = vec![
+        ("plant/TE-1", b"not json".to_vec()),
+        ("plant/TE-1", br#"{"value": "hot", "timestamp": 1790812800}"#.to_vec()),
+        ("plant/TE-1", br#"{"value": 1e999, "timestamp": 1790812800}"#.to_vec()),
+        ("plant/TE-1", br#"{"value": 5000, "timestamp": 1790812800}"#.to_vec()),
+        ("plant/TE-1", br#"{"value": 500, "timestamp": "yesterday"}"#.to_vec()),
+        ("plant/NO-SUCH-TAG", br#"{"value": 1, "timestamp": 1790812800}"#.to_vec()),
+        ("plant/TE-1", br#"{"value": 500, "timestamp": 1790812800, "quality": "bad"}"#.to_vec()),
+        ("plant/TE-1", br#"{"value": 500, "timestamp": 1790812800}"#.to_vec()),
+        ("plant/TE-1", br#"{"value": 500, "timestamp": 1790812800}"#.to_vec()),
+    ];
+    let n = bad.len();
+    for (t, p) in bad {
+        client.publish(t, QoS::AtLeastOnce, false, p).unwrap();
+    }
+    let mut acked = 0;
+    for ev in conn.iter() {
+        if let Ok(Event::Incoming(Packet::PubAck(_))) = ev {
+            acked += 1;
+            if acked == n {
+                break;
+            }
+        }
+    }
+    let snap = poll_until("all nine messages counted", || {
+        svc.snapshot().filter(|v| v["service"]["acked"].as_u64().unwrap_or(0) >= n as u64)
+    });
+    let e = &snap["engine"];
+    let d = &snap["service"]["decode_rejected"];
+    assert_eq!(d["malformed_payload"], 3, "{d}"); // not json, "hot", 1e999 (not a JSON number)
+    assert_eq!(d["bad_timestamp"], 1);
+    assert_eq!(e["out_of_range"], 1);
+    assert_eq!(e["unknown_tag"], 1);
+    assert_eq!(e["bad_quality"], 1);
+    assert_eq!(e["accepted"], 1);
+    assert_eq!(e["duplicate"], 1);
+    let m = http::get(http_port, "/metrics").unwrap().text();
+    assert!(m.contains("lifeledger_samples_rejected_total{reason=\"out_of_range\"} 1"), "{m}");
+    assert_eq!(http::get(http_port, "/readyz").unwrap().status, 200);
+    let _ = client.disconnect();
+    assert!(svc.sigterm().success());
+}
