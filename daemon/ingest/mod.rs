@@ -191,6 +191,8 @@ pub enum Inbound {
     Message { publish: Publish, received_ms: i64 },
     /// Connection state changed.
     Connection { connected: bool },
+    /// An alarm command that came in over HTTP (already authorised).
+    HttpCommand { payload: Vec<u8> },
 }
 
 /// Wall-clock now in ms since the epoch (shell only; the engine never reads clocks).

@@ -14,6 +14,13 @@ use tokio::sync::watch;
 #[derive(Clone)]
 pub struct HttpState {
     pub snapshot: watch::Receiver<Arc<Snapshot>>,
+    pub trends: watch::Receiver<Arc<super::snapshot::Trends>>,
+    /// Token allowing acknowledge/shelve over HTTP; `None`: read-only.
+    pub token: Option<String>,
+    /// Where HTTP alarm commands go (the ledger thread).
+    pub commands: tokio::sync::mpsc::Sender<crate::ingest::Inbound>,
+    /// The material library in use.
+    pub library: Arc<crate::settings::library::MaterialLibrary>,
 }
 
 /// The router.
@@ -23,6 +30,9 @@ pub fn router(state: HttpState) -> Router {
         .route("/readyz", get(readyz))
         .route("/metrics", get(metrics))
         .route("/api/components", get(components))
+        .route("/api/components/:name/trend", get(trend))
+        .route("/api/materials/:grade", get(material))
+        .route("/api/alarms/command", axum::routing::post(alarm_command))
         .route("/", get(index))
         .with_state(state)
 }
@@ -49,6 +59,42 @@ async fn metrics(State(s): State<HttpState>) -> Response {
 async fn components(State(s): State<HttpState>) -> Json<Snapshot> {
     let snap = s.snapshot.borrow().clone();
     Json((*snap).clone())
+}
+
+async fn trend(State(s): State<HttpState>, axum::extract::Path(name): axum::extract::Path<String>) -> Response {
+    let t = s.trends.borrow().clone();
+    match t.components.get(&name) {
+        Some(points) => Json(serde_json::json!({"component": name, "points": points})).into_response(),
+        None => (StatusCode::NOT_FOUND, format!("no trend for component {name:?}\n")).into_response(),
+    }
+}
+
+async fn material(State(s): State<HttpState>, axum::extract::Path(grade): axum::extract::Path<String>) -> Response {
+    match s.library.get(&grade) {
+        Some(m) => Json(serde_json::json!({"material": m, "caution": crate::CAUTION})).into_response(),
+        None => (StatusCode::NOT_FOUND, format!("unknown grade {grade:?}\n")).into_response(),
+    }
+}
+
+/// Acknowledge, shelve or unshelve over HTTP: the same JSON as the MQTT
+/// command topic, allowed only with `Authorization: Bearer <token>` when a
+/// token is configured. The command is applied by the ledger thread like an
+/// MQTT command, so it is durable before it takes effect.
+async fn alarm_command(State(s): State<HttpState>, headers: axum::http::HeaderMap, body: axum::body::Bytes) -> Response {
+    let Some(token) = &s.token else {
+        return (StatusCode::FORBIDDEN, "read-only: no [http] token_env configured\n").into_response();
+    };
+    let given = headers.get(header::AUTHORIZATION).and_then(|v| v.to_str().ok()).and_then(|v| v.strip_prefix("Bearer "));
+    if given != Some(token.as_str()) {
+        return (StatusCode::UNAUTHORIZED, "missing or wrong bearer token\n").into_response();
+    }
+    if let Err(e) = crate::alarm::parse_command(&body) {
+        return (StatusCode::BAD_REQUEST, format!("{e}\n")).into_response();
+    }
+    match s.commands.send(crate::ingest::Inbound::HttpCommand { payload: body.to_vec() }).await {
+        Ok(()) => (StatusCode::ACCEPTED, "accepted\n").into_response(),
+        Err(_) => (StatusCode::SERVICE_UNAVAILABLE, "ledger is stopping\n").into_response(),
+    }
 }
 
 async fn index(State(s): State<HttpState>) -> Response {

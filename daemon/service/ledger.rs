@@ -90,6 +90,16 @@ pub struct Ledger {
     holding: bool,
     /// Outbox lines not tied to a component change (thresholds, health).
     extra_outbox: Vec<String>,
+    trends: super::snapshot::Trends,
+    trends_tx: watch::Sender<Arc<super::snapshot::Trends>>,
+    recent_events: std::collections::VecDeque<AlarmEvent>,
+    /// Commit even with nothing pending (an HTTP command changed alarms).
+    force_commit: bool,
+}
+
+/// Points kept per component for trends: bounded in total.
+fn trend_cap(ncomp: usize) -> usize {
+    (2_000_000 / ncomp.max(1)).clamp(50, 5000)
 }
 
 fn quota(s: &ServiceSettings) -> u64 {
@@ -103,6 +113,7 @@ impl Ledger {
         service: ServiceSettings,
         client: AsyncClient,
         snapshot_tx: watch::Sender<Arc<Snapshot>>,
+        trends_tx: watch::Sender<Arc<super::snapshot::Trends>>,
     ) -> anyhow::Result<Ledger> {
         let store = Store::open(&service.store.path)?;
         let loaded = store.load()?;
@@ -184,6 +195,10 @@ impl Ledger {
             outbox: stats,
             holding: false,
             extra_outbox: vec![],
+            trends: Default::default(),
+            trends_tx,
+            recent_events: Default::default(),
+            force_commit: false,
             service,
         };
         // Thresholds go to the database at start-up, at the newest event time.
@@ -235,7 +250,7 @@ impl Ledger {
                     continue;
                 }
             }
-            let msg = if self.pending.is_empty() && self.extra_outbox.is_empty() {
+            let msg = if self.pending.is_empty() && self.extra_outbox.is_empty() && !self.force_commit {
                 match rt.block_on(async { tokio::time::timeout(Duration::from_millis(500), rx.recv()).await }) {
                     Ok(Some(m)) => Some(m),
                     Ok(None) => {
@@ -324,6 +339,11 @@ impl Ledger {
 
     fn handle(&mut self, m: Inbound) {
         match m {
+            Inbound::HttpCommand { payload } => {
+                self.command(&payload);
+                // Nothing to acknowledge; commit so the change is durable.
+                self.force_commit = true;
+            }
             Inbound::Connection { connected } => {
                 self.mqtt_connected = connected;
                 self.publish_snapshot(true);
@@ -460,8 +480,10 @@ impl Ledger {
     pub fn commit(&mut self) {
         let changed = self.engine.take_changed();
         if changed.is_empty() && self.pending.is_empty() && self.extra_outbox.is_empty() && self.events.is_empty() && self.dirty_alarms.is_empty() {
+            self.force_commit = false;
             return;
         }
+        self.force_commit = false;
         let started = Instant::now();
         let plant = self.cfg.plan.plant.clone();
         let interval = self.service.store.series_interval_s.max(1) * 1000;
@@ -476,6 +498,20 @@ impl Ledger {
                     if let Some(l) = component_point(&plant, plan, st, t).to_line() {
                         outbox.push(l);
                         self.counters.series_points += 1;
+                    }
+                    let cap = trend_cap(self.next_series_ms.len());
+                    let q = self.trends.components.entry(plan.name.clone()).or_default();
+                    q.push_back(super::snapshot::TrendPoint {
+                        t,
+                        metal_temperature_c: crate::physics::units::kelvin_to_celsius(st.now.metal_temperature_k),
+                        pressure_mpa: st.now.pressure_mpa,
+                        hoop_stress_mpa: st.now.hoop_stress_mpa,
+                        creep_life_fraction: st.life_fraction,
+                        creep_strain: st.creep_strain,
+                        wear_index: st.wear_index(plan),
+                    });
+                    while q.len() > cap {
+                        q.pop_front();
                     }
                     outbox.extend(threshold_points(&plant, plan, t).into_iter().filter_map(|p| p.to_line()));
                     self.next_series_ms[ci] = (t.div_euclid(interval) + 1) * interval;
@@ -534,6 +570,12 @@ impl Ledger {
                 self.dirty_alarms.clear();
                 let events = std::mem::take(&mut self.events);
                 self.publish_alarms(&events);
+                for e in events {
+                    self.recent_events.push_back(e);
+                    if self.recent_events.len() > 200 {
+                        self.recent_events.pop_front();
+                    }
+                }
                 self.check_quota();
             }
             Err(e) => {
@@ -628,6 +670,7 @@ impl Ledger {
             return;
         }
         self.last_snapshot = Instant::now();
+        let _ = self.trends_tx.send(Arc::new(self.trends.clone()));
         let components: Vec<ComponentReport> = self
             .engine
             .plan()
@@ -653,6 +696,7 @@ impl Ledger {
             components,
             alarms,
             retired_components: self.retired.iter().map(|(n, _)| n.clone()).collect(),
+            recent_events: self.recent_events.iter().cloned().collect(),
             caution: crate::CAUTION,
         };
         let _ = self.snapshot_tx.send(Arc::new(snap));

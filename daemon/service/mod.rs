@@ -49,7 +49,9 @@ pub async fn run(config_path: &Path) -> anyhow::Result<()> {
     let options = svc.mqtt.options().map_err(|e| anyhow::anyhow!(e))?;
     let (client, eventloop) = rumqttc::AsyncClient::new(options, 4096);
     let (snap_tx, snap_rx) = watch::channel(Arc::new(snapshot::Snapshot::default()));
-    let ledger = Ledger::open(cfg, svc.clone(), client.clone(), snap_tx)
+    let (trend_tx, trend_rx) = watch::channel(Arc::new(snapshot::Trends::default()));
+    let library = Arc::new(cfg.library.clone());
+    let ledger = Ledger::open(cfg, svc.clone(), client.clone(), snap_tx, trend_tx)
         .with_context(|| format!("opening the ledger {}", svc.store.path.display()))?;
     let filters = Ledger::filters(&svc);
 
@@ -58,7 +60,12 @@ pub async fn run(config_path: &Path) -> anyhow::Result<()> {
         .await
         .with_context(|| format!("[http] listen {}: cannot bind", svc.http.listen))?;
     tracing::info!("status on http://{}/", listener.local_addr()?);
-    let http_state = http::HttpState { snapshot: snap_rx.clone() };
+    let (in_tx, in_rx) = mpsc::channel::<Inbound>(1024);
+    let token = match &svc.http.token_env {
+        Some(var) => Some(std::env::var(var).with_context(|| format!("[http] token_env: environment variable {var} is not set"))?),
+        None => None,
+    };
+    let http_state = http::HttpState { snapshot: snap_rx.clone(), trends: trend_rx, token, commands: in_tx.clone(), library };
     let mut http_shutdown = shutdown_tx.subscribe();
     let http_task = tokio::spawn(async move {
         let _ = axum::serve(listener, http::router(http_state))
@@ -68,7 +75,6 @@ pub async fn run(config_path: &Path) -> anyhow::Result<()> {
             .await;
     });
 
-    let (in_tx, in_rx) = mpsc::channel::<Inbound>(1024);
     let (ctl_tx, ctl_rx) = std::sync::mpsc::channel::<Control>();
     let rt = tokio::runtime::Handle::current();
     let ledger_task = tokio::task::spawn_blocking(move || ledger.run(in_rx, ctl_rx, rt));

@@ -28,6 +28,25 @@ pub struct ServiceCounters {
     pub series_points: u64,
 }
 
+/// One point of a component's recent trend (for the status page).
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct TrendPoint {
+    /// Event time, ms since the epoch.
+    pub t: i64,
+    pub metal_temperature_c: f64,
+    pub pressure_mpa: f64,
+    pub hoop_stress_mpa: f64,
+    pub creep_life_fraction: f64,
+    pub creep_strain: f64,
+    pub wear_index: f64,
+}
+
+/// Recent trends of every component, newest last, bounded per component.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct Trends {
+    pub components: BTreeMap<String, std::collections::VecDeque<TrendPoint>>,
+}
+
 /// What `/api/components`, `/metrics`, `/healthz` and `/readyz` show.
 #[derive(Debug, Clone, Default, Serialize)]
 pub struct Snapshot {
@@ -46,6 +65,8 @@ pub struct Snapshot {
     pub service: ServiceCounters,
     pub components: Vec<ComponentReport>,
     pub alarms: Vec<ComponentAlarmSummary>,
+    /// The most recent alarm events (newest last, at most 200).
+    pub recent_events: Vec<crate::alarm::AlarmEvent>,
     /// Components kept in the ledger but no longer configured.
     pub retired_components: Vec<String>,
     pub caution: &'static str,
