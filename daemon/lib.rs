@@ -20,6 +20,7 @@
 //! * [`alarm`]: threshold alarms with ISA-18.2 states.
 
 pub mod alarm;
+pub mod demo;
 pub mod engine;
 pub mod fit;
 pub mod ingest;

@@ -103,6 +103,44 @@ enum Command {
         #[arg(long, value_enum, default_value_t = LogFormat::Human)]
         log_format: LogFormat,
     },
+    /// Run everything on this machine with no external servers: embedded broker, plant simulator, live service, status page.
+    ///
+    /// An invented unit (Brackenmoor Demo Station, U2) is simulated, time
+    /// compressed, and published as real MQTT tag messages to an embedded
+    /// broker on a loopback port; the live service subscribes exactly as in
+    /// production. Within a minute the ledgers move, a warning fires (an
+    /// over-temperature excursion) and a stale-tag alarm fires (a failing
+    /// thermocouple). Demo data only.
+    ///
+    /// Example: lifeledger demo --duration 60
+    #[command(after_help = CAUTION_HELP)]
+    Demo {
+        /// Real seconds to run (default: until Ctrl-C).
+        #[arg(long)]
+        duration: Option<f64>,
+        /// Simulated seconds per real second (86400: a simulated day per second).
+        #[arg(long, default_value_t = 86_400.0)]
+        speed: f64,
+        /// Simulated seconds between two samples of a tag.
+        #[arg(long, default_value_t = 240)]
+        sample_period_s: i64,
+        /// Status page address (loopback by default).
+        #[arg(long, default_value = "127.0.0.1:8470")]
+        http: String,
+        /// Keep the ledger in this directory (default: a temporary one).
+        #[arg(long)]
+        state_dir: Option<PathBuf>,
+        /// Also write to this database (InfluxDB v2 write API), e.g. http://127.0.0.1:8428.
+        #[arg(long)]
+        database_url: Option<String>,
+        #[arg(long, default_value = "demo")]
+        database_org: String,
+        #[arg(long, default_value = "demo")]
+        database_bucket: String,
+        /// Environment variable holding the database token.
+        #[arg(long)]
+        database_token_env: Option<String>,
+    },
     /// Fit material constants (Larson-Miller, Norton) from your own creep test data.
     #[command(after_help = CAUTION_HELP)]
     Fit {
@@ -156,10 +194,31 @@ fn main() {
     let cli = Cli::parse();
     match &cli.command {
         Command::Run { log_format, .. } => init_logs("info", *log_format == LogFormat::Json),
+        Command::Demo { .. } => init_logs("warn,rumqttd=off", false),
         _ => init_logs("warn", false),
     }
     let result = match cli.command {
         Command::Run { config, .. } => cmd_run(config),
+        Command::Demo { duration, speed, sample_period_s, http, state_dir, database_url, database_org, database_bucket, database_token_env } => {
+            let opts = lifeledger::demo::DemoOptions {
+                duration_s: duration,
+                speed,
+                sample_period_s,
+                http,
+                state_dir,
+                database_url,
+                database_org,
+                database_bucket,
+                database_token_env,
+            };
+            tokio::runtime::Builder::new_multi_thread()
+                .worker_threads(2)
+                .enable_all()
+                .build()
+                .map_err(anyhow::Error::from)
+                .and_then(|rt| rt.block_on(lifeledger::demo::run(opts)))
+                .map(|_| 0)
+        }
         Command::Replay { config, input, format, write_lp, lp_interval_s, no_progress } => {
             cmd_replay(config, input, format, write_lp, lp_interval_s, no_progress)
         }

@@ -65,6 +65,10 @@ pub struct ComponentReport {
     pub levels_reached: BTreeMap<String, String>,
     pub flags: Vec<String>,
     pub histograms: Histograms,
+    /// The alarm levels of this component (defaults unless configured).
+    pub thresholds: crate::engine::plan::Thresholds,
+    /// Design metal temperature, °C.
+    pub design_temperature_c: Option<f64>,
 }
 
 fn classes(edges: &[f64], hours: &[f64], conv: impl Fn(f64) -> f64) -> Vec<ClassHours> {
@@ -188,6 +192,8 @@ impl ComponentReport {
                 temperature_c: classes(&h.temperature_edges_k, &h.temperature_hours(), kelvin_to_celsius),
                 pressure_mpa: classes(&h.pressure_edges_mpa, &h.pressure_hours(), |p| p),
             },
+            thresholds: plan.thresholds.clone(),
+            design_temperature_c: plan.design_temperature_k.map(kelvin_to_celsius),
         }
     }
 }

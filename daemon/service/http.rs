@@ -33,7 +33,7 @@ pub fn router(state: HttpState) -> Router {
         .route("/api/components/:name/trend", get(trend))
         .route("/api/materials/:grade", get(material))
         .route("/api/alarms/command", axum::routing::post(alarm_command))
-        .route("/", get(index))
+        .merge(super::page::routes())
         .with_state(state)
 }
 
@@ -95,33 +95,4 @@ async fn alarm_command(State(s): State<HttpState>, headers: axum::http::HeaderMa
         Ok(()) => (StatusCode::ACCEPTED, "accepted\n").into_response(),
         Err(_) => (StatusCode::SERVICE_UNAVAILABLE, "ledger is stopping\n").into_response(),
     }
-}
-
-async fn index(State(s): State<HttpState>) -> Response {
-    let snap = s.snapshot.borrow().clone();
-    let mut rows = String::new();
-    for c in &snap.components {
-        rows.push_str(&format!(
-            "<tr><td>{}</td><td>{}</td><td>{:.4}</td><td>{:.3}</td><td>{:.3}</td><td>{}</td></tr>",
-            html(&c.component),
-            html(&c.material),
-            c.creep_life_fraction,
-            c.creep_strain * 100.0,
-            c.wear_index,
-            c.remaining_life_h.map_or("-".into(), |h| format!("{h:.0}"))
-        ));
-    }
-    let body = format!(
-        "<!doctype html><meta charset=utf-8><title>lifeledger: {p}</title>\
-         <h1>lifeledger: {p}</h1><p><strong>Caution:</strong> {c}</p>\
-         <table border=1 cellpadding=4><tr><th>component</th><th>material</th><th>life fraction</th><th>creep strain %</th><th>wear index</th><th>remaining h</th></tr>{rows}</table>\
-         <p>JSON: <a href=/api/components>/api/components</a> · <a href=/metrics>/metrics</a></p>",
-        p = html(&snap.plant),
-        c = html(snap.caution),
-    );
-    ([(header::CONTENT_TYPE, "text/html; charset=utf-8")], body).into_response()
-}
-
-fn html(s: &str) -> String {
-    s.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('"', "&quot;")
 }

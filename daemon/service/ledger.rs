@@ -77,6 +77,8 @@ pub struct Ledger {
     newest_ms: Option<i64>,
     /// Per tag: (out of range now, bad quality now).
     sensor: Vec<(bool, bool)>,
+    /// Per tag: the same faults seen since the last sensor check.
+    sensor_latched: Vec<(bool, bool)>,
     retired: Vec<(String, ComponentState)>,
     retired_tags: Vec<(String, TagState)>,
     counters: ServiceCounters,
@@ -95,6 +97,7 @@ pub struct Ledger {
     recent_events: std::collections::VecDeque<AlarmEvent>,
     /// Commit even with nothing pending (an HTTP command changed alarms).
     force_commit: bool,
+    last_sensor_check: Instant,
 }
 
 /// Points kept per component for trends: bounded in total.
@@ -183,6 +186,7 @@ impl Ledger {
             next_series_ms: vec![i64::MIN; ncomp],
             newest_ms,
             sensor: vec![(false, false); ntags],
+            sensor_latched: vec![(false, false); ntags],
             retired: left.components,
             retired_tags: left.tags,
             counters: svc,
@@ -199,6 +203,7 @@ impl Ledger {
             trends_tx,
             recent_events: Default::default(),
             force_commit: false,
+            last_sensor_check: Instant::now() - Duration::from_secs(60),
             service,
         };
         // Thresholds go to the database at start-up, at the newest event time.
@@ -409,20 +414,18 @@ impl Ledger {
                 self.newest_ms = Some(self.newest_ms.map_or(d.time_ms, |n| n.max(d.time_ms)));
                 if oor || badq {
                     self.sensor[ti] = (false, false);
-                    self.sensor_alarm(ti, AlarmIndex::SensorOutOfRange, false, d.time_ms);
-                    self.sensor_alarm(ti, AlarmIndex::SensorBadQuality, false, d.time_ms);
                 }
             }
             Err(reason) => {
                 self.log.warn(reason.name(), || format!("sample of {tag} at {} rejected: {}", rfc3339_ms(d.time_ms), reason.name()));
                 match reason {
-                    Rejection::OutOfRange | Rejection::NotFinite if !oor => {
+                    Rejection::OutOfRange | Rejection::NotFinite => {
                         self.sensor[ti].0 = true;
-                        self.sensor_alarm(ti, AlarmIndex::SensorOutOfRange, true, d.time_ms);
+                        self.sensor_latched[ti].0 = true;
                     }
-                    Rejection::BadQuality if !badq => {
+                    Rejection::BadQuality => {
                         self.sensor[ti].1 = true;
-                        self.sensor_alarm(ti, AlarmIndex::SensorBadQuality, true, d.time_ms);
+                        self.sensor_latched[ti].1 = true;
                     }
                     _ => {}
                 }
@@ -431,48 +434,51 @@ impl Ledger {
         let _ = Quality::Good;
     }
 
-    /// A sensor alarm is raised against every component that reads the tag.
-    fn sensor_alarm(&mut self, ti: usize, index: AlarmIndex, active: bool, t: i64) {
-        let tag = self.engine.plan().tags[ti].name.clone();
-        let comps: Vec<(String, String)> = self
-            .engine
-            .plan()
-            .components
-            .iter()
-            .filter(|c| c.tags().contains(&(ti as u32)))
-            .map(|c| (c.name.clone(), c.unit.clone()))
-            .collect();
-        for (name, unit) in comps {
-            let ev = self.book.evaluate_condition(&name, &unit, index, active, &format!("tag {tag}"), t);
-            for e in &ev {
-                self.dirty_alarms.insert(e.key());
-            }
-            self.events.extend(ev);
+    /// Sensor-fault alarms per component: a component's stale, out-of-range
+    /// or bad-quality alarm is active while any tag it reads is in that
+    /// fault; the detail names the tags. Staleness is judged in event time:
+    /// a tag is stale when the newest sample of any tag is more than the
+    /// tag's hold time ahead of its own newest sample.
+    fn sensor_check(&mut self) {
+        // At most every 500 ms of wall time: it visits every component.
+        if self.last_sensor_check.elapsed() < Duration::from_millis(500) {
+            return;
         }
-    }
-
-    fn stale_check(&mut self) {
-        let Some(newest) = self.newest_ms else { return };
-        for ti in 0..self.engine.plan().tags.len() {
-            let tp = &self.engine.plan().tags[ti];
-            let Some(last) = self.engine.tags()[ti].cursor_ms else { continue };
-            let stale = newest - last > tp.max_hold_ms;
-            let comps: Vec<(String, String)> = self
-                .engine
-                .plan()
-                .components
-                .iter()
-                .filter(|c| c.tags().contains(&(ti as u32)))
-                .map(|c| (c.name.clone(), c.unit.clone()))
-                .collect();
-            let detail = format!("tag {}", tp.name);
-            for (name, unit) in comps {
-                let ev = self.book.evaluate_condition(&name, &unit, AlarmIndex::SensorStale, stale, &detail, newest);
-                for e in &ev {
-                    self.dirty_alarms.insert(e.key());
+        self.last_sensor_check = Instant::now();
+        let newest = self.newest_ms;
+        let t = newest.unwrap_or_else(now_ms);
+        let plan = self.engine.plan();
+        let mut evaluations = vec![];
+        for c in &plan.components {
+            let (mut stale, mut oor, mut badq) = (vec![], vec![], vec![]);
+            for ti in c.tags() {
+                let ti = ti as usize;
+                let tp = &plan.tags[ti];
+                if let (Some(n), Some(last)) = (newest, self.engine.tags()[ti].cursor_ms) {
+                    if n - last > tp.max_hold_ms {
+                        stale.push(tp.name.as_str());
+                    }
                 }
-                self.events.extend(ev);
+                // A fault seen since the last check counts even if a good
+                // sample has cleared it since, so a short fault still alarms.
+                if self.sensor[ti].0 || self.sensor_latched[ti].0 {
+                    oor.push(tp.name.as_str());
+                }
+                if self.sensor[ti].1 || self.sensor_latched[ti].1 {
+                    badq.push(tp.name.as_str());
+                }
             }
+            for (index, tags) in [(AlarmIndex::SensorStale, stale), (AlarmIndex::SensorOutOfRange, oor), (AlarmIndex::SensorBadQuality, badq)] {
+                let detail = if tags.is_empty() { String::new() } else { format!("tag {}", tags.join(", ")) };
+                evaluations.push((c.name.clone(), c.unit.clone(), index, !tags.is_empty(), detail));
+            }
+        }
+        for l in &mut self.sensor_latched {
+            *l = (false, false);
+        }
+        for (name, unit, index, active, detail) in evaluations {
+            let ev = self.book.evaluate_condition(&name, &unit, index, active, &detail, t);
+            self.note_events(ev);
         }
     }
 
@@ -523,7 +529,7 @@ impl Ledger {
                 self.events.extend(ev);
             }
         }
-        self.stale_check();
+        self.sensor_check();
         let tags: Vec<(String, String)> = self
             .dirty_tags
             .iter()
@@ -653,6 +659,7 @@ impl Ledger {
         self.book.set_config(service.alarms.clone());
         self.next_series_ms = vec![i64::MIN; cfg.plan.components.len()];
         self.sensor = vec![(false, false); cfg.plan.tags.len()];
+        self.sensor_latched = vec![(false, false); cfg.plan.tags.len()];
         self.cfg = Arc::new(cfg);
         self.service = service;
         let t = self.newest_ms.unwrap_or_else(now_ms);

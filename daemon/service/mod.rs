@@ -17,6 +17,7 @@
 pub mod http;
 pub mod ledger;
 pub mod outbox;
+pub mod page;
 pub mod settings;
 pub mod snapshot;
 
@@ -40,6 +41,11 @@ pub fn load_service(path: &Path) -> anyhow::Result<(crate::settings::LoadedConfi
 
 /// Run the service until SIGTERM or SIGINT.
 pub async fn run(config_path: &Path) -> anyhow::Result<()> {
+    run_until(config_path, std::future::pending()).await
+}
+
+/// Run the service until SIGTERM, SIGINT or `stop` completes.
+pub async fn run_until(config_path: &Path, stop: impl std::future::Future<Output = ()>) -> anyhow::Result<()> {
     let (cfg, svc) = load_service(config_path)?;
     for w in &cfg.warnings {
         tracing::warn!("{w}");
@@ -96,8 +102,10 @@ pub async fn run(config_path: &Path) -> anyhow::Result<()> {
         let mut term = signal(SignalKind::terminate())?;
         let mut int = signal(SignalKind::interrupt())?;
         let mut hup = signal(SignalKind::hangup())?;
+        tokio::pin!(stop);
         loop {
             tokio::select! {
+                _ = &mut stop => { tracing::info!("stopping"); break; }
                 _ = term.recv() => { tracing::info!("SIGTERM: stopping"); break; }
                 _ = int.recv() => { tracing::info!("SIGINT: stopping"); break; }
                 _ = hup.recv() => {
@@ -111,7 +119,10 @@ pub async fn run(config_path: &Path) -> anyhow::Result<()> {
     }
     #[cfg(not(unix))]
     {
-        tokio::signal::ctrl_c().await?;
+        tokio::select! {
+            _ = tokio::signal::ctrl_c() => {}
+            _ = stop => {}
+        }
     }
 
     // Stop intake, let the ledger commit and acknowledge.

@@ -1,0 +1,704 @@
+//! Live service benchmark with a load generator: a real mosquitto broker on
+//! loopback, real MQTT clients (rumqttc, QoS 1) and the release
+//! `lifeledger run` binary. One run reports:
+//!
+//! 1. **Sustained zero-loss throughput** against a do-nothing subscriber.
+//!    A load generator publishes N tag messages (default 200 000; JSON
+//!    `{"value": v, "timestamp": epoch_s}`, 100 tubes × 2 tags, increasing
+//!    timestamps) with QoS 1 as fast as the broker acknowledges them
+//!    (inflight 500). (a) Baseline: a subscriber to `plant/#` (QoS 1,
+//!    persistent session, automatic acks) that only counts. (b) The same
+//!    stream into `lifeledger run` (100 tubes, no database), which
+//!    acknowledges each message only after its SQLite group commit. Both
+//!    rates are taken from the first publish to "done": the baseline's last
+//!    receive, and for the service the receipt of an alarm event that the
+//!    stream's last message (one out-of-range sample on a sentinel tag)
+//!    provokes: the service publishes it right after the commit that
+//!    acknowledges every earlier message, so it marks "integrated and
+//!    acknowledged" without the 0.5 s lag of the HTTP snapshot. The snapshot
+//!    then confirms zero loss (`engine.accepted == N`, `duplicate == 0`,
+//!    `service.acked == N + 1`). The baseline's first-to-last-receive rate
+//!    is printed too.
+//! 2. **Tag-to-alarm latency** at 10 000 samples/s: a paced background
+//!    stream (10 ms slices of 100 messages over 100 tags) plus, every
+//!    200 ms, one out-of-range sample on a dedicated tag with a
+//!    `valid_range` (a good one 100 ms later clears it). Latency is from the
+//!    publish call of the bad sample to the receipt of its `activated`
+//!    `sensor_out_of_range` event on `lifeledger/alarms/events` (matched by
+//!    the tag in `detail` and the event time). 120 samples; p50, p99, max.
+//! 3. **Resident memory with 10 000 components** (10 000 tubes, 20 000
+//!    tags): VmRSS of the service after start and after one sample per tag
+//!    has been accepted, and VmHWM (peak).
+//!
+//! Run: `cargo bench --bench live` (or `tests/bench/live.sh`). Cargo builds
+//! the release binary and passes its path as `CARGO_BIN_EXE_lifeledger`.
+//! Needs `/usr/sbin/mosquitto` (tests/run installs it). Environment:
+//! `LIVE_BENCH_N` overrides N. Everything listens on 127.0.0.1 only; every
+//! wait is a bounded count of polls that gives up (and reports) on a
+//! stall. This is a benchmark: it reports numbers and checks no timing.
+
+#[path = "../tests/common/mod.rs"]
+mod common;
+
+use common::{free_port, http, Mosquitto};
+use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
+use std::collections::HashMap;
+use std::path::{Path, PathBuf};
+use std::process::{Child, Command, Stdio};
+use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::{mpsc, Arc, Mutex};
+use std::time::{Duration, Instant};
+
+const T0: i64 = 1_790_812_800; // 2026-10-01T00:00:00Z
+const PAUSE: Duration = Duration::from_millis(20);
+/// Polls without progress after which a wait gives up (20 s at 20 ms).
+const STALL_POLLS: u32 = 1000;
+/// Upper bound on the polls of any wait (20 min at 20 ms); never reached
+/// unless the service keeps crawling forward.
+const MAX_POLLS: u32 = 60_000;
+
+type Msg = (String, Vec<u8>);
+
+fn payload(ts: i64, v: f64) -> Vec<u8> {
+    format!("{{\"value\": {v:.3}, \"timestamp\": {ts}}}").into_bytes()
+}
+
+// ---------------------------------------------------------------- config
+
+/// `[[tag]]` T{i}, P{i} and one tube reading them.
+fn tube(i: usize) -> String {
+    format!(
+        "[[tag]]\nname = \"T{i}\"\nunit = \"degC\"\n[[tag]]\nname = \"P{i}\"\nunit = \"bar\"\n\
+         [[component]]\nname = \"TUBE-{i}\"\nunit = \"U1\"\nkind = \"tube\"\nmaterial = \"2.25Cr-1Mo\"\n\
+         design_temperature = {{ value = 570, unit = \"degC\" }}\ndesign_pressure = {{ value = 180, unit = \"bar\" }}\n\
+         metal_temperature = \"T{i}\"\npressure = \"P{i}\"\n\
+         [component.geometry]\noutside_diameter = {{ value = 44.5, unit = \"mm\" }}\nwall = {{ value = 5.0, unit = \"mm\" }}\n"
+    )
+}
+
+/// A tube on a single temperature tag with `valid_range = [0, 800]` and a
+/// constant pressure: its out-of-range samples raise sensor alarms.
+fn guarded_tube(name: &str, tag: &str) -> String {
+    format!(
+        "[[tag]]\nname = \"{tag}\"\nunit = \"degC\"\nvalid_range = [0, 800]\n\
+         [[component]]\nname = \"{name}\"\nunit = \"U1\"\nkind = \"tube\"\nmaterial = \"2.25Cr-1Mo\"\n\
+         design_temperature = {{ value = 570, unit = \"degC\" }}\ndesign_pressure = {{ value = 180, unit = \"bar\" }}\n\
+         metal_temperature = \"{tag}\"\npressure = {{ value = 160, unit = \"bar\" }}\n\
+         [component.geometry]\noutside_diameter = {{ value = 44.5, unit = \"mm\" }}\nwall = {{ value = 5.0, unit = \"mm\" }}\n"
+    )
+}
+
+fn service_config(dir: &Path, mqtt_port: u16, http_port: u16, body: &str) -> PathBuf {
+    let text = format!(
+        "[plant]\nname = \"Bench Station\"\n{body}\n\
+         [mqtt]\nport = {mqtt_port}\nclient_id = \"lifeledger-bench\"\nreconnect_min_s = 0.1\nreconnect_max_s = 0.5\n\
+         [[mqtt.subscription]]\ntopic = \"plant/{{tag}}\"\n\
+         [store]\npath = \"{store}\"\n\
+         [http]\nlisten = \"127.0.0.1:{http_port}\"\n",
+        store = dir.join("ledger.sqlite").display()
+    );
+    let p = dir.join("service.toml");
+    std::fs::write(&p, text).unwrap();
+    p
+}
+
+// ---------------------------------------------------------------- service
+
+struct Service {
+    child: Child,
+    http_port: u16,
+    log: PathBuf,
+}
+
+impl Service {
+    fn start(config: &Path, http_port: u16) -> Service {
+        let log = config.with_extension("log");
+        let child = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+            .args(["run", "--config", config.to_str().unwrap()])
+            .env("RUST_LOG", "info")
+            .stdin(Stdio::null())
+            .stdout(Stdio::null())
+            .stderr(std::fs::File::create(&log).unwrap())
+            .spawn()
+            .expect("start lifeledger run");
+        let mut s = Service { child, http_port, log };
+        s.poll("the service's /healthz", |s| http::get(s.http_port, "/healthz").ok().filter(|r| r.status == 200));
+        s
+    }
+
+    /// Polls `probe` every [`PAUSE`] until `Some`; bounded by [`MAX_POLLS`].
+    fn poll<T>(&mut self, what: &str, mut probe: impl FnMut(&Service) -> Option<T>) -> T {
+        for _ in 0..MAX_POLLS / 10 {
+            if let Ok(Some(st)) = self.child.try_wait() {
+                panic!("lifeledger exited ({st}) while waiting for {what}; log {}:\n{}", self.log.display(), self.log_tail());
+            }
+            if let Some(v) = probe(self) {
+                return v;
+            }
+            std::thread::sleep(PAUSE);
+        }
+        panic!("gave up waiting for {what}; log:\n{}", self.log_tail());
+    }
+
+    fn log_tail(&self) -> String {
+        let t = std::fs::read_to_string(&self.log).unwrap_or_default();
+        let l: Vec<&str> = t.lines().collect();
+        l[l.len().saturating_sub(20)..].join("\n")
+    }
+
+    fn snapshot(&self) -> Option<serde_json::Value> {
+        let r = http::get(self.http_port, "/api/components").ok()?;
+        serde_json::from_slice(&r.body).ok()
+    }
+
+    /// `VmRSS` and `VmHWM` from /proc, MiB.
+    fn memory_mib(&self) -> (f64, f64) {
+        let s = std::fs::read_to_string(format!("/proc/{}/status", self.child.id())).unwrap_or_default();
+        let kib = |key: &str| {
+            s.lines()
+                .find(|l| l.starts_with(key))
+                .and_then(|l| l.split_whitespace().nth(1))
+                .and_then(|v| v.parse::<f64>().ok())
+                .unwrap_or(f64::NAN)
+        };
+        (kib("VmRSS:") / 1024.0, kib("VmHWM:") / 1024.0)
+    }
+
+    /// Polls the snapshot until `done(snapshot)`; gives up after
+    /// [`STALL_POLLS`] polls without `progress(snapshot)` changing.
+    fn wait_snapshot(&mut self, what: &str, progress: impl Fn(&serde_json::Value) -> u64, done: impl Fn(&serde_json::Value) -> bool) -> Option<serde_json::Value> {
+        let (mut last, mut still) = (u64::MAX, 0);
+        for _ in 0..MAX_POLLS {
+            if let Ok(Some(st)) = self.child.try_wait() {
+                panic!("lifeledger exited ({st}) while waiting for {what}:\n{}", self.log_tail());
+            }
+            if let Some(s) = self.snapshot() {
+                if done(&s) {
+                    return Some(s);
+                }
+                let p = progress(&s);
+                if p == last {
+                    still += 1;
+                    if still >= STALL_POLLS {
+                        eprintln!("  stalled waiting for {what}: {p}");
+                        return Some(s);
+                    }
+                } else {
+                    (last, still) = (p, 0);
+                }
+            }
+            std::thread::sleep(PAUSE);
+        }
+        None
+    }
+
+    fn stop(mut self) {
+        let _ = Command::new("kill").args(["-TERM", &self.child.id().to_string()]).status();
+        for _ in 0..500 {
+            if matches!(self.child.try_wait(), Ok(Some(_))) {
+                return;
+            }
+            std::thread::sleep(PAUSE);
+        }
+        let _ = self.child.kill();
+        let _ = self.child.wait();
+    }
+}
+
+impl Drop for Service {
+    fn drop(&mut self) {
+        if matches!(self.child.try_wait(), Ok(None)) {
+            let _ = self.child.kill();
+            let _ = self.child.wait();
+        }
+    }
+}
+
+fn counter(s: &serde_json::Value, section: &str, key: &str) -> u64 {
+    s[section][key].as_u64().unwrap_or(0)
+}
+
+// ---------------------------------------------------------------- MQTT clients
+
+fn options(id: &str, port: u16) -> MqttOptions {
+    let mut o = MqttOptions::new(id, "127.0.0.1", port);
+    o.set_keep_alive(Duration::from_secs(30));
+    o.set_max_packet_size(1 << 20, 1 << 20);
+    o
+}
+
+/// A listener: forwards `(receipt instant, topic, payload)` of every
+/// message on `topics`; returns once its subscriptions are acknowledged.
+/// The thread ends when the receiver is dropped or the broker goes away.
+fn listen(port: u16, id: &str, topics: &[&str]) -> mpsc::Receiver<(Instant, String, Vec<u8>)> {
+    let (client, mut conn) = Client::new(options(id, port), 100);
+    for t in topics {
+        client.subscribe(*t, QoS::AtLeastOnce).unwrap();
+    }
+    let (tx, rx) = mpsc::channel();
+    let (ready_tx, ready_rx) = mpsc::channel();
+    let want = topics.len();
+    std::thread::spawn(move || {
+        let _client = client;
+        let mut subacks = 0;
+        for ev in conn.iter() {
+            match ev {
+                Ok(Event::Incoming(Packet::SubAck(_))) => {
+                    subacks += 1;
+                    if subacks == want {
+                        let _ = ready_tx.send(());
+                    }
+                }
+                Ok(Event::Incoming(Packet::Publish(p))) => {
+                    if tx.send((Instant::now(), p.topic.clone(), p.payload.to_vec())).is_err() {
+                        break;
+                    }
+                }
+                Ok(_) => {}
+                Err(_) => break,
+            }
+        }
+    });
+    ready_rx.recv_timeout(Duration::from_secs(30)).expect("listener subscribed");
+    rx
+}
+
+/// What a publish run saw.
+struct Published {
+    start: Instant,
+    last_puback: Instant,
+    acked: usize,
+}
+
+/// Publishes `msgs` with QoS 1 (inflight 500) as fast as the broker
+/// acknowledges them; returns when every PUBACK is in.
+fn publish_stream(port: u16, id: &str, msgs: Vec<Msg>) -> Published {
+    let mut o = options(id, port);
+    o.set_inflight(500);
+    let (client, mut conn) = Client::new(o, 1000);
+    let n = msgs.len();
+    let start = Instant::now();
+    let pubber = std::thread::spawn(move || {
+        for (topic, p) in msgs {
+            client.publish(topic, QoS::AtLeastOnce, false, p).unwrap();
+        }
+        client
+    });
+    let mut acked = 0;
+    let mut last_puback = start;
+    for ev in conn.iter() {
+        match ev {
+            Ok(Event::Incoming(Packet::PubAck(_))) => {
+                acked += 1;
+                last_puback = Instant::now();
+                if acked == n {
+                    break;
+                }
+            }
+            Ok(_) => {}
+            Err(e) => panic!("load generator connection failed: {e}"),
+        }
+    }
+    let client = pubber.join().unwrap();
+    let _ = client.disconnect();
+    let _ = conn.recv_timeout(Duration::from_millis(200));
+    Published { start, last_puback, acked }
+}
+
+// ---------------------------------------------------------------- 1. throughput
+
+fn throughput_stream(n: usize, comps: usize) -> Vec<Msg> {
+    let per_round = comps * 2;
+    let rounds = n.div_ceil(per_round);
+    let mut v = Vec::with_capacity(n);
+    'outer: for r in 0..rounds {
+        let ts = T0 + 60 * r as i64;
+        let x = r as f64;
+        for c in 0..comps {
+            if v.len() == n {
+                break 'outer;
+            }
+            v.push((format!("plant/T{c}"), payload(ts, 545.0 + 10.0 * (x / 97.0 + c as f64).sin())));
+            if v.len() == n {
+                break 'outer;
+            }
+            v.push((format!("plant/P{c}"), payload(ts, 160.0 + 5.0 * (x / 53.0).cos())));
+        }
+    }
+    v
+}
+
+struct Throughput {
+    n: usize,
+    publisher_rate: f64,
+    baseline_rate: f64,
+    baseline_recv_rate: f64,
+    baseline_received: u64,
+    service_rate: f64,
+    service_publisher_rate: f64,
+    accepted: u64,
+    duplicate: u64,
+    acked: u64,
+    commits: u64,
+    mean_commit_ms: f64,
+    max_commit_ms: f64,
+}
+
+fn rate(n: usize, d: Duration) -> f64 {
+    n as f64 / d.as_secs_f64()
+}
+
+fn baseline(n: usize) -> (Published, u64, Option<(Instant, Instant)>) {
+    let broker = Mosquitto::start();
+    let count = Arc::new(AtomicU64::new(0));
+    let times: Arc<Mutex<Option<(Instant, Instant)>>> = Arc::new(Mutex::new(None));
+    let mut o = options("bench-baseline-subscriber", broker.port);
+    o.set_clean_session(false);
+    let (client, mut conn) = Client::new(o, 1000);
+    client.subscribe("plant/#", QoS::AtLeastOnce).unwrap();
+    let (ready_tx, ready_rx) = mpsc::channel();
+    {
+        let (count, times) = (count.clone(), times.clone());
+        std::thread::spawn(move || {
+            let _client = client;
+            for ev in conn.iter() {
+                match ev {
+                    Ok(Event::Incoming(Packet::SubAck(_))) => {
+                        let _ = ready_tx.send(());
+                    }
+                    Ok(Event::Incoming(Packet::Publish(_))) => {
+                        let now = Instant::now();
+                        let mut t = times.lock().unwrap();
+                        *t = Some(t.map_or((now, now), |(f, _)| (f, now)));
+                        drop(t);
+                        if count.fetch_add(1, Ordering::Relaxed) + 1 == n as u64 {
+                            break;
+                        }
+                    }
+                    Ok(_) => {}
+                    Err(_) => break,
+                }
+            }
+        });
+    }
+    ready_rx.recv_timeout(Duration::from_secs(30)).expect("baseline subscriber subscribed");
+    let p = publish_stream(broker.port, "bench-load-baseline", throughput_stream(n, 100));
+    let (mut last, mut still) = (u64::MAX, 0);
+    for _ in 0..MAX_POLLS {
+        let c = count.load(Ordering::Relaxed);
+        if c >= n as u64 {
+            break;
+        }
+        if c == last {
+            still += 1;
+            if still >= STALL_POLLS {
+                break;
+            }
+        } else {
+            (last, still) = (c, 0);
+        }
+        std::thread::sleep(PAUSE);
+    }
+    let got = count.load(Ordering::Relaxed);
+    let t = *times.lock().unwrap();
+    (p, got, t)
+}
+
+fn throughput(n: usize) -> Throughput {
+    eprintln!("[1a] baseline: {n} messages into a do-nothing subscriber");
+    let (bp, received, times) = baseline(n);
+    let (first, last) = times.expect("the baseline subscriber received something");
+    let publisher_rate = rate(bp.acked, bp.last_puback - bp.start);
+    let baseline_rate = rate(received as usize, last - bp.start);
+    let baseline_recv_rate = rate(received as usize, last - first);
+    eprintln!("     received {received}/{n}: {baseline_rate:.0} msg/s (first publish to last receive), {baseline_recv_rate:.0} msg/s (first to last receive); publisher {publisher_rate:.0} msg/s");
+
+    eprintln!("[1b] lifeledger run: the same {n} messages, 100 tubes, no database");
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let mut body: String = (0..100).map(tube).collect();
+    body.push_str(&guarded_tube("SENTINEL", "SENT"));
+    let cfg = service_config(dir.path(), broker.port, http_port, &body);
+    let events = listen(broker.port, "bench-listener-1", &["lifeledger/status", "lifeledger/alarms/events"]);
+    let mut svc = Service::start(&cfg, http_port);
+    wait_online(&events);
+    let mut msgs = throughput_stream(n, 100);
+    // The last message: out of range on the sentinel tag. Its alarm event
+    // goes out after the commit that acknowledges everything before it.
+    msgs.push(("plant/SENT".into(), payload(T0, 5000.0)));
+    let sp = publish_stream(broker.port, "bench-load-service", msgs);
+    let service_publisher_rate = rate(sp.acked, sp.last_puback - sp.start);
+    let mut done_at = None;
+    let (mut last_acked, mut still) = (u64::MAX, 0);
+    for i in 0..MAX_POLLS {
+        match events.recv_timeout(PAUSE) {
+            Ok((t, topic, p)) => {
+                if topic == "lifeledger/alarms/events" && is_event(&p, "SENT", "sensor_out_of_range", "activated").is_some() {
+                    done_at = Some(t);
+                    break;
+                }
+            }
+            Err(mpsc::RecvTimeoutError::Timeout) => {}
+            Err(mpsc::RecvTimeoutError::Disconnected) => break,
+        }
+        if i % 25 == 0 {
+            let a = svc.snapshot().map_or(0, |s| counter(&s, "service", "acked"));
+            if a == last_acked {
+                still += 25;
+                if still >= STALL_POLLS {
+                    eprintln!("     stalled at {a} acknowledged");
+                    break;
+                }
+            } else {
+                (last_acked, still) = (a, 0);
+            }
+        }
+    }
+    let want = n as u64;
+    let snap = svc
+        .wait_snapshot(
+            "every message integrated and acknowledged",
+            |s| counter(s, "service", "acked"),
+            |s| counter(s, "engine", "accepted") + counter(s, "engine", "duplicate") >= want && counter(s, "service", "acked") > want,
+        )
+        .expect("a snapshot");
+    let snapshot_at = Instant::now();
+    let done = done_at.unwrap_or_else(|| {
+        eprintln!("     no sentinel event seen; using the time the snapshot showed completion (up to 0.5 s late)");
+        snapshot_at
+    });
+    let service_rate = rate(n, done - sp.start);
+    let commits = counter(&snap, "service", "commits");
+    let total_ms = snap["service"]["total_commit_ms"].as_f64().unwrap_or(0.0);
+    let r = Throughput {
+        n,
+        publisher_rate,
+        baseline_rate,
+        baseline_recv_rate,
+        baseline_received: received,
+        service_rate,
+        service_publisher_rate,
+        accepted: counter(&snap, "engine", "accepted"),
+        duplicate: counter(&snap, "engine", "duplicate"),
+        acked: counter(&snap, "service", "acked"),
+        commits,
+        mean_commit_ms: total_ms / commits.max(1) as f64,
+        max_commit_ms: snap["service"]["max_commit_ms"].as_f64().unwrap_or(0.0),
+    };
+    eprintln!(
+        "     accepted {} duplicate {} acked {} (incl. the sentinel): {service_rate:.0} msg/s; publisher {service_publisher_rate:.0} msg/s; {} commits, mean {:.2} ms, max {:.1} ms",
+        r.accepted, r.duplicate, r.acked, r.commits, r.mean_commit_ms, r.max_commit_ms
+    );
+    svc.stop();
+    r
+}
+
+fn wait_online(events: &mpsc::Receiver<(Instant, String, Vec<u8>)>) {
+    for _ in 0..MAX_POLLS {
+        match events.recv_timeout(PAUSE) {
+            Ok((_, topic, p)) if topic == "lifeledger/status" && p.windows(6).any(|w| w == b"online") => return,
+            Ok(_) | Err(mpsc::RecvTimeoutError::Timeout) => {}
+            Err(mpsc::RecvTimeoutError::Disconnected) => panic!("listener gone"),
+        }
+    }
+    panic!("the service never published its online status");
+}
+
+/// The event time (ms) of an alarm event on `tag` with `index` and
+/// `transition`, if `payload` is one.
+fn is_event(payload: &[u8], tag: &str, index: &str, transition: &str) -> Option<i64> {
+    let v: serde_json::Value = serde_json::from_slice(payload).ok()?;
+    (v["index"] == index && v["transition"] == transition && v["detail"] == format!("tag {tag}").as_str()).then(|| v["time_ms"].as_i64())?
+}
+
+// ---------------------------------------------------------------- 2. latency
+
+struct Latency {
+    samples: usize,
+    expected: usize,
+    p50_ms: f64,
+    p99_ms: f64,
+    max_ms: f64,
+    achieved_rate: f64,
+}
+
+const ALARMS: usize = 120;
+
+fn latency() -> Latency {
+    eprintln!("[2]  tag-to-alarm latency at 10 000 samples/s ({ALARMS} out-of-range samples, one every 200 ms)");
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let mut body: String = (0..50).map(tube).collect();
+    body.push_str(&guarded_tube("ALARM-TUBE", "TA"));
+    let cfg = service_config(dir.path(), broker.port, http_port, &body);
+    let events = listen(broker.port, "bench-listener-2", &["lifeledger/status", "lifeledger/alarms/events"]);
+    let svc = Service::start(&cfg, http_port);
+    wait_online(&events);
+
+    let slices = ALARMS * 20;
+    let total = slices * 100 + ALARMS * 2;
+    let mut o = options("bench-load-paced", broker.port);
+    o.set_inflight(500);
+    let (client, mut conn) = Client::new(o, 1000);
+    let acker = std::thread::spawn(move || {
+        let mut acked = 0;
+        for ev in conn.iter() {
+            match ev {
+                Ok(Event::Incoming(Packet::PubAck(_))) => {
+                    acked += 1;
+                    if acked == total {
+                        break;
+                    }
+                }
+                Ok(_) => {}
+                Err(e) => panic!("paced load generator connection failed: {e}"),
+            }
+        }
+        acked
+    });
+    // Event time advances one second per 10 ms slice on every tag alike,
+    // so no tag ever looks stale next to the others.
+    let mut sent_at: HashMap<i64, Instant> = HashMap::new();
+    let start = Instant::now();
+    for k in 0..slices {
+        let ts = T0 + k as i64;
+        let x = k as f64;
+        for c in 0..50 {
+            client.publish(format!("plant/T{c}"), QoS::AtLeastOnce, false, payload(ts, 545.0 + 10.0 * (x / 97.0 + c as f64).sin())).unwrap();
+            client.publish(format!("plant/P{c}"), QoS::AtLeastOnce, false, payload(ts, 160.0 + 5.0 * (x / 53.0).cos())).unwrap();
+        }
+        if k % 20 == 0 {
+            sent_at.insert(ts * 1000, Instant::now());
+            client.publish("plant/TA", QoS::AtLeastOnce, false, payload(ts, 5000.0)).unwrap();
+        } else if k % 20 == 10 {
+            client.publish("plant/TA", QoS::AtLeastOnce, false, payload(ts, 550.0)).unwrap();
+        }
+        let next = start + Duration::from_millis(10 * (k as u64 + 1));
+        if let Some(d) = next.checked_duration_since(Instant::now()) {
+            std::thread::sleep(d);
+        }
+    }
+    let elapsed = start.elapsed();
+    let acked = acker.join().unwrap();
+    let achieved_rate = rate(slices * 100, elapsed);
+    let _ = client.disconnect();
+    let mut lat = vec![];
+    let mut still = 0;
+    for _ in 0..MAX_POLLS {
+        if lat.len() == ALARMS {
+            break;
+        }
+        match events.recv_timeout(PAUSE) {
+            Ok((t, topic, p)) => {
+                still = 0;
+                if topic != "lifeledger/alarms/events" {
+                    continue;
+                }
+                if let Some(s) = is_event(&p, "TA", "sensor_out_of_range", "activated").and_then(|ms| sent_at.get(&ms)) {
+                    lat.push((t - *s).as_secs_f64() * 1000.0);
+                }
+            }
+            Err(mpsc::RecvTimeoutError::Timeout) => {
+                still += 1;
+                if still >= STALL_POLLS {
+                    break;
+                }
+            }
+            Err(mpsc::RecvTimeoutError::Disconnected) => break,
+        }
+    }
+    lat.sort_by(f64::total_cmp);
+    let pct = |q: f64| lat.get(((q * lat.len() as f64).ceil() as usize).clamp(1, lat.len().max(1)) - 1).copied().unwrap_or(f64::NAN);
+    let r = Latency { samples: lat.len(), expected: ALARMS, p50_ms: pct(0.50), p99_ms: pct(0.99), max_ms: lat.last().copied().unwrap_or(f64::NAN), achieved_rate };
+    eprintln!(
+        "     background {achieved_rate:.0} samples/s achieved ({acked}/{total} PUBACKs); {} of {ALARMS} alarms: p50 {:.1} ms, p99 {:.1} ms, max {:.1} ms",
+        r.samples, r.p50_ms, r.p99_ms, r.max_ms
+    );
+    svc.stop();
+    r
+}
+
+// ---------------------------------------------------------------- 3. memory
+
+struct Memory {
+    components: usize,
+    idle_rss: f64,
+    rss: f64,
+    hwm: f64,
+    accepted: u64,
+    ingest_s: f64,
+}
+
+fn memory() -> Memory {
+    const COMPONENTS: usize = 10_000;
+    eprintln!("[3]  resident memory: {COMPONENTS} tubes, {} tags, one sample per tag", 2 * COMPONENTS);
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let body: String = (0..COMPONENTS).map(tube).collect();
+    let cfg = service_config(dir.path(), broker.port, http_port, &body);
+    let events = listen(broker.port, "bench-listener-3", &["lifeledger/status"]);
+    let mut svc = Service::start(&cfg, http_port);
+    wait_online(&events);
+    let (idle_rss, _) = svc.memory_mib();
+    let mut msgs = Vec::with_capacity(2 * COMPONENTS);
+    for c in 0..COMPONENTS {
+        msgs.push((format!("plant/T{c}"), payload(T0, 545.0 + 10.0 * (c as f64).sin())));
+        msgs.push((format!("plant/P{c}"), payload(T0, 160.0)));
+    }
+    let want = msgs.len() as u64;
+    let p = publish_stream(broker.port, "bench-load-memory", msgs);
+    let snap = svc
+        .wait_snapshot("one sample per tag accepted", |s| counter(s, "engine", "accepted"), |s| counter(s, "engine", "accepted") >= want)
+        .expect("a snapshot");
+    let ingest_s = (Instant::now() - p.start).as_secs_f64();
+    let (rss, hwm) = svc.memory_mib();
+    let r = Memory { components: COMPONENTS, idle_rss, rss, hwm, accepted: counter(&snap, "engine", "accepted"), ingest_s };
+    eprintln!(
+        "     accepted {}/{want} in {ingest_s:.1} s; VmRSS {idle_rss:.1} MiB after start, {rss:.1} MiB after the samples; VmHWM {hwm:.1} MiB",
+        r.accepted
+    );
+    svc.stop();
+    r
+}
+
+// ---------------------------------------------------------------- main
+
+fn main() {
+    // `cargo bench` passes `--bench`; accept and ignore any arguments.
+    let n: usize = std::env::var("LIVE_BENCH_N").ok().and_then(|v| v.parse().ok()).unwrap_or(200_000);
+    let t = throughput(n);
+    let l = latency();
+    let m = memory();
+    let ratio = t.service_rate / t.baseline_rate;
+    let zero_loss = t.accepted == t.n as u64 && t.duplicate == 0 && t.acked == t.n as u64 + 1 && t.baseline_received == t.n as u64;
+    let yes = |b: bool| if b { "met" } else { "NOT MET" };
+    println!();
+    println!("Live service (load generator), N = {}", t.n);
+    println!("| measure | figure | goal |");
+    println!("|---|---|---|");
+    println!("| load generator alone (publish to last PUBACK, baseline run) | {:.0} msg/s | |", t.publisher_rate);
+    println!("| load generator alone (publish to last PUBACK, service run) | {:.0} msg/s | |", t.service_publisher_rate);
+    println!("| baseline subscriber (first publish to last receive) | {:.0} msg/s | |", t.baseline_rate);
+    println!("| baseline subscriber (first to last receive) | {:.0} msg/s | |", t.baseline_recv_rate);
+    println!("| lifeledger run, integrated and acknowledged | {:.0} msg/s | |", t.service_rate);
+    println!("| ratio service / baseline | {:.0} % | ≥ 90 %: {} |", 100.0 * ratio, yes(ratio >= 0.9));
+    println!(
+        "| zero loss (accepted {}, duplicate {}, acked {} of {} + 1 sentinel; baseline received {}) | {} | |",
+        t.accepted,
+        t.duplicate,
+        t.acked,
+        t.n,
+        t.baseline_received,
+        if zero_loss { "yes" } else { "NO" }
+    );
+    println!("| commits (mean / max commit) | {} ({:.2} / {:.1} ms) | |", t.commits, t.mean_commit_ms, t.max_commit_ms);
+    println!("| tag-to-alarm latency p50 / p99 / max ({} of {} samples, background {:.0} samples/s) | {:.1} / {:.1} / {:.1} ms | |", l.samples, l.expected, l.achieved_rate, l.p50_ms, l.p99_ms, l.max_ms);
+    println!(
+        "| VmRSS, {} components: after start / after {} samples (peak VmHWM) | {:.1} / {:.1} MiB ({:.1}) | |",
+        m.components, m.accepted, m.idle_rss, m.rss, m.hwm
+    );
+    println!("| time to accept one sample per tag, {} components | {:.1} s | |", m.components, m.ingest_s);
+}

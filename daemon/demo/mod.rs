@@ -1,0 +1,192 @@
+//! `lifeledger demo`: the whole service on one machine with no external
+//! servers. An embedded MQTT broker (rumqttd) on a loopback port, the plant
+//! simulator of [`sim`] publishing real MQTT tag messages, and the live
+//! service subscribed to them exactly as in production, with its ledger in a
+//! temporary (or named) directory and its status page on loopback.
+//!
+//! The plant, its tags and its history are invented, for the demo only.
+
+pub mod sim;
+
+use crate::ingest::now_ms;
+use anyhow::Context;
+use rumqttc::{AsyncClient, MqttOptions, QoS};
+use std::path::PathBuf;
+use std::time::{Duration, Instant};
+
+/// The shipped demo plant (also used by `replay` in the quick start).
+pub const DEMO_PLANT: &str = include_str!("../../config/demo/plant.toml");
+
+/// Demo options.
+#[derive(Debug, Clone)]
+pub struct DemoOptions {
+    /// Real seconds to run; `None`: until Ctrl-C.
+    pub duration_s: Option<f64>,
+    /// Simulated seconds per real second.
+    pub speed: f64,
+    /// Simulated seconds between samples of a tag.
+    pub sample_period_s: i64,
+    /// Status page address.
+    pub http: String,
+    /// Ledger directory; `None`: a temporary directory.
+    pub state_dir: Option<PathBuf>,
+    /// Optional database (InfluxDB v2 write API).
+    pub database_url: Option<String>,
+    pub database_org: String,
+    pub database_bucket: String,
+    pub database_token_env: Option<String>,
+}
+
+fn free_port() -> anyhow::Result<u16> {
+    Ok(std::net::TcpListener::bind("127.0.0.1:0")?.local_addr()?.port())
+}
+
+fn broker_config(port: u16) -> anyhow::Result<rumqttd::Config> {
+    let text = format!(
+        r#"
+id = 0
+[router]
+id = 0
+max_connections = 100
+max_outgoing_packet_count = 2000
+max_segment_size = 104857600
+max_segment_count = 10
+[v4.1]
+name = "demo"
+listen = "127.0.0.1:{port}"
+next_connection_delay_ms = 1
+[v4.1.connections]
+connection_timeout_ms = 60000
+max_payload_size = 65536
+max_inflight_count = 500
+dynamic_filters = true
+"#
+    );
+    toml::from_str(&text).context("embedded broker configuration")
+}
+
+/// Run the demo until the duration ends or Ctrl-C.
+pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
+    let broker_port = free_port()?;
+    let mut broker = rumqttd::Broker::new(broker_config(broker_port)?);
+    std::thread::Builder::new().name("demo-broker".into()).spawn(move || {
+        if let Err(e) = broker.start() {
+            tracing::error!("embedded broker stopped: {e}");
+        }
+    })?;
+    // Wait for the broker to listen (bounded).
+    for _ in 0..100 {
+        if std::net::TcpStream::connect(("127.0.0.1", broker_port)).is_ok() {
+            break;
+        }
+        tokio::time::sleep(Duration::from_millis(20)).await;
+    }
+
+    let tmp;
+    let dir = match &opts.state_dir {
+        Some(d) => {
+            std::fs::create_dir_all(d).with_context(|| format!("state directory {}", d.display()))?;
+            d.clone()
+        }
+        None => {
+            tmp = tempfile_dir()?;
+            tmp.clone()
+        }
+    };
+    let database = match &opts.database_url {
+        Some(u) => format!(
+            "[database]\nurl = {u:?}\norg = {:?}\nbucket = {:?}\n{}",
+            opts.database_org,
+            opts.database_bucket,
+            opts.database_token_env.as_ref().map_or(String::new(), |t| format!("token_env = {t:?}\n"))
+        ),
+        None => String::new(),
+    };
+    let config_text = format!(
+        "{DEMO_PLANT}\n\n# --- added by `lifeledger demo` ---\n[mqtt]\nport = {broker_port}\nclient_id = \"lifeledger-demo\"\n\
+         [[mqtt.subscription]]\ntopic = \"brackenmoor/{{tag}}\"\n\
+         [store]\npath = {:?}\nseries_interval_s = 600\n[http]\nlisten = {:?}\n{database}",
+        dir.join("ledger.sqlite").display().to_string(),
+        opts.http,
+    );
+    let config_path = dir.join("demo.toml");
+    std::fs::write(&config_path, &config_text)?;
+    let (cfg, _) = crate::service::load_service(&config_path)?;
+    let plan = cfg.plan.clone();
+
+    // The simulated clock starts at the newest sample already in the ledger
+    // (a named state directory continues), else now.
+    let start_ms = (now_ms() / 60_000) * 60_000;
+    let simulator = sim::Simulator::new(&plan, start_ms);
+    println!("lifeledger demo: {} (invented plant, demo data only)", plan.plant);
+    println!("  status page      http://{}/", opts.http);
+    println!("  embedded broker  mqtt://127.0.0.1:{broker_port} (tags on brackenmoor/<tag>, alarms on lifeledger/alarms/#)");
+    println!("  ledger           {}", dir.join("ledger.sqlite").display());
+    println!("  speed            {:.0} simulated seconds per second ({:.1} simulated days per second)", opts.speed, opts.speed / 86_400.0);
+    println!("  what to watch    day {:.0}: start-up; day {:.0}: over-temperature on outlet leg A (warning); day {:.0}: thermocouple of leg B fails (out-of-range, then stale-tag alarm); day {:.0}: shutdown and restart", 0.0, sim::EXCURSION_DAY, sim::FAILURE_DAY, sim::SHUTDOWN_DAY);
+    println!("  {}", crate::CAUTION);
+    println!("  Ctrl-C stops.");
+
+    let stop = async {
+        match opts.duration_s {
+            Some(d) => {
+                tokio::select! {
+                    _ = tokio::time::sleep(Duration::from_secs_f64(d)) => {}
+                    _ = tokio::signal::ctrl_c() => {}
+                }
+            }
+            None => {
+                let _ = tokio::signal::ctrl_c().await;
+            }
+        }
+    };
+
+    // The simulator publishes with QoS 1 through its own client.
+    let mut mo = MqttOptions::new("brackenmoor-simulator", "127.0.0.1", broker_port);
+    mo.set_keep_alive(Duration::from_secs(30));
+    mo.set_inflight(500);
+    let (client, mut eventloop) = AsyncClient::new(mo, 10_000);
+    let sim_loop = tokio::spawn(async move {
+        loop {
+            if eventloop.poll().await.is_err() {
+                tokio::time::sleep(Duration::from_millis(200)).await;
+            }
+        }
+    });
+    let speed = opts.speed.max(1.0);
+    let period_ms = opts.sample_period_s.max(1) * 1000;
+    let http = opts.http.clone();
+    let publisher = tokio::spawn(async move {
+        let began = Instant::now();
+        let mut next_ms = start_ms;
+        let mut last_print = Instant::now();
+        loop {
+            let sim_now = start_ms + (began.elapsed().as_secs_f64() * speed * 1000.0) as i64;
+            while next_ms <= sim_now {
+                for s in simulator.samples_at(next_ms) {
+                    let payload = format!("{{\"value\": {}, \"timestamp\": {}}}", s.value, s.time_ms);
+                    if client.publish(format!("brackenmoor/{}", s.tag), QoS::AtLeastOnce, false, payload).await.is_err() {
+                        return;
+                    }
+                }
+                next_ms += period_ms;
+            }
+            if last_print.elapsed() >= Duration::from_secs(5) {
+                last_print = Instant::now();
+                println!("  simulated day {:.1} — see http://{http}/", (sim_now - start_ms) as f64 / 86_400_000.0);
+            }
+            tokio::time::sleep(Duration::from_millis(50)).await;
+        }
+    });
+    let result = crate::service::run_until(&config_path, stop).await;
+    publisher.abort();
+    sim_loop.abort();
+    println!("lifeledger demo stopped; the ledger is in {}", dir.display());
+    result
+}
+
+fn tempfile_dir() -> anyhow::Result<PathBuf> {
+    let base = std::env::temp_dir().join(format!("lifeledger-demo-{}", std::process::id()));
+    std::fs::create_dir_all(&base)?;
+    Ok(base)
+}

@@ -1,0 +1,368 @@
+// lifeledger status page: one component (trends, histograms, alarms,
+// material data).
+'use strict';
+
+(() => {
+  const { $, esc } = LL;
+  const name = decodeURIComponent(location.pathname.replace(/^\/component\//, '').replace(/\/+$/, ''));
+  const WINDOW_KEY = 'lifeledger.trend-window';
+  let snap = null, comp = null, alarms = null, trend = null, trendErr = null;
+  let material = null, materialGrade = null, materialErr = null;
+  let windowMs = 0;
+  let yscale = 'data';
+  const SCALE_KEY = 'lifeledger.trend-scale';
+  let shelveOpen = null, shelveReason = '';
+  let tick = 0;
+
+  try {
+    windowMs = Number(sessionStorage.getItem(WINDOW_KEY) || 0) || 0;
+    yscale = sessionStorage.getItem(SCALE_KEY) === 'levels' ? 'levels' : 'data';
+  } catch (e) { windowMs = 0; }
+
+  document.title = name + ' · ' + document.title.replace(/^Component · /, '');
+  $('component-name').textContent = name;
+  $('trend-link').href = '/api/components/' + encodeURIComponent(name) + '/trend';
+
+  const has = (c, key) => Object.keys(c.hours_to_threshold || {}).some((k) => k.startsWith(key + '.'));
+
+  // The alarm levels of an index: the component's own when the API gives
+  // them, else the documented defaults (and the page says so).
+  function levels(key) {
+    const own = comp && comp.thresholds && comp.thresholds[key];
+    return { levels: own || LL.DEFAULT_LEVELS[key] || {}, own: !!own };
+  }
+  function levelLines(key, scale) {
+    const { levels: l, own } = levels(key);
+    const out = [];
+    for (const sev of ['advisory', 'warning', 'critical']) {
+      if (LL.num(l[sev]) !== null) out.push({ value: l[sev] * (scale || 1), label: sev, cls: sev, dashed: !own });
+    }
+    return out;
+  }
+
+  function tile(label, value, unit, sub, cls) {
+    return '<div class="tile ' + (cls || '') + '"><span class="tile-label">' + esc(label) + '</span>' +
+      '<span class="tile-value">' + esc(value) + (unit ? '<small>' + esc(unit) + '</small>' : '') + '</span>' +
+      (sub ? '<span class="tile-sub">' + esc(sub) + '</span>' : '') + '</div>';
+  }
+
+  // "warning in 12 345 h" for the nearest level not yet reached.
+  function nextLevel(c, key) {
+    let best = null;
+    for (const [k, h] of Object.entries(c.hours_to_threshold || {})) {
+      if (!k.startsWith(key + '.') || LL.num(h) === null || h <= 0) continue;
+      if (!best || h < best.h) best = { sev: k.slice(key.length + 1), h };
+    }
+    const reached = (c.levels_reached || {})[key];
+    const head = reached ? reached + ' level reached' : 'below all levels';
+    return best ? head + '; ' + best.sev + ' in ' + LL.hours(best.h) + ' h' : head;
+  }
+
+  function renderFigures() {
+    const c = comp;
+    const creep = has(c, 'life_fraction'), wear = has(c, 'wear_index');
+    const lr = c.levels_reached || {};
+    let t = '';
+    if (creep) {
+      t += tile('Life fraction', LL.frac(c.creep_life_fraction), '', nextLevel(c, 'life_fraction'), lr.life_fraction || '');
+      t += tile('Creep strain', LL.frac(c.creep_strain * 100), ' %', has(c, 'creep_strain') ? nextLevel(c, 'creep_strain') : 'no Norton law for this grade', lr.creep_strain || '');
+    }
+    if (wear) {
+      t += tile('Wear index', LL.frac(c.wear_index), '', nextLevel(c, 'wear_index'), lr.wear_index || '');
+      t += tile('Wear depth', LL.sig(c.wear_depth_mm, 3), ' mm', c.fretting_regime ? 'regime: ' + c.fretting_regime.replace(/([a-z])([A-Z])/g, '$1 $2').toLowerCase() : '');
+    }
+    const rem = c.remaining_life_h;
+    t += tile('Remaining life', LL.num(rem) === null ? 'not moving' : LL.hours(rem), LL.num(rem) === null ? '' : ' h',
+      LL.num(rem) === null ? 'no damage accumulating at the recent rate' : LL.years(rem) + ' years at the recent rate');
+    if (creep) {
+      const peak = LL.num(c.peak_metal_temperature_c) === null ? '' : 'peak ' + LL.fixed(c.peak_metal_temperature_c, 1) + ' °C';
+      const design = LL.num(c.design_temperature_c) === null ? '' : 'design ' + LL.fixed(c.design_temperature_c, 0) + ' °C';
+      t += tile('Metal temperature', LL.fixed(c.metal_temperature_c, 1), ' °C', [peak, design].filter(Boolean).join(' · '), (c.flags || []).includes('over_design_temperature') ? 'warning' : '');
+      t += tile('Pressure', LL.sig(c.pressure_mpa, 4), ' MPa', 'gauge');
+      t += tile('Hoop stress', LL.sig(c.hoop_stress_mpa, 4), ' MPa', '');
+      t += tile('Damage rate', LL.sig(c.damage_rate_per_h, 3), ' /h', 'recent, life fraction per hour');
+      t += tile('In creep range', LL.hours(c.hours_in_creep_range), ' h', 'of ' + LL.hours(c.integrated_h) + ' h integrated');
+      t += tile('Over design', LL.hours(c.over_design_h), ' h', 'extrapolated ' + LL.hours(c.extrapolated_h) + ' h', c.over_design_h > 0 ? 'warning' : '');
+    } else {
+      t += tile('Integrated', LL.hours(c.integrated_h), ' h', '');
+    }
+    t += tile('Unmonitored', LL.hours(c.unmonitored_h), ' h', 'integrated by the gap policy', c.unmonitored_h > 0 ? 'data' : '');
+    $('figures').innerHTML = t;
+    $('component-flags').innerHTML = (c.flags && c.flags.length) ? '<span class="muted">Flags</span> ' + LL.flagChips(c.flags) : '';
+  }
+
+  function renderTitle() {
+    const c = comp;
+    $('crumb-unit').textContent = '/ unit ' + c.unit + ' / ' + c.component;
+    $('component-sub').textContent = LL.kindLabel(c.kind) + ' · ' + c.material + ' · ' + c.curve_basis + ' rupture curve · integrated to ' + LL.isoUtc(c.integrated_to);
+    const a = alarms || {};
+    $('component-alarm').innerHTML = LL.sevBadge(a.worst_severity) +
+      (a.unacknowledged ? '<span class="pill unack">' + a.unacknowledged + ' unack</span>' : '') +
+      (a.shelved ? '<span class="pill">' + a.shelved + ' shelved</span>' : '');
+  }
+
+  function renderCharts() {
+    const box = $('charts');
+    for (const b of document.querySelectorAll('#windows button')) b.classList.toggle('on', Number(b.dataset.window) === windowMs);
+    for (const b of document.querySelectorAll('#yscale button')) b.classList.toggle('on', b.dataset.scale === yscale);
+    const all = yscale === 'levels';
+    if (!comp) return;
+    if (!trend) {
+      box.innerHTML = '<p class="muted">' + (trendErr ? esc(trendErr) : 'Loading the trend…') + '</p>';
+      return;
+    }
+    const pts = trend.points || [];
+    if (!pts.length) {
+      box.innerHTML = '<p class="muted">No trend points yet.</p>';
+      return;
+    }
+    const t1 = pts[pts.length - 1].t;
+    const t0 = windowMs ? Math.max(pts[0].t, t1 - windowMs) : pts[0].t;
+    const width = Math.max(320, box.clientWidth - 2);
+    const creep = has(comp, 'life_fraction'), wear = has(comp, 'wear_index');
+    const defs = [];
+    if (creep) {
+      const tl = [];
+      if (LL.num(comp.design_temperature_c) !== null) {
+        tl.push({ value: comp.design_temperature_c, label: 'design', cls: 'design' });
+        const od = comp.thresholds && comp.thresholds.over_design_temperature_k;
+        for (const sev of ['advisory', 'warning', 'critical']) {
+          if (od && LL.num(od[sev]) !== null && od[sev] > 0) tl.push({ value: comp.design_temperature_c + od[sev], label: sev, cls: sev });
+        }
+      }
+      defs.push({ key: 'metal_temperature_c', title: 'Metal temperature', unit: '°C', fmt: (v) => v.toFixed(1), levels: tl, cls: 's-temp' });
+      defs.push({ key: 'pressure_mpa', title: 'Pressure', unit: 'MPa', fmt: (v) => LL.sig(v, 4), cls: 's-press' });
+      defs.push({ key: 'hoop_stress_mpa', title: 'Hoop stress', unit: 'MPa', fmt: (v) => LL.sig(v, 4), cls: 's-stress' });
+      defs.push({ key: 'creep_life_fraction', title: 'Creep life fraction', unit: '', fmt: LL.frac, levels: levelLines('life_fraction'), floor0: all, cls: 's-life' });
+      if (has(comp, 'creep_strain')) {
+        defs.push({ key: 'creep_strain', title: 'Creep strain', unit: '%', scale: 100, fmt: LL.frac, levels: levelLines('creep_strain', 100), floor0: all, cls: 's-strain' });
+      }
+    }
+    if (wear) defs.push({ key: 'wear_index', title: 'Wear index', unit: '', fmt: LL.frac, levels: levelLines('wear_index'), floor0: all, cls: 's-wear' });
+    const n = pts.filter((p) => p.t >= t0).length;
+    let html = '';
+    for (const d of defs) {
+      const s = d.scale || 1;
+      const series = pts.map((p) => [p.t, p[d.key] * s]);
+      const last = series[series.length - 1][1];
+      html += '<figure class="chart-card ' + d.cls + '"><figcaption><span class="ct">' + esc(d.title) + '</span>' +
+        '<span class="cv">' + esc(d.fmt(last)) + (d.unit ? ' <small>' + esc(d.unit) + '</small>' : '') + '</span></figcaption>' +
+        LL.lineChart({ id: 'trend-' + d.key, label: d.title + ' trend', points: series, t0, t1, unit: d.unit, fmt: d.fmt, levels: d.levels, floor0: d.floor0, allLevels: all, width, height: 210, cls: d.cls }) +
+        '</figure>';
+    }
+    html += '<p class="muted small">' + n + ' of ' + pts.length + ' points shown, ' + LL.timeUtc(t0) + ' to ' + LL.timeUtc(t1) + ' UTC</p>';
+    box.innerHTML = html;
+    for (const d of defs) LL.attachHover('trend-' + d.key);
+    const own = comp.thresholds && comp.thresholds.life_fraction;
+    $('level-note').innerHTML = own
+      ? 'Level lines: this component\'s alarm levels (conservative defaults unless set in <code>[component.thresholds]</code>); the governing code sets the limits.'
+      : '<span class="warnnote">Level lines at the <b>default levels</b></span> (life fraction 0.3 / 0.5 / 0.7, wear index 0.5 / 0.8, creep strain 0.5 / 1 %): this service does not report the component\'s configured levels.';
+  }
+
+  function renderHistograms() {
+    const c = comp;
+    const w = Math.max(320, $('hist-temperature-box').clientWidth - 2);
+    const design = LL.num(c.design_temperature_c);
+    $('hist-temperature-box').innerHTML = LL.histogram({
+      id: 'hist-temperature', label: 'Hours at metal temperature', classes: (c.histograms || {}).temperature_c, unit: '°C', width: w, height: 250,
+      hot: design === null ? null : (k) => LL.num(k.from) !== null && k.from >= design,
+    }) + (design === null ? '' : '<p class="muted small"><span class="key hot"></span> classes at or above the design temperature ' + LL.fixed(design, 0) + ' °C</p>');
+    $('hist-pressure-box').innerHTML = LL.histogram({
+      id: 'hist-pressure', label: 'Hours at pressure', classes: (c.histograms || {}).pressure_mpa, unit: 'MPa', width: Math.max(320, $('hist-pressure-box').clientWidth - 2), height: 250,
+    });
+  }
+
+  function renderAlarms() {
+    const box = $('alarms');
+    if (box.contains(document.activeElement) && document.activeElement.tagName === 'INPUT') return; // typing a reason
+    $('alarm-mode').textContent = LL.canCommand() ? 'operator: acknowledge and shelve enabled' : 'read-only';
+    const recs = ((alarms && alarms.alarms) || []).slice();
+    if (!recs.length) {
+      box.innerHTML = '<p class="muted">No alarm records for this component yet.</p>';
+      return;
+    }
+    const weight = (r) => (r.state === 'normal' ? 0 : 10) + (r.state === 'unacknowledged' || r.state === 'rtn_unacknowledged' ? 5 : 0) + LL.sevRank(r.severity);
+    recs.sort((a, b) => weight(b) - weight(a));
+    const cmd = LL.canCommand();
+    let h = '<table class="alarms"><thead><tr><th>Index</th><th>State</th><th class="num">Value</th><th class="num">Level</th><th>Since</th><th>Notes</th>' + (cmd ? '<th></th>' : '') + '</tr></thead><tbody>';
+    for (const r of recs) {
+      const key = r.component + '/' + r.index;
+      const notes = [];
+      if (r.detail) notes.push(r.detail);
+      if (r.acknowledged_by) notes.push('acknowledged by ' + r.acknowledged_by + (r.acknowledged_ms ? ' at ' + LL.shortUtc(r.acknowledged_ms) : ''));
+      if (r.shelve) notes.push('shelved by ' + r.shelve.by + ' until ' + LL.shortUtc(r.shelve.until_ms) + (r.shelve.reason ? ': ' + r.shelve.reason : ''));
+      let actions = '';
+      if (cmd) {
+        if (r.state === 'unacknowledged' || r.state === 'rtn_unacknowledged') actions += '<button type="button" data-act="acknowledge" data-index="' + esc(r.index) + '">Acknowledge</button>';
+        if (r.state === 'shelved') actions += '<button type="button" class="ghost" data-act="unshelve" data-index="' + esc(r.index) + '">Unshelve</button>';
+        else if (r.state !== 'normal') actions += '<button type="button" class="ghost" data-act="shelve-open" data-index="' + esc(r.index) + '">Shelve 8 h…</button>';
+      }
+      h += '<tr class="st-' + esc(r.state) + ' sev-' + esc(r.severity || 'none') + '">' +
+        '<td>' + esc(LL.indexLabel(r.index)) + '</td>' +
+        '<td>' + (r.state === 'normal' ? '<span class="muted">normal</span>' : LL.sevBadge(r.severity) + ' <span class="state">' + esc(LL.STATE_LABEL[r.state] || r.state) + '</span>') + '</td>' +
+        '<td class="num">' + esc(LL.indexValue(r.index, r.value)) + '</td>' +
+        '<td class="num">' + (LL.num(r.threshold) === null ? '<span class="muted">—</span>' : esc(LL.indexValue(r.index, r.threshold))) + '</td>' +
+        '<td class="when">' + esc(LL.shortUtc(r.since_ms)) + '</td>' +
+        '<td class="notes">' + esc(notes.join('; ')) + '</td>' +
+        (cmd ? '<td class="actions">' + actions + '</td>' : '') + '</tr>';
+      if (cmd && shelveOpen === key) {
+        h += '<tr class="shelve-row"><td colspan="7"><form class="shelve-form" data-index="' + esc(r.index) + '">' +
+          '<label>Reason for shelving ' + esc(LL.indexLabel(r.index).toLowerCase()) + ' for 8 h ' +
+          '<input type="text" name="reason" required maxlength="200" value="' + esc(shelveReason) + '" placeholder="for example thermocouple replacement"></label>' +
+          '<button type="submit">Shelve 8 h</button><button type="button" class="ghost" data-act="shelve-cancel">Cancel</button></form></td></tr>';
+      }
+    }
+    box.innerHTML = h + '</tbody></table>';
+  }
+
+  function renderEvents() {
+    const evs = (snap.recent_events || []).filter((e) => e.component === name).slice(-20).reverse();
+    $('events').innerHTML = evs.length ? evs.map((e) => LL.eventItem(e, false)).join('') : '<li class="muted">No recent alarm events for this component.</li>';
+  }
+
+  function sourced(label, s, fmt) {
+    if (!s) return '';
+    return '<tr><th>' + esc(label) + '</th><td class="num">' + fmt(s.value) + '</td><td class="source">' + esc(s.source) + '</td></tr>';
+  }
+  function renderMaterial() {
+    const box = $('material');
+    if (materialErr) { box.innerHTML = '<p class="muted">' + esc(materialErr) + '</p>'; return; }
+    if (!material) return;
+    const m = material;
+    const k2c = (k) => LL.fixed(k, 0) + ' K (' + LL.fixed(k - 273.15, 0) + ' °C)';
+    let h = '<div class="mat-head"><span class="grade">' + esc(m.grade) + '</span>' +
+      (m.aliases && m.aliases.length ? '<span class="muted">also ' + esc(m.aliases.join(', ')) + '</span>' : '') +
+      (m.description ? '<p>' + esc(m.description) + '</p>' : '') + '</div>';
+    h += '<table class="mat"><thead><tr><th>Quantity</th><th class="num">Value</th><th>Source</th></tr></thead><tbody>';
+    h += sourced('Melting point', m.melting_point_k, k2c);
+    if (m.creep_threshold_k) h += sourced('Creep threshold', m.creep_threshold_k, k2c);
+    else h += '<tr><th>Creep threshold</th><td class="num">' + k2c(0.4 * m.melting_point_k.value) + '</td><td class="source">rule of thumb 0.4·Tm (no value for this grade)</td></tr>';
+    const lm = m.larson_miller;
+    if (lm) {
+      const coef = (lm.coefficients || []).map((a) => LL.sig(a, 5)).join(', ');
+      const min = lm.minimum ? (lm.minimum.rule === 'stress_factor' ? 'minimum = ' + lm.minimum.factor + ' × mean stress' : 'minimum = mean − ' + lm.minimum.offset + ' in log10 t') : '';
+      h += '<tr><th>Larson-Miller</th><td class="num">C = ' + esc(LL.sig(lm.constant_c, 4)) + '<br><span class="small">P(log10 σ): ' + esc(coef) + '</span>' +
+        '<br><span class="small">' + esc(lm.stress_range_mpa[0] + '–' + lm.stress_range_mpa[1] + ' MPa, ' + LL.fixed(lm.temperature_range_k[0] - 273.15, 0) + '–' + LL.fixed(lm.temperature_range_k[1] - 273.15, 0) + ' °C') + '</span>' +
+        (min ? '<br><span class="small">' + esc(min) + '</span>' : '') + '</td><td class="source">' + esc(lm.source) + '</td></tr>';
+    }
+    const nl = m.norton;
+    if (nl) {
+      h += '<tr><th>Norton creep</th><td class="num">A = ' + esc(LL.sig(nl.a_per_h, 3)) + ' /h·MPa⁻ⁿ<br>n = ' + esc(LL.sig(nl.n, 3)) + ', Q = ' + esc(LL.sig(nl.q_j_per_mol / 1000, 4)) + ' kJ/mol</td><td class="source">' + esc(nl.source) + '</td></tr>';
+    } else {
+      h += '<tr><th>Norton creep</th><td class="num muted">—</td><td class="source muted">no creep strain law for this grade</td></tr>';
+    }
+    if (m.hardness_hv) h += sourced('Hardness', m.hardness_hv, (v) => esc(LL.sig(v, 3)) + ' HV');
+    h += '</tbody></table>';
+    const refs = m.reference_rupture_strengths || [];
+    if (refs.length) {
+      h += '<h3>Reference rupture strengths</h3><table class="mat refs"><thead><tr><th class="num">Temperature</th><th class="num">Time</th><th class="num">Stress</th><th>Source</th></tr></thead><tbody>' +
+        refs.map((r) => '<tr><td class="num">' + esc(LL.fixed(r.temperature_c, 0)) + ' °C</td><td class="num">' + esc(LL.group(r.hours)) + ' h</td><td class="num">' + esc(LL.sig(r.stress_mpa, 3)) + ' MPa</td><td class="source">' + esc(r.source) + '</td></tr>').join('') +
+        '</tbody></table>';
+    }
+    box.innerHTML = h;
+  }
+
+  async function loadMaterial() {
+    if (!comp || materialGrade === comp.material) return;
+    materialGrade = comp.material;
+    try {
+      const r = await LL.api('/api/materials/' + encodeURIComponent(comp.material));
+      material = r.material;
+      materialErr = null;
+    } catch (e) {
+      materialErr = 'Material ' + comp.material + ': ' + e.message;
+      materialGrade = null;
+    }
+    renderMaterial();
+  }
+
+  async function loadTrend() {
+    try {
+      trend = await LL.api('/api/components/' + encodeURIComponent(name) + '/trend');
+      trendErr = null;
+    } catch (e) {
+      trend = null;
+      trendErr = e.status === 404 ? 'No trend for this component yet.' : 'Trend: ' + e.message;
+    }
+  }
+
+  function renderAll() {
+    LL.renderHeader(snap);
+    if (!comp) {
+      const retired = (snap.retired_components || []).includes(name);
+      $('component-sub').textContent = retired ? 'This component is kept in the ledger but no longer configured.' : 'No component of this name in the ledger.';
+      $('charts').innerHTML = '';
+      $('material').innerHTML = '';
+      return;
+    }
+    renderTitle();
+    renderFigures();
+    renderCharts();
+    renderHistograms();
+    renderAlarms();
+    renderEvents();
+  }
+
+  $('windows').addEventListener('click', (ev) => {
+    const b = ev.target.closest('button[data-window]');
+    if (!b) return;
+    windowMs = Number(b.dataset.window);
+    try { sessionStorage.setItem(WINDOW_KEY, String(windowMs)); } catch (e) { /* fine */ }
+    renderCharts();
+  });
+  $('yscale').addEventListener('click', (ev) => {
+    const b = ev.target.closest('button[data-scale]');
+    if (!b) return;
+    yscale = b.dataset.scale;
+    try { sessionStorage.setItem(SCALE_KEY, yscale); } catch (e) { /* fine */ }
+    renderCharts();
+  });
+  $('alarms').addEventListener('click', async (ev) => {
+    const b = ev.target.closest('button[data-act]');
+    if (!b) return;
+    const act = b.dataset.act;
+    const index = b.dataset.index;
+    if (act === 'shelve-open') { shelveOpen = name + '/' + index; shelveReason = ''; renderAlarms(); const i = document.querySelector('.shelve-form input'); if (i) i.focus(); return; }
+    if (act === 'shelve-cancel') { shelveOpen = null; document.activeElement.blur(); renderAlarms(); return; }
+    b.disabled = true;
+    if (await LL.command({ action: act, component: name, index })) refreshSoon();
+    b.disabled = false;
+  });
+  $('alarms').addEventListener('input', (ev) => { if (ev.target.name === 'reason') shelveReason = ev.target.value; });
+  $('alarms').addEventListener('submit', async (ev) => {
+    ev.preventDefault();
+    const f = ev.target;
+    const reason = f.reason.value.trim();
+    if (!reason) return;
+    if (await LL.command({ action: 'shelve', component: name, index: f.dataset.index, duration_h: 8, reason })) {
+      shelveOpen = null; shelveReason = '';
+      document.activeElement.blur();
+      refreshSoon();
+    }
+    renderAlarms();
+  });
+  LL.onOperatorChange = () => { if (comp) renderAlarms(); };
+
+  let resizeTimer = null;
+  window.addEventListener('resize', () => {
+    clearTimeout(resizeTimer);
+    resizeTimer = setTimeout(() => { if (comp) { renderCharts(); renderHistograms(); } }, 150);
+  });
+
+  async function refresh() {
+    try {
+      snap = await LL.api('/api/components');
+      comp = (snap.components || []).find((c) => c.component === name) || null;
+      alarms = (snap.alarms || []).find((a) => a.component === name) || null;
+      if (comp && (tick % 3 === 0 || !trend)) await loadTrend();
+      tick++;
+      renderAll();
+      loadMaterial();
+    } catch (e) {
+      LL.updated(e);
+    }
+  }
+  function refreshSoon() { setTimeout(refresh, 400); }
+
+  LL.poll(refresh);
+})();

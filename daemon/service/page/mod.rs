@@ -1,0 +1,89 @@
+//! The status page: a plant overview at `/` and one page per component at
+//! `/component/{name}`, both static HTML filled in by a small script that
+//! polls the JSON API (`/api/components`, `/api/components/{name}/trend`,
+//! `/api/materials/{grade}`). Charts are inline SVG drawn by that script.
+//!
+//! Every asset is compiled into the binary (`include_str!`): the page works
+//! on an isolated plant network with no internet access. The caution is put
+//! into the HTML on the server as well, so it shows even before (or
+//! without) the script; the script then shows the text the API returns.
+
+use super::http::HttpState;
+use axum::extract::State;
+use axum::http::{header, HeaderValue};
+use axum::response::{IntoResponse, Response};
+use axum::routing::get;
+use axum::Router;
+
+const INDEX_HTML: &str = include_str!("index.html");
+const COMPONENT_HTML: &str = include_str!("component.html");
+const APP_CSS: &str = include_str!("app.css");
+const APP_JS: &str = include_str!("app.js");
+const OVERVIEW_JS: &str = include_str!("overview.js");
+const COMPONENT_JS: &str = include_str!("component.js");
+const ICON_SVG: &str = include_str!("icon.svg");
+
+/// The page routes, merged into the service router.
+pub fn routes() -> Router<HttpState> {
+    Router::new()
+        .route("/", get(index))
+        .route("/component/*name", get(component))
+        .route("/page/app.css", get(|| async { asset("text/css; charset=utf-8", APP_CSS) }))
+        .route("/page/app.js", get(|| async { asset("text/javascript; charset=utf-8", APP_JS) }))
+        .route("/page/overview.js", get(|| async { asset("text/javascript; charset=utf-8", OVERVIEW_JS) }))
+        .route("/page/component.js", get(|| async { asset("text/javascript; charset=utf-8", COMPONENT_JS) }))
+        .route("/page/icon.svg", get(|| async { asset("image/svg+xml", ICON_SVG) }))
+}
+
+async fn index(State(s): State<HttpState>) -> Response {
+    page(&s, INDEX_HTML)
+}
+
+async fn component(State(s): State<HttpState>) -> Response {
+    page(&s, COMPONENT_HTML)
+}
+
+/// A page with the plant name and the caution filled in.
+fn page(s: &HttpState, template: &str) -> Response {
+    let plant = s.snapshot.borrow().plant.clone();
+    let body = template.replace("{{CAUTION}}", &html(crate::CAUTION)).replace("{{PLANT}}", &html(&plant));
+    let mut r = ([(header::CONTENT_TYPE, "text/html; charset=utf-8")], body).into_response();
+    r.headers_mut().insert(header::CACHE_CONTROL, HeaderValue::from_static("no-cache"));
+    r
+}
+
+fn asset(content_type: &'static str, body: &'static str) -> Response {
+    let mut r = ([(header::CONTENT_TYPE, content_type)], body).into_response();
+    // Assets change only with the binary; revalidate so an upgrade shows.
+    r.headers_mut().insert(header::CACHE_CONTROL, HeaderValue::from_static("no-cache"));
+    r
+}
+
+fn html(s: &str) -> String {
+    s.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('"', "&quot;")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn pages_have_their_placeholders_and_assets() {
+        for t in [INDEX_HTML, COMPONENT_HTML] {
+            assert!(t.contains("{{CAUTION}}") && t.contains("{{PLANT}}"));
+            assert!(t.contains("/page/app.css") && t.contains("/page/app.js"));
+            // No asset may come from elsewhere: the plant network is closed.
+            assert!(!t.contains("http://") && !t.contains("https://"));
+        }
+        for a in [APP_CSS, APP_JS, OVERVIEW_JS, COMPONENT_JS, ICON_SVG] {
+            // The SVG namespace is a name, not a download.
+            let a = a.replace("http://www.w3.org/2000/svg", "");
+            assert!(!a.contains("http://") && !a.contains("https://"), "assets must not load from the internet");
+        }
+    }
+
+    #[test]
+    fn html_escapes() {
+        assert_eq!(html("<a & \"b\">"), "&lt;a &amp; &quot;b&quot;&gt;");
+    }
+}

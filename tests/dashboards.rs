@@ -1,0 +1,881 @@
+//! The shipped Grafana dashboards (`dashboards/`) and deployment recipes
+//! (`deploy/`) against the product.
+//!
+//! * Prometheus dashboards: a real VictoriaMetrics is fed the line protocol
+//!   of `lifeledger replay --write-lp` on the demo plant, plus the points the
+//!   live service writes beside it (alarm thresholds from
+//!   `report::threshold_points`, alarm events from `AlarmEvent::to_point`,
+//!   `service_health` points). Every panel query, with the dashboard
+//!   variables replaced by demo values, must return at least one series.
+//! * InfluxDB 2 dashboards: every Flux query is tokenised and every
+//!   measurement, field, tag and column it names must exist in the schema
+//!   below, which is itself checked against the points the product writes.
+//! * Every dashboard shows the caution in a text panel.
+//! * `deploy/lifeledger.production.toml` passes `check-config` and the
+//!   service settings (`lifeledger::service::load_service`).
+
+mod common;
+
+use common::http::{self, encode};
+use common::VictoriaMetrics;
+use lifeledger::alarm::{AlarmEvent, AlarmIndex, AlarmState, Severity, Transition};
+use lifeledger::engine::Rejection;
+use lifeledger::ingest::decode::DecodeError;
+use lifeledger::lineproto::Point;
+use serde_json::Value;
+use std::collections::{BTreeMap, BTreeSet};
+use std::path::PathBuf;
+use std::process::Command;
+use std::sync::OnceLock;
+
+const DEMO_PLANT: &str = "Brackenmoor Demo Station";
+const DEMO_UNIT: &str = "U2";
+/// A creep component that crosses an alarm level in the demo month, and a
+/// wear contact: between them every component-detail panel has data.
+const DEMO_COMPONENTS: [&str; 2] = ["U2-SH3-OUTLET-LEG-A", "U2-SH1-SUPPORT-R07"];
+/// Lines per InfluxDB v2 write request.
+const CHUNK_LINES: usize = 5000;
+
+fn repo() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+// ------------------------------------------------------------------ schema
+
+/// One measurement as the product writes it.
+struct Measurement {
+    name: &'static str,
+    tags: &'static [&'static str],
+    fields: Vec<String>,
+}
+
+/// The database schema the dashboards may use, by name, from
+/// `daemon/report.rs` (`component_point`, `threshold_points`),
+/// `daemon/alarm/event.rs` (`AlarmEvent::to_point`) and
+/// `daemon/service/ledger.rs` (`health_point`). The first three are checked
+/// against real points in `schema_matches_the_points_the_product_writes`.
+fn schema() -> Vec<Measurement> {
+    let strs = |v: &[&str]| v.iter().map(|s| s.to_string()).collect::<Vec<_>>();
+    let mut health = strs(&[
+        "samples_accepted",
+        "duplicates",
+        "outbox_lines",
+        "outbox_bytes",
+        "commit_latency_ms",
+        "mqtt_connected",
+    ]);
+    health.extend(health_rejection_fields());
+    vec![
+        Measurement {
+            name: "component_state",
+            tags: &["plant", "unit", "component", "material"],
+            fields: strs(&[
+                "metal_temperature_k",
+                "pressure_mpa",
+                "hoop_stress_mpa",
+                "creep_life_fraction",
+                "damage_rate_per_h",
+                "creep_rate_per_h",
+                "creep_strain",
+                "hours_in_creep_range",
+                "wear_depth_mm",
+                "wear_index",
+                "remaining_life_h",
+                "unmonitored_h",
+            ]),
+        },
+        Measurement {
+            name: "alarm_threshold",
+            tags: &["plant", "unit", "component", "material", "index", "severity"],
+            fields: strs(&["value"]),
+        },
+        Measurement {
+            name: "alarm_event",
+            tags: &["plant", "unit", "component", "index", "severity", "state"],
+            fields: strs(&["value", "threshold", "message", "transition"]),
+        },
+        Measurement { name: "service_health", tags: &["plant"], fields: health },
+    ]
+}
+
+/// `rejected_*` fields of `service_health`: one per engine rejection reason
+/// and one per MQTT decode reason.
+fn health_rejection_fields() -> Vec<String> {
+    let mut v: Vec<String> = Rejection::ALL.iter().map(|r| format!("rejected_{}", r.name())).collect();
+    for e in [
+        DecodeError::UnknownTopic(String::new()),
+        DecodeError::NotUtf8,
+        DecodeError::BadTimestamp(String::new()),
+        DecodeError::BadQuality(String::new()),
+    ] {
+        let name = format!("rejected_{}", e.reason());
+        if !v.contains(&name) {
+            v.push(name);
+        }
+    }
+    v
+}
+
+// ----------------------------------------------------------- line protocol
+
+/// Splits `s` at `sep` where it is neither escaped nor inside a quoted string.
+fn split_unescaped(s: &str, sep: char) -> Vec<String> {
+    let mut out = vec![String::new()];
+    let (mut escaped, mut quoted) = (false, false);
+    for c in s.chars() {
+        if escaped {
+            out.last_mut().unwrap().push(c);
+            escaped = false;
+            continue;
+        }
+        match c {
+            '\\' => {
+                escaped = true;
+                out.last_mut().unwrap().push(c);
+            }
+            '"' => {
+                quoted = !quoted;
+                out.last_mut().unwrap().push(c);
+            }
+            c if c == sep && !quoted => out.push(String::new()),
+            c => out.last_mut().unwrap().push(c),
+        }
+    }
+    out
+}
+
+fn unescape(s: &str) -> String {
+    let mut out = String::new();
+    let mut it = s.chars();
+    while let Some(c) = it.next() {
+        if c == '\\' {
+            if let Some(n) = it.next() {
+                out.push(n);
+            }
+        } else {
+            out.push(c);
+        }
+    }
+    out
+}
+
+/// A parsed line: measurement, tags, field names, time in ns.
+struct Line {
+    measurement: String,
+    tags: BTreeMap<String, String>,
+    fields: Vec<String>,
+    time_ns: i64,
+}
+
+fn parse_line(line: &str) -> Line {
+    let parts = split_unescaped(line, ' ');
+    assert_eq!(parts.len(), 3, "line protocol with measurement, fields and time: {line}");
+    let series = split_unescaped(&parts[0], ',');
+    let tags = series[1..]
+        .iter()
+        .map(|t| {
+            let kv = split_unescaped(t, '=');
+            (unescape(&kv[0]), unescape(&kv[1]))
+        })
+        .collect();
+    let fields = split_unescaped(&parts[1], ',').iter().map(|f| unescape(&split_unescaped(f, '=')[0])).collect();
+    Line {
+        measurement: unescape(&series[0]),
+        tags,
+        fields,
+        time_ns: parts[2].trim().parse().unwrap_or_else(|e| panic!("time of {line}: {e}")),
+    }
+}
+
+/// The demo replay's line protocol, written once per test binary.
+fn demo_lp() -> &'static str {
+    static LP: OnceLock<String> = OnceLock::new();
+    LP.get_or_init(|| {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let lp = dir.path().join("demo.lp");
+        let out = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+            .current_dir(repo())
+            .args(["replay", "--config", "config/demo/plant.toml", "--input", "config/demo/history.csv.gz", "--no-progress", "--write-lp"])
+            .arg(&lp)
+            .output()
+            .expect("run lifeledger replay");
+        assert!(
+            out.status.success(),
+            "lifeledger replay failed: {}\n{}",
+            String::from_utf8_lossy(&out.stdout),
+            String::from_utf8_lossy(&out.stderr)
+        );
+        std::fs::read_to_string(&lp).expect("read the replay's line protocol")
+    })
+}
+
+fn demo_config() -> lifeledger::settings::LoadedConfig {
+    lifeledger::settings::load_plan(&repo().join("config/demo/plant.toml")).expect("demo configuration loads")
+}
+
+fn alarm_event(component: &str, index: AlarmIndex, value: f64, threshold: f64, time_ms: i64) -> AlarmEvent {
+    AlarmEvent {
+        component: component.into(),
+        unit: DEMO_UNIT.into(),
+        index,
+        transition: Transition::Activated,
+        severity: Some(Severity::Advisory),
+        state: AlarmState::Unacknowledged,
+        value: Some(value),
+        threshold: Some(threshold),
+        time: lifeledger::report::rfc3339_ms(time_ms),
+        time_ms,
+        message: format!("{component}: {} reached the advisory level {threshold}", index.name()),
+        by: None,
+        reason: None,
+        shelved_until: None,
+        detail: None,
+        caution: lifeledger::CAUTION,
+    }
+}
+
+/// What the live service would have written beside the component series
+/// of the demo month: alarm thresholds with every component point, two
+/// alarm events (the ones the demo history raises), and a health point
+/// every ten minutes. Returns the lines and the first and last event time
+/// of the component series, ms.
+fn demo_points() -> (Vec<String>, i64, i64) {
+    let cfg = demo_config();
+    let plant = cfg.plan.plant.clone();
+    let mut lines: Vec<String> = demo_lp().lines().filter(|l| !l.trim().is_empty()).map(String::from).collect();
+    let times: BTreeSet<i64> = lines.iter().map(|l| parse_line(l).time_ns / 1_000_000).collect();
+    let (first, last) = (*times.first().expect("replay wrote points"), *times.last().unwrap());
+    for &t in &times {
+        for c in &cfg.plan.components {
+            lines.extend(lifeledger::report::threshold_points(&plant, c, t).iter().filter_map(Point::to_line));
+        }
+    }
+    let mid = first + (last - first) * 3 / 4;
+    lines.extend(alarm_event(DEMO_COMPONENTS[0], AlarmIndex::CreepLifeFraction, 0.2451, 0.245, mid).to_point(&plant).to_line());
+    lines.extend(alarm_event(DEMO_COMPONENTS[1], AlarmIndex::WearIndex, 0.3502, 0.35, mid + 60_000).to_point(&plant).to_line());
+    for (i, &t) in times.iter().enumerate() {
+        let i = i as i64;
+        let mut p = Point::new("service_health", t * 1_000_000)
+            .tag("plant", &plant)
+            .int("samples_accepted", 7_200 * i)
+            .int("duplicates", 0)
+            .int("outbox_lines", i % 7)
+            .int("outbox_bytes", 180 * (i % 7))
+            .float("commit_latency_ms", 2.0 + (i % 5) as f64)
+            .boolean("mqtt_connected", i % 97 != 0);
+        for (k, f) in health_rejection_fields().iter().enumerate() {
+            p = p.int(f, i * k as i64 / 3);
+        }
+        lines.extend(p.to_line());
+    }
+    (lines, first, last)
+}
+
+fn write_lines(vm: &VictoriaMetrics, lines: &[String]) {
+    for chunk in lines.chunks(CHUNK_LINES) {
+        let body = chunk.join("\n") + "\n";
+        let target = "/api/v2/write?org=demo&bucket=lifeledger&precision=ns";
+        let resp = http::post(vm.port, target, body.as_bytes()).unwrap_or_else(|e| panic!("POST {target}: {e}"));
+        assert_eq!(resp.status, 204, "write to victoria-metrics: {}", resp.text());
+    }
+    vm.flush();
+}
+
+// --------------------------------------------------------------- dashboards
+
+fn dashboards(kind: &str) -> Vec<(String, Value)> {
+    let dir = repo().join("dashboards").join(kind);
+    let mut out = vec![];
+    for e in std::fs::read_dir(&dir).unwrap_or_else(|e| panic!("{}: {e}", dir.display())) {
+        let p = e.unwrap().path();
+        if p.extension().and_then(|x| x.to_str()) == Some("json") {
+            let text = std::fs::read_to_string(&p).unwrap();
+            let v: Value = serde_json::from_str(&text).unwrap_or_else(|e| panic!("{}: not JSON: {e}", p.display()));
+            out.push((format!("{kind}/{}", p.file_name().unwrap().to_string_lossy()), v));
+        }
+    }
+    out.sort_by(|a, b| a.0.cmp(&b.0));
+    assert!(out.len() >= 2, "expected the plant-overview and component-detail dashboards in {}", dir.display());
+    out
+}
+
+/// Every panel, rows' nested panels included.
+fn panels(d: &Value) -> Vec<&Value> {
+    fn walk<'a>(ps: &'a Value, out: &mut Vec<&'a Value>) {
+        for p in ps.as_array().into_iter().flatten() {
+            out.push(p);
+            if let Some(inner) = p.get("panels") {
+                walk(inner, out);
+            }
+        }
+    }
+    let mut out = vec![];
+    walk(&d["panels"], &mut out);
+    out
+}
+
+fn title(p: &Value) -> String {
+    p["title"].as_str().unwrap_or("(untitled)").to_string()
+}
+
+/// `(panel title, refId, query text, instant)` of every panel target.
+fn queries<'a>(d: &'a Value, key: &str) -> Vec<(String, String, &'a str, bool)> {
+    let mut out = vec![];
+    for p in panels(d) {
+        for t in p["targets"].as_array().into_iter().flatten() {
+            let q = t[key].as_str().unwrap_or_else(|| panic!("panel {:?} target has no {key}", title(p)));
+            let instant = t["instant"].as_bool().unwrap_or(false) && !t["range"].as_bool().unwrap_or(false);
+            out.push((title(p), t["refId"].as_str().unwrap_or("?").to_string(), q, instant));
+        }
+    }
+    out
+}
+
+/// Dashboard variable names.
+fn variables(d: &Value) -> BTreeSet<String> {
+    d["templating"]["list"].as_array().into_iter().flatten().filter_map(|v| v["name"].as_str().map(String::from)).collect()
+}
+
+/// Every `$name` / `${name}` / `${name:format}` used in `q`.
+fn used_variables(q: &str) -> Vec<String> {
+    let b = q.as_bytes();
+    let mut out = vec![];
+    let mut i = 0;
+    while i < b.len() {
+        if b[i] == b'$' {
+            let (start, braced) = if b.get(i + 1) == Some(&b'{') { (i + 2, true) } else { (i + 1, false) };
+            let mut j = start;
+            while j < b.len() && (b[j].is_ascii_alphanumeric() || b[j] == b'_') {
+                j += 1;
+            }
+            out.push(q[start..j].to_string());
+            if braced {
+                while j < b.len() && b[j] != b'}' {
+                    j += 1;
+                }
+            }
+            i = j;
+        } else {
+            i += 1;
+        }
+    }
+    out
+}
+
+const BUILTIN_VARIABLES: [&str; 4] = ["__range", "__rate_interval", "__interval", "__range_s"];
+
+/// Replaces the dashboard variables by `values` (longest names first, so
+/// `$__range_s` is not read as `$__range`).
+fn substitute(q: &str, values: &BTreeMap<&str, String>) -> String {
+    let mut keys: Vec<&&str> = values.keys().collect();
+    keys.sort_by_key(|k| std::cmp::Reverse(k.len()));
+    let mut s = q.to_string();
+    for k in keys {
+        s = s.replace(&format!("${{{k}}}"), &values[*k]).replace(&format!("${k}"), &values[*k]);
+    }
+    s
+}
+
+#[test]
+fn every_dashboard_shows_the_caution_and_is_provisioning_ready() {
+    let mut uids = BTreeSet::new();
+    for kind in ["prometheus", "influxdb2"] {
+        let ds_type = if kind == "prometheus" { "prometheus" } else { "influxdb" };
+        for (file, d) in dashboards(kind) {
+            let caution = panels(&d).into_iter().any(|p| {
+                p["type"] == "text" && p["options"]["content"].as_str().is_some_and(|c| c.contains(lifeledger::CAUTION))
+            });
+            assert!(caution, "{file}: no text panel shows the caution {:?}", lifeledger::CAUTION);
+            let uid = d["uid"].as_str().unwrap_or_else(|| panic!("{file}: no uid"));
+            assert!(uids.insert(uid.to_string()), "{file}: uid {uid} used twice");
+            assert!(d["title"].as_str().is_some_and(|t| !t.is_empty()), "{file}: no title");
+            assert!(d.get("__inputs").is_none(), "{file}: __inputs placeholders do not work with file provisioning");
+            let vars = variables(&d);
+            for v in ["datasource", "plant", "unit", "component"] {
+                assert!(vars.contains(v), "{file}: no {v} variable");
+            }
+            if kind == "influxdb2" {
+                assert!(vars.contains("bucket"), "{file}: no bucket variable");
+            }
+            let mut ids = BTreeSet::new();
+            for p in panels(&d) {
+                let id = p["id"].as_i64().unwrap_or_else(|| panic!("{file}: panel {:?} has no id", title(p)));
+                assert!(ids.insert(id), "{file}: panel id {id} used twice");
+                assert!(p["gridPos"]["w"].as_i64().is_some(), "{file}: panel {:?} has no gridPos", title(p));
+                let mut sources = vec![&p["datasource"]];
+                sources.extend(p["targets"].as_array().into_iter().flatten().map(|t| &t["datasource"]));
+                for ds in sources.into_iter().filter(|ds| !ds.is_null()) {
+                    assert_eq!(ds["uid"], "${datasource}", "{file}: panel {:?} must use the datasource variable", title(p));
+                    assert_eq!(ds["type"], ds_type, "{file}: panel {:?} datasource type", title(p));
+                }
+            }
+            let key = if kind == "prometheus" { "expr" } else { "query" };
+            for (panel, _, q, _) in queries(&d, key) {
+                for v in used_variables(q) {
+                    assert!(
+                        vars.contains(&v) || BUILTIN_VARIABLES.contains(&v.as_str()),
+                        "{file}: panel {panel:?} uses ${v}, which is no variable of the dashboard"
+                    );
+                }
+            }
+        }
+    }
+}
+
+#[test]
+fn schema_matches_the_points_the_product_writes() {
+    let schema = schema();
+    let by_name: BTreeMap<&str, &Measurement> = schema.iter().map(|m| (m.name, m)).collect();
+    let mut seen: BTreeMap<String, (BTreeSet<String>, BTreeSet<String>)> = BTreeMap::new();
+    let (lines, _, _) = demo_points();
+    for l in &lines {
+        let l = parse_line(l);
+        let e = seen.entry(l.measurement).or_default();
+        e.0.extend(l.tags.into_keys());
+        e.1.extend(l.fields);
+    }
+    // component_state comes from the replay, alarm_threshold and
+    // alarm_event from the product's own point builders; service_health is
+    // synthesised by this test, so it only has to be there.
+    for name in ["component_state", "alarm_threshold", "alarm_event"] {
+        let m = by_name[name];
+        let (tags, fields) = seen.get(name).unwrap_or_else(|| panic!("no {name} points"));
+        let want_tags: BTreeSet<String> = m.tags.iter().map(|s| s.to_string()).collect();
+        let want_fields: BTreeSet<String> = m.fields.iter().cloned().collect();
+        assert_eq!(tags, &want_tags, "tags of {name}: update the schema in tests/dashboards.rs and the dashboards");
+        assert_eq!(fields, &want_fields, "fields of {name}: update the schema in tests/dashboards.rs and the dashboards");
+    }
+    assert!(seen.contains_key("service_health"));
+}
+
+// ---------------------------------------------------------------- PromQL
+
+/// Identifiers in a PromQL expression that name one of our series
+/// (`{measurement}_{field}`), outside strings.
+fn promql_metrics(expr: &str) -> Vec<String> {
+    let mut out = vec![];
+    let mut cur = String::new();
+    let mut quoted = false;
+    for c in expr.chars().chain(std::iter::once(' ')) {
+        if c == '"' {
+            quoted = !quoted;
+        }
+        if !quoted && (c.is_ascii_alphanumeric() || c == '_' || c == ':') {
+            cur.push(c);
+        } else {
+            if ["component_state_", "alarm_threshold_", "alarm_event_", "service_health_"].iter().any(|p| cur.starts_with(p)) {
+                out.push(cur.clone());
+            }
+            cur.clear();
+        }
+    }
+    out
+}
+
+#[test]
+fn prometheus_dashboard_metrics_are_in_the_schema() {
+    let names: BTreeSet<String> =
+        schema().iter().flat_map(|m| m.fields.iter().map(move |f| format!("{}_{f}", m.name))).collect();
+    for (file, d) in dashboards("prometheus") {
+        let mut exprs: Vec<(String, String)> =
+            queries(&d, "expr").into_iter().map(|(p, _, q, _)| (p, q.to_string())).collect();
+        for v in d["templating"]["list"].as_array().into_iter().flatten() {
+            if let Some(q) = v["definition"].as_str() {
+                exprs.push((format!("variable {}", v["name"]), q.to_string()));
+            }
+        }
+        for (panel, expr) in exprs {
+            for m in promql_metrics(&expr) {
+                assert!(names.contains(&m), "{file}: panel {panel:?} uses {m}, which lifeledger does not write");
+            }
+        }
+    }
+}
+
+/// `label_values(selector, label)` of a Grafana Prometheus variable.
+fn label_values_query(q: &str) -> (String, String) {
+    let inner = q.trim().strip_prefix("label_values(").and_then(|s| s.strip_suffix(')')).unwrap_or_else(|| panic!("variable query {q:?}"));
+    let (sel, label) = inner.rsplit_once(',').unwrap();
+    (sel.trim().to_string(), label.trim().to_string())
+}
+
+#[test]
+fn prometheus_dashboards_answer_on_the_demo_data() {
+    let (lines, first_ms, last_ms) = demo_points();
+    let vm = VictoriaMetrics::start();
+    write_lines(&vm, &lines);
+    let (start, end) = (first_ms / 1000, last_ms / 1000);
+    let range_s = end - start + 1;
+    let range_query = |expr: &str| -> Value {
+        let target = format!("/api/v1/query_range?query={}&start={start}&end={end}&step=3600", encode(expr));
+        let resp = http::get(vm.port, &target).unwrap_or_else(|e| panic!("GET {target}: {e}"));
+        assert_eq!(resp.status, 200, "query_range {expr}: {}", resp.text());
+        serde_json::from_slice(&resp.body).expect("query_range answer is JSON")
+    };
+    let series_count = |answer: &Value| -> usize {
+        answer["data"]["result"]
+            .as_array()
+            .map(|r| r.iter().filter(|s| s["values"].as_array().map_or(true, |v| !v.is_empty())).count())
+            .unwrap_or(0)
+    };
+    let mut checked = 0;
+    for (file, d) in dashboards("prometheus") {
+        // Variables first: each must offer the demo value.
+        for v in d["templating"]["list"].as_array().into_iter().flatten() {
+            let Some(q) = v["definition"].as_str() else { continue };
+            let (sel, label) = label_values_query(q);
+            let sel = substitute(&sel, &BTreeMap::from([("plant", DEMO_PLANT.to_string()), ("unit", DEMO_UNIT.to_string())]));
+            let target = format!("/api/v1/label/{label}/values?match[]={}&start={start}&end={end}", encode(&sel));
+            let resp = http::get(vm.port, &target).unwrap();
+            let ans: Value = serde_json::from_slice(&resp.body).unwrap();
+            let want = match label.as_str() {
+                "plant" => DEMO_PLANT,
+                "unit" => DEMO_UNIT,
+                _ => DEMO_COMPONENTS[0],
+            };
+            assert!(
+                ans["data"].as_array().is_some_and(|a| a.iter().any(|x| x == want)),
+                "{file}: variable {} ({q}) does not offer {want:?}: {ans}",
+                v["name"]
+            );
+        }
+        let multi = d["templating"]["list"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|v| v["name"] == "component" && v["multi"].as_bool() == Some(true));
+        // A multi-value component variable is tried with All (".*"); a
+        // single one with each demo component, and a panel needs data for
+        // at least one of them (creep panels have none for a wear contact).
+        let candidates: Vec<String> =
+            if multi { vec![".*".to_string()] } else { DEMO_COMPONENTS.iter().map(|s| s.to_string()).collect() };
+        for (panel, ref_id, expr, instant) in queries(&d, "expr") {
+            let mut answers = vec![];
+            let found = candidates.iter().any(|c| {
+                let values = BTreeMap::from([
+                    ("plant", DEMO_PLANT.to_string()),
+                    ("unit", DEMO_UNIT.to_string()),
+                    ("component", c.clone()),
+                    ("__range", format!("{range_s}s")),
+                    ("__range_s", range_s.to_string()),
+                    ("__rate_interval", "40m".to_string()),
+                    ("__interval", "1h".to_string()),
+                ]);
+                let q = substitute(expr, &values);
+                assert!(!q.contains('$'), "{file}: panel {panel:?} query {ref_id} keeps a variable after substitution: {q}");
+                let ans = if instant { vm.query(&q, end as f64) } else { range_query(&q) };
+                assert_eq!(ans["status"], "success", "{file}: panel {panel:?} query {ref_id}: {ans}");
+                let n = series_count(&ans);
+                answers.push(format!("component={c}: {q}"));
+                n > 0
+            });
+            assert!(
+                found,
+                "{file}: panel {panel:?} query {ref_id} returns no series on the demo data:\n  {}",
+                answers.join("\n  ")
+            );
+            checked += 1;
+        }
+    }
+    assert!(checked >= 20, "only {checked} PromQL queries found");
+}
+
+// ------------------------------------------------------------------- Flux
+
+#[derive(Debug, Clone, PartialEq)]
+enum Tok {
+    Ident(String),
+    Str(String),
+    Var(String),
+    Punct(String),
+}
+
+/// A small Flux tokeniser: identifiers (dotted, e.g. `r._field`), strings,
+/// Grafana variables outside strings, operators and punctuation.
+fn flux_tokens(q: &str) -> Result<Vec<Tok>, String> {
+    let c: Vec<char> = q.chars().collect();
+    let mut out = vec![];
+    let mut i = 0;
+    while i < c.len() {
+        let ch = c[i];
+        if ch.is_whitespace() {
+            i += 1;
+        } else if ch == '"' {
+            let mut s = String::new();
+            i += 1;
+            loop {
+                match c.get(i) {
+                    None => return Err("unterminated string".into()),
+                    Some('\\') => {
+                        s.push(*c.get(i + 1).ok_or("dangling escape")?);
+                        i += 2;
+                    }
+                    Some('"') => {
+                        i += 1;
+                        break;
+                    }
+                    Some(&x) => {
+                        s.push(x);
+                        i += 1;
+                    }
+                }
+            }
+            out.push(Tok::Str(s));
+        } else if ch == '$' && c.get(i + 1) == Some(&'{') {
+            let end = (i..c.len()).find(|&j| c[j] == '}').ok_or("unclosed ${")?;
+            out.push(Tok::Var(c[i + 2..end].iter().collect()));
+            i = end + 1;
+        } else if ch.is_ascii_alphabetic() || ch == '_' {
+            let start = i;
+            while i < c.len() && (c[i].is_ascii_alphanumeric() || c[i] == '_' || c[i] == '.') {
+                i += 1;
+            }
+            out.push(Tok::Ident(c[start..i].iter().collect()));
+        } else if ch.is_ascii_digit() {
+            while i < c.len() && (c[i].is_ascii_alphanumeric() || c[i] == '.') {
+                i += 1;
+            }
+            out.push(Tok::Punct("number".into()));
+        } else {
+            let two: String = c[i..(i + 2).min(c.len())].iter().collect();
+            if ["==", "!=", "=>", "|>", "<=", ">="].contains(&two.as_str()) {
+                out.push(Tok::Punct(two));
+                i += 2;
+            } else {
+                out.push(Tok::Punct(ch.to_string()));
+                i += 1;
+            }
+        }
+    }
+    let mut depth = vec![];
+    for t in &out {
+        if let Tok::Punct(p) = t {
+            match p.as_str() {
+                "(" | "[" | "{" => depth.push(p.clone()),
+                ")" | "]" | "}" => {
+                    let open = depth.pop().ok_or(format!("unbalanced {p}"))?;
+                    let want = match p.as_str() {
+                        ")" => "(",
+                        "]" => "[",
+                        _ => "{",
+                    };
+                    if open != want {
+                        return Err(format!("{open} closed by {p}"));
+                    }
+                }
+                _ => {}
+            }
+        }
+    }
+    if let Some(open) = depth.pop() {
+        return Err(format!("unclosed {open}"));
+    }
+    Ok(out)
+}
+
+/// Names a Flux query uses, by role.
+#[derive(Default, Debug)]
+struct FluxNames {
+    measurements: Vec<String>,
+    fields: Vec<String>,
+    field_prefixes: Vec<String>,
+    /// `r.name` references, `columns: [...]`-style lists and `tag: "..."`.
+    columns: Vec<String>,
+}
+
+fn flux_names(toks: &[Tok]) -> FluxNames {
+    let mut n = FluxNames::default();
+    let ident = |i: usize| match toks.get(i) {
+        Some(Tok::Ident(s)) => Some(s.as_str()),
+        _ => None,
+    };
+    let punct = |i: usize, p: &str| matches!(toks.get(i), Some(Tok::Punct(x)) if x == p);
+    let string = |i: usize| match toks.get(i) {
+        Some(Tok::Str(s)) => Some(s.clone()),
+        _ => None,
+    };
+    for i in 0..toks.len() {
+        match ident(i) {
+            Some("r._measurement") if punct(i + 1, "==") => n.measurements.extend(string(i + 2)),
+            Some("r._field") if punct(i + 1, "==") => n.fields.extend(string(i + 2)),
+            Some("prefix") if punct(i + 1, ":") => n.field_prefixes.extend(string(i + 2)),
+            Some("tag") if punct(i + 1, ":") => n.columns.extend(string(i + 2)),
+            Some("columns" | "rowKey" | "columnKey" | "on") if punct(i + 1, ":") && punct(i + 2, "[") => {
+                let mut j = i + 3;
+                while let Some(s) = string(j) {
+                    n.columns.push(s);
+                    j += if punct(j + 1, ",") { 2 } else { 1 };
+                }
+            }
+            Some(s) if s.starts_with("r.") => n.columns.push(s[2..].to_string()),
+            _ => {}
+        }
+    }
+    n.columns.retain(|c| !c.starts_with('_'));
+    n
+}
+
+#[test]
+fn influxdb_dashboards_use_only_names_the_product_writes() {
+    let schema = schema();
+    let mut checked = 0;
+    for (file, d) in dashboards("influxdb2") {
+        let mut qs: Vec<(String, String)> =
+            queries(&d, "query").into_iter().map(|(p, r, q, _)| (format!("panel {p:?} query {r}"), q.to_string())).collect();
+        for v in d["templating"]["list"].as_array().into_iter().flatten() {
+            if v["type"] == "query" {
+                let q = v["query"].as_str().unwrap_or_else(|| panic!("{file}: variable {} has no Flux query", v["name"]));
+                qs.push((format!("variable {}", v["name"]), q.to_string()));
+            }
+        }
+        for (what, q) in qs {
+            let toks = flux_tokens(&q).unwrap_or_else(|e| panic!("{file}: {what}: Flux does not tokenise ({e}):\n{q}"));
+            assert!(
+                toks.iter().any(|t| *t == Tok::Ident("v.timeRangeStart".into())) || q.contains("schema.tagValues"),
+                "{file}: {what}: not bounded by the dashboard time range"
+            );
+            assert!(toks.contains(&Tok::Var("bucket".into())), "{file}: {what}: does not read bucket ${{bucket}}");
+            let names = flux_names(&toks);
+            assert!(!names.measurements.is_empty(), "{file}: {what}: names no measurement");
+            let mut used = vec![];
+            for m in &names.measurements {
+                let s = schema
+                    .iter()
+                    .find(|s| s.name == m)
+                    .unwrap_or_else(|| panic!("{file}: {what}: unknown measurement {m:?}"));
+                used.push(s);
+            }
+            let fields: BTreeSet<&str> = used.iter().flat_map(|m| m.fields.iter().map(String::as_str)).collect();
+            let tags: BTreeSet<&str> = used.iter().flat_map(|m| m.tags.iter().copied()).collect();
+            for f in &names.fields {
+                assert!(fields.contains(f.as_str()), "{file}: {what}: unknown field {f:?} of {:?}", names.measurements);
+            }
+            for p in &names.field_prefixes {
+                assert!(fields.iter().any(|f| f.starts_with(p.as_str())), "{file}: {what}: no field starts with {p:?}");
+            }
+            for c in &names.columns {
+                // After a pivot, fields are columns too.
+                assert!(
+                    tags.contains(c.as_str()) || fields.contains(c.as_str()),
+                    "{file}: {what}: unknown tag or column {c:?} of {:?}",
+                    names.measurements
+                );
+            }
+            checked += 1;
+        }
+    }
+    assert!(checked >= 20, "only {checked} Flux queries found");
+}
+
+#[test]
+fn the_flux_checker_catches_unknown_names() {
+    let toks = flux_tokens(
+        r#"from(bucket: "${bucket}") |> range(start: v.timeRangeStart) |> filter(fn: (r) => r._measurement == "component_state" and r._field == "life" and r.area == "x") |> keep(columns: ["_time", "zone"])"#,
+    )
+    .unwrap();
+    let n = flux_names(&toks);
+    assert_eq!(n.measurements, ["component_state"]);
+    assert_eq!(n.fields, ["life"]);
+    assert_eq!(n.columns, ["area", "zone"]);
+    assert!(flux_tokens("filter(fn: (r) => (r._value > 0)").is_err());
+    assert!(flux_tokens(r#"x == "open"#).is_err());
+}
+
+// ------------------------------------------------------------- deployment
+
+const PRODUCTION: &str = "deploy/lifeledger.production.toml";
+
+#[test]
+fn production_config_passes_check_config() {
+    let out = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+        .current_dir(repo())
+        .args(["check-config", PRODUCTION])
+        .env_remove("LIFELEDGER_DB_TOKEN")
+        .output()
+        .expect("run lifeledger check-config");
+    assert!(
+        out.status.success(),
+        "check-config {PRODUCTION} failed:\n{}\n{}",
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
+#[test]
+fn production_config_service_sections_are_valid_and_complete() {
+    let path = repo().join(PRODUCTION);
+    let (cfg, svc) = lifeledger::service::load_service(&path).unwrap_or_else(|e| panic!("{PRODUCTION}: {e:#}"));
+    assert!(cfg.plan.components.len() >= 4);
+    assert!(svc.mqtt.tls.is_some(), "the example uses TLS to the broker");
+    assert_eq!(svc.mqtt.port, 8883);
+    assert!(!svc.mqtt.subscriptions.is_empty());
+    let db = svc.database.as_ref().expect("[database] section");
+    assert!(db.token_env.is_some(), "database token from the environment");
+    assert!(svc.http.token_env.is_some(), "http token from the environment");
+
+    // Every section the configuration knows appears in the example.
+    let text = std::fs::read_to_string(&path).unwrap();
+    let doc: toml::Table = toml::from_str(&text).unwrap();
+    for s in ["plant", "engine", "tag", "component", "material", "mqtt", "store", "database", "http", "alarms"] {
+        assert!(doc.contains_key(s), "{PRODUCTION}: no [{s}] section");
+    }
+    let comps = doc["component"].as_array().unwrap();
+    for sub in ["geometry", "wear", "initial", "thresholds"] {
+        assert!(comps.iter().any(|c| c.get(sub).is_some()), "{PRODUCTION}: no [component.{sub}]");
+    }
+    let mqtt = doc["mqtt"].as_table().unwrap();
+    assert!(mqtt.contains_key("tls"), "{PRODUCTION}: no [mqtt.tls]");
+    let subs = mqtt["subscription"].as_array().unwrap();
+    assert!(subs.iter().any(|s| s.get("payload").is_some()), "{PRODUCTION}: no [mqtt.subscription.payload]");
+
+    // Every key carries a comment: on its line or on the line above.
+    let mut prev = "";
+    for (n, line) in text.lines().enumerate() {
+        let l = line.trim();
+        let is_key = !l.is_empty() && !l.starts_with('#') && !l.starts_with('[') && l.contains('=');
+        if is_key {
+            assert!(
+                l.contains(" # ") || prev.starts_with('#'),
+                "{PRODUCTION}:{}: key without a comment: {l}",
+                n + 1
+            );
+        }
+        if !l.is_empty() {
+            prev = l;
+        }
+    }
+}
+
+#[test]
+fn systemd_unit_is_hardened() {
+    let unit = std::fs::read_to_string(repo().join("deploy/lifeledger.service")).unwrap();
+    let lines: BTreeSet<&str> = unit.lines().map(str::trim).collect();
+    for want in [
+        "ProtectSystem=strict",
+        "ProtectHome=yes",
+        "PrivateTmp=yes",
+        "NoNewPrivileges=yes",
+        "StateDirectory=lifeledger",
+        "ConfigurationDirectory=lifeledger",
+        "Restart=on-failure",
+        "ExecReload=/bin/kill -HUP $MAINPID",
+        "KillSignal=SIGTERM",
+        "CapabilityBoundingSet=",
+    ] {
+        assert!(lines.contains(want), "deploy/lifeledger.service lacks {want}");
+    }
+    for prefix in ["User=", "RestartSec=", "TimeoutStopSec=", "MemoryMax=", "EnvironmentFile=", "ExecStart="] {
+        assert!(lines.iter().any(|l| l.starts_with(prefix)), "deploy/lifeledger.service lacks {prefix}");
+    }
+}
+
+#[test]
+fn readmes_carry_the_caution() {
+    for f in ["dashboards/README.md", "deploy/README.md"] {
+        let text = std::fs::read_to_string(repo().join(f)).unwrap_or_else(|e| panic!("{f}: {e}"));
+        assert!(text.contains(lifeledger::CAUTION), "{f} lacks the caution");
+    }
+    let d = std::fs::read_to_string(repo().join("dashboards/README.md")).unwrap();
+    assert!(d.contains("-dedup.minScrapeInterval=1ms"), "dashboards/README.md must name the dedup flag");
+}
+

@@ -1,0 +1,441 @@
+//! The status page in a real browser: a real mosquitto broker, the service
+//! fed over MQTT, and headless Chromium loading `/` and `/component/{name}`
+//! with their scripts running against the live JSON API. The DOM Chromium
+//! builds is checked for the ledger's numbers, the trend and histogram SVG,
+//! the material sources and the caution; screenshots are kept under
+//! `target/test-artifacts/` for people to look at.
+//!
+//! Chromium (Debian packages `chromium` and `chromium-driver`) is installed
+//! by `tests/run`; without it these tests fail and say so.
+
+mod common;
+
+use common::{free_port, http, poll_until, Mosquitto};
+use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
+use std::path::{Path, PathBuf};
+use std::process::{Child, Command, Stdio};
+use std::time::Duration;
+
+const CHROMIUM: &str = "/usr/bin/chromium";
+const T0: i64 = 1_790_812_800; // 2026-10-01T00:00:00Z
+const CAUTION: &str = "Screening estimate only: limits, material data and acceptance must come from the plant's governing code and a responsible engineer.";
+
+fn chromium() -> &'static str {
+    if !Path::new(CHROMIUM).exists() {
+        panic!(
+            "headless Chromium not found at {CHROMIUM}: the status-page tests need the Debian packages \
+             `chromium` and `chromium-driver`; run tests/run, which installs them"
+        );
+    }
+    CHROMIUM
+}
+
+fn config(dir: &Path, mqtt_port: u16, http_port: u16) -> PathBuf {
+    let text = format!(
+        r#"
+[plant]
+name = "Status Page Test Station"
+[engine]
+max_hold_s = 600
+[[tag]]
+name = "TE-1"
+unit = "degC"
+valid_range = [0, 800]
+[[tag]]
+name = "TE-2"
+unit = "degC"
+valid_range = [0, 800]
+[[tag]]
+name = "PT-1"
+unit = "bar"
+[[tag]]
+name = "LOAD-1"
+unit = "N"
+[[tag]]
+name = "SLIP-1"
+unit = "um"
+
+[[component]]
+name = "SH-TUBE"
+unit = "U1"
+kind = "tube"
+material = "2.25Cr-1Mo"
+design_temperature = {{ value = 570, unit = "degC" }}
+design_pressure = {{ value = 180, unit = "bar" }}
+metal_temperature = "TE-1"
+pressure = "PT-1"
+[component.geometry]
+outside_diameter = {{ value = 44.5, unit = "mm" }}
+wall = {{ value = 5.0, unit = "mm" }}
+[component.initial]
+life_fraction = 0.31
+
+[[component]]
+name = "SUPPORT"
+unit = "U1"
+kind = "wear_contact"
+material = "P22"
+[component.wear]
+model = "fretting"
+normal_load = "LOAD-1"
+slip_amplitude = "SLIP-1"
+frequency = {{ value = 25, unit = "Hz" }}
+wear_coefficient = 1.0e-9
+contact_area_mm2 = 30.0
+allowable_depth = {{ value = 0.5, unit = "mm" }}
+[component.initial]
+wear_depth_mm = 0.21
+
+[[component]]
+name = "RH-HEADER"
+unit = "U2"
+kind = "header"
+material = "P91"
+design_temperature = {{ value = 570, unit = "degC" }}
+design_pressure = {{ value = 180, unit = "bar" }}
+metal_temperature = "TE-2"
+pressure = "PT-1"
+[component.geometry]
+outside_diameter = {{ value = 350, unit = "mm" }}
+wall = {{ value = 40, unit = "mm" }}
+[component.initial]
+life_fraction = 0.12
+
+[mqtt]
+port = {mqtt_port}
+client_id = "lifeledger-status-page-test"
+reconnect_min_s = 0.1
+reconnect_max_s = 0.5
+[[mqtt.subscription]]
+topic = "plant/{{tag}}"
+[store]
+path = "{store}"
+health_interval_s = 1
+[http]
+listen = "127.0.0.1:{http_port}"
+"#,
+        store = dir.join("ledger.sqlite").display()
+    );
+    let p = dir.join("service.toml");
+    std::fs::write(&p, text).unwrap();
+    p
+}
+
+/// Ten hours minute by minute: a start-up ramp, a load swing and an
+/// over-temperature hour on the tube, a steadier header.
+fn samples(minutes: i64) -> Vec<(String, i64, f64)> {
+    let mut v = vec![];
+    for m in 0..minutes {
+        let ts = T0 + 60 * m;
+        let x = m as f64;
+        let te = if m < 120 { 300.0 + 2.3 * x } else { 568.0 + 6.0 * (x / 37.0).sin() + if (300..360).contains(&m) { 25.0 } else { 0.0 } };
+        let te2 = if m < 120 { 300.0 + 2.2 * x } else { 562.0 + 3.0 * (x / 53.0).cos() };
+        let pt = 150.0 + 20.0 * (x / 90.0).cos();
+        v.push(("TE-1".into(), ts, te));
+        v.push(("TE-2".into(), ts, te2));
+        v.push(("PT-1".into(), ts, pt));
+        v.push(("LOAD-1".into(), ts, 80.0 + 10.0 * (x / 13.0).sin()));
+        v.push(("SLIP-1".into(), ts, 40.0 + 5.0 * (x / 29.0).cos()));
+    }
+    v
+}
+
+/// Publish with QoS 1 and wait until the broker acknowledged every message.
+fn publish_all(port: u16, s: &[(String, i64, f64)], id: &str) {
+    let mut o = MqttOptions::new(id, "127.0.0.1", port);
+    o.set_keep_alive(Duration::from_secs(30));
+    o.set_inflight(100);
+    let (client, mut conn) = Client::new(o, 1000);
+    let n = s.len();
+    let pubber = {
+        let s = s.to_vec();
+        std::thread::spawn(move || {
+            for (tag, ts, v) in s {
+                let payload = format!("{{\"value\": {v:?}, \"timestamp\": {ts}}}").into_bytes();
+                client.publish(format!("plant/{tag}"), QoS::AtLeastOnce, false, payload).unwrap();
+            }
+            client
+        })
+    };
+    let mut acked = 0;
+    for ev in conn.iter() {
+        match ev {
+            Ok(Event::Incoming(Packet::PubAck(_))) => {
+                acked += 1;
+                if acked == n {
+                    break;
+                }
+            }
+            Ok(_) => {}
+            Err(e) => panic!("publisher connection failed: {e}"),
+        }
+    }
+    let client = pubber.join().unwrap();
+    let _ = client.disconnect();
+}
+
+struct Service {
+    child: Child,
+    http_port: u16,
+}
+
+impl Service {
+    fn start(config: &Path, http_port: u16) -> Service {
+        let log = std::fs::File::create(config.with_extension("log")).unwrap();
+        let child = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+            .args(["run", "--config", config.to_str().unwrap()])
+            .env("RUST_LOG", "info")
+            .stdout(Stdio::null())
+            .stderr(log)
+            .spawn()
+            .unwrap();
+        let s = Service { child, http_port };
+        poll_until("the service's /healthz", || http::get(http_port, "/healthz").ok().filter(|r| r.status == 200));
+        s
+    }
+
+    fn get_json(&self, target: &str) -> Option<serde_json::Value> {
+        let r = http::get(self.http_port, target).ok().filter(|r| r.status == 200)?;
+        serde_json::from_str(&r.text()).ok()
+    }
+
+    fn wait_until_integrated(&self, last_ts: i64) -> serde_json::Value {
+        let want = chrono::DateTime::from_timestamp(last_ts, 0).unwrap().format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string();
+        poll_until("the ledger to reach the last sample", || {
+            self.get_json("/api/components")
+                .filter(|s| s["components"].as_array().is_some_and(|c| c.iter().all(|c| c["integrated_to"] == want.as_str())))
+        })
+    }
+}
+
+impl Drop for Service {
+    fn drop(&mut self) {
+        let _ = self.child.kill();
+        let _ = self.child.wait();
+    }
+}
+
+/// Headless Chromium on `url` with `extra` arguments (`--dump-dom` or
+/// `--screenshot=...`); its own throw-away profile; stdout returned.
+fn chromium_run(url: &str, extra: &[&str]) -> String {
+    let profile = tempfile::tempdir().unwrap();
+    let mut args: Vec<String> = [
+        "--headless",
+        "--no-sandbox",
+        "--disable-gpu",
+        "--disable-quic",
+        "--no-first-run",
+        "--disable-background-networking",
+        "--disable-component-update",
+        "--disable-sync",
+        "--disable-dev-shm-usage",
+        "--hide-scrollbars",
+        "--virtual-time-budget=5000",
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect();
+    args.push(format!("--user-data-dir={}", profile.path().display()));
+    args.extend(extra.iter().map(|s| s.to_string()));
+    args.push(url.to_string());
+    let out = Command::new(chromium()).args(&args).stdin(Stdio::null()).output().expect("run chromium");
+    assert!(
+        out.status.success(),
+        "chromium {args:?} failed ({}):\n{}",
+        out.status,
+        String::from_utf8_lossy(&out.stderr)
+    );
+    String::from_utf8_lossy(&out.stdout).into_owned()
+}
+
+fn dump_dom(port: u16, path: &str) -> String {
+    let dom = chromium_run(&format!("http://127.0.0.1:{port}{path}"), &["--dump-dom"]);
+    assert!(dom.contains("</html>"), "no DOM from chromium for {path}: {dom:?}");
+    dom
+}
+
+/// Where screenshots go: `target/test-artifacts/`.
+fn artifacts() -> PathBuf {
+    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).parent().expect("target dir").join("test-artifacts");
+    std::fs::create_dir_all(&dir).unwrap();
+    dir
+}
+
+fn screenshot(port: u16, path: &str, file: &str, size: &str) -> PathBuf {
+    let png = artifacts().join(file);
+    let _ = std::fs::remove_file(&png);
+    chromium_run(
+        &format!("http://127.0.0.1:{port}{path}"),
+        &[&format!("--screenshot={}", png.display()), &format!("--window-size={size}")],
+    );
+    let bytes = std::fs::read(&png).unwrap_or_else(|e| panic!("no screenshot {}: {e}", png.display()));
+    assert!(bytes.starts_with(b"\x89PNG\r\n\x1a\n") && bytes.len() > 10_000, "{} is not a real screenshot", png.display());
+    png
+}
+
+/// The page's number format for life fraction and wear index (app.js `frac`).
+fn frac(v: f64) -> String {
+    if v == 0.0 {
+        "0".into()
+    } else if v.abs() >= 0.01 {
+        format!("{v:.3}")
+    } else {
+        format!("{v:.2e}")
+    }
+}
+
+/// Text as it appears in a serialised DOM's text nodes.
+fn text_node(s: &str) -> String {
+    s.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('\u{a0}', "&nbsp;")
+}
+
+fn sev_rank(v: &serde_json::Value) -> u8 {
+    match v.as_str() {
+        Some("critical") => 3,
+        Some("warning") => 2,
+        Some("advisory") => 1,
+        _ => 0,
+    }
+}
+
+/// The overview's order: worst alarm severity first, then the larger of
+/// life fraction and wear index.
+fn worst_first(snap: &serde_json::Value) -> Vec<String> {
+    let alarms = snap["alarms"].as_array().unwrap();
+    let mut v: Vec<(u8, f64, String)> = snap["components"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| {
+            let name = c["component"].as_str().unwrap().to_string();
+            let sev = alarms.iter().find(|a| a["component"] == name.as_str()).map_or(0, |a| sev_rank(&a["worst_severity"]));
+            let worst = c["creep_life_fraction"].as_f64().unwrap().max(c["wear_index"].as_f64().unwrap());
+            (sev, worst, name)
+        })
+        .collect();
+    v.sort_by(|a, b| b.0.cmp(&a.0).then(b.1.total_cmp(&a.1)).then(a.2.cmp(&b.2)));
+    v.into_iter().map(|x| x.2).collect()
+}
+
+struct Fixture {
+    _broker: Mosquitto,
+    _dir: tempfile::TempDir,
+    svc: Service,
+    snap: serde_json::Value,
+}
+
+fn fixture() -> Fixture {
+    chromium();
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port);
+    let svc = Service::start(&cfg, http_port);
+    poll_until("MQTT connection", || svc.get_json("/api/components").filter(|s| s["mqtt_connected"] == true));
+    // As a plant sends them: a few minutes at a time, each integrated
+    // before the next (the trend keeps one point per ledger commit).
+    let s = samples(600);
+    let mut snap = serde_json::Value::Null;
+    for (i, chunk) in s.chunks(5 * 10).enumerate() {
+        publish_all(broker.port, chunk, &format!("publisher-status-page-{i}"));
+        snap = svc.wait_until_integrated(chunk.last().unwrap().1);
+    }
+    Fixture { _broker: broker, _dir: dir, svc, snap }
+}
+
+#[test]
+fn overview_shows_every_component_worst_first_with_the_caution() {
+    let f = fixture();
+    let port = f.svc.http_port;
+    let dom = dump_dom(port, "/");
+    assert!(dom.contains(&text_node(CAUTION)), "caution missing from the overview");
+    assert!(dom.contains("Status Page Test Station"), "plant name missing");
+    // Every component with its life fraction (creep parts) or wear index.
+    let comps = f.snap["components"].as_array().unwrap();
+    assert_eq!(comps.len(), 3);
+    for c in comps {
+        let name = c["component"].as_str().unwrap();
+        assert!(dom.contains(&format!("data-component=\"{name}\"")), "{name} has no row");
+        let lf = c["creep_life_fraction"].as_f64().unwrap();
+        let wi = c["wear_index"].as_f64().unwrap();
+        let wear = c["hours_to_threshold"].as_object().unwrap().keys().any(|k| k.starts_with("wear_index."));
+        let shown = if wear { frac(wi) } else { frac(lf) };
+        assert!(dom.contains(&format!(">{shown}<")), "{name}: {shown} not on the page");
+        assert!(if wear { wi > 0.0 } else { lf > 0.0 }, "{name} did not move: {c}");
+    }
+    // Worst first.
+    let order = worst_first(&f.snap);
+    let rows = &dom[dom.find("id=\"component-rows\"").expect("component table")..];
+    let pos: Vec<usize> = order.iter().map(|n| rows.find(&format!("data-component=\"{n}\"")).unwrap()).collect();
+    assert!(pos.windows(2).all(|w| w[0] < w[1]), "rows not worst first: expected {order:?}");
+    // The unit filter is built from the data.
+    assert!(dom.contains("<option value=\"U1\">U1</option>") && dom.contains("<option value=\"U2\">U2</option>"));
+    // Header: MQTT state, samples, and the server's read-only answer.
+    assert!(dom.contains("MQTT <b>connected</b>"), "MQTT state missing");
+    let accepted = f.snap["engine"]["accepted"].as_u64().unwrap();
+    assert!(accepted > 0);
+    assert!(dom.contains("accepted</b>"));
+    assert!(dom.contains("read-only"));
+    // Alarm state: SH-TUBE carried 0.31 in, past the default advisory 0.3.
+    let sh = f.snap["alarms"].as_array().unwrap().iter().find(|a| a["component"] == "SH-TUBE").unwrap();
+    assert!(sh["worst_severity"].is_string(), "{sh}");
+    assert!(dom.contains("unack</span>"));
+    // Recent alarm events are listed.
+    let events = f.snap["recent_events"].as_array().unwrap();
+    assert!(!events.is_empty());
+    let newest = events.last().unwrap()["message"].as_str().unwrap();
+    assert!(dom.contains(&text_node(newest)), "newest event {newest:?} not listed");
+
+    let png = screenshot(port, "/", "status-overview.png", "1600,1000");
+    eprintln!("overview screenshot: {}", png.display());
+}
+
+#[test]
+fn component_page_shows_trends_histogram_alarms_and_material_sources() {
+    let f = fixture();
+    let port = f.svc.http_port;
+    let trend = f.svc.get_json("/api/components/SH-TUBE/trend").unwrap();
+    assert!(trend["points"].as_array().unwrap().len() > 10);
+    let mat = f.svc.get_json("/api/materials/2.25Cr-1Mo").unwrap();
+
+    let dom = dump_dom(port, "/component/SH-TUBE");
+    assert!(dom.contains(&text_node(CAUTION)), "caution missing from the component page");
+    assert!(dom.contains("<h1 id=\"component-name\">SH-TUBE</h1>"));
+    // Trend SVG with a drawn line for each quantity.
+    for key in ["metal_temperature_c", "pressure_mpa", "hoop_stress_mpa", "creep_life_fraction"] {
+        let at = dom.find(&format!("<svg class=\"chart\" id=\"trend-{key}\"")).unwrap_or_else(|| panic!("no trend chart for {key}"));
+        let svg = &dom[at..at + dom[at..].find("</svg>").unwrap()];
+        assert!(svg.contains("<path class=\"line") && svg.contains("d=\"M"), "trend {key} has no line");
+    }
+    // Life-fraction level lines (advisory, warning, critical).
+    let at = dom.find("id=\"trend-creep_life_fraction\"").unwrap();
+    let svg = &dom[at..at + dom[at..].find("</svg>").unwrap()];
+    assert!(svg.contains("advisory") && svg.contains("warning") && svg.contains("critical"));
+    // Time-at-temperature histogram with bars.
+    let at = dom.find("id=\"hist-temperature\"").expect("temperature histogram");
+    let svg = &dom[at..at + dom[at..].find("</svg>").unwrap()];
+    assert!(svg.matches("<rect class=\"bar").count() >= 3, "histogram has too few bars");
+    // The life fraction as the overview shows it.
+    let c = f.snap["components"].as_array().unwrap().iter().find(|c| c["component"] == "SH-TUBE").unwrap();
+    assert!(dom.contains(&frac(c["creep_life_fraction"].as_f64().unwrap())));
+    // Material data with their sources.
+    let m = &mat["material"];
+    for src in [&m["larson_miller"]["source"], &m["melting_point_k"]["source"]] {
+        let src = src.as_str().unwrap();
+        assert!(dom.contains(&text_node(src)), "material source {src:?} not shown");
+    }
+    // The component's alarms; read-only: no command buttons.
+    assert!(dom.contains("Creep life fraction"));
+    assert!(!dom.contains("data-act=\"acknowledge\""), "command buttons shown without a token");
+
+    // A wear part shows its wear-index trend and no creep charts.
+    let dom = dump_dom(port, "/component/SUPPORT");
+    assert!(dom.contains("id=\"trend-wear_index\""));
+    assert!(!dom.contains("id=\"trend-creep_life_fraction\""));
+    assert!(dom.contains(&text_node(CAUTION)));
+
+    let png = screenshot(port, "/component/SH-TUBE", "status-component.png", "1600,1000");
+    eprintln!("component screenshot: {}", png.display());
+    // The whole page, for people reviewing the layout.
+    screenshot(port, "/component/SH-TUBE", "status-component-full.png", "1600,3600");
+}
