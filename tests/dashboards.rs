@@ -828,6 +828,31 @@ fn production_config_service_sections_are_valid_and_complete() {
     let subs = mqtt["subscription"].as_array().unwrap();
     assert!(subs.iter().any(|s| s.get("payload").is_some()), "{PRODUCTION}: no [mqtt.subscription.payload]");
 
+    // The environment overrides deploy/Containerfile and deploy/compose.yaml
+    // set reach the service sections. (No other test of this binary reads
+    // these variables in-process; subprocesses ignore them.)
+    let overrides = [
+        ("LIFELEDGER__MQTT__HOST", "mosquitto"),
+        ("LIFELEDGER__MQTT__PORT", "8883"),
+        ("LIFELEDGER__DATABASE__URL", "http://influxdb:8086"),
+        ("LIFELEDGER__HTTP__LISTEN", "0.0.0.0:8470"),
+        ("LIFELEDGER__STORE__PATH", "/var/lib/lifeledger/cindermoor.ledger"),
+    ];
+    for (k, v) in overrides {
+        std::env::set_var(k, v);
+    }
+    let loaded = lifeledger::service::load_service(&path);
+    for (k, _) in overrides {
+        std::env::remove_var(k);
+    }
+    let (_, o) = loaded.unwrap_or_else(|e| panic!("{PRODUCTION} with the container's environment overrides: {e:#}"));
+    assert_eq!(o.mqtt.host, "mosquitto");
+    assert_eq!(o.mqtt.port, 8883);
+    assert_eq!(o.database.as_ref().unwrap().url, "http://influxdb:8086");
+    assert_eq!(o.http.listen, "0.0.0.0:8470");
+    assert_eq!(o.store.path, PathBuf::from("/var/lib/lifeledger/cindermoor.ledger"));
+    assert_eq!(o.mqtt.subscriptions.len(), svc.mqtt.subscriptions.len(), "overrides keep the rest");
+
     // Every key carries a comment: on its line or on the line above.
     let mut prev = "";
     for (n, line) in text.lines().enumerate() {

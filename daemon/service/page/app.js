@@ -191,9 +191,9 @@ const LL = (() => {
     parts.push(chip(snap.outbox_lines > 0 ? 'warn' : 'plain', 'Outbox', ob, obTitle));
     parts.push(snap.holding ? chip('bad', 'Intake', 'holding', 'Outbox over quota: intake paused') : chip('good', 'Intake', 'running'));
     const e = snap.engine || {};
-    parts.push(chip('plain', 'Samples', group(e.accepted || 0) + ' accepted'));
     const rj = rejected(snap);
-    parts.push(chip(rj > 0 ? 'warn' : 'plain', 'Rejected', group(rj), 'Samples or messages not integrated (out of range, bad quality, duplicate, late, unknown tag, undecodable)'));
+    parts.push(chip(rj > 0 ? 'warn' : 'plain', 'Samples', group(e.accepted || 0) + ' accepted · ' + group(rj) + ' rejected',
+      'Rejected: samples or messages not integrated (non-finite, out of range, bad quality, duplicate, late, unknown tag, undecodable)'));
     if (snap.database_configured) {
       const reach = snap.database_reachable;
       parts.push(chip(reach === false ? 'bad' : reach ? 'good' : 'plain', 'Database', reach === false ? 'unreachable' : reach ? 'reachable' : 'unknown'));

@@ -130,9 +130,9 @@
           if (od && LL.num(od[sev]) !== null && od[sev] > 0) tl.push({ value: comp.design_temperature_c + od[sev], label: sev, cls: sev });
         }
       }
-      defs.push({ key: 'metal_temperature_c', title: 'Metal temperature', unit: '°C', fmt: (v) => v.toFixed(1), levels: tl, cls: 's-temp' });
-      defs.push({ key: 'pressure_mpa', title: 'Pressure', unit: 'MPa', fmt: (v) => LL.sig(v, 4), cls: 's-press' });
-      defs.push({ key: 'hoop_stress_mpa', title: 'Hoop stress', unit: 'MPa', fmt: (v) => LL.sig(v, 4), cls: 's-stress' });
+      defs.push({ key: 'metal_temperature_c', title: 'Metal temperature', unit: '°C', fmt: (v) => v.toFixed(1), levels: tl, cls: 's-temp', state: true });
+      defs.push({ key: 'pressure_mpa', title: 'Pressure', unit: 'MPa', fmt: (v) => LL.sig(v, 4), cls: 's-press', state: true });
+      defs.push({ key: 'hoop_stress_mpa', title: 'Hoop stress', unit: 'MPa', fmt: (v) => LL.sig(v, 4), cls: 's-stress', state: true });
       defs.push({ key: 'creep_life_fraction', title: 'Creep life fraction', unit: '', fmt: LL.frac, levels: levelLines('life_fraction'), floor0: all, cls: 's-life' });
       if (has(comp, 'creep_strain')) {
         defs.push({ key: 'creep_strain', title: 'Creep strain', unit: '%', scale: 100, fmt: LL.frac, levels: levelLines('creep_strain', 100), floor0: all, cls: 's-strain' });
@@ -143,7 +143,11 @@
     let html = '';
     for (const d of defs) {
       const s = d.scale || 1;
-      const series = pts.map((p) => [p.t, p[d.key] * s]);
+      // A point at 0 K is the ledger before its first interval: no
+      // temperature, pressure or stress yet.
+      const src = d.state ? pts.filter((p) => p.metal_temperature_c > -273) : pts;
+      const series = src.map((p) => [p.t, p[d.key] * s]);
+      if (!series.length) continue;
       const last = series[series.length - 1][1];
       html += '<figure class="chart-card ' + d.cls + '"><figcaption><span class="ct">' + esc(d.title) + '</span>' +
         '<span class="cv">' + esc(d.fmt(last)) + (d.unit ? ' <small>' + esc(d.unit) + '</small>' : '') + '</span></figcaption>' +
@@ -199,7 +203,7 @@
       }
       h += '<tr class="st-' + esc(r.state) + ' sev-' + esc(r.severity || 'none') + '">' +
         '<td>' + esc(LL.indexLabel(r.index)) + '</td>' +
-        '<td>' + (r.state === 'normal' ? '<span class="muted">normal</span>' : LL.sevBadge(r.severity) + ' <span class="state">' + esc(LL.STATE_LABEL[r.state] || r.state) + '</span>') + '</td>' +
+        '<td>' + (r.state === 'normal' ? '<span class="muted">normal</span>' : (r.condition ? '' : '<span class="faded">') + LL.sevBadge(r.severity) + (r.condition ? '' : '</span>') + ' <span class="state">' + esc(LL.STATE_LABEL[r.state] || r.state) + '</span>') + '</td>' +
         '<td class="num">' + esc(LL.indexValue(r.index, r.value)) + '</td>' +
         '<td class="num">' + (LL.num(r.threshold) === null ? '<span class="muted">—</span>' : esc(LL.indexValue(r.index, r.threshold))) + '</td>' +
         '<td class="when">' + esc(LL.shortUtc(r.since_ms)) + '</td>' +
