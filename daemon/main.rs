@@ -236,7 +236,7 @@ fn main() {
 }
 
 
-fn load(config: &PathBuf) -> Result<lifeledger::settings::LoadedConfig> {
+fn load(config: &std::path::Path) -> Result<lifeledger::settings::LoadedConfig> {
     load_plan(config).map_err(|e| anyhow::anyhow!("{e}"))
 }
 
@@ -420,7 +420,7 @@ fn cmd_materials(action: MaterialsAction) -> Result<i32> {
     match action {
         MaterialsAction::List { config } => {
             let lib = library_with(&config)?;
-            writeln!(out, "{:<14} {:>12} {:>16}  {}", "grade", "T range °C", "σ range MPa", "aliases")?;
+            writeln!(out, "{:<14} {:>12} {:>16}  aliases", "grade", "T range °C", "σ range MPa")?;
             for m in lib.grades() {
                 let lm = &m.larson_miller;
                 writeln!(

@@ -291,15 +291,15 @@ pub fn replay(
         out.last_time_ms = Some(out.last_time_ms.map_or(row.time_ms, |t| t.max(row.time_ms)));
         let _ = engine.ingest(&Sample { tag, time_ms: row.time_ms, value: row.value, quality: row.quality });
         if let Some(w) = lp.as_deref_mut() {
-            for ci in 0..ncomp {
+            for (ci, next) in next_lp.iter_mut().enumerate() {
                 let Some(t) = engine.components()[ci].integrated_to_ms else { continue };
-                if t >= next_lp[ci] {
+                if t >= *next {
                     let p = component_point(&plant, &engine.plan().components[ci], &engine.components()[ci], t);
                     if let Some(line) = p.to_line() {
                         writeln!(w, "{line}")?;
                         out.points_written += 1;
                     }
-                    next_lp[ci] = (t.div_euclid(interval) + 1) * interval;
+                    *next = (t.div_euclid(interval) + 1) * interval;
                 }
             }
         }

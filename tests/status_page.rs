@@ -401,6 +401,8 @@ fn overview_shows_every_component_worst_first_with_the_caution() {
 
     let png = screenshot(port, "/", "status-overview.png", "1600,1000");
     eprintln!("overview screenshot: {}", png.display());
+    // A laptop screen, filtered to one unit.
+    screenshot(port, "/#unit=U1", "status-overview-laptop.png", "1280,800");
 }
 
 #[test]

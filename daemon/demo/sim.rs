@@ -139,7 +139,7 @@ impl Simulator {
                 }
                 _ => (t.cold + (t.full - t.cold) * load * (1.0 + 0.01 * j)).max(t.cold),
             };
-            if t.excursion && d >= EXCURSION_DAY && d < EXCURSION_DAY + EXCURSION_HOURS / 24.0 {
+            if t.excursion && (EXCURSION_DAY..EXCURSION_DAY + EXCURSION_HOURS / 24.0).contains(&d) {
                 v += 32.0;
             }
             if t.failing {

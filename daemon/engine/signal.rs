@@ -132,9 +132,9 @@ impl Breaks {
         n += 1;
         v[..n].sort_unstable();
         let mut m = 0;
-        for i in 0..n {
-            if m == 0 || v[i] != self.buf[m - 1] {
-                self.buf[m] = v[i];
+        for &x in &v[..n] {
+            if m == 0 || x != self.buf[m - 1] {
+                self.buf[m] = x;
                 m += 1;
             }
         }

@@ -449,7 +449,7 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
                             score,
                             see: sol.see().unwrap_or(f64::NAN),
                         });
-                        if best.as_ref().map_or(true, |b| score < b.2) {
+                        if best.as_ref().is_none_or(|b| score < b.2) {
                             best = Some((order, sol, score));
                         }
                     }

@@ -647,8 +647,8 @@ impl Ledger {
 
     fn reload(&mut self, cfg: LoadedConfig, service: ServiceSettings) {
         let mut state = self.engine.export_state();
-        state.components.extend(self.retired.drain(..));
-        state.tags.extend(self.retired_tags.drain(..));
+        state.components.append(&mut self.retired);
+        state.tags.append(&mut self.retired_tags);
         let mut engine = Engine::new(cfg.plan.clone());
         let left = engine.import_state(state);
         self.retired = left.components;

@@ -349,7 +349,7 @@ const LL = (() => {
   function lineChart(opts) {
     const W = Math.max(320, Math.round(opts.width || 800));
     const H = opts.height || 220;
-    const m = { l: 76, r: 150, t: 16, b: 30 };
+    const m = { l: 76, r: 124, t: 16, b: 30 };
     const pw = W - m.l - m.r, ph = H - m.t - m.b;
     const pts = opts.points.filter((p) => p[0] >= opts.t0 && p[0] <= opts.t1 && num(p[1]) !== null);
     const fmt = opts.fmt || ((v) => sig(v, 4));

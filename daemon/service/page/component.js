@@ -118,7 +118,10 @@
     }
     const t1 = pts[pts.length - 1].t;
     const t0 = windowMs ? Math.max(pts[0].t, t1 - windowMs) : pts[0].t;
-    const width = Math.max(320, box.clientWidth - 2);
+    // Two charts a row on wide screens (control room), one on a laptop.
+    const cols = box.clientWidth >= 1400 ? 2 : 1;
+    box.style.gridTemplateColumns = 'repeat(' + cols + ', minmax(0, 1fr))';
+    const width = Math.max(320, (box.clientWidth - (cols - 1) * 10) / cols - 24);
     const creep = has(comp, 'life_fraction'), wear = has(comp, 'wear_index');
     const defs = [];
     if (creep) {
@@ -154,7 +157,7 @@
         LL.lineChart({ id: 'trend-' + d.key, label: d.title + ' trend', points: series, t0, t1, unit: d.unit, fmt: d.fmt, levels: d.levels, floor0: d.floor0, allLevels: all, width, height: 210, cls: d.cls }) +
         '</figure>';
     }
-    html += '<p class="muted small">' + n + ' of ' + pts.length + ' points shown, ' + LL.timeUtc(t0) + ' to ' + LL.timeUtc(t1) + ' UTC</p>';
+    html += '<p class="muted small span-all">' + n + ' of ' + pts.length + ' points shown, ' + LL.timeUtc(t0) + ' to ' + LL.timeUtc(t1) + ' UTC</p>';
     box.innerHTML = html;
     for (const d of defs) LL.attachHover('trend-' + d.key);
     const own = comp.thresholds && comp.thresholds.life_fraction;
