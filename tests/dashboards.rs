@@ -836,7 +836,7 @@ fn production_config_service_sections_are_valid_and_complete() {
         ("LIFELEDGER__MQTT__PORT", "8883"),
         ("LIFELEDGER__DATABASE__URL", "http://influxdb:8086"),
         ("LIFELEDGER__HTTP__LISTEN", "0.0.0.0:8470"),
-        ("LIFELEDGER__STORE__PATH", "/var/lib/lifeledger/cindermoor.ledger"),
+        ("LIFELEDGER__STORE__PATH", "/var/lib/lifeledger/lifeledger.ledger"),
     ];
     for (k, v) in overrides {
         std::env::set_var(k, v);
@@ -850,7 +850,7 @@ fn production_config_service_sections_are_valid_and_complete() {
     assert_eq!(o.mqtt.port, 8883);
     assert_eq!(o.database.as_ref().unwrap().url, "http://influxdb:8086");
     assert_eq!(o.http.listen, "0.0.0.0:8470");
-    assert_eq!(o.store.path, PathBuf::from("/var/lib/lifeledger/cindermoor.ledger"));
+    assert_eq!(o.store.path, PathBuf::from("/var/lib/lifeledger/lifeledger.ledger"));
     assert_eq!(o.mqtt.subscriptions.len(), svc.mqtt.subscriptions.len(), "overrides keep the rest");
 
     // Every key carries a comment: on its line or on the line above.

@@ -507,3 +507,47 @@ fn bad_messages_are_counted_and_the_service_keeps_running() {
     let _ = client.disconnect();
     assert!(svc.sigterm().success());
 }
+
+#[test]
+fn outbox_over_quota_pauses_intake_and_resumes_without_loss() {
+    let broker = Mosquitto::start();
+    let mut vm = VictoriaMetrics::start();
+    let url = vm.url();
+    vm.stop();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    // A tiny quota: a few dozen points.
+    let cfg = config(dir.path(), broker.port, http_port, Some(&url), "");
+    let text = std::fs::read_to_string(&cfg).unwrap().replace("backoff_max_s = 0.5\n", "backoff_max_s = 0.5\noutbox_quota_bytes = 20000\n");
+    std::fs::write(&cfg, text).unwrap();
+    let s = samples(600);
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    let publisher = {
+        let s = s.clone();
+        let port = broker.port;
+        std::thread::spawn(move || publish_all(port, &s, "publisher-quota"))
+    };
+    // The service stops taking messages and says so.
+    let held = poll_until("intake to pause", || svc.snapshot().filter(|v| v["holding"] == true));
+    assert!(held["outbox_bytes"].as_u64().unwrap() > 20000);
+    assert_eq!(http::get(http_port, "/readyz").unwrap().status, 503);
+    let a1 = held["engine"]["accepted"].as_u64().unwrap();
+    assert!(a1 < s.len() as u64, "intake paused before the end of the stream");
+    let alarm = poll_until("the service-health alarm", || {
+        svc.snapshot().filter(|v| v["recent_events"].as_array().is_some_and(|e| e.iter().any(|e| e["index"] == "service_health")))
+    });
+    assert_eq!(alarm["holding"], true);
+    // The database comes back: the outbox drains, intake resumes, and every
+    // sample is integrated exactly once.
+    vm.start_again();
+    publisher.join().unwrap();
+    let live = svc.wait_until_integrated(s.last().unwrap().1);
+    assert_eq!(live["engine"]["accepted"].as_u64().unwrap(), s.len() as u64);
+    compare(&live, &replay_json(&cfg, &csv(dir.path(), &s)), 0.0);
+    let done = poll_until("the outbox to drain", || svc.snapshot().filter(|v| v["outbox_lines"] == 0 && v["holding"] == false));
+    vm.flush();
+    let n: usize = vm.export("{__name__=\"component_state_unmonitored_h\"}").iter().map(|e| e.samples().len()).sum();
+    assert_eq!(n as u64, done["service"]["series_points"].as_u64().unwrap());
+    drop(svc);
+}

@@ -159,9 +159,6 @@ pub struct TagSettings {
     pub scale: f64,
     #[serde(default)]
     pub offset: f64,
-    /// MQTT ingest settings for this tag (typed by the live service).
-    #[serde(default)]
-    pub mqtt: Option<toml::Table>,
 }
 
 fn one() -> f64 {
