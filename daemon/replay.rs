@@ -294,10 +294,17 @@ pub fn replay(
             for (ci, next) in next_lp.iter_mut().enumerate() {
                 let Some(t) = engine.components()[ci].integrated_to_ms else { continue };
                 if t >= *next {
-                    let p = component_point(&plant, &engine.plan().components[ci], &engine.components()[ci], t);
+                    let plan = &engine.plan().components[ci];
+                    let p = component_point(&plant, plan, &engine.components()[ci], t);
                     if let Some(line) = p.to_line() {
                         writeln!(w, "{line}")?;
                         out.points_written += 1;
+                    }
+                    // Threshold lines beside the series, as the live service writes them.
+                    for tp in crate::report::threshold_points(&plant, plan, t) {
+                        if let Some(line) = tp.to_line() {
+                            writeln!(w, "{line}")?;
+                        }
                     }
                     *next = (t.div_euclid(interval) + 1) * interval;
                 }

@@ -54,6 +54,7 @@ const MS_PER_H: f64 = 3_600_000.0;
 
 /// Book-wide settings.
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct AlarmConfig {
     /// Deadbands by index; an index not listed uses
     /// [`Deadband::default_for`].

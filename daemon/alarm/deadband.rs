@@ -29,6 +29,7 @@ pub const DEFAULT_OVER_DESIGN_DEADBAND_K: f64 = 1.0;
 
 /// Deadband of one index.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Deadband {
     /// Width as a fraction of the level's magnitude.
     pub fraction: f64,

@@ -12,7 +12,7 @@
 use super::plan::{ComponentPlan, Input, StressPlan, TagPlan};
 use super::signal::{Breaks, Reading, TagState};
 use crate::physics::histogram::TimeAtCondition;
-use crate::physics::larson_miller::{log10_rupture_life_h, RangeFlags};
+use crate::physics::larson_miller::RangeFlags;
 use crate::physics::norton::creep_rate_per_h_ln;
 use crate::physics::stress::{hoop_stress_mpa, remaining_wall_mm};
 use crate::physics::wear::{fretting_sliding_speed_mm_s, FrettingRegime, fretting_regime};
@@ -480,12 +480,7 @@ fn rates(plan: &ComponentPlan, p: &Point, tau_ms: f64, start_ms: i64, threshold_
     if plan.metal_temperature.is_some() && p.t_k >= threshold_k && sigma > 0.0 {
         r.creep = true;
         let ln_s = sigma.ln();
-        let (l10, flags) = log10_rupture_life_h(
-            &plan.material.larson_miller,
-            ln_s * std::f64::consts::LOG10_E,
-            p.t_k,
-            plan.curve_basis,
-        );
+        let (l10, flags) = plan.curve.log10_rupture_life_h(ln_s * std::f64::consts::LOG10_E, p.t_k);
         r.flags = flags;
         // 10^x as exp(x·ln 10): same value to rounding, several times faster.
         r.life_per_h = (-l10 * std::f64::consts::LN_10).exp();

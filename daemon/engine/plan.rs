@@ -116,6 +116,8 @@ pub struct ComponentPlan {
     pub kind: ComponentKind,
     pub material: Material,
     pub curve_basis: CurveBasis,
+    /// The material's master curve on `curve_basis`, prepared once.
+    pub curve: crate::physics::larson_miller::PreparedCurve,
     /// Design metal temperature, K.
     pub design_temperature_k: Option<f64>,
     /// Design pressure, MPa gauge.

@@ -23,11 +23,13 @@ pub struct PayloadSettings {
     /// JSON path of the value (dotted, e.g. `data.v`).
     #[serde(default = "default_value_path")]
     pub value: String,
-    /// JSON path of the event time; absent: receive time.
-    #[serde(default)]
+    /// JSON path of the event time (default `timestamp`; `""`: always the
+    /// receive time).
+    #[serde(default = "default_timestamp_path")]
     pub timestamp: Option<String>,
-    /// JSON path of the quality (good/uncertain/bad, OPC-style 192/64/0, or true/false).
-    #[serde(default)]
+    /// JSON path of the quality (default `quality`; `""`: always good):
+    /// good/uncertain/bad, OPC-style 192/64/0, or true/false.
+    #[serde(default = "default_quality_path")]
     pub quality: Option<String>,
     /// Unit of numeric timestamps: `s`, `ms`, or `auto` (≥ 1e11 means ms).
     #[serde(default)]
@@ -57,6 +59,12 @@ fn default_format() -> PayloadFormat {
 }
 fn default_value_path() -> String {
     "value".into()
+}
+fn default_timestamp_path() -> Option<String> {
+    Some("timestamp".into())
+}
+fn default_quality_path() -> Option<String> {
+    Some("quality".into())
 }
 
 impl Default for PayloadSettings {
@@ -151,7 +159,7 @@ pub fn decode_payload(p: &PayloadSettings, payload: &[u8], receive_ms: i64) -> R
                 Some(_) => return Err(DecodeError::FieldNotNumber(p.value.clone())),
                 None => return Err(DecodeError::MissingField(p.value.clone())),
             };
-            let (time_ms, receive_time) = match p.timestamp.as_deref().and_then(|path| at_path(&v, path)) {
+            let (time_ms, receive_time) = match p.timestamp.as_deref().filter(|p| !p.is_empty()).and_then(|path| at_path(&v, path)) {
                 None | Some(serde_json::Value::Null) => (receive_ms, true),
                 Some(serde_json::Value::Number(n)) => {
                     let x = n.as_f64().unwrap_or(f64::NAN);
@@ -163,7 +171,7 @@ pub fn decode_payload(p: &PayloadSettings, payload: &[u8], receive_ms: i64) -> R
                 }
                 Some(other) => return Err(DecodeError::BadTimestamp(clip(&other.to_string()))),
             };
-            let quality = match p.quality.as_deref().and_then(|path| at_path(&v, path)) {
+            let quality = match p.quality.as_deref().filter(|p| !p.is_empty()).and_then(|path| at_path(&v, path)) {
                 None | Some(serde_json::Value::Null) => Quality::Good,
                 Some(serde_json::Value::Bool(true)) => Quality::Good,
                 Some(serde_json::Value::Bool(false)) => Quality::Bad,
@@ -332,6 +340,15 @@ mod tests {
         assert_eq!(decode_payload(&nested, br#"{"data":{"v":3,"t":1}}"#, 0).unwrap().value, 3.0);
         let num = PayloadSettings { format: PayloadFormat::Number, ..p.clone() };
         assert_eq!(decode_payload(&num, b" 12.5 ", 99).unwrap().time_ms, 99);
+    }
+
+    #[test]
+    fn partial_payload_settings_keep_the_defaults() {
+        let p: PayloadSettings = toml::from_str("value = \"v\"").unwrap();
+        assert_eq!(p.timestamp.as_deref(), Some("timestamp"));
+        assert_eq!(p.quality.as_deref(), Some("quality"));
+        let none: PayloadSettings = toml::from_str("timestamp = \"\"").unwrap();
+        assert!(decode_payload(&none, br#"{"value": 1, "timestamp": 5}"#, 9).unwrap().receive_time);
     }
 
     #[test]

@@ -237,3 +237,97 @@ pub(crate) mod tests {
         }
     }
 }
+
+/// A master curve with its range ends and extrapolation lines worked out
+/// once, for the engine's hot path. Gives the same numbers as
+/// [`log10_rupture_life_h`] (to rounding) without recomputing logarithms of
+/// the range ends on every call.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PreparedCurve {
+    c: f64,
+    coeffs: [f64; 4],
+    lo: f64,
+    hi: f64,
+    p_lo: f64,
+    p_hi: f64,
+    s_lo: f64,
+    s_hi: f64,
+    t_lo: f64,
+    t_hi: f64,
+    /// Minimum curve: shift of log10 σ (stress-factor rule).
+    shift: f64,
+    /// Minimum curve: offset of log10 t (log-time rule).
+    offset: f64,
+}
+
+impl PreparedCurve {
+    /// Prepare a curve for one basis.
+    pub fn new(curve: &LarsonMillerCurve, basis: CurveBasis) -> PreparedCurve {
+        let mut coeffs = [0.0; 4];
+        for (d, s) in coeffs.iter_mut().zip(&curve.coefficients) {
+            *d = *s;
+        }
+        let lo = curve.stress_range_mpa[0].log10();
+        let hi = curve.stress_range_mpa[1].log10();
+        let (shift, offset) = match (basis, curve.minimum) {
+            (CurveBasis::Mean, _) => (0.0, 0.0),
+            (CurveBasis::Minimum, MinimumCurveRule::StressFactor { factor }) => (factor.log10(), 0.0),
+            (CurveBasis::Minimum, MinimumCurveRule::LogTimeOffset { offset }) => (0.0, offset),
+        };
+        PreparedCurve {
+            c: curve.constant_c,
+            coeffs,
+            lo,
+            hi,
+            p_lo: poly(&coeffs, lo),
+            p_hi: poly(&coeffs, hi),
+            s_lo: poly_slope(&coeffs, lo).min(MIN_EXTRAPOLATION_SLOPE),
+            s_hi: poly_slope(&coeffs, hi).min(MIN_EXTRAPOLATION_SLOPE),
+            t_lo: curve.temperature_range_k[0],
+            t_hi: curve.temperature_range_k[1],
+            shift,
+            offset,
+        }
+    }
+
+    /// log10 rupture life (h) at `log10_stress` and `temperature_k`.
+    #[inline]
+    pub fn log10_rupture_life_h(&self, log10_stress: f64, temperature_k: f64) -> (f64, RangeFlags) {
+        let x = log10_stress - self.shift;
+        let (p, below, above) = if x < self.lo {
+            (self.p_lo + self.s_lo * (x - self.lo), true, false)
+        } else if x > self.hi {
+            (self.p_hi + self.s_hi * (x - self.hi), false, true)
+        } else {
+            let a = &self.coeffs;
+            (((a[3] * x + a[2]) * x + a[1]) * x + a[0], false, false)
+        };
+        let flags = RangeFlags {
+            stress_below: below,
+            stress_above: above,
+            temperature_below: temperature_k < self.t_lo,
+            temperature_above: temperature_k > self.t_hi,
+        };
+        (p / temperature_k - self.c - self.offset, flags)
+    }
+}
+
+#[cfg(test)]
+mod prepared_tests {
+    use super::tests::test_curve;
+    use super::*;
+
+    proptest::proptest! {
+        #[test]
+        fn prepared_agrees_with_direct(s in 1.0f64..2000.0, t in 600.0f64..1100.0) {
+            let c = test_curve();
+            for basis in [CurveBasis::Mean, CurveBasis::Minimum] {
+                let p = PreparedCurve::new(&c, basis);
+                let (a, fa) = p.log10_rupture_life_h(s.log10(), t);
+                let (b, fb) = log10_rupture_life_h(&c, s.log10(), t, basis);
+                proptest::prop_assert!((a - b).abs() < 1e-9, "{} {}", a, b);
+                proptest::prop_assert_eq!(fa, fb);
+            }
+        }
+    }
+}

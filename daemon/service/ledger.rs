@@ -500,7 +500,8 @@ impl Ledger {
             let st = &self.engine.components()[ci];
             components.push((plan.name.clone(), serde_json::to_string(st).unwrap_or_default()));
             if let Some(t) = st.integrated_to_ms {
-                if t >= self.next_series_ms[ci] {
+                // Nothing integrated yet (only the first sample seen): no point.
+                if t >= self.next_series_ms[ci] && st.integrated_h > 0.0 {
                     if let Some(l) = component_point(&plant, plan, st, t).to_line() {
                         outbox.push(l);
                         self.counters.series_points += 1;

@@ -454,11 +454,13 @@ impl Validator {
         });
         let nclass = s.engine.pressure_classes.clamp(1, 40);
         let pressure_edges_mpa: Vec<f64> = (1..=nclass).map(|i| 1.2 * p_ref * i as f64 / nclass as f64).collect();
+        let curve_basis = c.curve_basis.unwrap_or(s.engine.curve_basis);
         Some(ComponentPlan {
             name: c.name.clone(),
             unit: c.unit.clone(),
             kind: c.kind,
-            curve_basis: c.curve_basis.unwrap_or(s.engine.curve_basis),
+            curve: crate::physics::larson_miller::PreparedCurve::new(&material.larson_miller, curve_basis),
+            curve_basis,
             material,
             design_temperature_k: design_t,
             design_pressure_mpa: design_p,

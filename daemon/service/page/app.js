@@ -423,7 +423,8 @@ const LL = (() => {
     const dts = [];
     for (let i = 1; i < pts.length; i++) dts.push(pts[i][0] - pts[i - 1][0]);
     dts.sort((a, b) => a - b);
-    const gap = dts.length ? Math.max(dts[Math.floor(dts.length / 2)] * 5, 1) : Infinity;
+    // A gap: wider than five usual spacings and than 5 % of the window.
+    const gap = dts.length ? Math.max(dts[Math.floor(dts.length / 2)] * 5, (t1 - t0) * 0.05, 1) : Infinity;
     let d = '', area = '', seg = [], prevT = null;
     const flush = () => {
       if (!seg.length) return;
