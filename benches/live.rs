@@ -299,11 +299,13 @@ fn publish_stream(port: u16, id: &str, msgs: Vec<Msg>) -> Published {
 
 // ---------------------------------------------------------------- 1. throughput
 
-fn throughput_stream(n: usize, comps: usize) -> Vec<Msg> {
+/// `n` messages, round by round (every tag once per round, 60 s of event
+/// time apart), starting at round `first`.
+fn throughput_stream(n: usize, comps: usize, first: usize) -> Vec<Msg> {
     let per_round = comps * 2;
     let rounds = n.div_ceil(per_round);
     let mut v = Vec::with_capacity(n);
-    'outer: for r in 0..rounds {
+    'outer: for r in first..first + rounds {
         let ts = T0 + 60 * r as i64;
         let x = r as f64;
         for c in 0..comps {
@@ -336,6 +338,7 @@ struct Throughput {
     commits: u64,
     mean_commit_ms: f64,
     max_commit_ms: f64,
+    drain: Option<Drain>,
 }
 
 fn rate(n: usize, d: Duration) -> f64 {
@@ -376,7 +379,7 @@ fn baseline(n: usize) -> (Published, u64, Option<(Instant, Instant)>) {
         });
     }
     ready_rx.recv_timeout(Duration::from_secs(30)).expect("baseline subscriber subscribed");
-    let p = publish_stream(broker.port, "bench-load-baseline", throughput_stream(n, 100));
+    let p = publish_stream(broker.port, "bench-load-baseline", throughput_stream(n, 100, 0));
     let (mut last, mut still) = (u64::MAX, 0);
     for _ in 0..MAX_POLLS {
         let c = count.load(Ordering::Relaxed);
@@ -423,7 +426,7 @@ fn throughput(n: usize) -> Throughput {
     svc.poll("the sentinel's alarm records", |s| {
         s.snapshot().filter(|v| v["alarms"].as_array().is_some_and(|a| a.iter().any(|c| c["component"] == "SENTINEL" && c["alarms"].as_array().is_some_and(|r| !r.is_empty()))))
     });
-    let mut msgs = throughput_stream(n, 100);
+    let mut msgs = throughput_stream(n, 100, 0);
     // End marker: a shelve command. The ledger applies it in order and
     // publishes its `shelved` event right after the commit that
     // acknowledges every earlier message (if the client's request channel
@@ -434,49 +437,8 @@ fn throughput(n: usize) -> Throughput {
     ));
     let sp = publish_stream(broker.port, "bench-load-service", msgs);
     let service_publisher_rate = rate(sp.acked, sp.last_puback - sp.start);
-    // Wait for the snapshot to show every sample integrated, watching for
-    // the end marker's event meanwhile.
     let want = n as u64 + 1; // + the warm-up sample
-    let mut marker_at = None;
-    let mut snap_done: Option<(Instant, serde_json::Value)> = None;
-    let (mut last, mut still) = (u64::MAX, 0);
-    for _ in 0..MAX_POLLS {
-        while let Ok((t, topic, p)) = events.try_recv() {
-            if topic == "lifeledger/alarms/events" && marker_at.is_none() {
-                let v: serde_json::Value = serde_json::from_slice(&p).unwrap_or_default();
-                if v["component"] == "SENTINEL" && v["transition"] == "shelved" {
-                    marker_at = Some(t);
-                }
-            }
-        }
-        if snap_done.is_none() {
-            if let Some(s) = svc.snapshot() {
-                let integrated = counter(&s, "engine", "accepted") + counter(&s, "engine", "duplicate");
-                if integrated >= want {
-                    snap_done = Some((Instant::now(), s));
-                } else if integrated == last {
-                    still += 1;
-                    if still >= STALL_POLLS {
-                        eprintln!("     stalled at {integrated} of {want} integrated");
-                        snap_done = Some((Instant::now(), s));
-                    }
-                } else {
-                    (last, still) = (integrated, 0);
-                }
-            }
-        }
-        if let Some((t, _)) = &snap_done {
-            // Give the marker up to 2 s more after the snapshot showed completion.
-            if marker_at.is_some() || t.elapsed() > Duration::from_secs(2) {
-                break;
-            }
-        }
-        std::thread::sleep(PAUSE);
-    }
-    let (snapshot_at, _) = snap_done.expect("a snapshot");
-    // Counters after the last commit: one more idle snapshot period.
-    std::thread::sleep(Duration::from_millis(1200));
-    let snap = svc.snapshot().expect("a final snapshot");
+    let (marker_at, snapshot_at, snap) = wait_integrated(&svc, &events, want, "shelved");
     let (done, basis) = match marker_at {
         Some(t) => (t, "end-marker event"),
         None => (snapshot_at, "snapshot poll (up to ~0.5 s late; end-marker event not received)"),
@@ -501,6 +463,7 @@ fn throughput(n: usize) -> Throughput {
         commits,
         mean_commit_ms: total_ms / commits.max(1) as f64,
         max_commit_ms: snap["service"]["max_commit_ms"].as_f64().unwrap_or(0.0),
+        drain: None,
     };
     eprintln!(
         "     accepted {} duplicate {} acked {} of {} (+ marker): {service_rate:.0} msg/s by {basis}, {snapshot_rate:.0} msg/s by snapshot poll; publisher {service_publisher_rate:.0} msg/s; {} commits, mean {:.2} ms, max {:.1} ms",
@@ -510,8 +473,112 @@ fn throughput(n: usize) -> Throughput {
     if failed > 0 {
         eprintln!("     service log: {failed} \"MQTT acknowledge failed\" errors");
     }
+    let mut r = r;
+
+    // [1c] The service's own ceiling, without the load generator in the
+    // way: a backlog queued at the broker while the service is stopped,
+    // drained after a restart. Bounded by the broker's queue of 100 000
+    // messages per client (tests/common's mosquitto.conf).
+    let m = DRAIN.min(n);
+    eprintln!("[1c] backlog drain: {m} messages queued at the broker while the service is stopped");
+    let before = counter(&snap, "engine", "accepted") + counter(&snap, "engine", "duplicate");
+    let acked_before = counter(&snap, "service", "acked");
+    svc.stop();
+    let mut backlog = throughput_stream(m, 100, n.div_ceil(200));
+    backlog.push((
+        "lifeledger/commands".into(),
+        br#"{"action":"unshelve","component":"SENTINEL","index":"sensor_stale","by":"bench"}"#.to_vec(),
+    ));
+    publish_stream(broker.port, "bench-load-backlog", backlog);
+    while events.try_recv().is_ok() {}
+    let svc = Service::start(&cfg, http_port);
+    let online = wait_online(&events);
+    let (marker_at, snapshot_at, snap) = wait_integrated(&svc, &events, m as u64, "unshelved");
+    let integrated = counter(&snap, "engine", "accepted") + counter(&snap, "engine", "duplicate");
+    let done = marker_at.unwrap_or(snapshot_at);
+    r.drain = Some(Drain {
+        m,
+        rate: rate(m, done - online),
+        basis: if marker_at.is_some() { "end-marker event" } else { "snapshot poll" },
+        integrated: integrated.saturating_sub(before),
+        // Counters restart from the store except `acked` (per process).
+        acked: counter(&snap, "service", "acked"),
+    });
+    let _ = acked_before;
+    let d = r.drain.as_ref().unwrap();
+    eprintln!(
+        "     drained {} of {m} integrated, {} acknowledged (+ marker) at {:.0} msg/s (service online to {})",
+        d.integrated, d.acked, d.rate, d.basis
+    );
+    let failed = std::fs::read_to_string(&svc.log).unwrap_or_default().matches("MQTT acknowledge failed").count();
+    if failed > 0 {
+        eprintln!("     service log: {failed} \"MQTT acknowledge failed\" errors");
+    }
     svc.stop();
     r
+}
+
+/// Messages of the backlog drained in 1c.
+const DRAIN: usize = 90_000;
+
+struct Drain {
+    m: usize,
+    rate: f64,
+    basis: &'static str,
+    integrated: u64,
+    acked: u64,
+}
+
+/// Waits until the snapshot shows `want` samples integrated (accepted +
+/// duplicate), watching meanwhile for the end marker: the SENTINEL alarm
+/// event with `transition`. Returns the marker's receipt, the time the
+/// snapshot showed completion, and a snapshot taken after the last commit.
+fn wait_integrated(
+    svc: &Service,
+    events: &mpsc::Receiver<(Instant, String, Vec<u8>)>,
+    want: u64,
+    transition: &str,
+) -> (Option<Instant>, Instant, serde_json::Value) {
+    let mut marker_at = None;
+    let mut snapshot_at = None;
+    let (mut last, mut still) = (u64::MAX, 0);
+    for _ in 0..MAX_POLLS {
+        while let Ok((t, topic, p)) = events.try_recv() {
+            if topic == "lifeledger/alarms/events" && marker_at.is_none() {
+                let v: serde_json::Value = serde_json::from_slice(&p).unwrap_or_default();
+                if v["component"] == "SENTINEL" && v["transition"] == transition {
+                    marker_at = Some(t);
+                }
+            }
+        }
+        if snapshot_at.is_none() {
+            if let Some(s) = svc.snapshot() {
+                let integrated = counter(&s, "engine", "accepted") + counter(&s, "engine", "duplicate");
+                if integrated >= want {
+                    snapshot_at = Some(Instant::now());
+                } else if integrated == last {
+                    still += 1;
+                    if still >= STALL_POLLS {
+                        eprintln!("     stalled at {integrated} of {want} integrated");
+                        snapshot_at = Some(Instant::now());
+                    }
+                } else {
+                    (last, still) = (integrated, 0);
+                }
+            }
+        }
+        if let Some(t) = snapshot_at {
+            // Give the marker up to 2 s more after the snapshot showed completion.
+            if marker_at.is_some() || t.elapsed() > Duration::from_secs(2) {
+                break;
+            }
+        }
+        std::thread::sleep(PAUSE);
+    }
+    let snapshot_at = snapshot_at.expect("a snapshot");
+    // Counters after the last commit: one more idle snapshot period.
+    std::thread::sleep(Duration::from_millis(1200));
+    (marker_at, snapshot_at, svc.snapshot().expect("a final snapshot"))
 }
 
 fn wait_online(events: &mpsc::Receiver<(Instant, String, Vec<u8>)>) {

@@ -683,7 +683,56 @@ fn prometheus_dashboards_answer_on_the_demo_data() {
     let (lines, first_ms, last_ms) = demo_points();
     let vm = VictoriaMetrics::start();
     write_lines(&vm, &lines);
-    let (start, end) = (first_ms / 1000, last_ms / 1000);
+    check_prometheus_dashboards(&vm, first_ms / 1000, last_ms / 1000);
+}
+
+/// The issue's own check: a short `lifeledger demo` run writes to the real
+/// database through its outbox, and every PromQL panel answers on what it
+/// wrote.
+#[test]
+fn prometheus_dashboards_answer_after_a_short_demo_run() {
+    let vm = VictoriaMetrics::start();
+    let port = common::free_port();
+    let dir = tempfile::tempdir().unwrap();
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+        .args(["demo", "--duration", "25", "--http", &format!("127.0.0.1:{port}"), "--database-url", &vm.url()])
+        .arg("--state-dir")
+        .arg(dir.path())
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::null())
+        .spawn()
+        .unwrap();
+    let snapshot = || -> Option<Value> { serde_json::from_str(&http::get(port, "/api/components").ok()?.text()).ok() };
+    // Wait until the scenario is past its alarms, then stop the demo with
+    // SIGTERM: the service flushes its outbox to the database on the way out.
+    let snap = common::poll_until("the demo to write its points", || {
+        snapshot().filter(|s| {
+            s["service"]["series_points"].as_u64().unwrap_or(0) > 200
+                && s["recent_events"].as_array().is_some_and(|e| e.iter().any(|e| e["index"] == "sensor_stale"))
+        })
+    });
+    std::process::Command::new("kill").args(["-TERM", &child.id().to_string()]).status().unwrap();
+    let status = child.wait().unwrap();
+    assert!(status.success(), "the demo stops cleanly on SIGTERM");
+    vm.flush();
+    let ts: Vec<i64> = vm
+        .export("{__name__=\"component_state_unmonitored_h\"}")
+        .iter()
+        .flat_map(|e| e.samples().into_iter().map(|(t, _)| t))
+        .collect();
+    assert!(!ts.is_empty(), "the demo wrote component_state points: {snap}");
+    // Component points carry simulated event time (the recent past);
+    // service-health points carry wall time: query up to now.
+    let first = *ts.iter().min().unwrap();
+    let now_s = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).unwrap().as_secs() as i64;
+    // Range queries step by an hour from the start: align the range so the
+    // last step falls on `end`, just after the newest health point.
+    let end = now_s + 30;
+    let start = end - 3600 * ((end - first / 1000) / 3600 + 1);
+    check_prometheus_dashboards(&vm, start, end);
+}
+
+fn check_prometheus_dashboards(vm: &VictoriaMetrics, start: i64, end: i64) {
     let range_s = end - start + 1;
     let range_query = |expr: &str| -> Value {
         let target = format!(

@@ -105,7 +105,7 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
     let config_text = format!(
         "{DEMO_PLANT}\n\n# --- added by `lifeledger demo` ---\n[mqtt]\nport = {broker_port}\nclient_id = \"lifeledger-demo\"\n\
          [[mqtt.subscription]]\ntopic = \"brackenmoor/{{tag}}\"\n\
-         [store]\npath = {:?}\nseries_interval_s = 600\n[http]\nlisten = {:?}\n{database}",
+         [store]\npath = {:?}\nseries_interval_s = 600\nhealth_interval_s = 2\n[http]\nlisten = {:?}\n{database}",
         dir.join("ledger.sqlite").display().to_string(),
         opts.http,
     );
@@ -114,9 +114,15 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
     let (cfg, _) = crate::service::load_service(&config_path)?;
     let plan = cfg.plan.clone();
 
-    // The simulated clock starts at the newest sample already in the ledger
-    // (a named state directory continues), else now.
-    let start_ms = (now_ms() / 60_000) * 60_000;
+    // The simulated clock ends near the present: it starts as far in the
+    // past as the run will cover (60 simulated days when the run has no
+    // set duration), so dashboards show it in their usual "last days"
+    // windows and databases that refuse future timestamps accept it.
+    let span_ms = match opts.duration_s {
+        Some(d) => (d * opts.speed.max(1.0) * 1000.0) as i64,
+        None => 60 * 86_400_000,
+    };
+    let start_ms = ((now_ms() - span_ms) / 60_000) * 60_000;
     let simulator = sim::Simulator::new(&plan, start_ms);
     println!("lifeledger demo: {} (invented plant, demo data only)", plan.plant);
     println!("  status page      http://{}/", opts.http);
