@@ -482,7 +482,6 @@ fn throughput(n: usize) -> Throughput {
     let m = DRAIN.min(n);
     eprintln!("[1c] backlog drain: {m} messages queued at the broker while the service is stopped");
     let before = counter(&snap, "engine", "accepted") + counter(&snap, "engine", "duplicate");
-    let acked_before = counter(&snap, "service", "acked");
     svc.stop();
     let mut backlog = throughput_stream(m, 100, n.div_ceil(200));
     backlog.push((
@@ -493,7 +492,7 @@ fn throughput(n: usize) -> Throughput {
     while events.try_recv().is_ok() {}
     let svc = Service::start(&cfg, http_port);
     let online = wait_online(&events);
-    let (marker_at, snapshot_at, snap) = wait_integrated(&svc, &events, m as u64, "unshelved");
+    let (marker_at, snapshot_at, snap) = wait_integrated(&svc, &events, before + m as u64, "unshelved");
     let integrated = counter(&snap, "engine", "accepted") + counter(&snap, "engine", "duplicate");
     let done = marker_at.unwrap_or(snapshot_at);
     r.drain = Some(Drain {
@@ -504,7 +503,6 @@ fn throughput(n: usize) -> Throughput {
         // Counters restart from the store except `acked` (per process).
         acked: counter(&snap, "service", "acked"),
     });
-    let _ = acked_before;
     let d = r.drain.as_ref().unwrap();
     eprintln!(
         "     drained {} of {m} integrated, {} acknowledged (+ marker) at {:.0} msg/s (service online to {})",
@@ -581,10 +579,11 @@ fn wait_integrated(
     (marker_at, snapshot_at, svc.snapshot().expect("a final snapshot"))
 }
 
-fn wait_online(events: &mpsc::Receiver<(Instant, String, Vec<u8>)>) {
+/// Waits for the service's `online` status; returns when it was received.
+fn wait_online(events: &mpsc::Receiver<(Instant, String, Vec<u8>)>) -> Instant {
     for _ in 0..MAX_POLLS {
         match events.recv_timeout(PAUSE) {
-            Ok((_, topic, p)) if topic == "lifeledger/status" && p.windows(6).any(|w| w == b"online") => return,
+            Ok((t, topic, p)) if topic == "lifeledger/status" && p.windows(6).any(|w| w == b"online") => return t,
             Ok(_) | Err(mpsc::RecvTimeoutError::Timeout) => {}
             Err(mpsc::RecvTimeoutError::Disconnected) => panic!("listener gone"),
         }
@@ -738,8 +737,8 @@ struct Memory {
     ingest_s: f64,
 }
 
-/// Poll budget of part 3: 480 polls 250 ms apart (two minutes).
-const MEMORY_POLLS: u32 = 480;
+/// Poll budget of part 3: 360 polls 250 ms apart (90 s).
+const MEMORY_POLLS: u32 = 360;
 
 fn memory() -> Memory {
     const COMPONENTS: usize = 10_000;
@@ -816,6 +815,12 @@ fn main() {
         println!("| integrated without loss: accepted {} duplicate {} of {}; baseline received {} | {} | all |", t.accepted, t.duplicate, t.n, t.baseline_received, if integrated { "yes" } else { "NO" });
         println!("| acknowledged to the broker (service.acked, incl. end marker) | {} of {} | all: {} |", t.acked, t.n + 1, yes(acked));
         println!("| commits (mean / max commit time) | {} ({:.2} / {:.1} ms) | |", t.commits, t.mean_commit_ms, t.max_commit_ms);
+        if let Some(d) = &t.drain {
+            println!(
+                "| backlog drain after restart ({} queued; online to {}): integrated {}, acknowledged {} of {} | {:.0} msg/s | |",
+                d.m, d.basis, d.integrated, d.acked, d.m + 1, d.rate
+            );
+        }
     }
     if let Some(l) = l {
         println!(

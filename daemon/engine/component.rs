@@ -240,6 +240,21 @@ pub fn advance(
     if to_ms <= from_ms {
         return;
     }
+    // Fast path: no sample instant or end of hold inside the interval (the
+    // common case of regular sampling) means one piece.
+    let inside = |t: i64| t > from_ms && t < to_ms;
+    let single = comp_tags.iter().all(|&id| {
+        let st = &tags[id as usize];
+        let h = tag_plans[id as usize].max_hold_ms;
+        let p = st.prev.is_some_and(|(t, _)| inside(t) || inside(t.saturating_add(h)));
+        let l = st.last.is_some_and(|(t, _)| inside(t) || inside(t.saturating_add(h)));
+        !p && !l
+    });
+    if single {
+        integrate_piece(plan, scratch, state, tags, tag_plans, from_ms, to_ms, policy, tau_h);
+        state.integrated_to_ms = Some(to_ms);
+        return;
+    }
     let mut breaks = Breaks::new();
     for &id in comp_tags {
         tags[id as usize].breakpoints(&tag_plans[id as usize], &mut breaks);
