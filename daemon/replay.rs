@@ -175,22 +175,48 @@ pub struct Row<'a> {
     pub quality: Quality,
 }
 
+/// Trim ASCII blanks only when there are any (the common row has none).
+#[inline]
+fn trim(s: &str) -> &str {
+    let b = s.as_bytes();
+    if b.first().is_some_and(|c| c.is_ascii_whitespace()) || b.last().is_some_and(|c| c.is_ascii_whitespace()) {
+        s.trim()
+    } else {
+        s
+    }
+}
+
 /// Parse one data row (without the line ending).
 pub fn parse_row(line: &str) -> Result<Row<'_>, String> {
-    let mut it = line.split(',');
-    let ts = it.next().unwrap_or("");
-    let tag = it.next().ok_or("missing tag and value fields")?;
-    let value = it.next().ok_or("missing value field")?;
-    let quality = it.next().unwrap_or("");
-    if it.next().is_some() {
-        return Err("more than four fields".into());
+    // One pass over the bytes for the (at most three) commas.
+    let b = line.as_bytes();
+    let mut cut = [b.len(); 3];
+    let mut n = 0;
+    for (i, &c) in b.iter().enumerate() {
+        if c == b',' {
+            if n == 3 {
+                return Err("more than four fields".into());
+            }
+            cut[n] = i;
+            n += 1;
+        }
     }
-    let time_ms = parse_timestamp_ms(ts.trim()).ok_or_else(|| format!("timestamp {ts:?} is neither RFC 3339 nor epoch seconds"))?;
-    let tag = tag.trim();
+    if n == 0 {
+        return Err("missing tag and value fields".into());
+    }
+    if n == 1 {
+        return Err("missing value field".into());
+    }
+    let ts = &line[..cut[0]];
+    let tag = &line[cut[0] + 1..cut[1]];
+    let value = &line[cut[1] + 1..cut[2]];
+    let quality = if n == 3 { &line[cut[2] + 1..] } else { "" };
+    let time_ms = parse_timestamp_ms(trim(ts)).ok_or_else(|| format!("timestamp {ts:?} is neither RFC 3339 nor epoch seconds"))?;
+    let tag = trim(tag);
     if tag.is_empty() {
         return Err("empty tag".into());
     }
-    let v = value.trim();
+    let v = trim(value);
     let value: f64 = v.parse().map_err(|_| format!("value {v:?} is not a number"))?;
     let quality = parse_quality(quality).ok_or_else(|| format!("quality {quality:?} is not good, uncertain or bad"))?;
     Ok(Row { time_ms, tag, value, quality })
@@ -264,7 +290,10 @@ pub fn replay(
             break;
         }
         lineno += 1;
-        let l = line.trim_end_matches(['\n', '\r']);
+        let mut l = line.as_str();
+        while let Some(stripped) = l.strip_suffix('\n').or_else(|| l.strip_suffix('\r')) {
+            l = stripped;
+        }
         if l.is_empty() || l.starts_with('#') || (lineno == 1 && l.starts_with("timestamp")) {
             continue;
         }
