@@ -382,8 +382,7 @@ fn integrate_piece(
             d_life = w * (r0.life_per_h + r1.life_per_h);
             d_strain = w * (r0.strain_per_h + r1.strain_per_h);
             d_wear = w * (r0.wear_mm_per_h + r1.wear_mm_per_h);
-            account_node(plan, state, &r0p, &r0, w);
-            account_node(plan, state, &p1, &r1, w);
+            account_pair(plan, state, &r0p, &r0, &p1, &r1, dt_h);
             r0 = r1;
             r0p = p1;
         }
@@ -469,6 +468,42 @@ fn account_node(plan: &ComponentPlan, state: &mut ComponentState, p: &Point, r: 
         }
     }
     state.flags.wall_exhausted |= r.wall_exhausted;
+}
+
+/// Book-keeping for a trapezoid piece of `dt_h` hours between two nodes:
+/// the histogram class is taken once, at the midpoint (the steps are small),
+/// the peak from both ends.
+#[inline]
+fn account_pair(plan: &ComponentPlan, state: &mut ComponentState, p0: &Point, r0: &Rates, p1: &Point, r1: &Rates, dt_h: f64) {
+    if plan.metal_temperature.is_some() {
+        let (tm, pm) = (0.5 * (p0.t_k + p1.t_k), 0.5 * (p0.p_mpa + p1.p_mpa));
+        state.histogram.add(tm, pm, dt_h);
+        let peak = p0.t_k.max(p1.t_k);
+        if peak > state.peak_temperature_k {
+            state.peak_temperature_k = peak;
+        }
+        if let Some(d) = plan.design_temperature_k {
+            let over = 0.5 * ((p0.t_k > d) as u8 as f64 + (p1.t_k > d) as u8 as f64) * dt_h;
+            if over > 0.0 {
+                state.over_design_h += over;
+                state.flags.over_design_temperature = true;
+            }
+        }
+    }
+    for r in [r0, r1] {
+        if r.creep {
+            state.hours_in_creep_range += 0.5 * dt_h;
+            if r.flags.any() {
+                state.extrapolated_h += 0.5 * dt_h;
+                let f = &mut state.flags.extrapolated;
+                f.stress_below |= r.flags.stress_below;
+                f.stress_above |= r.flags.stress_above;
+                f.temperature_below |= r.flags.temperature_below;
+                f.temperature_above |= r.flags.temperature_above;
+            }
+        }
+        state.flags.wall_exhausted |= r.wall_exhausted;
+    }
 }
 
 /// Damage, strain and wear rates at one instant.
