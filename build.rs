@@ -6,9 +6,8 @@ use std::{env, fs, path::Path};
 fn main() {
     let dir = Path::new("config/materials");
     println!("cargo:rerun-if-changed=config/materials");
-    let mut entries: Vec<_> = fs::read_dir(dir)
-        .map(|rd| rd.filter_map(|e| e.ok()).map(|e| e.path()).collect())
-        .unwrap_or_default();
+    let mut entries: Vec<_> =
+        fs::read_dir(dir).map(|rd| rd.filter_map(|e| e.ok()).map(|e| e.path()).collect()).unwrap_or_default();
     entries.retain(|p| p.extension().is_some_and(|e| e == "toml"));
     entries.sort();
     let mut out = String::from("[\n");

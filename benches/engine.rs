@@ -55,7 +55,8 @@ fn bench(c: &mut Criterion) {
         )
     });
     // Steady values: the exact constant-input path.
-    let steady: Vec<Sample> = data.iter().map(|s| Sample { value: if s.tag % 2 == 0 { 545.0 } else { 175.0 }, ..*s }).collect();
+    let steady: Vec<Sample> =
+        data.iter().map(|s| Sample { value: if s.tag % 2 == 0 { 545.0 } else { 175.0 }, ..*s }).collect();
     g.bench_function("ingest_steady_1min", |b| {
         b.iter_batched(
             || Engine::new(plan.clone()),

@@ -199,7 +199,17 @@ fn main() {
     }
     let result = match cli.command {
         Command::Run { config, .. } => cmd_run(config),
-        Command::Demo { duration, speed, sample_period_s, http, state_dir, database_url, database_org, database_bucket, database_token_env } => {
+        Command::Demo {
+            duration,
+            speed,
+            sample_period_s,
+            http,
+            state_dir,
+            database_url,
+            database_org,
+            database_bucket,
+            database_token_env,
+        } => {
             let opts = lifeledger::demo::DemoOptions {
                 duration_s: duration,
                 speed,
@@ -234,7 +244,6 @@ fn main() {
         }
     }
 }
-
 
 fn load(config: &std::path::Path) -> Result<lifeledger::settings::LoadedConfig> {
     load_plan(config).map_err(|e| anyhow::anyhow!("{e}"))
@@ -275,19 +284,14 @@ fn cmd_replay(
     };
     let opts = lifeledger::replay::ReplayOptions { lp_interval_ms: lp_interval_s.max(1) * 1000 };
     let started = std::time::Instant::now();
-    let outcome = lifeledger::replay::replay(
-        &mut engine,
-        reader,
-        lp_file.as_mut().map(|w| w as &mut dyn Write),
-        &opts,
-        |rows| {
+    let outcome =
+        lifeledger::replay::replay(&mut engine, reader, lp_file.as_mut().map(|w| w as &mut dyn Write), &opts, |rows| {
             if let Some(b) = &bar {
                 b.set_position(counter.load(std::sync::atomic::Ordering::Relaxed));
                 b.set_message(format!("{rows} rows"));
             }
-        },
-    )
-    .with_context(|| format!("reading {input}"))?;
+        })
+        .with_context(|| format!("reading {input}"))?;
     if let Some(b) = bar {
         b.finish_and_clear();
     }
@@ -295,13 +299,8 @@ fn cmd_replay(
         f.flush()?;
     }
     let elapsed = started.elapsed().as_secs_f64();
-    let reports: Vec<ComponentReport> = engine
-        .plan()
-        .components
-        .iter()
-        .zip(engine.components())
-        .map(|(p, s)| ComponentReport::new(p, s))
-        .collect();
+    let reports: Vec<ComponentReport> =
+        engine.plan().components.iter().zip(engine.components()).map(|(p, s)| ComponentReport::new(p, s)).collect();
     let mut out = std::io::stdout().lock();
     match format {
         Format::Json => {
@@ -443,7 +442,10 @@ fn cmd_materials(action: MaterialsAction) -> Result<i32> {
                 bail!("unknown grade {grade:?}; known grades: {}", lib.names().join(", "));
             };
             if format == Format::Json {
-                serde_json::to_writer_pretty(&mut out, &serde_json::json!({"material": m, "caution": lifeledger::CAUTION}))?;
+                serde_json::to_writer_pretty(
+                    &mut out,
+                    &serde_json::json!({"material": m, "caution": lifeledger::CAUTION}),
+                )?;
                 writeln!(out)?;
                 return Ok(0);
             }
@@ -451,27 +453,58 @@ fn cmd_materials(action: MaterialsAction) -> Result<i32> {
             if !m.description.is_empty() {
                 writeln!(out, "{}", m.description)?;
             }
-            writeln!(out, "\nmelting point        {:.0} K ({:.0} °C)   source: {}", m.melting_point_k.value, c(m.melting_point_k.value), m.melting_point_k.source)?;
+            writeln!(
+                out,
+                "\nmelting point        {:.0} K ({:.0} °C)   source: {}",
+                m.melting_point_k.value,
+                c(m.melting_point_k.value),
+                m.melting_point_k.source
+            )?;
             match &m.creep_threshold_k {
-                Some(t) => writeln!(out, "creep threshold      {:.0} K ({:.0} °C)   source: {}", t.value, c(t.value), t.source)?,
+                Some(t) => writeln!(
+                    out,
+                    "creep threshold      {:.0} K ({:.0} °C)   source: {}",
+                    t.value,
+                    c(t.value),
+                    t.source
+                )?,
                 None => writeln!(out, "creep threshold      {:.0} K (0.4 Tm, rule of thumb)", m.creep_threshold_k())?,
             }
             if let Some(h) = &m.hardness_hv {
                 writeln!(out, "hardness             {:.0} HV   source: {}", h.value, h.source)?;
             }
             let lm = &m.larson_miller;
-            writeln!(out, "\nLarson-Miller        P = T[K]·({} + log10 t_r[h]) = Σ a_i·(log10 σ[MPa])^i", lm.constant_c)?;
+            writeln!(
+                out,
+                "\nLarson-Miller        P = T[K]·({} + log10 t_r[h]) = Σ a_i·(log10 σ[MPa])^i",
+                lm.constant_c
+            )?;
             writeln!(out, "  coefficients       {:?}", lm.coefficients)?;
-            writeln!(out, "  data range         {:.0}–{:.0} MPa, {:.0}–{:.0} °C", lm.stress_range_mpa[0], lm.stress_range_mpa[1], c(lm.temperature_range_k[0]), c(lm.temperature_range_k[1]))?;
+            writeln!(
+                out,
+                "  data range         {:.0}–{:.0} MPa, {:.0}–{:.0} °C",
+                lm.stress_range_mpa[0],
+                lm.stress_range_mpa[1],
+                c(lm.temperature_range_k[0]),
+                c(lm.temperature_range_k[1])
+            )?;
             writeln!(out, "  minimum curve      {:?}", lm.minimum)?;
             writeln!(out, "  source             {}", lm.source)?;
             if let Some(n) = &m.norton {
-                writeln!(out, "\nNorton-Arrhenius     ε̇[1/h] = {:e}·σ^{}·exp(−{}/(R·T))", n.a_per_h, n.n, n.q_j_per_mol)?;
+                writeln!(
+                    out,
+                    "\nNorton-Arrhenius     ε̇[1/h] = {:e}·σ^{}·exp(−{}/(R·T))",
+                    n.a_per_h, n.n, n.q_j_per_mol
+                )?;
                 writeln!(out, "  source             {}", n.source)?;
             }
             if !m.reference_rupture_strengths.is_empty() {
                 writeln!(out, "\nreference rupture strengths against the master curve:")?;
-                writeln!(out, "  {:>6} {:>9} {:>10} {:>10} {:>10}  source", "°C", "hours", "ref MPa", "mean MPa", "min MPa")?;
+                writeln!(
+                    out,
+                    "  {:>6} {:>9} {:>10} {:>10} {:>10}  source",
+                    "°C", "hours", "ref MPa", "mean MPa", "min MPa"
+                )?;
                 for r in &m.reference_rupture_strengths {
                     let tk = r.temperature_c + 273.15;
                     writeln!(

@@ -100,7 +100,13 @@ fn digits(b: &[u8]) -> Option<i64> {
 /// Parse an RFC 3339 timestamp or epoch seconds to milliseconds.
 pub fn parse_timestamp_ms(s: &str) -> Option<i64> {
     let b = s.as_bytes();
-    if b.len() >= 20 && b[4] == b'-' && b[7] == b'-' && (b[10] == b'T' || b[10] == b' ' || b[10] == b't') && b[13] == b':' && b[16] == b':' {
+    if b.len() >= 20
+        && b[4] == b'-'
+        && b[7] == b'-'
+        && (b[10] == b'T' || b[10] == b' ' || b[10] == b't')
+        && b[13] == b':'
+        && b[16] == b':'
+    {
         let y = digits(&b[0..4])?;
         let mo = digits(&b[5..7])?;
         let d = digits(&b[8..10])?;
@@ -211,7 +217,8 @@ pub fn parse_row(line: &str) -> Result<Row<'_>, String> {
     let tag = &line[cut[0] + 1..cut[1]];
     let value = &line[cut[1] + 1..cut[2]];
     let quality = if n == 3 { &line[cut[2] + 1..] } else { "" };
-    let time_ms = parse_timestamp_ms(trim(ts)).ok_or_else(|| format!("timestamp {ts:?} is neither RFC 3339 nor epoch seconds"))?;
+    let time_ms = parse_timestamp_ms(trim(ts))
+        .ok_or_else(|| format!("timestamp {ts:?} is neither RFC 3339 nor epoch seconds"))?;
     let tag = trim(tag);
     if tag.is_empty() {
         return Err("empty tag".into());
@@ -223,7 +230,10 @@ pub fn parse_row(line: &str) -> Result<Row<'_>, String> {
 }
 
 /// Open a file, or standard input for `-`, decompressing gzip.
-pub fn open_input(path: &str, counter: Option<std::sync::Arc<std::sync::atomic::AtomicU64>>) -> io::Result<Box<dyn BufRead>> {
+pub fn open_input(
+    path: &str,
+    counter: Option<std::sync::Arc<std::sync::atomic::AtomicU64>>,
+) -> io::Result<Box<dyn BufRead>> {
     let raw: Box<dyn Read> = if path == "-" { Box::new(io::stdin()) } else { Box::new(std::fs::File::open(path)?) };
     let raw: Box<dyn Read> = match counter {
         Some(c) => Box::new(CountingReader { inner: raw, count: c }),

@@ -134,7 +134,13 @@ impl ComponentReport {
         let has_creep = plan.metal_temperature.is_some();
         let indices: [(&str, &Levels, f64, f64, bool); 3] = [
             ("life_fraction", &th.life_fraction, st.life_fraction, st.recent_life_fraction_rate_per_h, has_creep),
-            ("creep_strain", &th.creep_strain, st.creep_strain, st.recent_creep_strain_rate_per_h, has_creep && plan.material.norton.is_some()),
+            (
+                "creep_strain",
+                &th.creep_strain,
+                st.creep_strain,
+                st.recent_creep_strain_rate_per_h,
+                has_creep && plan.material.norton.is_some(),
+            ),
             ("wear_index", &th.wear_index, wear_index, wear_index_rate, plan.wear.is_some()),
         ];
         for (name, levels, value, rate, applies) in indices {
@@ -180,7 +186,10 @@ impl ComponentReport {
             hours_in_creep_range: st.hours_in_creep_range,
             extrapolated_h: st.extrapolated_h,
             over_design_h: st.over_design_h,
-            peak_metal_temperature_c: st.peak_temperature_k.is_finite().then(|| kelvin_to_celsius(st.peak_temperature_k)),
+            peak_metal_temperature_c: st
+                .peak_temperature_k
+                .is_finite()
+                .then(|| kelvin_to_celsius(st.peak_temperature_k)),
             metal_temperature_c: kelvin_to_celsius(st.now.metal_temperature_k),
             pressure_mpa: st.now.pressure_mpa,
             hoop_stress_mpa: st.now.hoop_stress_mpa,
@@ -261,7 +270,15 @@ pub fn summary_table(reports: &[ComponentReport]) -> String {
     let mut s = String::new();
     s.push_str(&format!(
         "{:<24} {:<12} {:>10} {:>9} {:>9} {:>12} {:>9} {:>9}  {}\n",
-        "component", "material", "life frac", "strain %", "wear idx", "remaining h", "creep h", "unmon h", "levels / flags"
+        "component",
+        "material",
+        "life frac",
+        "strain %",
+        "wear idx",
+        "remaining h",
+        "creep h",
+        "unmon h",
+        "levels / flags"
     ));
     for r in reports {
         let levels: Vec<String> = r.levels_reached.iter().map(|(k, v)| format!("{k}:{v}")).collect();
@@ -338,7 +355,10 @@ pub fn design_check(plan: &ComponentPlan) -> DesignCheck {
                 hours_to.insert(format!("life_fraction.{sev}"), ((l - plan.initial_life_fraction).max(0.0)) * life);
             }
             if life < 100_000.0 {
-                warnings.push(format!("rupture life at design conditions is only {life:.0} h on the {:?} curve", plan.curve_basis));
+                warnings.push(format!(
+                    "rupture life at design conditions is only {life:.0} h on the {:?} curve",
+                    plan.curve_basis
+                ));
             }
         }
     }

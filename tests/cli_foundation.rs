@@ -9,7 +9,11 @@ fn bin() -> Command {
 
 fn run(args: &[&str]) -> (i32, String, String) {
     let o = bin().args(args).output().unwrap();
-    (o.status.code().unwrap_or(-1), String::from_utf8_lossy(&o.stdout).into(), String::from_utf8_lossy(&o.stderr).into())
+    (
+        o.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&o.stdout).into(),
+        String::from_utf8_lossy(&o.stderr).into(),
+    )
 }
 
 #[test]
@@ -17,8 +21,15 @@ fn demo_replay_json_has_every_field() {
     let dir = tempfile::tempdir().unwrap();
     let lp = dir.path().join("series.lp");
     let (code, out, err) = run(&[
-        "replay", "--config", "config/demo/plant.toml", "--input", "config/demo/history.csv.gz",
-        "--format", "json", "--write-lp", lp.to_str().unwrap(),
+        "replay",
+        "--config",
+        "config/demo/plant.toml",
+        "--input",
+        "config/demo/history.csv.gz",
+        "--format",
+        "json",
+        "--write-lp",
+        lp.to_str().unwrap(),
     ]);
     assert_eq!(code, 0, "{err}");
     let v: serde_json::Value = serde_json::from_str(&out).unwrap();
@@ -34,8 +45,15 @@ fn demo_replay_json_has_every_field() {
     assert!(comps.len() >= 6);
     for c in comps {
         for key in [
-            "creep_life_fraction", "creep_strain", "wear_depth_mm", "wear_index", "remaining_life_h",
-            "unmonitored_h", "hours_in_creep_range", "histograms", "flags",
+            "creep_life_fraction",
+            "creep_strain",
+            "wear_depth_mm",
+            "wear_index",
+            "remaining_life_h",
+            "unmonitored_h",
+            "hours_in_creep_range",
+            "histograms",
+            "flags",
         ] {
             assert!(c.get(key).is_some(), "{} lacks {key}", c["component"]);
         }

@@ -86,14 +86,7 @@ fn schema() -> Vec<Measurement> {
         },
         Measurement {
             name: "alarm_threshold",
-            tags: &[
-                "plant",
-                "unit",
-                "component",
-                "material",
-                "index",
-                "severity",
-            ],
+            tags: &["plant", "unit", "component", "material", "index", "severity"],
             fields: strs(&["value"]),
         },
         Measurement {
@@ -101,21 +94,14 @@ fn schema() -> Vec<Measurement> {
             tags: &["plant", "unit", "component", "index", "severity", "state"],
             fields: strs(&["value", "threshold", "message", "transition"]),
         },
-        Measurement {
-            name: "service_health",
-            tags: &["plant"],
-            fields: health,
-        },
+        Measurement { name: "service_health", tags: &["plant"], fields: health },
     ]
 }
 
 /// `rejected_*` fields of `service_health`: one per engine rejection reason
 /// and one per MQTT decode reason.
 fn health_rejection_fields() -> Vec<String> {
-    let mut v: Vec<String> = Rejection::ALL
-        .iter()
-        .map(|r| format!("rejected_{}", r.name()))
-        .collect();
+    let mut v: Vec<String> = Rejection::ALL.iter().map(|r| format!("rejected_{}", r.name())).collect();
     for e in [
         DecodeError::UnknownTopic(String::new()),
         DecodeError::NotUtf8,
@@ -183,11 +169,7 @@ struct Line {
 
 fn parse_line(line: &str) -> Line {
     let parts = split_unescaped(line, ' ');
-    assert_eq!(
-        parts.len(),
-        3,
-        "line protocol with measurement, fields and time: {line}"
-    );
+    assert_eq!(parts.len(), 3, "line protocol with measurement, fields and time: {line}");
     let series = split_unescaped(&parts[0], ',');
     let tags = series[1..]
         .iter()
@@ -196,18 +178,12 @@ fn parse_line(line: &str) -> Line {
             (unescape(&kv[0]), unescape(&kv[1]))
         })
         .collect();
-    let fields = split_unescaped(&parts[1], ',')
-        .iter()
-        .map(|f| unescape(&split_unescaped(f, '=')[0]))
-        .collect();
+    let fields = split_unescaped(&parts[1], ',').iter().map(|f| unescape(&split_unescaped(f, '=')[0])).collect();
     Line {
         measurement: unescape(&series[0]),
         tags,
         fields,
-        time_ns: parts[2]
-            .trim()
-            .parse()
-            .unwrap_or_else(|e| panic!("time of {line}: {e}")),
+        time_ns: parts[2].trim().parse().unwrap_or_else(|e| panic!("time of {line}: {e}")),
     }
 }
 
@@ -242,17 +218,10 @@ fn demo_lp() -> &'static str {
 }
 
 fn demo_config() -> lifeledger::settings::LoadedConfig {
-    lifeledger::settings::load_plan(&repo().join("config/demo/plant.toml"))
-        .expect("demo configuration loads")
+    lifeledger::settings::load_plan(&repo().join("config/demo/plant.toml")).expect("demo configuration loads")
 }
 
-fn alarm_event(
-    component: &str,
-    index: AlarmIndex,
-    value: f64,
-    threshold: f64,
-    time_ms: i64,
-) -> AlarmEvent {
+fn alarm_event(component: &str, index: AlarmIndex, value: f64, threshold: f64, time_ms: i64) -> AlarmEvent {
     AlarmEvent {
         component: component.into(),
         unit: DEMO_UNIT.into(),
@@ -264,10 +233,7 @@ fn alarm_event(
         threshold: Some(threshold),
         time: lifeledger::report::rfc3339_ms(time_ms),
         time_ms,
-        message: format!(
-            "{component}: {} reached the advisory level {threshold}",
-            index.name()
-        ),
+        message: format!("{component}: {} reached the advisory level {threshold}", index.name()),
         by: None,
         reason: None,
         shelved_until: None,
@@ -284,50 +250,20 @@ fn alarm_event(
 fn demo_points() -> (Vec<String>, i64, i64) {
     let cfg = demo_config();
     let plant = cfg.plan.plant.clone();
-    let mut lines: Vec<String> = demo_lp()
-        .lines()
-        .filter(|l| !l.trim().is_empty())
-        .map(String::from)
-        .collect();
-    let times: BTreeSet<i64> = lines
-        .iter()
-        .map(|l| parse_line(l).time_ns / 1_000_000)
-        .collect();
-    let (first, last) = (
-        *times.first().expect("replay wrote points"),
-        *times.last().unwrap(),
-    );
+    let mut lines: Vec<String> = demo_lp().lines().filter(|l| !l.trim().is_empty()).map(String::from).collect();
+    let times: BTreeSet<i64> = lines.iter().map(|l| parse_line(l).time_ns / 1_000_000).collect();
+    let (first, last) = (*times.first().expect("replay wrote points"), *times.last().unwrap());
     for &t in &times {
         for c in &cfg.plan.components {
-            lines.extend(
-                lifeledger::report::threshold_points(&plant, c, t)
-                    .iter()
-                    .filter_map(Point::to_line),
-            );
+            lines.extend(lifeledger::report::threshold_points(&plant, c, t).iter().filter_map(Point::to_line));
         }
     }
     let mid = first + (last - first) * 3 / 4;
     lines.extend(
-        alarm_event(
-            DEMO_COMPONENTS[0],
-            AlarmIndex::CreepLifeFraction,
-            0.2451,
-            0.245,
-            mid,
-        )
-        .to_point(&plant)
-        .to_line(),
+        alarm_event(DEMO_COMPONENTS[0], AlarmIndex::CreepLifeFraction, 0.2451, 0.245, mid).to_point(&plant).to_line(),
     );
     lines.extend(
-        alarm_event(
-            DEMO_COMPONENTS[1],
-            AlarmIndex::WearIndex,
-            0.3502,
-            0.35,
-            mid + 60_000,
-        )
-        .to_point(&plant)
-        .to_line(),
+        alarm_event(DEMO_COMPONENTS[1], AlarmIndex::WearIndex, 0.3502, 0.35, mid + 60_000).to_point(&plant).to_line(),
     );
     for (i, &t) in times.iter().enumerate() {
         let i = i as i64;
@@ -351,14 +287,8 @@ fn write_lines(vm: &VictoriaMetrics, lines: &[String]) {
     for chunk in lines.chunks(CHUNK_LINES) {
         let body = chunk.join("\n") + "\n";
         let target = "/api/v2/write?org=demo&bucket=lifeledger&precision=ns";
-        let resp = http::post(vm.port, target, body.as_bytes())
-            .unwrap_or_else(|e| panic!("POST {target}: {e}"));
-        assert_eq!(
-            resp.status,
-            204,
-            "write to victoria-metrics: {}",
-            resp.text()
-        );
+        let resp = http::post(vm.port, target, body.as_bytes()).unwrap_or_else(|e| panic!("POST {target}: {e}"));
+        assert_eq!(resp.status, 204, "write to victoria-metrics: {}", resp.text());
     }
     vm.flush();
 }
@@ -372,20 +302,12 @@ fn dashboards(kind: &str) -> Vec<(String, Value)> {
         let p = e.unwrap().path();
         if p.extension().and_then(|x| x.to_str()) == Some("json") {
             let text = std::fs::read_to_string(&p).unwrap();
-            let v: Value = serde_json::from_str(&text)
-                .unwrap_or_else(|e| panic!("{}: not JSON: {e}", p.display()));
-            out.push((
-                format!("{kind}/{}", p.file_name().unwrap().to_string_lossy()),
-                v,
-            ));
+            let v: Value = serde_json::from_str(&text).unwrap_or_else(|e| panic!("{}: not JSON: {e}", p.display()));
+            out.push((format!("{kind}/{}", p.file_name().unwrap().to_string_lossy()), v));
         }
     }
     out.sort_by(|a, b| a.0.cmp(&b.0));
-    assert!(
-        out.len() >= 2,
-        "expected the plant-overview and component-detail dashboards in {}",
-        dir.display()
-    );
+    assert!(out.len() >= 2, "expected the plant-overview and component-detail dashboards in {}", dir.display());
     out
 }
 
@@ -413,17 +335,9 @@ fn queries<'a>(d: &'a Value, key: &str) -> Vec<(String, String, &'a str, bool)> 
     let mut out = vec![];
     for p in panels(d) {
         for t in p["targets"].as_array().into_iter().flatten() {
-            let q = t[key]
-                .as_str()
-                .unwrap_or_else(|| panic!("panel {:?} target has no {key}", title(p)));
-            let instant =
-                t["instant"].as_bool().unwrap_or(false) && !t["range"].as_bool().unwrap_or(false);
-            out.push((
-                title(p),
-                t["refId"].as_str().unwrap_or("?").to_string(),
-                q,
-                instant,
-            ));
+            let q = t[key].as_str().unwrap_or_else(|| panic!("panel {:?} target has no {key}", title(p)));
+            let instant = t["instant"].as_bool().unwrap_or(false) && !t["range"].as_bool().unwrap_or(false);
+            out.push((title(p), t["refId"].as_str().unwrap_or("?").to_string(), q, instant));
         }
     }
     out
@@ -446,11 +360,7 @@ fn used_variables(q: &str) -> Vec<String> {
     let mut i = 0;
     while i < b.len() {
         if b[i] == b'$' {
-            let (start, braced) = if b.get(i + 1) == Some(&b'{') {
-                (i + 2, true)
-            } else {
-                (i + 1, false)
-            };
+            let (start, braced) = if b.get(i + 1) == Some(&b'{') { (i + 2, true) } else { (i + 1, false) };
             let mut j = start;
             while j < b.len() && (b[j].is_ascii_alphanumeric() || b[j] == b'_') {
                 j += 1;
@@ -478,9 +388,7 @@ fn substitute(q: &str, values: &BTreeMap<&str, String>) -> String {
     keys.sort_by_key(|k| std::cmp::Reverse(k.len()));
     let mut s = q.to_string();
     for k in keys {
-        s = s
-            .replace(&format!("${{{k}}}"), &values[*k])
-            .replace(&format!("${k}"), &values[*k]);
+        s = s.replace(&format!("${{{k}}}"), &values[*k]).replace(&format!("${k}"), &values[*k]);
     }
     s
 }
@@ -489,35 +397,16 @@ fn substitute(q: &str, values: &BTreeMap<&str, String>) -> String {
 fn every_dashboard_shows_the_caution_and_is_provisioning_ready() {
     let mut uids = BTreeSet::new();
     for kind in ["prometheus", "influxdb2"] {
-        let ds_type = if kind == "prometheus" {
-            "prometheus"
-        } else {
-            "influxdb"
-        };
+        let ds_type = if kind == "prometheus" { "prometheus" } else { "influxdb" };
         for (file, d) in dashboards(kind) {
             let caution = panels(&d).into_iter().any(|p| {
-                p["type"] == "text"
-                    && p["options"]["content"]
-                        .as_str()
-                        .is_some_and(|c| c.contains(lifeledger::CAUTION))
+                p["type"] == "text" && p["options"]["content"].as_str().is_some_and(|c| c.contains(lifeledger::CAUTION))
             });
-            assert!(
-                caution,
-                "{file}: no text panel shows the caution {:?}",
-                lifeledger::CAUTION
-            );
-            let uid = d["uid"]
-                .as_str()
-                .unwrap_or_else(|| panic!("{file}: no uid"));
+            assert!(caution, "{file}: no text panel shows the caution {:?}", lifeledger::CAUTION);
+            let uid = d["uid"].as_str().unwrap_or_else(|| panic!("{file}: no uid"));
             assert!(uids.insert(uid.to_string()), "{file}: uid {uid} used twice");
-            assert!(
-                d["title"].as_str().is_some_and(|t| !t.is_empty()),
-                "{file}: no title"
-            );
-            assert!(
-                d.get("__inputs").is_none(),
-                "{file}: __inputs placeholders do not work with file provisioning"
-            );
+            assert!(d["title"].as_str().is_some_and(|t| !t.is_empty()), "{file}: no title");
+            assert!(d.get("__inputs").is_none(), "{file}: __inputs placeholders do not work with file provisioning");
             let vars = variables(&d);
             for v in ["datasource", "plant", "unit", "component"] {
                 assert!(vars.contains(v), "{file}: no {v} variable");
@@ -527,23 +416,11 @@ fn every_dashboard_shows_the_caution_and_is_provisioning_ready() {
             }
             let mut ids = BTreeSet::new();
             for p in panels(&d) {
-                let id = p["id"]
-                    .as_i64()
-                    .unwrap_or_else(|| panic!("{file}: panel {:?} has no id", title(p)));
+                let id = p["id"].as_i64().unwrap_or_else(|| panic!("{file}: panel {:?} has no id", title(p)));
                 assert!(ids.insert(id), "{file}: panel id {id} used twice");
-                assert!(
-                    p["gridPos"]["w"].as_i64().is_some(),
-                    "{file}: panel {:?} has no gridPos",
-                    title(p)
-                );
+                assert!(p["gridPos"]["w"].as_i64().is_some(), "{file}: panel {:?} has no gridPos", title(p));
                 let mut sources = vec![&p["datasource"]];
-                sources.extend(
-                    p["targets"]
-                        .as_array()
-                        .into_iter()
-                        .flatten()
-                        .map(|t| &t["datasource"]),
-                );
+                sources.extend(p["targets"].as_array().into_iter().flatten().map(|t| &t["datasource"]));
                 for ds in sources.into_iter().filter(|ds| !ds.is_null()) {
                     assert_eq!(
                         ds["uid"],
@@ -551,19 +428,10 @@ fn every_dashboard_shows_the_caution_and_is_provisioning_ready() {
                         "{file}: panel {:?} must use the datasource variable",
                         title(p)
                     );
-                    assert_eq!(
-                        ds["type"],
-                        ds_type,
-                        "{file}: panel {:?} datasource type",
-                        title(p)
-                    );
+                    assert_eq!(ds["type"], ds_type, "{file}: panel {:?} datasource type", title(p));
                 }
             }
-            let key = if kind == "prometheus" {
-                "expr"
-            } else {
-                "query"
-            };
+            let key = if kind == "prometheus" { "expr" } else { "query" };
             for (panel, _, q, _) in queries(&d, key) {
                 for v in used_variables(q) {
                     assert!(
@@ -596,10 +464,7 @@ fn schema_matches_the_points_the_product_writes() {
         let (tags, fields) = seen.get(name).unwrap_or_else(|| panic!("no {name} points"));
         let want_tags: BTreeSet<String> = m.tags.iter().map(|s| s.to_string()).collect();
         let want_fields: BTreeSet<String> = m.fields.iter().cloned().collect();
-        assert_eq!(
-            tags, &want_tags,
-            "tags of {name}: update the schema in tests/dashboards.rs and the dashboards"
-        );
+        assert_eq!(tags, &want_tags, "tags of {name}: update the schema in tests/dashboards.rs and the dashboards");
         assert_eq!(
             fields, &want_fields,
             "fields of {name}: update the schema in tests/dashboards.rs and the dashboards"
@@ -623,14 +488,9 @@ fn promql_metrics(expr: &str) -> Vec<String> {
         if !quoted && (c.is_ascii_alphanumeric() || c == '_' || c == ':') {
             cur.push(c);
         } else {
-            if [
-                "component_state_",
-                "alarm_threshold_",
-                "alarm_event_",
-                "service_health_",
-            ]
-            .iter()
-            .any(|p| cur.starts_with(p))
+            if ["component_state_", "alarm_threshold_", "alarm_event_", "service_health_"]
+                .iter()
+                .any(|p| cur.starts_with(p))
             {
                 out.push(cur.clone());
             }
@@ -642,15 +502,11 @@ fn promql_metrics(expr: &str) -> Vec<String> {
 
 #[test]
 fn prometheus_dashboard_metrics_are_in_the_schema() {
-    let names: BTreeSet<String> = schema()
-        .iter()
-        .flat_map(|m| m.fields.iter().map(move |f| format!("{}_{f}", m.name)))
-        .collect();
+    let names: BTreeSet<String> =
+        schema().iter().flat_map(|m| m.fields.iter().map(move |f| format!("{}_{f}", m.name))).collect();
     for (file, d) in dashboards("prometheus") {
-        let mut exprs: Vec<(String, String)> = queries(&d, "expr")
-            .into_iter()
-            .map(|(p, _, q, _)| (p, q.to_string()))
-            .collect();
+        let mut exprs: Vec<(String, String)> =
+            queries(&d, "expr").into_iter().map(|(p, _, q, _)| (p, q.to_string())).collect();
         for v in d["templating"]["list"].as_array().into_iter().flatten() {
             if let Some(q) = v["definition"].as_str() {
                 exprs.push((format!("variable {}", v["name"]), q.to_string()));
@@ -658,10 +514,7 @@ fn prometheus_dashboard_metrics_are_in_the_schema() {
         }
         for (panel, expr) in exprs {
             for m in promql_metrics(&expr) {
-                assert!(
-                    names.contains(&m),
-                    "{file}: panel {panel:?} uses {m}, which lifeledger does not write"
-                );
+                assert!(names.contains(&m), "{file}: panel {panel:?} uses {m}, which lifeledger does not write");
             }
         }
     }
@@ -735,10 +588,7 @@ fn prometheus_dashboards_answer_after_a_short_demo_run() {
 fn check_prometheus_dashboards(vm: &VictoriaMetrics, start: i64, end: i64) {
     let range_s = end - start + 1;
     let range_query = |expr: &str| -> Value {
-        let target = format!(
-            "/api/v1/query_range?query={}&start={start}&end={end}&step=3600",
-            encode(expr)
-        );
+        let target = format!("/api/v1/query_range?query={}&start={start}&end={end}&step=3600", encode(expr));
         let resp = http::get(vm.port, &target).unwrap_or_else(|e| panic!("GET {target}: {e}"));
         assert_eq!(resp.status, 200, "query_range {expr}: {}", resp.text());
         serde_json::from_slice(&resp.body).expect("query_range answer is JSON")
@@ -746,11 +596,7 @@ fn check_prometheus_dashboards(vm: &VictoriaMetrics, start: i64, end: i64) {
     let series_count = |answer: &Value| -> usize {
         answer["data"]["result"]
             .as_array()
-            .map(|r| {
-                r.iter()
-                    .filter(|s| !matches!(s["values"].as_array(), Some(v) if v.is_empty()))
-                    .count()
-            })
+            .map(|r| r.iter().filter(|s| !matches!(s["values"].as_array(), Some(v) if v.is_empty())).count())
             .unwrap_or(0)
     };
     let mut checked = 0;
@@ -761,17 +607,9 @@ fn check_prometheus_dashboards(vm: &VictoriaMetrics, start: i64, end: i64) {
                 continue;
             };
             let (sel, label) = label_values_query(q);
-            let sel = substitute(
-                &sel,
-                &BTreeMap::from([
-                    ("plant", DEMO_PLANT.to_string()),
-                    ("unit", DEMO_UNIT.to_string()),
-                ]),
-            );
-            let target = format!(
-                "/api/v1/label/{label}/values?match[]={}&start={start}&end={end}",
-                encode(&sel)
-            );
+            let sel =
+                substitute(&sel, &BTreeMap::from([("plant", DEMO_PLANT.to_string()), ("unit", DEMO_UNIT.to_string())]));
+            let target = format!("/api/v1/label/{label}/values?match[]={}&start={start}&end={end}", encode(&sel));
             let resp = http::get(vm.port, &target).unwrap();
             let ans: Value = serde_json::from_slice(&resp.body).unwrap();
             let want = match label.as_str() {
@@ -780,9 +618,7 @@ fn check_prometheus_dashboards(vm: &VictoriaMetrics, start: i64, end: i64) {
                 _ => DEMO_COMPONENTS[0],
             };
             assert!(
-                ans["data"]
-                    .as_array()
-                    .is_some_and(|a| a.iter().any(|x| x == want)),
+                ans["data"].as_array().is_some_and(|a| a.iter().any(|x| x == want)),
                 "{file}: variable {} ({q}) does not offer {want:?}: {ans}",
                 v["name"]
             );
@@ -795,11 +631,8 @@ fn check_prometheus_dashboards(vm: &VictoriaMetrics, start: i64, end: i64) {
         // A multi-value component variable is tried with All (".*"); a
         // single one with each demo component, and a panel needs data for
         // at least one of them (creep panels have none for a wear contact).
-        let candidates: Vec<String> = if multi {
-            vec![".*".to_string()]
-        } else {
-            DEMO_COMPONENTS.iter().map(|s| s.to_string()).collect()
-        };
+        let candidates: Vec<String> =
+            if multi { vec![".*".to_string()] } else { DEMO_COMPONENTS.iter().map(|s| s.to_string()).collect() };
         for (panel, ref_id, expr, instant) in queries(&d, "expr") {
             let mut answers = vec![];
             let found = candidates.iter().any(|c| {
@@ -813,7 +646,10 @@ fn check_prometheus_dashboards(vm: &VictoriaMetrics, start: i64, end: i64) {
                     ("__interval", "1h".to_string()),
                 ]);
                 let q = substitute(expr, &values);
-                assert!(!q.contains('$'), "{file}: panel {panel:?} query {ref_id} keeps a variable after substitution: {q}");
+                assert!(
+                    !q.contains('$'),
+                    "{file}: panel {panel:?} query {ref_id} keeps a variable after substitution: {q}"
+                );
                 let ans = if instant { vm.query(&q, end as f64) } else { range_query(&q) };
                 assert_eq!(ans["status"], "success", "{file}: panel {panel:?} query {ref_id}: {ans}");
                 let n = series_count(&ans);
@@ -951,9 +787,7 @@ fn flux_names(toks: &[Tok]) -> FluxNames {
             Some("r._field") if punct(i + 1, "==") => n.fields.extend(string(i + 2)),
             Some("prefix") if punct(i + 1, ":") => n.field_prefixes.extend(string(i + 2)),
             Some("tag") if punct(i + 1, ":") => n.columns.extend(string(i + 2)),
-            Some("columns" | "rowKey" | "columnKey" | "on")
-                if punct(i + 1, ":") && punct(i + 2, "[") =>
-            {
+            Some("columns" | "rowKey" | "columnKey" | "on") if punct(i + 1, ":") && punct(i + 2, "[") => {
                 let mut j = i + 3;
                 while let Some(s) = string(j) {
                     n.columns.push(s);
@@ -979,30 +813,20 @@ fn influxdb_dashboards_use_only_names_the_product_writes() {
             .collect();
         for v in d["templating"]["list"].as_array().into_iter().flatten() {
             if v["type"] == "query" {
-                let q = v["query"]
-                    .as_str()
-                    .unwrap_or_else(|| panic!("{file}: variable {} has no Flux query", v["name"]));
+                let q =
+                    v["query"].as_str().unwrap_or_else(|| panic!("{file}: variable {} has no Flux query", v["name"]));
                 qs.push((format!("variable {}", v["name"]), q.to_string()));
             }
         }
         for (what, q) in qs {
-            let toks = flux_tokens(&q)
-                .unwrap_or_else(|e| panic!("{file}: {what}: Flux does not tokenise ({e}):\n{q}"));
+            let toks = flux_tokens(&q).unwrap_or_else(|e| panic!("{file}: {what}: Flux does not tokenise ({e}):\n{q}"));
             assert!(
-                toks.iter()
-                    .any(|t| *t == Tok::Ident("v.timeRangeStart".into()))
-                    || q.contains("schema.tagValues"),
+                toks.iter().any(|t| *t == Tok::Ident("v.timeRangeStart".into())) || q.contains("schema.tagValues"),
                 "{file}: {what}: not bounded by the dashboard time range"
             );
-            assert!(
-                q.contains("bucket: \"${bucket}\""),
-                "{file}: {what}: does not read bucket ${{bucket}}"
-            );
+            assert!(q.contains("bucket: \"${bucket}\""), "{file}: {what}: does not read bucket ${{bucket}}");
             let names = flux_names(&toks);
-            assert!(
-                !names.measurements.is_empty(),
-                "{file}: {what}: names no measurement"
-            );
+            assert!(!names.measurements.is_empty(), "{file}: {what}: names no measurement");
             let mut used = vec![];
             for m in &names.measurements {
                 let s = schema
@@ -1011,23 +835,13 @@ fn influxdb_dashboards_use_only_names_the_product_writes() {
                     .unwrap_or_else(|| panic!("{file}: {what}: unknown measurement {m:?}"));
                 used.push(s);
             }
-            let fields: BTreeSet<&str> = used
-                .iter()
-                .flat_map(|m| m.fields.iter().map(String::as_str))
-                .collect();
+            let fields: BTreeSet<&str> = used.iter().flat_map(|m| m.fields.iter().map(String::as_str)).collect();
             let tags: BTreeSet<&str> = used.iter().flat_map(|m| m.tags.iter().copied()).collect();
             for f in &names.fields {
-                assert!(
-                    fields.contains(f.as_str()),
-                    "{file}: {what}: unknown field {f:?} of {:?}",
-                    names.measurements
-                );
+                assert!(fields.contains(f.as_str()), "{file}: {what}: unknown field {f:?} of {:?}", names.measurements);
             }
             for p in &names.field_prefixes {
-                assert!(
-                    fields.iter().any(|f| f.starts_with(p.as_str())),
-                    "{file}: {what}: no field starts with {p:?}"
-                );
+                assert!(fields.iter().any(|f| f.starts_with(p.as_str())), "{file}: {what}: no field starts with {p:?}");
             }
             for c in &names.columns {
                 // After a pivot, fields are columns too.
@@ -1080,53 +894,29 @@ fn production_config_passes_check_config() {
 #[test]
 fn production_config_service_sections_are_valid_and_complete() {
     let path = repo().join(PRODUCTION);
-    let (cfg, svc) =
-        lifeledger::service::load_service(&path).unwrap_or_else(|e| panic!("{PRODUCTION}: {e:#}"));
+    let (cfg, svc) = lifeledger::service::load_service(&path).unwrap_or_else(|e| panic!("{PRODUCTION}: {e:#}"));
     assert!(cfg.plan.components.len() >= 4);
     assert!(svc.mqtt.tls.is_some(), "the example uses TLS to the broker");
     assert_eq!(svc.mqtt.port, 8883);
     assert!(!svc.mqtt.subscriptions.is_empty());
     let db = svc.database.as_ref().expect("[database] section");
-    assert!(
-        db.token_env.is_some(),
-        "database token from the environment"
-    );
-    assert!(
-        svc.http.token_env.is_some(),
-        "http token from the environment"
-    );
+    assert!(db.token_env.is_some(), "database token from the environment");
+    assert!(svc.http.token_env.is_some(), "http token from the environment");
 
     // Every section the configuration knows appears in the example.
     let text = std::fs::read_to_string(&path).unwrap();
     let doc: toml::Table = toml::from_str(&text).unwrap();
-    for s in [
-        "plant",
-        "engine",
-        "tag",
-        "component",
-        "material",
-        "mqtt",
-        "store",
-        "database",
-        "http",
-        "alarms",
-    ] {
+    for s in ["plant", "engine", "tag", "component", "material", "mqtt", "store", "database", "http", "alarms"] {
         assert!(doc.contains_key(s), "{PRODUCTION}: no [{s}] section");
     }
     let comps = doc["component"].as_array().unwrap();
     for sub in ["geometry", "wear", "initial", "thresholds"] {
-        assert!(
-            comps.iter().any(|c| c.get(sub).is_some()),
-            "{PRODUCTION}: no [component.{sub}]"
-        );
+        assert!(comps.iter().any(|c| c.get(sub).is_some()), "{PRODUCTION}: no [component.{sub}]");
     }
     let mqtt = doc["mqtt"].as_table().unwrap();
     assert!(mqtt.contains_key("tls"), "{PRODUCTION}: no [mqtt.tls]");
     let subs = mqtt["subscription"].as_array().unwrap();
-    assert!(
-        subs.iter().any(|s| s.get("payload").is_some()),
-        "{PRODUCTION}: no [mqtt.subscription.payload]"
-    );
+    assert!(subs.iter().any(|s| s.get("payload").is_some()), "{PRODUCTION}: no [mqtt.subscription.payload]");
 
     // The environment overrides deploy/Containerfile and deploy/compose.yaml
     // set reach the service sections. (No other test of this binary reads
@@ -1136,10 +926,7 @@ fn production_config_service_sections_are_valid_and_complete() {
         ("LIFELEDGER__MQTT__PORT", "8883"),
         ("LIFELEDGER__DATABASE__URL", "http://influxdb:8086"),
         ("LIFELEDGER__HTTP__LISTEN", "0.0.0.0:8470"),
-        (
-            "LIFELEDGER__STORE__PATH",
-            "/var/lib/lifeledger/lifeledger.ledger",
-        ),
+        ("LIFELEDGER__STORE__PATH", "/var/lib/lifeledger/lifeledger.ledger"),
     ];
     for (k, v) in overrides {
         std::env::set_var(k, v);
@@ -1148,22 +935,13 @@ fn production_config_service_sections_are_valid_and_complete() {
     for (k, _) in overrides {
         std::env::remove_var(k);
     }
-    let (_, o) = loaded.unwrap_or_else(|e| {
-        panic!("{PRODUCTION} with the container's environment overrides: {e:#}")
-    });
+    let (_, o) = loaded.unwrap_or_else(|e| panic!("{PRODUCTION} with the container's environment overrides: {e:#}"));
     assert_eq!(o.mqtt.host, "mosquitto");
     assert_eq!(o.mqtt.port, 8883);
     assert_eq!(o.database.as_ref().unwrap().url, "http://influxdb:8086");
     assert_eq!(o.http.listen, "0.0.0.0:8470");
-    assert_eq!(
-        o.store.path,
-        PathBuf::from("/var/lib/lifeledger/lifeledger.ledger")
-    );
-    assert_eq!(
-        o.mqtt.subscriptions.len(),
-        svc.mqtt.subscriptions.len(),
-        "overrides keep the rest"
-    );
+    assert_eq!(o.store.path, PathBuf::from("/var/lib/lifeledger/lifeledger.ledger"));
+    assert_eq!(o.mqtt.subscriptions.len(), svc.mqtt.subscriptions.len(), "overrides keep the rest");
 
     // Every key carries a comment: on its line or on the line above.
     let mut prev = "";
@@ -1171,11 +949,7 @@ fn production_config_service_sections_are_valid_and_complete() {
         let l = line.trim();
         let is_key = !l.is_empty() && !l.starts_with('#') && !l.starts_with('[') && l.contains('=');
         if is_key {
-            assert!(
-                l.contains(" # ") || prev.starts_with('#'),
-                "{PRODUCTION}:{}: key without a comment: {l}",
-                n + 1
-            );
+            assert!(l.contains(" # ") || prev.starts_with('#'), "{PRODUCTION}:{}: key without a comment: {l}", n + 1);
         }
         if !l.is_empty() {
             prev = l;
@@ -1199,23 +973,10 @@ fn systemd_unit_is_hardened() {
         "KillSignal=SIGTERM",
         "CapabilityBoundingSet=",
     ] {
-        assert!(
-            lines.contains(want),
-            "deploy/lifeledger.service lacks {want}"
-        );
+        assert!(lines.contains(want), "deploy/lifeledger.service lacks {want}");
     }
-    for prefix in [
-        "User=",
-        "RestartSec=",
-        "TimeoutStopSec=",
-        "MemoryMax=",
-        "EnvironmentFile=",
-        "ExecStart=",
-    ] {
-        assert!(
-            lines.iter().any(|l| l.starts_with(prefix)),
-            "deploy/lifeledger.service lacks {prefix}"
-        );
+    for prefix in ["User=", "RestartSec=", "TimeoutStopSec=", "MemoryMax=", "EnvironmentFile=", "ExecStart="] {
+        assert!(lines.iter().any(|l| l.starts_with(prefix)), "deploy/lifeledger.service lacks {prefix}");
     }
 }
 
@@ -1226,8 +987,5 @@ fn readmes_carry_the_caution() {
         assert!(text.contains(lifeledger::CAUTION), "{f} lacks the caution");
     }
     let d = std::fs::read_to_string(repo().join("dashboards/README.md")).unwrap();
-    assert!(
-        d.contains("-dedup.minScrapeInterval=1ms"),
-        "dashboards/README.md must name the dedup flag"
-    );
+    assert!(d.contains("-dedup.minScrapeInterval=1ms"), "dashboards/README.md must name the dedup flag");
 }

@@ -19,20 +19,36 @@ fn demo_moves_ledgers_and_raises_a_warning_and_a_stale_tag_alarm() {
         .stderr(Stdio::null())
         .spawn()
         .unwrap();
-    let snapshot = || -> Option<serde_json::Value> { serde_json::from_str(&http::get(port, "/api/components").ok()?.text()).ok() };
-    let first = poll_until("the demo's status API", || snapshot().filter(|s| s["engine"]["accepted"].as_u64().unwrap_or(0) > 0));
-    let lf0: Vec<f64> = first["components"].as_array().unwrap().iter().map(|c| c["creep_life_fraction"].as_f64().unwrap()).collect();
+    let snapshot =
+        || -> Option<serde_json::Value> { serde_json::from_str(&http::get(port, "/api/components").ok()?.text()).ok() };
+    let first = poll_until("the demo's status API", || {
+        snapshot().filter(|s| s["engine"]["accepted"].as_u64().unwrap_or(0) > 0)
+    });
+    let lf0: Vec<f64> =
+        first["components"].as_array().unwrap().iter().map(|c| c["creep_life_fraction"].as_f64().unwrap()).collect();
     let active = |s: &serde_json::Value, index: &str, severity: Option<&str>| {
         s["recent_events"].as_array().is_some_and(|ev| {
-            ev.iter().any(|e| e["index"] == index && e["transition"] == "activated" && severity.is_none_or(|sev| e["severity"] == sev))
+            ev.iter().any(|e| {
+                e["index"] == index && e["transition"] == "activated" && severity.is_none_or(|sev| e["severity"] == sev)
+            })
         })
     };
     // Bounded by count (the harness's poll); the scenario reaches both
     // alarms by simulated day 6, about six seconds at the default speed.
     let s = poll_until("a warning and a stale-tag alarm", || {
-        snapshot().filter(|s| s["recent_events"].as_array().is_some_and(|ev| ev.iter().any(|e| e["severity"] == "warning" && e["index"] != "sensor_stale")) && active(s, "sensor_stale", None))
+        snapshot().filter(|s| {
+            s["recent_events"]
+                .as_array()
+                .is_some_and(|ev| ev.iter().any(|e| e["severity"] == "warning" && e["index"] != "sensor_stale"))
+                && active(s, "sensor_stale", None)
+        })
     });
-    let moved = s["components"].as_array().unwrap().iter().zip(&lf0).any(|(c, a)| c["creep_life_fraction"].as_f64().unwrap() > *a);
+    let moved = s["components"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .zip(&lf0)
+        .any(|(c, a)| c["creep_life_fraction"].as_f64().unwrap() > *a);
     assert!(moved, "life fractions moved");
     assert!(s["caution"].as_str().unwrap().contains("governing code"));
     let page = http::get(port, "/").unwrap();

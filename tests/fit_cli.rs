@@ -16,9 +16,7 @@ struct Cli {
 }
 
 fn parse(args: &[&str]) -> Result<FitCommand, String> {
-    Cli::try_parse_from(std::iter::once("fit").chain(args.iter().copied()))
-        .map(|c| c.cmd)
-        .map_err(|e| e.to_string())
+    Cli::try_parse_from(std::iter::once("fit").chain(args.iter().copied())).map(|c| c.cmd).map_err(|e| e.to_string())
 }
 
 /// Run a fit command; Ok(stdout) or Err(the full error chain).
@@ -30,9 +28,7 @@ fn run(args: &[&str]) -> Result<String, String> {
 }
 
 fn example(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("config/fit-examples")
-        .join(name)
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("config/fit-examples").join(name)
 }
 
 fn write(dir: &Path, name: &str, text: &str) -> String {
@@ -48,10 +44,7 @@ fn help_texts_are_valid_and_say_screening() {
     for sub in ["larson-miller", "norton"] {
         let e = parse(&[sub, "--help"]).unwrap_err();
         let flat = e.split_whitespace().collect::<Vec<_>>().join(" ");
-        assert!(
-            flat.contains("screening fit") && flat.contains("responsible engineer"),
-            "{e}"
-        );
+        assert!(flat.contains("screening fit") && flat.contains("responsible engineer"), "{e}");
     }
 }
 
@@ -93,17 +86,9 @@ fn larson_miller_example_writes_report_block_and_plot() {
     let svg = std::fs::read_to_string(&svg_path).unwrap();
     assert!(svg.starts_with("<svg") && svg.trim_end().ends_with("</svg>"));
     // One marker per test (25 in the example file) plus one per legend entry.
-    let tests = std::fs::read_to_string(&input)
-        .unwrap()
-        .lines()
-        .filter(|l| l.starts_with(char::is_numeric))
-        .count();
+    let tests = std::fs::read_to_string(&input).unwrap().lines().filter(|l| l.starts_with(char::is_numeric)).count();
     assert!(svg.matches("<circle").count() >= tests);
-    assert_eq!(
-        svg.matches("<polyline").count(),
-        3,
-        "mean and two minimum curves"
-    );
+    assert_eq!(svg.matches("<polyline").count(), 3, "mean and two minimum curves");
 }
 
 #[test]
@@ -139,10 +124,7 @@ fn larson_miller_json_and_fragment() {
     }
     let f: Fragment = toml::from_str(&std::fs::read_to_string(&toml_path).unwrap()).unwrap();
     assert_eq!(f.larson_miller.constant_c, 20.0);
-    assert_eq!(
-        v["toml"].as_str().unwrap(),
-        std::fs::read_to_string(&toml_path).unwrap()
-    );
+    assert_eq!(v["toml"].as_str().unwrap(), std::fs::read_to_string(&toml_path).unwrap());
     // °F and ksi were converted (NIST SP 811): the file spans 1000–1150 °F
     // and 10–42 ksi; 1000 °F = 810.93 K, 10 ksi = 68.94757 MPa.
     assert!((f.larson_miller.temperature_range_k[0] - (1000.0 + 459.67) / 1.8).abs() < 1e-9);
@@ -166,10 +148,7 @@ fn norton_example_writes_block_and_plot() {
         svg_path.to_str().unwrap(),
     ])
     .unwrap();
-    assert!(
-        out.contains("linear least squares in ln") && out.contains("Q, J/mol"),
-        "{out}"
-    );
+    assert!(out.contains("linear least squares in ln") && out.contains("Q, J/mol"), "{out}");
     #[derive(serde::Deserialize)]
     struct Block {
         norton: NortonLaw,
@@ -177,19 +156,9 @@ fn norton_example_writes_block_and_plot() {
     let b: Block = toml::from_str(&std::fs::read_to_string(&toml_path).unwrap()).unwrap();
     assert!(b.norton.n > 4.0 && b.norton.n < 6.0, "{}", b.norton.n);
     let svg = std::fs::read_to_string(&svg_path).unwrap();
-    assert_eq!(
-        svg.matches("<polyline").count(),
-        3,
-        "one line per test temperature"
-    );
-    let json = run(&[
-        "norton",
-        "--input",
-        example("creep-rate-tests.csv").to_str().unwrap(),
-        "--format",
-        "json",
-    ])
-    .unwrap();
+    assert_eq!(svg.matches("<polyline").count(), 3, "one line per test temperature");
+    let json =
+        run(&["norton", "--input", example("creep-rate-tests.csv").to_str().unwrap(), "--format", "json"]).unwrap();
     let v: serde_json::Value = serde_json::from_str(&json).unwrap();
     assert_eq!(v["fit"]["n_tests"], 12);
 }
@@ -278,16 +247,8 @@ fn bad_input_errors_name_file_line_and_problem() {
             assert!(e.contains(n), "{name}: error lacks {n:?}:\n{e}");
         }
     }
-    let e = run(&[
-        "larson-miller",
-        "--input",
-        d.join("nope.csv").to_str().unwrap(),
-    ])
-    .unwrap_err();
-    assert!(
-        e.contains("cannot read test file") && e.contains("nope.csv"),
-        "{e}"
-    );
+    let e = run(&["larson-miller", "--input", d.join("nope.csv").to_str().unwrap()]).unwrap_err();
+    assert!(e.contains("cannot read test file") && e.contains("nope.csv"), "{e}");
 }
 
 #[test]
@@ -304,10 +265,7 @@ fn bad_norton_input_errors() {
         (
             "one_t.csv",
             "temperature_c,stress_mpa,rate_per_h\n600,80,1e-7\n600,100,3e-7\n600,140,2e-6\n",
-            vec![
-                "all 3 tests (lines 2-4) are at one temperature",
-                "activation energy Q",
-            ],
+            vec!["all 3 tests (lines 2-4) are at one temperature", "activation energy Q"],
         ),
         (
             "one_s.csv",
@@ -322,11 +280,7 @@ fn bad_norton_input_errors() {
         (
             "coupled.csv",
             coupled.as_str(),
-            vec![
-                "stress and temperature vary together",
-                "lines 2-5",
-                "cannot be separated",
-            ],
+            vec!["stress and temperature vary together", "lines 2-5", "cannot be separated"],
         ),
         (
             "neg.csv",
@@ -358,27 +312,11 @@ fn bad_norton_input_errors() {
 fn bad_options_are_refused() {
     let input = example("rupture-tests.csv");
     let i = input.to_str().unwrap();
-    assert!(run(&["larson-miller", "--input", i, "--k=-1"])
-        .unwrap_err()
-        .contains("--k -1"));
-    assert!(run(&["larson-miller", "--input", i, "--constant", "0"])
-        .unwrap_err()
-        .contains("--constant 0"));
+    assert!(run(&["larson-miller", "--input", i, "--k=-1"]).unwrap_err().contains("--k -1"));
+    assert!(run(&["larson-miller", "--input", i, "--constant", "0"]).unwrap_err().contains("--constant 0"));
     assert!(run(&["larson-miller", "--input", i, "--order", "4"]).is_err());
-    assert!(
-        run(&["larson-miller", "--input", i, "--grade", "x"]).is_err(),
-        "--grade needs a melting point"
-    );
-    assert!(run(&[
-        "larson-miller",
-        "--input",
-        i,
-        "--melting-point-k",
-        "1700",
-        "--melting-point-c",
-        "1400"
-    ])
-    .is_err());
+    assert!(run(&["larson-miller", "--input", i, "--grade", "x"]).is_err(), "--grade needs a melting point");
+    assert!(run(&["larson-miller", "--input", i, "--melting-point-k", "1700", "--melting-point-c", "1400"]).is_err());
 }
 
 proptest::proptest! {

@@ -45,27 +45,11 @@ fn recovers_known_constants() {
 
     let noisy = parse_rate_tests(&synthetic_csv(2, 0.2), "noisy.csv").unwrap();
     let fit = fit_norton(&noisy.tests, &NortonOptions::default()).unwrap();
-    let (n_se, q_se, a_se) = (
-        fit.n_se.unwrap(),
-        fit.q_se_j_per_mol.unwrap(),
-        fit.ln_a_se.unwrap(),
-    );
+    let (n_se, q_se, a_se) = (fit.n_se.unwrap(), fit.q_se_j_per_mol.unwrap(), fit.ln_a_se.unwrap());
     assert!((fit.n - N).abs() < 3.0 * n_se, "n = {} ± {n_se}", fit.n);
-    assert!(
-        (fit.q_j_per_mol - Q).abs() < 3.0 * q_se,
-        "Q = {} ± {q_se}",
-        fit.q_j_per_mol
-    );
-    assert!(
-        (fit.ln_a - A.ln()).abs() < 3.0 * a_se,
-        "ln A = {} ± {a_se}",
-        fit.ln_a
-    );
-    assert!(
-        (0.7..1.3).contains(&(fit.see_ln.unwrap() / 0.2)),
-        "SEE {:?}",
-        fit.see_ln
-    );
+    assert!((fit.q_j_per_mol - Q).abs() < 3.0 * q_se, "Q = {} ± {q_se}", fit.q_j_per_mol);
+    assert!((fit.ln_a - A.ln()).abs() < 3.0 * a_se, "ln A = {} ± {a_se}", fit.ln_a);
+    assert!((0.7..1.3).contains(&(fit.see_ln.unwrap() / 0.2)), "SEE {:?}", fit.see_ln);
     assert!(fit.warnings.is_empty(), "{:?}", fit.warnings);
 }
 
@@ -77,18 +61,10 @@ fn matches_numpy_least_squares() {
     let dir = tempfile::tempdir().unwrap();
     let text = synthetic_csv(9, 0.25);
     let path = fit_support::write(dir.path(), "rates.csv", &text);
-    let fit = fit_norton(
-        &parse_rate_tests(&text, "rates.csv").unwrap().tests,
-        &NortonOptions::default(),
-    )
-    .unwrap();
+    let fit = fit_norton(&parse_rate_tests(&text, "rates.csv").unwrap().tests, &NortonOptions::default()).unwrap();
     let r = numpy_reference(serde_json::json!({"model": "norton", "csv": path}));
     let beta = [fit.ln_a, fit.n, fit.q_j_per_mol];
-    let se = [
-        fit.ln_a_se.unwrap(),
-        fit.n_se.unwrap(),
-        fit.q_se_j_per_mol.unwrap(),
-    ];
+    let se = [fit.ln_a_se.unwrap(), fit.n_se.unwrap(), fit.q_se_j_per_mol.unwrap()];
     assert_all_close("β", &beta, &floats(&r["beta"]), 1e-8, 0.0);
     assert_all_close("SE", &se, &floats(&r["se"]), 1e-8, 0.0);
     let cov = fit.covariance.as_ref().unwrap();
@@ -101,22 +77,12 @@ fn matches_numpy_least_squares() {
     }
     let see = fit.see_ln.unwrap();
     assert_close("SEE", see, r["see"].as_f64().unwrap(), 1e-8, 0.0);
-    assert_close(
-        "R²",
-        fit.r_squared.unwrap(),
-        r["r2"].as_f64().unwrap(),
-        1e-8,
-        0.0,
-    );
+    assert_close("R²", fit.r_squared.unwrap(), r["r2"].as_f64().unwrap(), 1e-8, 0.0);
     let res: Vec<f64> = fit.residuals.iter().map(|x| x.residual).collect();
     assert_all_close("residuals", &res, &floats(&r["residuals"]), 1e-8, see);
     let lev: Vec<f64> = fit.residuals.iter().map(|x| x.leverage).collect();
     assert_all_close("leverage", &lev, &floats(&r["leverage"]), 1e-8, 1.0);
-    let z: Vec<f64> = fit
-        .residuals
-        .iter()
-        .map(|x| x.standardized.unwrap())
-        .collect();
+    let z: Vec<f64> = fit.residuals.iter().map(|x| x.standardized.unwrap()).collect();
     assert_all_close("standardized", &z, &floats(&r["standardized"]), 1e-8, 1.0);
 }
 
@@ -129,51 +95,22 @@ fn matches_numpy_least_squares() {
 #[test]
 fn three_tests_solved_exactly() {
     let r3 = 1e-6 * 3f64.exp();
-    let text = format!(
-        "temperature_k,stress_mpa,rate_per_h\n800,100,1e-6\n800,200,3.2e-5\n850,100,{r3}\n"
-    );
-    let fit = fit_norton(
-        &parse_rate_tests(&text, "three.csv").unwrap().tests,
-        &NortonOptions::default(),
-    )
-    .unwrap();
+    let text = format!("temperature_k,stress_mpa,rate_per_h\n800,100,1e-6\n800,200,3.2e-5\n850,100,{r3}\n");
+    let fit = fit_norton(&parse_rate_tests(&text, "three.csv").unwrap().tests, &NortonOptions::default()).unwrap();
     assert!(fit.exact && fit.see_ln.is_none() && fit.q_se_j_per_mol.is_none());
     assert_close("n", fit.n, 5.0, 1e-10, 1.0);
     assert_close("Q", fit.q_j_per_mol, 40_800.0 * GAS_CONSTANT, 1e-10, 1.0);
-    assert_close(
-        "ln A",
-        fit.ln_a,
-        (1e-6f64).ln() - 5.0 * 100f64.ln() + 51.0,
-        1e-10,
-        1.0,
-    );
-    assert!(
-        fit.warnings
-            .iter()
-            .any(|w| w.contains("exactly three tests")),
-        "{:?}",
-        fit.warnings
-    );
-    assert!(
-        fit.warnings
-            .iter()
-            .any(|w| w.contains("only two temperatures")),
-        "{:?}",
-        fit.warnings
-    );
+    assert_close("ln A", fit.ln_a, (1e-6f64).ln() - 5.0 * 100f64.ln() + 51.0, 1e-10, 1.0);
+    assert!(fit.warnings.iter().any(|w| w.contains("exactly three tests")), "{:?}", fit.warnings);
+    assert!(fit.warnings.iter().any(|w| w.contains("only two temperatures")), "{:?}", fit.warnings);
 }
 
 // (5) Round trip: the [norton] block deserializes into `NortonLaw` and the
 // physics core gives back the fitted rates.
 #[test]
 fn norton_block_round_trip() {
-    let fit = fit_norton(
-        &parse_rate_tests(&synthetic_csv(4, 0.2), "rt.csv")
-            .unwrap()
-            .tests,
-        &NortonOptions::default(),
-    )
-    .unwrap();
+    let fit = fit_norton(&parse_rate_tests(&synthetic_csv(4, 0.2), "rt.csv").unwrap().tests, &NortonOptions::default())
+        .unwrap();
     #[derive(serde::Deserialize)]
     struct Block {
         norton: lifeledger::physics::material::NortonLaw,
@@ -182,13 +119,7 @@ fn norton_block_round_trip() {
     assert_eq!(b.norton, fit.law("rt.csv"));
     for r in &fit.residuals {
         let rate = creep_rate_per_h(&b.norton, r.stress_mpa, r.temperature_k);
-        assert_close(
-            "rate",
-            rate,
-            fit.rate_per_h(r.stress_mpa, r.temperature_k),
-            1e-12,
-            0.0,
-        );
+        assert_close("rate", rate, fit.rate_per_h(r.stress_mpa, r.temperature_k), 1e-12, 0.0);
         assert_close("ln rate", rate.ln(), r.ln_fitted, 1e-12, 1.0);
     }
 }

@@ -26,11 +26,7 @@ fn poly(c: &[f64], x: f64) -> f64 {
 #[test]
 fn library_has_at_least_six_grades() {
     let all = grades();
-    println!(
-        "{} grades: {:?}",
-        all.len(),
-        all.iter().map(|m| &m.grade).collect::<Vec<_>>()
-    );
+    println!("{} grades: {:?}", all.len(), all.iter().map(|m| &m.grade).collect::<Vec<_>>());
     assert!(all.len() >= 6, "only {} grades", all.len());
 }
 
@@ -52,9 +48,7 @@ fn common_grades_are_found_by_grade_or_alias_case_insensitively() {
         ("TP347H", "347H"),
         ("hp-nb", "HP-Nb"),
     ] {
-        let m = lib
-            .get(key)
-            .unwrap_or_else(|| panic!("{key} not in library"));
+        let m = lib.get(key).unwrap_or_else(|| panic!("{key} not in library"));
         assert_eq!(m.grade, grade, "{key}");
     }
     assert!(lib.get("no-such-grade").is_none());
@@ -67,11 +61,7 @@ fn every_grade_and_alias_resolves_to_itself() {
         for key in std::iter::once(&m.grade).chain(m.aliases.iter()) {
             for k in [key.clone(), key.to_lowercase(), key.to_uppercase()] {
                 let got = lib.get(&k).unwrap_or_else(|| panic!("{k} not found"));
-                assert_eq!(
-                    got.grade, m.grade,
-                    "alias {k} of {} resolves to {}",
-                    m.grade, got.grade
-                );
+                assert_eq!(got.grade, m.grade, "alias {k} of {} resolves to {}", m.grade, got.grade);
             }
         }
     }
@@ -95,12 +85,7 @@ fn mean_curve_reproduces_reference_rupture_strengths() {
         for r in &m.reference_rupture_strengths {
             let t_k = r.temperature_c + 273.15;
             let s = rupture_strength_mpa(&m.larson_miller, t_k, r.hours, CurveBasis::Mean)
-                .unwrap_or_else(|| {
-                    panic!(
-                        "{}: no strength at {} C {} h",
-                        m.grade, r.temperature_c, r.hours
-                    )
-                });
+                .unwrap_or_else(|| panic!("{}: no strength at {} C {} h", m.grade, r.temperature_c, r.hours));
             let err = s / r.stress_mpa - 1.0;
             println!(
                 "{:<14} {:>6.0} C {:>8.0} h  ref {:>6.1} MPa  curve {:>6.1} MPa  {:+6.2} %   [{}]",
@@ -113,10 +98,7 @@ fn mean_curve_reproduces_reference_rupture_strengths() {
                 r.source
             );
             if err.abs() > worst.0 {
-                worst = (
-                    err.abs(),
-                    format!("{} at {} C, {} h", m.grade, r.temperature_c, r.hours),
-                );
+                worst = (err.abs(), format!("{} at {} C, {} h", m.grade, r.temperature_c, r.hours));
             }
             assert!(
                 err.abs() <= FIT_TOLERANCE,
@@ -143,11 +125,7 @@ fn minimum_curve_lies_below_mean_curve() {
                 let mean = rupture_strength_mpa(lm, t, hours, CurveBasis::Mean);
                 let min = rupture_strength_mpa(lm, t, hours, CurveBasis::Minimum);
                 if let (Some(mean), Some(min)) = (mean, min) {
-                    assert!(
-                        min < mean,
-                        "{}: {t} K {hours} h: minimum {min} >= mean {mean}",
-                        m.grade
-                    );
+                    assert!(min < mean, "{}: {t} K {hours} h: minimum {min} >= mean {mean}", m.grade);
                 }
             }
         }
@@ -156,13 +134,7 @@ fn minimum_curve_lies_below_mean_curve() {
             let t = r.temperature_c + 273.15;
             let mean = rupture_strength_mpa(lm, t, r.hours, CurveBasis::Mean).unwrap();
             let min = rupture_strength_mpa(lm, t, r.hours, CurveBasis::Minimum).unwrap();
-            assert!(
-                min < mean,
-                "{}: {} C {} h",
-                m.grade,
-                r.temperature_c,
-                r.hours
-            );
+            assert!(min < mean, "{}: {} C {} h", m.grade, r.temperature_c, r.hours);
         }
     }
 }
@@ -179,12 +151,7 @@ fn master_curve_parameter_falls_with_stress_over_its_range() {
         for i in 0..=n {
             let x = x0 + (x1 - x0) * i as f64 / n as f64;
             let p = poly(&lm.coefficients, x);
-            assert!(
-                p < prev,
-                "{}: P not decreasing at {:.2} MPa",
-                m.grade,
-                10f64.powf(x)
-            );
+            assert!(p < prev, "{}: P not decreasing at {:.2} MPa", m.grade, 10f64.powf(x));
             prev = p;
         }
     }
@@ -195,30 +162,19 @@ fn every_value_has_a_source() {
     for m in grades() {
         let g = &m.grade;
         assert!(!g.trim().is_empty());
-        assert!(
-            !m.melting_point_k.source.trim().is_empty(),
-            "{g}: melting point"
-        );
+        assert!(!m.melting_point_k.source.trim().is_empty(), "{g}: melting point");
         if let Some(s) = &m.creep_threshold_k {
             assert!(!s.source.trim().is_empty(), "{g}: creep threshold");
         }
         if let Some(s) = &m.hardness_hv {
             assert!(!s.source.trim().is_empty(), "{g}: hardness");
         }
-        assert!(
-            !m.larson_miller.source.trim().is_empty(),
-            "{g}: Larson-Miller"
-        );
+        assert!(!m.larson_miller.source.trim().is_empty(), "{g}: Larson-Miller");
         if let Some(n) = &m.norton {
             assert!(!n.source.trim().is_empty(), "{g}: Norton");
         }
         for r in &m.reference_rupture_strengths {
-            assert!(
-                !r.source.trim().is_empty(),
-                "{g}: reference {} C {} h",
-                r.temperature_c,
-                r.hours
-            );
+            assert!(!r.source.trim().is_empty(), "{g}: reference {} C {} h", r.temperature_c, r.hours);
         }
     }
 }
@@ -228,26 +184,14 @@ fn data_are_physically_sane() {
     for m in grades() {
         let g = &m.grade;
         let lm = &m.larson_miller;
-        assert!(
-            (2..=4).contains(&lm.coefficients.len()),
-            "{g}: {} coefficients",
-            lm.coefficients.len()
-        );
-        assert!(
-            (10.0..=40.0).contains(&lm.constant_c),
-            "{g}: C = {}",
-            lm.constant_c
-        );
+        assert!((2..=4).contains(&lm.coefficients.len()), "{g}: {} coefficients", lm.coefficients.len());
+        assert!((10.0..=40.0).contains(&lm.constant_c), "{g}: C = {}", lm.constant_c);
         let [t0, t1] = lm.temperature_range_k;
         assert!(t1 > t0, "{g}: temperature range");
         // The ranges are the span of the reference points.
         for r in &m.reference_rupture_strengths {
             let t = r.temperature_c + 273.15;
-            assert!(
-                t >= t0 - 1e-6 && t <= t1 + 1e-6,
-                "{g}: {} C outside temperature range",
-                r.temperature_c
-            );
+            assert!(t >= t0 - 1e-6 && t <= t1 + 1e-6, "{g}: {} C outside temperature range", r.temperature_c);
             assert!(
                 r.stress_mpa >= lm.stress_range_mpa[0] && r.stress_mpa <= lm.stress_range_mpa[1],
                 "{g}: {} MPa outside stress range",
@@ -258,22 +202,12 @@ fn data_are_physically_sane() {
         let tm = m.melting_point_k.value;
         assert!((1400.0..2000.0).contains(&tm), "{g}: melting point {tm} K");
         let thr = m.creep_threshold_k();
-        assert!(
-            thr > 500.0 && thr < t0,
-            "{g}: creep threshold {thr} K not below the data range {t0} K"
-        );
+        assert!(thr > 500.0 && thr < t0, "{g}: creep threshold {thr} K not below the data range {t0} K");
         if let Some(h) = &m.hardness_hv {
-            assert!(
-                (80.0..400.0).contains(&h.value),
-                "{g}: hardness {}",
-                h.value
-            );
+            assert!((80.0..400.0).contains(&h.value), "{g}: hardness {}", h.value);
         }
         if let Some(n) = &m.norton {
-            assert!(
-                n.a_per_h > 0.0 && n.n >= 1.0 && n.n <= 15.0 && n.q_j_per_mol > 1.0e5,
-                "{g}: Norton {n:?}"
-            );
+            assert!(n.a_per_h > 0.0 && n.n >= 1.0 && n.n <= 15.0 && n.q_j_per_mol > 1.0e5, "{g}: Norton {n:?}");
         }
     }
 }

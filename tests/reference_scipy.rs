@@ -80,9 +80,11 @@ print(json.dumps({{"life_fraction": d, "creep_strain": s}}))
         nn = norton.n,
         q = norton.q_j_per_mol,
     );
-    let out = Command::new("python3").arg("-c").arg(&script).output().expect(
-        "python3 is needed for this reference test (tests/run installs numpy and scipy)",
-    );
+    let out = Command::new("python3")
+        .arg("-c")
+        .arg(&script)
+        .output()
+        .expect("python3 is needed for this reference test (tests/run installs numpy and scipy)");
     assert!(out.status.success(), "python failed: {}", String::from_utf8_lossy(&out.stderr));
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     let d_ref = v["life_fraction"].as_f64().unwrap();

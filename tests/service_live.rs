@@ -96,7 +96,11 @@ fn samples(minutes: i64) -> Vec<(String, i64, f64)> {
     for m in 0..minutes {
         let ts = T0 + 60 * m;
         let x = m as f64;
-        let te = if m < 120 { 300.0 + 2.3 * x } else { 568.0 + 6.0 * (x / 37.0).sin() + if (300..360).contains(&m) { 25.0 } else { 0.0 } };
+        let te = if m < 120 {
+            300.0 + 2.3 * x
+        } else {
+            568.0 + 6.0 * (x / 37.0).sin() + if (300..360).contains(&m) { 25.0 } else { 0.0 }
+        };
         let pt = 150.0 + 20.0 * (x / 90.0).cos();
         v.push(("TE-1".into(), ts, te));
         v.push(("PT-1".into(), ts, pt));
@@ -186,7 +190,9 @@ impl Service {
     fn wait_until_integrated(&self, last_ts: i64) -> serde_json::Value {
         let want = chrono::DateTime::from_timestamp(last_ts, 0).unwrap().format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string();
         poll_until("the ledger to reach the last sample", || {
-            self.snapshot().filter(|s| s["components"].as_array().is_some_and(|c| c.iter().all(|c| c["integrated_to"] == want.as_str())))
+            self.snapshot().filter(|s| {
+                s["components"].as_array().is_some_and(|c| c.iter().all(|c| c["integrated_to"] == want.as_str()))
+            })
         })
     }
 
@@ -378,7 +384,8 @@ fn sigterm_stops_cleanly_and_restart_resumes() {
     let end = text.find("[mqtt]").unwrap();
     std::fs::write(&cfg, format!("{}{}", &text[..cut], &text[end..])).unwrap();
     signal(&svc.child, "HUP");
-    let after = poll_until("reload", || svc.snapshot().filter(|v| v["components"].as_array().is_some_and(|c| c.len() == 1)));
+    let after =
+        poll_until("reload", || svc.snapshot().filter(|v| v["components"].as_array().is_some_and(|c| c.len() == 1)));
     assert_eq!(after["retired_components"][0], "SUPPORT");
     assert_eq!(after["components"][0]["creep_life_fraction"], live["components"][0]["creep_life_fraction"]);
     assert!(svc.sigterm().success());
@@ -436,7 +443,8 @@ fn alarms_go_out_on_mqtt_and_can_be_acknowledged() {
             "lifeledger/commands",
             QoS::AtLeastOnce,
             false,
-            br#"{"action":"acknowledge","component":"SH-TUBE","index":"creep_life_fraction","by":"test operator"}"#.to_vec(),
+            br#"{"action":"acknowledge","component":"SH-TUBE","index":"creep_life_fraction","by":"test operator"}"#
+                .to_vec(),
         )
         .unwrap();
     poll_until("the acknowledged state", || {
@@ -518,7 +526,9 @@ fn outbox_over_quota_pauses_intake_and_resumes_without_loss() {
     let http_port = free_port();
     // A tiny quota: a few dozen points.
     let cfg = config(dir.path(), broker.port, http_port, Some(&url), "");
-    let text = std::fs::read_to_string(&cfg).unwrap().replace("backoff_max_s = 0.5\n", "backoff_max_s = 0.5\noutbox_quota_bytes = 20000\n");
+    let text = std::fs::read_to_string(&cfg)
+        .unwrap()
+        .replace("backoff_max_s = 0.5\n", "backoff_max_s = 0.5\noutbox_quota_bytes = 20000\n");
     std::fs::write(&cfg, text).unwrap();
     let s = samples(600);
     let svc = Service::start(&cfg, http_port);
@@ -535,7 +545,8 @@ fn outbox_over_quota_pauses_intake_and_resumes_without_loss() {
     let a1 = held["engine"]["accepted"].as_u64().unwrap();
     assert!(a1 < s.len() as u64, "intake paused before the end of the stream");
     let alarm = poll_until("the service-health alarm", || {
-        svc.snapshot().filter(|v| v["recent_events"].as_array().is_some_and(|e| e.iter().any(|e| e["index"] == "service_health")))
+        svc.snapshot()
+            .filter(|v| v["recent_events"].as_array().is_some_and(|e| e.iter().any(|e| e["index"] == "service_health")))
     });
     assert_eq!(alarm["holding"], true);
     // The database comes back: the outbox drains, intake resumes, and every
@@ -545,7 +556,9 @@ fn outbox_over_quota_pauses_intake_and_resumes_without_loss() {
     let live = svc.wait_until_integrated(s.last().unwrap().1);
     assert_eq!(live["engine"]["accepted"].as_u64().unwrap(), s.len() as u64);
     compare(&live, &replay_json(&cfg, &csv(dir.path(), &s)), 0.0);
-    let done = poll_until("the outbox to drain", || svc.snapshot().filter(|v| v["outbox_lines"] == 0 && v["holding"] == false));
+    let done = poll_until("the outbox to drain", || {
+        svc.snapshot().filter(|v| v["outbox_lines"] == 0 && v["holding"] == false)
+    });
     vm.flush();
     let n: usize = vm.export("{__name__=\"component_state_unmonitored_h\"}").iter().map(|e| e.samples().len()).sum();
     assert_eq!(n as u64, done["service"]["series_points"].as_u64().unwrap());

@@ -38,23 +38,13 @@ fn mosquitto_starts_stops_and_restarts_on_its_port() {
 
     let mut persistent = Mosquitto::start_persistent();
     persistent.restart();
-    assert_eq!(
-        mqtt_connect(persistent.port).unwrap(),
-        0,
-        "{}",
-        persistent.log()
-    );
+    assert_eq!(mqtt_connect(persistent.port).unwrap(), 0, "{}", persistent.log());
 }
 
 #[test]
 fn victoria_metrics_keeps_its_data_across_stop_and_start() {
     let mut vm = VictoriaMetrics::start();
-    let r = http::post(
-        vm.port,
-        "/api/v2/write?precision=ns",
-        b"h v=1 1700000000000000000",
-    )
-    .unwrap();
+    let r = http::post(vm.port, "/api/v2/write?precision=ns", b"h v=1 1700000000000000000").unwrap();
     assert_eq!(r.status, 204, "{}", r.text());
     vm.stop();
     assert!(!vm.is_running());

@@ -39,12 +39,8 @@ fn by_series(vm: &VictoriaMetrics, selector: &str) -> BTreeMap<String, Vec<(i64,
     vm.export(selector)
         .into_iter()
         .map(|s| {
-            let labels: Vec<String> = s
-                .metric
-                .iter()
-                .filter(|(k, _)| *k != "__name__")
-                .map(|(k, v)| format!("{k}={v}"))
-                .collect();
+            let labels: Vec<String> =
+                s.metric.iter().filter(|(k, _)| *k != "__name__").map(|(k, v)| format!("{k}={v}")).collect();
             (format!("{}{{{}}}", s.name(), labels.join(",")), s.samples())
         })
         .collect()
@@ -66,32 +62,14 @@ async fn points_come_back_with_values_and_event_timestamps() {
     ];
     w.write_lines(&lines).await.expect("write");
 
-    let got = by_series(
-        &vm,
-        r#"{__name__=~"component_state_.*|alarm_threshold_.*"}"#,
-    );
+    let got = by_series(&vm, r#"{__name__=~"component_state_.*|alarm_threshold_.*"}"#);
     let t0_ms = T0_NS / MS;
     let want: BTreeMap<String, Vec<(i64, f64)>> = [
-        (
-            "alarm_threshold_value{component=SH 1,index=creep_life_fraction,severity=warning}",
-            vec![(t0_ms, 0.6)],
-        ),
-        (
-            "component_state_creep_life_fraction{component=RH,2,plant=demo}",
-            vec![(t0_ms, 0.5)],
-        ),
-        (
-            "component_state_creep_life_fraction{component=SH 1,plant=demo}",
-            vec![(t0_ms, 0.125), (t0_ms + 1, 0.25)],
-        ),
-        (
-            "component_state_unmonitored_h{component=RH,2,plant=demo}",
-            vec![(t0_ms, 0.0)],
-        ),
-        (
-            "component_state_unmonitored_h{component=SH 1,plant=demo}",
-            vec![(t0_ms, 0.0), (t0_ms + 1, 1.0)],
-        ),
+        ("alarm_threshold_value{component=SH 1,index=creep_life_fraction,severity=warning}", vec![(t0_ms, 0.6)]),
+        ("component_state_creep_life_fraction{component=RH,2,plant=demo}", vec![(t0_ms, 0.5)]),
+        ("component_state_creep_life_fraction{component=SH 1,plant=demo}", vec![(t0_ms, 0.125), (t0_ms + 1, 0.25)]),
+        ("component_state_unmonitored_h{component=RH,2,plant=demo}", vec![(t0_ms, 0.0)]),
+        ("component_state_unmonitored_h{component=SH 1,plant=demo}", vec![(t0_ms, 0.0), (t0_ms + 1, 1.0)]),
     ]
     .into_iter()
     .map(|(k, v)| (k.to_string(), v))
@@ -100,10 +78,7 @@ async fn points_come_back_with_values_and_event_timestamps() {
     // no label for org or bucket; nanoseconds trimmed to milliseconds.
     assert_eq!(got, want);
 
-    let q = vm.query(
-        r#"component_state_creep_life_fraction{component="SH 1"}"#,
-        (T0_NS + 500 * MS) as f64 / 1e9,
-    );
+    let q = vm.query(r#"component_state_creep_life_fraction{component="SH 1"}"#, (T0_NS + 500 * MS) as f64 / 1e9);
     assert_eq!(q["data"]["result"][0]["value"][1], "0.25", "{q}");
 }
 
@@ -111,17 +86,13 @@ async fn points_come_back_with_values_and_event_timestamps() {
 async fn a_retried_batch_overwrites_itself() {
     let vm = VictoriaMetrics::start();
     let w = writer_for(&vm);
-    let batch: Vec<String> = (0..50)
-        .map(|i| state_line("SH 1", i, i as f64 / 100.0))
-        .collect();
+    let batch: Vec<String> = (0..50).map(|i| state_line("SH 1", i, i as f64 / 100.0)).collect();
 
     w.write_lines(&batch).await.expect("first write");
     let once = by_series(&vm, "component_state_creep_life_fraction");
     // At-least-once delivery: the same batch again, and an overlapping one.
     w.write_lines(&batch).await.expect("retried write");
-    w.write_lines(&batch[25..])
-        .await
-        .expect("overlapping write");
+    w.write_lines(&batch[25..]).await.expect("overlapping write");
     let thrice = by_series(&vm, "component_state_creep_life_fraction");
 
     assert_eq!(once.values().next().map(Vec::len), Some(50));
@@ -132,9 +103,7 @@ async fn a_retried_batch_overwrites_itself() {
 async fn an_outage_is_retryable_and_survived() {
     let mut vm = VictoriaMetrics::start();
     let w = writer_for(&vm);
-    w.write_lines(&[state_line("SH 1", 0, 0.1)])
-        .await
-        .expect("write before outage");
+    w.write_lines(&[state_line("SH 1", 0, 0.1)]).await.expect("write before outage");
 
     vm.stop();
     let during = vec![state_line("SH 1", 1, 0.2)];
@@ -151,10 +120,7 @@ async fn an_outage_is_retryable_and_survived() {
 
     let got = vm.export("component_state_creep_life_fraction");
     assert_eq!(got.len(), 1, "{got:?}");
-    assert_eq!(
-        got[0].samples(),
-        vec![(T0_NS / MS, 0.1), (T0_NS / MS + 1, 0.2)]
-    );
+    assert_eq!(got[0].samples(), vec![(T0_NS / MS, 0.1), (T0_NS / MS + 1, 0.2)]);
 }
 
 #[tokio::test]
@@ -162,12 +128,8 @@ async fn a_full_batch_arrives_whole() {
     let vm = VictoriaMetrics::start();
     let w = writer_for(&vm);
     let s = DatabaseSettings::new(&vm.url(), "plant", "lifeledger");
-    let batch: Vec<String> = (0..s.batch_lines as i64)
-        .map(|i| state_line("SH 1", i, i as f64 * 1e-4))
-        .collect();
-    w.write_lines(&batch)
-        .await
-        .expect("write a default-size batch");
+    let batch: Vec<String> = (0..s.batch_lines as i64).map(|i| state_line("SH 1", i, i as f64 * 1e-4)).collect();
+    w.write_lines(&batch).await.expect("write a default-size batch");
     // Big enough that the export answer comes chunked: exercises the
     // harness's decoder too.
     let got = vm.export("component_state_creep_life_fraction");
@@ -176,10 +138,6 @@ async fn a_full_batch_arrives_whole() {
     // VictoriaMetrics stores floats as decimals with about 15 significant
     // digits: 0.43210000000000004 comes back as 0.4321.
     let sent = 4321.0 * 1e-4;
-    assert!(
-        (got[0].values[4321] - sent).abs() <= 1e-12 * sent,
-        "{}",
-        got[0].values[4321]
-    );
+    assert!((got[0].values[4321] - sent).abs() <= 1e-12 * sent, "{}", got[0].values[4321]);
     assert_eq!(got[0].timestamps[4321], T0_NS / MS + 4321);
 }

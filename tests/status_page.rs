@@ -128,7 +128,11 @@ fn samples(minutes: i64) -> Vec<(String, i64, f64)> {
     for m in 0..minutes {
         let ts = T0 + 60 * m;
         let x = m as f64;
-        let te = if m < 120 { 300.0 + 2.3 * x } else { 568.0 + 6.0 * (x / 37.0).sin() + if (300..360).contains(&m) { 25.0 } else { 0.0 } };
+        let te = if m < 120 {
+            300.0 + 2.3 * x
+        } else {
+            568.0 + 6.0 * (x / 37.0).sin() + if (300..360).contains(&m) { 25.0 } else { 0.0 }
+        };
         let te2 = if m < 120 { 300.0 + 2.2 * x } else { 562.0 + 3.0 * (x / 53.0).cos() };
         let pt = 150.0 + 20.0 * (x / 90.0).cos();
         v.push(("TE-1".into(), ts, te));
@@ -202,8 +206,9 @@ impl Service {
     fn wait_until_integrated(&self, last_ts: i64) -> serde_json::Value {
         let want = chrono::DateTime::from_timestamp(last_ts, 0).unwrap().format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string();
         poll_until("the ledger to reach the last sample", || {
-            self.get_json("/api/components")
-                .filter(|s| s["components"].as_array().is_some_and(|c| c.iter().all(|c| c["integrated_to"] == want.as_str())))
+            self.get_json("/api/components").filter(|s| {
+                s["components"].as_array().is_some_and(|c| c.iter().all(|c| c["integrated_to"] == want.as_str()))
+            })
         })
     }
 }
@@ -269,7 +274,11 @@ fn screenshot(port: u16, path: &str, file: &str, size: &str) -> PathBuf {
         &[&format!("--screenshot={}", png.display()), &format!("--window-size={size}")],
     );
     let bytes = std::fs::read(&png).unwrap_or_else(|e| panic!("no screenshot {}: {e}", png.display()));
-    assert!(bytes.starts_with(b"\x89PNG\r\n\x1a\n") && bytes.len() > 10_000, "{} is not a real screenshot", png.display());
+    assert!(
+        bytes.starts_with(b"\x89PNG\r\n\x1a\n") && bytes.len() > 10_000,
+        "{} is not a real screenshot",
+        png.display()
+    );
     png
 }
 
@@ -321,7 +330,8 @@ fn worst_first(snap: &serde_json::Value) -> Vec<String> {
         .iter()
         .map(|c| {
             let name = c["component"].as_str().unwrap().to_string();
-            let sev = alarms.iter().find(|a| a["component"] == name.as_str()).map_or(0, |a| sev_rank(&a["worst_severity"]));
+            let sev =
+                alarms.iter().find(|a| a["component"] == name.as_str()).map_or(0, |a| sev_rank(&a["worst_severity"]));
             let worst = c["creep_life_fraction"].as_f64().unwrap().max(c["wear_index"].as_f64().unwrap());
             (sev, worst, name)
         })
@@ -418,7 +428,9 @@ fn component_page_shows_trends_histogram_alarms_and_material_sources() {
     assert!(dom.contains("<h1 id=\"component-name\">SH-TUBE</h1>"));
     // Trend SVG with a drawn line for each quantity.
     for key in ["metal_temperature_c", "pressure_mpa", "hoop_stress_mpa", "creep_life_fraction"] {
-        let at = dom.find(&format!("<svg class=\"chart\" id=\"trend-{key}\"")).unwrap_or_else(|| panic!("no trend chart for {key}"));
+        let at = dom
+            .find(&format!("<svg class=\"chart\" id=\"trend-{key}\""))
+            .unwrap_or_else(|| panic!("no trend chart for {key}"));
         let svg = &dom[at..at + dom[at..].find("</svg>").unwrap()];
         assert!(svg.contains("<path class=\"line") && svg.contains("d=\"M"), "trend {key} has no line");
     }

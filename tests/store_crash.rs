@@ -45,32 +45,17 @@ fn write_until_killed(path: &Path) -> ! {
         k += 1;
         let state = format!(r#"{{"n":{k}}}"#);
         let mut components = vec![("c".to_string(), state.clone())];
-        components.extend((0..PADDING).map(|i| {
-            (
-                format!("pad-{i:03}"),
-                format!(r#"{{"n":{k},"f":"{filler}"}}"#),
-            )
-        }));
+        components.extend((0..PADDING).map(|i| (format!("pad-{i:03}"), format!(r#"{{"n":{k},"f":"{filler}"}}"#))));
         let one = |key: &str| vec![(key.to_string(), state.clone())];
         let (tags, alarms, meta) = (one("t"), one("c/creep"), one("commits"));
         let outbox = vec![k.to_string()];
         store
-            .commit(&Commit {
-                components: &components,
-                tags: &tags,
-                alarms: &alarms,
-                meta: &meta,
-                outbox: &outbox,
-            })
+            .commit(&Commit { components: &components, tags: &tags, alarms: &alarms, meta: &meta, outbox: &outbox })
             .expect("writer commits");
         if k % DRAIN_EVERY == 0 {
-            let batch = store
-                .outbox_batch(3, usize::MAX)
-                .expect("writer reads the outbox");
+            let batch = store.outbox_batch(3, usize::MAX).expect("writer reads the outbox");
             let last = batch.last().expect("the outbox is never empty here").0;
-            store
-                .outbox_remove_through(last)
-                .expect("writer drains the outbox");
+            store.outbox_remove_through(last).expect("writer drains the outbox");
         }
         // Reported only after the commit returned, so it must survive.
         println!("{MARK}committed {k}");
@@ -100,18 +85,8 @@ fn read_consistent(store: &Store) -> Ledger {
     };
     let n = n_of(c);
     assert_eq!(loaded.components.len(), PADDING + 1);
-    for (name, json) in loaded
-        .components
-        .iter()
-        .chain(&loaded.tags)
-        .chain(&loaded.alarms)
-        .chain(&loaded.meta)
-    {
-        assert_eq!(
-            n_of(json),
-            n,
-            "{name} is from another commit than component c (n = {n})"
-        );
+    for (name, json) in loaded.components.iter().chain(&loaded.tags).chain(&loaded.alarms).chain(&loaded.meta) {
+        assert_eq!(n_of(json), n, "{name} is from another commit than component c (n = {n})");
     }
 
     let lines: Vec<u64> = store
@@ -120,26 +95,15 @@ fn read_consistent(store: &Store) -> Ledger {
         .into_iter()
         .map(|(_, line)| line.parse().unwrap())
         .collect();
-    assert_eq!(
-        lines.last().copied(),
-        Some(n),
-        "the newest outbox line is from the same commit as the state"
-    );
+    assert_eq!(lines.last().copied(), Some(n), "the newest outbox line is from the same commit as the state");
     let removed = lines[0] - 1;
     let want: Vec<u64> = (removed + 1..=n).collect();
-    assert_eq!(
-        lines, want,
-        "the outbox is the commits since the last removal, in order"
-    );
+    assert_eq!(lines, want, "the outbox is the commits since the last removal, in order");
     assert_eq!(n, lines.len() as u64 + removed);
 
     let stats = store.outbox_stats().unwrap();
     let bytes: u64 = lines.iter().map(|l| l.to_string().len() as u64).sum();
-    assert_eq!(
-        (stats.lines, stats.bytes),
-        (lines.len() as u64, bytes),
-        "outbox totals match the lines"
-    );
+    assert_eq!((stats.lines, stats.bytes), (lines.len() as u64, bytes), "outbox totals match the lines");
     Ledger { n, removed }
 }
 
@@ -170,9 +134,7 @@ fn a_killed_writer_leaves_state_and_outbox_from_the_same_commit() {
         while seen < wanted {
             let line = lines
                 .next()
-                .unwrap_or_else(|| {
-                    panic!("round {round}: the writer stopped before reporting {wanted} commits")
-                })
+                .unwrap_or_else(|| panic!("round {round}: the writer stopped before reporting {wanted} commits"))
                 .unwrap();
             let report = line.split_once(MARK).map_or("", |(_, r)| r);
             if let Some(k) = report.strip_prefix("start ") {
@@ -192,11 +154,7 @@ fn a_killed_writer_leaves_state_and_outbox_from_the_same_commit() {
                 reported = Some(k.parse().unwrap());
             }
         }
-        assert_eq!(
-            started,
-            Some(previous.n),
-            "round {round}: the writer carried on from the last ledger"
-        );
+        assert_eq!(started, Some(previous.n), "round {round}: the writer carried on from the last ledger");
 
         let store = Store::open(&path).unwrap();
         let ledger = read_consistent(&store);
@@ -207,15 +165,8 @@ fn a_killed_writer_leaves_state_and_outbox_from_the_same_commit() {
             ledger.n
         );
         // At most one commit can have landed after the last report.
-        assert!(
-            ledger.n <= reported + 1,
-            "round {round}: the ledger ends at {} after report {reported}",
-            ledger.n
-        );
-        assert!(
-            ledger.removed >= previous.removed,
-            "round {round}: removed lines came back"
-        );
+        assert!(ledger.n <= reported + 1, "round {round}: the ledger ends at {} after report {reported}", ledger.n);
+        assert!(ledger.removed >= previous.removed, "round {round}: removed lines came back");
         previous = ledger;
     }
 }

@@ -40,14 +40,8 @@ fn noise(len: usize, mut seed: u64) -> Vec<u8> {
 
 fn assert_names_file(err: &StoreError, path: &Path) {
     let text = err.to_string();
-    assert!(
-        text.contains(&path.display().to_string()),
-        "error must name the file: {text}"
-    );
-    assert!(
-        text.contains("not changed"),
-        "error must say the file was kept: {text}"
-    );
+    assert!(text.contains(&path.display().to_string()), "error must name the file: {text}");
+    assert!(text.contains("not changed"), "error must say the file was kept: {text}");
 }
 
 #[test]
@@ -60,11 +54,7 @@ fn a_file_of_random_bytes_is_refused_and_untouched() {
     let err = Store::open(&path).unwrap_err();
     assert!(matches!(err, StoreError::NotSqlite { .. }), "{err}");
     assert_names_file(&err, &path);
-    assert_eq!(
-        listing(dir.path()),
-        before,
-        "no byte changed and no file added"
-    );
+    assert_eq!(listing(dir.path()), before, "no byte changed and no file added");
 }
 
 #[test]
@@ -98,28 +88,14 @@ fn a_ledger_with_a_damaged_page_is_refused_and_untouched() {
     let path = dir.path().join("ledger.db");
     {
         let mut store = Store::open(&path).unwrap();
-        let components: Vec<(String, String)> = (0..2000)
-            .map(|i| {
-                (
-                    format!("c{i:04}"),
-                    format!(r#"{{"n":{i},"pad":"{}"}}"#, "x".repeat(100)),
-                )
-            })
-            .collect();
-        store
-            .commit(&Commit {
-                components: &components,
-                ..Default::default()
-            })
-            .unwrap();
+        let components: Vec<(String, String)> =
+            (0..2000).map(|i| (format!("c{i:04}"), format!(r#"{{"n":{i},"pad":"{}"}}"#, "x".repeat(100)))).collect();
+        store.commit(&Commit { components: &components, ..Default::default() }).unwrap();
     }
     // Closing the last connection checkpointed the log into the main file.
     let mut content = bytes(&path);
     let page_size = 4096;
-    assert!(
-        content.len() > 10 * page_size,
-        "the ledger spans many pages"
-    );
+    assert!(content.len() > 10 * page_size, "the ledger spans many pages");
     for page in [3, 6, 9] {
         let at = page * page_size;
         content[at..at + 64].copy_from_slice(&noise(64, page as u64 + 1));
@@ -129,10 +105,7 @@ fn a_ledger_with_a_damaged_page_is_refused_and_untouched() {
     let err = Store::open(&path).unwrap_err();
     assert!(matches!(err, StoreError::Corrupt { .. }), "{err}");
     assert_names_file(&err, &path);
-    assert!(
-        err.to_string().contains("backup"),
-        "error must say what to do: {err}"
-    );
+    assert!(err.to_string().contains("backup"), "error must say what to do: {err}");
     assert_eq!(bytes(&path), content);
 }
 
@@ -154,10 +127,7 @@ fn another_programs_sqlite_file_is_refused_and_untouched() {
     let err = Store::open(&path).unwrap_err();
     assert!(matches!(err, StoreError::Foreign { .. }), "{err}");
     assert_names_file(&err, &path);
-    assert!(
-        err.to_string().contains("0x000004D2"),
-        "error must show the foreign id: {err}"
-    );
+    assert!(err.to_string().contains("0x000004D2"), "error must show the foreign id: {err}");
     assert_eq!(listing(dir.path()), before);
 }
 
@@ -165,10 +135,7 @@ fn another_programs_sqlite_file_is_refused_and_untouched() {
 fn an_unmarked_sqlite_file_with_tables_is_refused_and_untouched() {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("ledger.db");
-    Connection::open(&path)
-        .unwrap()
-        .execute_batch("CREATE TABLE t (x); INSERT INTO t VALUES (1);")
-        .unwrap();
+    Connection::open(&path).unwrap().execute_batch("CREATE TABLE t (x); INSERT INTO t VALUES (1);").unwrap();
     let before = listing(dir.path());
 
     let err = Store::open(&path).unwrap_err();
@@ -208,31 +175,20 @@ fn a_ledger_from_a_newer_lifeledger_is_refused_and_untouched() {
     {
         let mut store = Store::open(&path).unwrap();
         let components = vec![("sh-1".to_string(), r#"{"d":0.1}"#.to_string())];
-        store
-            .commit(&Commit {
-                components: &components,
-                ..Default::default()
-            })
-            .unwrap();
+        store.commit(&Commit { components: &components, ..Default::default() }).unwrap();
     }
     {
         let conn = Connection::open(&path).unwrap();
-        let id: i32 = conn
-            .pragma_query_value(None, "application_id", |r| r.get(0))
-            .unwrap();
+        let id: i32 = conn.pragma_query_value(None, "application_id", |r| r.get(0)).unwrap();
         assert_eq!(id, APPLICATION_ID);
-        conn.pragma_update(None, "user_version", SCHEMA_VERSION + 1)
-            .unwrap();
+        conn.pragma_update(None, "user_version", SCHEMA_VERSION + 1).unwrap();
     }
     let before = bytes(&path);
 
     let err = Store::open(&path).unwrap_err();
     match &err {
         StoreError::NewerSchema { found, known, .. } => {
-            assert_eq!(
-                (*found, *known),
-                (i64::from(SCHEMA_VERSION) + 1, SCHEMA_VERSION)
-            );
+            assert_eq!((*found, *known), (i64::from(SCHEMA_VERSION) + 1, SCHEMA_VERSION));
         }
         other => panic!("expected NewerSchema, got {other}"),
     }
@@ -247,21 +203,12 @@ fn an_empty_file_becomes_a_new_ledger() {
     let path = dir.path().join("ledger.db");
     std::fs::write(&path, b"").unwrap();
     let mut store = Store::open(&path).unwrap();
-    store
-        .commit(&Commit {
-            outbox: &["m v=1 1".to_string()],
-            ..Default::default()
-        })
-        .unwrap();
+    store.commit(&Commit { outbox: &["m v=1 1".to_string()], ..Default::default() }).unwrap();
     drop(store);
 
     let conn = Connection::open(&path).unwrap();
-    let version: u32 = conn
-        .pragma_query_value(None, "user_version", |r| r.get(0))
-        .unwrap();
-    let id: i32 = conn
-        .pragma_query_value(None, "application_id", |r| r.get(0))
-        .unwrap();
+    let version: u32 = conn.pragma_query_value(None, "user_version", |r| r.get(0)).unwrap();
+    let id: i32 = conn.pragma_query_value(None, "application_id", |r| r.get(0)).unwrap();
     assert_eq!((version, id), (SCHEMA_VERSION, APPLICATION_ID));
 }
 
@@ -270,13 +217,7 @@ fn reopening_a_ledger_keeps_it() {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("ledger.db");
     let meta = vec![("counters".to_string(), r#"{"accepted":5}"#.to_string())];
-    Store::open(&path)
-        .unwrap()
-        .commit(&Commit {
-            meta: &meta,
-            ..Default::default()
-        })
-        .unwrap();
+    Store::open(&path).unwrap().commit(&Commit { meta: &meta, ..Default::default() }).unwrap();
     for _ in 0..3 {
         assert_eq!(Store::open(&path).unwrap().load().unwrap().meta, meta);
     }

@@ -70,10 +70,7 @@ pub struct AlarmConfig {
 impl AlarmConfig {
     /// The deadband of an index.
     pub fn deadband(&self, index: AlarmIndex) -> Deadband {
-        self.deadbands
-            .get(&index)
-            .copied()
-            .unwrap_or_else(|| Deadband::default_for(index))
+        self.deadbands.get(&index).copied().unwrap_or_else(|| Deadband::default_for(index))
     }
 }
 
@@ -114,10 +111,7 @@ impl ComponentAlarmSummary {
 /// How a record's value is judged: levels with a deadband, or a boolean.
 #[derive(Clone, Copy)]
 enum Judge<'a> {
-    Levels {
-        levels: &'a Levels,
-        deadband: Deadband,
-    },
+    Levels { levels: &'a Levels, deadband: Deadband },
     Condition,
 }
 
@@ -153,10 +147,7 @@ impl AlarmBook {
     /// A book from stored records (default configuration; chain
     /// [`AlarmBook::with_config`]).
     pub fn from_records(records: impl IntoIterator<Item = AlarmRecord>) -> AlarmBook {
-        AlarmBook {
-            config: AlarmConfig::default(),
-            records: records.into_iter().map(|r| (r.key(), r)).collect(),
-        }
+        AlarmBook { config: AlarmConfig::default(), records: records.into_iter().map(|r| (r.key(), r)).collect() }
     }
 
     /// Every record, in key order.
@@ -171,11 +162,7 @@ impl AlarmBook {
 
     /// Names of the components that have records, sorted.
     pub fn components(&self) -> Vec<&str> {
-        let mut v: Vec<&str> = self
-            .records
-            .values()
-            .map(|r| r.component.as_str())
-            .collect();
+        let mut v: Vec<&str> = self.records.values().map(|r| r.component.as_str()).collect();
         v.sort_unstable();
         v.dedup();
         v
@@ -203,12 +190,7 @@ impl AlarmBook {
         // last time (shelved or not).
         let new = next_severity(index.direction(), levels, &deadband, rec.condition, value);
         rec.value = value;
-        events.extend(update(
-            rec,
-            new,
-            Judge::Levels { levels, deadband },
-            time_ms,
-        ));
+        events.extend(update(rec, new, Judge::Levels { levels, deadband }, time_ms));
         events
     }
 
@@ -230,12 +212,7 @@ impl AlarmBook {
         if !detail.trim().is_empty() {
             rec.detail = Some(detail.trim().to_string());
         }
-        events.extend(update(
-            rec,
-            active.then_some(Severity::Warning),
-            Judge::Condition,
-            time_ms,
-        ));
+        events.extend(update(rec, active.then_some(Severity::Warning), Judge::Condition, time_ms));
         events
     }
 
@@ -265,13 +242,7 @@ impl AlarmBook {
         let has_creep = plan.metal_temperature.is_some();
         let critical_lf = th.life_fraction.top();
         let hours = critical_lf
-            .and_then(|l| {
-                hours_to_threshold(
-                    state.life_fraction,
-                    l,
-                    state.recent_life_fraction_rate_per_h,
-                )
-            })
+            .and_then(|l| hours_to_threshold(state.life_fraction, l, state.recent_life_fraction_rate_per_h))
             .unwrap_or(f64::INFINITY);
         let over_design = plan
             .design_temperature_k
@@ -279,42 +250,22 @@ impl AlarmBook {
             .map(|d| state.now.metal_temperature_k - d);
         let damage_rate = self.config.damage_rate;
         let checks: [(AlarmIndex, bool, &Levels, f64); 6] = [
-            (
-                AlarmIndex::CreepLifeFraction,
-                has_creep,
-                &th.life_fraction,
-                state.life_fraction,
-            ),
+            (AlarmIndex::CreepLifeFraction, has_creep, &th.life_fraction, state.life_fraction),
             (
                 AlarmIndex::CreepStrain,
                 has_creep && plan.material.norton.is_some(),
                 &th.creep_strain,
                 state.creep_strain,
             ),
-            (
-                AlarmIndex::WearIndex,
-                plan.wear.is_some(),
-                &th.wear_index,
-                state.wear_index(plan),
-            ),
+            (AlarmIndex::WearIndex, plan.wear.is_some(), &th.wear_index, state.wear_index(plan)),
             (
                 AlarmIndex::MetalTemperatureOverDesign,
                 has_creep && over_design.is_some(),
                 &th.over_design_temperature_k,
                 over_design.unwrap_or(f64::NAN),
             ),
-            (
-                AlarmIndex::DamageRate,
-                has_creep,
-                &damage_rate,
-                state.recent_life_fraction_rate_per_h,
-            ),
-            (
-                AlarmIndex::HoursToCritical,
-                has_creep && critical_lf.is_some(),
-                &th.hours_to_critical,
-                hours,
-            ),
+            (AlarmIndex::DamageRate, has_creep, &damage_rate, state.recent_life_fraction_rate_per_h),
+            (AlarmIndex::HoursToCritical, has_creep && critical_lf.is_some(), &th.hours_to_critical, hours),
         ];
         let mut events = vec![];
         for (index, applies, levels, value) in checks {
@@ -412,29 +363,13 @@ impl AlarmBook {
                 rec.threshold = None;
             }
             rec.updated_ms = time_ms;
-            rec.shelve = Some(Shelve {
-                until_ms,
-                by: by.to_string(),
-                reason: reason.to_string(),
-                since_ms: time_ms,
-            });
+            rec.shelve = Some(Shelve { until_ms, by: by.to_string(), reason: reason.to_string(), since_ms: time_ms });
             let until = rfc3339_ms(until_ms);
-            let mut msg = format!(
-                "{} {} shelved by {by} until {until}",
-                rec.component,
-                rec.index.label()
-            );
+            let mut msg = format!("{} {} shelved by {by} until {until}", rec.component, rec.index.label());
             if !reason.trim().is_empty() {
                 msg.push_str(&format!(": {}", reason.trim()));
             }
-            let mut e = AlarmEvent::of(
-                rec,
-                Transition::Shelved,
-                rec.condition,
-                rec.threshold,
-                time_ms,
-                msg,
-            );
+            let mut e = AlarmEvent::of(rec, Transition::Shelved, rec.condition, rec.threshold, time_ms, msg);
             e.by = Some(by.to_string());
             e.reason = Some(reason.to_string());
             e.shelved_until = Some(until);
@@ -457,12 +392,7 @@ impl AlarmBook {
         for k in keys {
             let rec = self.records.get_mut(&k).expect("target exists");
             if rec.state == AlarmState::Shelved {
-                let mut e = lift_shelve(
-                    rec,
-                    Transition::Unshelved,
-                    &format!("unshelved by {by}"),
-                    time_ms,
-                );
+                let mut e = lift_shelve(rec, Transition::Unshelved, &format!("unshelved by {by}"), time_ms);
                 e.by = Some(by.to_string());
                 events.push(e);
             }
@@ -477,62 +407,29 @@ impl AlarmBook {
     }
 
     /// Carry out an operator command received at `time_ms`.
-    pub fn apply(
-        &mut self,
-        command: &AlarmCommand,
-        time_ms: i64,
-    ) -> Result<Vec<AlarmEvent>, AlarmError> {
+    pub fn apply(&mut self, command: &AlarmCommand, time_ms: i64) -> Result<Vec<AlarmEvent>, AlarmError> {
         match command {
-            AlarmCommand::Acknowledge { target, by } => {
-                self.acknowledge(&target.component, target.index, by, time_ms)
-            }
-            AlarmCommand::Shelve {
-                target,
-                duration_h,
-                by,
-                reason,
-            } => {
+            AlarmCommand::Acknowledge { target, by } => self.acknowledge(&target.component, target.index, by, time_ms),
+            AlarmCommand::Shelve { target, duration_h, by, reason } => {
                 let until_ms = time_ms.saturating_add((duration_h * MS_PER_H).round() as i64);
-                self.shelve(
-                    &target.component,
-                    target.index,
-                    until_ms,
-                    by,
-                    reason,
-                    time_ms,
-                )
+                self.shelve(&target.component, target.index, until_ms, by, reason, time_ms)
             }
-            AlarmCommand::Unshelve { target, by } => {
-                self.unshelve(&target.component, target.index, by, time_ms)
-            }
+            AlarmCommand::Unshelve { target, by } => self.unshelve(&target.component, target.index, by, time_ms),
         }
     }
 
     /// A component's alarms now.
     pub fn current(&self, component: &str) -> ComponentAlarmSummary {
-        let alarms: Vec<AlarmRecord> = self
-            .records
-            .values()
-            .filter(|r| r.component == component)
-            .cloned()
-            .collect();
-        let active: Vec<&AlarmRecord> = alarms
-            .iter()
-            .filter(|r| r.is_active() && r.state != AlarmState::Shelved)
-            .collect();
+        let alarms: Vec<AlarmRecord> = self.records.values().filter(|r| r.component == component).cloned().collect();
+        let active: Vec<&AlarmRecord> =
+            alarms.iter().filter(|r| r.is_active() && r.state != AlarmState::Shelved).collect();
         ComponentAlarmSummary {
             component: component.to_string(),
             unit: alarms.first().map(|r| r.unit.clone()).unwrap_or_default(),
             worst_severity: active.iter().filter_map(|r| r.condition).max(),
             active: active.len(),
-            unacknowledged: alarms
-                .iter()
-                .filter(|r| r.state.needs_acknowledge())
-                .count(),
-            shelved: alarms
-                .iter()
-                .filter(|r| r.state == AlarmState::Shelved)
-                .count(),
+            unacknowledged: alarms.iter().filter(|r| r.state.needs_acknowledge()).count(),
+            shelved: alarms.iter().filter(|r| r.state == AlarmState::Shelved).count(),
             updated: alarms.iter().map(|r| r.updated_ms).max().map(rfc3339_ms),
             alarms,
             caution: crate::CAUTION,
@@ -563,48 +460,34 @@ impl AlarmBook {
     }
 
     fn expire_keys(&mut self, keys: &[String], now_ms: i64) -> Vec<AlarmEvent> {
-        keys.iter()
-            .filter_map(|k| self.records.get_mut(k).and_then(|r| expire(r, now_ms)))
-            .collect()
+        keys.iter().filter_map(|k| self.records.get_mut(k).and_then(|r| expire(r, now_ms))).collect()
     }
 
     /// Keys addressed by a command: an exact key, a component and index, or
     /// all of a component's alarms.
-    fn targets(
-        &self,
-        key_or_component: &str,
-        index: Option<AlarmIndex>,
-    ) -> Result<Vec<String>, AlarmError> {
+    fn targets(&self, key_or_component: &str, index: Option<AlarmIndex>) -> Result<Vec<String>, AlarmError> {
         if let Some(rec) = self.records.get(key_or_component) {
             return match index {
-                Some(i) if i != rec.index => Err(AlarmError::UnknownAlarm {
-                    key: format!("{key_or_component}/{i}"),
-                    known: vec![],
-                }),
+                Some(i) if i != rec.index => {
+                    Err(AlarmError::UnknownAlarm { key: format!("{key_or_component}/{i}"), known: vec![] })
+                }
                 _ => Ok(vec![key_or_component.to_string()]),
             };
         }
-        let of_component: Vec<String> = self
-            .records
-            .iter()
-            .filter(|(_, r)| r.component == key_or_component)
-            .map(|(k, _)| k.clone())
-            .collect();
+        let of_component: Vec<String> =
+            self.records.iter().filter(|(_, r)| r.component == key_or_component).map(|(k, _)| k.clone()).collect();
         match index {
             Some(i) => {
                 let k = key(key_or_component, i);
                 if self.records.contains_key(&k) {
                     Ok(vec![k])
                 } else {
-                    Err(AlarmError::UnknownAlarm {
-                        key: k,
-                        known: of_component,
-                    })
+                    Err(AlarmError::UnknownAlarm { key: k, known: of_component })
                 }
             }
-            None if of_component.is_empty() => Err(AlarmError::UnknownComponent {
-                component: key_or_component.to_string(),
-            }),
+            None if of_component.is_empty() => {
+                Err(AlarmError::UnknownComponent { component: key_or_component.to_string() })
+            }
             None => Ok(of_component),
         }
     }
@@ -612,28 +495,13 @@ impl AlarmBook {
 
 /// Lift a shelve that has ended by `now_ms`.
 fn expire(rec: &mut AlarmRecord, now_ms: i64) -> Option<AlarmEvent> {
-    let until = rec
-        .shelve
-        .as_ref()
-        .filter(|_| rec.state == AlarmState::Shelved)?
-        .until_ms;
-    (now_ms >= until).then(|| {
-        lift_shelve(
-            rec,
-            Transition::ShelveExpired,
-            &format!("shelve ended at {}", rfc3339_ms(until)),
-            now_ms,
-        )
-    })
+    let until = rec.shelve.as_ref().filter(|_| rec.state == AlarmState::Shelved)?.until_ms;
+    (now_ms >= until)
+        .then(|| lift_shelve(rec, Transition::ShelveExpired, &format!("shelve ended at {}", rfc3339_ms(until)), now_ms))
 }
 
 /// Return a shelved record to the state its condition implies.
-fn lift_shelve(
-    rec: &mut AlarmRecord,
-    transition: Transition,
-    how: &str,
-    time_ms: i64,
-) -> AlarmEvent {
+fn lift_shelve(rec: &mut AlarmRecord, transition: Transition, how: &str, time_ms: i64) -> AlarmEvent {
     rec.shelve = None;
     rec.since_ms = time_ms;
     rec.updated_ms = time_ms;
@@ -654,12 +522,7 @@ fn lift_shelve(
 }
 
 /// Move a record to the severity `new` now implied (value already set).
-fn update(
-    rec: &mut AlarmRecord,
-    new: Option<Severity>,
-    judge: Judge<'_>,
-    time_ms: i64,
-) -> Option<AlarmEvent> {
+fn update(rec: &mut AlarmRecord, new: Option<Severity>, judge: Judge<'_>, time_ms: i64) -> Option<AlarmEvent> {
     rec.condition = new;
     if rec.state == AlarmState::Shelved {
         // Followed silently; the severity shown is the condition's.
@@ -667,10 +530,7 @@ fn update(
         rec.threshold = new.and_then(|s| judge.level(s));
         return None;
     }
-    let shown = matches!(
-        rec.state,
-        AlarmState::Unacknowledged | AlarmState::Acknowledged
-    );
+    let shown = matches!(rec.state, AlarmState::Unacknowledged | AlarmState::Acknowledged);
     let old = rec.severity.filter(|_| shown);
     let transition = match (old, new) {
         (None, None) => return None,
@@ -710,14 +570,7 @@ fn update(
             rec.threshold = threshold;
         }
     }
-    Some(AlarmEvent::of(
-        rec,
-        transition,
-        Some(sev),
-        threshold,
-        time_ms,
-        msg,
-    ))
+    Some(AlarmEvent::of(rec, transition, Some(sev), threshold, time_ms, msg))
 }
 
 /// Plain words for a value transition.
@@ -731,11 +584,7 @@ fn message(
 ) -> String {
     let (c, i) = (&rec.component, rec.index);
     let head = format!("{c} {}", i.label());
-    let detail = rec
-        .detail
-        .as_deref()
-        .map(|d| format!(": {d}"))
-        .unwrap_or_default();
+    let detail = rec.detail.as_deref().map(|d| format!(": {d}")).unwrap_or_default();
     let deadband = match judge {
         Judge::Levels { deadband, .. } => Some(deadband),
         Judge::Condition => None,
@@ -746,11 +595,7 @@ fn message(
         Direction::LowerIsWorse => ("fell to or below", "above"),
     };
     let value = i.display(rec.value);
-    let awaiting = if rec.state == AlarmState::RtnUnacknowledged {
-        ", awaiting acknowledge"
-    } else {
-        ""
-    };
+    let awaiting = if rec.state == AlarmState::RtnUnacknowledged { ", awaiting acknowledge" } else { "" };
     match (transition, deadband) {
         (Transition::Activated, None) => format!("{head}{detail}"),
         (Transition::Escalated, None) => format!("{head} rose to {sev}{detail}"),
@@ -769,13 +614,9 @@ fn message(
         (Transition::SteppedDown | Transition::Cleared, Some(db)) => {
             let o = old.expect("stepping from a severity");
             let old_level = judge.level(o).or(rec.threshold);
-            let band = old_level.map_or("its deadband".to_string(), |l| {
-                format!("its deadband {}", i.display(db.width(l)))
-            });
-            let moved = format!(
-                "{head} {value} is back {back} the {o} level {} by more than {band}",
-                lvl(old_level)
-            );
+            let band =
+                old_level.map_or("its deadband".to_string(), |l| format!("its deadband {}", i.display(db.width(l))));
+            let moved = format!("{head} {value} is back {back} the {o} level {} by more than {band}", lvl(old_level));
             if transition == Transition::Cleared {
                 format!("{moved}; cleared{awaiting}")
             } else {

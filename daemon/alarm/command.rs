@@ -30,20 +30,9 @@ pub struct AlarmTarget {
 /// One operator command.
 #[derive(Debug, Clone, PartialEq)]
 pub enum AlarmCommand {
-    Acknowledge {
-        target: AlarmTarget,
-        by: String,
-    },
-    Shelve {
-        target: AlarmTarget,
-        duration_h: f64,
-        by: String,
-        reason: String,
-    },
-    Unshelve {
-        target: AlarmTarget,
-        by: String,
-    },
+    Acknowledge { target: AlarmTarget, by: String },
+    Shelve { target: AlarmTarget, duration_h: f64, by: String, reason: String },
+    Unshelve { target: AlarmTarget, by: String },
 }
 
 impl AlarmCommand {
@@ -67,10 +56,7 @@ impl AlarmCommand {
 }
 
 fn bad(field: &str, problem: impl Into<String>) -> AlarmError {
-    AlarmError::Command {
-        field: field.to_string(),
-        problem: problem.into(),
-    }
+    AlarmError::Command { field: field.to_string(), problem: problem.into() }
 }
 
 fn kind(v: &Value) -> &'static str {
@@ -90,10 +76,7 @@ fn text(o: &Map<String, Value>, field: &str) -> Result<String, AlarmError> {
         None | Some(Value::Null) => Err(bad(field, "is missing")),
         Some(Value::String(s)) if s.trim().is_empty() => Err(bad(field, "is empty")),
         Some(Value::String(s)) => match s.chars().find(|c| c.is_control()) {
-            Some(c) => Err(bad(
-                field,
-                format!("contains the control character U+{:04X}", c as u32),
-            )),
+            Some(c) => Err(bad(field, format!("contains the control character U+{:04X}", c as u32))),
             None => Ok(s.trim().to_string()),
         },
         Some(v) => Err(bad(field, format!("must be a string, got {}", kind(v)))),
@@ -102,46 +85,27 @@ fn text(o: &Map<String, Value>, field: &str) -> Result<String, AlarmError> {
 
 /// Parse one command message.
 pub fn parse_command(json: &[u8]) -> Result<AlarmCommand, AlarmError> {
-    let v: Value = serde_json::from_slice(json).map_err(|e| AlarmError::CommandJson {
-        problem: e.to_string(),
-    })?;
+    let v: Value = serde_json::from_slice(json).map_err(|e| AlarmError::CommandJson { problem: e.to_string() })?;
     let Value::Object(o) = v else {
-        return Err(AlarmError::CommandJson {
-            problem: format!("expected a JSON object, got {}", kind(&v)),
-        });
+        return Err(AlarmError::CommandJson { problem: format!("expected a JSON object, got {}", kind(&v)) });
     };
     let action = text(&o, "action")?;
     let allowed: &[&str] = match action.as_str() {
         "acknowledge" | "unshelve" => &["action", "component", "index", "by"],
         "shelve" => &["action", "component", "index", "by", "duration_h", "reason"],
         other => {
-            return Err(bad(
-                "action",
-                format!("unknown action \"{other}\"; expected acknowledge, shelve or unshelve"),
-            ))
+            return Err(bad("action", format!("unknown action \"{other}\"; expected acknowledge, shelve or unshelve")))
         }
     };
     if let Some(k) = o.keys().find(|k| !allowed.contains(&k.as_str())) {
-        return Err(bad(
-            k,
-            format!(
-                "is not a field of {action}; its fields are {}",
-                allowed.join(", ")
-            ),
-        ));
+        return Err(bad(k, format!("is not a field of {action}; its fields are {}", allowed.join(", "))));
     }
     let component = text(&o, "component")?;
     let index = match o.get("index") {
         None | Some(Value::Null) => None,
         Some(Value::String(s)) => Some(AlarmIndex::from_name(s.trim()).ok_or_else(|| {
             let names: Vec<&str> = AlarmIndex::ALL.iter().map(|i| i.name()).collect();
-            bad(
-                "index",
-                format!(
-                    "unknown index \"{s}\"; expected one of {}",
-                    names.join(", ")
-                ),
-            )
+            bad("index", format!("unknown index \"{s}\"; expected one of {}", names.join(", ")))
         })?),
         Some(v) => return Err(bad("index", format!("must be a string, got {}", kind(v)))),
     };
@@ -153,34 +117,19 @@ pub fn parse_command(json: &[u8]) -> Result<AlarmCommand, AlarmError> {
         _ => {
             let duration_h = match o.get("duration_h") {
                 None | Some(Value::Null) => {
-                    return Err(bad(
-                        "duration_h",
-                        "is missing: a shelve needs a duration in hours",
-                    ))
+                    return Err(bad("duration_h", "is missing: a shelve needs a duration in hours"))
                 }
                 Some(Value::Number(n)) => n.as_f64().unwrap_or(f64::NAN),
-                Some(v) => {
-                    return Err(bad(
-                        "duration_h",
-                        format!("must be a number of hours, got {}", kind(v)),
-                    ))
-                }
+                Some(v) => return Err(bad("duration_h", format!("must be a number of hours, got {}", kind(v)))),
             };
             if !(duration_h > 0.0 && duration_h <= MAX_SHELVE_H) {
                 return Err(bad(
                     "duration_h",
-                    format!(
-                        "must be more than 0 and at most {MAX_SHELVE_H} hours, got {duration_h}"
-                    ),
+                    format!("must be more than 0 and at most {MAX_SHELVE_H} hours, got {duration_h}"),
                 ));
             }
             let reason = text(&o, "reason")?;
-            AlarmCommand::Shelve {
-                target,
-                duration_h,
-                by,
-                reason,
-            }
+            AlarmCommand::Shelve { target, duration_h, by, reason }
         }
     })
 }
@@ -210,10 +159,7 @@ mod tests {
         assert_eq!(
             s,
             AlarmCommand::Shelve {
-                target: AlarmTarget {
-                    component: "C".into(),
-                    index: Some(AlarmIndex::SensorStale)
-                },
+                target: AlarmTarget { component: "C".into(), index: Some(AlarmIndex::SensorStale) },
                 duration_h: 8.0,
                 by: "op".into(),
                 reason: "TC swap".into()
@@ -229,44 +175,30 @@ mod tests {
         assert!(err("{not json").contains("not a valid JSON object"));
         assert!(err("[1]").contains("expected a JSON object, got an array"));
         assert!(err(r#"{"component":"C","by":"op"}"#).contains("\"action\": is missing"));
-        assert!(err(r#"{"action":"silence","component":"C","by":"op"}"#)
-            .contains("unknown action \"silence\""));
+        assert!(err(r#"{"action":"silence","component":"C","by":"op"}"#).contains("unknown action \"silence\""));
         assert!(err(r#"{"action":"acknowledge","by":"op"}"#).contains("\"component\": is missing"));
-        assert!(err(r#"{"action":"acknowledge","component":" ","by":"op"}"#)
-            .contains("\"component\": is empty"));
+        assert!(err(r#"{"action":"acknowledge","component":" ","by":"op"}"#).contains("\"component\": is empty"));
         assert!(err(r#"{"action":"acknowledge","component":"C"}"#).contains("\"by\": is missing"));
         assert!(err(r#"{"action":"acknowledge","component":"C","by":7}"#)
             .contains("\"by\": must be a string, got a number"));
         let e = err(r#"{"action":"acknowledge","component":"C","index":"creep","by":"op"}"#);
+        assert!(e.contains("\"index\": unknown index \"creep\"") && e.contains("creep_life_fraction"), "{e}");
         assert!(
-            e.contains("\"index\": unknown index \"creep\"") && e.contains("creep_life_fraction"),
-            "{e}"
+            err(r#"{"action":"shelve","component":"C","by":"op","reason":"r"}"#).contains("\"duration_h\": is missing")
         );
+        assert!(err(r#"{"action":"shelve","component":"C","by":"op","reason":"r","duration_h":"8"}"#)
+            .contains("got a string"));
         assert!(
-            err(r#"{"action":"shelve","component":"C","by":"op","reason":"r"}"#)
-                .contains("\"duration_h\": is missing")
+            err(r#"{"action":"shelve","component":"C","by":"op","reason":"r","duration_h":0}"#).contains("more than 0")
         );
-        assert!(err(
-            r#"{"action":"shelve","component":"C","by":"op","reason":"r","duration_h":"8"}"#
-        )
-        .contains("got a string"));
-        assert!(err(
-            r#"{"action":"shelve","component":"C","by":"op","reason":"r","duration_h":0}"#
-        )
-        .contains("more than 0"));
-        assert!(err(
-            r#"{"action":"shelve","component":"C","by":"op","reason":"r","duration_h":1000}"#
-        )
-        .contains("at most 720"));
+        assert!(err(r#"{"action":"shelve","component":"C","by":"op","reason":"r","duration_h":1000}"#)
+            .contains("at most 720"));
         assert!(
-            err(r#"{"action":"shelve","component":"C","by":"op","duration_h":8}"#)
-                .contains("\"reason\": is missing")
+            err(r#"{"action":"shelve","component":"C","by":"op","duration_h":8}"#).contains("\"reason\": is missing")
         );
         let e = err(r#"{"action":"shelve","component":"C","by":"op","reason":"r","duraton_h":8}"#);
         assert!(e.contains("\"duraton_h\": is not a field of shelve"), "{e}");
-        assert!(
-            err(r#"{"action":"acknowledge","component":"C","by":"op","duration_h":8}"#)
-                .contains("\"duration_h\": is not a field of acknowledge")
-        );
+        assert!(err(r#"{"action":"acknowledge","component":"C","by":"op","duration_h":8}"#)
+            .contains("\"duration_h\": is not a field of acknowledge"));
     }
 }

@@ -45,10 +45,7 @@ impl Deadband {
             AlarmIndex::MetalTemperatureOverDesign => DEFAULT_OVER_DESIGN_DEADBAND_K,
             _ => 0.0,
         };
-        Deadband {
-            fraction: DEFAULT_DEADBAND_FRACTION,
-            minimum,
-        }
+        Deadband { fraction: DEFAULT_DEADBAND_FRACTION, minimum }
     }
 
     /// Width of the band at `level`.
@@ -93,8 +90,7 @@ pub fn next_severity(
             None => false,
             Some(l) => {
                 reaches(direction, value, l)
-                    || (current.is_some_and(|c| *s <= c)
-                        && holds(direction, value, l, deadband.width(l)))
+                    || (current.is_some_and(|c| *s <= c) && holds(direction, value, l, deadband.width(l)))
             }
         })
         .max()
@@ -104,111 +100,48 @@ pub fn next_severity(
 mod tests {
     use super::*;
 
-    const LF: Levels = Levels {
-        advisory: Some(0.3),
-        warning: Some(0.5),
-        critical: Some(0.7),
-    };
-    const DB: Deadband = Deadband {
-        fraction: 0.02,
-        minimum: 0.0,
-    };
+    const LF: Levels = Levels { advisory: Some(0.3), warning: Some(0.5), critical: Some(0.7) };
+    const DB: Deadband = Deadband { fraction: 0.02, minimum: 0.0 };
 
     #[test]
     fn reaching_needs_the_level_holding_needs_the_band() {
         let up = Direction::HigherIsWorse;
         assert_eq!(next_severity(up, &LF, &DB, None, 0.299), None);
-        assert_eq!(
-            next_severity(up, &LF, &DB, None, 0.3),
-            Some(Severity::Advisory)
-        );
-        assert_eq!(
-            next_severity(up, &LF, &DB, None, 0.71),
-            Some(Severity::Critical)
-        );
+        assert_eq!(next_severity(up, &LF, &DB, None, 0.3), Some(Severity::Advisory));
+        assert_eq!(next_severity(up, &LF, &DB, None, 0.71), Some(Severity::Critical));
         // Warning held down to 0.5 − 0.01.
-        assert_eq!(
-            next_severity(up, &LF, &DB, Some(Severity::Warning), 0.491),
-            Some(Severity::Warning)
-        );
-        assert_eq!(
-            next_severity(up, &LF, &DB, Some(Severity::Warning), 0.489),
-            Some(Severity::Advisory)
-        );
+        assert_eq!(next_severity(up, &LF, &DB, Some(Severity::Warning), 0.491), Some(Severity::Warning));
+        assert_eq!(next_severity(up, &LF, &DB, Some(Severity::Warning), 0.489), Some(Severity::Advisory));
         // Advisory held down to 0.3 − 0.006.
-        assert_eq!(
-            next_severity(up, &LF, &DB, Some(Severity::Advisory), 0.295),
-            Some(Severity::Advisory)
-        );
-        assert_eq!(
-            next_severity(up, &LF, &DB, Some(Severity::Advisory), 0.293),
-            None
-        );
+        assert_eq!(next_severity(up, &LF, &DB, Some(Severity::Advisory), 0.295), Some(Severity::Advisory));
+        assert_eq!(next_severity(up, &LF, &DB, Some(Severity::Advisory), 0.293), None);
         // A band never lifts an alarm above what it holds.
-        assert_eq!(
-            next_severity(up, &LF, &DB, Some(Severity::Advisory), 0.495),
-            Some(Severity::Advisory)
-        );
+        assert_eq!(next_severity(up, &LF, &DB, Some(Severity::Advisory), 0.495), Some(Severity::Advisory));
     }
 
     #[test]
     fn lower_is_worse_mirrors() {
-        let h = Levels {
-            advisory: None,
-            warning: Some(17_520.0),
-            critical: Some(8_760.0),
-        };
+        let h = Levels { advisory: None, warning: Some(17_520.0), critical: Some(8_760.0) };
         let down = Direction::LowerIsWorse;
         assert_eq!(next_severity(down, &h, &DB, None, 20_000.0), None);
-        assert_eq!(
-            next_severity(down, &h, &DB, None, 17_000.0),
-            Some(Severity::Warning)
-        );
-        assert_eq!(
-            next_severity(down, &h, &DB, None, 8_000.0),
-            Some(Severity::Critical)
-        );
+        assert_eq!(next_severity(down, &h, &DB, None, 17_000.0), Some(Severity::Warning));
+        assert_eq!(next_severity(down, &h, &DB, None, 8_000.0), Some(Severity::Critical));
         // Critical held up to 8760 + 175.2.
-        assert_eq!(
-            next_severity(down, &h, &DB, Some(Severity::Critical), 8_900.0),
-            Some(Severity::Critical)
-        );
-        assert_eq!(
-            next_severity(down, &h, &DB, Some(Severity::Critical), 8_950.0),
-            Some(Severity::Warning)
-        );
-        assert_eq!(
-            next_severity(down, &h, &DB, Some(Severity::Warning), 17_800.0),
-            Some(Severity::Warning)
-        );
-        assert_eq!(
-            next_severity(down, &h, &DB, Some(Severity::Warning), 17_900.0),
-            None
-        );
-        assert_eq!(
-            next_severity(down, &h, &DB, Some(Severity::Warning), f64::INFINITY),
-            None
-        );
+        assert_eq!(next_severity(down, &h, &DB, Some(Severity::Critical), 8_900.0), Some(Severity::Critical));
+        assert_eq!(next_severity(down, &h, &DB, Some(Severity::Critical), 8_950.0), Some(Severity::Warning));
+        assert_eq!(next_severity(down, &h, &DB, Some(Severity::Warning), 17_800.0), Some(Severity::Warning));
+        assert_eq!(next_severity(down, &h, &DB, Some(Severity::Warning), 17_900.0), None);
+        assert_eq!(next_severity(down, &h, &DB, Some(Severity::Warning), f64::INFINITY), None);
     }
 
     #[test]
     fn zero_level_uses_the_floor() {
-        let od = Levels {
-            advisory: None,
-            warning: Some(0.0),
-            critical: None,
-        };
+        let od = Levels { advisory: None, warning: Some(0.0), critical: None };
         let db = Deadband::default_for(AlarmIndex::MetalTemperatureOverDesign);
         let up = Direction::HigherIsWorse;
         assert_eq!(db.width(0.0), 1.0);
         assert_eq!(next_severity(up, &od, &db, None, -0.1), None);
-        assert_eq!(
-            next_severity(up, &od, &db, Some(Severity::Warning), -0.9),
-            Some(Severity::Warning)
-        );
-        assert_eq!(
-            next_severity(up, &od, &db, Some(Severity::Warning), -1.1),
-            None
-        );
+        assert_eq!(next_severity(up, &od, &db, Some(Severity::Warning), -0.9), Some(Severity::Warning));
+        assert_eq!(next_severity(up, &od, &db, Some(Severity::Warning), -1.1), None);
     }
 }

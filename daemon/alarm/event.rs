@@ -139,7 +139,6 @@ impl AlarmEvent {
         if let Some(t) = self.threshold {
             p = p.float("threshold", t);
         }
-        p.string("message", &self.message)
-            .string("transition", self.transition.name())
+        p.string("message", &self.message).string("transition", self.transition.name())
     }
 }

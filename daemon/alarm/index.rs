@@ -199,11 +199,7 @@ pub fn short(v: f64) -> String {
     } else {
         let s = format!("{v:.3e}");
         let (m, e) = s.split_once('e').unwrap_or((&s, "0"));
-        let m = if m.contains('.') {
-            m.trim_end_matches('0').trim_end_matches('.')
-        } else {
-            m
-        };
+        let m = if m.contains('.') { m.trim_end_matches('0').trim_end_matches('.') } else { m };
         format!("{m}e{e}")
     }
 }
@@ -215,10 +211,7 @@ mod tests {
     #[test]
     fn names_are_stable_and_match_serde() {
         for i in AlarmIndex::ALL {
-            assert_eq!(
-                serde_json::to_string(&i).unwrap(),
-                format!("\"{}\"", i.name())
-            );
+            assert_eq!(serde_json::to_string(&i).unwrap(), format!("\"{}\"", i.name()));
             assert_eq!(AlarmIndex::from_name(i.name()), Some(i));
         }
         assert_eq!(AlarmIndex::from_name("creep"), None);

@@ -45,17 +45,9 @@ pub enum AlarmError {
     #[error("no alarms recorded for component \"{component}\" (check the component name, or give a full key component/index)")]
     UnknownComponent { component: String },
     #[error("cannot shelve \"{target}\" until {until}: that is not after the command time {now}")]
-    ShelveNotAhead {
-        target: String,
-        until: String,
-        now: String,
-    },
+    ShelveNotAhead { target: String, until: String, now: String },
     #[error("cannot shelve \"{target}\" for {hours:.1} h: at most {max_h} h is allowed")]
-    ShelveTooLong {
-        target: String,
-        hours: f64,
-        max_h: f64,
-    },
+    ShelveTooLong { target: String, hours: f64, max_h: f64 },
     #[error("alarm command is not a valid JSON object: {problem}")]
     CommandJson { problem: String },
     #[error("alarm command field \"{field}\": {problem}")]

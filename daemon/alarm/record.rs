@@ -40,10 +40,7 @@ impl AlarmState {
 
     /// Whether an operator still has to acknowledge.
     pub fn needs_acknowledge(self) -> bool {
-        matches!(
-            self,
-            AlarmState::Unacknowledged | AlarmState::RtnUnacknowledged
-        )
+        matches!(self, AlarmState::Unacknowledged | AlarmState::RtnUnacknowledged)
     }
 }
 

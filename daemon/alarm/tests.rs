@@ -17,9 +17,7 @@ fn lf(book: &mut AlarmBook, value: f64, t: i64) -> Vec<AlarmEvent> {
 }
 
 fn state(book: &AlarmBook) -> AlarmState {
-    book.record(&format!("{C}/creep_life_fraction"))
-        .unwrap()
-        .state
+    book.record(&format!("{C}/creep_life_fraction")).unwrap().state
 }
 
 fn one(events: Vec<AlarmEvent>) -> AlarmEvent {
@@ -35,18 +33,11 @@ fn normal_to_unacknowledged_when_the_condition_becomes_active() {
     let e = one(lf(&mut b, 0.35, H));
     assert_eq!(
         (e.transition, e.severity, e.state),
-        (
-            Transition::Activated,
-            Some(Severity::Advisory),
-            AlarmState::Unacknowledged
-        )
+        (Transition::Activated, Some(Severity::Advisory), AlarmState::Unacknowledged)
     );
     let mut b = AlarmBook::new();
     let e = one(lf(&mut b, 0.512, H));
-    assert_eq!(
-        e.message,
-        "U2-SH3-OUTLET-LEG-A creep life fraction 0.512 reached the warning level 0.5"
-    );
+    assert_eq!(e.message, "U2-SH3-OUTLET-LEG-A creep life fraction 0.512 reached the warning level 0.5");
     assert_eq!((e.value, e.threshold), (Some(0.512), Some(0.5)));
     assert_eq!(e.time, "1970-01-01T01:00:00.000Z");
     assert_eq!(e.caution, crate::CAUTION);
@@ -61,35 +52,15 @@ fn acknowledge_then_clear_goes_back_to_normal() {
     let e = one(b.acknowledge(C, Some(LF), "operator 7", H).unwrap());
     assert_eq!(
         (e.transition, e.state, e.by.as_deref()),
-        (
-            Transition::Acknowledged,
-            AlarmState::Acknowledged,
-            Some("operator 7")
-        )
+        (Transition::Acknowledged, AlarmState::Acknowledged, Some("operator 7"))
     );
-    assert!(
-        e.message.contains("acknowledged by operator 7"),
-        "{}",
-        e.message
-    );
+    assert!(e.message.contains("acknowledged by operator 7"), "{}", e.message);
     // Acknowledging again is harmless.
-    assert!(b
-        .acknowledge(C, Some(LF), "operator 7", H)
-        .unwrap()
-        .is_empty());
+    assert!(b.acknowledge(C, Some(LF), "operator 7", H).unwrap().is_empty());
     let e = one(lf(&mut b, 0.1, 2 * H));
-    assert_eq!(
-        (e.transition, e.state, e.severity),
-        (
-            Transition::Cleared,
-            AlarmState::Normal,
-            Some(Severity::Warning)
-        )
-    );
+    assert_eq!((e.transition, e.state, e.severity), (Transition::Cleared, AlarmState::Normal, Some(Severity::Warning)));
     assert!(
-        e.message.contains(
-            "is back below the warning level 0.5 by more than its deadband 0.01; cleared"
-        ),
+        e.message.contains("is back below the warning level 0.5 by more than its deadband 0.01; cleared"),
         "{}",
         e.message
     );
@@ -102,24 +73,13 @@ fn clearing_unacknowledged_waits_for_an_acknowledge() {
     let mut b = AlarmBook::new();
     lf(&mut b, 0.55, 0);
     let e = one(lf(&mut b, 0.1, H));
-    assert_eq!(
-        (e.transition, e.state),
-        (Transition::Cleared, AlarmState::RtnUnacknowledged)
-    );
-    assert!(
-        e.message.ends_with("cleared, awaiting acknowledge"),
-        "{}",
-        e.message
-    );
+    assert_eq!((e.transition, e.state), (Transition::Cleared, AlarmState::RtnUnacknowledged));
+    assert!(e.message.ends_with("cleared, awaiting acknowledge"), "{}", e.message);
     assert_eq!(b.current(C).unacknowledged, 1);
     let e = one(b.acknowledge(C, None, "op", 2 * H).unwrap());
     assert_eq!(
         (e.transition, e.state, e.severity),
-        (
-            Transition::Acknowledged,
-            AlarmState::Normal,
-            Some(Severity::Warning)
-        )
+        (Transition::Acknowledged, AlarmState::Normal, Some(Severity::Warning))
     );
     assert_eq!(state(&b), AlarmState::Normal);
 }
@@ -131,10 +91,7 @@ fn returned_to_normal_reactivates_to_unacknowledged() {
     lf(&mut b, 0.1, H);
     assert_eq!(state(&b), AlarmState::RtnUnacknowledged);
     let e = one(lf(&mut b, 0.36, 2 * H));
-    assert_eq!(
-        (e.transition, e.state),
-        (Transition::Activated, AlarmState::Unacknowledged)
-    );
+    assert_eq!((e.transition, e.state), (Transition::Activated, AlarmState::Unacknowledged));
 }
 
 #[test]
@@ -145,28 +102,16 @@ fn escalation_reenters_unacknowledged() {
     let e = one(lf(&mut b, 0.71, 2 * H));
     assert_eq!(
         (e.transition, e.severity, e.state),
-        (
-            Transition::Escalated,
-            Some(Severity::Critical),
-            AlarmState::Unacknowledged
-        )
+        (Transition::Escalated, Some(Severity::Critical), AlarmState::Unacknowledged)
     );
-    assert!(
-        e.message
-            .ends_with("reached the critical level 0.7 (was warning)"),
-        "{}",
-        e.message
-    );
+    assert!(e.message.ends_with("reached the critical level 0.7 (was warning)"), "{}", e.message);
     let r = b.record(&format!("{C}/creep_life_fraction")).unwrap();
     assert_eq!(r.acknowledged_by, None);
     // Straight from unacknowledged too, skipping a level.
     let mut b = AlarmBook::new();
     lf(&mut b, 0.31, 0);
     let e = one(lf(&mut b, 0.8, H));
-    assert_eq!(
-        (e.transition, e.severity),
-        (Transition::Escalated, Some(Severity::Critical))
-    );
+    assert_eq!((e.transition, e.severity), (Transition::Escalated, Some(Severity::Critical)));
 }
 
 #[test]
@@ -177,15 +122,10 @@ fn stepping_down_keeps_the_acknowledge() {
     let e = one(lf(&mut b, 0.6, 2 * H));
     assert_eq!(
         (e.transition, e.severity, e.state),
-        (
-            Transition::SteppedDown,
-            Some(Severity::Warning),
-            AlarmState::Acknowledged
-        )
+        (Transition::SteppedDown, Some(Severity::Warning), AlarmState::Acknowledged)
     );
     assert!(
-        e.message.contains("back below the critical level 0.7")
-            && e.message.ends_with("now at the warning level 0.5"),
+        e.message.contains("back below the critical level 0.7") && e.message.ends_with("now at the warning level 0.5"),
         "{}",
         e.message
     );
@@ -195,42 +135,19 @@ fn stepping_down_keeps_the_acknowledge() {
 fn deadband_stops_chattering() {
     let mut b = AlarmBook::new();
     // Around the warning level 0.5, inside its 0.01 band once reached.
-    let seq = [
-        0.49, 0.501, 0.497, 0.502, 0.4915, 0.5, 0.495, 0.503, 0.492, 0.499,
-    ];
-    let n: usize = seq
-        .iter()
-        .enumerate()
-        .map(|(k, &v)| lf(&mut b, v, k as i64 * H).len())
-        .sum();
+    let seq = [0.49, 0.501, 0.497, 0.502, 0.4915, 0.5, 0.495, 0.503, 0.492, 0.499];
+    let n: usize = seq.iter().enumerate().map(|(k, &v)| lf(&mut b, v, k as i64 * H).len()).sum();
     // 0.49 raises advisory, 0.501 escalates to warning; then nothing.
     assert_eq!(n, 2);
     // Past the band it steps down; back up it escalates again.
-    assert_eq!(
-        one(lf(&mut b, 0.489, 20 * H)).transition,
-        Transition::SteppedDown
-    );
-    assert_eq!(
-        one(lf(&mut b, 0.5, 21 * H)).transition,
-        Transition::Escalated
-    );
+    assert_eq!(one(lf(&mut b, 0.489, 20 * H)).transition, Transition::SteppedDown);
+    assert_eq!(one(lf(&mut b, 0.5, 21 * H)).transition, Transition::Escalated);
     // Without a band every crossing would be an event.
     let mut b = AlarmBook::new().with_config(AlarmConfig {
-        deadbands: [(
-            LF,
-            Deadband {
-                fraction: 0.0,
-                minimum: 0.0,
-            },
-        )]
-        .into(),
+        deadbands: [(LF, Deadband { fraction: 0.0, minimum: 0.0 })].into(),
         ..AlarmConfig::default()
     });
-    let n: usize = seq
-        .iter()
-        .enumerate()
-        .map(|(k, &v)| lf(&mut b, v, k as i64 * H).len())
-        .sum();
+    let n: usize = seq.iter().enumerate().map(|(k, &v)| lf(&mut b, v, k as i64 * H).len()).sum();
     assert_eq!(n, 9);
 }
 
@@ -241,22 +158,15 @@ fn hours_to_critical_is_lower_is_worse() {
     let mut ev = |v: f64, t: i64| b.evaluate(C, U, idx, v, &DEFAULT_HOURS_TO_CRITICAL, t);
     assert!(ev(30_000.0, 0).is_empty());
     let e = one(ev(17_000.0, H));
-    assert_eq!(
-        (e.transition, e.severity),
-        (Transition::Activated, Some(Severity::Warning))
-    );
+    assert_eq!((e.transition, e.severity), (Transition::Activated, Some(Severity::Warning)));
     assert_eq!(e.message, "U2-SH3-OUTLET-LEG-A projected hours to critical life fraction 17000 h fell to or below the warning level 17520 h");
     assert_eq!(one(ev(8_000.0, 2 * H)).severity, Some(Severity::Critical));
     // Within 2 % above 8760 h: still critical.
     assert!(ev(8_900.0, 3 * H).is_empty());
     let e = one(ev(9_000.0, 4 * H));
-    assert_eq!(
-        (e.transition, e.severity),
-        (Transition::SteppedDown, Some(Severity::Warning))
-    );
+    assert_eq!((e.transition, e.severity), (Transition::SteppedDown, Some(Severity::Warning)));
     assert!(
-        e.message
-            .contains("back above the critical level 8760 h by more than its deadband 175.2 h"),
+        e.message.contains("back above the critical level 8760 h by more than its deadband 175.2 h"),
         "{}",
         e.message
     );
@@ -272,17 +182,9 @@ fn shelving_suppresses_and_expiry_restores() {
     let mut b = AlarmBook::new();
     lf(&mut b, 0.51, 0);
     b.acknowledge(C, Some(LF), "op", H).unwrap();
-    let e = one(b
-        .shelve(C, Some(LF), 9 * H, "op", "thermocouple swap", H)
-        .unwrap());
-    assert_eq!(
-        (e.transition, e.state),
-        (Transition::Shelved, AlarmState::Shelved)
-    );
-    assert_eq!(
-        (e.by.as_deref(), e.reason.as_deref()),
-        (Some("op"), Some("thermocouple swap"))
-    );
+    let e = one(b.shelve(C, Some(LF), 9 * H, "op", "thermocouple swap", H).unwrap());
+    assert_eq!((e.transition, e.state), (Transition::Shelved, AlarmState::Shelved));
+    assert_eq!((e.by.as_deref(), e.reason.as_deref()), (Some("op"), Some("thermocouple swap")));
     assert_eq!(e.shelved_until.as_deref(), Some("1970-01-01T09:00:00.000Z"));
     // No events while shelved, whatever the value does.
     assert!(lf(&mut b, 0.75, 2 * H).is_empty());
@@ -296,11 +198,7 @@ fn shelving_suppresses_and_expiry_restores() {
     let e = one(b.tick(9 * H));
     assert_eq!(
         (e.transition, e.state, e.severity),
-        (
-            Transition::ShelveExpired,
-            AlarmState::Unacknowledged,
-            Some(Severity::Critical)
-        )
+        (Transition::ShelveExpired, AlarmState::Unacknowledged, Some(Severity::Critical))
     );
     assert_eq!(e.threshold, Some(0.7));
     assert!(b.tick(10 * H).is_empty());
@@ -316,38 +214,19 @@ fn shelve_expiry_of_a_clear_alarm_is_normal_and_evaluation_expires_too() {
     // The next evaluation after the end lifts the shelve first.
     let ev = lf(&mut b, 0.1, 3 * H);
     let e = one(ev);
-    assert_eq!(
-        (e.transition, e.state),
-        (Transition::ShelveExpired, AlarmState::Normal)
-    );
-    assert!(
-        e.message.ends_with("the condition is clear"),
-        "{}",
-        e.message
-    );
+    assert_eq!((e.transition, e.state), (Transition::ShelveExpired, AlarmState::Normal));
+    assert!(e.message.ends_with("the condition is clear"), "{}", e.message);
 }
 
 #[test]
 fn unshelve_by_command() {
     let mut b = AlarmBook::new();
     lf(&mut b, 0.31, 0);
-    b.shelve(
-        &format!("{C}/creep_life_fraction"),
-        None,
-        5 * H,
-        "op",
-        "r",
-        0,
-    )
-    .unwrap();
+    b.shelve(&format!("{C}/creep_life_fraction"), None, 5 * H, "op", "r", 0).unwrap();
     let e = one(b.unshelve(C, Some(LF), "op 2", H).unwrap());
     assert_eq!(
         (e.transition, e.state, e.by.as_deref()),
-        (
-            Transition::Unshelved,
-            AlarmState::Unacknowledged,
-            Some("op 2")
-        )
+        (Transition::Unshelved, AlarmState::Unacknowledged, Some("op 2"))
     );
     assert!(b.unshelve(C, Some(LF), "op 2", H).unwrap().is_empty());
     // An alarm that had returned to normal unacknowledged comes back normal.
@@ -375,24 +254,15 @@ fn shelve_window_is_checked() {
 fn unknown_alarms_are_errors_that_name_them() {
     let mut b = AlarmBook::new();
     lf(&mut b, 0.1, 0);
-    let e = b
-        .acknowledge(C, Some(AlarmIndex::WearIndex), "op", 0)
-        .unwrap_err()
-        .to_string();
+    let e = b.acknowledge(C, Some(AlarmIndex::WearIndex), "op", 0).unwrap_err().to_string();
     assert!(
         e.contains("no alarm \"U2-SH3-OUTLET-LEG-A/wear_index\"")
             && e.contains("U2-SH3-OUTLET-LEG-A/creep_life_fraction"),
         "{e}"
     );
-    let e = b
-        .acknowledge("U9-NOPE", None, "op", 0)
-        .unwrap_err()
-        .to_string();
+    let e = b.acknowledge("U9-NOPE", None, "op", 0).unwrap_err().to_string();
     assert!(e.contains("\"U9-NOPE\""), "{e}");
-    let e = b
-        .shelve("U9-NOPE", Some(LF), H, "op", "r", 0)
-        .unwrap_err()
-        .to_string();
+    let e = b.shelve("U9-NOPE", Some(LF), H, "op", "r", 0).unwrap_err().to_string();
     assert!(e.contains("\"U9-NOPE/creep_life_fraction\""), "{e}");
     assert!(b.unshelve("U9-NOPE", None, "op", 0).is_err());
 }
@@ -402,10 +272,7 @@ fn nan_changes_nothing() {
     let mut b = AlarmBook::new();
     lf(&mut b, 0.51, 0);
     assert!(lf(&mut b, f64::NAN, H).is_empty());
-    assert_eq!(
-        b.record(&format!("{C}/creep_life_fraction")).unwrap().value,
-        0.51
-    );
+    assert_eq!(b.record(&format!("{C}/creep_life_fraction")).unwrap().value, 0.51);
 }
 
 #[test]
@@ -413,107 +280,43 @@ fn conditions_follow_the_same_states() {
     let mut b = AlarmBook::new();
     let idx = AlarmIndex::SensorStale;
     assert!(b.evaluate_condition(C, U, idx, false, "", 0).is_empty());
-    let e = one(b.evaluate_condition(
-        C,
-        U,
-        idx,
-        true,
-        "tag TT-301 has had no sample for 20 min",
-        H,
-    ));
-    assert_eq!(
-        (e.severity, e.state, e.threshold),
-        (Some(Severity::Warning), AlarmState::Unacknowledged, None)
-    );
-    assert_eq!(
-        e.message,
-        "U2-SH3-OUTLET-LEG-A sensor stale: tag TT-301 has had no sample for 20 min"
-    );
+    let e = one(b.evaluate_condition(C, U, idx, true, "tag TT-301 has had no sample for 20 min", H));
+    assert_eq!((e.severity, e.state, e.threshold), (Some(Severity::Warning), AlarmState::Unacknowledged, None));
+    assert_eq!(e.message, "U2-SH3-OUTLET-LEG-A sensor stale: tag TT-301 has had no sample for 20 min");
     assert!(b.evaluate_condition(C, U, idx, true, "", 2 * H).is_empty());
     let e = one(b.evaluate_condition(C, U, idx, false, "", 3 * H));
-    assert_eq!(
-        (e.transition, e.state),
-        (Transition::Cleared, AlarmState::RtnUnacknowledged)
-    );
-    assert!(
-        e.message
-            .starts_with("U2-SH3-OUTLET-LEG-A sensor stale cleared, awaiting acknowledge"),
-        "{}",
-        e.message
-    );
-    let s = one(b.evaluate_condition(
-        "service",
-        "",
-        AlarmIndex::ServiceHealth,
-        true,
-        "outbox over quota",
-        0,
-    ));
+    assert_eq!((e.transition, e.state), (Transition::Cleared, AlarmState::RtnUnacknowledged));
+    assert!(e.message.starts_with("U2-SH3-OUTLET-LEG-A sensor stale cleared, awaiting acknowledge"), "{}", e.message);
+    let s = one(b.evaluate_condition("service", "", AlarmIndex::ServiceHealth, true, "outbox over quota", 0));
     assert_eq!(s.key(), "service/service_health");
 }
 
 #[test]
 fn book_round_trips_through_json_and_records() {
     let config = AlarmConfig {
-        deadbands: [(
-            AlarmIndex::HoursToCritical,
-            Deadband {
-                fraction: 0.05,
-                minimum: 24.0,
-            },
-        )]
-        .into(),
+        deadbands: [(AlarmIndex::HoursToCritical, Deadband { fraction: 0.05, minimum: 24.0 })].into(),
         ..AlarmConfig::default()
     };
     let mut b = AlarmBook::new().with_config(config.clone());
     lf(&mut b, 0.75, 0);
     b.acknowledge(C, Some(LF), "op", H).unwrap();
-    b.evaluate(
-        C,
-        U,
-        AlarmIndex::HoursToCritical,
-        f64::INFINITY,
-        &DEFAULT_HOURS_TO_CRITICAL,
-        H,
-    );
+    b.evaluate(C, U, AlarmIndex::HoursToCritical, f64::INFINITY, &DEFAULT_HOURS_TO_CRITICAL, H);
     b.evaluate_condition(C, U, AlarmIndex::SensorBadQuality, true, "quality 0x00", H);
-    b.shelve(
-        C,
-        Some(AlarmIndex::SensorBadQuality),
-        5 * H,
-        "op",
-        "known fault",
-        H,
-    )
-    .unwrap();
+    b.shelve(C, Some(AlarmIndex::SensorBadQuality), 5 * H, "op", "known fault", H).unwrap();
     let json = serde_json::to_string(&b).unwrap();
     let back: AlarmBook = serde_json::from_str(&json).unwrap();
     assert_eq!(serde_json::to_string(&back).unwrap(), json);
-    assert!(back
-        .record(&format!("{C}/hours_to_critical"))
-        .unwrap()
-        .value
-        .is_infinite());
+    assert!(back.record(&format!("{C}/hours_to_critical")).unwrap().value.is_infinite());
     // Record by record, as the store keeps them.
-    let stored: Vec<(String, String)> = b
-        .records()
-        .map(|r| (r.key(), serde_json::to_string(r).unwrap()))
-        .collect();
+    let stored: Vec<(String, String)> = b.records().map(|r| (r.key(), serde_json::to_string(r).unwrap())).collect();
     assert_eq!(stored.len(), 3);
     assert_eq!(back.config(), &config);
-    let restored = AlarmBook::from_records(
-        stored
-            .iter()
-            .map(|(_, j)| serde_json::from_str::<AlarmRecord>(j).unwrap()),
-    );
+    let restored = AlarmBook::from_records(stored.iter().map(|(_, j)| serde_json::from_str::<AlarmRecord>(j).unwrap()));
     let restored = restored.with_config(config);
     assert_eq!(serde_json::to_string(&restored).unwrap(), json);
     // And it carries on where it left off.
     let mut restored = restored;
-    assert_eq!(
-        one(restored.tick(5 * H)).transition,
-        Transition::ShelveExpired
-    );
+    assert_eq!(one(restored.tick(5 * H)).transition, Transition::ShelveExpired);
     assert!(lf(&mut restored, 0.76, 6 * H).is_empty());
 }
 
@@ -527,22 +330,13 @@ fn summary_of_a_component() {
         U,
         AlarmIndex::WearIndex,
         0.9,
-        &Levels {
-            advisory: None,
-            warning: Some(0.5),
-            critical: Some(0.8),
-        },
+        &Levels { advisory: None, warning: Some(0.5), critical: Some(0.8) },
         0,
     );
-    b.shelve(C, Some(AlarmIndex::WearIndex), H, "op", "r", 0)
-        .unwrap();
-    b.acknowledge(C, Some(AlarmIndex::SensorStale), "op", 0)
-        .unwrap();
+    b.shelve(C, Some(AlarmIndex::WearIndex), H, "op", "r", 0).unwrap();
+    b.acknowledge(C, Some(AlarmIndex::SensorStale), "op", 0).unwrap();
     let s = b.current(C);
-    assert_eq!(
-        (s.worst_severity, s.active, s.unacknowledged, s.shelved),
-        (Some(Severity::Warning), 2, 1, 1)
-    );
+    assert_eq!((s.worst_severity, s.active, s.unacknowledged, s.shelved), (Some(Severity::Warning), 2, 1, 1));
     assert_eq!(s.unit, "U2");
     assert_eq!(s.alarms.len(), 3);
     let j: serde_json::Value = serde_json::from_str(&s.to_json()).unwrap();
@@ -559,25 +353,18 @@ fn commands_drive_the_book() {
     let cmd = parse_command(br#"{"action":"shelve","component":"U2-SH3-OUTLET-LEG-A","index":"creep_life_fraction","duration_h":8,"by":"operator 7","reason":"probe swap"}"#).unwrap();
     let e = one(b.apply(&cmd, H).unwrap());
     assert_eq!(e.shelved_until.as_deref(), Some("1970-01-01T09:00:00.000Z"));
-    let cmd = parse_command(br#"{"action":"unshelve","component":"U2-SH3-OUTLET-LEG-A/creep_life_fraction","by":"operator 7"}"#).unwrap();
-    assert_eq!(
-        one(b.apply(&cmd, 2 * H).unwrap()).state,
-        AlarmState::Unacknowledged
-    );
     let cmd = parse_command(
-        br#"{"action":"acknowledge","component":"U2-SH3-OUTLET-LEG-A","by":"operator 7"}"#,
+        br#"{"action":"unshelve","component":"U2-SH3-OUTLET-LEG-A/creep_life_fraction","by":"operator 7"}"#,
     )
     .unwrap();
-    assert_eq!(
-        one(b.apply(&cmd, 3 * H).unwrap()).state,
-        AlarmState::Acknowledged
-    );
-    let cmd = parse_command(br#"{"action":"acknowledge","component":"U2-OTHER","index":"creep_strain","by":"operator 7"}"#).unwrap();
-    assert!(b
-        .apply(&cmd, 3 * H)
-        .unwrap_err()
-        .to_string()
-        .contains("U2-OTHER/creep_strain"));
+    assert_eq!(one(b.apply(&cmd, 2 * H).unwrap()).state, AlarmState::Unacknowledged);
+    let cmd =
+        parse_command(br#"{"action":"acknowledge","component":"U2-SH3-OUTLET-LEG-A","by":"operator 7"}"#).unwrap();
+    assert_eq!(one(b.apply(&cmd, 3 * H).unwrap()).state, AlarmState::Acknowledged);
+    let cmd =
+        parse_command(br#"{"action":"acknowledge","component":"U2-OTHER","index":"creep_strain","by":"operator 7"}"#)
+            .unwrap();
+    assert!(b.apply(&cmd, 3 * H).unwrap_err().to_string().contains("U2-OTHER/creep_strain"));
 }
 
 #[test]
@@ -594,14 +381,7 @@ fn every_event_carries_the_caution() {
     all.extend(b.unshelve(C, None, "op", 5 * H).unwrap());
     all.extend(b.shelve(C, None, 6 * H, "op", "r", 5 * H).unwrap());
     all.extend(b.tick(7 * H));
-    all.extend(b.evaluate_condition(
-        C,
-        U,
-        AlarmIndex::SensorOutOfRange,
-        true,
-        "TT above 900 degC",
-        7 * H,
-    ));
+    all.extend(b.evaluate_condition(C, U, AlarmIndex::SensorOutOfRange, true, "TT above 900 degC", 7 * H));
     let kinds: std::collections::BTreeSet<&str> = all.iter().map(|e| e.transition.name()).collect();
     assert_eq!(kinds.len(), 8, "{kinds:?}");
     for e in &all {
@@ -619,11 +399,7 @@ fn event_as_a_database_point() {
     let p = e.to_point("North Works");
     assert_eq!(p.measurement, "alarm_event");
     assert_eq!(p.time_ns, 1_700_000_000_000_000_000);
-    let tags: Vec<(&str, &str)> = p
-        .tags
-        .iter()
-        .map(|(k, v)| (k.as_str(), v.as_str()))
-        .collect();
+    let tags: Vec<(&str, &str)> = p.tags.iter().map(|(k, v)| (k.as_str(), v.as_str())).collect();
     assert_eq!(
         tags,
         [
@@ -704,15 +480,9 @@ allowable_depth = { value = 1.0, unit = "mm" }
 
 #[test]
 fn component_evaluation_runs_the_indices_that_apply() {
-    let plan = plan_settings("test", toml::from_str(CONFIG).unwrap())
-        .unwrap()
-        .plan;
+    let plan = plan_settings("test", toml::from_str(CONFIG).unwrap()).unwrap().plan;
     let tube = plan.components.iter().find(|c| c.name == "TUBE").unwrap();
-    let support = plan
-        .components
-        .iter()
-        .find(|c| c.name == "SUPPORT")
-        .unwrap();
+    let support = plan.components.iter().find(|c| c.name == "SUPPORT").unwrap();
     let mut b = AlarmBook::new();
 
     let mut st = ComponentState::new(tube);
@@ -722,8 +492,7 @@ fn component_evaluation_runs_the_indices_that_apply() {
     st.creep_strain = 0.001;
     st.now.metal_temperature_k = tube.design_temperature_k.unwrap() + 3.0;
     let ev = b.evaluate_component(tube, &st, H);
-    let mut got: Vec<(&str, Option<Severity>)> =
-        ev.iter().map(|e| (e.index.name(), e.severity)).collect();
+    let mut got: Vec<(&str, Option<Severity>)> = ev.iter().map(|e| (e.index.name(), e.severity)).collect();
     got.sort();
     assert_eq!(
         got,
@@ -754,28 +523,21 @@ fn component_evaluation_runs_the_indices_that_apply() {
     let mut st = ComponentState::new(support);
     st.wear_depth_mm = 0.85;
     let e = one(b.evaluate_component(support, &st, H));
-    assert_eq!(
-        (e.index, e.severity),
-        (AlarmIndex::WearIndex, Some(Severity::Critical))
-    );
+    assert_eq!((e.index, e.severity), (AlarmIndex::WearIndex, Some(Severity::Critical)));
     assert!(b.record("SUPPORT/creep_life_fraction").is_none());
 
     // Book-wide damage-rate levels switch that index on.
     let mut b = AlarmBook::new().with_config(AlarmConfig {
-        damage_rate: Levels {
-            advisory: None,
-            warning: Some(1e-5),
-            critical: None,
-        },
+        damage_rate: Levels { advisory: None, warning: Some(1e-5), critical: None },
         ..AlarmConfig::default()
     });
     let mut st = ComponentState::new(tube);
     st.recent_life_fraction_rate_per_h = 2e-5;
     let ev = b.evaluate_component(tube, &st, H);
     assert!(
-        ev.iter().any(|e| e.index == AlarmIndex::DamageRate
-            && e.message
-                .contains("2e-5 /h reached the warning level 1e-5 /h")),
+        ev.iter()
+            .any(|e| e.index == AlarmIndex::DamageRate
+                && e.message.contains("2e-5 /h reached the warning level 1e-5 /h")),
         "{ev:#?}"
     );
 }

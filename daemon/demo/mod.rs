@@ -126,9 +126,15 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
     let simulator = sim::Simulator::new(&plan, start_ms);
     println!("lifeledger demo: {} (invented plant, demo data only)", plan.plant);
     println!("  status page      http://{}/", opts.http);
-    println!("  embedded broker  mqtt://127.0.0.1:{broker_port} (tags on brackenmoor/<tag>, alarms on lifeledger/alarms/#)");
+    println!(
+        "  embedded broker  mqtt://127.0.0.1:{broker_port} (tags on brackenmoor/<tag>, alarms on lifeledger/alarms/#)"
+    );
     println!("  ledger           {}", dir.join("ledger.sqlite").display());
-    println!("  speed            {:.0} simulated seconds per second ({:.1} simulated days per second)", opts.speed, opts.speed / 86_400.0);
+    println!(
+        "  speed            {:.0} simulated seconds per second ({:.1} simulated days per second)",
+        opts.speed,
+        opts.speed / 86_400.0
+    );
     println!("  what to watch    day {:.0}: start-up; day {:.0}: over-temperature on outlet leg A (warning); day {:.0}: thermocouple of leg B fails (out-of-range, then stale-tag alarm); day {:.0}: shutdown and restart", 0.0, sim::EXCURSION_DAY, sim::FAILURE_DAY, sim::SHUTDOWN_DAY);
     println!("  {}", crate::CAUTION);
     println!("  Ctrl-C stops.");
@@ -171,7 +177,8 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
             while next_ms <= sim_now {
                 for s in simulator.samples_at(next_ms) {
                     let payload = format!("{{\"value\": {}, \"timestamp\": {}}}", s.value, s.time_ms);
-                    if client.publish(format!("brackenmoor/{}", s.tag), QoS::AtLeastOnce, false, payload).await.is_err() {
+                    if client.publish(format!("brackenmoor/{}", s.tag), QoS::AtLeastOnce, false, payload).await.is_err()
+                    {
                         return;
                     }
                 }

@@ -88,12 +88,25 @@ impl Simulator {
             };
             let is_temp = tp.unit.quantity == Quantity::Temperature;
             let excursion = is_temp
-                && reader.is_some_and(|c| c.name.contains("OUTLET-LEG-A") || (c.metal_temperature == Some(Input::Tag(id)) && temp_tags_seen == 0 && !plan.components.iter().any(|c| c.name.contains("OUTLET-LEG-A"))));
+                && reader.is_some_and(|c| {
+                    c.name.contains("OUTLET-LEG-A")
+                        || (c.metal_temperature == Some(Input::Tag(id))
+                            && temp_tags_seen == 0
+                            && !plan.components.iter().any(|c| c.name.contains("OUTLET-LEG-A")))
+                });
             let failing = is_temp && reader.is_some_and(|c| c.name.contains("OUTLET-LEG-B"));
             if is_temp {
                 temp_tags_seen += 1;
             }
-            tags.push(SimTag { name: tp.name.clone(), quantity: tp.unit.quantity, full, cold, unit: tp.clone(), excursion, failing });
+            tags.push(SimTag {
+                name: tp.name.clone(),
+                quantity: tp.unit.quantity,
+                full,
+                cold,
+                unit: tp.clone(),
+                excursion,
+                failing,
+            });
         }
         // Without the named parts, the second temperature tag fails.
         if !tags.iter().any(|t| t.failing) {
@@ -152,7 +165,11 @@ impl Simulator {
                 }
             }
             // Internal value to the tag's engineering unit, then to raw.
-            let eng = if t.unit.unit.quantity == Quantity::Temperature && v > 4000.0 { 5000.0 } else { t.unit.unit.from_internal(v) };
+            let eng = if t.unit.unit.quantity == Quantity::Temperature && v > 4000.0 {
+                5000.0
+            } else {
+                t.unit.unit.from_internal(v)
+            };
             let raw = (eng - t.unit.offset) / t.unit.scale;
             out.push(SimSample { tag: t.name.clone(), time_ms, value: (raw * 1000.0).round() / 1000.0 });
         }

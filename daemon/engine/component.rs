@@ -15,7 +15,7 @@ use crate::physics::histogram::TimeAtCondition;
 use crate::physics::larson_miller::RangeFlags;
 use crate::physics::norton::creep_rate_per_h_ln;
 use crate::physics::stress::{hoop_stress_mpa, remaining_wall_mm};
-use crate::physics::wear::{fretting_sliding_speed_mm_s, FrettingRegime, fretting_regime};
+use crate::physics::wear::{fretting_regime, fretting_sliding_speed_mm_s, FrettingRegime};
 use crate::settings::schema::{GapPolicy, Interpolation, WearModel};
 use serde::{Deserialize, Serialize};
 
@@ -117,10 +117,7 @@ impl ComponentState {
             peak_temperature_k: f64::NEG_INFINITY,
             flags: LedgerFlags::default(),
             now: Conditions::default(),
-            histogram: TimeAtCondition::new(
-                plan.temperature_edges_k.clone(),
-                plan.pressure_edges_mpa.clone(),
-            ),
+            histogram: TimeAtCondition::new(plan.temperature_edges_k.clone(), plan.pressure_edges_mpa.clone()),
         }
     }
 
@@ -329,7 +326,8 @@ fn integrate_piece(
         slip_mm: lsl.at(dt),
         freq_hz: lf.at(dt),
     };
-    let thinning = matches!(plan.stress, StressPlan::Hoop { thinning_rate_mm_per_year, .. } if thinning_rate_mm_per_year > 0.0);
+    let thinning =
+        matches!(plan.stress, StressPlan::Hoop { thinning_rate_mm_per_year, .. } if thinning_rate_mm_per_year > 0.0);
     let constant = lt.k == 0.0 && lp.k == 0.0 && ll.k == 0.0 && ls.k == 0.0 && lsl.k == 0.0 && lf.k == 0.0 && !thinning;
     let start_ms = state.first_sample_ms.unwrap_or(a_ms);
     let threshold_k = plan.creep_threshold_k();
@@ -361,8 +359,7 @@ fn integrate_piece(
         let dtk = (lt.k * span).abs();
         let pmax = lp.v0.abs().max(lp.at(span).abs()).max(1e-9);
         let dpr = (lp.k * span).abs() / pmax;
-        let n = ((dtk / PANEL_TEMPERATURE_STEP_K).max(dpr / PANEL_PRESSURE_STEP).ceil() as usize)
-            .clamp(1, MAX_PANELS);
+        let n = ((dtk / PANEL_TEMPERATURE_STEP_K).max(dpr / PANEL_PRESSURE_STEP).ceil() as usize).clamp(1, MAX_PANELS);
         // Small steps: the trapezoid rule on the end rates (one new rate
         // evaluation, the start is memoised from the previous piece). Its
         // error on an exponential-like rate is about (k·ΔT)²/12 with
@@ -474,7 +471,15 @@ fn account_node(plan: &ComponentPlan, state: &mut ComponentState, p: &Point, r: 
 /// the histogram class is taken once, at the midpoint (the steps are small),
 /// the peak from both ends.
 #[inline]
-fn account_pair(plan: &ComponentPlan, state: &mut ComponentState, p0: &Point, r0: &Rates, p1: &Point, r1: &Rates, dt_h: f64) {
+fn account_pair(
+    plan: &ComponentPlan,
+    state: &mut ComponentState,
+    p0: &Point,
+    r0: &Rates,
+    p1: &Point,
+    r1: &Rates,
+    dt_h: f64,
+) {
     if plan.metal_temperature.is_some() {
         let (tm, pm) = (0.5 * (p0.t_k + p1.t_k), 0.5 * (p0.p_mpa + p1.p_mpa));
         state.histogram.add(tm, pm, dt_h);

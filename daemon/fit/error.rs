@@ -8,11 +8,7 @@
 pub enum FitError {
     /// A problem with one line (or the header) of the input file.
     #[error("{file}: line {line}: {message}")]
-    Input {
-        file: String,
-        line: usize,
-        message: String,
-    },
+    Input { file: String, line: usize, message: String },
 
     /// The file has a header but no data lines.
     #[error("{file}: no test data after the header on line {header_line}")]
@@ -34,11 +30,7 @@ pub enum FitError {
 
 impl FitError {
     pub(crate) fn input(file: &str, line: usize, message: impl Into<String>) -> Self {
-        FitError::Input {
-            file: file.to_string(),
-            line,
-            message: message.into(),
-        }
+        FitError::Input { file: file.to_string(), line, message: message.into() }
     }
 }
 
@@ -56,11 +48,7 @@ pub(crate) fn line_list(lines: &[usize]) -> String {
             i += 1;
             end = v[i];
         }
-        parts.push(if end == start {
-            start.to_string()
-        } else {
-            format!("{start}-{end}")
-        });
+        parts.push(if end == start { start.to_string() } else { format!("{start}-{end}") });
         i += 1;
     }
     parts.join(", ")

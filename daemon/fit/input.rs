@@ -127,9 +127,7 @@ fn classify(name: &str) -> Result<Column, String> {
             ))
         }
         n if n.starts_with("stress") => {
-            return Err(format!(
-                "column {n:?}: unknown stress unit; use stress_mpa, stress_ksi or stress_psi"
-            ))
+            return Err(format!("column {n:?}: unknown stress unit; use stress_mpa, stress_ksi or stress_psi"))
         }
         n if n.starts_with("rupture") => {
             return Err(format!("column {n:?}: unknown rupture-time unit; give hours as rupture_h"))
@@ -191,12 +189,7 @@ struct Layout {
     specimen: Option<usize>,
 }
 
-fn parse_header(
-    file: &str,
-    line_no: usize,
-    line: &str,
-    kind: Kind,
-) -> Result<(Layout, Vec<String>), FitError> {
+fn parse_header(file: &str, line_no: usize, line: &str, kind: Kind) -> Result<(Layout, Vec<String>), FitError> {
     let line = line.trim_start_matches('\u{feff}');
     let sep = if !line.contains(',') && line.contains(';') {
         ';'
@@ -205,8 +198,7 @@ fn parse_header(
     } else {
         ','
     };
-    let names = split_fields(line, sep)
-        .map_err(|m| FitError::input(file, line_no, format!("header: {m}")))?;
+    let names = split_fields(line, sep).map_err(|m| FitError::input(file, line_no, format!("header: {m}")))?;
     let mut columns = Vec::with_capacity(names.len());
     let mut notes = Vec::new();
     let (mut temperature, mut stress, mut rupture, mut rate, mut heat, mut specimen) =
@@ -214,14 +206,9 @@ fn parse_header(
     for (i, raw) in names.iter().enumerate() {
         let name = raw.to_ascii_lowercase();
         if name.is_empty() {
-            return Err(FitError::input(
-                file,
-                line_no,
-                format!("header: column {} has no name", i + 1),
-            ));
+            return Err(FitError::input(file, line_no, format!("header: column {} has no name", i + 1)));
         }
-        let col =
-            classify(&name).map_err(|m| FitError::input(file, line_no, format!("header: {m}")))?;
+        let col = classify(&name).map_err(|m| FitError::input(file, line_no, format!("header: {m}")))?;
         let slot = match col {
             Column::Temperature(_) => Some((&mut temperature, "temperature")),
             Column::Stress(_) => Some((&mut stress, "stress")),
@@ -237,37 +224,25 @@ fn parse_header(
                     return Err(FitError::input(
                         file,
                         line_no,
-                        format!(
-                            "header: two {what} columns ({:?} and {:?}); keep one",
-                            names[j], raw
-                        ),
+                        format!("header: two {what} columns ({:?} and {:?}); keep one", names[j], raw),
                     ));
                 }
                 *slot = Some(i);
             }
-            None => notes.push(format!(
-                "column {raw:?} (header line {line_no}) is not used by the fit"
-            )),
+            None => notes.push(format!("column {raw:?} (header line {line_no}) is not used by the fit")),
         }
         columns.push(col);
     }
     let missing = |what: &str, choices: &str| {
-        FitError::input(
-            file,
-            line_no,
-            format!("header has no {what} column; add one of {choices}"),
-        )
+        FitError::input(file, line_no, format!("header has no {what} column; add one of {choices}"))
     };
-    let temperature = temperature
-        .ok_or_else(|| missing("temperature", "temperature_c, temperature_k, temperature_f"))?;
+    let temperature =
+        temperature.ok_or_else(|| missing("temperature", "temperature_c, temperature_k, temperature_f"))?;
     let stress = stress.ok_or_else(|| missing("stress", "stress_mpa, stress_ksi, stress_psi"))?;
     let value = match kind {
         Kind::Rupture => {
             if let Some(j) = rate {
-                notes.push(format!(
-                    "column {:?} (creep rate) is not used by the Larson-Miller fit",
-                    names[j]
-                ));
+                notes.push(format!("column {:?} (creep rate) is not used by the Larson-Miller fit", names[j]));
             }
             rupture.ok_or_else(|| {
                 let hint = if rate.is_some() {
@@ -284,10 +259,7 @@ fn parse_header(
         }
         Kind::Rate => {
             if let Some(j) = rupture {
-                notes.push(format!(
-                    "column {:?} (rupture time) is not used by the Norton fit",
-                    names[j]
-                ));
+                notes.push(format!("column {:?} (rupture time) is not used by the Norton fit", names[j]));
             }
             rate.ok_or_else(|| {
                 let hint = if rupture.is_some() {
@@ -298,24 +270,14 @@ fn parse_header(
                 FitError::input(
                     file,
                     line_no,
-                    format!("header has no creep-rate column; add one of rate_per_h, rate_per_s, rate_percent_per_h{hint}"),
+                    format!(
+                        "header has no creep-rate column; add one of rate_per_h, rate_per_s, rate_percent_per_h{hint}"
+                    ),
                 )
             })?
         }
     };
-    Ok((
-        Layout {
-            sep,
-            columns,
-            names,
-            temperature,
-            stress,
-            value,
-            heat,
-            specimen,
-        },
-        notes,
-    ))
+    Ok((Layout { sep, columns, names, temperature, stress, value, heat, specimen }, notes))
 }
 
 struct Row {
@@ -333,16 +295,8 @@ fn parse_number(file: &str, line: usize, name: &str, field: &str) -> Result<f64,
     }
     match field.parse::<f64>() {
         Ok(v) if v.is_finite() => Ok(v),
-        Ok(_) => Err(FitError::input(
-            file,
-            line,
-            format!("{name} = {field:?} is not a finite number"),
-        )),
-        Err(_) => Err(FitError::input(
-            file,
-            line,
-            format!("{name} = {field:?} is not a number"),
-        )),
+        Ok(_) => Err(FitError::input(file, line, format!("{name} = {field:?} is not a finite number"))),
+        Err(_) => Err(FitError::input(file, line, format!("{name} = {field:?} is not a number"))),
     }
 }
 
@@ -407,11 +361,7 @@ fn parse_rows(text: &str, file: &str, kind: Kind) -> Result<Parsed, FitError> {
         let s_name = &layout.names[layout.stress];
         let s_raw = parse_number(file, n, s_name, &fields[layout.stress])?;
         if s_raw <= 0.0 {
-            return Err(FitError::input(
-                file,
-                n,
-                format!("{s_name} = {s_raw} must be positive"),
-            ));
+            return Err(FitError::input(file, n, format!("{s_name} = {s_raw} must be positive")));
         }
         let Column::Stress(s_factor) = layout.columns[layout.stress] else {
             unreachable!("stress index points at a stress column")
@@ -422,11 +372,7 @@ fn parse_rows(text: &str, file: &str, kind: Kind) -> Result<Parsed, FitError> {
                 Kind::Rupture => "rupture times must be positive (a log10 of time is fitted)",
                 Kind::Rate => "creep rates must be positive (a log of the rate is fitted)",
             };
-            return Err(FitError::input(
-                file,
-                n,
-                format!("{value_name} = {v_raw}: {why}"),
-            ));
+            return Err(FitError::input(file, n, format!("{value_name} = {v_raw}: {why}")));
         }
         let v_factor = match layout.columns[layout.value] {
             Column::Rate(f) => f,
@@ -443,10 +389,7 @@ fn parse_rows(text: &str, file: &str, kind: Kind) -> Result<Parsed, FitError> {
         });
     }
     if rows.is_empty() {
-        return Err(FitError::NoData {
-            file: file.to_string(),
-            header_line,
-        });
+        return Err(FitError::NoData { file: file.to_string(), header_line });
     }
     if !low_kelvin_lines.is_empty() {
         notes.push(format!(
@@ -473,11 +416,7 @@ pub fn parse_rupture_tests(text: &str, file: &str) -> Result<TestFile<RuptureTes
             specimen: r.specimen,
         })
         .collect();
-    Ok(TestFile {
-        tests,
-        columns,
-        notes,
-    })
+    Ok(TestFile { tests, columns, notes })
 }
 
 /// Read a minimum-creep-rate test file (`temperature_*`, `stress_*`,
@@ -496,11 +435,7 @@ pub fn parse_rate_tests(text: &str, file: &str) -> Result<TestFile<RateTest>, Fi
             specimen: r.specimen,
         })
         .collect();
-    Ok(TestFile {
-        tests,
-        columns,
-        notes,
-    })
+    Ok(TestFile { tests, columns, notes })
 }
 
 #[cfg(test)]
@@ -513,8 +448,7 @@ mod tests {
 
     #[test]
     fn reads_units_and_comments() {
-        let text =
-            "# comment\n\nTemperature_F,stress_ksi,rupture_h,heat,notes\n1022,10,1000,\"A, 1\",x\n";
+        let text = "# comment\n\nTemperature_F,stress_ksi,rupture_h,heat,notes\n1022,10,1000,\"A, 1\",x\n";
         let f = parse_rupture_tests(text, "t.csv").unwrap();
         let t = &f.tests[0];
         assert_eq!(t.line, 4);
@@ -527,17 +461,9 @@ mod tests {
 
     #[test]
     fn rate_units() {
-        let f = parse_rate_tests(
-            "temperature_k;stress_mpa;rate_per_s\n900;100;1e-8\n",
-            "r.csv",
-        )
-        .unwrap();
+        let f = parse_rate_tests("temperature_k;stress_mpa;rate_per_s\n900;100;1e-8\n", "r.csv").unwrap();
         assert!((f.tests[0].rate_per_h - 3.6e-5).abs() < 1e-18);
-        let f = parse_rate_tests(
-            "temperature_c,stress_mpa,rate_percent_per_h\n600,100,0.002\n",
-            "r.csv",
-        )
-        .unwrap();
+        let f = parse_rate_tests("temperature_c,stress_mpa,rate_percent_per_h\n600,100,0.002\n", "r.csv").unwrap();
         assert!((f.tests[0].rate_per_h - 2e-5).abs() < 1e-18);
     }
 
@@ -545,25 +471,17 @@ mod tests {
     fn errors_name_lines() {
         assert!(err("temperature_c,stress_bar,rupture_h\n")
             .contains("line 1: header: column \"stress_bar\": unknown stress unit"));
-        assert!(err("temperature_c,stress_mpa\n600,100\n")
-            .contains("line 1: header has no rupture-time column"));
-        assert!(
-            err("temperature_c,stress_mpa,rupture_h\n600,100,10\n600,-1,10\n")
-                .contains("line 3: stress_mpa = -1 must be positive")
-        );
-        assert!(err("temperature_c,stress_mpa,rupture_h\n600,100,0\n")
-            .contains("line 2: rupture_h = 0"));
+        assert!(err("temperature_c,stress_mpa\n600,100\n").contains("line 1: header has no rupture-time column"));
+        assert!(err("temperature_c,stress_mpa,rupture_h\n600,100,10\n600,-1,10\n")
+            .contains("line 3: stress_mpa = -1 must be positive"));
+        assert!(err("temperature_c,stress_mpa,rupture_h\n600,100,0\n").contains("line 2: rupture_h = 0"));
         assert!(err("temperature_c,stress_mpa,rupture_h\n600,abc,10\n")
             .contains("line 2: stress_mpa = \"abc\" is not a number"));
         assert!(err("temperature_c,stress_mpa,rupture_h\n600,100\n")
             .contains("line 2: 2 fields, but the header (line 1) has 3 columns"));
-        assert!(err("temperature_c,stress_mpa,rupture_h\n-300,100,10\n")
-            .contains("below absolute zero"));
-        assert!(err("temperature_c,temperature_k,stress_mpa,rupture_h\n")
-            .contains("two temperature columns"));
-        assert!(
-            err("temperature_c,stress_mpa,rupture_h\n# only a comment\n").contains("no test data")
-        );
+        assert!(err("temperature_c,stress_mpa,rupture_h\n-300,100,10\n").contains("below absolute zero"));
+        assert!(err("temperature_c,temperature_k,stress_mpa,rupture_h\n").contains("two temperature columns"));
+        assert!(err("temperature_c,stress_mpa,rupture_h\n# only a comment\n").contains("no test data"));
         assert!(err("").contains("line 1: the file is empty"));
         assert!(err("temperature_c,stress_mpa,rate_per_h\n").contains("fit norton"));
     }

@@ -96,13 +96,7 @@ pub struct LmOptions {
 
 impl Default for LmOptions {
     fn default() -> Self {
-        LmOptions {
-            constant: None,
-            order: None,
-            criterion: Criterion::Bic,
-            k: 1.645,
-            outlier_threshold: 2.5,
-        }
+        LmOptions { constant: None, order: None, criterion: Criterion::Bic, k: 1.645, outlier_threshold: 2.5 }
     }
 }
 
@@ -114,11 +108,7 @@ pub enum OrderChoice {
     User,
     /// Chosen by an information criterion; the scores of every order
     /// tried (lower is better) and the orders the data could not carry.
-    Criterion {
-        criterion: Criterion,
-        scores: Vec<OrderScore>,
-        not_tried: Vec<String>,
-    },
+    Criterion { criterion: Criterion, scores: Vec<OrderScore>, not_tried: Vec<String> },
 }
 
 /// Score of one candidate order.
@@ -202,9 +192,7 @@ impl LmFit {
 
     /// Minimum-curve rupture life in hours: `10^(log10 t_mean − k·SEE)`.
     pub fn minimum_rupture_life_h(&self, stress_mpa: f64, temperature_k: f64) -> f64 {
-        10f64.powf(
-            self.log10_rupture_life_h(stress_mpa, temperature_k) - self.minimum_offset_log10_h,
-        )
+        10f64.powf(self.log10_rupture_life_h(stress_mpa, temperature_k) - self.minimum_offset_log10_h)
     }
 
     /// The text for the `source` field of the material block.
@@ -212,11 +200,7 @@ impl LmFit {
         let c = if self.constant_fixed {
             format!("C = {} (given)", self.constant_c)
         } else {
-            format!(
-                "C = {:.4} ± {:.4} (fitted)",
-                self.constant_c,
-                self.constant_c_se.unwrap_or(f64::NAN)
-            )
+            format!("C = {:.4} ± {:.4} (fitted)", self.constant_c, self.constant_c_se.unwrap_or(f64::NAN))
         };
         let order = match &self.order_choice {
             OrderChoice::User => format!("order {} (given)", self.order),
@@ -239,9 +223,7 @@ impl LmFit {
             coefficients: self.coefficients.clone(),
             stress_range_mpa: self.stress_range_mpa,
             temperature_range_k: self.temperature_range_k,
-            minimum: MinimumCurveRule::LogTimeOffset {
-                offset: self.minimum_offset_log10_h,
-            },
+            minimum: MinimumCurveRule::LogTimeOffset { offset: self.minimum_offset_log10_h },
             source: self.provenance(input_name),
         }
     }
@@ -252,11 +234,7 @@ pub(crate) fn poly(c: &[f64], x: f64) -> f64 {
 }
 
 fn poly_slope(c: &[f64], x: f64) -> f64 {
-    c.iter()
-        .enumerate()
-        .skip(1)
-        .rev()
-        .fold(0.0, |acc, (i, a)| acc * x + a * i as f64)
+    c.iter().enumerate().skip(1).rev().fold(0.0, |acc, (i, a)| acc * x + a * i as f64)
 }
 
 /// Distinct values (relative tolerance 1e-9), ascending.
@@ -268,36 +246,28 @@ pub(crate) fn distinct(values: impl Iterator<Item = f64>) -> Vec<f64> {
 }
 
 pub(crate) fn range(values: impl Iterator<Item = f64>) -> [f64; 2] {
-    values.fold([f64::INFINITY, f64::NEG_INFINITY], |[lo, hi], v| {
-        [lo.min(v), hi.max(v)]
-    })
+    values.fold([f64::INFINITY, f64::NEG_INFINITY], |[lo, hi], v| [lo.min(v), hi.max(v)])
 }
 
 fn validate(opts: &LmOptions) -> Result<(), FitError> {
     let bad = |m: String| Err(FitError::InvalidOption { message: m });
     if let Some(c) = opts.constant {
         if !c.is_finite() || c <= 0.0 {
-            return bad(format!("--constant {c}: the Larson-Miller constant must be a positive number (typically 15 to 25)"));
+            return bad(format!(
+                "--constant {c}: the Larson-Miller constant must be a positive number (typically 15 to 25)"
+            ));
         }
     }
     if let Some(o) = opts.order {
         if !(1..=3).contains(&o) {
-            return bad(format!(
-                "--order {o}: the master curve order must be 1, 2 or 3"
-            ));
+            return bad(format!("--order {o}: the master curve order must be 1, 2 or 3"));
         }
     }
     if !opts.k.is_finite() || opts.k < 0.0 {
-        return bad(format!(
-            "--k {}: the minimum-curve factor must be zero or positive",
-            opts.k
-        ));
+        return bad(format!("--k {}: the minimum-curve factor must be zero or positive", opts.k));
     }
     if !opts.outlier_threshold.is_finite() || opts.outlier_threshold <= 0.0 {
-        return bad(format!(
-            "--outlier-threshold {}: must be positive",
-            opts.outlier_threshold
-        ));
+        return bad(format!("--outlier-threshold {}: must be positive", opts.outlier_threshold));
     }
     Ok(())
 }
@@ -312,19 +282,14 @@ fn design(tests: &[RuptureTest], order: usize, constant: Option<f64>) -> (Vec<Ve
         .iter()
         .map(|t| {
             let x = t.stress_mpa.log10();
-            let mut row: Vec<f64> = (0..=order)
-                .map(|j| x.powi(j as i32) / t.temperature_k)
-                .collect();
+            let mut row: Vec<f64> = (0..=order).map(|j| x.powi(j as i32) / t.temperature_k).collect();
             if constant.is_none() {
                 row.push(-1.0);
             }
             row
         })
         .collect();
-    let y = tests
-        .iter()
-        .map(|t| t.rupture_h.log10() + constant.unwrap_or(0.0))
-        .collect();
+    let y = tests.iter().map(|t| t.rupture_h.log10() + constant.unwrap_or(0.0)).collect();
     (rows, y)
 }
 
@@ -339,9 +304,9 @@ fn coefficient_name(j: usize, order: usize, fixed: bool) -> String {
 fn solve(tests: &[RuptureTest], order: usize, constant: Option<f64>) -> Result<Solution, FitError> {
     let (rows, y) = design(tests, order, constant);
     least_squares(&rows, &y).map_err(|e| match e {
-        LsqError::Underdetermined { rows, cols } => FitError::TooFewTests {
-            message: format!("{rows} tests for {cols} unknowns"),
-        },
+        LsqError::Underdetermined { rows, cols } => {
+            FitError::TooFewTests { message: format!("{rows} tests for {cols} unknowns") }
+        }
         LsqError::RankDeficient { column } => FitError::Collinear {
             message: format!(
                 "{} of the order-{order} master curve is not separable from the other terms \
@@ -384,9 +349,7 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
         }
     }
     if n == 0 {
-        return Err(FitError::TooFewTests {
-            message: "no tests given".into(),
-        });
+        return Err(FitError::TooFewTests { message: "no tests given".into() });
     }
     let temperatures = distinct(tests.iter().map(|t| t.temperature_k));
     let stresses = distinct(tests.iter().map(|t| t.stress_mpa));
@@ -428,11 +391,7 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
     let (order, sol, choice) = match opts.order {
         Some(order) => {
             feasible(order)?;
-            (
-                order,
-                solve(tests, order, opts.constant)?,
-                OrderChoice::User,
-            )
+            (order, solve(tests, order, opts.constant)?, OrderChoice::User)
         }
         None => {
             let mut best: Option<(usize, Solution, f64)> = None;
@@ -444,11 +403,7 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
                 match attempt {
                     Ok(sol) => {
                         let score = opts.criterion.score(n, unknowns(order, fixed), sol.rss);
-                        scores.push(OrderScore {
-                            order,
-                            score,
-                            see: sol.see().unwrap_or(f64::NAN),
-                        });
+                        scores.push(OrderScore { order, score, see: sol.see().unwrap_or(f64::NAN) });
                         if best.as_ref().is_none_or(|b| score < b.2) {
                             best = Some((order, sol, score));
                         }
@@ -460,15 +415,9 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
                 }
             }
             match best {
-                Some((order, sol, _)) => (
-                    order,
-                    sol,
-                    OrderChoice::Criterion {
-                        criterion: opts.criterion,
-                        scores,
-                        not_tried,
-                    },
-                ),
+                Some((order, sol, _)) => {
+                    (order, sol, OrderChoice::Criterion { criterion: opts.criterion, scores, not_tried })
+                }
                 None => return Err(first_error.expect("at least one order was tried")),
             }
         }
@@ -486,11 +435,7 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
     let log_t: Vec<f64> = tests.iter().map(|t| t.rupture_h.log10()).collect();
     let mean = log_t.iter().sum::<f64>() / n as f64;
     let tss: f64 = log_t.iter().map(|v| (v - mean).powi(2)).sum();
-    let r_squared = if tss > 0.0 {
-        1.0 - sol.rss / tss
-    } else {
-        f64::NAN
-    };
+    let r_squared = if tss > 0.0 { 1.0 - sol.rss / tss } else { f64::NAN };
     let std_res = sol.standardized_residuals();
     let residuals: Vec<LmResidual> = tests
         .iter()
@@ -528,10 +473,8 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
     }
     // Life must fall as stress rises: dP/dx < 0 over the data range.
     let (x0, x1) = (stress_range_mpa[0].log10(), stress_range_mpa[1].log10());
-    let rising: Vec<f64> = (0..=100)
-        .map(|i| x0 + (x1 - x0) * i as f64 / 100.0)
-        .filter(|&x| poly_slope(&coefficients, x) >= 0.0)
-        .collect();
+    let rising: Vec<f64> =
+        (0..=100).map(|i| x0 + (x1 - x0) * i as f64 / 100.0).filter(|&x| poly_slope(&coefficients, x) >= 0.0).collect();
     if let (Some(a), Some(b)) = (rising.first(), rising.last()) {
         warnings.push(format!(
             "the master curve does not fall with stress between {:.1} and {:.1} MPa (life would grow \
@@ -540,11 +483,7 @@ pub fn fit_larson_miller(tests: &[RuptureTest], opts: &LmOptions) -> Result<LmFi
             10f64.powf(*b)
         ));
     }
-    let outliers: Vec<usize> = residuals
-        .iter()
-        .filter(|r| r.outlier)
-        .map(|r| r.line)
-        .collect();
+    let outliers: Vec<usize> = residuals.iter().filter(|r| r.outlier).map(|r| r.line).collect();
     if !outliers.is_empty() {
         warnings.push(format!(
             "{} test(s) with |standardized residual| > {}: line(s) {}; check them before accepting the fit",
@@ -599,14 +538,7 @@ mod tests {
     use super::*;
 
     fn test(line: usize, t: f64, s: f64, h: f64) -> RuptureTest {
-        RuptureTest {
-            line,
-            temperature_k: t,
-            stress_mpa: s,
-            rupture_h: h,
-            heat: None,
-            specimen: None,
-        }
+        RuptureTest { line, temperature_k: t, stress_mpa: s, rupture_h: h, heat: None, specimen: None }
     }
 
     /// Exact data on P = 30000 − 4000·x with C = 20 (numbers chosen here).
@@ -626,14 +558,7 @@ mod tests {
     #[test]
     fn recovers_exact_constants() {
         let tests = exact(20.0);
-        let fit = fit_larson_miller(
-            &tests,
-            &LmOptions {
-                order: Some(1),
-                ..Default::default()
-            },
-        )
-        .unwrap();
+        let fit = fit_larson_miller(&tests, &LmOptions { order: Some(1), ..Default::default() }).unwrap();
         assert!((fit.constant_c - 20.0).abs() < 1e-8, "{}", fit.constant_c);
         assert!((fit.coefficients[0] - 30000.0).abs() < 1e-5);
         assert!((fit.coefficients[1] + 4000.0).abs() < 1e-5);
@@ -642,63 +567,22 @@ mod tests {
 
     #[test]
     fn single_temperature_needs_given_constant() {
-        let tests: Vec<_> = exact(20.0)
-            .into_iter()
-            .filter(|t| t.temperature_k == 873.15)
-            .collect();
-        let e = fit_larson_miller(&tests, &LmOptions::default())
-            .unwrap_err()
-            .to_string();
-        assert!(
-            e.contains("one temperature") && e.contains("lines 6-9"),
-            "{e}"
-        );
-        let fit = fit_larson_miller(
-            &tests,
-            &LmOptions {
-                constant: Some(20.0),
-                order: Some(1),
-                ..Default::default()
-            },
-        )
-        .unwrap();
+        let tests: Vec<_> = exact(20.0).into_iter().filter(|t| t.temperature_k == 873.15).collect();
+        let e = fit_larson_miller(&tests, &LmOptions::default()).unwrap_err().to_string();
+        assert!(e.contains("one temperature") && e.contains("lines 6-9"), "{e}");
+        let fit = fit_larson_miller(&tests, &LmOptions { constant: Some(20.0), order: Some(1), ..Default::default() })
+            .unwrap();
         assert!((fit.coefficients[1] + 4000.0).abs() < 1e-6);
     }
 
     #[test]
     fn too_few_tests_and_stresses() {
         let all = exact(20.0);
-        let tests = vec![
-            all[0].clone(),
-            all[4].clone(),
-            all[8].clone(),
-            all[1].clone(),
-        ];
-        let e = fit_larson_miller(
-            &tests,
-            &LmOptions {
-                order: Some(3),
-                ..Default::default()
-            },
-        )
-        .unwrap_err();
+        let tests = vec![all[0].clone(), all[4].clone(), all[8].clone(), all[1].clone()];
+        let e = fit_larson_miller(&tests, &LmOptions { order: Some(3), ..Default::default() }).unwrap_err();
         assert!(matches!(e, FitError::TooFewTests { .. }), "{e}");
-        let tests: Vec<_> = exact(20.0)
-            .into_iter()
-            .filter(|t| t.stress_mpa < 100.0)
-            .collect();
-        let e = fit_larson_miller(
-            &tests,
-            &LmOptions {
-                order: Some(2),
-                ..Default::default()
-            },
-        )
-        .unwrap_err();
-        assert!(
-            e.to_string()
-                .contains("at least 3 distinct stresses; the tests have 2"),
-            "{e}"
-        );
+        let tests: Vec<_> = exact(20.0).into_iter().filter(|t| t.stress_mpa < 100.0).collect();
+        let e = fit_larson_miller(&tests, &LmOptions { order: Some(2), ..Default::default() }).unwrap_err();
+        assert!(e.to_string().contains("at least 3 distinct stresses; the tests have 2"), "{e}");
     }
 }

@@ -47,9 +47,7 @@ impl Solution {
 
     /// Standard errors `√diag(s²(XᵀX)⁻¹)`.
     pub fn standard_errors(&self) -> Option<Vec<f64>> {
-        self.covariance
-            .as_ref()
-            .map(|c| (0..c.len()).map(|i| c[i][i].sqrt()).collect())
+        self.covariance.as_ref().map(|c| (0..c.len()).map(|i| c[i][i].sqrt()).collect())
     }
 
     /// Internally studentized residuals `e_i / (s·√(1 − h_ii))`; `None`
@@ -90,9 +88,7 @@ pub fn least_squares(rows: &[Vec<f64>], y: &[f64]) -> Result<Solution, LsqError>
     }
     // Column-major scaled copy.
     let mut norms = vec![0.0; p];
-    let mut a: Vec<Vec<f64>> = (0..p)
-        .map(|j| rows.iter().map(|r| r[j]).collect())
-        .collect();
+    let mut a: Vec<Vec<f64>> = (0..p).map(|j| rows.iter().map(|r| r[j]).collect()).collect();
     for (j, col) in a.iter_mut().enumerate() {
         let d = col.iter().map(|v| v * v).sum::<f64>().sqrt();
         if d == 0.0 || !d.is_finite() {
@@ -135,10 +131,7 @@ pub fn least_squares(rows: &[Vec<f64>], y: &[f64]) -> Result<Solution, LsqError>
         beta_s[i] = (qty[i] - s) / r(i, i);
     }
     let beta: Vec<f64> = beta_s.iter().zip(&norms).map(|(b, d)| b / d).collect();
-    let fitted: Vec<f64> = rows
-        .iter()
-        .map(|row| row.iter().zip(&beta).map(|(x, b)| x * b).sum())
-        .collect();
+    let fitted: Vec<f64> = rows.iter().map(|row| row.iter().zip(&beta).map(|(x, b)| x * b).sum()).collect();
     let residuals: Vec<f64> = y.iter().zip(&fitted).map(|(y, f)| y - f).collect();
     let rss: f64 = residuals.iter().map(|e| e * e).sum();
     let dof = n - p;
@@ -152,10 +145,7 @@ pub fn least_squares(rows: &[Vec<f64>], y: &[f64]) -> Result<Solution, LsqError>
             let f = tau * dot;
             q[k..].iter_mut().zip(v).for_each(|(c, vi)| *c -= f * vi);
         }
-        leverage
-            .iter_mut()
-            .zip(&q)
-            .for_each(|(h, qi)| *h += qi * qi);
+        leverage.iter_mut().zip(&q).for_each(|(h, qi)| *h += qi * qi);
     }
     let covariance = (dof > 0).then(|| {
         // Columns of R⁻¹ (upper triangular) by back substitution of R·c = e_j.
@@ -180,15 +170,7 @@ pub fn least_squares(rows: &[Vec<f64>], y: &[f64]) -> Result<Solution, LsqError>
         }
         cov
     });
-    Ok(Solution {
-        beta,
-        covariance,
-        fitted,
-        residuals,
-        leverage,
-        rss,
-        dof,
-    })
+    Ok(Solution { beta, covariance, fitted, residuals, leverage, rss, dof })
 }
 
 #[cfg(test)]
@@ -217,27 +199,15 @@ mod tests {
 
     #[test]
     fn collinear_columns_are_found() {
-        let rows: Vec<Vec<f64>> = (0..5)
-            .map(|i| vec![1.0, i as f64, 2.0 * i as f64 - 1.0])
-            .collect();
-        assert_eq!(
-            least_squares(&rows, &[0.0; 5]),
-            Err(LsqError::RankDeficient { column: 2 })
-        );
+        let rows: Vec<Vec<f64>> = (0..5).map(|i| vec![1.0, i as f64, 2.0 * i as f64 - 1.0]).collect();
+        assert_eq!(least_squares(&rows, &[0.0; 5]), Err(LsqError::RankDeficient { column: 2 }));
         let rows: Vec<Vec<f64>> = (0..5).map(|_| vec![1.0, 0.0]).collect();
-        assert_eq!(
-            least_squares(&rows, &[0.0; 5]),
-            Err(LsqError::RankDeficient { column: 1 })
-        );
+        assert_eq!(least_squares(&rows, &[0.0; 5]), Err(LsqError::RankDeficient { column: 1 }));
     }
 
     #[test]
     fn square_system_is_exact() {
-        let rows = vec![
-            vec![2.0, 1.0, 0.0],
-            vec![1.0, 3.0, 1.0],
-            vec![0.0, 1.0, 4.0],
-        ];
+        let rows = vec![vec![2.0, 1.0, 0.0], vec![1.0, 3.0, 1.0], vec![0.0, 1.0, 4.0]];
         let sol = least_squares(&rows, &[3.0, 5.0, 5.0]).unwrap();
         for b in &sol.beta {
             assert!((b - 1.0).abs() < 1e-12);

@@ -31,13 +31,10 @@ mod svg;
 
 pub use error::FitError;
 pub use input::{parse_rate_tests, parse_rupture_tests, RateTest, RuptureTest, TestFile};
-pub use larson_miller::{
-    fit_larson_miller, Criterion, LmFit, LmOptions, LmResidual, OrderChoice, OrderScore,
-};
+pub use larson_miller::{fit_larson_miller, Criterion, LmFit, LmOptions, LmResidual, OrderChoice, OrderScore};
 pub use norton::{fit_norton, NortonFit, NortonOptions, NortonResidual};
 pub use report::{
-    larson_miller_text, larson_miller_toml, norton_text, norton_toml, GradeInfo, LarsonMillerBlock,
-    NortonBlock,
+    larson_miller_text, larson_miller_toml, norton_text, norton_toml, GradeInfo, LarsonMillerBlock, NortonBlock,
 };
 pub use svg::{larson_miller_svg, norton_svg};
 
@@ -63,8 +60,7 @@ with '#' are comments; other columns are ignored.";
 #[derive(Debug, Clone, PartialEq, clap::Subcommand)]
 pub enum FitCommand {
     /// Fit a Larson-Miller master curve to creep-rupture tests.
-    #[command(
-        long_about = "Fit a Larson-Miller master curve to creep-rupture tests.\n\n\
+    #[command(long_about = "Fit a Larson-Miller master curve to creep-rupture tests.\n\n\
         Model: log10 t_r = P(x)/T − C with P(x) = a0 + a1·x + … (order 1–3), x = log10(σ/MPa), \
         T in K, t_r in h (Larson & Miller, Trans. ASME 74, 1952). The fit minimises the residual \
         sum of squares in log10 rupture time; with C free the problem is linear in (a0…ak, C) and \
@@ -75,12 +71,10 @@ pub enum FitCommand {
         Output: a report (text or JSON) and a TOML block in lifeledger's material format \
         ([larson_miller], or a whole grade file with --melting-point-k).\n\n\
         This is a screening fit: acceptance of material data for a plant component is for a \
-        responsible engineer under the governing code."
-    )]
+        responsible engineer under the governing code.")]
     LarsonMiller(LarsonMillerArgs),
     /// Fit a Norton-Arrhenius creep law to minimum-creep-rate tests.
-    #[command(
-        long_about = "Fit a Norton-Arrhenius creep law to minimum-creep-rate tests.\n\n\
+    #[command(long_about = "Fit a Norton-Arrhenius creep law to minimum-creep-rate tests.\n\n\
         Model: ε̇ = A·σ^n·exp(−Q/(R·T)), ε̇ in 1/h, σ in MPa, T in K, Q in J/mol, \
         R = 8.314462618 J/(mol·K) (CODATA 2018), fitted by linear least squares in ln ε̇ \
         (exactly, with no scatter estimate, when there are three tests).\n\n\
@@ -89,8 +83,7 @@ pub enum FitCommand {
         heat and specimen. The tests must span at least two temperatures and two stresses.\n\n\
         Output: a report (text or JSON) and a [norton] TOML block in lifeledger's material format.\n\n\
         This is a screening fit: acceptance of material data for a plant component is for a \
-        responsible engineer under the governing code."
-    )]
+        responsible engineer under the governing code.")]
     Norton(NortonArgs),
 }
 
@@ -130,12 +123,7 @@ pub struct LarsonMillerArgs {
     pub melting_point_k: Option<f64>,
 
     /// Melting (solidus) point in °C; alternative to --melting-point-k.
-    #[arg(
-        long,
-        value_name = "C",
-        group = "melting_point",
-        conflicts_with = "melting_point_k"
-    )]
+    #[arg(long, value_name = "C", group = "melting_point", conflicts_with = "melting_point_k")]
     pub melting_point_c: Option<f64>,
 
     /// Report format on standard output.
@@ -192,12 +180,9 @@ pub fn run_to(cmd: &FitCommand, out: &mut dyn Write) -> anyhow::Result<()> {
 }
 
 fn read_input(path: &Path) -> anyhow::Result<(String, String, String)> {
-    let text = std::fs::read_to_string(path)
-        .with_context(|| format!("cannot read test file {}", path.display()))?;
+    let text = std::fs::read_to_string(path).with_context(|| format!("cannot read test file {}", path.display()))?;
     let shown = path.display().to_string();
-    let name = path
-        .file_name()
-        .map_or_else(|| shown.clone(), |n| n.to_string_lossy().into_owned());
+    let name = path.file_name().map_or_else(|| shown.clone(), |n| n.to_string_lossy().into_owned());
     Ok((text, shown, name))
 }
 
@@ -227,14 +212,8 @@ fn run_larson_miller(args: &LarsonMillerArgs, out: &mut dyn Write) -> anyhow::Re
     };
     let fit = fit_larson_miller(&file.tests, &opts).with_context(|| format!("fitting {shown}"))?;
     let melting = match (args.melting_point_k, args.melting_point_c) {
-        (Some(k), _) => Some((
-            k,
-            format!("{k} K, given to lifeledger fit (--melting-point-k)"),
-        )),
-        (None, Some(c)) => Some((
-            c + 273.15,
-            format!("{c} °C, given to lifeledger fit (--melting-point-c)"),
-        )),
+        (Some(k), _) => Some((k, format!("{k} K, given to lifeledger fit (--melting-point-k)"))),
+        (None, Some(c)) => Some((c + 273.15, format!("{c} °C, given to lifeledger fit (--melting-point-c)"))),
         (None, None) => None,
     };
     let grade = match melting {
@@ -242,10 +221,7 @@ fn run_larson_miller(args: &LarsonMillerArgs, out: &mut dyn Write) -> anyhow::Re
             if !k.is_finite() || k <= 0.0 {
                 anyhow::bail!("the melting point must be a positive temperature (got {k} K)");
             }
-            let stem = args
-                .input
-                .file_stem()
-                .map_or_else(|| "fitted".into(), |s| s.to_string_lossy().into_owned());
+            let stem = args.input.file_stem().map_or_else(|| "fitted".into(), |s| s.to_string_lossy().into_owned());
             Some(GradeInfo {
                 grade: args.grade.clone().unwrap_or(stem),
                 melting_point_k: k,
@@ -254,8 +230,7 @@ fn run_larson_miller(args: &LarsonMillerArgs, out: &mut dyn Write) -> anyhow::Re
         }
         None => None,
     };
-    let block = larson_miller_toml(&fit, &name, grade.as_ref())
-        .context("serializing the material block")?;
+    let block = larson_miller_toml(&fit, &name, grade.as_ref()).context("serializing the material block")?;
     // The block must load back as the material format it claims to be.
     let loaded = if grade.is_some() {
         toml::from_str::<crate::physics::material::Material>(&block).map(|m| m.larson_miller)
@@ -263,10 +238,7 @@ fn run_larson_miller(args: &LarsonMillerArgs, out: &mut dyn Write) -> anyhow::Re
         toml::from_str::<LarsonMillerBlock>(&block).map(|b| b.larson_miller)
     };
     let loaded = loaded.context("internal error: the written TOML block does not load back")?;
-    anyhow::ensure!(
-        loaded == fit.curve(&name),
-        "internal error: the TOML block does not load back unchanged"
-    );
+    anyhow::ensure!(loaded == fit.curve(&name), "internal error: the TOML block does not load back unchanged");
 
     if let Some(path) = &args.output {
         write_file(path, &block, "the material block")?;
@@ -305,17 +277,12 @@ fn run_larson_miller(args: &LarsonMillerArgs, out: &mut dyn Write) -> anyhow::Re
 fn run_norton(args: &NortonArgs, out: &mut dyn Write) -> anyhow::Result<()> {
     let (text, shown, name) = read_input(&args.input)?;
     let file = parse_rate_tests(&text, &shown)?;
-    let opts = NortonOptions {
-        outlier_threshold: args.outlier_threshold,
-    };
+    let opts = NortonOptions { outlier_threshold: args.outlier_threshold };
     let fit = fit_norton(&file.tests, &opts).with_context(|| format!("fitting {shown}"))?;
     let block = norton_toml(&fit, &name).context("serializing the [norton] block")?;
     let loaded: NortonBlock =
         toml::from_str(&block).context("internal error: the [norton] block does not load back")?;
-    anyhow::ensure!(
-        loaded.norton == fit.law(&name),
-        "internal error: the [norton] block does not load back unchanged"
-    );
+    anyhow::ensure!(loaded.norton == fit.law(&name), "internal error: the [norton] block does not load back unchanged");
     if let Some(path) = &args.output {
         write_file(path, &block, "the [norton] block")?;
     }

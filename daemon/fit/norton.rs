@@ -43,9 +43,7 @@ pub struct NortonOptions {
 
 impl Default for NortonOptions {
     fn default() -> Self {
-        NortonOptions {
-            outlier_threshold: 2.5,
-        }
+        NortonOptions { outlier_threshold: 2.5 }
     }
 }
 
@@ -101,8 +99,7 @@ pub struct NortonFit {
 impl NortonFit {
     /// Fitted minimum creep rate in 1/h.
     pub fn rate_per_h(&self, stress_mpa: f64, temperature_k: f64) -> f64 {
-        (self.ln_a + self.n * stress_mpa.ln() - self.q_j_per_mol / (GAS_CONSTANT * temperature_k))
-            .exp()
+        (self.ln_a + self.n * stress_mpa.ln() - self.q_j_per_mol / (GAS_CONSTANT * temperature_k)).exp()
     }
 
     /// The text for the `source` field of the `[norton]` block.
@@ -142,17 +139,12 @@ impl NortonFit {
 pub fn fit_norton(tests: &[RateTest], opts: &NortonOptions) -> Result<NortonFit, FitError> {
     if !opts.outlier_threshold.is_finite() || opts.outlier_threshold <= 0.0 {
         return Err(FitError::InvalidOption {
-            message: format!(
-                "--outlier-threshold {}: must be positive",
-                opts.outlier_threshold
-            ),
+            message: format!("--outlier-threshold {}: must be positive", opts.outlier_threshold),
         });
     }
     let n_tests = tests.len();
     for t in tests {
-        let ok = [t.temperature_k, t.stress_mpa, t.rate_per_h]
-            .iter()
-            .all(|v| v.is_finite() && *v > 0.0);
+        let ok = [t.temperature_k, t.stress_mpa, t.rate_per_h].iter().all(|v| v.is_finite() && *v > 0.0);
         if !ok {
             return Err(FitError::input(
                 "tests",
@@ -194,21 +186,13 @@ pub fn fit_norton(tests: &[RateTest], opts: &NortonOptions) -> Result<NortonFit,
             ),
         });
     }
-    let rows: Vec<Vec<f64>> = tests
-        .iter()
-        .map(|t| {
-            vec![
-                1.0,
-                t.stress_mpa.ln(),
-                -1.0 / (GAS_CONSTANT * t.temperature_k),
-            ]
-        })
-        .collect();
+    let rows: Vec<Vec<f64>> =
+        tests.iter().map(|t| vec![1.0, t.stress_mpa.ln(), -1.0 / (GAS_CONSTANT * t.temperature_k)]).collect();
     let y: Vec<f64> = tests.iter().map(|t| t.rate_per_h.ln()).collect();
     let sol = least_squares(&rows, &y).map_err(|e| match e {
-        LsqError::Underdetermined { rows, .. } => FitError::TooFewTests {
-            message: format!("{rows} tests for 3 unknowns"),
-        },
+        LsqError::Underdetermined { rows, .. } => {
+            FitError::TooFewTests { message: format!("{rows} tests for 3 unknowns") }
+        }
         LsqError::RankDeficient { .. } => FitError::Collinear {
             message: format!(
                 "stress and temperature vary together in these tests (lines {}), so the stress \
@@ -253,9 +237,8 @@ pub fn fit_norton(tests: &[RateTest], opts: &NortonOptions) -> Result<NortonFit,
         );
     }
     if temperatures.len() == 2 {
-        warnings.push(
-            "tests at only two temperatures: the Arrhenius form (one Q over the range) cannot be checked".into(),
-        );
+        warnings
+            .push("tests at only two temperatures: the Arrhenius form (one Q over the range) cannot be checked".into());
     }
     if stresses.len() == 2 {
         warnings.push("tests at only two stresses: the power-law form (one n over the range) cannot be checked".into());
@@ -266,15 +249,9 @@ pub fn fit_norton(tests: &[RateTest], opts: &NortonOptions) -> Result<NortonFit,
         ));
     }
     if q <= 0.0 {
-        warnings.push(format!(
-            "fitted Q = {q:.0} J/mol is not positive: the rates do not rise with temperature"
-        ));
+        warnings.push(format!("fitted Q = {q:.0} J/mol is not positive: the rates do not rise with temperature"));
     }
-    let outliers: Vec<usize> = residuals
-        .iter()
-        .filter(|r| r.outlier)
-        .map(|r| r.line)
-        .collect();
+    let outliers: Vec<usize> = residuals.iter().filter(|r| r.outlier).map(|r| r.line).collect();
     if !outliers.is_empty() {
         warnings.push(format!(
             "{} test(s) with |standardized residual| > {}: line(s) {}",
@@ -312,14 +289,7 @@ mod tests {
     use super::*;
 
     fn rt(line: usize, t: f64, s: f64, r: f64) -> RateTest {
-        RateTest {
-            line,
-            temperature_k: t,
-            stress_mpa: s,
-            rate_per_h: r,
-            heat: None,
-            specimen: None,
-        }
+        RateTest { line, temperature_k: t, stress_mpa: s, rate_per_h: r, heat: None, specimen: None }
     }
 
     // Hand-made exact system: with A = 1e10, n = 5, Q = 300 kJ/mol the
@@ -342,24 +312,10 @@ mod tests {
 
     #[test]
     fn degenerate_sets_are_errors() {
-        let one_t = vec![
-            rt(2, 850.0, 100.0, 1e-5),
-            rt(3, 850.0, 150.0, 1e-4),
-            rt(4, 850.0, 200.0, 1e-3),
-        ];
-        assert!(fit_norton(&one_t, &NortonOptions::default())
-            .unwrap_err()
-            .to_string()
-            .contains("one temperature"));
-        let one_s = vec![
-            rt(2, 850.0, 100.0, 1e-5),
-            rt(3, 875.0, 100.0, 1e-4),
-            rt(4, 900.0, 100.0, 1e-3),
-        ];
-        assert!(fit_norton(&one_s, &NortonOptions::default())
-            .unwrap_err()
-            .to_string()
-            .contains("one stress"));
+        let one_t = vec![rt(2, 850.0, 100.0, 1e-5), rt(3, 850.0, 150.0, 1e-4), rt(4, 850.0, 200.0, 1e-3)];
+        assert!(fit_norton(&one_t, &NortonOptions::default()).unwrap_err().to_string().contains("one temperature"));
+        let one_s = vec![rt(2, 850.0, 100.0, 1e-5), rt(3, 875.0, 100.0, 1e-4), rt(4, 900.0, 100.0, 1e-3)];
+        assert!(fit_norton(&one_s, &NortonOptions::default()).unwrap_err().to_string().contains("one stress"));
         // ln σ exactly linear in 1/T: n and Q cannot be told apart.
         let k = |t: f64| (1000.0 * (1.0 / t)).exp();
         let coupled = vec![
@@ -368,16 +324,8 @@ mod tests {
             rt(4, 900.0, k(900.0), 1e-3),
             rt(5, 950.0, k(950.0), 1e-2),
         ];
-        let e = fit_norton(&coupled, &NortonOptions::default())
-            .unwrap_err()
-            .to_string();
-        assert!(
-            e.contains("vary together") && e.contains("lines 2-5"),
-            "{e}"
-        );
-        assert!(matches!(
-            fit_norton(&one_t[..2], &NortonOptions::default()),
-            Err(FitError::TooFewTests { .. })
-        ));
+        let e = fit_norton(&coupled, &NortonOptions::default()).unwrap_err().to_string();
+        assert!(e.contains("vary together") && e.contains("lines 2-5"), "{e}");
+        assert!(matches!(fit_norton(&one_t[..2], &NortonOptions::default()), Err(FitError::TooFewTests { .. })));
     }
 }

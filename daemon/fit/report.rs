@@ -75,13 +75,8 @@ pub fn larson_miller_toml(
 
 /// The TOML text for a Norton fit: a `[norton]` table.
 pub fn norton_toml(fit: &NortonFit, input_name: &str) -> Result<String, toml::ser::Error> {
-    Ok(toml_header(
-        "norton",
-        input_name,
-        "Paste this table into a grade file of the material library.",
-    ) + &toml::to_string(&NortonBlock {
-        norton: fit.law(input_name),
-    })?)
+    Ok(toml_header("norton", input_name, "Paste this table into a grade file of the material library.")
+        + &toml::to_string(&NortonBlock { norton: fit.law(input_name) })?)
 }
 
 /// A stress in MPa with about four significant digits.
@@ -115,20 +110,13 @@ fn id(heat: &Option<String>, specimen: &Option<String>) -> String {
 
 fn caution(out: &mut String) {
     let _ = writeln!(out, "{}", crate::CAUTION);
-    let _ = writeln!(
-        out,
-        "These are screening fits; acceptance of material data is for a responsible engineer."
-    );
+    let _ = writeln!(out, "These are screening fits; acceptance of material data is for a responsible engineer.");
 }
 
 /// The terminal report of a Larson-Miller fit.
 pub fn larson_miller_text(fit: &LmFit, input_name: &str, notes: &[String]) -> String {
     let mut o = String::new();
-    let _ = writeln!(
-        o,
-        "lifeledger fit larson-miller: {input_name}, {} tests",
-        fit.n_tests
-    );
+    let _ = writeln!(o, "lifeledger fit larson-miller: {input_name}, {} tests", fit.n_tests);
     caution(&mut o);
     let _ = writeln!(o);
     let terms: Vec<String> = (0..=fit.order)
@@ -143,53 +131,29 @@ pub fn larson_miller_text(fit: &LmFit, input_name: &str, notes: &[String]) -> St
         "Model     log10 t_r = P(x)/T − C,  P(x) = {},  x = log10(σ/MPa), T in K, t_r in h",
         terms.join(" + ")
     );
-    let how_c = if fit.constant_fixed {
-        "given (--constant)"
-    } else {
-        "fitted by linear least squares in log10 t_r"
-    };
+    let how_c = if fit.constant_fixed { "given (--constant)" } else { "fitted by linear least squares in log10 t_r" };
     let _ = writeln!(o, "Constant  C {how_c}");
     match &fit.order_choice {
         OrderChoice::User => {
             let _ = writeln!(o, "Order     {} (given, --order)", fit.order);
         }
-        OrderChoice::Criterion {
-            criterion,
-            scores,
-            not_tried,
-        } => {
+        OrderChoice::Criterion { criterion, scores, not_tried } => {
             let name = match criterion {
                 super::Criterion::Bic => "BIC = n·ln(RSS/n) + p·ln n",
                 super::Criterion::Aic => "AIC = n·ln(RSS/n) + 2p",
             };
             let s: Vec<String> = scores
                 .iter()
-                .map(|s| {
-                    format!(
-                        "order {}: {:.2}{}",
-                        s.order,
-                        s.score,
-                        if s.order == fit.order { " *" } else { "" }
-                    )
-                })
+                .map(|s| format!("order {}: {:.2}{}", s.order, s.score, if s.order == fit.order { " *" } else { "" }))
                 .collect();
-            let _ = writeln!(
-                o,
-                "Order     {} chosen by {name} (lower is better): {}",
-                fit.order,
-                s.join(", ")
-            );
+            let _ = writeln!(o, "Order     {} chosen by {name} (lower is better): {}", fit.order, s.join(", "));
             for n in not_tried {
                 let _ = writeln!(o, "          not tried: {n}");
             }
         }
     }
     let _ = writeln!(o);
-    let _ = writeln!(
-        o,
-        "  {:<10} {:>16} {:>14}",
-        "unknown", "value", "std. error"
-    );
+    let _ = writeln!(o, "  {:<10} {:>16} {:>14}", "unknown", "value", "std. error");
     for (j, (a, se)) in fit.coefficients.iter().zip(&fit.coefficient_se).enumerate() {
         let _ = writeln!(o, "  {:<10} {:>16.6e} {:>14.4e}", format!("a{j}"), a, se);
     }
@@ -198,11 +162,7 @@ pub fn larson_miller_text(fit: &LmFit, input_name: &str, notes: &[String]) -> St
             let _ = writeln!(o, "  {:<10} {:>16.6} {:>14.4e}", "C", fit.constant_c, se);
         }
         None => {
-            let _ = writeln!(
-                o,
-                "  {:<10} {:>16.6} {:>14}",
-                "C", fit.constant_c, "(given)"
-            );
+            let _ = writeln!(o, "  {:<10} {:>16.6} {:>14}", "C", fit.constant_c, "(given)");
         }
     }
     let _ = writeln!(o);
@@ -284,53 +244,23 @@ fn warnings_and_notes(o: &mut String, warnings: &[String], notes: &[String]) {
 /// The terminal report of a Norton fit.
 pub fn norton_text(fit: &NortonFit, input_name: &str, notes: &[String]) -> String {
     let mut o = String::new();
-    let _ = writeln!(
-        o,
-        "lifeledger fit norton: {input_name}, {} tests",
-        fit.n_tests
-    );
+    let _ = writeln!(o, "lifeledger fit norton: {input_name}, {} tests", fit.n_tests);
     caution(&mut o);
     let _ = writeln!(o);
-    let _ = writeln!(
-        o,
-        "Model     ln ε̇ = ln A + n·ln σ − Q/(R·T), ε̇ in 1/h, σ in MPa, T in K, R = 8.314462618 J/(mol·K)"
-    );
+    let _ =
+        writeln!(o, "Model     ln ε̇ = ln A + n·ln σ − Q/(R·T), ε̇ in 1/h, σ in MPa, T in K, R = 8.314462618 J/(mol·K)");
     let _ = writeln!(
         o,
         "Method    {}",
-        if fit.exact {
-            "exact solution of the 3×3 system (three tests)"
-        } else {
-            "linear least squares in ln ε̇"
-        }
+        if fit.exact { "exact solution of the 3×3 system (three tests)" } else { "linear least squares in ln ε̇" }
     );
     let _ = writeln!(o);
     let se = |v: Option<f64>| v.map_or("n/a".to_string(), |v| format!("{v:.4e}"));
-    let _ = writeln!(
-        o,
-        "  {:<14} {:>16} {:>14}",
-        "unknown", "value", "std. error"
-    );
-    let _ = writeln!(
-        o,
-        "  {:<14} {:>16.6} {:>14}",
-        "ln A",
-        fit.ln_a,
-        se(fit.ln_a_se)
-    );
-    let _ = writeln!(
-        o,
-        "  {:<14} {:>16.6e} {:>14}",
-        "A, 1/h/MPa^n", fit.a_per_h, "(from ln A)"
-    );
+    let _ = writeln!(o, "  {:<14} {:>16} {:>14}", "unknown", "value", "std. error");
+    let _ = writeln!(o, "  {:<14} {:>16.6} {:>14}", "ln A", fit.ln_a, se(fit.ln_a_se));
+    let _ = writeln!(o, "  {:<14} {:>16.6e} {:>14}", "A, 1/h/MPa^n", fit.a_per_h, "(from ln A)");
     let _ = writeln!(o, "  {:<14} {:>16.6} {:>14}", "n", fit.n, se(fit.n_se));
-    let _ = writeln!(
-        o,
-        "  {:<14} {:>16.1} {:>14}",
-        "Q, J/mol",
-        fit.q_j_per_mol,
-        se(fit.q_se_j_per_mol)
-    );
+    let _ = writeln!(o, "  {:<14} {:>16.1} {:>14}", "Q, J/mol", fit.q_j_per_mol, se(fit.q_se_j_per_mol));
     let _ = writeln!(o);
     match fit.see_ln {
         Some(s) => {
@@ -360,11 +290,7 @@ pub fn norton_text(fit: &NortonFit, input_name: &str, notes: &[String]) -> Strin
         plural(fit.temperatures_k.len(), "temperature", "temperatures")
     );
     let _ = writeln!(o);
-    let _ = writeln!(
-        o,
-        "Residuals by test (ln 1/h; * marks |standardized| > {})",
-        fit.outlier_threshold
-    );
+    let _ = writeln!(o, "Residuals by test (ln 1/h; * marks |standardized| > {})", fit.outlier_threshold);
     let _ = writeln!(
         o,
         "  {:>5} {:<14} {:>8} {:>10} {:>11} {:>9} {:>9} {:>8} {:>8}",

@@ -21,15 +21,10 @@ const LEFT: f64 = 80.0;
 const RIGHT: f64 = 230.0;
 const TOP: f64 = 56.0;
 const BOTTOM: f64 = 64.0;
-const PALETTE: [&str; 8] = [
-    "#1f77b4", "#d62728", "#2ca02c", "#9467bd", "#ff7f0e", "#8c564b", "#e377c2", "#17becf",
-];
+const PALETTE: [&str; 8] = ["#1f77b4", "#d62728", "#2ca02c", "#9467bd", "#ff7f0e", "#8c564b", "#e377c2", "#17becf"];
 
 fn esc(s: &str) -> String {
-    s.replace('&', "&amp;")
-        .replace('<', "&lt;")
-        .replace('>', "&gt;")
-        .replace('"', "&quot;")
+    s.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('"', "&quot;")
 }
 
 struct Axis {
@@ -43,9 +38,7 @@ struct Axis {
 
 impl Axis {
     fn new(values: impl Iterator<Item = f64>, log: bool, label: &str, divisor: f64) -> Axis {
-        let (mut lo, mut hi) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| {
-            (a.min(v), b.max(v))
-        });
+        let (mut lo, mut hi) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| (a.min(v), b.max(v)));
         if !lo.is_finite() || !hi.is_finite() {
             (lo, hi) = if log { (1.0, 10.0) } else { (0.0, 1.0) };
         }
@@ -59,13 +52,7 @@ impl Axis {
             lo -= pad;
             hi += pad;
         }
-        Axis {
-            lo,
-            hi,
-            log,
-            label: label.to_string(),
-            divisor,
-        }
+        Axis { lo, hi, log, label: label.to_string(), divisor }
     }
 
     /// Position 0…1 along the axis.
@@ -80,10 +67,7 @@ impl Axis {
     fn ticks(&self) -> Vec<(f64, bool)> {
         let mut t = Vec::new();
         if self.log {
-            let (l, h) = (
-                self.lo.log10().floor() as i32,
-                self.hi.log10().ceil() as i32,
-            );
+            let (l, h) = (self.lo.log10().floor() as i32, self.hi.log10().ceil() as i32);
             let span = (self.hi / self.lo).log10();
             let steps: &[f64] = if span < 1.2 {
                 &[1.0, 1.5, 2.0, 3.0, 4.0, 5.0, 6.0, 8.0]
@@ -105,11 +89,7 @@ impl Axis {
             let span = (self.hi - self.lo) / self.divisor;
             let raw = span / 8.0;
             let mag = 10f64.powf(raw.log10().floor());
-            let step = [1.0, 2.0, 5.0, 10.0]
-                .iter()
-                .map(|m| m * mag)
-                .find(|s| *s >= raw)
-                .unwrap_or(10.0 * mag);
+            let step = [1.0, 2.0, 5.0, 10.0].iter().map(|m| m * mag).find(|s| *s >= raw).unwrap_or(10.0 * mag);
             let mut v = (self.lo / self.divisor / step).ceil() * step;
             while v <= self.hi / self.divisor + 1e-12 {
                 t.push((v * self.divisor, true));
@@ -165,8 +145,7 @@ impl Chart {
                 );
             }
         }
-        self.legend
-            .push((label.to_string(), colour.to_string(), false, false));
+        self.legend.push((label.to_string(), colour.to_string(), false, false));
     }
 
     fn line(&mut self, pts: &[(f64, f64)], colour: &str, dashed: bool, label: Option<&str>) {
@@ -175,19 +154,14 @@ impl Chart {
             .filter(|(x, y)| x.is_finite() && y.is_finite())
             .map(|&(x, y)| format!("{:.1},{:.1}", self.px(x), self.py(y)))
             .collect();
-        let dash = if dashed {
-            r#" stroke-dasharray="7,4""#
-        } else {
-            ""
-        };
+        let dash = if dashed { r#" stroke-dasharray="7,4""# } else { "" };
         let _ = writeln!(
             self.body,
             r#"<polyline points="{}" fill="none" stroke="{colour}" stroke-width="1.8"{dash} clip-path="url(#plot)"/>"#,
             d.join(" ")
         );
         if let Some(l) = label {
-            self.legend
-                .push((l.to_string(), colour.to_string(), true, dashed));
+            self.legend.push((l.to_string(), colour.to_string(), true, dashed));
         }
     }
 
@@ -205,24 +179,13 @@ impl Chart {
             x1 - x0,
             y1 - y0
         );
-        let _ = writeln!(
-            s,
-            r#"<text x="{x0}" y="22" font-size="15" font-weight="bold">{}</text>"#,
-            esc(title)
-        );
-        let _ = writeln!(
-            s,
-            r##"<text x="{x0}" y="40" font-size="11" fill="#555">{}</text>"##,
-            esc(subtitle)
-        );
+        let _ = writeln!(s, r#"<text x="{x0}" y="22" font-size="15" font-weight="bold">{}</text>"#, esc(title));
+        let _ = writeln!(s, r##"<text x="{x0}" y="40" font-size="11" fill="#555">{}</text>"##, esc(subtitle));
         // Grid and ticks.
         for (v, major) in self.x.ticks() {
             let px = self.px(v);
             let stroke = if major { "#ccc" } else { "#eee" };
-            let _ = writeln!(
-                s,
-                r#"<line x1="{px:.1}" y1="{y0}" x2="{px:.1}" y2="{y1}" stroke="{stroke}"/>"#
-            );
+            let _ = writeln!(s, r#"<line x1="{px:.1}" y1="{y0}" x2="{px:.1}" y2="{y1}" stroke="{stroke}"/>"#);
             let _ = writeln!(
                 s,
                 r#"<text x="{px:.1}" y="{:.1}" text-anchor="middle">{}</text>"#,
@@ -233,10 +196,7 @@ impl Chart {
         for (v, major) in self.y.ticks() {
             let py = self.py(v);
             let stroke = if major { "#ccc" } else { "#eee" };
-            let _ = writeln!(
-                s,
-                r#"<line x1="{x0}" y1="{py:.1}" x2="{x1}" y2="{py:.1}" stroke="{stroke}"/>"#
-            );
+            let _ = writeln!(s, r#"<line x1="{x0}" y1="{py:.1}" x2="{x1}" y2="{py:.1}" stroke="{stroke}"/>"#);
             let _ = writeln!(
                 s,
                 r#"<text x="{:.1}" y="{:.1}" text-anchor="end">{}</text>"#,
@@ -270,30 +230,16 @@ impl Chart {
         for (i, (label, colour, is_line, dashed)) in self.legend.iter().enumerate() {
             let ly = y0 + 14.0 + 20.0 * i as f64;
             if *is_line {
-                let dash = if *dashed {
-                    r#" stroke-dasharray="7,4""#
-                } else {
-                    ""
-                };
+                let dash = if *dashed { r#" stroke-dasharray="7,4""# } else { "" };
                 let _ = writeln!(
                     s,
                     r#"<line x1="{lx}" y1="{ly}" x2="{}" y2="{ly}" stroke="{colour}" stroke-width="1.8"{dash}/>"#,
                     lx + 24.0
                 );
             } else {
-                let _ = writeln!(
-                    s,
-                    r#"<circle cx="{}" cy="{ly}" r="3.5" fill="{colour}"/>"#,
-                    lx + 12.0
-                );
+                let _ = writeln!(s, r#"<circle cx="{}" cy="{ly}" r="3.5" fill="{colour}"/>"#, lx + 12.0);
             }
-            let _ = writeln!(
-                s,
-                r#"<text x="{}" y="{}">{}</text>"#,
-                lx + 30.0,
-                ly + 4.0,
-                esc(label)
-            );
+            let _ = writeln!(s, r#"<text x="{}" y="{}">{}</text>"#, lx + 30.0, ly + 4.0, esc(label));
         }
         s.push_str("</svg>\n");
         s
@@ -305,60 +251,29 @@ fn temperature_label(t_k: f64) -> String {
 }
 
 fn colour_of(temperatures: &[f64], t: f64) -> &'static str {
-    let i = temperatures
-        .iter()
-        .position(|v| (v - t).abs() <= 1e-9 * t.abs())
-        .unwrap_or(0);
+    let i = temperatures.iter().position(|v| (v - t).abs() <= 1e-9 * t.abs()).unwrap_or(0);
     PALETTE[i % PALETTE.len()]
 }
 
 /// Larson-Miller plot: stress (log) against P, with mean and minimum curves.
 pub fn larson_miller_svg(fit: &LmFit, input_name: &str) -> String {
-    let (x0, x1) = (
-        fit.stress_range_mpa[0].log10(),
-        fit.stress_range_mpa[1].log10(),
-    );
-    let xs: Vec<f64> = (0..=120)
-        .map(|i| x0 + (x1 - x0) * i as f64 / 120.0)
-        .collect();
-    let mean: Vec<(f64, f64)> = xs
-        .iter()
-        .map(|&x| (poly(&fit.coefficients, x), 10f64.powf(x)))
-        .collect();
+    let (x0, x1) = (fit.stress_range_mpa[0].log10(), fit.stress_range_mpa[1].log10());
+    let xs: Vec<f64> = (0..=120).map(|i| x0 + (x1 - x0) * i as f64 / 120.0).collect();
+    let mean: Vec<(f64, f64)> = xs.iter().map(|&x| (poly(&fit.coefficients, x), 10f64.powf(x))).collect();
     let [t_lo, t_hi] = fit.temperature_range_k;
-    let minimum = |t: f64| -> Vec<(f64, f64)> {
-        mean.iter()
-            .map(|&(p, s)| (p - t * fit.minimum_offset_log10_h, s))
-            .collect()
-    };
+    let minimum =
+        |t: f64| -> Vec<(f64, f64)> { mean.iter().map(|&(p, s)| (p - t * fit.minimum_offset_log10_h, s)).collect() };
     let (min_lo, min_hi) = (minimum(t_lo), minimum(t_hi));
-    let all_p = fit
-        .residuals
-        .iter()
-        .map(|r| r.parameter)
-        .chain(mean.iter().map(|m| m.0))
-        .chain(min_hi.iter().map(|m| m.0));
+    let all_p =
+        fit.residuals.iter().map(|r| r.parameter).chain(mean.iter().map(|m| m.0)).chain(min_hi.iter().map(|m| m.0));
     let x = Axis::new(
         all_p,
         false,
-        &format!(
-            "P = T·(C + log10 t_r) / 1000, T in K, t_r in h, C = {:.3}",
-            fit.constant_c
-        ),
+        &format!("P = T·(C + log10 t_r) / 1000, T in K, t_r in h, C = {:.3}", fit.constant_c),
         1000.0,
     );
-    let y = Axis::new(
-        fit.residuals.iter().map(|r| r.stress_mpa),
-        true,
-        "stress, MPa",
-        1.0,
-    );
-    let mut chart = Chart {
-        x,
-        y,
-        body: String::new(),
-        legend: Vec::new(),
-    };
+    let y = Axis::new(fit.residuals.iter().map(|r| r.stress_mpa), true, "stress, MPa", 1.0);
+    let mut chart = Chart { x, y, body: String::new(), legend: Vec::new() };
     for &t in &fit.temperatures_k {
         let pts: Vec<(f64, f64, bool)> = fit
             .residuals
@@ -366,41 +281,19 @@ pub fn larson_miller_svg(fit: &LmFit, input_name: &str) -> String {
             .filter(|r| (r.temperature_k - t).abs() <= 1e-9 * t)
             .map(|r| (r.parameter, r.stress_mpa, r.outlier))
             .collect();
-        chart.points(
-            &pts,
-            colour_of(&fit.temperatures_k, t),
-            &temperature_label(t),
-        );
+        chart.points(&pts, colour_of(&fit.temperatures_k, t), &temperature_label(t));
     }
     chart.line(&mean, "#000", false, Some("mean curve"));
     let k = fit.k;
-    chart.line(
-        &min_lo,
-        "#555",
-        true,
-        Some(&format!("min. −{k}·SEE, {t_lo:.0} K")),
-    );
+    chart.line(&min_lo, "#555", true, Some(&format!("min. −{k}·SEE, {t_lo:.0} K")));
     if (t_hi - t_lo).abs() > 1e-9 * t_hi {
-        chart.line(
-            &min_hi,
-            "#999",
-            true,
-            Some(&format!("min. −{k}·SEE, {t_hi:.0} K")),
-        );
+        chart.line(&min_hi, "#999", true, Some(&format!("min. −{k}·SEE, {t_hi:.0} K")));
     }
     if fit.residuals.iter().any(|r| r.outlier) {
-        chart.legend.push((
-            format!("|std. residual| > {}", fit.outlier_threshold),
-            "#e00000".into(),
-            false,
-            false,
-        ));
+        chart.legend.push((format!("|std. residual| > {}", fit.outlier_threshold), "#e00000".into(), false, false));
     }
     chart.finish(
-        &format!(
-            "Larson-Miller fit of {input_name}: order {}, SEE {:.3} log10 h",
-            fit.order, fit.see_log10_h
-        ),
+        &format!("Larson-Miller fit of {input_name}: order {}, SEE {:.3} log10 h", fit.order, fit.see_log10_h),
         "Screening fit: acceptance of material data is for a responsible engineer.",
     )
 }
@@ -408,27 +301,10 @@ pub fn larson_miller_svg(fit: &LmFit, input_name: &str) -> String {
 /// Norton plot: creep rate against stress (log-log) at each temperature.
 pub fn norton_svg(fit: &NortonFit, input_name: &str) -> String {
     let [s0, s1] = fit.stress_range_mpa;
-    let ss: Vec<f64> = (0..=60)
-        .map(|i| s0 * (s1 / s0).powf(i as f64 / 60.0))
-        .collect();
-    let x = Axis::new(
-        fit.residuals.iter().map(|r| r.stress_mpa),
-        true,
-        "stress, MPa",
-        1.0,
-    );
-    let y = Axis::new(
-        fit.residuals.iter().map(|r| r.rate_per_h),
-        true,
-        "minimum creep rate, 1/h",
-        1.0,
-    );
-    let mut chart = Chart {
-        x,
-        y,
-        body: String::new(),
-        legend: Vec::new(),
-    };
+    let ss: Vec<f64> = (0..=60).map(|i| s0 * (s1 / s0).powf(i as f64 / 60.0)).collect();
+    let x = Axis::new(fit.residuals.iter().map(|r| r.stress_mpa), true, "stress, MPa", 1.0);
+    let y = Axis::new(fit.residuals.iter().map(|r| r.rate_per_h), true, "minimum creep rate, 1/h", 1.0);
+    let mut chart = Chart { x, y, body: String::new(), legend: Vec::new() };
     for &t in &fit.temperatures_k {
         let colour = colour_of(&fit.temperatures_k, t);
         let pts: Vec<(f64, f64, bool)> = fit
@@ -441,23 +317,12 @@ pub fn norton_svg(fit: &NortonFit, input_name: &str) -> String {
         let curve: Vec<(f64, f64)> = ss.iter().map(|&s| (s, fit.rate_per_h(s, t))).collect();
         chart.line(&curve, colour, false, None);
     }
-    chart
-        .legend
-        .push(("lines: fitted law".into(), "#000".into(), true, false));
+    chart.legend.push(("lines: fitted law".into(), "#000".into(), true, false));
     if fit.residuals.iter().any(|r| r.outlier) {
-        chart.legend.push((
-            format!("|std. residual| > {}", fit.outlier_threshold),
-            "#e00000".into(),
-            false,
-            false,
-        ));
+        chart.legend.push((format!("|std. residual| > {}", fit.outlier_threshold), "#e00000".into(), false, false));
     }
     chart.finish(
-        &format!(
-            "Norton fit of {input_name}: n = {:.3}, Q = {:.1} kJ/mol",
-            fit.n,
-            fit.q_j_per_mol / 1000.0
-        ),
+        &format!("Norton fit of {input_name}: n = {:.3}, Q = {:.1} kJ/mol", fit.n, fit.q_j_per_mol / 1000.0),
         "Screening fit: acceptance of material data is for a responsible engineer.",
     )
 }
@@ -470,10 +335,7 @@ mod tests {
     fn log_ticks_are_decades_and_labels_trim() {
         let a = Axis::new([30.0, 300.0].into_iter(), true, "s", 1.0);
         let t: Vec<f64> = a.ticks().iter().map(|t| t.0).collect();
-        assert!(
-            t.contains(&100.0) && t.contains(&50.0) && t.contains(&200.0),
-            "{t:?}"
-        );
+        assert!(t.contains(&100.0) && t.contains(&50.0) && t.contains(&200.0), "{t:?}");
         assert_eq!(a.tick_label(100.0), "100");
         let b = Axis::new([18_000.0, 24_000.0].into_iter(), false, "p", 1000.0);
         assert!(b.ticks().iter().any(|t| (t.0 - 20_000.0).abs() < 1e-6));

@@ -151,7 +151,9 @@ pub fn decode_payload(p: &PayloadSettings, payload: &[u8], receive_ms: i64) -> R
         PayloadFormat::Json => {
             let v: serde_json::Value = serde_json::from_str(text).map_err(|e| DecodeError::NotJson(e.to_string()))?;
             let value = match at_path(&v, &p.value) {
-                Some(serde_json::Value::Number(n)) => n.as_f64().ok_or_else(|| DecodeError::FieldNotNumber(p.value.clone()))?,
+                Some(serde_json::Value::Number(n)) => {
+                    n.as_f64().ok_or_else(|| DecodeError::FieldNotNumber(p.value.clone()))?
+                }
                 Some(serde_json::Value::String(s)) => {
                     s.trim().parse().map_err(|_| DecodeError::FieldNotNumber(p.value.clone()))?
                 }
@@ -159,7 +161,12 @@ pub fn decode_payload(p: &PayloadSettings, payload: &[u8], receive_ms: i64) -> R
                 Some(_) => return Err(DecodeError::FieldNotNumber(p.value.clone())),
                 None => return Err(DecodeError::MissingField(p.value.clone())),
             };
-            let (time_ms, receive_time) = match p.timestamp.as_deref().filter(|p| !p.is_empty()).and_then(|path| at_path(&v, path)) {
+            let (time_ms, receive_time) = match p
+                .timestamp
+                .as_deref()
+                .filter(|p| !p.is_empty())
+                .and_then(|path| at_path(&v, path))
+            {
                 None | Some(serde_json::Value::Null) => (receive_ms, true),
                 Some(serde_json::Value::Number(n)) => {
                     let x = n.as_f64().unwrap_or(f64::NAN);
@@ -182,7 +189,9 @@ pub fn decode_payload(p: &PayloadSettings, payload: &[u8], receive_ms: i64) -> R
                     Some(_) => Quality::Bad,
                     None => return Err(DecodeError::BadQuality(n.to_string())),
                 },
-                Some(serde_json::Value::String(s)) => parse_quality(s).ok_or_else(|| DecodeError::BadQuality(clip(s)))?,
+                Some(serde_json::Value::String(s)) => {
+                    parse_quality(s).ok_or_else(|| DecodeError::BadQuality(clip(s)))?
+                }
                 Some(other) => return Err(DecodeError::BadQuality(clip(&other.to_string()))),
             };
             Ok(Decoded { time_ms, value, quality, receive_time })
@@ -328,8 +337,12 @@ mod tests {
     #[test]
     fn payloads() {
         let p = PayloadSettings::default();
-        let d = decode_payload(&p, br#"{"value": 541.5, "timestamp": "2026-10-01T00:00:00Z", "quality": "good"}"#, 7).unwrap();
-        assert_eq!(d, Decoded { time_ms: 1_790_812_800_000, value: 541.5, quality: Quality::Good, receive_time: false });
+        let d = decode_payload(&p, br#"{"value": 541.5, "timestamp": "2026-10-01T00:00:00Z", "quality": "good"}"#, 7)
+            .unwrap();
+        assert_eq!(
+            d,
+            Decoded { time_ms: 1_790_812_800_000, value: 541.5, quality: Quality::Good, receive_time: false }
+        );
         let d = decode_payload(&p, br#"{"value": 1, "timestamp": 1790812800}"#, 7).unwrap();
         assert_eq!(d.time_ms, 1_790_812_800_000);
         let d = decode_payload(&p, br#"{"value": 1, "timestamp": 1790812800123}"#, 7).unwrap();
@@ -357,7 +370,10 @@ mod tests {
         assert_eq!(decode_payload(&p, b"{\"v\": 1}", 0).unwrap_err(), DecodeError::MissingField("value".into()));
         assert!(matches!(decode_payload(&p, b"not json", 0), Err(DecodeError::NotJson(_))));
         assert!(matches!(decode_payload(&p, br#"{"value": null}"#, 0), Err(DecodeError::FieldNotNumber(_))));
-        assert!(matches!(decode_payload(&p, br#"{"value": 1, "timestamp": "soon"}"#, 0), Err(DecodeError::BadTimestamp(_))));
+        assert!(matches!(
+            decode_payload(&p, br#"{"value": 1, "timestamp": "soon"}"#, 0),
+            Err(DecodeError::BadTimestamp(_))
+        ));
         assert!(matches!(decode_payload(&p, br#"{"value": 1, "quality": "meh"}"#, 0), Err(DecodeError::BadQuality(_))));
         assert_eq!(decode_payload(&p, &[0xff, 0xfe], 0).unwrap_err(), DecodeError::NotUtf8);
         let num = PayloadSettings { format: PayloadFormat::Number, ..p };

@@ -10,7 +10,9 @@
 pub mod decode;
 
 use decode::{PayloadSettings, TopicTemplate};
-use rumqttc::{AsyncClient, Event, EventLoop, LastWill, MqttOptions, Packet, Publish, QoS, TlsConfiguration, Transport};
+use rumqttc::{
+    AsyncClient, Event, EventLoop, LastWill, MqttOptions, Packet, Publish, QoS, TlsConfiguration, Transport,
+};
 use serde::Deserialize;
 use std::path::PathBuf;
 use std::time::Duration;
@@ -125,7 +127,9 @@ impl MqttSettings {
     /// The password, from the environment or a file; never logged.
     pub fn password(&self) -> Result<Option<String>, String> {
         if let Some(var) = &self.password_env {
-            return std::env::var(var).map(Some).map_err(|_| format!("[mqtt] password_env: environment variable {var} is not set"));
+            return std::env::var(var)
+                .map(Some)
+                .map_err(|_| format!("[mqtt] password_env: environment variable {var} is not set"));
         }
         if let Some(f) = &self.password_file {
             return std::fs::read_to_string(f)
@@ -162,7 +166,8 @@ impl MqttSettings {
             o.set_credentials(user, self.password()?.unwrap_or_default());
         }
         if let Some(t) = &self.tls {
-            let read = |p: &PathBuf, key: &str| std::fs::read(p).map_err(|e| format!("[mqtt.tls] {key} {}: {e}", p.display()));
+            let read =
+                |p: &PathBuf, key: &str| std::fs::read(p).map_err(|e| format!("[mqtt.tls] {key} {}: {e}", p.display()));
             let ca = read(&t.ca_file, "ca_file")?;
             let client_auth = match (&t.client_cert_file, &t.client_key_file) {
                 (Some(c), Some(k)) => Some((read(c, "client_cert_file")?, read(k, "client_key_file")?)),
@@ -220,7 +225,12 @@ pub async fn run_event_loop(
         match ev {
             Ok(Event::Incoming(Packet::ConnAck(ack))) => {
                 delay = settings.reconnect_min_s;
-                tracing::info!(session_present = ack.session_present, "connected to MQTT broker {}:{}", settings.host, settings.port);
+                tracing::info!(
+                    session_present = ack.session_present,
+                    "connected to MQTT broker {}:{}",
+                    settings.host,
+                    settings.port
+                );
                 // Subscriptions live in the broker's session; renew them anyway
                 // (harmless when present, needed when the broker lost the session).
                 for f in &filters {
@@ -241,7 +251,11 @@ pub async fn run_event_loop(
             }
             Ok(_) => {}
             Err(e) => {
-                tracing::warn!("MQTT connection to {}:{} lost or refused: {e}; retrying in {delay:.1} s", settings.host, settings.port);
+                tracing::warn!(
+                    "MQTT connection to {}:{} lost or refused: {e}; retrying in {delay:.1} s",
+                    settings.host,
+                    settings.port
+                );
                 let _ = to_ledger.send(Inbound::Connection { connected: false }).await;
                 tokio::select! {
                     _ = tokio::time::sleep(Duration::from_secs_f64(delay)) => {}

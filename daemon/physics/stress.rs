@@ -53,12 +53,7 @@ pub fn hoop_stress_mpa(basis: StressBasis, p_mpa: f64, do_mm: f64, wall_mm: f64)
 /// `rate_mm_per_year` (365.25-day years) from a wall of `wall_mm` that
 /// already lost `measured_loss_mm`. Never below [`MIN_WALL_MM`].
 #[inline]
-pub fn remaining_wall_mm(
-    wall_mm: f64,
-    measured_loss_mm: f64,
-    rate_mm_per_year: f64,
-    service_h: f64,
-) -> f64 {
+pub fn remaining_wall_mm(wall_mm: f64, measured_loss_mm: f64, rate_mm_per_year: f64, service_h: f64) -> f64 {
     let thinning = rate_mm_per_year.max(0.0) * service_h.max(0.0) / (365.25 * 24.0);
     (wall_mm - measured_loss_mm.max(0.0) - thinning).max(MIN_WALL_MM)
 }

@@ -71,13 +71,7 @@ const fn u(name: &'static str, quantity: Quantity, scale: f64, offset: f64) -> U
 }
 
 const fn abs(name: &'static str, scale: f64) -> Unit {
-    Unit {
-        name,
-        quantity: Quantity::Pressure,
-        scale,
-        offset: -STANDARD_ATMOSPHERE_MPA,
-        absolute: true,
-    }
+    Unit { name, quantity: Quantity::Pressure, scale, offset: -STANDARD_ATMOSPHERE_MPA, absolute: true }
 }
 
 /// Every accepted unit spelling. Pressure units without a suffix are gauge;
@@ -153,21 +147,14 @@ impl Unit {
             Ok(u) if u.quantity == quantity => Ok(u),
             _ => Err(UnknownUnit {
                 given: s.to_string(),
-                quantity_hint: format!(
-                    "{quantity} units: {}",
-                    Unit::spellings(Some(quantity)).join(", ")
-                ),
+                quantity_hint: format!("{quantity} units: {}", Unit::spellings(Some(quantity)).join(", ")),
             }),
         }
     }
 
     /// The accepted spellings, optionally for one quantity.
     pub fn spellings(quantity: Option<Quantity>) -> Vec<&'static str> {
-        UNITS
-            .iter()
-            .filter(|u| quantity.is_none_or(|q| q == u.quantity))
-            .map(|u| u.name)
-            .collect()
+        UNITS.iter().filter(|u| quantity.is_none_or(|q| q == u.quantity)).map(|u| u.name).collect()
     }
 
     /// Convert a value in this unit to the internal unit of its quantity.

@@ -80,11 +80,16 @@ async fn material(State(s): State<HttpState>, axum::extract::Path(grade): axum::
 /// command topic, allowed only with `Authorization: Bearer <token>` when a
 /// token is configured. The command is applied by the ledger thread like an
 /// MQTT command, so it is durable before it takes effect.
-async fn alarm_command(State(s): State<HttpState>, headers: axum::http::HeaderMap, body: axum::body::Bytes) -> Response {
+async fn alarm_command(
+    State(s): State<HttpState>,
+    headers: axum::http::HeaderMap,
+    body: axum::body::Bytes,
+) -> Response {
     let Some(token) = &s.token else {
         return (StatusCode::FORBIDDEN, "read-only: no [http] token_env configured\n").into_response();
     };
-    let given = headers.get(header::AUTHORIZATION).and_then(|v| v.to_str().ok()).and_then(|v| v.strip_prefix("Bearer "));
+    let given =
+        headers.get(header::AUTHORIZATION).and_then(|v| v.to_str().ok()).and_then(|v| v.strip_prefix("Bearer "));
     if given != Some(token.as_str()) {
         return (StatusCode::UNAUTHORIZED, "missing or wrong bearer token\n").into_response();
     }

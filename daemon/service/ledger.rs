@@ -128,7 +128,8 @@ impl Ledger {
         let mut tags = vec![];
         for (name, json) in &loaded.tags {
             parse("tag", name, json)?;
-            let t: TagState = serde_json::from_str(json).map_err(|e| anyhow::anyhow!("ledger {}: tag {name}: {e}", service.store.path.display()))?;
+            let t: TagState = serde_json::from_str(json)
+                .map_err(|e| anyhow::anyhow!("ledger {}: tag {name}: {e}", service.store.path.display()))?;
             tags.push((name.clone(), t));
         }
         let mut components = vec![];
@@ -151,7 +152,10 @@ impl Ledger {
         for (key, json) in &loaded.alarms {
             match serde_json::from_str::<AlarmRecord>(json) {
                 Ok(r) => records.push(r),
-                Err(e) => tracing::error!("ledger {}: alarm record {key} unreadable ({e}); it starts afresh", service.store.path.display()),
+                Err(e) => tracing::error!(
+                    "ledger {}: alarm record {key} unreadable ({e}); it starts afresh",
+                    service.store.path.display()
+                ),
             }
         }
         let book = AlarmBook::from_records(records).with_config(service.alarms.clone());
@@ -230,7 +234,12 @@ impl Ledger {
     }
 
     /// Run until stopped: the group-commit loop.
-    pub fn run(mut self, mut rx: mpsc::Receiver<Inbound>, mut control: std::sync::mpsc::Receiver<Control>, rt: tokio::runtime::Handle) {
+    pub fn run(
+        mut self,
+        mut rx: mpsc::Receiver<Inbound>,
+        mut control: std::sync::mpsc::Receiver<Control>,
+        rt: tokio::runtime::Handle,
+    ) {
         loop {
             match control.try_recv() {
                 Ok(Control::Stop) | Err(std::sync::mpsc::TryRecvError::Disconnected) => {
@@ -417,7 +426,9 @@ impl Ledger {
                 }
             }
             Err(reason) => {
-                self.log.warn(reason.name(), || format!("sample of {tag} at {} rejected: {}", rfc3339_ms(d.time_ms), reason.name()));
+                self.log.warn(reason.name(), || {
+                    format!("sample of {tag} at {} rejected: {}", rfc3339_ms(d.time_ms), reason.name())
+                });
                 match reason {
                     Rejection::OutOfRange | Rejection::NotFinite => {
                         self.sensor[ti].0 = true;
@@ -468,7 +479,11 @@ impl Ledger {
                     badq.push(tp.name.as_str());
                 }
             }
-            for (index, tags) in [(AlarmIndex::SensorStale, stale), (AlarmIndex::SensorOutOfRange, oor), (AlarmIndex::SensorBadQuality, badq)] {
+            for (index, tags) in [
+                (AlarmIndex::SensorStale, stale),
+                (AlarmIndex::SensorOutOfRange, oor),
+                (AlarmIndex::SensorBadQuality, badq),
+            ] {
                 let detail = if tags.is_empty() { String::new() } else { format!("tag {}", tags.join(", ")) };
                 evaluations.push((c.name.clone(), c.unit.clone(), index, !tags.is_empty(), detail));
             }
@@ -485,7 +500,12 @@ impl Ledger {
     /// Write the batch in one transaction, then acknowledge and publish.
     pub fn commit(&mut self) {
         let changed = self.engine.take_changed();
-        if changed.is_empty() && self.pending.is_empty() && self.extra_outbox.is_empty() && self.events.is_empty() && self.dirty_alarms.is_empty() {
+        if changed.is_empty()
+            && self.pending.is_empty()
+            && self.extra_outbox.is_empty()
+            && self.events.is_empty()
+            && self.dirty_alarms.is_empty()
+        {
             self.force_commit = false;
             return;
         }
@@ -534,7 +554,12 @@ impl Ledger {
         let tags: Vec<(String, String)> = self
             .dirty_tags
             .iter()
-            .map(|&ti| (self.engine.plan().tags[ti].name.clone(), serde_json::to_string(&self.engine.tags()[ti]).unwrap_or_default()))
+            .map(|&ti| {
+                (
+                    self.engine.plan().tags[ti].name.clone(),
+                    serde_json::to_string(&self.engine.tags()[ti]).unwrap_or_default(),
+                )
+            })
             .collect();
         let alarms: Vec<(String, String)> = self
             .dirty_alarms
@@ -617,12 +642,26 @@ impl Ledger {
                 quota = q,
                 "outbox over its disk quota: intake paused (the broker keeps the backlog) until the database accepts points again"
             );
-            let ev = self.book.evaluate_condition("lifeledger", "", AlarmIndex::ServiceHealth, true, "outbox over quota; intake paused", t);
+            let ev = self.book.evaluate_condition(
+                "lifeledger",
+                "",
+                AlarmIndex::ServiceHealth,
+                true,
+                "outbox over quota; intake paused",
+                t,
+            );
             self.note_events(ev);
         } else if self.holding && under {
             self.holding = false;
             tracing::info!("outbox below its quota again: intake resumed");
-            let ev = self.book.evaluate_condition("lifeledger", "", AlarmIndex::ServiceHealth, false, "outbox below quota", t);
+            let ev = self.book.evaluate_condition(
+                "lifeledger",
+                "",
+                AlarmIndex::ServiceHealth,
+                false,
+                "outbox below quota",
+                t,
+            );
             self.note_events(ev);
         }
     }
@@ -637,12 +676,14 @@ impl Ledger {
     fn publish_alarms(&self, events: &[AlarmEvent]) {
         let mut comps = BTreeSet::new();
         for e in events {
-            let _ = self.client.try_publish(self.service.mqtt.alarm_event_topic(), QoS::AtLeastOnce, false, e.to_json());
+            let _ =
+                self.client.try_publish(self.service.mqtt.alarm_event_topic(), QoS::AtLeastOnce, false, e.to_json());
             comps.insert(e.component.clone());
         }
         for c in comps {
             let s = self.book.current(&c);
-            let _ = self.client.try_publish(self.service.mqtt.alarm_state_topic(&c), QoS::AtLeastOnce, true, s.to_json());
+            let _ =
+                self.client.try_publish(self.service.mqtt.alarm_state_topic(&c), QoS::AtLeastOnce, true, s.to_json());
         }
     }
 

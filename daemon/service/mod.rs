@@ -68,10 +68,13 @@ pub async fn run_until(config_path: &Path, stop: impl std::future::Future<Output
     tracing::info!("status on http://{}/", listener.local_addr()?);
     let (in_tx, in_rx) = mpsc::channel::<Inbound>(1024);
     let token = match &svc.http.token_env {
-        Some(var) => Some(std::env::var(var).with_context(|| format!("[http] token_env: environment variable {var} is not set"))?),
+        Some(var) => Some(
+            std::env::var(var).with_context(|| format!("[http] token_env: environment variable {var} is not set"))?,
+        ),
         None => None,
     };
-    let http_state = http::HttpState { snapshot: snap_rx.clone(), trends: trend_rx, token, commands: in_tx.clone(), library };
+    let http_state =
+        http::HttpState { snapshot: snap_rx.clone(), trends: trend_rx, token, commands: in_tx.clone(), library };
     let mut http_shutdown = shutdown_tx.subscribe();
     let http_task = tokio::spawn(async move {
         let _ = axum::serve(listener, http::router(http_state))
@@ -88,12 +91,20 @@ pub async fn run_until(config_path: &Path, stop: impl std::future::Future<Output
     // The event loop keeps polling until the very end so that the last
     // acknowledgements and the offline status reach the broker.
     let (loop_stop_tx, _) = broadcast::channel::<()>(1);
-    let ingest_task = tokio::spawn(run_event_loop(svc.mqtt.clone(), client.clone(), eventloop, filters, in_tx, loop_stop_tx.subscribe()));
+    let ingest_task = tokio::spawn(run_event_loop(
+        svc.mqtt.clone(),
+        client.clone(),
+        eventloop,
+        filters,
+        in_tx,
+        loop_stop_tx.subscribe(),
+    ));
 
     let (reach_tx, _reach_rx) = watch::channel(None);
-    let sender_task = svc.database.clone().map(|d| {
-        tokio::spawn(outbox::run_sender(d, svc.store.path.clone(), reach_tx, shutdown_tx.subscribe()))
-    });
+    let sender_task = svc
+        .database
+        .clone()
+        .map(|d| tokio::spawn(outbox::run_sender(d, svc.store.path.clone(), reach_tx, shutdown_tx.subscribe())));
 
     // Signals.
     #[cfg(unix)]

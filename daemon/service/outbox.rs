@@ -69,13 +69,20 @@ pub async fn run_sender(
                 // The database refuses these lines as they are; retrying
                 // would block everything behind them. Say so loudly, keep
                 // them in the log, and move on.
-                tracing::error!(lines = lines.len(), "database refused a batch as malformed, dropping it from the outbox: {e}; first line: {}", lines[0]);
+                tracing::error!(
+                    lines = lines.len(),
+                    "database refused a batch as malformed, dropping it from the outbox: {e}; first line: {}",
+                    lines[0]
+                );
                 let _ = tokio::task::block_in_place(|| store.outbox_remove_through(last_id));
             }
             Err(e) => {
                 let _ = reachable.send(Some(false));
                 if stopping {
-                    tracing::warn!("database unreachable at shutdown; {} points stay in the outbox for the next start: {e}", lines.len());
+                    tracing::warn!(
+                        "database unreachable at shutdown; {} points stay in the outbox for the next start: {e}",
+                        lines.len()
+                    );
                     break;
                 }
                 let d = backoff.next_delay();

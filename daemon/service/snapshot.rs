@@ -83,7 +83,12 @@ pub fn metrics_text(s: &Snapshot) -> String {
         }
     };
     let e = &s.engine;
-    metric("lifeledger_samples_accepted_total", "Samples integrated.", "counter", vec![(String::new(), e.accepted as f64)]);
+    metric(
+        "lifeledger_samples_accepted_total",
+        "Samples integrated.",
+        "counter",
+        vec![(String::new(), e.accepted as f64)],
+    );
     let mut rej: Vec<(String, f64)> = crate::engine::Rejection::ALL
         .iter()
         .map(|r| (format!("{{reason=\"{}\"}}", r.name()), e.get(*r) as f64))
@@ -92,14 +97,54 @@ pub fn metrics_text(s: &Snapshot) -> String {
         rej.push((format!("{{reason=\"{k}\"}}"), *v as f64));
     }
     metric("lifeledger_samples_rejected_total", "Samples or messages not integrated, by reason.", "counter", rej);
-    metric("lifeledger_duplicates_total", "Samples at or before their tag's cursor.", "counter", vec![(String::new(), (e.duplicate + e.late) as f64)]);
-    metric("lifeledger_outbox_lines", "Points waiting for the database.", "gauge", vec![(String::new(), s.outbox_lines as f64)]);
-    metric("lifeledger_outbox_bytes", "Bytes waiting for the database.", "gauge", vec![(String::new(), s.outbox_bytes as f64)]);
-    metric("lifeledger_commits_total", "Ledger transactions committed.", "counter", vec![(String::new(), s.service.commits as f64)]);
-    metric("lifeledger_commit_latency_ms", "Latency of the last ledger commit.", "gauge", vec![(String::new(), s.service.last_commit_ms)]);
-    metric("lifeledger_commit_latency_max_ms", "Largest ledger commit latency.", "gauge", vec![(String::new(), s.service.max_commit_ms)]);
-    metric("lifeledger_mqtt_connected", "1 when connected to the broker.", "gauge", vec![(String::new(), s.mqtt_connected as u8 as f64)]);
-    metric("lifeledger_intake_holding", "1 when intake is paused (outbox over quota).", "gauge", vec![(String::new(), s.holding as u8 as f64)]);
+    metric(
+        "lifeledger_duplicates_total",
+        "Samples at or before their tag's cursor.",
+        "counter",
+        vec![(String::new(), (e.duplicate + e.late) as f64)],
+    );
+    metric(
+        "lifeledger_outbox_lines",
+        "Points waiting for the database.",
+        "gauge",
+        vec![(String::new(), s.outbox_lines as f64)],
+    );
+    metric(
+        "lifeledger_outbox_bytes",
+        "Bytes waiting for the database.",
+        "gauge",
+        vec![(String::new(), s.outbox_bytes as f64)],
+    );
+    metric(
+        "lifeledger_commits_total",
+        "Ledger transactions committed.",
+        "counter",
+        vec![(String::new(), s.service.commits as f64)],
+    );
+    metric(
+        "lifeledger_commit_latency_ms",
+        "Latency of the last ledger commit.",
+        "gauge",
+        vec![(String::new(), s.service.last_commit_ms)],
+    );
+    metric(
+        "lifeledger_commit_latency_max_ms",
+        "Largest ledger commit latency.",
+        "gauge",
+        vec![(String::new(), s.service.max_commit_ms)],
+    );
+    metric(
+        "lifeledger_mqtt_connected",
+        "1 when connected to the broker.",
+        "gauge",
+        vec![(String::new(), s.mqtt_connected as u8 as f64)],
+    );
+    metric(
+        "lifeledger_intake_holding",
+        "1 when intake is paused (outbox over quota).",
+        "gauge",
+        vec![(String::new(), s.holding as u8 as f64)],
+    );
     let lf: Vec<(String, f64)> = s
         .components
         .iter()

@@ -34,8 +34,8 @@ impl MaterialLibrary {
     ) -> Result<MaterialLibrary, LibraryError> {
         let mut lib = MaterialLibrary::default();
         for (file, text) in files {
-            let m: Material = toml::from_str(text)
-                .map_err(|e| LibraryError { file: file.to_string(), message: e.to_string() })?;
+            let m: Material =
+                toml::from_str(text).map_err(|e| LibraryError { file: file.to_string(), message: e.to_string() })?;
             lib.grades.push(m);
         }
         lib.grades.sort_by(|a, b| a.grade.cmp(&b.grade));
@@ -51,9 +51,10 @@ impl MaterialLibrary {
     /// Look a grade up by its name or an alias, ignoring case.
     pub fn get(&self, name: &str) -> Option<&Material> {
         let n = name.trim();
-        self.grades.iter().find(|m| m.grade.eq_ignore_ascii_case(n)).or_else(|| {
-            self.grades.iter().find(|m| m.aliases.iter().any(|a| a.eq_ignore_ascii_case(n)))
-        })
+        self.grades
+            .iter()
+            .find(|m| m.grade.eq_ignore_ascii_case(n))
+            .or_else(|| self.grades.iter().find(|m| m.aliases.iter().any(|a| a.eq_ignore_ascii_case(n))))
     }
 
     /// All grades, sorted by name.

@@ -72,12 +72,7 @@ pub fn read_settings(path: &Path) -> Result<Settings, ConfigError> {
     let file = path.display().to_string();
     let fail = |problem: String, fix: &str| ConfigError {
         file: file.clone(),
-        problems: vec![ConfigProblem {
-            place: "file".into(),
-            key: "-".into(),
-            problem,
-            fix: fix.into(),
-        }],
+        problems: vec![ConfigProblem { place: "file".into(), key: "-".into(), problem, fix: fix.into() }],
     };
     if !path.exists() {
         return Err(fail("file not found".into(), "give the path of a TOML configuration file"));
@@ -90,10 +85,7 @@ pub fn read_settings(path: &Path) -> Result<Settings, ConfigError> {
     let cfg = config::Config::builder()
         .add_source(config::File::from(PathBuf::from(path)).format(config::FileFormat::Toml))
         .add_source(
-            config::Environment::with_prefix("LIFELEDGER")
-                .prefix_separator("__")
-                .separator("__")
-                .try_parsing(true),
+            config::Environment::with_prefix("LIFELEDGER").prefix_separator("__").separator("__").try_parsing(true),
         )
         .build()
         .map_err(|e| fail(e.to_string(), "correct the TOML"))?;
@@ -116,8 +108,7 @@ pub fn plan_settings(file: &str, settings: Settings) -> Result<LoadedConfig, Con
         library.insert(m.clone());
     }
     let tags = v.tags(&settings);
-    let tag_index: HashMap<&str, usize> =
-        tags.iter().enumerate().map(|(i, t)| (t.name.as_str(), i)).collect();
+    let tag_index: HashMap<&str, usize> = tags.iter().enumerate().map(|(i, t)| (t.name.as_str(), i)).collect();
     let mut components = Vec::new();
     let mut seen = HashMap::new();
     for (i, c) in settings.components.iter().enumerate() {
@@ -202,13 +193,28 @@ impl Validator {
         }
         let lm = &m.larson_miller;
         if !(2..=4).contains(&lm.coefficients.len()) {
-            self.err(&place, "larson_miller.coefficients", "needs 2 to 4 coefficients", "give [a0, a1] up to [a0, a1, a2, a3]");
+            self.err(
+                &place,
+                "larson_miller.coefficients",
+                "needs 2 to 4 coefficients",
+                "give [a0, a1] up to [a0, a1, a2, a3]",
+            );
         }
         if !(lm.stress_range_mpa[0] > 0.0 && lm.stress_range_mpa[0] < lm.stress_range_mpa[1]) {
-            self.err(&place, "larson_miller.stress_range_mpa", "must be [low, high] with 0 < low < high", "give the stress span of the data");
+            self.err(
+                &place,
+                "larson_miller.stress_range_mpa",
+                "must be [low, high] with 0 < low < high",
+                "give the stress span of the data",
+            );
         }
         if !(lm.temperature_range_k[0] > 0.0 && lm.temperature_range_k[0] < lm.temperature_range_k[1]) {
-            self.err(&place, "larson_miller.temperature_range_k", "must be [low, high] in K with 0 < low < high", "give the temperature span of the data in K");
+            self.err(
+                &place,
+                "larson_miller.temperature_range_k",
+                "must be [low, high] in K with 0 < low < high",
+                "give the temperature span of the data in K",
+            );
         }
         if !(m.melting_point_k.value > 0.0) {
             self.err(&place, "melting_point_k", "must be positive (K)", "give the solidus in K");
@@ -224,7 +230,12 @@ impl Validator {
                 self.err(&place, "name", p, "use printable characters only");
             }
             if let Some(j) = seen.insert(t.name.clone(), i) {
-                self.err(&place, "name", format!("duplicate tag (also tag #{})", j + 1), "define each tag once; several components may read it");
+                self.err(
+                    &place,
+                    "name",
+                    format!("duplicate tag (also tag #{})", j + 1),
+                    "define each tag once; several components may read it",
+                );
             }
             let unit = match Unit::parse(&t.unit) {
                 Ok(u) => u,
@@ -243,7 +254,12 @@ impl Validator {
                 self.err(&place, "max_hold_s", "must be a positive number of seconds", "for example 900");
             }
             if !(t.scale.is_finite() && t.scale != 0.0 && t.offset.is_finite()) {
-                self.err(&place, "scale", "scale must be finite and non-zero, offset finite", "default scale = 1, offset = 0");
+                self.err(
+                    &place,
+                    "scale",
+                    "scale must be finite and non-zero, offset finite",
+                    "default scale = 1, offset = 0",
+                );
             }
             out.push(TagPlan {
                 name: t.name.clone(),
@@ -291,14 +307,22 @@ impl Validator {
                         self.err(
                             place,
                             key,
-                            format!("tag \"{name}\" measures {} (unit {}), but {key} needs {quantity}", tags[ti].unit.quantity, tags[ti].unit.name),
+                            format!(
+                                "tag \"{name}\" measures {} (unit {}), but {key} needs {quantity}",
+                                tags[ti].unit.quantity, tags[ti].unit.name
+                            ),
                             "point the input at a tag of the right kind, or fix the tag's unit",
                         );
                     }
                     Some(Input::Tag(ti as TagId))
                 }
                 None => {
-                    self.err(place, key, format!("tag \"{name}\" is not defined"), "add a [[tag]] entry with this name, or correct the name");
+                    self.err(
+                        place,
+                        key,
+                        format!("tag \"{name}\" is not defined"),
+                        "add a [[tag]] entry with this name, or correct the name",
+                    );
                     None
                 }
             },
@@ -348,20 +372,37 @@ impl Validator {
                 None
             }
         };
-        let design_t = c.design_temperature.as_ref().and_then(|q| self.quantity(place, "design_temperature", q, Quantity::Temperature));
-        let design_p = c.design_pressure.as_ref().and_then(|q| self.quantity(place, "design_pressure", q, Quantity::Pressure));
-        let metal_temperature = c.metal_temperature.as_ref().and_then(|i| self.input(place, "metal_temperature", i, Quantity::Temperature, tags, index));
-        let pressure = c.pressure.as_ref().and_then(|i| self.input(place, "pressure", i, Quantity::Pressure, tags, index));
+        let design_t = c
+            .design_temperature
+            .as_ref()
+            .and_then(|q| self.quantity(place, "design_temperature", q, Quantity::Temperature));
+        let design_p =
+            c.design_pressure.as_ref().and_then(|q| self.quantity(place, "design_pressure", q, Quantity::Pressure));
+        let metal_temperature = c
+            .metal_temperature
+            .as_ref()
+            .and_then(|i| self.input(place, "metal_temperature", i, Quantity::Temperature, tags, index));
+        let pressure =
+            c.pressure.as_ref().and_then(|i| self.input(place, "pressure", i, Quantity::Pressure, tags, index));
 
         let stress = if let Some(fs) = &c.fixed_stress {
             if c.geometry.is_some() {
-                self.err(place, "fixed_stress", "both fixed_stress and geometry are given", "keep one: geometry for pressure parts, fixed_stress otherwise");
+                self.err(
+                    place,
+                    "fixed_stress",
+                    "both fixed_stress and geometry are given",
+                    "keep one: geometry for pressure parts, fixed_stress otherwise",
+                );
             }
             self.quantity(place, "fixed_stress", fs, Quantity::Pressure).map(StressPlan::Fixed)
         } else if let Some(g) = &c.geometry {
             let od = self.quantity(place, "geometry.outside_diameter", &g.outside_diameter, Quantity::Length);
             let wall = self.quantity(place, "geometry.wall", &g.wall, Quantity::Length);
-            let loss = g.measured_wall_loss.as_ref().and_then(|q| self.quantity(place, "geometry.measured_wall_loss", q, Quantity::Length)).unwrap_or(0.0);
+            let loss = g
+                .measured_wall_loss
+                .as_ref()
+                .and_then(|q| self.quantity(place, "geometry.measured_wall_loss", q, Quantity::Length))
+                .unwrap_or(0.0);
             if let Some(ca) = &g.corrosion_allowance {
                 self.quantity(place, "geometry.corrosion_allowance", ca, Quantity::Length);
             }
@@ -370,26 +411,56 @@ impl Validator {
                 Some(d) => match parse_date_ms(d) {
                     Some(ms) => Some(ms),
                     None => {
-                        self.err(place, "geometry.wall_reference_date", format!("\"{d}\" is not a date"), "write 2025-06-01 or 2025-06-01T00:00:00Z");
+                        self.err(
+                            place,
+                            "geometry.wall_reference_date",
+                            format!("\"{d}\" is not a date"),
+                            "write 2025-06-01 or 2025-06-01T00:00:00Z",
+                        );
                         None
                     }
                 },
             };
             if !(g.thinning_rate_mm_per_year >= 0.0 && g.thinning_rate_mm_per_year.is_finite()) {
-                self.err(place, "geometry.thinning_rate_mm_per_year", "must be zero or positive", "give mm per year, 0 for none");
+                self.err(
+                    place,
+                    "geometry.thinning_rate_mm_per_year",
+                    "must be zero or positive",
+                    "give mm per year, 0 for none",
+                );
             }
             match (od, wall) {
                 (Some(od), Some(wall)) => {
                     if !(wall > 0.0) {
-                        self.err(place, "geometry.wall", "wall thickness must be positive", "give the measured or nominal wall");
+                        self.err(
+                            place,
+                            "geometry.wall",
+                            "wall thickness must be positive",
+                            "give the measured or nominal wall",
+                        );
                     } else if !(od > 2.0 * wall) {
-                        self.err(place, "geometry.outside_diameter", format!("outside diameter {od} mm is not larger than twice the wall ({wall} mm)"), "check diameter and wall (and their units)");
+                        self.err(
+                            place,
+                            "geometry.outside_diameter",
+                            format!("outside diameter {od} mm is not larger than twice the wall ({wall} mm)"),
+                            "check diameter and wall (and their units)",
+                        );
                     }
                     if loss >= wall && wall > 0.0 {
-                        self.err(place, "geometry.measured_wall_loss", "measured wall loss is not smaller than the wall", "check the inspection record");
+                        self.err(
+                            place,
+                            "geometry.measured_wall_loss",
+                            "measured wall loss is not smaller than the wall",
+                            "check the inspection record",
+                        );
                     }
                     if pressure.is_none() {
-                        self.err(place, "pressure", "a pressure part needs a pressure input", "set pressure = \"TAG\" or { value = …, unit = \"bar\" }");
+                        self.err(
+                            place,
+                            "pressure",
+                            "a pressure part needs a pressure input",
+                            "set pressure = \"TAG\" or { value = …, unit = \"bar\" }",
+                        );
                     }
                     Some(StressPlan::Hoop {
                         basis: c.stress_basis.unwrap_or(StressBasis::MeanDiameter),
@@ -405,14 +476,24 @@ impl Validator {
         } else if c.wear.is_some() {
             Some(StressPlan::Fixed(0.0))
         } else {
-            self.err(place, "geometry", "neither geometry nor fixed_stress is given", "add [component.geometry] for a pressure part, or fixed_stress");
+            self.err(
+                place,
+                "geometry",
+                "neither geometry nor fixed_stress is given",
+                "add [component.geometry] for a pressure part, or fixed_stress",
+            );
             None
         };
         if !(c.stress_factor > 0.0 && c.stress_factor.is_finite()) {
             self.err(place, "stress_factor", "must be positive", "1.0 for none");
         }
         if metal_temperature.is_none() && c.wear.is_none() && c.metal_temperature.is_none() {
-            self.err(place, "metal_temperature", "no metal temperature input", "set metal_temperature = \"TAG\" or a constant");
+            self.err(
+                place,
+                "metal_temperature",
+                "no metal temperature input",
+                "set metal_temperature = \"TAG\" or a constant",
+            );
         }
 
         let wear = c.wear.as_ref().and_then(|w| self.wear(place, w, material.as_ref(), tags, index));
@@ -422,25 +503,49 @@ impl Validator {
             if (t < lo || t > hi) && t >= m.creep_threshold_k() {
                 let msg = format!(
                     "design temperature {:.1} °C is outside the data range of {} ({:.0}–{:.0} °C)",
-                    t - 273.15, m.grade, lo - 273.15, hi - 273.15
+                    t - 273.15,
+                    m.grade,
+                    lo - 273.15,
+                    hi - 273.15
                 );
                 if c.allow_extrapolation {
                     self.warn(place, "design_temperature", msg, "extrapolated hours are flagged");
                 } else {
-                    self.err(place, "design_temperature", msg, "choose a grade whose data covers it, or set allow_extrapolation = true");
+                    self.err(
+                        place,
+                        "design_temperature",
+                        msg,
+                        "choose a grade whose data covers it, or set allow_extrapolation = true",
+                    );
                 }
             }
         }
-        if !(0.0..1.0e3).contains(&c.initial.life_fraction) || !(0.0..1.0).contains(&c.initial.creep_strain) || c.initial.wear_depth_mm < 0.0 {
-            self.err(place, "initial", "initial values must be ≥ 0 (life fraction and strain as fractions)", "for example life_fraction = 0.12");
+        if !(0.0..1.0e3).contains(&c.initial.life_fraction)
+            || !(0.0..1.0).contains(&c.initial.creep_strain)
+            || c.initial.wear_depth_mm < 0.0
+        {
+            self.err(
+                place,
+                "initial",
+                "initial values must be ≥ 0 (life fraction and strain as fractions)",
+                "for example life_fraction = 0.12",
+            );
         }
         let th = &c.thresholds;
         let thresholds = Thresholds {
             life_fraction: self.levels(place, "thresholds.life_fraction", th.life_fraction, DEFAULT_LIFE_FRACTION),
             creep_strain: self.levels(place, "thresholds.creep_strain", th.creep_strain, DEFAULT_CREEP_STRAIN),
             wear_index: self.levels(place, "thresholds.wear_index", th.wear_index, DEFAULT_WEAR_INDEX),
-            over_design_temperature_k: self.levels(place, "thresholds.over_design_temperature_k", th.over_design_temperature_k, DEFAULT_OVER_DESIGN),
-            hours_to_critical: th.hours_to_critical.map(|l| Levels { advisory: l.advisory, warning: l.warning, critical: l.critical }).unwrap_or(DEFAULT_HOURS_TO_CRITICAL),
+            over_design_temperature_k: self.levels(
+                place,
+                "thresholds.over_design_temperature_k",
+                th.over_design_temperature_k,
+                DEFAULT_OVER_DESIGN,
+            ),
+            hours_to_critical: th
+                .hours_to_critical
+                .map(|l| Levels { advisory: l.advisory, warning: l.warning, critical: l.critical })
+                .unwrap_or(DEFAULT_HOURS_TO_CRITICAL),
         };
         let material = material?;
         let stress = stress?;
@@ -494,13 +599,25 @@ impl Validator {
             WearModel::Archard => {
                 match &w.sliding_speed {
                     Some(i) => speed = self.input(place, "wear.sliding_speed", i, Quantity::Speed, tags, index),
-                    None => self.err(place, "wear.sliding_speed", "Archard wear needs a sliding speed", "set sliding_speed = \"TAG\" or { value = …, unit = \"mm/s\" }"),
+                    None => self.err(
+                        place,
+                        "wear.sliding_speed",
+                        "Archard wear needs a sliding speed",
+                        "set sliding_speed = \"TAG\" or { value = …, unit = \"mm/s\" }",
+                    ),
                 }
                 let hv = w.hardness_hv.or(material.and_then(|m| m.hardness_hv.as_ref().map(|h| h.value)));
                 match hv {
-                    Some(hv) if hv > 0.0 => volume_coefficient = w.wear_coefficient / crate::physics::units::vickers_to_mpa(hv),
+                    Some(hv) if hv > 0.0 => {
+                        volume_coefficient = w.wear_coefficient / crate::physics::units::vickers_to_mpa(hv)
+                    }
                     _ => {
-                        self.err(place, "wear.hardness_hv", "no hardness for Archard wear", "set hardness_hv, or use a grade that has one");
+                        self.err(
+                            place,
+                            "wear.hardness_hv",
+                            "no hardness for Archard wear",
+                            "set hardness_hv, or use a grade that has one",
+                        );
                         volume_coefficient = 0.0;
                     }
                 }
@@ -508,11 +625,21 @@ impl Validator {
             WearModel::Fretting => {
                 match &w.slip_amplitude {
                     Some(i) => slip = self.input(place, "wear.slip_amplitude", i, Quantity::Length, tags, index),
-                    None => self.err(place, "wear.slip_amplitude", "fretting wear needs a slip amplitude", "set slip_amplitude = \"TAG\" or { value = 50, unit = \"um\" }"),
+                    None => self.err(
+                        place,
+                        "wear.slip_amplitude",
+                        "fretting wear needs a slip amplitude",
+                        "set slip_amplitude = \"TAG\" or { value = 50, unit = \"um\" }",
+                    ),
                 }
                 match &w.frequency {
                     Some(i) => freq = self.input(place, "wear.frequency", i, Quantity::Frequency, tags, index),
-                    None => self.err(place, "wear.frequency", "fretting wear needs a frequency", "set frequency = \"TAG\" or { value = 30, unit = \"Hz\" }"),
+                    None => self.err(
+                        place,
+                        "wear.frequency",
+                        "fretting wear needs a frequency",
+                        "set frequency = \"TAG\" or { value = 30, unit = \"Hz\" }",
+                    ),
                 }
                 volume_coefficient = w.wear_coefficient;
             }
@@ -559,7 +686,8 @@ pub const DEFAULT_OVER_DESIGN: Levels = Levels { advisory: None, warning: Some(0
 /// Default projected hours to the critical life fraction: warning below
 /// 17 520 h (two years), critical below 8 760 h (one year); lower means
 /// worse, so the alarm module compares these the other way round.
-pub const DEFAULT_HOURS_TO_CRITICAL: Levels = Levels { advisory: None, warning: Some(17_520.0), critical: Some(8_760.0) };
+pub const DEFAULT_HOURS_TO_CRITICAL: Levels =
+    Levels { advisory: None, warning: Some(17_520.0), critical: Some(8_760.0) };
 
 #[allow(dead_code)]
 fn _unused(_: CurveBasis, _: RegimeBounds) {}

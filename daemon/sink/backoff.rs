@@ -40,20 +40,12 @@ impl Backoff {
     /// Back-off with the settings' `backoff_initial_s` and `backoff_max_s`.
     /// Assumes the settings were validated (positive, finite).
     pub fn from_settings(s: &DatabaseSettings) -> Backoff {
-        Backoff::new(
-            Duration::from_secs_f64(s.backoff_initial_s),
-            Duration::from_secs_f64(s.backoff_max_s),
-        )
+        Backoff::new(Duration::from_secs_f64(s.backoff_initial_s), Duration::from_secs_f64(s.backoff_max_s))
     }
 
     fn with_rng(initial: Duration, max: Duration, rng: StdRng) -> Backoff {
         let max_s = max.as_secs_f64();
-        Backoff {
-            initial_s: initial.as_secs_f64().min(max_s),
-            max_s,
-            failures: 0,
-            rng,
-        }
+        Backoff { initial_s: initial.as_secs_f64().min(max_s), max_s, failures: 0, rng }
     }
 
     /// The ceiling the next delay is drawn under: `min(max, initial · 2ⁿ)`
@@ -101,10 +93,7 @@ mod tests {
             ceilings.push(b.ceiling().as_millis());
             let _ = b.next_delay();
         }
-        assert_eq!(
-            ceilings,
-            [500, 1000, 2000, 4000, 8000, 16000, 32000, 60000, 60000, 60000, 60000, 60000]
-        );
+        assert_eq!(ceilings, [500, 1000, 2000, 4000, 8000, 16000, 32000, 60000, 60000, 60000, 60000, 60000]);
     }
 
     #[test]

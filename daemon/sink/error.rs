@@ -52,13 +52,7 @@ impl SinkError {
     /// Whether the lines themselves are at fault (HTTP 400 or 422): retrying
     /// them can never succeed, so the caller parks them and moves on.
     pub fn is_bad_data(&self) -> bool {
-        matches!(
-            self,
-            SinkError::Rejected {
-                status: 400 | 422,
-                ..
-            }
-        )
+        matches!(self, SinkError::Rejected { status: 400 | 422, .. })
     }
 
     /// Sorts an HTTP answer other than 204 into a variant.

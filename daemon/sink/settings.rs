@@ -103,9 +103,7 @@ impl DatabaseSettings {
         ] {
             // Upper bound keeps Duration::from_secs_f64 far from overflow.
             if !(v.is_finite() && v > 0.0 && v <= 1e9) {
-                return cfg(format!(
-                    "database.{key} = {v}; use a positive number of seconds"
-                ));
+                return cfg(format!("database.{key} = {v}; use a positive number of seconds"));
             }
         }
         if self.backoff_max_s < self.backoff_initial_s {
@@ -125,15 +123,13 @@ impl DatabaseSettings {
     /// `Authorization` header) when neither is set. Never log the result.
     pub fn token(&self) -> Result<String, SinkError> {
         match (&self.token_env, &self.token_file) {
-            (Some(_), Some(_)) => Err(SinkError::Config(
-                "database.token_env and database.token_file are both set; keep one".into(),
-            )),
+            (Some(_), Some(_)) => {
+                Err(SinkError::Config("database.token_env and database.token_file are both set; keep one".into()))
+            }
             (None, None) => Ok(String::new()),
             (Some(var), None) => match std::env::var(var) {
                 Ok(t) if !t.trim().is_empty() => Ok(t.trim().to_string()),
-                Ok(_) => Err(SinkError::Config(format!(
-                    "database.token_env: environment variable {var} is empty"
-                ))),
+                Ok(_) => Err(SinkError::Config(format!("database.token_env: environment variable {var} is empty"))),
                 Err(_) => Err(SinkError::Config(format!(
                     "database.token_env: environment variable {var} is not set \
                      (or not valid UTF-8); export it before starting"
@@ -141,17 +137,11 @@ impl DatabaseSettings {
             },
             (None, Some(path)) => {
                 let text = std::fs::read_to_string(path).map_err(|e| {
-                    SinkError::Config(format!(
-                        "database.token_file: cannot read {}: {e}",
-                        path.display()
-                    ))
+                    SinkError::Config(format!("database.token_file: cannot read {}: {e}", path.display()))
                 })?;
                 let token = text.trim();
                 if token.is_empty() {
-                    return Err(SinkError::Config(format!(
-                        "database.token_file: {} is empty",
-                        path.display()
-                    )));
+                    return Err(SinkError::Config(format!("database.token_file: {} is empty", path.display())));
                 }
                 Ok(token.to_string())
             }
@@ -163,11 +153,8 @@ impl DatabaseSettings {
 /// the URL's path with `/api/v2/write`, so a path prefix (say a proxy's
 /// `/influx`) would be silently dropped; refuse it instead.
 fn check_url(url: &str) -> Result<(), SinkError> {
-    let bad = |why: &str| {
-        Err(SinkError::Config(format!(
-            "database.url = {url:?}: {why}; write it as http://HOST:PORT"
-        )))
-    };
+    let bad =
+        |why: &str| Err(SinkError::Config(format!("database.url = {url:?}: {why}; write it as http://HOST:PORT")));
     let Some(("http" | "https", rest)) = url.split_once("://") else {
         return bad("the scheme must be http or https");
     };
@@ -186,15 +173,9 @@ fn check_url(url: &str) -> Result<(), SinkError> {
         _ => authority,
     };
     let host_ok = if let Some(ip6) = host.strip_prefix('[').and_then(|h| h.strip_suffix(']')) {
-        !ip6.is_empty()
-            && ip6
-                .chars()
-                .all(|c| c.is_ascii_hexdigit() || c == ':' || c == '.')
+        !ip6.is_empty() && ip6.chars().all(|c| c.is_ascii_hexdigit() || c == ':' || c == '.')
     } else {
-        !host.is_empty()
-            && host
-                .chars()
-                .all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '.' | '_'))
+        !host.is_empty() && host.chars().all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '.' | '_'))
     };
     if !host_ok {
         return bad("the host must be a plain name or an IP address");
@@ -228,8 +209,7 @@ mod tests {
 
     #[test]
     fn defaults_fill_in_when_parsed() {
-        let s: DatabaseSettings =
-            serde_json::from_str(r#"{"url":"http://db:8086","org":"o","bucket":"b"}"#).unwrap();
+        let s: DatabaseSettings = serde_json::from_str(r#"{"url":"http://db:8086","org":"o","bucket":"b"}"#).unwrap();
         assert_eq!(s.batch_lines, 5000);
         assert_eq!(s.timeout_s, 10.0);
         assert_eq!((s.backoff_initial_s, s.backoff_max_s), (0.5, 60.0));
@@ -239,32 +219,20 @@ mod tests {
 
     #[test]
     fn unknown_keys_are_refused() {
-        let e = serde_json::from_str::<DatabaseSettings>(
-            r#"{"url":"http://db:8086","org":"o","bucket":"b","token":"x"}"#,
-        )
-        .unwrap_err();
+        let e =
+            serde_json::from_str::<DatabaseSettings>(r#"{"url":"http://db:8086","org":"o","bucket":"b","token":"x"}"#)
+                .unwrap_err();
         assert!(e.to_string().contains("unknown field `token`"), "{e}");
     }
 
     #[test]
     fn urls_with_paths_or_odd_schemes_are_refused() {
-        for good in [
-            "http://db:8086",
-            "https://db.example/",
-            "http://[::1]:8428",
-            "http://[::1]",
-        ] {
+        for good in ["http://db:8086", "https://db.example/", "http://[::1]:8428", "http://[::1]"] {
             check_url(good).unwrap_or_else(|e| panic!("{good}: {e}"));
         }
-        for bad in [
-            "db:8086",
-            "ftp://db",
-            "http://",
-            "http://db/influx",
-            "http://db:x",
-            "http://a b",
-            "http://1.2.3.999",
-        ] {
+        for bad in
+            ["db:8086", "ftp://db", "http://", "http://db/influx", "http://db:x", "http://a b", "http://1.2.3.999"]
+        {
             assert!(check_url(bad).is_err(), "{bad} accepted");
         }
     }
@@ -276,18 +244,10 @@ mod tests {
         assert!(s.validate().unwrap_err().to_string().contains("timeout_s"));
         let mut s = settings();
         s.backoff_max_s = 0.1;
-        assert!(s
-            .validate()
-            .unwrap_err()
-            .to_string()
-            .contains("backoff_max_s"));
+        assert!(s.validate().unwrap_err().to_string().contains("backoff_max_s"));
         let mut s = settings();
         s.batch_lines = 0;
-        assert!(s
-            .validate()
-            .unwrap_err()
-            .to_string()
-            .contains("batch_lines"));
+        assert!(s.validate().unwrap_err().to_string().contains("batch_lines"));
     }
 
     #[test]

@@ -48,11 +48,10 @@ impl Writer {
         // `ClientBuilder::new` panics on a URL it cannot parse. `validate`
         // already refuses the malformed ones we know of; this catches the
         // rest so a bad setting is a config error, not a crash.
-        let built = std::panic::catch_unwind(|| {
-            influxdb2::ClientBuilder::new(url.as_str(), s.org.as_str(), token).build()
-        })
-        .map_err(|_| SinkError::Config(format!("database.url = {:?} is not a valid URL", s.url)))?
-        .map_err(|e| SinkError::Config(format!("cannot build the HTTP client: {e}")))?;
+        let built =
+            std::panic::catch_unwind(|| influxdb2::ClientBuilder::new(url.as_str(), s.org.as_str(), token).build())
+                .map_err(|_| SinkError::Config(format!("database.url = {:?} is not a valid URL", s.url)))?
+                .map_err(|e| SinkError::Config(format!("cannot build the HTTP client: {e}")))?;
         Ok(Writer {
             client: built,
             url,
@@ -72,14 +71,9 @@ impl Writer {
             return Ok(());
         }
         let body = lines.join("\n");
-        let attempt = self
-            .client
-            .write_line_protocol(&self.org, &self.bucket, body);
+        let attempt = self.client.write_line_protocol(&self.org, &self.bucket, body);
         match tokio::time::timeout(self.timeout, attempt).await {
-            Err(_) => Err(SinkError::Unreachable(format!(
-                "{}: no answer within {:?}",
-                self.url, self.timeout
-            ))),
+            Err(_) => Err(SinkError::Unreachable(format!("{}: no answer within {:?}", self.url, self.timeout))),
             Ok(Ok(())) => Ok(()),
             Ok(Err(e)) => Err(self.classify(e)),
         }
@@ -88,10 +82,7 @@ impl Writer {
     /// Whether the database answers `GET {url}/ready` with 200 within the
     /// timeout. InfluxDB 2 and VictoriaMetrics both serve `/ready`.
     pub async fn ping(&self) -> bool {
-        matches!(
-            tokio::time::timeout(self.timeout, self.client.ready()).await,
-            Ok(Ok(true))
-        )
+        matches!(tokio::time::timeout(self.timeout, self.client.ready()).await, Ok(Ok(true)))
     }
 
     /// The base URL written to (for logs and status pages).
@@ -105,9 +96,7 @@ impl Writer {
             // Connection refused or reset, DNS failure, TLS failure, body
             // cut off: the write may or may not have landed; with event
             // timestamps a retry is harmless either way.
-            RequestError::ReqwestProcessing { source } => {
-                SinkError::Unreachable(format!("{}: {source}", self.url))
-            }
+            RequestError::ReqwestProcessing { source } => SinkError::Unreachable(format!("{}: {source}", self.url)),
             other => SinkError::Unreachable(format!("{}: {other}", self.url)),
         }
     }
@@ -142,10 +131,7 @@ mod tests {
         let e = w.write_lines(&["m f=1 1".to_string()]).await.unwrap_err();
         assert!(e.is_retryable(), "{e}");
         assert!(!w.ping().await);
-        assert!(
-            w.write_lines(&[]).await.is_ok(),
-            "empty batch needs no server"
-        );
+        assert!(w.write_lines(&[]).await.is_ok(), "empty batch needs no server");
     }
 
     #[test]

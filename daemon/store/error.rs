@@ -129,18 +129,9 @@ pub enum StoreError {
 impl StoreError {
     /// Wraps an SQLite error with the file, the action and a hint chosen
     /// from the error code.
-    pub(crate) fn sqlite(
-        path: impl Into<PathBuf>,
-        action: &'static str,
-        source: rusqlite::Error,
-    ) -> StoreError {
+    pub(crate) fn sqlite(path: impl Into<PathBuf>, action: &'static str, source: rusqlite::Error) -> StoreError {
         let hint = hint_for(&source);
-        StoreError::Sqlite {
-            path: path.into(),
-            action,
-            source,
-            hint,
-        }
+        StoreError::Sqlite { path: path.into(), action, source, hint }
     }
 }
 
@@ -164,9 +155,7 @@ fn hint_for(e: &rusqlite::Error) -> &'static str {
         Some(C::DatabaseCorrupt) | Some(C::NotADatabase) => {
             "The file is damaged; stop lifeledger and restore the ledger from a backup"
         }
-        Some(C::SystemIoFailure) => {
-            "The disk reported an I/O error; check the disk and the system log"
-        }
+        Some(C::SystemIoFailure) => "The disk reported an I/O error; check the disk and the system log",
         _ => "If it persists, report it with this message",
     }
 }

@@ -120,17 +120,12 @@ impl Store {
             }
         }
 
-        let flags = OpenFlags::SQLITE_OPEN_READ_WRITE
-            | OpenFlags::SQLITE_OPEN_CREATE
-            | OpenFlags::SQLITE_OPEN_NO_MUTEX;
+        let flags = OpenFlags::SQLITE_OPEN_READ_WRITE | OpenFlags::SQLITE_OPEN_CREATE | OpenFlags::SQLITE_OPEN_NO_MUTEX;
         let mut conn = Connection::open_with_flags(path, flags)
             .map_err(|e| StoreError::sqlite(path, "opening the ledger for writing", e))?;
         configure(&conn, path)?;
         schema::migrate(&mut conn, path, schema::MIGRATIONS)?;
-        Ok(Store {
-            conn,
-            path: path.into(),
-        })
+        Ok(Store { conn, path: path.into() })
     }
 
     /// The ledger file this store writes.
@@ -167,14 +162,26 @@ impl Store {
         let fail = |e| StoreError::sqlite(path, "committing a batch", e);
         // IMMEDIATE takes the write lock up front, so a busy database fails
         // (after the busy timeout) before any work rather than at COMMIT.
-        let tx = self
-            .conn
-            .transaction_with_behavior(TransactionBehavior::Immediate)
-            .map_err(fail)?;
+        let tx = self.conn.transaction_with_behavior(TransactionBehavior::Immediate).map_err(fail)?;
         upsert(&tx, "INSERT INTO component (name, state) VALUES (?1, ?2) ON CONFLICT (name) DO UPDATE SET state = excluded.state", c.components).map_err(fail)?;
-        upsert(&tx, "INSERT INTO tag (name, state) VALUES (?1, ?2) ON CONFLICT (name) DO UPDATE SET state = excluded.state", c.tags).map_err(fail)?;
-        upsert(&tx, "INSERT INTO alarm (key, record) VALUES (?1, ?2) ON CONFLICT (key) DO UPDATE SET record = excluded.record", c.alarms).map_err(fail)?;
-        upsert(&tx, "INSERT INTO meta (key, value) VALUES (?1, ?2) ON CONFLICT (key) DO UPDATE SET value = excluded.value", c.meta).map_err(fail)?;
+        upsert(
+            &tx,
+            "INSERT INTO tag (name, state) VALUES (?1, ?2) ON CONFLICT (name) DO UPDATE SET state = excluded.state",
+            c.tags,
+        )
+        .map_err(fail)?;
+        upsert(
+            &tx,
+            "INSERT INTO alarm (key, record) VALUES (?1, ?2) ON CONFLICT (key) DO UPDATE SET record = excluded.record",
+            c.alarms,
+        )
+        .map_err(fail)?;
+        upsert(
+            &tx,
+            "INSERT INTO meta (key, value) VALUES (?1, ?2) ON CONFLICT (key) DO UPDATE SET value = excluded.value",
+            c.meta,
+        )
+        .map_err(fail)?;
         outbox::append(&tx, c.outbox).map_err(fail)?;
         let stats = outbox::totals(&tx).map_err(fail)?;
         tx.commit().map_err(fail)?;
@@ -199,19 +206,12 @@ fn upsert(conn: &Connection, sql: &str, rows: &[(String, String)]) -> rusqlite::
 fn configure(conn: &Connection, path: &Path) -> Result<(), StoreError> {
     let fail = |e| StoreError::sqlite(path, "configuring the ledger connection", e);
     conn.busy_timeout(BUSY_TIMEOUT).map_err(fail)?;
-    let mode: String = conn
-        .pragma_update_and_check(None, "journal_mode", "WAL", |r| r.get(0))
-        .map_err(fail)?;
+    let mode: String = conn.pragma_update_and_check(None, "journal_mode", "WAL", |r| r.get(0)).map_err(fail)?;
     if !mode.eq_ignore_ascii_case("wal") {
-        return Err(StoreError::NoWal {
-            path: path.into(),
-            mode,
-        });
+        return Err(StoreError::NoWal { path: path.into(), mode });
     }
-    conn.pragma_update(None, "synchronous", "FULL")
-        .map_err(fail)?;
-    conn.pragma_update(None, "journal_size_limit", WAL_SIZE_LIMIT_BYTES)
-        .map_err(fail)?;
+    conn.pragma_update(None, "synchronous", "FULL").map_err(fail)?;
+    conn.pragma_update(None, "journal_size_limit", WAL_SIZE_LIMIT_BYTES).map_err(fail)?;
     Ok(())
 }
 
@@ -220,10 +220,7 @@ mod tests {
     use super::*;
 
     fn pairs(items: &[(&str, &str)]) -> Vec<(String, String)> {
-        items
-            .iter()
-            .map(|(k, v)| (k.to_string(), v.to_string()))
-            .collect()
+        items.iter().map(|(k, v)| (k.to_string(), v.to_string())).collect()
     }
 
     fn fresh() -> (tempfile::TempDir, Store) {
@@ -252,14 +249,8 @@ mod tests {
     #[test]
     fn the_connection_runs_in_wal_mode_with_full_sync() {
         let (_dir, store) = fresh();
-        let mode: String = store
-            .conn
-            .pragma_query_value(None, "journal_mode", |r| r.get(0))
-            .unwrap();
-        let sync: i64 = store
-            .conn
-            .pragma_query_value(None, "synchronous", |r| r.get(0))
-            .unwrap();
+        let mode: String = store.conn.pragma_query_value(None, "journal_mode", |r| r.get(0)).unwrap();
+        let sync: i64 = store.conn.pragma_query_value(None, "synchronous", |r| r.get(0)).unwrap();
         assert_eq!(mode, "wal");
         assert_eq!(sync, 2, "2 is FULL");
     }
@@ -268,44 +259,22 @@ mod tests {
     fn every_table_round_trips_through_a_reopen() {
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("ledger.db");
-        let components = pairs(&[
-            ("sh-2", r#"{"d":0.25}"#),
-            ("sh-1", r#"{"d":0.5,"name":"Überhitzer ä"}"#),
-        ]);
+        let components = pairs(&[("sh-2", r#"{"d":0.25}"#), ("sh-1", r#"{"d":0.5,"name":"Überhitzer ä"}"#)]);
         let tags = pairs(&[("TI-101", r#"{"cursor":"2024-01-01T00:00:00Z"}"#)]);
         let alarms = pairs(&[("sh-1/creep", r#"{"state":"normal"}"#)]);
         let meta = pairs(&[("counters", r#"{"duplicates":3}"#)]);
         let outbox = vec!["a,x=1 v=1 1".to_string(), "b v=2 2".to_string()];
         {
             let mut store = Store::open(&path).unwrap();
-            let batch = Commit {
-                components: &components,
-                tags: &tags,
-                alarms: &alarms,
-                meta: &meta,
-                outbox: &outbox,
-            };
+            let batch = Commit { components: &components, tags: &tags, alarms: &alarms, meta: &meta, outbox: &outbox };
             store.commit(&batch).unwrap();
         }
         let store = Store::open(&path).unwrap();
         let loaded = store.load().unwrap();
         let mut sorted = components.clone();
         sorted.sort();
-        assert_eq!(
-            loaded,
-            Loaded {
-                components: sorted,
-                tags,
-                alarms,
-                meta
-            }
-        );
-        let lines: Vec<String> = store
-            .outbox_batch(10, usize::MAX)
-            .unwrap()
-            .into_iter()
-            .map(|(_, l)| l)
-            .collect();
+        assert_eq!(loaded, Loaded { components: sorted, tags, alarms, meta });
+        let lines: Vec<String> = store.outbox_batch(10, usize::MAX).unwrap().into_iter().map(|(_, l)| l).collect();
         assert_eq!(lines, outbox);
     }
 
@@ -313,49 +282,22 @@ mod tests {
     fn a_later_commit_replaces_the_value_of_a_key_and_keeps_the_others() {
         let (_dir, mut store) = fresh();
         let first = pairs(&[("a", "1"), ("b", "2")]);
-        store
-            .commit(&Commit {
-                components: &first,
-                tags: &first,
-                alarms: &first,
-                meta: &first,
-                outbox: &[],
-            })
-            .unwrap();
+        store.commit(&Commit { components: &first, tags: &first, alarms: &first, meta: &first, outbox: &[] }).unwrap();
         let second = pairs(&[("b", "20"), ("c", "30")]);
         store
-            .commit(&Commit {
-                components: &second,
-                tags: &second,
-                alarms: &second,
-                meta: &second,
-                outbox: &[],
-            })
+            .commit(&Commit { components: &second, tags: &second, alarms: &second, meta: &second, outbox: &[] })
             .unwrap();
 
         let want = pairs(&[("a", "1"), ("b", "20"), ("c", "30")]);
         let loaded = store.load().unwrap();
-        assert_eq!(
-            loaded,
-            Loaded {
-                components: want.clone(),
-                tags: want.clone(),
-                alarms: want.clone(),
-                meta: want
-            }
-        );
+        assert_eq!(loaded, Loaded { components: want.clone(), tags: want.clone(), alarms: want.clone(), meta: want });
     }
 
     #[test]
     fn within_one_batch_the_last_pair_for_a_key_wins() {
         let (_dir, mut store) = fresh();
         let twice = pairs(&[("a", "old"), ("a", "new")]);
-        store
-            .commit(&Commit {
-                components: &twice,
-                ..Default::default()
-            })
-            .unwrap();
+        store.commit(&Commit { components: &twice, ..Default::default() }).unwrap();
         assert_eq!(store.load().unwrap().components, pairs(&[("a", "new")]));
     }
 
@@ -369,11 +311,7 @@ mod tests {
             .unwrap();
         let components = pairs(&[("c", "1")]);
         let err = store
-            .commit(&Commit {
-                components: &components,
-                outbox: &["x".to_string()],
-                ..Default::default()
-            })
+            .commit(&Commit { components: &components, outbox: &["x".to_string()], ..Default::default() })
             .unwrap_err();
         assert!(err.to_string().contains("committing a batch"), "{err}");
         assert!(err.to_string().contains("ledger.db"), "{err}");
@@ -384,25 +322,12 @@ mod tests {
     #[test]
     fn a_large_batch_lands_whole() {
         let (_dir, mut store) = fresh();
-        let components: Vec<(String, String)> = (0..10_000)
-            .map(|i| (format!("c{i:05}"), format!(r#"{{"n":{i}}}"#)))
-            .collect();
+        let components: Vec<(String, String)> =
+            (0..10_000).map(|i| (format!("c{i:05}"), format!(r#"{{"n":{i}}}"#))).collect();
         let outbox: Vec<String> = (0..10_000).map(|i| format!("m v={i}i {i}")).collect();
-        let stats = store
-            .commit(&Commit {
-                components: &components,
-                outbox: &outbox,
-                ..Default::default()
-            })
-            .unwrap();
+        let stats = store.commit(&Commit { components: &components, outbox: &outbox, ..Default::default() }).unwrap();
         let bytes: usize = outbox.iter().map(String::len).sum();
-        assert_eq!(
-            stats.outbox,
-            OutboxStats {
-                lines: 10_000,
-                bytes: bytes as u64
-            }
-        );
+        assert_eq!(stats.outbox, OutboxStats { lines: 10_000, bytes: bytes as u64 });
         assert_eq!(store.load().unwrap().components, components);
     }
 }

@@ -47,17 +47,13 @@ pub(super) fn totals(conn: &Connection) -> rusqlite::Result<OutboxStats> {
         let lines: i64 = r.get(0)?;
         let bytes: i64 = r.get(1)?;
         // Never negative: every change is paired with the rows it counts.
-        Ok(OutboxStats {
-            lines: lines.max(0) as u64,
-            bytes: bytes.max(0) as u64,
-        })
+        Ok(OutboxStats { lines: lines.max(0) as u64, bytes: bytes.max(0) as u64 })
     })
 }
 
 fn add_to_totals(conn: &Connection, lines: i64, bytes: i64) -> rusqlite::Result<()> {
-    let mut stmt = conn.prepare_cached(
-        "UPDATE outbox_total SET lines = lines + ?1, bytes = bytes + ?2 WHERE only = 1",
-    )?;
+    let mut stmt =
+        conn.prepare_cached("UPDATE outbox_total SET lines = lines + ?1, bytes = bytes + ?2 WHERE only = 1")?;
     stmt.execute((lines, bytes))?;
     Ok(())
 }
@@ -68,20 +64,13 @@ impl Store {
     /// oldest line is always returned even if it alone is longer, so one
     /// oversized point cannot stall the outbox. Empty when the outbox is
     /// empty or `max_lines` is 0.
-    pub fn outbox_batch(
-        &self,
-        max_lines: usize,
-        max_bytes: usize,
-    ) -> Result<Vec<(i64, String)>, StoreError> {
+    pub fn outbox_batch(&self, max_lines: usize, max_bytes: usize) -> Result<Vec<(i64, String)>, StoreError> {
         let fail = |e| StoreError::sqlite(&self.path, "reading the outbox", e);
         if max_lines == 0 {
             return Ok(Vec::new());
         }
         let limit = i64::try_from(max_lines).unwrap_or(i64::MAX);
-        let mut stmt = self
-            .conn
-            .prepare_cached("SELECT id, line FROM outbox ORDER BY id LIMIT ?1")
-            .map_err(fail)?;
+        let mut stmt = self.conn.prepare_cached("SELECT id, line FROM outbox ORDER BY id LIMIT ?1").map_err(fail)?;
         let mut rows = stmt.query([limit]).map_err(fail)?;
         let mut batch = Vec::new();
         let mut bytes = 0usize;
@@ -103,20 +92,13 @@ impl Store {
     pub fn outbox_remove_through(&mut self, id: i64) -> Result<(), StoreError> {
         let path = &self.path;
         let fail = |e| StoreError::sqlite(path, "removing delivered lines from the outbox", e);
-        let tx = self
-            .conn
-            .transaction_with_behavior(TransactionBehavior::Immediate)
-            .map_err(fail)?;
+        let tx = self.conn.transaction_with_behavior(TransactionBehavior::Immediate).map_err(fail)?;
         let (lines, bytes): (i64, i64) = tx
-            .prepare_cached(
-                "SELECT count(*), coalesce(sum(length(CAST(line AS BLOB))), 0) FROM outbox WHERE id <= ?1",
-            )
+            .prepare_cached("SELECT count(*), coalesce(sum(length(CAST(line AS BLOB))), 0) FROM outbox WHERE id <= ?1")
             .and_then(|mut s| s.query_row([id], |r| Ok((r.get(0)?, r.get(1)?))))
             .map_err(fail)?;
         if lines > 0 {
-            tx.prepare_cached("DELETE FROM outbox WHERE id <= ?1")
-                .and_then(|mut s| s.execute([id]))
-                .map_err(fail)?;
+            tx.prepare_cached("DELETE FROM outbox WHERE id <= ?1").and_then(|mut s| s.execute([id])).map_err(fail)?;
             add_to_totals(&tx, -lines, -bytes).map_err(fail)?;
         }
         tx.commit().map_err(fail)
@@ -124,8 +106,7 @@ impl Store {
 
     /// Lines and bytes waiting in the outbox (one row read).
     pub fn outbox_stats(&self) -> Result<OutboxStats, StoreError> {
-        totals(&self.conn)
-            .map_err(|e| StoreError::sqlite(&self.path, "reading the outbox totals", e))
+        totals(&self.conn).map_err(|e| StoreError::sqlite(&self.path, "reading the outbox totals", e))
     }
 }
 
@@ -142,29 +123,18 @@ mod tests {
 
     fn append(store: &mut Store, lines: &[&str]) -> OutboxStats {
         let lines: Vec<String> = lines.iter().map(|l| l.to_string()).collect();
-        store
-            .commit(&Commit {
-                outbox: &lines,
-                ..Default::default()
-            })
-            .unwrap()
-            .outbox
+        store.commit(&Commit { outbox: &lines, ..Default::default() }).unwrap().outbox
     }
 
     /// The totals the counter row must always agree with.
     fn recount(store: &Store) -> OutboxStats {
         let (lines, bytes): (i64, i64) = store
             .conn
-            .query_row(
-                "SELECT count(*), coalesce(sum(length(CAST(line AS BLOB))), 0) FROM outbox",
-                [],
-                |r| Ok((r.get(0)?, r.get(1)?)),
-            )
+            .query_row("SELECT count(*), coalesce(sum(length(CAST(line AS BLOB))), 0) FROM outbox", [], |r| {
+                Ok((r.get(0)?, r.get(1)?))
+            })
             .unwrap();
-        OutboxStats {
-            lines: lines as u64,
-            bytes: bytes as u64,
-        }
+        OutboxStats { lines: lines as u64, bytes: bytes as u64 }
     }
 
     fn lines_of(batch: &[(i64, String)]) -> Vec<&str> {
@@ -179,28 +149,16 @@ mod tests {
         append(&mut store, &["4", "5", "6"]);
         let batch = store.outbox_batch(100, usize::MAX).unwrap();
         assert_eq!(lines_of(&batch), ["1", "2", "3", "4", "5", "6"]);
-        assert!(
-            batch.windows(2).all(|w| w[0].0 < w[1].0),
-            "ids rise: {batch:?}"
-        );
+        assert!(batch.windows(2).all(|w| w[0].0 < w[1].0), "ids rise: {batch:?}");
     }
 
     #[test]
     fn a_batch_respects_both_limits() {
         let (_dir, mut store) = fresh();
         append(&mut store, &["aaaa", "bbbb", "cccc", "dddd"]);
-        assert_eq!(
-            lines_of(&store.outbox_batch(3, usize::MAX).unwrap()),
-            ["aaaa", "bbbb", "cccc"]
-        );
-        assert_eq!(
-            lines_of(&store.outbox_batch(10, 8).unwrap()),
-            ["aaaa", "bbbb"]
-        );
-        assert_eq!(
-            lines_of(&store.outbox_batch(10, 11).unwrap()),
-            ["aaaa", "bbbb"]
-        );
+        assert_eq!(lines_of(&store.outbox_batch(3, usize::MAX).unwrap()), ["aaaa", "bbbb", "cccc"]);
+        assert_eq!(lines_of(&store.outbox_batch(10, 8).unwrap()), ["aaaa", "bbbb"]);
+        assert_eq!(lines_of(&store.outbox_batch(10, 11).unwrap()), ["aaaa", "bbbb"]);
         assert!(store.outbox_batch(0, usize::MAX).unwrap().is_empty());
     }
 
@@ -208,10 +166,7 @@ mod tests {
     fn an_oversized_first_line_is_still_sent_alone() {
         let (_dir, mut store) = fresh();
         append(&mut store, &["a long line", "b"]);
-        assert_eq!(
-            lines_of(&store.outbox_batch(10, 3).unwrap()),
-            ["a long line"]
-        );
+        assert_eq!(lines_of(&store.outbox_batch(10, 3).unwrap()), ["a long line"]);
     }
 
     #[test]
@@ -219,23 +174,13 @@ mod tests {
         let (_dir, mut store) = fresh();
         append(&mut store, &["1", "2", "3", "4"]);
         let batch = store.outbox_batch(2, usize::MAX).unwrap();
-        store
-            .outbox_remove_through(batch.last().unwrap().0)
-            .unwrap();
-        assert_eq!(
-            lines_of(&store.outbox_batch(10, usize::MAX).unwrap()),
-            ["3", "4"]
-        );
+        store.outbox_remove_through(batch.last().unwrap().0).unwrap();
+        assert_eq!(lines_of(&store.outbox_batch(10, usize::MAX).unwrap()), ["3", "4"]);
 
         // Again, or for an id already gone: nothing more goes.
-        store
-            .outbox_remove_through(batch.last().unwrap().0)
-            .unwrap();
+        store.outbox_remove_through(batch.last().unwrap().0).unwrap();
         store.outbox_remove_through(batch[0].0).unwrap();
-        assert_eq!(
-            lines_of(&store.outbox_batch(10, usize::MAX).unwrap()),
-            ["3", "4"]
-        );
+        assert_eq!(lines_of(&store.outbox_batch(10, usize::MAX).unwrap()), ["3", "4"]);
     }
 
     #[test]
@@ -261,30 +206,18 @@ mod tests {
 
         // Multi-byte UTF-8 counts in bytes, as the HTTP body will.
         let after = append(&mut store, &["abc", "é=1", "ü"]);
-        assert_eq!(
-            after,
-            OutboxStats {
-                lines: 3,
-                bytes: 3 + 4 + 2
-            }
-        );
+        assert_eq!(after, OutboxStats { lines: 3, bytes: 3 + 4 + 2 });
         assert_eq!(store.outbox_stats().unwrap(), after);
         assert_eq!(recount(&store), after);
 
         let first = store.outbox_batch(1, usize::MAX).unwrap()[0].0;
         store.outbox_remove_through(first).unwrap();
-        assert_eq!(
-            store.outbox_stats().unwrap(),
-            OutboxStats { lines: 2, bytes: 6 }
-        );
+        assert_eq!(store.outbox_stats().unwrap(), OutboxStats { lines: 2, bytes: 6 });
         assert_eq!(recount(&store), store.outbox_stats().unwrap());
 
         drop(store);
         let store = Store::open(&path).unwrap();
-        assert_eq!(
-            store.outbox_stats().unwrap(),
-            OutboxStats { lines: 2, bytes: 6 }
-        );
+        assert_eq!(store.outbox_stats().unwrap(), OutboxStats { lines: 2, bytes: 6 });
 
         let mut store = store;
         store.outbox_remove_through(i64::MAX).unwrap();

@@ -93,19 +93,11 @@ pub fn inspect(path: &Path) -> Result<Found, StoreError> {
     let mut head = Vec::with_capacity(SQLITE_HEADER.len());
     match File::open(path) {
         Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Found::Missing),
-        Err(e) => {
-            return Err(StoreError::Read {
-                path: path.into(),
-                source: e,
-            })
-        }
+        Err(e) => return Err(StoreError::Read { path: path.into(), source: e }),
         Ok(f) => {
             f.take(SQLITE_HEADER.len() as u64)
                 .read_to_end(&mut head)
-                .map_err(|e| StoreError::Read {
-                    path: path.into(),
-                    source: e,
-                })?;
+                .map_err(|e| StoreError::Read { path: path.into(), source: e })?;
         }
     }
     if head.is_empty() {
@@ -116,29 +108,22 @@ pub fn inspect(path: &Path) -> Result<Found, StoreError> {
     }
 
     let flags = OpenFlags::SQLITE_OPEN_READ_ONLY | OpenFlags::SQLITE_OPEN_NO_MUTEX;
-    let conn = Connection::open_with_flags(path, flags)
-        .map_err(|e| damaged_or(path, e, "opening the ledger to check it"))?;
+    let conn =
+        Connection::open_with_flags(path, flags).map_err(|e| damaged_or(path, e, "opening the ledger to check it"))?;
     quick_check(&conn, path)?;
 
     let read = |e| damaged_or(path, e, "reading the ledger's identity");
-    let application_id: i32 = conn
-        .pragma_query_value(None, "application_id", |r| r.get(0))
-        .map_err(read)?;
-    let version: i64 = conn
-        .pragma_query_value(None, "user_version", |r| r.get(0))
-        .map_err(read)?;
-    let tables: i64 = conn
-        .query_row("SELECT count(*) FROM sqlite_schema", [], |r| r.get(0))
-        .map_err(read)?;
+    let application_id: i32 = conn.pragma_query_value(None, "application_id", |r| r.get(0)).map_err(read)?;
+    let version: i64 = conn.pragma_query_value(None, "user_version", |r| r.get(0)).map_err(read)?;
+    let tables: i64 = conn.query_row("SELECT count(*) FROM sqlite_schema", [], |r| r.get(0)).map_err(read)?;
 
     match application_id {
         APPLICATION_ID if version > i64::from(SCHEMA_VERSION) => {
             Err(StoreError::NewerSchema { path: path.into(), found: version, known: SCHEMA_VERSION })
         }
-        APPLICATION_ID if version < 0 => Err(StoreError::Corrupt {
-            path: path.into(),
-            detail: format!("negative schema version {version}"),
-        }),
+        APPLICATION_ID if version < 0 => {
+            Err(StoreError::Corrupt { path: path.into(), detail: format!("negative schema version {version}") })
+        }
         // Checked above: 0 <= version <= SCHEMA_VERSION, so it fits.
         APPLICATION_ID => Ok(Found::Ledger(version as u32)),
         0 if tables == 0 && version == 0 => Ok(Found::Blank),
@@ -161,28 +146,21 @@ pub fn inspect(path: &Path) -> Result<Found, StoreError> {
 fn quick_check(conn: &Connection, path: &Path) -> Result<(), StoreError> {
     let fail = |e| damaged_or(path, e, "checking the ledger for damage");
     let mut stmt = conn.prepare("PRAGMA quick_check(5)").map_err(fail)?;
-    let problems: Vec<String> = stmt
-        .query_map([], |r| r.get(0))
-        .map_err(fail)?
-        .collect::<Result<_, _>>()
-        .map_err(fail)?;
+    let problems: Vec<String> =
+        stmt.query_map([], |r| r.get(0)).map_err(fail)?.collect::<Result<_, _>>().map_err(fail)?;
     if problems.len() == 1 && problems[0] == "ok" {
         return Ok(());
     }
-    Err(StoreError::Corrupt {
-        path: path.into(),
-        detail: problems.join("; "),
-    })
+    Err(StoreError::Corrupt { path: path.into(), detail: problems.join("; ") })
 }
 
 /// Classifies an SQLite error met while checking a file that carries the
 /// SQLite header: "not a database" or "corrupt" then means damage.
 fn damaged_or(path: &Path, e: rusqlite::Error, action: &'static str) -> StoreError {
     match e.sqlite_error_code() {
-        Some(ErrorCode::DatabaseCorrupt) | Some(ErrorCode::NotADatabase) => StoreError::Corrupt {
-            path: path.into(),
-            detail: e.to_string(),
-        },
+        Some(ErrorCode::DatabaseCorrupt) | Some(ErrorCode::NotADatabase) => {
+            StoreError::Corrupt { path: path.into(), detail: e.to_string() }
+        }
         _ => StoreError::sqlite(path, action, e),
     }
 }
@@ -191,31 +169,18 @@ fn damaged_or(path: &Path, e: rusqlite::Error, action: &'static str) -> StoreErr
 /// one transaction per step. The version is read again inside each step's
 /// write transaction, so two processes racing to upgrade cannot both apply
 /// the same step.
-pub fn migrate(
-    conn: &mut Connection,
-    path: &Path,
-    migrations: &[Migration],
-) -> Result<(), StoreError> {
+pub fn migrate(conn: &mut Connection, path: &Path, migrations: &[Migration]) -> Result<(), StoreError> {
     let fail = |e| StoreError::sqlite(path, "upgrading the ledger schema", e);
     loop {
-        let tx = conn
-            .transaction_with_behavior(TransactionBehavior::Immediate)
-            .map_err(fail)?;
-        let version: i64 = tx
-            .pragma_query_value(None, "user_version", |r| r.get(0))
-            .map_err(fail)?;
-        let Some(step) = usize::try_from(version)
-            .ok()
-            .and_then(|v| migrations.get(v))
-        else {
+        let tx = conn.transaction_with_behavior(TransactionBehavior::Immediate).map_err(fail)?;
+        let version: i64 = tx.pragma_query_value(None, "user_version", |r| r.get(0)).map_err(fail)?;
+        let Some(step) = usize::try_from(version).ok().and_then(|v| migrations.get(v)) else {
             // Up to date (inspect has already refused newer versions).
             return Ok(());
         };
         (step.apply)(&tx).map_err(fail)?;
-        tx.pragma_update(None, "user_version", version + 1)
-            .map_err(fail)?;
-        tx.pragma_update(None, "application_id", APPLICATION_ID)
-            .map_err(fail)?;
+        tx.pragma_update(None, "user_version", version + 1).map_err(fail)?;
+        tx.pragma_update(None, "application_id", APPLICATION_ID).map_err(fail)?;
         tx.commit().map_err(fail)?;
     }
 }
@@ -231,10 +196,7 @@ mod tests {
     #[test]
     fn a_missing_file_is_missing() {
         let dir = tempfile::tempdir().unwrap();
-        assert_eq!(
-            inspect(&dir.path().join("nothing.db")).unwrap(),
-            Found::Missing
-        );
+        assert_eq!(inspect(&dir.path().join("nothing.db")).unwrap(), Found::Missing);
     }
 
     #[test]
@@ -245,10 +207,7 @@ mod tests {
         assert_eq!(inspect(&empty).unwrap(), Found::Blank);
 
         let vacuumed = dir.path().join("vacuumed.db");
-        Connection::open(&vacuumed)
-            .unwrap()
-            .execute_batch("VACUUM")
-            .unwrap();
+        Connection::open(&vacuumed).unwrap().execute_batch("VACUUM").unwrap();
         assert!(std::fs::metadata(&vacuumed).unwrap().len() > 0);
         assert_eq!(inspect(&vacuumed).unwrap(), Found::Blank);
     }
@@ -287,29 +246,16 @@ mod tests {
         let path = dir.path().join("ledger.db");
         let mut conn = Connection::open(&path).unwrap();
         migrate(&mut conn, &path, &MIGRATIONS[..1]).unwrap();
-        conn.execute(
-            "INSERT INTO component (name, state) VALUES ('sh-1', '{}')",
-            [],
-        )
-        .unwrap();
+        conn.execute("INSERT INTO component (name, state) VALUES ('sh-1', '{}')", []).unwrap();
 
         let both = [
-            Migration {
-                summary: MIGRATIONS[0].summary,
-                apply: MIGRATIONS[0].apply,
-            },
-            Migration {
-                summary: "example column",
-                apply: v2_example,
-            },
+            Migration { summary: MIGRATIONS[0].summary, apply: MIGRATIONS[0].apply },
+            Migration { summary: "example column", apply: v2_example },
         ];
         migrate(&mut conn, &path, &both).unwrap();
         assert_eq!(pragma(&conn, "user_version"), 2);
-        let (name, stamp): (String, Option<String>) = conn
-            .query_row("SELECT name, updated_at FROM component", [], |r| {
-                Ok((r.get(0)?, r.get(1)?))
-            })
-            .unwrap();
+        let (name, stamp): (String, Option<String>) =
+            conn.query_row("SELECT name, updated_at FROM component", [], |r| Ok((r.get(0)?, r.get(1)?))).unwrap();
         assert_eq!((name.as_str(), stamp), ("sh-1", None));
     }
 
@@ -323,28 +269,14 @@ mod tests {
         let mut conn = Connection::open(&path).unwrap();
         migrate(&mut conn, &path, MIGRATIONS).unwrap();
         let with_broken = [
-            Migration {
-                summary: MIGRATIONS[0].summary,
-                apply: MIGRATIONS[0].apply,
-            },
-            Migration {
-                summary: "broken",
-                apply: broken,
-            },
+            Migration { summary: MIGRATIONS[0].summary, apply: MIGRATIONS[0].apply },
+            Migration { summary: "broken", apply: broken },
         ];
         let err = migrate(&mut conn, &path, &with_broken).unwrap_err();
-        assert!(
-            err.to_string().contains("upgrading the ledger schema"),
-            "{err}"
-        );
+        assert!(err.to_string().contains("upgrading the ledger schema"), "{err}");
         assert_eq!(pragma(&conn, "user_version"), 1);
-        let half: i64 = conn
-            .query_row(
-                "SELECT count(*) FROM sqlite_schema WHERE name = 'half_done'",
-                [],
-                |r| r.get(0),
-            )
-            .unwrap();
+        let half: i64 =
+            conn.query_row("SELECT count(*) FROM sqlite_schema WHERE name = 'half_done'", [], |r| r.get(0)).unwrap();
         assert_eq!(half, 0, "the failed step must roll back whole");
     }
 }

@@ -41,13 +41,7 @@ pub fn post(port: u16, target: &str, body: &[u8]) -> io::Result<Response> {
 }
 
 /// One request with extra `headers`; the connection is closed afterwards.
-pub fn request(
-    port: u16,
-    method: &str,
-    target: &str,
-    headers: &[(&str, &str)],
-    body: &[u8],
-) -> io::Result<Response> {
+pub fn request(port: u16, method: &str, target: &str, headers: &[(&str, &str)], body: &[u8]) -> io::Result<Response> {
     let mut stream = TcpStream::connect(("127.0.0.1", port))?;
     stream.set_read_timeout(Some(IO_GUARD))?;
     stream.set_write_timeout(Some(IO_GUARD))?;
@@ -116,8 +110,7 @@ pub fn decode_chunked(mut data: &[u8]) -> io::Result<Vec<u8>> {
         let eol = find(data, b"\r\n").ok_or_else(|| bad("chunk size line not terminated"))?;
         let line = std::str::from_utf8(&data[..eol]).map_err(|_| bad("chunk size not UTF-8"))?;
         let size_hex = line.split(';').next().unwrap_or_default().trim();
-        let size = usize::from_str_radix(size_hex, 16)
-            .map_err(|_| bad(&format!("bad chunk size {size_hex:?}")))?;
+        let size = usize::from_str_radix(size_hex, 16).map_err(|_| bad(&format!("bad chunk size {size_hex:?}")))?;
         data = &data[eol + 2..];
         if size == 0 {
             return Ok(out);
@@ -135,9 +128,7 @@ pub fn encode(s: &str) -> String {
     let mut out = String::with_capacity(s.len());
     for b in s.bytes() {
         match b {
-            b'A'..=b'Z' | b'a'..=b'z' | b'0'..=b'9' | b'-' | b'_' | b'.' | b'~' => {
-                out.push(b as char)
-            }
+            b'A'..=b'Z' | b'a'..=b'z' | b'0'..=b'9' | b'-' | b'_' | b'.' | b'~' => out.push(b as char),
             _ => out.push_str(&format!("%{b:02X}")),
         }
     }

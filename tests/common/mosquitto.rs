@@ -63,13 +63,7 @@ impl Mosquitto {
             text.push_str("persistence false\n");
         }
         std::fs::write(&conf, text).expect("write mosquitto.conf");
-        let mut broker = Mosquitto {
-            port,
-            dir,
-            conf,
-            log,
-            child: None,
-        };
+        let mut broker = Mosquitto { port, dir, conf, log, child: None };
         broker.spawn();
         broker
     }
@@ -108,9 +102,7 @@ impl Mosquitto {
         let mut child = spawn(MOSQUITTO, &args, &self.log);
         let port = self.port;
         let what = format!("mosquitto on 127.0.0.1:{port}");
-        wait_ready(&mut child, &what, &self.log, || {
-            TcpStream::connect(("127.0.0.1", port)).is_ok()
-        });
+        wait_ready(&mut child, &what, &self.log, || TcpStream::connect(("127.0.0.1", port)).is_ok());
         self.child = Some(child);
     }
 }
@@ -119,11 +111,7 @@ impl Drop for Mosquitto {
     fn drop(&mut self) {
         self.stop();
         if std::thread::panicking() {
-            eprintln!(
-                "mosquitto log ({}):\n{}",
-                self.dir.path().display(),
-                tail(&self.log)
-            );
+            eprintln!("mosquitto log ({}):\n{}", self.dir.path().display(), tail(&self.log));
         }
     }
 }

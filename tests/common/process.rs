@@ -53,19 +53,10 @@ pub(crate) fn terminate(child: &mut Child) {
 /// Polls `ready` ([`POLL_TRIES`] times, [`POLL_PAUSE`] apart) until it
 /// holds. Panics with the log's tail if the server exits first or never
 /// gets ready.
-pub(crate) fn wait_ready(
-    child: &mut Child,
-    what: &str,
-    log: &Path,
-    mut ready: impl FnMut() -> bool,
-) {
+pub(crate) fn wait_ready(child: &mut Child, what: &str, log: &Path, mut ready: impl FnMut() -> bool) {
     for _ in 0..POLL_TRIES {
         if let Ok(Some(status)) = child.try_wait() {
-            panic!(
-                "{what} exited during start-up ({status}); log {}:\n{}",
-                log.display(),
-                tail(log)
-            );
+            panic!("{what} exited during start-up ({status}); log {}:\n{}", log.display(), tail(log));
         }
         if ready() {
             return;
@@ -73,11 +64,7 @@ pub(crate) fn wait_ready(
         std::thread::sleep(POLL_PAUSE);
     }
     terminate(child);
-    panic!(
-        "{what} not ready after {POLL_TRIES} tries {POLL_PAUSE:?} apart; log {}:\n{}",
-        log.display(),
-        tail(log)
-    );
+    panic!("{what} not ready after {POLL_TRIES} tries {POLL_PAUSE:?} apart; log {}:\n{}", log.display(), tail(log));
 }
 
 /// The last lines of a log file worth reading after a failure: warnings
@@ -87,9 +74,7 @@ pub(crate) fn tail(log: &Path) -> String {
     let text = std::fs::read_to_string(log).unwrap_or_default();
     let loud = |l: &&str| {
         let l = l.to_ascii_lowercase();
-        ["error", "warn", "fatal", "panic"]
-            .iter()
-            .any(|w| l.contains(w))
+        ["error", "warn", "fatal", "panic"].iter().any(|w| l.contains(w))
     };
     let mut lines: Vec<&str> = text.lines().filter(loud).collect();
     if lines.is_empty() {

@@ -53,10 +53,7 @@ pub struct ExportedSeries {
 impl ExportedSeries {
     /// The metric name (`__name__`).
     pub fn name(&self) -> &str {
-        self.metric
-            .get("__name__")
-            .map(String::as_str)
-            .unwrap_or("")
+        self.metric.get("__name__").map(String::as_str).unwrap_or("")
     }
 
     /// The value of label `key`, if present.
@@ -66,11 +63,7 @@ impl ExportedSeries {
 
     /// `(timestamp_ms, value)` pairs.
     pub fn samples(&self) -> Vec<(i64, f64)> {
-        self.timestamps
-            .iter()
-            .copied()
-            .zip(self.values.iter().copied())
-            .collect()
+        self.timestamps.iter().copied().zip(self.values.iter().copied()).collect()
     }
 }
 
@@ -89,12 +82,7 @@ impl VictoriaMetrics {
     pub fn start() -> VictoriaMetrics {
         let dir = tempfile::tempdir().expect("temp dir for victoria-metrics");
         let log = dir.path().join("victoria-metrics.log");
-        let mut vm = VictoriaMetrics {
-            port: free_port(),
-            dir,
-            log,
-            child: None,
-        };
+        let mut vm = VictoriaMetrics { port: free_port(), dir, log, child: None };
         vm.spawn();
         vm
     }
@@ -131,8 +119,7 @@ impl VictoriaMetrics {
     pub fn export(&self, match_selector: &str) -> Vec<ExportedSeries> {
         self.flush();
         let target = format!("/api/v1/export?match[]={}", encode(match_selector));
-        let resp = http::get(self.port, &target)
-            .unwrap_or_else(|e| panic!("GET {target} on victoria-metrics: {e}"));
+        let resp = http::get(self.port, &target).unwrap_or_else(|e| panic!("GET {target} on victoria-metrics: {e}"));
         assert_eq!(resp.status, 200, "export {match_selector}: {}", resp.text());
         let mut series: Vec<ExportedSeries> = resp
             .text()
@@ -149,8 +136,7 @@ impl VictoriaMetrics {
     pub fn query(&self, promql: &str, time: f64) -> serde_json::Value {
         self.flush();
         let target = format!("/api/v1/query?query={}&time={time}", encode(promql));
-        let resp = http::get(self.port, &target)
-            .unwrap_or_else(|e| panic!("GET {target} on victoria-metrics: {e}"));
+        let resp = http::get(self.port, &target).unwrap_or_else(|e| panic!("GET {target} on victoria-metrics: {e}"));
         assert_eq!(resp.status, 200, "query {promql}: {}", resp.text());
         serde_json::from_slice(&resp.body).unwrap_or_else(|e| panic!("query answer: {e}"))
     }
@@ -170,10 +156,7 @@ impl VictoriaMetrics {
     fn spawn(&mut self) {
         let args = vec![
             format!("-httpListenAddr=127.0.0.1:{}", self.port),
-            format!(
-                "-storageDataPath={}",
-                self.dir.path().join("data").display()
-            ),
+            format!("-storageDataPath={}", self.dir.path().join("data").display()),
             "-retentionPeriod=100y".to_string(),
             // Fresh samples are visible to queries at once.
             "-search.latencyOffset=0s".to_string(),
@@ -201,11 +184,7 @@ impl Drop for VictoriaMetrics {
             terminate(&mut child);
         }
         if std::thread::panicking() {
-            eprintln!(
-                "victoria-metrics log ({}):\n{}",
-                self.dir.path().display(),
-                tail(&self.log)
-            );
+            eprintln!("victoria-metrics log ({}):\n{}", self.dir.path().display(), tail(&self.log));
         }
     }
 }

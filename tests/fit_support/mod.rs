@@ -16,10 +16,7 @@ impl Lcg {
     }
 
     pub fn uniform(&mut self) -> f64 {
-        self.0 = self
-            .0
-            .wrapping_mul(6_364_136_223_846_793_005)
-            .wrapping_add(1_442_695_040_888_963_407);
+        self.0 = self.0.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
         ((self.0 >> 11) as f64 + 0.5) / (1u64 << 53) as f64
     }
 
@@ -38,11 +35,7 @@ pub fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
 }
 
 fn has_numpy() -> bool {
-    Command::new("python3")
-        .args(["-c", "import numpy"])
-        .output()
-        .map(|o| o.status.success())
-        .unwrap_or(false)
+    Command::new("python3").args(["-c", "import numpy"]).output().map(|o| o.status.success()).unwrap_or(false)
 }
 
 /// Make sure `python3` with numpy is there; install numpy with pip if it
@@ -51,9 +44,7 @@ pub fn ensure_numpy() {
     if has_numpy() {
         return;
     }
-    let _ = Command::new("python3")
-        .args(["-m", "pip", "install", "--quiet", "numpy", "scipy"])
-        .status();
+    let _ = Command::new("python3").args(["-m", "pip", "install", "--quiet", "numpy", "scipy"]).status();
     assert!(
         has_numpy(),
         "these tests compare with numpy: python3 with numpy is required \
@@ -65,26 +56,14 @@ pub fn ensure_numpy() {
 pub fn numpy_reference(job: serde_json::Value) -> serde_json::Value {
     ensure_numpy();
     let script = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fit_lstsq.py");
-    let out = Command::new("python3")
-        .arg(&script)
-        .arg(job.to_string())
-        .output()
-        .expect("run python3");
-    assert!(
-        out.status.success(),
-        "numpy reference failed: {}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    let out = Command::new("python3").arg(&script).arg(job.to_string()).output().expect("run python3");
+    assert!(out.status.success(), "numpy reference failed: {}", String::from_utf8_lossy(&out.stderr));
     serde_json::from_slice(&out.stdout).expect("numpy reference prints JSON")
 }
 
 /// A JSON array of numbers as `Vec<f64>`.
 pub fn floats(v: &serde_json::Value) -> Vec<f64> {
-    v.as_array()
-        .expect("array")
-        .iter()
-        .map(|x| x.as_f64().expect("number"))
-        .collect()
+    v.as_array().expect("array").iter().map(|x| x.as_f64().expect("number")).collect()
 }
 
 /// `|a − b| ≤ tol · max(|a|, |b|, floor)`; `floor` keeps values near zero
