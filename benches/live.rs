@@ -6,36 +6,49 @@
 //!    A load generator publishes N tag messages (default 200 000; JSON
 //!    `{"value": v, "timestamp": epoch_s}`, 100 tubes × 2 tags, increasing
 //!    timestamps) with QoS 1 as fast as the broker acknowledges them
-//!    (inflight 500). (a) Baseline: a subscriber to `plant/#` (QoS 1,
-//!    persistent session, automatic acks) that only counts. (b) The same
-//!    stream into `lifeledger run` (100 tubes, no database), which
-//!    acknowledges each message only after its SQLite group commit. Both
-//!    rates are taken from the first publish to "done": the baseline's last
-//!    receive, and for the service the receipt of an alarm event that the
-//!    stream's last message (one out-of-range sample on a sentinel tag)
-//!    provokes: the service publishes it right after the commit that
-//!    acknowledges every earlier message, so it marks "integrated and
-//!    acknowledged" without the 0.5 s lag of the HTTP snapshot. The snapshot
-//!    then confirms zero loss (`engine.accepted == N`, `duplicate == 0`,
-//!    `service.acked == N + 1`). The baseline's first-to-last-receive rate
-//!    is printed too.
-//! 2. **Tag-to-alarm latency** at 10 000 samples/s: a paced background
-//!    stream (10 ms slices of 100 messages over 100 tags) plus, every
-//!    200 ms, one out-of-range sample on a dedicated tag with a
-//!    `valid_range` (a good one 100 ms later clears it). Latency is from the
-//!    publish call of the bad sample to the receipt of its `activated`
-//!    `sensor_out_of_range` event on `lifeledger/alarms/events` (matched by
-//!    the tag in `detail` and the event time). 120 samples; p50, p99, max.
+//!    (inflight 500).
+//!    (a) Baseline: a subscriber to `plant/#` (QoS 1, persistent session,
+//!    automatic acks) that only counts; rate from the first publish to its
+//!    last receive (first-to-last-receive is printed too).
+//!    (b) The same stream into `lifeledger run` (100 tubes, no database),
+//!    which acknowledges each message only after its SQLite group commit.
+//!    The stream ends with an alarm command (shelve) as end marker: the
+//!    ledger applies it in order and publishes its event right after the
+//!    commit that acknowledges everything before it, which times "all
+//!    integrated" without the up-to-0.5 s lag of the HTTP snapshot (the
+//!    snapshot-poll figure is printed too, and used if the event is lost).
+//!    The snapshot then gives `engine.accepted`, `engine.duplicate` and
+//!    `service.acked` for the zero-loss check.
+//!    (c) The service's own ceiling: a backlog of 90 000 messages (the
+//!    broker's queue limit is 100 000 per client) queued while the service
+//!    is stopped, drained after a restart; rate from its `online` status to
+//!    the end marker's event.
+//! 2. **Tag-to-alarm latency** under a paced background of 10 000
+//!    samples/s (10 ms slices of 100 messages over 100 tags): one
+//!    out-of-range sample on a dedicated tag with `valid_range` every
+//!    1.2 s, a good one 100 ms later; latency from the publish call of the
+//!    bad sample to the receipt of the `activated` `sensor_out_of_range`
+//!    event on `lifeledger/alarms/events` (detail `tag TA`), paired with
+//!    the newest bad sample published before it. Not every 200 ms: the
+//!    service judges sensor faults at most every 500 ms of wall time and
+//!    latches faults between judgements, so the alarm needs about 1 s to
+//!    clear, and a 200 ms cycle would keep it active (one event in all).
+//!    110 samples; p50, p99, max.
 //! 3. **Resident memory with 10 000 components** (10 000 tubes, 20 000
-//!    tags): VmRSS of the service after start and after one sample per tag
-//!    has been accepted, and VmHWM (peak).
+//!    tags): VmRSS after start, then one sample per tag is published and
+//!    VmRSS / VmHWM are read once all are accepted or after a poll budget
+//!    of 90 s, whichever comes first (the accepted count is reported).
 //!
-//! Run: `cargo bench --bench live` (or `tests/bench/live.sh`). Cargo builds
-//! the release binary and passes its path as `CARGO_BIN_EXE_lifeledger`.
-//! Needs `/usr/sbin/mosquitto` (tests/run installs it). Environment:
-//! `LIVE_BENCH_N` overrides N. Everything listens on 127.0.0.1 only; every
-//! wait is a bounded count of polls that gives up (and reports) on a
-//! stall. This is a benchmark: it reports numbers and checks no timing.
+//! Run: `cargo bench --bench live` (or `tests/bench/live.sh`); about 5
+//! minutes on 2 cores. Cargo builds the release binary and passes its path
+//! as `CARGO_BIN_EXE_lifeledger` (set for benches as for integration
+//! tests). Needs `/usr/sbin/mosquitto` (tests/run installs it).
+//! Environment: `LIVE_BENCH_N` overrides N; `LIVE_BENCH_PARTS` (default
+//! `123`) selects parts; `LIVE_BENCH_KEEP=1` keeps each part's directory
+//! (config, service log, ledger) and prints its path. Everything listens on
+//! 127.0.0.1 only; every wait is a bounded count of polls that gives up
+//! (and reports) on a stall. This is a benchmark: it prints figures and
+//! asserts nothing about timing.
 
 #[path = "../tests/common/mod.rs"]
 mod common;
@@ -150,7 +163,11 @@ impl Service {
     fn poll<T>(&mut self, what: &str, mut probe: impl FnMut(&Service) -> Option<T>) -> T {
         for _ in 0..MAX_POLLS / 10 {
             if let Ok(Some(st)) = self.child.try_wait() {
-                panic!("lifeledger exited ({st}) while waiting for {what}; log {}:\n{}", self.log.display(), self.log_tail());
+                panic!(
+                    "lifeledger exited ({st}) while waiting for {what}; log {}:\n{}",
+                    self.log.display(),
+                    self.log_tail()
+                );
             }
             if let Some(v) = probe(self) {
                 return v;
@@ -424,7 +441,11 @@ fn throughput(n: usize) -> Throughput {
     // sentinel component has alarm records the end marker can shelve.
     publish_stream(broker.port, "bench-load-warmup", vec![("plant/SENT".into(), payload(T0, 550.0))]);
     svc.poll("the sentinel's alarm records", |s| {
-        s.snapshot().filter(|v| v["alarms"].as_array().is_some_and(|a| a.iter().any(|c| c["component"] == "SENTINEL" && c["alarms"].as_array().is_some_and(|r| !r.is_empty()))))
+        s.snapshot().filter(|v| {
+            v["alarms"].as_array().is_some_and(|a| {
+                a.iter().any(|c| c["component"] == "SENTINEL" && c["alarms"].as_array().is_some_and(|r| !r.is_empty()))
+            })
+        })
     });
     let mut msgs = throughput_stream(n, 100, 0);
     // End marker: a shelve command. The ledger applies it in order and
@@ -474,6 +495,7 @@ fn throughput(n: usize) -> Throughput {
         eprintln!("     service log: {failed} \"MQTT acknowledge failed\" errors");
     }
     svc.stop();
+    drop(broker);
     r.drain = Some(drain(DRAIN.min(n), n.div_ceil(200)));
     r
 }
@@ -496,7 +518,11 @@ fn drain(m: usize, first_round: usize) -> Drain {
     wait_online(&events);
     publish_stream(broker.port, "bench-load-warmup-1c", vec![("plant/SENT".into(), payload(T0, 550.0))]);
     svc.poll("the sentinel's alarm records", |s| {
-        s.snapshot().filter(|v| v["alarms"].as_array().is_some_and(|a| a.iter().any(|c| c["component"] == "SENTINEL" && c["alarms"].as_array().is_some_and(|r| !r.is_empty()))))
+        s.snapshot().filter(|v| {
+            v["alarms"].as_array().is_some_and(|a| {
+                a.iter().any(|c| c["component"] == "SENTINEL" && c["alarms"].as_array().is_some_and(|r| !r.is_empty()))
+            })
+        })
     });
     svc.stop();
     let mut backlog = throughput_stream(m, 100, first_round);
@@ -521,7 +547,12 @@ fn drain(m: usize, first_round: usize) -> Drain {
     };
     eprintln!(
         "     accepted {} duplicate {} of {m}, acknowledged {} of {} at {:.0} msg/s (service online to {})",
-        d.accepted, d.duplicate, d.acked, m + 1, d.rate, d.basis
+        d.accepted,
+        d.duplicate,
+        d.acked,
+        m + 1,
+        d.rate,
+        d.basis
     );
     let failed = std::fs::read_to_string(&svc.log).unwrap_or_default().matches("MQTT acknowledge failed").count();
     if failed > 0 {
@@ -634,7 +665,10 @@ const ALARMS: usize = 110;
 const CYCLE: usize = 120;
 
 fn latency() -> Latency {
-    eprintln!("[2]  tag-to-alarm latency at 10 000 samples/s ({ALARMS} out-of-range samples, one every {} ms)", CYCLE * 10);
+    eprintln!(
+        "[2]  tag-to-alarm latency at 10 000 samples/s ({ALARMS} out-of-range samples, one every {} ms)",
+        CYCLE * 10
+    );
     let broker = Mosquitto::start();
     let dir = WorkDir::new("latency");
     let http_port = free_port();
@@ -674,8 +708,17 @@ fn latency() -> Latency {
         let ts = T0 + k as i64;
         let x = k as f64;
         for c in 0..50 {
-            client.publish(format!("plant/T{c}"), QoS::AtLeastOnce, false, payload(ts, 545.0 + 10.0 * (x / 97.0 + c as f64).sin())).unwrap();
-            client.publish(format!("plant/P{c}"), QoS::AtLeastOnce, false, payload(ts, 160.0 + 5.0 * (x / 53.0).cos())).unwrap();
+            client
+                .publish(
+                    format!("plant/T{c}"),
+                    QoS::AtLeastOnce,
+                    false,
+                    payload(ts, 545.0 + 10.0 * (x / 97.0 + c as f64).sin()),
+                )
+                .unwrap();
+            client
+                .publish(format!("plant/P{c}"), QoS::AtLeastOnce, false, payload(ts, 160.0 + 5.0 * (x / 53.0).cos()))
+                .unwrap();
         }
         if k % CYCLE == 0 {
             sent_at.push(Instant::now());
@@ -731,8 +774,17 @@ fn latency() -> Latency {
         eprintln!("     {} of {ALARMS} out-of-range samples got their own activation; events seen (index transition detail: count): {tally:?}", lat.len());
     }
     lat.sort_by(f64::total_cmp);
-    let pct = |q: f64| lat.get(((q * lat.len() as f64).ceil() as usize).clamp(1, lat.len().max(1)) - 1).copied().unwrap_or(f64::NAN);
-    let r = Latency { samples: lat.len(), expected: ALARMS, p50_ms: pct(0.50), p99_ms: pct(0.99), max_ms: lat.last().copied().unwrap_or(f64::NAN), achieved_rate };
+    let pct = |q: f64| {
+        lat.get(((q * lat.len() as f64).ceil() as usize).clamp(1, lat.len().max(1)) - 1).copied().unwrap_or(f64::NAN)
+    };
+    let r = Latency {
+        samples: lat.len(),
+        expected: ALARMS,
+        p50_ms: pct(0.50),
+        p99_ms: pct(0.99),
+        max_ms: lat.last().copied().unwrap_or(f64::NAN),
+        achieved_rate,
+    };
     eprintln!(
         "     background {achieved_rate:.0} samples/s achieved ({acked}/{total} PUBACKs); {} of {ALARMS} alarms: p50 {:.1} ms, p99 {:.1} ms, max {:.1} ms",
         r.samples, r.p50_ms, r.p99_ms, r.max_ms
@@ -785,7 +837,11 @@ fn memory() -> Memory {
         }
         accepted = http::get(svc.http_port, "/metrics")
             .ok()
-            .and_then(|r| r.text().lines().find_map(|l| l.strip_prefix("lifeledger_samples_accepted_total ").and_then(|v| v.trim().parse::<f64>().ok())))
+            .and_then(|r| {
+                r.text().lines().find_map(|l| {
+                    l.strip_prefix("lifeledger_samples_accepted_total ").and_then(|v| v.trim().parse::<f64>().ok())
+                })
+            })
             .map_or(accepted, |v| v as u64);
         if accepted >= want {
             break;
@@ -822,20 +878,35 @@ fn main() {
         let integrated = t.accepted == t.n as u64 && t.duplicate == 0;
         let acked = t.acked == t.n as u64 + 1;
         println!("| N (messages, 100 tubes × 2 tags) | {} | |", t.n);
-        println!("| load generator alone (publish to last PUBACK), baseline run / service run | {:.0} / {:.0} msg/s | |", t.publisher_rate, t.service_publisher_rate);
+        println!(
+            "| load generator alone (publish to last PUBACK), baseline run / service run | {:.0} / {:.0} msg/s | |",
+            t.publisher_rate, t.service_publisher_rate
+        );
         println!("| baseline subscriber, first publish to last receive | {:.0} msg/s | |", t.baseline_rate);
         println!("| baseline subscriber, first to last receive | {:.0} msg/s | |", t.baseline_recv_rate);
         println!("| lifeledger run, first publish to all integrated ({}) | {:.0} msg/s | |", t.basis, t.service_rate);
         println!("| lifeledger run, same, by snapshot poll | {:.0} msg/s | |", t.snapshot_rate);
         println!("| ratio service / baseline | {:.0} % | ≥ 90 %: {} |", 100.0 * ratio, yes(ratio >= 0.9));
-        println!("| integrated without loss: accepted {} duplicate {} of {}; baseline received {} | {} | all |", t.accepted, t.duplicate, t.n, t.baseline_received, if integrated { "yes" } else { "NO" });
-        println!("| acknowledged to the broker (service.acked, incl. end marker) | {} of {} | all: {} |", t.acked, t.n + 1, yes(acked));
-        println!("| commits (mean / max commit time) | {} ({:.2} / {:.1} ms) | |", t.commits, t.mean_commit_ms, t.max_commit_ms);
+        println!(
+            "| integrated without loss: accepted {} duplicate {} of {}; baseline received {} | {} | all |",
+            t.accepted,
+            t.duplicate,
+            t.n,
+            t.baseline_received,
+            if integrated { "yes" } else { "NO" }
+        );
+        println!(
+            "| acknowledged to the broker (service.acked, incl. end marker) | {} of {} | all: {} |",
+            t.acked,
+            t.n + 1,
+            yes(acked)
+        );
+        println!(
+            "| commits (mean / max commit time) | {} ({:.2} / {:.1} ms) | |",
+            t.commits, t.mean_commit_ms, t.max_commit_ms
+        );
         if let Some(d) = &t.drain {
-            println!(
-                "| backlog drain after restart ({} queued; online to {}) | {:.0} msg/s | |",
-                d.m, d.basis, d.rate
-            );
+            println!("| backlog drain after restart ({} queued; online to {}) | {:.0} msg/s | |", d.m, d.basis, d.rate);
             println!(
                 "| backlog drain: accepted {} duplicate {} of {}; acknowledged {} of {} | {} | all |",
                 d.accepted,
@@ -854,7 +925,13 @@ fn main() {
         );
     }
     if let Some(m) = m {
-        println!("| VmRSS, {} components: after start / at the end (peak VmHWM) | {:.1} / {:.1} MiB ({:.1}) | |", m.components, m.idle_rss, m.rss, m.hwm);
-        println!("| samples accepted, {} components, after {:.1} s | {} of {} | |", m.components, m.ingest_s, m.accepted, m.want);
+        println!(
+            "| VmRSS, {} components: after start / at the end (peak VmHWM) | {:.1} / {:.1} MiB ({:.1}) | |",
+            m.components, m.idle_rss, m.rss, m.hwm
+        );
+        println!(
+            "| samples accepted, {} components, after {:.1} s | {} of {} | |",
+            m.components, m.ingest_s, m.accepted, m.want
+        );
     }
 }

@@ -420,7 +420,18 @@ impl AlarmBook {
 
     /// A component's alarms now.
     pub fn current(&self, component: &str) -> ComponentAlarmSummary {
-        let alarms: Vec<AlarmRecord> = self.records.values().filter(|r| r.component == component).cloned().collect();
+        // Keys are `component/index`, so one component's records are a
+        // contiguous range of the map (the equality test keeps a component
+        // named `A/B` out of `A`'s summary).
+        let prefix = format!("{component}/");
+        let alarms: Vec<AlarmRecord> = self
+            .records
+            .range(prefix.clone()..)
+            .take_while(|(k, _)| k.starts_with(&prefix))
+            .map(|(_, r)| r)
+            .filter(|r| r.component == component)
+            .cloned()
+            .collect();
         let active: Vec<&AlarmRecord> =
             alarms.iter().filter(|r| r.is_active() && r.state != AlarmState::Shelved).collect();
         ComponentAlarmSummary {

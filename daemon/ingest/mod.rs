@@ -217,10 +217,36 @@ pub async fn run_event_loop(
     mut shutdown: broadcast::Receiver<()>,
 ) {
     let mut delay = settings.reconnect_min_s;
+    // Messages received but not yet handed to the ledger. The event loop is
+    // polled while they wait, so the ledger's acknowledgements (which travel
+    // through the client's request queue) always get out; the queue holds at
+    // most what the broker's in-flight window lets it send unacknowledged.
+    let mut waiting: std::collections::VecDeque<Inbound> = std::collections::VecDeque::new();
     loop {
-        let ev = tokio::select! {
-            ev = eventloop.poll() => ev,
-            _ = shutdown.recv() => break,
+        let ev = if waiting.is_empty() {
+            tokio::select! {
+                ev = eventloop.poll() => ev,
+                _ = shutdown.recv() => break,
+            }
+        } else {
+            tokio::select! {
+                permit = to_ledger.reserve() => {
+                    match permit {
+                        Ok(p) => {
+                            if let Some(m) = waiting.pop_front() {
+                                p.send(m);
+                            }
+                        }
+                        // After the ledger has closed, intake is stopped: the
+                        // messages stay unacknowledged and the broker
+                        // redelivers them to the next session.
+                        Err(_) => waiting.clear(),
+                    }
+                    continue;
+                }
+                ev = eventloop.poll() => ev,
+                _ = shutdown.recv() => break,
+            }
         };
         match ev {
             Ok(Event::Incoming(Packet::ConnAck(ack))) => {
@@ -239,15 +265,10 @@ pub async fn run_event_loop(
                     }
                 }
                 let _ = client.try_publish(settings.status_topic(), QoS::AtLeastOnce, true, online_payload());
-                let _ = to_ledger.send(Inbound::Connection { connected: true }).await;
+                waiting.push_back(Inbound::Connection { connected: true });
             }
             Ok(Event::Incoming(Packet::Publish(p))) => {
-                let msg = Inbound::Message { publish: p, received_ms: now_ms() };
-                // After the ledger has closed, intake is stopped: the
-                // message stays unacknowledged and the broker redelivers it
-                // to the next session. Keep polling so the last
-                // acknowledgements still go out.
-                let _ = to_ledger.send(msg).await;
+                waiting.push_back(Inbound::Message { publish: p, received_ms: now_ms() });
             }
             Ok(_) => {}
             Err(e) => {
@@ -256,7 +277,7 @@ pub async fn run_event_loop(
                     settings.host,
                     settings.port
                 );
-                let _ = to_ledger.send(Inbound::Connection { connected: false }).await;
+                waiting.push_back(Inbound::Connection { connected: false });
                 tokio::select! {
                     _ = tokio::time::sleep(Duration::from_secs_f64(delay)) => {}
                     _ = shutdown.recv() => break,

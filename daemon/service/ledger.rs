@@ -715,7 +715,9 @@ impl Ledger {
     }
 
     fn publish_snapshot(&mut self, force: bool) {
-        if !force && self.last_snapshot.elapsed() < Duration::from_millis(500) {
+        // Large plants: the snapshot visits every component, so less often.
+        let every = if self.engine.plan().components.len() > 1000 { 5000 } else { 500 };
+        if !force && self.last_snapshot.elapsed() < Duration::from_millis(every) {
             return;
         }
         self.last_snapshot = Instant::now();
