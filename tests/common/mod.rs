@@ -32,7 +32,7 @@ pub use mosquitto::Mosquitto;
 pub use victoria::{ExportedSeries, VictoriaMetrics};
 
 /// How many times [`poll_until`] tries before it gives up.
-pub const POLL_TRIES: u32 = 400;
+pub const POLL_TRIES: u32 = 1200;
 /// Pause between two tries of [`poll_until`].
 pub const POLL_PAUSE: Duration = Duration::from_millis(50);
 
