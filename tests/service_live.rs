@@ -356,7 +356,11 @@ fn database_outage_loses_no_point() {
     // Thresholds and alarm events reached the database too.
     assert!(!vm.export("{__name__=\"alarm_threshold_value\"}").is_empty());
     assert!(!vm.export("{__name__=~\"alarm_event_.*\"}").is_empty());
-    assert!(!vm.export("{__name__=~\"service_health_.*\"}").is_empty());
+    // Health points are written on wall-clock time; wait for one to land.
+    poll_until("a service_health point in the database", || {
+        vm.flush();
+        (!vm.export("{__name__=~\"service_health_.*\"}").is_empty()).then_some(())
+    });
     drop(svc);
 }
 

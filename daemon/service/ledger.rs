@@ -197,7 +197,8 @@ impl Ledger {
             log: RateLimitedLog { last: HashMap::new() },
             snapshot_tx,
             last_snapshot: Instant::now() - Duration::from_secs(60),
-            last_health: Instant::now(),
+            // The first health point goes out at the first idle moment.
+            last_health: Instant::now() - Duration::from_secs(3600),
             started: rfc3339_ms(now_ms()),
             mqtt_connected: false,
             outbox: stats,
