@@ -440,7 +440,12 @@ fn alarms_go_out_on_mqtt_and_can_be_acknowledged() {
     assert_eq!(e["state"], "unacknowledged");
     assert!(e["caution"].as_str().unwrap().contains("governing code"));
     assert!(e["threshold"].as_f64().is_some() && e["value"].as_f64().is_some() && e["time"].is_string());
-    assert!(got.iter().any(|(t, _)| t == "lifeledger/alarms/state/SH-TUBE"));
+    poll_until("the retained state topic", || {
+        while let Ok(m) = rx.try_recv() {
+            got.push(m);
+        }
+        got.iter().any(|(t, _)| t == "lifeledger/alarms/state/SH-TUBE").then_some(())
+    });
     // Acknowledge by command.
     client
         .publish(
