@@ -165,8 +165,6 @@ impl ComponentReport {
             flags.push("wall_exhausted".into());
         }
         let h = &st.histogram;
-        let w = h.pressure_edges_mpa.len() + 1;
-        let _ = w;
         ComponentReport {
             component: plan.name.clone(),
             unit: plan.unit.clone(),

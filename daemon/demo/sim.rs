@@ -155,21 +155,19 @@ impl Simulator {
             if t.excursion && (EXCURSION_DAY..EXCURSION_DAY + EXCURSION_HOURS / 24.0).contains(&d) {
                 v += 32.0;
             }
+            let mut spike = false;
             if t.failing {
                 let f = d - FAILURE_DAY;
                 if (0.0..0.5).contains(&f) && j > 0.9 {
-                    // Burn-out spikes: rejected as out of range.
-                    v = t.unit.unit.to_internal(5000.0);
+                    // Burn-out spikes: 5000 in the tag's unit, outside any
+                    // valid range, so they are rejected as out of range.
+                    spike = true;
                 } else if (0.5..0.5 + SILENCE_HOURS / 24.0).contains(&f) {
                     continue; // silent: the stale-tag alarm fires
                 }
             }
             // Internal value to the tag's engineering unit, then to raw.
-            let eng = if t.unit.unit.quantity == Quantity::Temperature && v > 4000.0 {
-                5000.0
-            } else {
-                t.unit.unit.from_internal(v)
-            };
+            let eng = if spike { 5000.0 } else { t.unit.unit.from_internal(v) };
             let raw = (eng - t.unit.offset) / t.unit.scale;
             out.push(SimSample { tag: t.name.clone(), time_ms, value: (raw * 1000.0).round() / 1000.0 });
         }

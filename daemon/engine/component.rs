@@ -195,8 +195,8 @@ fn line_of(
             match st.read(tp, mid) {
                 Reading::Value(v) if tp.interpolation == Interpolation::Step => (Line { v0: v, k: 0.0 }, false),
                 Reading::Value(_) => {
-                    let va = value_at(st.read(tp, a), st, tp, a);
-                    let vb = value_at(st.read(tp, b), st, tp, b);
+                    let va = value_at(st.read(tp, a));
+                    let vb = value_at(st.read(tp, b));
                     let k = if b > a { (vb - va) / (b - a) } else { 0.0 };
                     (Line { v0: va, k }, false)
                 }
@@ -210,7 +210,7 @@ fn line_of(
 /// The value at a piece end: a piece end may sit exactly on a hold
 /// boundary, where the reading flips to a gap; take the held value there.
 #[inline]
-fn value_at(r: Reading, _st: &TagState, _tp: &TagPlan, _t: f64) -> f64 {
+fn value_at(r: Reading) -> f64 {
     match r {
         Reading::Value(v) | Reading::Gap(v) => v,
         Reading::Missing => 0.0,

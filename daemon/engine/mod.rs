@@ -232,6 +232,11 @@ impl Engine {
         &self.components
     }
 
+    /// Tags a component reads (computed once, when the engine is built).
+    pub fn inputs(&self, ci: usize) -> &[TagId] {
+        &self.inputs[ci]
+    }
+
     /// Tag states, in plan order.
     pub fn tags(&self) -> &[TagState] {
         &self.tags

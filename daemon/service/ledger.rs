@@ -13,7 +13,7 @@
 use super::settings::ServiceSettings;
 use super::snapshot::{ServiceCounters, Snapshot};
 use crate::alarm::{parse_command, AlarmBook, AlarmEvent, AlarmIndex, AlarmRecord};
-use crate::engine::{ComponentState, Engine, EngineState, Quality, Rejection, Sample, TagState};
+use crate::engine::{ComponentState, Engine, EngineState, Rejection, Sample, TagState};
 use crate::ingest::decode::{decode_payload, PayloadSettings, TopicTemplate};
 use crate::ingest::{now_ms, Inbound};
 use crate::replay::{tag_index, TagIndex};
@@ -21,7 +21,7 @@ use crate::report::{component_point, rfc3339_ms, threshold_points, ComponentRepo
 use crate::settings::LoadedConfig;
 use crate::store::{Commit, Store};
 use rumqttc::{AsyncClient, Publish, QoS};
-use std::collections::{BTreeMap, BTreeSet, HashMap};
+use std::collections::{BTreeSet, HashMap};
 use std::sync::Arc;
 use std::time::{Duration, Instant};
 use tokio::sync::{mpsc, watch};
@@ -121,13 +121,8 @@ impl Ledger {
         let store = Store::open(&service.store.path)?;
         let loaded = store.load()?;
         let mut engine = Engine::new(cfg.plan.clone());
-        let parse = |what: &str, name: &str, json: &str| -> anyhow::Result<()> {
-            let _ = (what, name, json);
-            Ok(())
-        };
         let mut tags = vec![];
         for (name, json) in &loaded.tags {
-            parse("tag", name, json)?;
             let t: TagState = serde_json::from_str(json)
                 .map_err(|e| anyhow::anyhow!("ledger {}: tag {name}: {e}", service.store.path.display()))?;
             tags.push((name.clone(), t));
@@ -238,7 +233,7 @@ impl Ledger {
     pub fn run(
         mut self,
         mut rx: mpsc::Receiver<Inbound>,
-        mut control: std::sync::mpsc::Receiver<Control>,
+        control: std::sync::mpsc::Receiver<Control>,
         rt: tokio::runtime::Handle,
     ) {
         loop {
@@ -301,7 +296,6 @@ impl Ledger {
                 }
             }
         }
-        let _ = &mut control;
         self.publish_snapshot(true);
         tracing::info!("ledger closed cleanly");
     }
@@ -443,7 +437,6 @@ impl Ledger {
                 }
             }
         }
-        let _ = Quality::Good;
     }
 
     /// Sensor-fault alarms per component: a component's stale, out-of-range
@@ -461,9 +454,9 @@ impl Ledger {
         let t = newest.unwrap_or_else(now_ms);
         let plan = self.engine.plan();
         let mut evaluations = vec![];
-        for c in &plan.components {
+        for (ci, c) in plan.components.iter().enumerate() {
             let (mut stale, mut oor, mut badq) = (vec![], vec![], vec![]);
-            for ti in c.tags() {
+            for &ti in self.engine.inputs(ci) {
                 let ti = ti as usize;
                 let tp = &plan.tags[ti];
                 if let (Some(n), Some(last)) = (newest, self.engine.tags()[ti].cursor_ms) {
@@ -754,6 +747,3 @@ impl Ledger {
         let _ = self.snapshot_tx.send(Arc::new(snap));
     }
 }
-
-#[allow(dead_code)]
-fn _types(_: BTreeMap<(), ()>) {}

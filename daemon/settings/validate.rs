@@ -7,11 +7,9 @@ use super::library::MaterialLibrary;
 use super::schema::*;
 use crate::engine::plan::*;
 use crate::physics::histogram::TimeAtCondition;
-use crate::physics::larson_miller::CurveBasis;
 use crate::physics::material::Material;
 use crate::physics::stress::StressBasis;
 use crate::physics::units::{Quantity, Unit};
-use crate::physics::wear::RegimeBounds;
 use std::collections::HashMap;
 use std::fmt;
 use std::path::{Path, PathBuf};
@@ -688,6 +686,3 @@ pub const DEFAULT_OVER_DESIGN: Levels = Levels { advisory: None, warning: Some(0
 /// worse, so the alarm module compares these the other way round.
 pub const DEFAULT_HOURS_TO_CRITICAL: Levels =
     Levels { advisory: None, warning: Some(17_520.0), critical: Some(8_760.0) };
-
-#[allow(dead_code)]
-fn _unused(_: CurveBasis, _: RegimeBounds) {}
