@@ -11,106 +11,33 @@
 
 mod common;
 
+use common::service::{publish_all, samples, Sample, Service, ServiceConfig};
 use common::{free_port, http, poll_until, Mosquitto, VictoriaMetrics};
 use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
 use std::path::{Path, PathBuf};
-use std::process::{Child, Command, Stdio};
+use std::process::Command;
 use std::time::Duration;
 
-const T0: i64 = 1_790_812_800; // 2026-10-01T00:00:00Z
+/// Alarm thresholds of the tube, the advisory level low enough for the
+/// test streams to raise an advisory alarm.
+const TUBE_THRESHOLDS: &str = "[component.thresholds]
+life_fraction = { advisory = 0.00002, warning = 0.5, critical = 0.7 }";
 
-fn config(dir: &Path, mqtt_port: u16, http_port: u16, db: Option<&str>, extra: &str) -> PathBuf {
+/// The shared test plant; with `db`, a `[database]` at that URL with a
+/// short backoff.
+fn config(dir: &Path, mqtt_port: u16, http_port: u16, db: Option<&str>) -> PathBuf {
     let database = db.map_or(String::new(), |u| format!("[database]\nurl = \"{u}\"\norg = \"test\"\nbucket = \"test\"\nbackoff_initial_s = 0.1\nbackoff_max_s = 0.5\n"));
-    let text = format!(
-        r#"
-[plant]
-name = "Test Station"
-[engine]
-max_hold_s = 600
-[[tag]]
-name = "TE-1"
-unit = "degC"
-valid_range = [0, 800]
-[[tag]]
-name = "PT-1"
-unit = "bar"
-[[tag]]
-name = "LOAD-1"
-unit = "N"
-[[tag]]
-name = "SLIP-1"
-unit = "um"
-[[component]]
-name = "SH-TUBE"
-unit = "U1"
-kind = "tube"
-material = "2.25Cr-1Mo"
-design_temperature = {{ value = 570, unit = "degC" }}
-design_pressure = {{ value = 180, unit = "bar" }}
-metal_temperature = "TE-1"
-pressure = "PT-1"
-[component.geometry]
-outside_diameter = {{ value = 44.5, unit = "mm" }}
-wall = {{ value = 5.0, unit = "mm" }}
-[component.thresholds]
-life_fraction = {{ advisory = 0.00002, warning = 0.5, critical = 0.7 }}
-[[component]]
-name = "SUPPORT"
-unit = "U1"
-kind = "wear_contact"
-material = "P22"
-[component.wear]
-model = "fretting"
-normal_load = "LOAD-1"
-slip_amplitude = "SLIP-1"
-frequency = {{ value = 25, unit = "Hz" }}
-wear_coefficient = 1.0e-9
-contact_area_mm2 = 30.0
-allowable_depth = {{ value = 0.5, unit = "mm" }}
-[mqtt]
-port = {mqtt_port}
-client_id = "lifeledger-test"
-reconnect_min_s = 0.1
-reconnect_max_s = 0.5
-[[mqtt.subscription]]
-topic = "plant/{{tag}}"
-[store]
-path = "{store}"
-health_interval_s = 1
-[http]
-listen = "127.0.0.1:{http_port}"
-{database}
-{extra}
-"#,
-        store = dir.join("ledger.sqlite").display()
-    );
-    let p = dir.join("service.toml");
-    std::fs::write(&p, text).unwrap();
-    p
-}
-
-/// The sample stream: minute by minute, four tags, a start-up ramp, a
-/// load swing and an over-temperature hour.
-fn samples(minutes: i64) -> Vec<(String, i64, f64)> {
-    let mut v = vec![];
-    for m in 0..minutes {
-        let ts = T0 + 60 * m;
-        let x = m as f64;
-        let te = if m < 120 {
-            300.0 + 2.3 * x
-        } else {
-            568.0 + 6.0 * (x / 37.0).sin() + if (300..360).contains(&m) { 25.0 } else { 0.0 }
-        };
-        let pt = 150.0 + 20.0 * (x / 90.0).cos();
-        v.push(("TE-1".into(), ts, te));
-        v.push(("PT-1".into(), ts, pt));
-        v.push(("LOAD-1".into(), ts, 80.0 + 10.0 * (x / 13.0).sin()));
-        v.push(("SLIP-1".into(), ts, 40.0 + 5.0 * (x / 29.0).cos()));
+    ServiceConfig {
+        plant: "Test Station",
+        client_id: "lifeledger-test",
+        tube: TUBE_THRESHOLDS,
+        tail: &database,
+        ..ServiceConfig::default()
     }
-    v
+    .write(dir, mqtt_port, http_port)
 }
 
-fn csv(dir: &Path, s: &[(String, i64, f64)]) -> PathBuf {
+fn csv(dir: &Path, s: &[Sample]) -> PathBuf {
     let mut t = String::from("timestamp,tag,value\n");
     for (tag, ts, v) in s {
         t.push_str(&format!("{ts},{tag},{v:?}\n"));
@@ -118,104 +45,6 @@ fn csv(dir: &Path, s: &[(String, i64, f64)]) -> PathBuf {
     let p = dir.join("history.csv");
     std::fs::write(&p, t).unwrap();
     p
-}
-
-fn payload(ts: i64, v: f64) -> Vec<u8> {
-    format!("{{\"value\": {v:?}, \"timestamp\": {ts}}}").into_bytes()
-}
-
-/// Publish with QoS 1 and wait until the broker acknowledged every message.
-fn publish_all(port: u16, s: &[(String, i64, f64)], id: &str) {
-    let mut o = MqttOptions::new(id, "127.0.0.1", port);
-    o.set_keep_alive(Duration::from_secs(30));
-    o.set_inflight(100);
-    let (client, mut conn) = Client::new(o, 1000);
-    let n = s.len();
-    let pubber = {
-        let s = s.to_vec();
-        std::thread::spawn(move || {
-            for (tag, ts, v) in s {
-                client.publish(format!("plant/{tag}"), QoS::AtLeastOnce, false, payload(ts, v)).unwrap();
-            }
-            client
-        })
-    };
-    let mut acked = 0;
-    for ev in conn.iter() {
-        match ev {
-            Ok(Event::Incoming(Packet::PubAck(_))) => {
-                acked += 1;
-                if acked == n {
-                    break;
-                }
-            }
-            Ok(_) => {}
-            Err(e) => panic!("publisher connection failed: {e}"),
-        }
-    }
-    let client = pubber.join().unwrap();
-    let _ = client.disconnect();
-}
-
-struct Service {
-    child: Child,
-    http_port: u16,
-}
-
-impl Service {
-    fn start(config: &Path, http_port: u16) -> Service {
-        let log = std::fs::File::create(config.with_extension(format!("log{}", free_port()))).unwrap();
-        let child = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
-            .args(["run", "--config", config.to_str().unwrap()])
-            .env("RUST_LOG", "info")
-            .stdout(Stdio::null())
-            .stderr(log)
-            .spawn()
-            .unwrap();
-        let s = Service { child, http_port };
-        poll_until("the service's /healthz", || http::get(http_port, "/healthz").ok().filter(|r| r.status == 200));
-        s
-    }
-
-    fn snapshot(&self) -> Option<serde_json::Value> {
-        let r = http::get(self.http_port, "/api/components").ok()?;
-        serde_json::from_str(&r.text()).ok()
-    }
-
-    fn wait_connected(&self) {
-        poll_until("MQTT connection", || self.snapshot().filter(|s| s["mqtt_connected"] == true));
-    }
-
-    /// Wait until every tag's newest sample is integrated.
-    fn wait_until_integrated(&self, last_ts: i64) -> serde_json::Value {
-        let want = chrono::DateTime::from_timestamp(last_ts, 0).unwrap().format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string();
-        poll_until("the ledger to reach the last sample", || {
-            self.snapshot().filter(|s| {
-                s["components"].as_array().is_some_and(|c| c.iter().all(|c| c["integrated_to"] == want.as_str()))
-            })
-        })
-    }
-
-    fn kill9(mut self) {
-        self.child.kill().unwrap();
-        self.child.wait().unwrap();
-    }
-
-    fn sigterm(mut self) -> std::process::ExitStatus {
-        signal(&self.child, "TERM");
-        self.child.wait().unwrap()
-    }
-}
-
-impl Drop for Service {
-    fn drop(&mut self) {
-        let _ = self.child.kill();
-        let _ = self.child.wait();
-    }
-}
-
-fn signal(child: &Child, sig: &str) {
-    Command::new("kill").args([&format!("-{sig}"), &child.id().to_string()]).status().unwrap();
 }
 
 fn replay_json(config: &Path, csv: &Path) -> serde_json::Value {
@@ -261,7 +90,7 @@ fn live_and_replay_give_identical_ledgers() {
     let broker = Mosquitto::start();
     let dir = tempfile::tempdir().unwrap();
     let http_port = free_port();
-    let cfg = config(dir.path(), broker.port, http_port, None, "");
+    let cfg = config(dir.path(), broker.port, http_port, None);
     let s = samples(600);
     let svc = Service::start(&cfg, http_port);
     svc.wait_connected();
@@ -280,7 +109,7 @@ fn kill_9_loses_nothing_and_counts_nothing_twice() {
     let broker = Mosquitto::start();
     let dir = tempfile::tempdir().unwrap();
     let http_port = free_port();
-    let cfg = config(dir.path(), broker.port, http_port, None, "");
+    let cfg = config(dir.path(), broker.port, http_port, None);
     let s = samples(3000);
     // First run: make the persistent session exist.
     let svc = Service::start(&cfg, http_port);
@@ -331,7 +160,7 @@ fn database_outage_loses_no_point() {
     let mut vm = VictoriaMetrics::start();
     let dir = tempfile::tempdir().unwrap();
     let http_port = free_port();
-    let cfg = config(dir.path(), broker.port, http_port, Some(&vm.url()), "");
+    let cfg = config(dir.path(), broker.port, http_port, Some(&vm.url()));
     let s = samples(400);
     let svc = Service::start(&cfg, http_port);
     svc.wait_connected();
@@ -369,7 +198,7 @@ fn sigterm_stops_cleanly_and_restart_resumes() {
     let broker = Mosquitto::start();
     let dir = tempfile::tempdir().unwrap();
     let http_port = free_port();
-    let cfg = config(dir.path(), broker.port, http_port, None, "");
+    let cfg = config(dir.path(), broker.port, http_port, None);
     let s = samples(300);
     let svc = Service::start(&cfg, http_port);
     svc.wait_connected();
@@ -387,7 +216,7 @@ fn sigterm_stops_cleanly_and_restart_resumes() {
     let cut = text.find("[[component]]\nname = \"SUPPORT\"").unwrap();
     let end = text.find("[mqtt]").unwrap();
     std::fs::write(&cfg, format!("{}{}", &text[..cut], &text[end..])).unwrap();
-    signal(&svc.child, "HUP");
+    svc.signal("HUP");
     let after =
         poll_until("reload", || svc.snapshot().filter(|v| v["components"].as_array().is_some_and(|c| c.len() == 1)));
     assert_eq!(after["retired_components"][0], "SUPPORT");
@@ -400,7 +229,7 @@ fn alarms_go_out_on_mqtt_and_can_be_acknowledged() {
     let broker = Mosquitto::start();
     let dir = tempfile::tempdir().unwrap();
     let http_port = free_port();
-    let cfg = config(dir.path(), broker.port, http_port, None, "");
+    let cfg = config(dir.path(), broker.port, http_port, None);
     // A listener for the alarm topics.
     let mut o = MqttOptions::new("alarm-listener", "127.0.0.1", broker.port);
     o.set_keep_alive(Duration::from_secs(30));
@@ -476,7 +305,7 @@ fn bad_messages_are_counted_and_the_service_keeps_running() {
     let broker = Mosquitto::start();
     let dir = tempfile::tempdir().unwrap();
     let http_port = free_port();
-    let cfg = config(dir.path(), broker.port, http_port, None, "");
+    let cfg = config(dir.path(), broker.port, http_port, None);
     let svc = Service::start(&cfg, http_port);
     svc.wait_connected();
     let mut o = MqttOptions::new("bad-publisher", "127.0.0.1", broker.port);
@@ -534,7 +363,7 @@ fn outbox_over_quota_pauses_intake_and_resumes_without_loss() {
     let dir = tempfile::tempdir().unwrap();
     let http_port = free_port();
     // A tiny quota: a few dozen points.
-    let cfg = config(dir.path(), broker.port, http_port, Some(&url), "");
+    let cfg = config(dir.path(), broker.port, http_port, Some(&url));
     let text = std::fs::read_to_string(&cfg)
         .unwrap()
         .replace("backoff_max_s = 0.5\n", "backoff_max_s = 0.5\noutbox_quota_bytes = 20000\n")

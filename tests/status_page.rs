@@ -10,14 +10,12 @@
 
 mod common;
 
-use common::{free_port, http, poll_until, Mosquitto};
-use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
+use common::service::{publish_all, samples_with_header, Service, ServiceConfig};
+use common::{free_port, Mosquitto};
 use std::path::{Path, PathBuf};
-use std::process::{Child, Command, Stdio};
-use std::time::Duration;
+use std::process::{Command, Stdio};
 
 const CHROMIUM: &str = "/usr/bin/chromium";
-const T0: i64 = 1_790_812_800; // 2026-10-01T00:00:00Z
 const CAUTION: &str = "Screening estimate only: limits, material data and acceptance must come from the plant's governing code and a responsible engineer.";
 
 fn chromium() -> &'static str {
@@ -30,194 +28,42 @@ fn chromium() -> &'static str {
     CHROMIUM
 }
 
-fn config(dir: &Path, mqtt_port: u16, http_port: u16) -> PathBuf {
-    let text = format!(
-        r#"
-[plant]
-name = "Status Page Test Station"
-[engine]
-max_hold_s = 600
-[[tag]]
-name = "TE-1"
-unit = "degC"
-valid_range = [0, 800]
-[[tag]]
+/// The header's metal temperature, TE-2.
+const HEADER_TAG: &str = r#"[[tag]]
 name = "TE-2"
 unit = "degC"
-valid_range = [0, 800]
-[[tag]]
-name = "PT-1"
-unit = "bar"
-[[tag]]
-name = "LOAD-1"
-unit = "N"
-[[tag]]
-name = "SLIP-1"
-unit = "um"
+valid_range = [0, 800]"#;
 
-[[component]]
-name = "SH-TUBE"
-unit = "U1"
-kind = "tube"
-material = "2.25Cr-1Mo"
-design_temperature = {{ value = 570, unit = "degC" }}
-design_pressure = {{ value = 180, unit = "bar" }}
-metal_temperature = "TE-1"
-pressure = "PT-1"
-[component.geometry]
-outside_diameter = {{ value = 44.5, unit = "mm" }}
-wall = {{ value = 5.0, unit = "mm" }}
-[component.initial]
-life_fraction = 0.31
-
-[[component]]
-name = "SUPPORT"
-unit = "U1"
-kind = "wear_contact"
-material = "P22"
-[component.wear]
-model = "fretting"
-normal_load = "LOAD-1"
-slip_amplitude = "SLIP-1"
-frequency = {{ value = 25, unit = "Hz" }}
-wear_coefficient = 1.0e-9
-contact_area_mm2 = 30.0
-allowable_depth = {{ value = 0.5, unit = "mm" }}
-[component.initial]
-wear_depth_mm = 0.21
-
-[[component]]
+/// A third component, a header on TE-2 in another unit, for the unit filter
+/// and the order of the rows.
+const HEADER: &str = r#"[[component]]
 name = "RH-HEADER"
 unit = "U2"
 kind = "header"
 material = "P91"
-design_temperature = {{ value = 570, unit = "degC" }}
-design_pressure = {{ value = 180, unit = "bar" }}
+design_temperature = { value = 570, unit = "degC" }
+design_pressure = { value = 180, unit = "bar" }
 metal_temperature = "TE-2"
 pressure = "PT-1"
 [component.geometry]
-outside_diameter = {{ value = 350, unit = "mm" }}
-wall = {{ value = 40, unit = "mm" }}
+outside_diameter = { value = 350, unit = "mm" }
+wall = { value = 40, unit = "mm" }
 [component.initial]
-life_fraction = 0.12
+life_fraction = 0.12"#;
 
-[mqtt]
-port = {mqtt_port}
-client_id = "lifeledger-status-page-test"
-reconnect_min_s = 0.1
-reconnect_max_s = 0.5
-[[mqtt.subscription]]
-topic = "plant/{{tag}}"
-[store]
-path = "{store}"
-health_interval_s = 1
-[http]
-listen = "127.0.0.1:{http_port}"
-"#,
-        store = dir.join("ledger.sqlite").display()
-    );
-    let p = dir.join("service.toml");
-    std::fs::write(&p, text).unwrap();
-    p
-}
-
-/// Ten hours minute by minute: a start-up ramp, a load swing and an
-/// over-temperature hour on the tube, a steadier header.
-fn samples(minutes: i64) -> Vec<(String, i64, f64)> {
-    let mut v = vec![];
-    for m in 0..minutes {
-        let ts = T0 + 60 * m;
-        let x = m as f64;
-        let te = if m < 120 {
-            300.0 + 2.3 * x
-        } else {
-            568.0 + 6.0 * (x / 37.0).sin() + if (300..360).contains(&m) { 25.0 } else { 0.0 }
-        };
-        let te2 = if m < 120 { 300.0 + 2.2 * x } else { 562.0 + 3.0 * (x / 53.0).cos() };
-        let pt = 150.0 + 20.0 * (x / 90.0).cos();
-        v.push(("TE-1".into(), ts, te));
-        v.push(("TE-2".into(), ts, te2));
-        v.push(("PT-1".into(), ts, pt));
-        v.push(("LOAD-1".into(), ts, 80.0 + 10.0 * (x / 13.0).sin()));
-        v.push(("SLIP-1".into(), ts, 40.0 + 5.0 * (x / 29.0).cos()));
+/// The shared test plant with the header, and every component carrying a
+/// life already used when the service starts.
+fn config(dir: &Path, mqtt_port: u16, http_port: u16) -> PathBuf {
+    ServiceConfig {
+        plant: "Status Page Test Station",
+        client_id: "lifeledger-status-page-test",
+        tags: HEADER_TAG,
+        tube: "[component.initial]\nlife_fraction = 0.31",
+        support: "[component.initial]\nwear_depth_mm = 0.21",
+        components: HEADER,
+        ..ServiceConfig::default()
     }
-    v
-}
-
-/// Publish with QoS 1 and wait until the broker acknowledged every message.
-fn publish_all(port: u16, s: &[(String, i64, f64)], id: &str) {
-    let mut o = MqttOptions::new(id, "127.0.0.1", port);
-    o.set_keep_alive(Duration::from_secs(30));
-    o.set_inflight(100);
-    let (client, mut conn) = Client::new(o, 1000);
-    let n = s.len();
-    let pubber = {
-        let s = s.to_vec();
-        std::thread::spawn(move || {
-            for (tag, ts, v) in s {
-                let payload = format!("{{\"value\": {v:?}, \"timestamp\": {ts}}}").into_bytes();
-                client.publish(format!("plant/{tag}"), QoS::AtLeastOnce, false, payload).unwrap();
-            }
-            client
-        })
-    };
-    let mut acked = 0;
-    for ev in conn.iter() {
-        match ev {
-            Ok(Event::Incoming(Packet::PubAck(_))) => {
-                acked += 1;
-                if acked == n {
-                    break;
-                }
-            }
-            Ok(_) => {}
-            Err(e) => panic!("publisher connection failed: {e}"),
-        }
-    }
-    let client = pubber.join().unwrap();
-    let _ = client.disconnect();
-}
-
-struct Service {
-    child: Child,
-    http_port: u16,
-}
-
-impl Service {
-    fn start(config: &Path, http_port: u16) -> Service {
-        let log = std::fs::File::create(config.with_extension("log")).unwrap();
-        let child = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
-            .args(["run", "--config", config.to_str().unwrap()])
-            .env("RUST_LOG", "info")
-            .stdout(Stdio::null())
-            .stderr(log)
-            .spawn()
-            .unwrap();
-        let s = Service { child, http_port };
-        poll_until("the service's /healthz", || http::get(http_port, "/healthz").ok().filter(|r| r.status == 200));
-        s
-    }
-
-    fn get_json(&self, target: &str) -> Option<serde_json::Value> {
-        let r = http::get(self.http_port, target).ok().filter(|r| r.status == 200)?;
-        serde_json::from_str(&r.text()).ok()
-    }
-
-    fn wait_until_integrated(&self, last_ts: i64) -> serde_json::Value {
-        let want = chrono::DateTime::from_timestamp(last_ts, 0).unwrap().format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string();
-        poll_until("the ledger to reach the last sample", || {
-            self.get_json("/api/components").filter(|s| {
-                s["components"].as_array().is_some_and(|c| c.iter().all(|c| c["integrated_to"] == want.as_str()))
-            })
-        })
-    }
-}
-
-impl Drop for Service {
-    fn drop(&mut self) {
-        let _ = self.child.kill();
-        let _ = self.child.wait();
-    }
+    .write(dir, mqtt_port, http_port)
 }
 
 /// Headless Chromium on `url` with `extra` arguments (`--dump-dom` or
@@ -354,10 +200,10 @@ fn fixture() -> Fixture {
     let http_port = free_port();
     let cfg = config(dir.path(), broker.port, http_port);
     let svc = Service::start(&cfg, http_port);
-    poll_until("MQTT connection", || svc.get_json("/api/components").filter(|s| s["mqtt_connected"] == true));
+    svc.wait_connected();
     // As a plant sends them: a few minutes at a time, each integrated
     // before the next (the trend keeps one point per ledger commit).
-    let s = samples(600);
+    let s = samples_with_header(600);
     let mut snap = serde_json::Value::Null;
     for (i, chunk) in s.chunks(5 * 10).enumerate() {
         publish_all(broker.port, chunk, &format!("publisher-status-page-{i}"));

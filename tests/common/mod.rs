@@ -14,6 +14,8 @@
 //! * [`http`]: a tiny blocking HTTP/1.1 client over `std::net::TcpStream`,
 //!   so the harness needs no HTTP crate.
 //! * [`workspace_bin`]: path of the built `lifeledger` binary.
+//! * [`service`]: the live service under test, `lifeledger run` as a child
+//!   process, with its configuration, sample streams and a QoS 1 publisher.
 //!
 //! Use it from a test file with `mod common;`. Every test crate compiles
 //! this module again and uses only part of it, hence the `allow` below.
@@ -22,6 +24,7 @@
 pub mod http;
 mod mosquitto;
 mod process;
+pub mod service;
 mod victoria;
 
 use std::net::TcpListener;
