@@ -11,7 +11,7 @@
 
 mod common;
 
-use common::service::{publish_all, samples, Sample, Service, ServiceConfig};
+use common::service::{publish_all, publish_messages, samples, Sample, Service, ServiceConfig};
 use common::{free_port, http, poll_until, Mosquitto, VictoriaMetrics};
 use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
 use std::path::{Path, PathBuf};
@@ -35,6 +35,17 @@ fn config(dir: &Path, mqtt_port: u16, http_port: u16, db: Option<&str>) -> PathB
         ..ServiceConfig::default()
     }
     .write(dir, mqtt_port, http_port)
+}
+
+/// A broker of its own and the service on the shared test plant in `dir`
+/// (no database), connected to it; with the configuration's path.
+fn start_plant(dir: &Path) -> (Mosquitto, PathBuf, Service) {
+    let broker = Mosquitto::start();
+    let http_port = free_port();
+    let cfg = config(dir, broker.port, http_port, None);
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    (broker, cfg, svc)
 }
 
 fn csv(dir: &Path, s: &[Sample]) -> PathBuf {
@@ -87,13 +98,9 @@ fn compare(live: &serde_json::Value, replay: &serde_json::Value, rel: f64) {
 
 #[test]
 fn live_and_replay_give_identical_ledgers() {
-    let broker = Mosquitto::start();
     let dir = tempfile::tempdir().unwrap();
-    let http_port = free_port();
-    let cfg = config(dir.path(), broker.port, http_port, None);
+    let (broker, cfg, svc) = start_plant(dir.path());
     let s = samples(600);
-    let svc = Service::start(&cfg, http_port);
-    svc.wait_connected();
     publish_all(broker.port, &s, "publisher-identity");
     let live = svc.wait_until_integrated(s.last().unwrap().1);
     let replay = replay_json(&cfg, &csv(dir.path(), &s));
@@ -302,15 +309,9 @@ fn alarms_go_out_on_mqtt_and_can_be_acknowledged() {
 
 #[test]
 fn bad_messages_are_counted_and_the_service_keeps_running() {
-    let broker = Mosquitto::start();
     let dir = tempfile::tempdir().unwrap();
-    let http_port = free_port();
-    let cfg = config(dir.path(), broker.port, http_port, None);
-    let svc = Service::start(&cfg, http_port);
-    svc.wait_connected();
-    let mut o = MqttOptions::new("bad-publisher", "127.0.0.1", broker.port);
-    o.set_keep_alive(Duration::from_secs(30));
-    let (client, mut conn) = Client::new(o, 100);
+    let (broker, _, svc) = start_plant(dir.path());
+    let http_port = svc.http_port;
     let bad: Vec<(&str, Vec<u8>)> = vec![
         ("plant/TE-1", b"not json".to_vec()),
         ("plant/TE-1", br#"{"value": "hot", "timestamp": 1790812800}"#.to_vec()),
@@ -323,18 +324,7 @@ fn bad_messages_are_counted_and_the_service_keeps_running() {
         ("plant/TE-1", br#"{"value": 500, "timestamp": 1790812800}"#.to_vec()),
     ];
     let n = bad.len();
-    for (t, p) in bad {
-        client.publish(t, QoS::AtLeastOnce, false, p).unwrap();
-    }
-    let mut acked = 0;
-    for ev in conn.iter() {
-        if let Ok(Event::Incoming(Packet::PubAck(_))) = ev {
-            acked += 1;
-            if acked == n {
-                break;
-            }
-        }
-    }
+    publish_messages(broker.port, bad, "bad-publisher");
     let snap = poll_until("all nine messages counted", || {
         svc.snapshot().filter(|v| v["service"]["acked"].as_u64().unwrap_or(0) >= n as u64)
     });
@@ -350,7 +340,6 @@ fn bad_messages_are_counted_and_the_service_keeps_running() {
     let m = http::get(http_port, "/metrics").unwrap().text();
     assert!(m.contains("lifeledger_samples_rejected_total{reason=\"out_of_range\"} 1"), "{m}");
     assert_eq!(http::get(http_port, "/readyz").unwrap().status, 200);
-    let _ = client.disconnect();
     assert!(svc.sigterm().success());
 }
 
@@ -406,4 +395,77 @@ fn outbox_over_quota_pauses_intake_and_resumes_without_loss() {
     let n: usize = vm.export("{__name__=\"component_state_unmonitored_h\"}").iter().map(|e| e.samples().len()).sum();
     assert_eq!(n as u64, done["service"]["series_points"].as_u64().unwrap());
     drop(svc);
+}
+
+/// The events of `/api/components/{component}/alarms?limit=...`, newest first.
+fn alarm_history(svc: &Service, component: &str, limit: usize) -> Vec<serde_json::Value> {
+    let h = svc
+        .get_json(&format!("/api/components/{component}/alarms?limit={limit}"))
+        .unwrap_or_else(|| panic!("no alarm history for {component}"));
+    assert_eq!(h["component"], component);
+    assert!(h["caution"].as_str().unwrap().contains("governing code"));
+    h["events"].as_array().unwrap().clone()
+}
+
+/// Whether `e` is an event of the tube's creep life-fraction alarm with
+/// this `transition`.
+fn tube_creep(e: &serde_json::Value, transition: &str) -> bool {
+    e["component"] == "SH-TUBE" && e["index"] == "creep_life_fraction" && e["transition"] == transition
+}
+
+/// `event` without the journal's `id`, as the snapshot shows it.
+fn without_id(event: &serde_json::Value) -> serde_json::Value {
+    let mut e = event.clone();
+    e.as_object_mut().unwrap().remove("id");
+    e
+}
+
+#[test]
+fn alarm_history_survives_a_restart() {
+    let dir = tempfile::tempdir().unwrap();
+    let (broker, cfg, svc) = start_plant(dir.path());
+    let http_port = svc.http_port;
+    let s = samples(400);
+    publish_all(broker.port, &s, "publisher-history");
+    svc.wait_until_integrated(s.last().unwrap().1);
+    let raised = poll_until("the creep alarm among the recent events", || {
+        svc.snapshot().and_then(|v| v["recent_events"].as_array()?.iter().find(|e| tube_creep(e, "activated")).cloned())
+    });
+    let before = alarm_history(&svc, "SH-TUBE", 1000);
+    let journaled = before.iter().find(|e| tube_creep(e, "activated")).expect("the creep alarm in the journal");
+    assert_eq!(without_id(journaled), raised, "the journal holds the event as the snapshot shows it");
+    assert!(svc.sigterm().success(), "clean exit on SIGTERM");
+
+    // Same store, new process: the history is read back from the ledger.
+    let svc = Service::start(&cfg, http_port);
+    let snap = poll_until("snapshot", || svc.snapshot());
+    let recent = snap["recent_events"].as_array().unwrap();
+    assert!(recent.contains(&raised), "the creep alarm is still among the recent events: {recent:?}");
+    let after = alarm_history(&svc, "SH-TUBE", 1000);
+    for e in &before {
+        assert!(after.contains(e), "event {e} of the first run kept, with its id");
+    }
+
+    // New events follow the old ones, newest first, none of them twice.
+    svc.wait_connected();
+    let ack = br#"{"action":"acknowledge","component":"SH-TUBE","index":"creep_life_fraction","by":"test operator"}"#;
+    publish_messages(broker.port, vec![("lifeledger/commands", ack.to_vec())], "command-sender");
+    let history = poll_until("the acknowledge in the alarm history", || {
+        let h = alarm_history(&svc, "SH-TUBE", 1000);
+        h.iter().any(|e| tube_creep(e, "acknowledged")).then_some(h)
+    });
+    let ids: Vec<i64> = history.iter().map(|e| e["id"].as_i64().unwrap()).collect();
+    assert!(ids.windows(2).all(|w| w[0] > w[1]), "newest first: {ids:?}");
+    let distinct: std::collections::BTreeSet<String> = history.iter().map(|e| without_id(e).to_string()).collect();
+    assert_eq!(distinct.len(), history.len(), "no event recorded twice: {history:?}");
+    let at = |t: &str| history.iter().position(|e| tube_creep(e, t)).unwrap();
+    assert!(at("acknowledged") < at("activated"), "the acknowledge is newer than the activation");
+    assert_eq!(alarm_history(&svc, "SH-TUBE", 1), history[..1], "limit=1 is the newest event");
+    poll_until("the acknowledge among the recent events", || {
+        svc.snapshot()
+            .filter(|v| v["recent_events"].as_array().is_some_and(|e| e.iter().any(|e| tube_creep(e, "acknowledged"))))
+    });
+    assert_eq!(http::get(http_port, "/api/components/NO-SUCH/alarms").unwrap().status, 404);
+    assert_eq!(http::get(http_port, "/api/components/SH-TUBE/alarms?limit=many").unwrap().status, 400);
+    assert!(svc.sigterm().success());
 }

@@ -297,6 +297,11 @@ fn component_page_shows_trends_histogram_alarms_and_material_sources() {
         let src = src.as_str().unwrap();
         assert!(dom.contains(&text_node(src)), "material source {src:?} not shown");
     }
+    // The alarm history from the journal: the tube's newest event is listed.
+    let history = f.svc.get_json("/api/components/SH-TUBE/alarms?limit=20").unwrap();
+    let newest = history["events"][0]["message"].as_str().expect("the tube has alarm events");
+    assert!(dom.contains(&text_node(newest)), "newest journal event {newest:?} not listed");
+    assert!(dom.contains("<a id=\"history-link\" href=\"/api/components/SH-TUBE/alarms\">"));
     // The component's alarms; read-only: no command buttons.
     assert!(dom.contains("Creep life fraction"));
     assert!(!dom.contains("data-act=\"acknowledge\""), "command buttons shown without a token");

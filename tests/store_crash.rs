@@ -1,6 +1,7 @@
 //! Crash safety of the ledger store: a writer killed with SIGKILL at an
-//! arbitrary instant leaves component state, tag cursor, alarm, counters
-//! and outbox all from the same commit, and loses no commit it reported.
+//! arbitrary instant leaves component state, tag cursor, alarm, counters,
+//! alarm journal and outbox all from the same commit, and loses no commit
+//! it reported.
 //!
 //! The test re-runs its own binary as the writer (selected by an
 //! environment variable), lets it report some commits on stdout, kills it,
@@ -11,7 +12,7 @@ use std::io::{BufRead, BufReader};
 use std::path::Path;
 use std::process::{Command, Stdio};
 
-use lifeledger::store::{Commit, Store};
+use lifeledger::store::{Commit, JournalEntry, Store};
 
 /// Set to the ledger path in the writer child.
 const WRITER_ENV: &str = "LIFELEDGER_TEST_STORE_CRASH_WRITER";
@@ -49,9 +50,16 @@ fn write_until_killed(path: &Path) -> ! {
         let one = |key: &str| vec![(key.to_string(), state.clone())];
         let (tags, alarms, meta) = (one("t"), one("c/creep"), one("commits"));
         let outbox = vec![k.to_string()];
-        store
-            .commit(&Commit { components: &components, tags: &tags, alarms: &alarms, meta: &meta, outbox: &outbox })
-            .expect("writer commits");
+        let event = JournalEntry { time_ms: k as i64, component: "c".into(), index: "creep".into(), event: state };
+        let batch = Commit {
+            components: &components,
+            tags: &tags,
+            alarms: &alarms,
+            meta: &meta,
+            outbox: &outbox,
+            alarm_events: &[event],
+        };
+        store.commit(&batch).expect("writer commits");
         if k % DRAIN_EVERY == 0 {
             let batch = store.outbox_batch(3, usize::MAX).expect("writer reads the outbox");
             let last = batch.last().expect("the outbox is never empty here").0;
@@ -81,6 +89,7 @@ fn read_consistent(store: &Store) -> Ledger {
     let Some((_, c)) = loaded.components.iter().find(|(name, _)| name == "c") else {
         assert!(loaded.components.is_empty() && loaded.tags.is_empty() && loaded.meta.is_empty());
         assert_eq!(store.outbox_stats().unwrap().lines, 0);
+        assert!(store.alarm_journal_newest(1).unwrap().is_empty());
         return Ledger { n: 0, removed: 0 };
     };
     let n = n_of(c);
@@ -100,6 +109,13 @@ fn read_consistent(store: &Store) -> Ledger {
     let want: Vec<u64> = (removed + 1..=n).collect();
     assert_eq!(lines, want, "the outbox is the commits since the last removal, in order");
     assert_eq!(n, lines.len() as u64 + removed);
+
+    // One journal event per commit, each exactly once (far below the
+    // journal's default limit, so none is pruned).
+    let journal: Vec<u64> =
+        store.alarm_journal_newest(usize::MAX).unwrap().into_iter().map(|(_, e)| n_of(&e.event)).collect();
+    let want: Vec<u64> = (1..=n).rev().collect();
+    assert_eq!(journal, want, "the alarm journal holds every commit's event once, the newest from commit {n}");
 
     let stats = store.outbox_stats().unwrap();
     let bytes: u64 = lines.iter().map(|l| l.to_string().len() as u64).sum();

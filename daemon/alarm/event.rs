@@ -1,5 +1,6 @@
 //! Alarm events: what changed, in plain words, for the MQTT event topic
-//! (JSON) and the time-series database (`alarm_event` points).
+//! (JSON), the time-series database (`alarm_event` points) and the store's
+//! alarm journal (the same JSON, read back at start-up).
 //!
 //! Every event carries [`crate::CAUTION`]: the levels it compares against
 //! are defaults or configuration, and only the plant's governing code and
@@ -9,10 +10,10 @@ use super::index::{AlarmIndex, Severity};
 use super::record::{AlarmRecord, AlarmState};
 use crate::lineproto::Point;
 use crate::report::rfc3339_ms;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// What happened to an alarm.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Transition {
     /// The condition became active (from normal or rtn_unacknowledged).
@@ -51,7 +52,7 @@ impl Transition {
 }
 
 /// One alarm event.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct AlarmEvent {
     pub component: String,
     pub unit: String,
@@ -80,7 +81,14 @@ pub struct AlarmEvent {
     pub shelved_until: Option<String>,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub detail: Option<String>,
+    /// Always this build's [`crate::CAUTION`], also for an event read back
+    /// from the journal.
+    #[serde(skip_deserializing, default = "caution")]
     pub caution: &'static str,
+}
+
+fn caution() -> &'static str {
+    crate::CAUTION
 }
 
 impl AlarmEvent {

@@ -367,8 +367,8 @@ fn commands_drive_the_book() {
     assert!(b.apply(&cmd, 3 * H).unwrap_err().to_string().contains("U2-OTHER/creep_strain"));
 }
 
-#[test]
-fn every_event_carries_the_caution() {
+/// Events of all eight transitions, from one alarm's life.
+fn every_kind_of_event() -> Vec<AlarmEvent> {
     let mut b = AlarmBook::new();
     let mut all = vec![];
     all.extend(lf(&mut b, 0.35, 0));
@@ -384,11 +384,26 @@ fn every_event_carries_the_caution() {
     all.extend(b.evaluate_condition(C, U, AlarmIndex::SensorOutOfRange, true, "TT above 900 degC", 7 * H));
     let kinds: std::collections::BTreeSet<&str> = all.iter().map(|e| e.transition.name()).collect();
     assert_eq!(kinds.len(), 8, "{kinds:?}");
-    for e in &all {
+    all
+}
+
+#[test]
+fn every_event_carries_the_caution() {
+    for e in &every_kind_of_event() {
         let j: serde_json::Value = serde_json::from_str(&e.to_json()).unwrap();
         assert_eq!(j["caution"], crate::CAUTION, "{}", e.to_json());
         assert!(j["message"].as_str().unwrap().starts_with(C));
         assert_eq!(j["time_ms"], e.time_ms);
+    }
+}
+
+#[test]
+fn events_read_back_from_their_json_are_the_same_events() {
+    // The alarm journal stores `to_json` and the ledger reads it back.
+    for e in every_kind_of_event() {
+        let back: AlarmEvent =
+            serde_json::from_str(&e.to_json()).unwrap_or_else(|err| panic!("{err}: {}", e.to_json()));
+        assert_eq!(back, e);
     }
 }
 

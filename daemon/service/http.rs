@@ -1,5 +1,7 @@
-//! The HTTP side: health, readiness, Prometheus metrics and the JSON
-//! snapshot. Read-only; it reads the snapshot the ledger thread publishes.
+//! The HTTP side: health, readiness, Prometheus metrics, the JSON snapshot
+//! and a component's alarm history. Read-only (alarm commands aside, which
+//! go to the ledger thread): it reads the snapshot the ledger thread
+//! publishes, and the alarm journal on a read-only connection of its own.
 
 use super::snapshot::{metrics_text, Snapshot};
 use axum::extract::State;
@@ -21,7 +23,14 @@ pub struct HttpState {
     pub commands: tokio::sync::mpsc::Sender<crate::ingest::Inbound>,
     /// The material library in use.
     pub library: Arc<crate::settings::library::MaterialLibrary>,
+    /// The ledger's alarm journal, for `/api/components/{name}/alarms`.
+    pub journal: crate::store::JournalReader,
 }
+
+/// Events `/api/components/{name}/alarms` returns without `limit`.
+const DEFAULT_HISTORY_LIMIT: usize = 100;
+/// Most events one `/api/components/{name}/alarms` answer carries.
+const MAX_HISTORY_LIMIT: usize = 10_000;
 
 /// The router.
 pub fn router(state: HttpState) -> Router {
@@ -31,6 +40,7 @@ pub fn router(state: HttpState) -> Router {
         .route("/metrics", get(metrics))
         .route("/api/components", get(components))
         .route("/api/components/:name/trend", get(trend))
+        .route("/api/components/:name/alarms", get(alarm_history))
         .route("/api/materials/:grade", get(material))
         .route("/api/alarms/command", axum::routing::post(alarm_command))
         .merge(super::page::routes())
@@ -67,6 +77,56 @@ async fn trend(State(s): State<HttpState>, axum::extract::Path(name): axum::extr
         Some(points) => Json(serde_json::json!({"component": name, "points": points})).into_response(),
         None => (StatusCode::NOT_FOUND, format!("no trend for component {name:?}\n")).into_response(),
     }
+}
+
+/// Query of `/api/components/{name}/alarms`.
+#[derive(serde::Deserialize)]
+struct HistoryQuery {
+    /// How many events, newest first; [`DEFAULT_HISTORY_LIMIT`] if absent,
+    /// at most [`MAX_HISTORY_LIMIT`].
+    limit: Option<usize>,
+}
+
+/// A component's alarm history from the durable journal, newest first:
+/// `{"component", "events": [event JSON with its journal "id"], "caution"}`.
+/// 404 for a name that is neither a component (configured or retired) nor
+/// in the journal.
+async fn alarm_history(
+    State(s): State<HttpState>,
+    axum::extract::Path(name): axum::extract::Path<String>,
+    axum::extract::Query(q): axum::extract::Query<HistoryQuery>,
+) -> Response {
+    let limit = q.limit.unwrap_or(DEFAULT_HISTORY_LIMIT).min(MAX_HISTORY_LIMIT);
+    let (reader, component) = (s.journal.clone(), name.clone());
+    let rows = match tokio::task::spawn_blocking(move || reader.component(&component, limit)).await {
+        Ok(Ok(rows)) => rows,
+        Ok(Err(e)) => return (StatusCode::INTERNAL_SERVER_ERROR, format!("{e}\n")).into_response(),
+        Err(e) => {
+            return (StatusCode::INTERNAL_SERVER_ERROR, format!("alarm journal read failed: {e}\n")).into_response()
+        }
+    };
+    if rows.is_empty() {
+        let snap = s.snapshot.borrow().clone();
+        let known = snap.components.iter().any(|c| c.component == name) || snap.retired_components.contains(&name);
+        if !known {
+            return (StatusCode::NOT_FOUND, format!("no component {name:?} and no alarm events for it\n"))
+                .into_response();
+        }
+    }
+    let events: Vec<serde_json::Value> = rows
+        .into_iter()
+        .filter_map(|(id, row)| match serde_json::from_str::<serde_json::Value>(&row.event) {
+            Ok(serde_json::Value::Object(mut event)) => {
+                event.insert("id".into(), id.into());
+                Some(serde_json::Value::Object(event))
+            }
+            _ => {
+                tracing::warn!("alarm journal entry {id} of {name} is not a JSON object; left out");
+                None
+            }
+        })
+        .collect();
+    Json(serde_json::json!({"component": name, "events": events, "caution": crate::CAUTION})).into_response()
 }
 
 async fn material(State(s): State<HttpState>, axum::extract::Path(grade): axum::extract::Path<String>) -> Response {

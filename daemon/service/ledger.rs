@@ -9,6 +9,10 @@
 //! alarm messages. A crash at any instant therefore loses nothing that was
 //! acknowledged and, because cursors commit with the ledgers, counts nothing
 //! twice when the broker redelivers.
+//!
+//! The alarm events of a batch go into the store's alarm journal in the
+//! same transaction; at start-up the newest of them fill the snapshot's
+//! `recent_events`, so the alarm history shown survives a restart.
 
 use super::settings::ServiceSettings;
 use super::snapshot::{ServiceCounters, Snapshot};
@@ -19,7 +23,7 @@ use crate::ingest::{now_ms, Inbound};
 use crate::replay::{tag_index, TagIndex};
 use crate::report::{component_point, rfc3339_ms, threshold_points, ComponentReport};
 use crate::settings::LoadedConfig;
-use crate::store::{Commit, Store};
+use crate::store::{Commit, JournalEntry, Store};
 use rumqttc::{AsyncClient, Publish, QoS};
 use std::collections::{BTreeSet, HashMap};
 use std::sync::Arc;
@@ -100,9 +104,32 @@ pub struct Ledger {
     last_sensor_check: Instant,
 }
 
+/// Alarm events kept in memory for the snapshot (`recent_events`).
+const RECENT_EVENTS: usize = 200;
+
 /// Points kept per component for trends: bounded in total.
 fn trend_cap(ncomp: usize) -> usize {
     (2_000_000 / ncomp.max(1)).clamp(50, 5000)
+}
+
+/// The newest [`RECENT_EVENTS`] events of the alarm journal, oldest first
+/// (as `recent_events` keeps them). An unreadable entry is logged and
+/// left out: it must not keep the service from starting.
+fn recent_events(store: &Store) -> anyhow::Result<std::collections::VecDeque<AlarmEvent>> {
+    let rows = store.alarm_journal_newest(RECENT_EVENTS)?;
+    let mut events = std::collections::VecDeque::with_capacity(rows.len());
+    for (id, row) in rows.into_iter().rev() {
+        match serde_json::from_str::<AlarmEvent>(&row.event) {
+            Ok(e) => events.push_back(e),
+            Err(e) => tracing::error!(
+                "ledger {}: alarm journal entry {id} ({} {}) unreadable ({e}); not shown",
+                store.path().display(),
+                row.component,
+                row.index
+            ),
+        }
+    }
+    Ok(events)
 }
 
 fn quota(s: &ServiceSettings) -> u64 {
@@ -118,8 +145,10 @@ impl Ledger {
         snapshot_tx: watch::Sender<Arc<Snapshot>>,
         trends_tx: watch::Sender<Arc<super::snapshot::Trends>>,
     ) -> anyhow::Result<Ledger> {
-        let store = Store::open(&service.store.path)?;
+        let mut store = Store::open(&service.store.path)?;
+        store.set_alarm_journal_max_events(service.store.alarm_journal_max_events);
         let loaded = store.load()?;
+        let recent_events = recent_events(&store)?;
         let mut engine = Engine::new(cfg.plan.clone());
         let mut tags = vec![];
         for (name, json) in &loaded.tags {
@@ -201,7 +230,7 @@ impl Ledger {
             extra_outbox: vec![],
             trends: Default::default(),
             trends_tx,
-            recent_events: Default::default(),
+            recent_events,
             force_commit: false,
             last_sensor_check: Instant::now() - Duration::from_secs(60),
             service,
@@ -573,7 +602,24 @@ impl Ledger {
             ("engine_counters".to_string(), serde_json::to_string(self.engine.counters()).unwrap_or_default()),
             ("decode_rejected".to_string(), serde_json::to_string(&self.counters.decode_rejected).unwrap_or_default()),
         ];
-        let commit = Commit { components: &components, tags: &tags, alarms: &alarms, meta: &meta, outbox: &outbox };
+        let journal: Vec<JournalEntry> = self
+            .events
+            .iter()
+            .map(|e| JournalEntry {
+                time_ms: e.time_ms,
+                component: e.component.clone(),
+                index: e.index.name().to_string(),
+                event: e.to_json(),
+            })
+            .collect();
+        let commit = Commit {
+            components: &components,
+            tags: &tags,
+            alarms: &alarms,
+            meta: &meta,
+            outbox: &outbox,
+            alarm_events: &journal,
+        };
         match self.store.commit(&commit) {
             Ok(stats) => {
                 self.outbox = stats.outbox;
@@ -598,7 +644,7 @@ impl Ledger {
                 self.publish_alarms(&events);
                 for e in events {
                     self.recent_events.push_back(e);
-                    if self.recent_events.len() > 200 {
+                    if self.recent_events.len() > RECENT_EVENTS {
                         self.recent_events.pop_front();
                     }
                 }
@@ -693,6 +739,7 @@ impl Ledger {
         self.index = tag_index(&self.engine);
         self.templates = service.mqtt.templates().unwrap_or_default();
         self.book.set_config(service.alarms.clone());
+        self.store.set_alarm_journal_max_events(service.store.alarm_journal_max_events);
         self.next_series_ms = vec![i64::MIN; cfg.plan.components.len()];
         self.sensor = vec![(false, false); cfg.plan.tags.len()];
         self.sensor_latched = vec![(false, false); cfg.plan.tags.len()];

@@ -7,7 +7,8 @@
 //! * ledger thread ([`ledger`]): owns engine, alarms and the store's write
 //!   connection; group-commits, then acknowledges;
 //! * outbox sender ([`outbox`]): drains the outbox to the database;
-//! * HTTP ([`http`]): health, readiness, metrics, JSON snapshot.
+//! * HTTP ([`http`]): health, readiness, metrics, JSON snapshot, alarm
+//!   history (from the store's alarm journal).
 //!
 //! Shutdown is a broadcast signal every task listens for. SIGTERM or SIGINT:
 //! intake stops, the ledger commits and acknowledges what it has, the
@@ -73,8 +74,14 @@ pub async fn run_until(config_path: &Path, stop: impl std::future::Future<Output
         ),
         None => None,
     };
-    let http_state =
-        http::HttpState { snapshot: snap_rx.clone(), trends: trend_rx, token, commands: in_tx.clone(), library };
+    let http_state = http::HttpState {
+        snapshot: snap_rx.clone(),
+        trends: trend_rx,
+        token,
+        commands: in_tx.clone(),
+        library,
+        journal: crate::store::JournalReader::new(&svc.store.path),
+    };
     let mut http_shutdown = shutdown_tx.subscribe();
     let http_task = tokio::spawn(async move {
         let _ = axum::serve(listener, http::router(http_state))

@@ -25,6 +25,10 @@ pub struct StoreSettings {
     /// Wall-clock spacing of `service_health` points, seconds.
     #[serde(default = "default_health")]
     pub health_interval_s: u64,
+    /// Alarm events the ledger's alarm journal keeps (the newest; older
+    /// ones are deleted in the commit that adds new ones). At least 1.
+    #[serde(default = "default_journal")]
+    pub alarm_journal_max_events: u64,
 }
 
 fn default_path() -> PathBuf {
@@ -39,6 +43,9 @@ fn default_series() -> i64 {
 fn default_health() -> u64 {
     10
 }
+fn default_journal() -> u64 {
+    crate::store::journal::DEFAULT_MAX_EVENTS
+}
 
 impl Default for StoreSettings {
     fn default() -> Self {
@@ -47,6 +54,7 @@ impl Default for StoreSettings {
             commit_max_samples: default_batch(),
             series_interval_s: default_series(),
             health_interval_s: default_health(),
+            alarm_journal_max_events: default_journal(),
         }
     }
 }
@@ -116,6 +124,13 @@ impl ServiceSettings {
             errors.push(e);
             None
         });
+        if store.as_ref().is_some_and(|s| s.alarm_journal_max_events == 0) {
+            errors.push(
+                "[store]: alarm_journal_max_events = 0 would keep no alarm history; set at least 1 \
+                 (200 or more fills the status page's event list after a restart)"
+                    .into(),
+            );
+        }
         let database = section::<DatabaseSettings>("database", &s.database).unwrap_or_else(|e| {
             errors.push(e);
             None
@@ -143,5 +158,31 @@ impl ServiceSettings {
             http: http.unwrap_or_default(),
             alarms: alarms.unwrap_or_default(),
         })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn store_section(text: &str) -> Result<ServiceSettings, Vec<String>> {
+        let s: Settings = toml::from_str(&format!("[store]\n{text}")).unwrap();
+        ServiceSettings::from_settings(&s)
+    }
+
+    #[test]
+    fn the_alarm_journal_keeps_ten_thousand_events_unless_told() {
+        assert_eq!(store_section("").unwrap().store.alarm_journal_max_events, 10_000);
+        assert_eq!(StoreSettings::default().alarm_journal_max_events, 10_000);
+        assert_eq!(store_section("alarm_journal_max_events = 500").unwrap().store.alarm_journal_max_events, 500);
+    }
+
+    #[test]
+    fn an_alarm_journal_of_nothing_is_refused_with_the_fix() {
+        let errors = store_section("alarm_journal_max_events = 0").unwrap_err();
+        assert_eq!(errors.len(), 1, "{errors:?}");
+        assert!(errors[0].contains("[store]") && errors[0].contains("set at least 1"), "{}", errors[0]);
+        let typo = store_section("alarm_journal_max = 5").unwrap_err();
+        assert!(typo[0].contains("unknown field"), "{typo:?}");
     }
 }

@@ -65,7 +65,8 @@ pub struct Snapshot {
     pub service: ServiceCounters,
     pub components: Vec<ComponentReport>,
     pub alarms: Vec<ComponentAlarmSummary>,
-    /// The most recent alarm events (newest last, at most 200).
+    /// The most recent alarm events (newest last, at most 200); at start-up
+    /// read back from the store's alarm journal, so they span restarts.
     pub recent_events: Vec<crate::alarm::AlarmEvent>,
     /// Components kept in the ledger but no longer configured.
     pub retired_components: Vec<String>,

@@ -10,7 +10,8 @@
 //! # Why it is built this way
 //!
 //! * **One transaction per batch.** [`Store::commit`] writes component
-//!   states, tag cursors, alarms, counters and outbox lines together, so a
+//!   states, tag cursors, alarms, alarm events, counters and outbox lines
+//!   together, so a
 //!   crash at any instant leaves them all from the same batch: the ledger
 //!   never holds damage whose points are missing from the outbox, nor a
 //!   cursor ahead of the state it guards. MQTT messages are acked only after
@@ -28,9 +29,11 @@
 //!   fix, and is not modified.
 //!
 //! The parts: [`schema`] (identity and migrations), [`outbox`] (draining the
-//! outbox), [`error`] (what can go wrong, for people).
+//! outbox), [`journal`] (the bounded history of alarm events), [`error`]
+//! (what can go wrong, for people).
 
 pub mod error;
+pub mod journal;
 pub mod outbox;
 pub mod schema;
 
@@ -40,12 +43,13 @@ use std::time::Duration;
 use rusqlite::{Connection, OpenFlags, TransactionBehavior};
 
 pub use error::StoreError;
+pub use journal::{JournalEntry, JournalReader};
 pub use outbox::OutboxStats;
 pub use schema::{APPLICATION_ID, SCHEMA_VERSION};
 
 /// How long a write waits for a lock held by another connection (an
 /// operator's `sqlite3`, a backup) before it fails with "busy".
-const BUSY_TIMEOUT: Duration = Duration::from_secs(5);
+pub(crate) const BUSY_TIMEOUT: Duration = Duration::from_secs(5);
 
 /// After a checkpoint, SQLite truncates the write-ahead log back to this
 /// size, so one burst of writes does not leave a large `-wal` file behind.
@@ -56,6 +60,8 @@ const WAL_SIZE_LIMIT_BYTES: i64 = 64 * 1024 * 1024;
 pub struct Store {
     conn: Connection,
     path: PathBuf,
+    /// How many alarm events the journal keeps (see [`journal`]).
+    journal_max_events: u64,
 }
 
 /// One batch of changes, written by [`Store::commit`] in one transaction.
@@ -76,9 +82,13 @@ pub struct Commit<'a> {
     /// Line-protocol lines to append to the outbox, one point each, without
     /// a trailing newline.
     pub outbox: &'a [String],
+    /// Alarm events raised by this batch, appended to the journal in slice
+    /// order; the journal is then pruned to its limit.
+    pub alarm_events: &'a [JournalEntry],
 }
 
-/// Everything but the outbox, as [`Store::load`] reads it at start-up.
+/// Everything but the outbox and the alarm journal, as [`Store::load`]
+/// reads it at start-up.
 /// Each list is sorted by key.
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
 pub struct Loaded {
@@ -125,7 +135,7 @@ impl Store {
             .map_err(|e| StoreError::sqlite(path, "opening the ledger for writing", e))?;
         configure(&conn, path)?;
         schema::migrate(&mut conn, path, schema::MIGRATIONS)?;
-        Ok(Store { conn, path: path.into() })
+        Ok(Store { conn, path: path.into(), journal_max_events: journal::DEFAULT_MAX_EVENTS })
     }
 
     /// The ledger file this store writes.
@@ -159,6 +169,7 @@ impl Store {
     /// disk (`synchronous = FULL`). On error nothing of the batch is written.
     pub fn commit(&mut self, c: &Commit<'_>) -> Result<CommitStats, StoreError> {
         let path = &self.path;
+        let keep = self.journal_max_events;
         let fail = |e| StoreError::sqlite(path, "committing a batch", e);
         // IMMEDIATE takes the write lock up front, so a busy database fails
         // (after the busy timeout) before any work rather than at COMMIT.
@@ -182,6 +193,7 @@ impl Store {
             c.meta,
         )
         .map_err(fail)?;
+        journal::append(&tx, c.alarm_events, keep).map_err(fail)?;
         outbox::append(&tx, c.outbox).map_err(fail)?;
         let stats = outbox::totals(&tx).map_err(fail)?;
         tx.commit().map_err(fail)?;
@@ -223,7 +235,8 @@ mod tests {
         items.iter().map(|(k, v)| (k.to_string(), v.to_string())).collect()
     }
 
-    fn fresh() -> (tempfile::TempDir, Store) {
+    /// A new ledger in a temporary directory (kept while the handle lives).
+    pub(super) fn fresh() -> (tempfile::TempDir, Store) {
         let dir = tempfile::tempdir().unwrap();
         let store = Store::open(&dir.path().join("ledger.db")).unwrap();
         (dir, store)
@@ -264,9 +277,22 @@ mod tests {
         let alarms = pairs(&[("sh-1/creep", r#"{"state":"normal"}"#)]);
         let meta = pairs(&[("counters", r#"{"duplicates":3}"#)]);
         let outbox = vec!["a,x=1 v=1 1".to_string(), "b v=2 2".to_string()];
+        let events = vec![JournalEntry {
+            time_ms: 1_700_000_000_000,
+            component: "sh-1".into(),
+            index: "creep".into(),
+            event: r#"{"state":"unacknowledged"}"#.into(),
+        }];
         {
             let mut store = Store::open(&path).unwrap();
-            let batch = Commit { components: &components, tags: &tags, alarms: &alarms, meta: &meta, outbox: &outbox };
+            let batch = Commit {
+                components: &components,
+                tags: &tags,
+                alarms: &alarms,
+                meta: &meta,
+                outbox: &outbox,
+                alarm_events: &events,
+            };
             store.commit(&batch).unwrap();
         }
         let store = Store::open(&path).unwrap();
@@ -276,16 +302,26 @@ mod tests {
         assert_eq!(loaded, Loaded { components: sorted, tags, alarms, meta });
         let lines: Vec<String> = store.outbox_batch(10, usize::MAX).unwrap().into_iter().map(|(_, l)| l).collect();
         assert_eq!(lines, outbox);
+        let journal: Vec<JournalEntry> = store.alarm_journal_newest(10).unwrap().into_iter().map(|(_, e)| e).collect();
+        assert_eq!(journal, events);
     }
 
     #[test]
     fn a_later_commit_replaces_the_value_of_a_key_and_keeps_the_others() {
         let (_dir, mut store) = fresh();
         let first = pairs(&[("a", "1"), ("b", "2")]);
-        store.commit(&Commit { components: &first, tags: &first, alarms: &first, meta: &first, outbox: &[] }).unwrap();
+        store
+            .commit(&Commit { components: &first, tags: &first, alarms: &first, meta: &first, ..Default::default() })
+            .unwrap();
         let second = pairs(&[("b", "20"), ("c", "30")]);
         store
-            .commit(&Commit { components: &second, tags: &second, alarms: &second, meta: &second, outbox: &[] })
+            .commit(&Commit {
+                components: &second,
+                tags: &second,
+                alarms: &second,
+                meta: &second,
+                ..Default::default()
+            })
             .unwrap();
 
         let want = pairs(&[("a", "1"), ("b", "20"), ("c", "30")]);

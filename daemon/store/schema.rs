@@ -26,6 +26,7 @@ pub const APPLICATION_ID: i32 = 0x4C46_4C47;
 
 /// One step of the schema: takes the file from version `i` to `i + 1`,
 /// where `i` is its index in the list.
+#[derive(Clone, Copy)]
 pub struct Migration {
     /// What the step does, for people reading the code and the logs.
     pub summary: &'static str,
@@ -34,10 +35,13 @@ pub struct Migration {
 }
 
 /// Every schema step, oldest first. Append only.
-pub const MIGRATIONS: &[Migration] = &[Migration {
-    summary: "component, tag, alarm and meta tables; the outbox and its running totals",
-    apply: v1_initial,
-}];
+pub const MIGRATIONS: &[Migration] = &[
+    Migration {
+        summary: "component, tag, alarm and meta tables; the outbox and its running totals",
+        apply: v1_initial,
+    },
+    Migration { summary: "the alarm journal: every alarm event, newest kept", apply: v2_alarm_journal },
+];
 
 /// The newest schema version this build knows: the number of migrations.
 pub const SCHEMA_VERSION: u32 = MIGRATIONS.len() as u32;
@@ -63,6 +67,28 @@ fn v1_initial(tx: &Transaction<'_>) -> rusqlite::Result<()> {
              bytes INTEGER NOT NULL
          );
          INSERT INTO outbox_total (only, lines, bytes) VALUES (1, 0, 0);",
+    )
+}
+
+/// Version 2: the alarm journal, the durable history of alarm events.
+///
+/// One row per event, in commit order; `AUTOINCREMENT` keeps ids rising
+/// even after pruning has emptied the table, so "newest" is "highest id".
+/// The event itself is JSON text (the alarm event message as published);
+/// time, component and index are columns so that people with `sqlite3` and
+/// the per-component history can select without parsing. `alarm_index` and
+/// not `index`, which is an SQL keyword. The index on `(component, id)`
+/// serves "the newest events of one component" without a scan.
+fn v2_alarm_journal(tx: &Transaction<'_>) -> rusqlite::Result<()> {
+    tx.execute_batch(
+        "CREATE TABLE alarm_journal (
+             id INTEGER PRIMARY KEY AUTOINCREMENT,
+             time_ms INTEGER NOT NULL,
+             component TEXT NOT NULL,
+             alarm_index TEXT NOT NULL,
+             event TEXT NOT NULL
+         );
+         CREATE INDEX alarm_journal_by_component ON alarm_journal (component, id);",
     )
 }
 
@@ -235,25 +261,28 @@ mod tests {
         assert_eq!(pragma(&conn, "user_version"), i64::from(SCHEMA_VERSION));
     }
 
-    /// How a future version 2 slots in: a function appended to the list.
-    fn v2_example(tx: &Transaction<'_>) -> rusqlite::Result<()> {
+    /// How a later version slots in: a function appended to the list.
+    fn example_step(tx: &Transaction<'_>) -> rusqlite::Result<()> {
         tx.execute_batch("ALTER TABLE component ADD COLUMN updated_at TEXT")
     }
 
+    /// The released migrations followed by `step`.
+    fn with_step(summary: &'static str, apply: fn(&Transaction<'_>) -> rusqlite::Result<()>) -> Vec<Migration> {
+        let mut all = MIGRATIONS.to_vec();
+        all.push(Migration { summary, apply });
+        all
+    }
+
     #[test]
-    fn a_later_migration_runs_on_a_version_1_ledger_and_keeps_its_data() {
+    fn a_later_migration_runs_on_a_current_ledger_and_keeps_its_data() {
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("ledger.db");
         let mut conn = Connection::open(&path).unwrap();
-        migrate(&mut conn, &path, &MIGRATIONS[..1]).unwrap();
+        migrate(&mut conn, &path, MIGRATIONS).unwrap();
         conn.execute("INSERT INTO component (name, state) VALUES ('sh-1', '{}')", []).unwrap();
 
-        let both = [
-            Migration { summary: MIGRATIONS[0].summary, apply: MIGRATIONS[0].apply },
-            Migration { summary: "example column", apply: v2_example },
-        ];
-        migrate(&mut conn, &path, &both).unwrap();
-        assert_eq!(pragma(&conn, "user_version"), 2);
+        migrate(&mut conn, &path, &with_step("example column", example_step)).unwrap();
+        assert_eq!(pragma(&conn, "user_version"), i64::from(SCHEMA_VERSION) + 1);
         let (name, stamp): (String, Option<String>) =
             conn.query_row("SELECT name, updated_at FROM component", [], |r| Ok((r.get(0)?, r.get(1)?))).unwrap();
         assert_eq!((name.as_str(), stamp), ("sh-1", None));
@@ -268,13 +297,9 @@ mod tests {
         let path = dir.path().join("ledger.db");
         let mut conn = Connection::open(&path).unwrap();
         migrate(&mut conn, &path, MIGRATIONS).unwrap();
-        let with_broken = [
-            Migration { summary: MIGRATIONS[0].summary, apply: MIGRATIONS[0].apply },
-            Migration { summary: "broken", apply: broken },
-        ];
-        let err = migrate(&mut conn, &path, &with_broken).unwrap_err();
+        let err = migrate(&mut conn, &path, &with_step("broken", broken)).unwrap_err();
         assert!(err.to_string().contains("upgrading the ledger schema"), "{err}");
-        assert_eq!(pragma(&conn, "user_version"), 1);
+        assert_eq!(pragma(&conn, "user_version"), i64::from(SCHEMA_VERSION));
         let half: i64 =
             conn.query_row("SELECT count(*) FROM sqlite_schema WHERE name = 'half_done'", [], |r| r.get(0)).unwrap();
         assert_eq!(half, 0, "the failed step must roll back whole");

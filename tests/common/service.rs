@@ -10,7 +10,8 @@
 //! * [`samples`] and [`samples_with_header`]: minute-by-minute streams from
 //!   [`T0`].
 //! * [`publish_all`]: publishes a stream and returns once the broker has
-//!   acknowledged every message.
+//!   acknowledged every message; [`publish_messages`] the same for any
+//!   topics and payloads.
 //! * [`Service`]: started from a configuration, ready once `/healthz`
 //!   answers; killed when the handle drops.
 
@@ -176,20 +177,28 @@ fn payload(ts: i64, v: f64) -> Vec<u8> {
 /// as MQTT client `id`, and returns once the broker acknowledged every
 /// message.
 pub fn publish_all(port: u16, s: &[Sample], id: &str) {
+    publish_messages(port, s.iter().map(|(tag, ts, v)| (format!("plant/{tag}"), payload(*ts, *v))).collect(), id);
+}
+
+/// Publishes each (topic, payload) in order on 127.0.0.1:`port` with QoS 1
+/// as MQTT client `id`, and returns once the broker acknowledged every
+/// message.
+pub fn publish_messages(port: u16, messages: Vec<(impl Into<String>, Vec<u8>)>, id: &str) {
+    let messages: Vec<(String, Vec<u8>)> = messages.into_iter().map(|(t, p)| (t.into(), p)).collect();
+    if messages.is_empty() {
+        return;
+    }
     let mut o = MqttOptions::new(id, "127.0.0.1", port);
     o.set_keep_alive(Duration::from_secs(30));
     o.set_inflight(100);
     let (client, mut conn) = Client::new(o, 1000);
-    let n = s.len();
-    let pubber = {
-        let s = s.to_vec();
-        std::thread::spawn(move || {
-            for (tag, ts, v) in s {
-                client.publish(format!("plant/{tag}"), QoS::AtLeastOnce, false, payload(ts, v)).unwrap();
-            }
-            client
-        })
-    };
+    let n = messages.len();
+    let pubber = std::thread::spawn(move || {
+        for (topic, p) in messages {
+            client.publish(topic, QoS::AtLeastOnce, false, p).unwrap();
+        }
+        client
+    });
     let mut acked = 0;
     for ev in conn.iter() {
         match ev {

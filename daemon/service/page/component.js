@@ -7,6 +7,10 @@
   const name = decodeURIComponent(location.pathname.replace(/^\/component\//, '').replace(/\/+$/, ''));
   const WINDOW_KEY = 'lifeledger.trend-window';
   let snap = null, comp = null, alarms = null, trend = null, trendErr = null;
+  // This component's alarm history from the durable journal; null until
+  // (or unless) it loads, then the snapshot's recent events stand in.
+  let history = null;
+  const HISTORY_LIMIT = 20;
   let material = null, materialGrade = null, materialErr = null;
   let windowMs = 0;
   let yscale = 'data';
@@ -22,6 +26,7 @@
   document.title = name + ' · ' + document.title.replace(/^Component · /, '');
   $('component-name').textContent = name;
   $('trend-link').href = '/api/components/' + encodeURIComponent(name) + '/trend';
+  $('history-link').href = '/api/components/' + encodeURIComponent(name) + '/alarms';
 
   const has = (c, key) => Object.keys(c.hours_to_threshold || {}).some((k) => k.startsWith(key + '.'));
 
@@ -223,8 +228,17 @@
   }
 
   function renderEvents() {
-    const evs = (snap.recent_events || []).filter((e) => e.component === name).slice(-20).reverse();
-    $('events').innerHTML = evs.length ? evs.map((e) => LL.eventItem(e, false)).join('') : '<li class="muted">No recent alarm events for this component.</li>';
+    const evs = history ? history.events
+      : (snap.recent_events || []).filter((e) => e.component === name).slice(-HISTORY_LIMIT).reverse();
+    $('events').innerHTML = evs.length ? evs.map((e) => LL.eventItem(e, false)).join('') : '<li class="muted">No alarm events recorded for this component.</li>';
+  }
+
+  async function loadHistory() {
+    try {
+      history = await LL.api('/api/components/' + encodeURIComponent(name) + '/alarms?limit=' + HISTORY_LIMIT);
+    } catch (e) {
+      history = null;
+    }
   }
 
   function sourced(label, s, fmt) {
@@ -362,6 +376,7 @@
       comp = (snap.components || []).find((c) => c.component === name) || null;
       alarms = (snap.alarms || []).find((a) => a.component === name) || null;
       if (comp && (tick % 3 === 0 || !trend)) await loadTrend();
+      if (comp) await loadHistory();
       tick++;
       renderAll();
       loadMaterial();

@@ -1,7 +1,7 @@
 //! The status page: a plant overview at `/` and one page per component at
 //! `/component/{name}`, both static HTML filled in by a small script that
 //! polls the JSON API (`/api/components`, `/api/components/{name}/trend`,
-//! `/api/materials/{grade}`). Charts are inline SVG drawn by that script.
+//! `/api/components/{name}/alarms`, `/api/materials/{grade}`). Charts are inline SVG drawn by that script.
 //!
 //! Every asset is compiled into the binary (`include_str!`): the page works
 //! on an isolated plant network with no internet access. The caution is put
