@@ -213,7 +213,7 @@ impl Line {
 }
 
 /// One input's line over [a, b] and whether it is in a gap.
-#[inline]
+#[inline(always)]
 fn line_of(
     input: Option<Input>,
     tags: &[TagState],
@@ -548,7 +548,7 @@ fn account_pair(
 }
 
 /// Damage, strain and wear rates at one instant.
-#[inline]
+#[inline(always)]
 fn rates(
     plan: &ComponentPlan,
     stress_per_mpa: Option<(f64, bool)>,

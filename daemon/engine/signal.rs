@@ -84,7 +84,7 @@ impl TagState {
     /// every instant of the piece, found with one look-up and at most one
     /// division. Ends that fall on a sample instant carry the sample value
     /// exactly, so one piece's end is bit-identical to the next one's start.
-    #[inline]
+    #[inline(always)]
     pub fn segment(&self, plan: &TagPlan, a: f64, b: f64) -> Segment {
         let Some((t1, v1)) = self.last else { return Segment::Missing };
         let hold = plan.max_hold_ms as f64;
