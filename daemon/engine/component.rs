@@ -10,13 +10,13 @@
 //! and are integrated at the gap policy's values.
 
 use super::plan::{ComponentPlan, Input, StressPlan, TagPlan};
-use super::signal::{Breaks, Reading, TagState};
+use super::signal::{Breaks, Segment, TagState};
 use crate::physics::histogram::TimeAtCondition;
 use crate::physics::larson_miller::RangeFlags;
 use crate::physics::norton::creep_rate_per_h_ln;
 use crate::physics::stress::{hoop_stress_mpa, remaining_wall_mm};
 use crate::physics::wear::{fretting_regime, fretting_sliding_speed_mm_s, FrettingRegime};
-use crate::settings::schema::{GapPolicy, Interpolation, WearModel};
+use crate::settings::schema::{GapPolicy, WearModel};
 use serde::{Deserialize, Serialize};
 
 const MS_PER_H: f64 = 3_600_000.0;
@@ -136,6 +136,36 @@ pub struct Scratch {
     memo: Option<(Point, Rates)>,
     /// (piece length h, weight of the recent-rate update) of the last piece.
     alpha: Option<(f64, f64)>,
+    /// Hoop stress per MPa of gauge pressure (stress factor included) and
+    /// whether the wall is at the formula floor, when the wall does not
+    /// thin in service: every hoop formula is linear in pressure.
+    stress_per_mpa: Option<(f64, bool)>,
+    /// Histogram classes of the last node (a search hint only).
+    classes: (usize, usize),
+}
+
+impl Scratch {
+    /// Scratch for one component, with its constant geometry prepared.
+    pub fn new(plan: &ComponentPlan) -> Scratch {
+        let stress_per_mpa = match plan.stress {
+            StressPlan::Hoop {
+                basis,
+                outside_diameter_mm,
+                wall_mm,
+                measured_loss_mm,
+                thinning_rate_mm_per_year,
+                ..
+            } if thinning_rate_mm_per_year <= 0.0 => {
+                let wall = remaining_wall_mm(wall_mm, measured_loss_mm, 0.0, 0.0);
+                Some((
+                    hoop_stress_mpa(basis, 1.0, outside_diameter_mm, wall) * plan.stress_factor,
+                    wall <= crate::physics::stress::MIN_WALL_MM,
+                ))
+            }
+            _ => None,
+        };
+        Scratch { stress_per_mpa, ..Scratch::default() }
+    }
 }
 
 /// Input values at one instant, internal units.
@@ -154,7 +184,6 @@ struct Point {
 struct Rates {
     stress_mpa: f64,
     life_per_h: f64,
-    rupture_h: f64,
     strain_per_h: f64,
     wear_mm_per_h: f64,
     creep: bool,
@@ -162,14 +191,21 @@ struct Rates {
     wall_exhausted: bool,
 }
 
-/// A linear (or constant) input over one piece: value(τ) = v0 + k·(τ − a).
+/// A linear (or constant) input over one piece: value(τ) = v0 + k·(τ − a)
+/// inside, `v1` exactly at the end.
 #[derive(Debug, Clone, Copy, Default)]
 struct Line {
     v0: f64,
+    v1: f64,
     k: f64,
 }
 
 impl Line {
+    #[inline]
+    fn constant(v: f64) -> Line {
+        Line { v0: v, v1: v, k: 0.0 }
+    }
+
     #[inline]
     fn at(&self, dt: f64) -> f64 {
         self.v0 + self.k * dt
@@ -177,7 +213,7 @@ impl Line {
 }
 
 /// One input's line over [a, b] and whether it is in a gap.
-#[inline]
+#[inline(always)]
 fn line_of(
     input: Option<Input>,
     tags: &[TagState],
@@ -188,32 +224,12 @@ fn line_of(
 ) -> (Line, bool) {
     match input {
         None => (Line::default(), false),
-        Some(Input::Constant(v)) => (Line { v0: v, k: 0.0 }, false),
-        Some(Input::Tag(id)) => {
-            let (st, tp) = (&tags[id as usize], &tag_plans[id as usize]);
-            let mid = 0.5 * (a + b);
-            match st.read(tp, mid) {
-                Reading::Value(v) if tp.interpolation == Interpolation::Step => (Line { v0: v, k: 0.0 }, false),
-                Reading::Value(_) => {
-                    let va = value_at(st.read(tp, a));
-                    let vb = value_at(st.read(tp, b));
-                    let k = if b > a { (vb - va) / (b - a) } else { 0.0 };
-                    (Line { v0: va, k }, false)
-                }
-                Reading::Gap(last) => (Line { v0: gap_value(Some(last)), k: 0.0 }, true),
-                Reading::Missing => (Line { v0: gap_value(None), k: 0.0 }, true),
-            }
-        }
-    }
-}
-
-/// The value at a piece end: a piece end may sit exactly on a hold
-/// boundary, where the reading flips to a gap; take the held value there.
-#[inline]
-fn value_at(r: Reading) -> f64 {
-    match r {
-        Reading::Value(v) | Reading::Gap(v) => v,
-        Reading::Missing => 0.0,
+        Some(Input::Constant(v)) => (Line::constant(v), false),
+        Some(Input::Tag(id)) => match tags[id as usize].segment(&tag_plans[id as usize], a, b) {
+            Segment::Value { va, vb, k } => (Line { v0: va, v1: vb, k }, false),
+            Segment::Gap(last) => (Line::constant(gap_value(Some(last))), true),
+            Segment::Missing => (Line::constant(gap_value(None)), true),
+        },
     }
 }
 
@@ -326,11 +342,15 @@ fn integrate_piece(
         slip_mm: lsl.at(dt),
         freq_hz: lf.at(dt),
     };
+    // The piece end: the values there exactly (a sample value when the end
+    // is a sample instant), so the next piece's start hits the rate memo.
+    let end = Point { t_k: lt.v1, p_mpa: lp.v1, load_n: ll.v1, speed_mm_s: ls.v1, slip_mm: lsl.v1, freq_hz: lf.v1 };
     let thinning =
         matches!(plan.stress, StressPlan::Hoop { thinning_rate_mm_per_year, .. } if thinning_rate_mm_per_year > 0.0);
     let constant = lt.k == 0.0 && lp.k == 0.0 && ll.k == 0.0 && ls.k == 0.0 && lsl.k == 0.0 && lf.k == 0.0 && !thinning;
     let start_ms = state.first_sample_ms.unwrap_or(a_ms);
     let threshold_k = plan.creep_threshold_k();
+    let mut classes = scratch.classes;
     let mut eval = |p: &Point, tau: f64| -> Rates {
         if !thinning {
             if let Some((mp, mr)) = &scratch.memo {
@@ -339,7 +359,7 @@ fn integrate_piece(
                 }
             }
         }
-        let r = rates(plan, p, tau, start_ms, threshold_k);
+        let r = rates(plan, scratch.stress_per_mpa, p, tau, start_ms, threshold_k);
         scratch.memo = Some((*p, r));
         r
     };
@@ -352,20 +372,24 @@ fn integrate_piece(
         d_life = r.life_per_h * dt_h;
         d_strain = r.strain_per_h * dt_h;
         d_wear = r.wear_mm_per_h * dt_h;
-        account_node(plan, state, &p, &r, dt_h);
+        account_node(plan, state, &mut classes, &p, &r, dt_h);
         last_rates = r;
         last_point = p;
     } else {
         let dtk = (lt.k * span).abs();
-        let pmax = lp.v0.abs().max(lp.at(span).abs()).max(1e-9);
-        let dpr = (lp.k * span).abs() / pmax;
-        let n = ((dtk / PANEL_TEMPERATURE_STEP_K).max(dpr / PANEL_PRESSURE_STEP).ceil() as usize).clamp(1, MAX_PANELS);
+        let pmax = lp.v0.abs().max(lp.v1.abs()).max(1e-9);
+        let dp = (lp.k * span).abs();
         // Small steps: the trapezoid rule on the end rates (one new rate
         // evaluation, the start is memoised from the previous piece). Its
         // error on an exponential-like rate is about (k·ΔT)²/12 with
         // k ≈ 0.07 /K, below 2e-4 for ΔT ≤ 0.5 K, and it over-estimates
         // damage for a convex rate (conservative).
-        let small = dtk <= TRAPEZOID_TEMPERATURE_STEP_K && dpr <= TRAPEZOID_PRESSURE_STEP && !thinning;
+        let small = dtk <= TRAPEZOID_TEMPERATURE_STEP_K && dp <= TRAPEZOID_PRESSURE_STEP * pmax && !thinning;
+        let n = if small {
+            1
+        } else {
+            ((dtk / PANEL_TEMPERATURE_STEP_K).max(dp / pmax / PANEL_PRESSURE_STEP).ceil() as usize).clamp(1, MAX_PANELS)
+        };
         let h = span / n as f64;
         let h_h = dt_h / n as f64;
         // Composite Simpson: nodes at panel ends and midpoints,
@@ -373,13 +397,13 @@ fn integrate_piece(
         let mut r0p = point(0.0);
         let mut r0 = eval(&r0p, a);
         if small {
-            let p1 = point(span);
+            let p1 = end;
             let r1 = eval(&p1, b);
             let w = 0.5 * dt_h;
             d_life = w * (r0.life_per_h + r1.life_per_h);
             d_strain = w * (r0.strain_per_h + r1.strain_per_h);
             d_wear = w * (r0.wear_mm_per_h + r1.wear_mm_per_h);
-            account_pair(plan, state, &r0p, &r0, &p1, &r1, dt_h);
+            account_pair(plan, state, &mut classes, &r0p, &r0, &p1, &r1, dt_h);
             r0 = r1;
             r0p = p1;
         }
@@ -387,22 +411,23 @@ fn integrate_piece(
             let xm = h * (i as f64 + 0.5);
             let x1 = if i + 1 == n { span } else { h * (i + 1) as f64 };
             let pm = point(xm);
-            let p1 = point(x1);
+            let p1 = if i + 1 == n { end } else { point(x1) };
             let rm = eval(&pm, a + xm);
             let r1 = eval(&p1, a + x1);
             let w = h_h / 6.0;
             d_life += w * (r0.life_per_h + 4.0 * rm.life_per_h + r1.life_per_h);
             d_strain += w * (r0.strain_per_h + 4.0 * rm.strain_per_h + r1.strain_per_h);
             d_wear += w * (r0.wear_mm_per_h + 4.0 * rm.wear_mm_per_h + r1.wear_mm_per_h);
-            account_node(plan, state, &r0p, &r0, w);
-            account_node(plan, state, &pm, &rm, 4.0 * w);
-            account_node(plan, state, &p1, &r1, w);
+            account_node(plan, state, &mut classes, &r0p, &r0, w);
+            account_node(plan, state, &mut classes, &pm, &rm, 4.0 * w);
+            account_node(plan, state, &mut classes, &p1, &r1, w);
             r0 = r1;
             r0p = p1;
         }
         last_rates = r0;
         last_point = r0p;
     }
+    scratch.classes = classes;
     state.life_fraction += d_life;
     state.creep_strain += d_strain;
     state.wear_depth_mm += d_wear;
@@ -417,16 +442,18 @@ fn integrate_piece(
                 a
             }
         };
+        let per_h = 1.0 / dt_h;
         let upd = |recent: f64, rate: f64| recent + alpha * (rate - recent);
-        state.recent_life_fraction_rate_per_h = upd(state.recent_life_fraction_rate_per_h, d_life / dt_h);
-        state.recent_creep_strain_rate_per_h = upd(state.recent_creep_strain_rate_per_h, d_strain / dt_h);
-        state.recent_wear_rate_mm_per_h = upd(state.recent_wear_rate_mm_per_h, d_wear / dt_h);
+        state.recent_life_fraction_rate_per_h = upd(state.recent_life_fraction_rate_per_h, d_life * per_h);
+        state.recent_creep_strain_rate_per_h = upd(state.recent_creep_strain_rate_per_h, d_strain * per_h);
+        state.recent_wear_rate_mm_per_h = upd(state.recent_wear_rate_mm_per_h, d_wear * per_h);
     }
     state.now = Conditions {
         metal_temperature_k: last_point.t_k,
         pressure_mpa: last_point.p_mpa,
         hoop_stress_mpa: last_rates.stress_mpa,
-        rupture_life_h: last_rates.rupture_h,
+        // 1/0 = ∞ below the creep range.
+        rupture_life_h: 1.0 / last_rates.life_per_h,
         life_fraction_rate_per_h: last_rates.life_per_h,
         creep_rate_per_h: last_rates.strain_per_h,
         wear_rate_mm_per_h: last_rates.wear_mm_per_h,
@@ -440,9 +467,16 @@ fn integrate_piece(
 
 /// Book-keeping at one quadrature node carrying `w_h` hours.
 #[inline]
-fn account_node(plan: &ComponentPlan, state: &mut ComponentState, p: &Point, r: &Rates, w_h: f64) {
+fn account_node(
+    plan: &ComponentPlan,
+    state: &mut ComponentState,
+    classes: &mut (usize, usize),
+    p: &Point,
+    r: &Rates,
+    w_h: f64,
+) {
     if plan.metal_temperature.is_some() {
-        state.histogram.add(p.t_k, p.p_mpa, w_h);
+        state.histogram.add_hinted(p.t_k, p.p_mpa, w_h, classes);
         if p.t_k > state.peak_temperature_k {
             state.peak_temperature_k = p.t_k;
         }
@@ -471,9 +505,11 @@ fn account_node(plan: &ComponentPlan, state: &mut ComponentState, p: &Point, r: 
 /// the histogram class is taken once, at the midpoint (the steps are small),
 /// the peak from both ends.
 #[inline]
+#[allow(clippy::too_many_arguments)]
 fn account_pair(
     plan: &ComponentPlan,
     state: &mut ComponentState,
+    classes: &mut (usize, usize),
     p0: &Point,
     r0: &Rates,
     p1: &Point,
@@ -482,7 +518,7 @@ fn account_pair(
 ) {
     if plan.metal_temperature.is_some() {
         let (tm, pm) = (0.5 * (p0.t_k + p1.t_k), 0.5 * (p0.p_mpa + p1.p_mpa));
-        state.histogram.add(tm, pm, dt_h);
+        state.histogram.add_hinted(tm, pm, dt_h, classes);
         let peak = p0.t_k.max(p1.t_k);
         if peak > state.peak_temperature_k {
             state.peak_temperature_k = peak;
@@ -512,25 +548,37 @@ fn account_pair(
 }
 
 /// Damage, strain and wear rates at one instant.
-#[inline]
-fn rates(plan: &ComponentPlan, p: &Point, tau_ms: f64, start_ms: i64, threshold_k: f64) -> Rates {
-    let mut r = Rates { rupture_h: f64::INFINITY, ..Rates::default() };
-    let sigma = match plan.stress {
-        StressPlan::Fixed(s) => s,
-        StressPlan::Hoop {
-            basis,
-            outside_diameter_mm,
-            wall_mm,
-            measured_loss_mm,
-            thinning_rate_mm_per_year,
-            wall_reference_ms,
-        } => {
-            let service_h = (tau_ms - wall_reference_ms.unwrap_or(start_ms) as f64) / MS_PER_H;
-            let wall = remaining_wall_mm(wall_mm, measured_loss_mm, thinning_rate_mm_per_year, service_h);
-            r.wall_exhausted = wall <= crate::physics::stress::MIN_WALL_MM;
-            hoop_stress_mpa(basis, p.p_mpa, outside_diameter_mm, wall)
+#[inline(always)]
+fn rates(
+    plan: &ComponentPlan,
+    stress_per_mpa: Option<(f64, bool)>,
+    p: &Point,
+    tau_ms: f64,
+    start_ms: i64,
+    threshold_k: f64,
+) -> Rates {
+    let mut r = Rates::default();
+    let sigma = if let Some((k, exhausted)) = stress_per_mpa {
+        r.wall_exhausted = exhausted;
+        p.p_mpa.max(0.0) * k
+    } else {
+        match plan.stress {
+            StressPlan::Fixed(s) => s * plan.stress_factor,
+            StressPlan::Hoop {
+                basis,
+                outside_diameter_mm,
+                wall_mm,
+                measured_loss_mm,
+                thinning_rate_mm_per_year,
+                wall_reference_ms,
+            } => {
+                let service_h = (tau_ms - wall_reference_ms.unwrap_or(start_ms) as f64) / MS_PER_H;
+                let wall = remaining_wall_mm(wall_mm, measured_loss_mm, thinning_rate_mm_per_year, service_h);
+                r.wall_exhausted = wall <= crate::physics::stress::MIN_WALL_MM;
+                hoop_stress_mpa(basis, p.p_mpa, outside_diameter_mm, wall) * plan.stress_factor
+            }
         }
-    } * plan.stress_factor;
+    };
     r.stress_mpa = sigma;
     if plan.metal_temperature.is_some() && p.t_k >= threshold_k && sigma > 0.0 {
         r.creep = true;
@@ -539,7 +587,6 @@ fn rates(plan: &ComponentPlan, p: &Point, tau_ms: f64, start_ms: i64, threshold_
         r.flags = flags;
         // 10^x as exp(x·ln 10): same value to rounding, several times faster.
         r.life_per_h = (-l10 * std::f64::consts::LN_10).exp();
-        r.rupture_h = 1.0 / r.life_per_h;
         if let Some(n) = &plan.material.norton {
             r.strain_per_h = creep_rate_per_h_ln(n, ln_s, p.t_k);
         }

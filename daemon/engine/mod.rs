@@ -171,6 +171,33 @@ pub struct EngineState {
     pub counters: Counters,
 }
 
+/// A one-to-many relation (tag → components, component → tags) in two flat
+/// arrays, so the hot path follows no pointers.
+#[derive(Debug, Clone)]
+struct Adjacency {
+    /// `items[offsets[i]..offsets[i + 1]]` belong to `i`.
+    offsets: Vec<u32>,
+    items: Vec<u32>,
+}
+
+impl Adjacency {
+    fn new(lists: &[Vec<u32>]) -> Adjacency {
+        let mut offsets = Vec::with_capacity(lists.len() + 1);
+        let mut items = Vec::new();
+        offsets.push(0);
+        for l in lists {
+            items.extend_from_slice(l);
+            offsets.push(items.len() as u32);
+        }
+        Adjacency { offsets, items }
+    }
+
+    #[inline]
+    fn of(&self, i: usize) -> &[u32] {
+        &self.items[self.offsets[i] as usize..self.offsets[i + 1] as usize]
+    }
+}
+
 /// The engine. Owns the tag cursors and the component ledgers.
 #[derive(Debug, Clone)]
 pub struct Engine {
@@ -178,9 +205,12 @@ pub struct Engine {
     tags: Vec<TagState>,
     components: Vec<ComponentState>,
     /// Components that read each tag.
-    consumers: Vec<Vec<u32>>,
+    consumers: Adjacency,
     /// Tags each component reads.
-    inputs: Vec<Vec<TagId>>,
+    inputs: Adjacency,
+    /// Hold time of each tag, ms (a compact copy of the plan's, read for
+    /// every sample).
+    hold_ms: Vec<i64>,
     /// Per-component rate memo (not state: results do not depend on it).
     scratch: Vec<component::Scratch>,
     counters: Counters,
@@ -200,13 +230,15 @@ impl Engine {
             }
             inputs.push(ts);
         }
+        let (consumers, inputs) = (Adjacency::new(&consumers), Adjacency::new(&inputs));
         Engine {
             tags: vec![TagState::default(); plan.tags.len()],
             components: plan.components.iter().map(ComponentState::new).collect(),
             changed: vec![false; plan.components.len()],
-            scratch: vec![component::Scratch::default(); plan.components.len()],
+            scratch: plan.components.iter().map(component::Scratch::new).collect(),
             consumers,
             inputs,
+            hold_ms: plan.tags.iter().map(|t| t.max_hold_ms).collect(),
             counters: Counters::default(),
             plan,
         }
@@ -234,7 +266,7 @@ impl Engine {
 
     /// Tags a component reads (computed once, when the engine is built).
     pub fn inputs(&self, ci: usize) -> &[TagId] {
-        &self.inputs[ci]
+        self.inputs.of(ci)
     }
 
     /// Tag states, in plan order.
@@ -303,12 +335,12 @@ impl Engine {
         let tau = self.plan.recent_rate_window_h;
         // Integrate past the sample this tag is about to forget.
         if let Some((last_t, _)) = self.tags[tid].last {
-            for &ci in &self.consumers[tid] {
+            for &ci in self.consumers.of(tid) {
                 let ci = ci as usize;
                 if self.components[ci].integrated_to_ms.is_some_and(|x| x < last_t) {
                     component::advance(
                         &self.plan.components[ci],
-                        &self.inputs[ci],
+                        self.inputs.of(ci),
                         &mut self.scratch[ci],
                         &mut self.components[ci],
                         &self.tags,
@@ -322,7 +354,7 @@ impl Engine {
             }
         }
         self.tags[tid].push(t, value);
-        for &ci in &self.consumers[tid] {
+        for &ci in self.consumers.of(tid) {
             let ci = ci as usize;
             let st = &mut self.components[ci];
             if st.integrated_to_ms.is_none() {
@@ -333,9 +365,9 @@ impl Engine {
             }
             // Watermark: the newest instant every live input has reached.
             let mut w = i64::MAX;
-            for &ti in &self.inputs[ci] {
+            for &ti in self.inputs.of(ci) {
                 if let Some((lt, _)) = self.tags[ti as usize].last {
-                    let hold = self.plan.tags[ti as usize].max_hold_ms;
+                    let hold = self.hold_ms[ti as usize];
                     if lt.saturating_add(hold) >= t {
                         w = w.min(lt);
                     }
@@ -347,7 +379,7 @@ impl Engine {
             if st.integrated_to_ms.is_some_and(|x| x < w) {
                 component::advance(
                     &self.plan.components[ci],
-                    &self.inputs[ci],
+                    self.inputs.of(ci),
                     &mut self.scratch[ci],
                     st,
                     &self.tags,

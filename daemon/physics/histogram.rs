@@ -24,6 +24,18 @@ pub fn class_index(edges: &[f64], x: f64) -> usize {
     edges.partition_point(|&e| e <= x)
 }
 
+/// [`class_index`] with a guess (the class of the previous value, which a
+/// slowly varying signal rarely leaves): checked in O(1), searched only
+/// when wrong. Always the same result as [`class_index`].
+#[inline]
+pub fn class_index_hinted(edges: &[f64], x: f64, hint: usize) -> usize {
+    if hint <= edges.len() && (hint == 0 || edges[hint - 1] <= x) && (hint == edges.len() || x < edges[hint]) {
+        hint
+    } else {
+        class_index(edges, x)
+    }
+}
+
 impl TimeAtCondition {
     /// An empty histogram with the given class edges.
     pub fn new(temperature_edges_k: Vec<f64>, pressure_edges_mpa: Vec<f64>) -> Self {
@@ -42,6 +54,16 @@ impl TimeAtCondition {
     pub fn add(&mut self, t_k: f64, p_mpa: f64, dt_h: f64) {
         let ti = class_index(&self.temperature_edges_k, t_k);
         let pi = class_index(&self.pressure_edges_mpa, p_mpa);
+        self.hours[ti * (self.pressure_edges_mpa.len() + 1) + pi] += dt_h;
+    }
+
+    /// [`TimeAtCondition::add`] with the classes of the previous call as a
+    /// search hint (updated to this call's classes).
+    #[inline]
+    pub fn add_hinted(&mut self, t_k: f64, p_mpa: f64, dt_h: f64, hint: &mut (usize, usize)) {
+        let ti = class_index_hinted(&self.temperature_edges_k, t_k, hint.0);
+        let pi = class_index_hinted(&self.pressure_edges_mpa, p_mpa, hint.1);
+        *hint = (ti, pi);
         self.hours[ti * (self.pressure_edges_mpa.len() + 1) + pi] += dt_h;
     }
 
@@ -84,6 +106,13 @@ mod tests {
     }
 
     proptest! {
+        #[test]
+        fn hinted_class_is_the_class(x in -10.0f64..50.0, hint in 0usize..6) {
+            let e = [10.0, 20.0, 30.0];
+            prop_assert_eq!(class_index_hinted(&e, x, hint), class_index(&e, x));
+            prop_assert_eq!(class_index_hinted(&e, f64::NAN, hint), class_index(&e, f64::NAN));
+        }
+
         #[test]
         fn no_time_is_lost(v in proptest::collection::vec((500.0f64..1000.0, 0.0f64..30.0, 0.0f64..10.0), 0..50)) {
             let mut h = TimeAtCondition::new(TimeAtCondition::even_edges(700.0, 900.0, 10.0), vec![5.0, 10.0, 20.0]);
