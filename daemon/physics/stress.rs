@@ -88,9 +88,37 @@ mod tests {
         let l = hoop_stress_mpa(StressBasis::Lame, 17.0, 273.1, 20.0);
         assert!((b - 116.0675).abs() < 1e-3, "{b}");
         assert!((m - 107.5675).abs() < 1e-3, "{m}");
-        let (ro, ri) = (136.55f64, 116.55f64);
-        let expect = 17.0 * (ro * ro + ri * ri) / (ro * ro - ri * ri);
-        assert!((l - expect).abs() < 1e-9, "{l} {expect}");
+        assert!((l - 108.24).abs() < 5e-3, "{l}");
+    }
+
+    // Lamé from its derivation rather than its final formula (Timoshenko,
+    // *Strength of Materials* Part II, thick-walled cylinder): the stresses
+    // are σr = A − B/r², σθ = A + B/r²; the boundary conditions σr(ri) = −p
+    // and σr(ro) = 0 fix A and B (solved here as a 2×2 linear system), and
+    // the hoop stress at the bore is σθ(ri). Equilibrium of half the
+    // cylinder (common practice, a free-body fact): ∫ σθ dr over the wall
+    // equals p·ri, checked by Simpson quadrature.
+    #[test]
+    fn lame_from_boundary_conditions_and_equilibrium() {
+        for (p, d, t) in [(17.0, 273.1, 20.0), (30.0, 100.0, 25.0), (5.0, 600.0, 8.0)] {
+            let (ro, ri) = (0.5 * d, 0.5 * d - t);
+            // [1, −1/ri²; 1, −1/ro²] · [A, B] = [−p, 0], by Cramer's rule.
+            let (a11, a12, a21, a22) = (1.0, -1.0 / (ri * ri), 1.0, -1.0 / (ro * ro));
+            let det = a11 * a22 - a12 * a21;
+            let a = (-p * a22 - a12 * 0.0) / det;
+            let b = (a11 * 0.0 - a21 * -p) / det;
+            let hoop = |r: f64| a + b / (r * r);
+            let lame = hoop_stress_mpa(StressBasis::Lame, p, d, t);
+            assert!((lame - hoop(ri)).abs() < 1e-9 * lame, "{lame} {}", hoop(ri));
+            let n = 200;
+            let h = (ro - ri) / n as f64;
+            let mut integral = hoop(ri) + hoop(ro);
+            for i in 1..n {
+                integral += if i % 2 == 1 { 4.0 } else { 2.0 } * hoop(ri + h * i as f64);
+            }
+            integral *= h / 3.0;
+            assert!((integral - p * ri).abs() < 1e-7 * p * ri, "{integral} {}", p * ri);
+        }
     }
 
     #[test]
