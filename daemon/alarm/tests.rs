@@ -430,68 +430,8 @@ fn event_as_a_database_point() {
     assert!(line.contains("value=0.512,threshold=0.5,message=\"U2-SH3-OUTLET-LEG-A creep life fraction 0.512 reached the warning level 0.5\""), "{line}");
 }
 
-const CONFIG: &str = r#"
-[plant]
-name = "Test Works"
-
-[[material]]
-grade = "TESTSTEEL"
-melting_point_k = { value = 1780.0, source = "synthetic" }
-creep_threshold_k = { value = 700.0, source = "synthetic" }
-hardness_hv = { value = 200.0, source = "synthetic" }
-[material.larson_miller]
-constant_c = 20.0
-coefficients = [28000.0, -1500.0, -800.0]
-stress_range_mpa = [20.0, 300.0]
-temperature_range_k = [723.0, 923.0]
-minimum = { rule = "stress_factor", factor = 0.8 }
-source = "synthetic"
-[material.norton]
-a_per_h = 1.0e10
-n = 5.0
-q_j_per_mol = 300000.0
-source = "synthetic"
-
-[[tag]]
-name = "TT"
-unit = "degC"
-[[tag]]
-name = "PT"
-unit = "bar"
-[[tag]]
-name = "LOAD"
-unit = "N"
-[[tag]]
-name = "SLIP"
-unit = "um"
-
-[[component]]
-name = "TUBE"
-unit = "U1"
-kind = "tube"
-material = "TESTSTEEL"
-design_temperature = { value = 560, unit = "degC" }
-design_pressure = { value = 180, unit = "bar" }
-metal_temperature = "TT"
-pressure = "PT"
-[component.geometry]
-outside_diameter = { value = 50.8, unit = "mm" }
-wall = { value = 6.0, unit = "mm" }
-
-[[component]]
-name = "SUPPORT"
-unit = "U1"
-kind = "wear_contact"
-material = "TESTSTEEL"
-[component.wear]
-model = "fretting"
-normal_load = "LOAD"
-slip_amplitude = "SLIP"
-frequency = { value = 20, unit = "Hz" }
-wear_coefficient = 1.0e-8
-contact_area_mm2 = 40.0
-allowable_depth = { value = 1.0, unit = "mm" }
-"#;
+// The engine tests' plant: a tube and a fretting support.
+use crate::engine::tests::TEST_CONFIG as CONFIG;
 
 #[test]
 fn component_evaluation_runs_the_indices_that_apply() {

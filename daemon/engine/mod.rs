@@ -451,4 +451,4 @@ impl Engine {
 }
 
 #[cfg(test)]
-mod tests;
+pub(crate) mod tests;
