@@ -200,6 +200,69 @@ struct JsonReport<'a, F: serde::Serialize> {
     toml: &'a str,
 }
 
+/// What a fit hands back: the report, the TOML block and the plot, written
+/// to the files asked for and shown in the chosen format.
+struct Report<'a, F: serde::Serialize> {
+    command: &'static str,
+    shown: &'a str,
+    notes: &'a [String],
+    fit: &'a F,
+    /// The terminal report.
+    text: String,
+    /// The TOML block, already checked to load back unchanged.
+    block: &'a str,
+    /// What the block is called in messages ("material block", ...).
+    block_name: &'static str,
+}
+
+impl<F: serde::Serialize> Report<'_, F> {
+    fn emit(
+        &self,
+        format: Format,
+        output: Option<&Path>,
+        plot: Option<&Path>,
+        svg: impl FnOnce() -> String,
+        out: &mut dyn Write,
+    ) -> anyhow::Result<()> {
+        if let Some(path) = output {
+            write_file(path, self.block, &format!("the {}", self.block_name))?;
+        }
+        if let Some(path) = plot {
+            write_file(path, &svg(), "the plot")?;
+        }
+        match format {
+            Format::Text => {
+                write!(out, "{}", self.text)?;
+                writeln!(out)?;
+                if let Some(path) = plot {
+                    writeln!(out, "Plot written to {}", path.display())?;
+                }
+                let mut name = self.block_name.to_string();
+                if let Some(first) = name.get_mut(0..1) {
+                    first.make_ascii_uppercase();
+                }
+                match output {
+                    Some(path) => writeln!(out, "{name} written to {}", path.display())?,
+                    None => write!(out, "{name} (TOML):\n\n{}", self.block)?,
+                }
+            }
+            Format::Json => {
+                let report = JsonReport {
+                    command: self.command,
+                    input: self.shown,
+                    caution: crate::CAUTION,
+                    notes: self.notes,
+                    fit: self.fit,
+                    toml: self.block,
+                };
+                serde_json::to_writer_pretty(&mut *out, &report)?;
+                writeln!(out)?;
+            }
+        }
+        Ok(())
+    }
+}
+
 fn run_larson_miller(args: &LarsonMillerArgs, out: &mut dyn Write) -> anyhow::Result<()> {
     let (text, shown, name) = read_input(&args.input)?;
     let file = parse_rupture_tests(&text, &shown)?;
@@ -240,38 +303,16 @@ fn run_larson_miller(args: &LarsonMillerArgs, out: &mut dyn Write) -> anyhow::Re
     let loaded = loaded.context("internal error: the written TOML block does not load back")?;
     anyhow::ensure!(loaded == fit.curve(&name), "internal error: the TOML block does not load back unchanged");
 
-    if let Some(path) = &args.output {
-        write_file(path, &block, "the material block")?;
-    }
-    if let Some(path) = &args.plot {
-        write_file(path, &larson_miller_svg(&fit, &name), "the plot")?;
-    }
-    match args.format {
-        Format::Text => {
-            write!(out, "{}", larson_miller_text(&fit, &shown, &file.notes))?;
-            writeln!(out)?;
-            if let Some(path) = &args.plot {
-                writeln!(out, "Plot written to {}", path.display())?;
-            }
-            match &args.output {
-                Some(path) => writeln!(out, "Material block written to {}", path.display())?,
-                None => write!(out, "Material block (TOML):\n\n{block}")?,
-            }
-        }
-        Format::Json => {
-            let report = JsonReport {
-                command: "fit larson-miller",
-                input: &shown,
-                caution: crate::CAUTION,
-                notes: &file.notes,
-                fit: &fit,
-                toml: &block,
-            };
-            serde_json::to_writer_pretty(&mut *out, &report)?;
-            writeln!(out)?;
-        }
-    }
-    Ok(())
+    let report = Report {
+        command: "fit larson-miller",
+        shown: &shown,
+        notes: &file.notes,
+        fit: &fit,
+        text: larson_miller_text(&fit, &shown, &file.notes),
+        block: &block,
+        block_name: "material block",
+    };
+    report.emit(args.format, args.output.as_deref(), args.plot.as_deref(), || larson_miller_svg(&fit, &name), out)
 }
 
 fn run_norton(args: &NortonArgs, out: &mut dyn Write) -> anyhow::Result<()> {
@@ -283,36 +324,14 @@ fn run_norton(args: &NortonArgs, out: &mut dyn Write) -> anyhow::Result<()> {
     let loaded: NortonBlock =
         toml::from_str(&block).context("internal error: the [norton] block does not load back")?;
     anyhow::ensure!(loaded.norton == fit.law(&name), "internal error: the [norton] block does not load back unchanged");
-    if let Some(path) = &args.output {
-        write_file(path, &block, "the [norton] block")?;
-    }
-    if let Some(path) = &args.plot {
-        write_file(path, &norton_svg(&fit, &name), "the plot")?;
-    }
-    match args.format {
-        Format::Text => {
-            write!(out, "{}", norton_text(&fit, &shown, &file.notes))?;
-            writeln!(out)?;
-            if let Some(path) = &args.plot {
-                writeln!(out, "Plot written to {}", path.display())?;
-            }
-            match &args.output {
-                Some(path) => writeln!(out, "[norton] block written to {}", path.display())?,
-                None => write!(out, "[norton] block (TOML):\n\n{block}")?,
-            }
-        }
-        Format::Json => {
-            let report = JsonReport {
-                command: "fit norton",
-                input: &shown,
-                caution: crate::CAUTION,
-                notes: &file.notes,
-                fit: &fit,
-                toml: &block,
-            };
-            serde_json::to_writer_pretty(&mut *out, &report)?;
-            writeln!(out)?;
-        }
-    }
-    Ok(())
+    let report = Report {
+        command: "fit norton",
+        shown: &shown,
+        notes: &file.notes,
+        fit: &fit,
+        text: norton_text(&fit, &shown, &file.notes),
+        block: &block,
+        block_name: "[norton] block",
+    };
+    report.emit(args.format, args.output.as_deref(), args.plot.as_deref(), || norton_svg(&fit, &name), out)
 }
