@@ -487,6 +487,12 @@ fn account_node(
             }
         }
     }
+    account_creep(state, r, w_h);
+}
+
+/// Creep-range, extrapolation and wall flags of one node carrying `w_h` hours.
+#[inline]
+fn account_creep(state: &mut ComponentState, r: &Rates, w_h: f64) {
     if r.creep {
         state.hours_in_creep_range += w_h;
         if r.flags.any() {
@@ -531,20 +537,8 @@ fn account_pair(
             }
         }
     }
-    for r in [r0, r1] {
-        if r.creep {
-            state.hours_in_creep_range += 0.5 * dt_h;
-            if r.flags.any() {
-                state.extrapolated_h += 0.5 * dt_h;
-                let f = &mut state.flags.extrapolated;
-                f.stress_below |= r.flags.stress_below;
-                f.stress_above |= r.flags.stress_above;
-                f.temperature_below |= r.flags.temperature_below;
-                f.temperature_above |= r.flags.temperature_above;
-            }
-        }
-        state.flags.wall_exhausted |= r.wall_exhausted;
-    }
+    account_creep(state, r0, 0.5 * dt_h);
+    account_creep(state, r1, 0.5 * dt_h);
 }
 
 /// Damage, strain and wear rates at one instant.

@@ -88,6 +88,19 @@ fn mpa(v: f64) -> String {
     }
 }
 
+/// The "Data" line: the stress and temperature range the fit rests on.
+fn data_range(o: &mut String, [s0, s1]: [f64; 2], [t0, t1]: [f64; 2], temperatures: usize) {
+    let _ = writeln!(
+        o,
+        "Data      stress {}–{} MPa; temperature {t0:.2}–{t1:.2} K ({:.2}–{:.2} °C), {}",
+        mpa(s0),
+        mpa(s1),
+        t0 - 273.15,
+        t1 - 273.15,
+        plural(temperatures, "temperature", "temperatures")
+    );
+}
+
 fn plural(n: usize, one: &str, many: &str) -> String {
     format!("{n} {}", if n == 1 { one } else { many })
 }
@@ -181,17 +194,7 @@ pub fn larson_miller_text(fit: &LmFit, input_name: &str, notes: &[String]) -> St
         fit.minimum_offset_log10_h,
         10f64.powf(fit.minimum_offset_log10_h)
     );
-    let [s0, s1] = fit.stress_range_mpa;
-    let [t0, t1] = fit.temperature_range_k;
-    let _ = writeln!(
-        o,
-        "Data      stress {}–{} MPa; temperature {t0:.2}–{t1:.2} K ({:.2}–{:.2} °C), {}",
-        mpa(s0),
-        mpa(s1),
-        t0 - 273.15,
-        t1 - 273.15,
-        plural(fit.temperatures_k.len(), "temperature", "temperatures")
-    );
+    data_range(&mut o, fit.stress_range_mpa, fit.temperature_range_k, fit.temperatures_k.len());
     let _ = writeln!(o);
     let _ = writeln!(
         o,
@@ -278,17 +281,7 @@ pub fn norton_text(fit: &NortonFit, input_name: &str, notes: &[String]) -> Strin
     if let Some(r2) = fit.r_squared {
         let _ = writeln!(o, "R²        {r2:.5} (of ln ε̇)");
     }
-    let [s0, s1] = fit.stress_range_mpa;
-    let [t0, t1] = fit.temperature_range_k;
-    let _ = writeln!(
-        o,
-        "Data      stress {}–{} MPa; temperature {t0:.2}–{t1:.2} K ({:.2}–{:.2} °C), {}",
-        mpa(s0),
-        mpa(s1),
-        t0 - 273.15,
-        t1 - 273.15,
-        plural(fit.temperatures_k.len(), "temperature", "temperatures")
-    );
+    data_range(&mut o, fit.stress_range_mpa, fit.temperature_range_k, fit.temperatures_k.len());
     let _ = writeln!(o);
     let _ = writeln!(o, "Residuals by test (ln 1/h; * marks |standardized| > {})", fit.outlier_threshold);
     let _ = writeln!(
