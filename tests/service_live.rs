@@ -7,7 +7,9 @@
 //! * a database outage loses no point;
 //! * SIGTERM stops cleanly, SIGHUP reloads and keeps every ledger;
 //! * alarms go out on MQTT (event and retained state topics) and can be
-//!   acknowledged by command.
+//!   acknowledged by command;
+//! * the status page's alarm history and component trends survive a
+//!   restart.
 
 mod common;
 
@@ -467,5 +469,79 @@ fn alarm_history_survives_a_restart() {
     });
     assert_eq!(http::get(http_port, "/api/components/NO-SUCH/alarms").unwrap().status, 404);
     assert_eq!(http::get(http_port, "/api/components/SH-TUBE/alarms?limit=many").unwrap().status, 400);
+    assert!(svc.sigterm().success());
+}
+
+/// The points of `GET /api/components/{component}/trend{query}`, newest last.
+fn trend(svc: &Service, component: &str, query: &str) -> Vec<serde_json::Value> {
+    let t = svc
+        .get_json(&format!("/api/components/{component}/trend{query}"))
+        .unwrap_or_else(|| panic!("no trend for {component}{query}"));
+    assert_eq!(t["component"], component);
+    t["points"].as_array().unwrap().clone()
+}
+
+/// The event times of trend points.
+fn times(points: &[serde_json::Value]) -> Vec<i64> {
+    points.iter().map(|p| p["t"].as_i64().unwrap()).collect()
+}
+
+/// Publishes `s` twenty minutes at a time, each part integrated before the
+/// next, so every part gives every component a trend point; returns the
+/// last snapshot.
+fn publish_in_parts(svc: &Service, port: u16, s: &[Sample], id: &str) -> serde_json::Value {
+    let mut snap = serde_json::Value::Null;
+    for (i, part) in s.chunks(4 * 20).enumerate() {
+        publish_all(port, part, &format!("{id}-{i}"));
+        snap = svc.wait_until_integrated(part.last().unwrap().1);
+    }
+    snap
+}
+
+#[test]
+fn trends_survive_a_restart() {
+    let dir = tempfile::tempdir().unwrap();
+    let (broker, cfg, svc) = start_plant(dir.path());
+    let http_port = svc.http_port;
+    let s = samples(300);
+    let (first, second) = s.split_at(4 * 200);
+    let snap = publish_in_parts(&svc, broker.port, first, "publisher-trend-1");
+    let tube = trend(&svc, "SH-TUBE", "");
+    let support = trend(&svc, "SUPPORT", "");
+    let t = times(&tube);
+    assert!(t.len() >= 10, "a point per part at least: {t:?}");
+    assert!(t.windows(2).all(|w| w[0] < w[1]), "oldest first, each time once: {t:?}");
+    // The newest point is the ledger as the snapshot shows it.
+    assert_eq!(*t.last().unwrap(), first.last().unwrap().1 * 1000);
+    let ledger = |name: &str| snap["components"].as_array().unwrap().iter().find(|c| c["component"] == name).unwrap();
+    let newest = tube.last().unwrap();
+    for f in ["creep_life_fraction", "creep_strain", "pressure_mpa", "hoop_stress_mpa", "metal_temperature_c"] {
+        assert_eq!(newest[f], ledger("SH-TUBE")[f], "SH-TUBE {f}");
+    }
+    assert_eq!(support.last().unwrap()["wear_index"], ledger("SUPPORT")["wear_index"]);
+    assert!(support.last().unwrap()["wear_index"].as_f64().unwrap() > 0.0);
+    assert!(svc.sigterm().success(), "clean exit on SIGTERM");
+
+    // Same store, new process: the trend is read back from the ledger.
+    let svc = Service::start(&cfg, http_port);
+    assert_eq!(trend(&svc, "SH-TUBE", ""), tube, "the whole trend kept");
+    assert_eq!(trend(&svc, "SUPPORT", ""), support);
+    // Windows: the newest `limit` of the points at or after `since_ms`.
+    let n = tube.len();
+    assert_eq!(trend(&svc, "SH-TUBE", "?limit=3"), tube[n - 3..]);
+    assert_eq!(trend(&svc, "SH-TUBE", &format!("?since_ms={}", t[n - 2])), tube[n - 2..]);
+    assert_eq!(trend(&svc, "SH-TUBE", &format!("?since_ms={}&limit=1", t[1])), tube[n - 1..]);
+    assert!(trend(&svc, "SH-TUBE", &format!("?since_ms={}", t[n - 1] + 1)).is_empty());
+    assert_eq!(http::get(http_port, "/api/components/NO-SUCH/trend").unwrap().status, 404);
+    assert_eq!(http::get(http_port, "/api/components/SH-TUBE/trend?limit=many").unwrap().status, 400);
+
+    // New points follow the old ones, none of them twice.
+    svc.wait_connected();
+    publish_in_parts(&svc, broker.port, second, "publisher-trend-2");
+    let after = trend(&svc, "SH-TUBE", "");
+    assert_eq!(after[..n], tube[..], "the points of the first run stay as they were");
+    let t = times(&after);
+    assert!(t.len() > n && t.windows(2).all(|w| w[0] < w[1]), "new points after the old ones: {t:?}");
+    assert_eq!(*t.last().unwrap(), s.last().unwrap().1 * 1000);
     assert!(svc.sigterm().success());
 }

@@ -1,7 +1,7 @@
 //! Crash safety of the ledger store: a writer killed with SIGKILL at an
 //! arbitrary instant leaves component state, tag cursor, alarm, counters,
-//! alarm journal and outbox all from the same commit, and loses no commit
-//! it reported.
+//! alarm journal, trend and outbox all from the same commit, and loses no
+//! commit it reported.
 //!
 //! The test re-runs its own binary as the writer (selected by an
 //! environment variable), lets it report some commits on stdout, kills it,
@@ -12,7 +12,7 @@ use std::io::{BufRead, BufReader};
 use std::path::Path;
 use std::process::{Command, Stdio};
 
-use lifeledger::store::{Commit, JournalEntry, Store};
+use lifeledger::store::{Commit, JournalEntry, Store, TrendPoint, TrendWindow};
 
 /// Set to the ledger path in the writer child.
 const WRITER_ENV: &str = "LIFELEDGER_TEST_STORE_CRASH_WRITER";
@@ -51,6 +51,7 @@ fn write_until_killed(path: &Path) -> ! {
         let (tags, alarms, meta) = (one("t"), one("c/creep"), one("commits"));
         let outbox = vec![k.to_string()];
         let event = JournalEntry { time_ms: k as i64, component: "c".into(), index: "creep".into(), event: state };
+        let point = trend_point(k);
         let batch = Commit {
             components: &components,
             tags: &tags,
@@ -58,6 +59,7 @@ fn write_until_killed(path: &Path) -> ! {
             meta: &meta,
             outbox: &outbox,
             alarm_events: &[event],
+            trend_points: &[("c".to_string(), point)],
         };
         store.commit(&batch).expect("writer commits");
         if k % DRAIN_EVERY == 0 {
@@ -78,6 +80,20 @@ struct Ledger {
     removed: u64,
 }
 
+/// The trend point of commit `k`: at event time `k` ms, its life fraction
+/// `k` too.
+fn trend_point(k: u64) -> TrendPoint {
+    TrendPoint {
+        t: k as i64,
+        metal_temperature_c: 540.0,
+        pressure_mpa: 17.0,
+        hoop_stress_mpa: 70.0,
+        creep_life_fraction: k as f64,
+        creep_strain: 0.0,
+        wear_index: 0.0,
+    }
+}
+
 fn n_of(json: &str) -> u64 {
     let v: serde_json::Value = serde_json::from_str(json).unwrap();
     v["n"].as_u64().unwrap_or_else(|| panic!("no n in {json}"))
@@ -90,6 +106,7 @@ fn read_consistent(store: &Store) -> Ledger {
         assert!(loaded.components.is_empty() && loaded.tags.is_empty() && loaded.meta.is_empty());
         assert_eq!(store.outbox_stats().unwrap().lines, 0);
         assert!(store.alarm_journal_newest(1).unwrap().is_empty());
+        assert!(store.trend("c", TrendWindow::ALL).unwrap().is_empty());
         return Ledger { n: 0, removed: 0 };
     };
     let n = n_of(c);
@@ -116,6 +133,12 @@ fn read_consistent(store: &Store) -> Ledger {
         store.alarm_journal_newest(usize::MAX).unwrap().into_iter().map(|(_, e)| n_of(&e.event)).collect();
     let want: Vec<u64> = (1..=n).rev().collect();
     assert_eq!(journal, want, "the alarm journal holds every commit's event once, the newest from commit {n}");
+
+    // One trend point per commit, each once (far below the trend's
+    // default bound, so none is pruned).
+    let trend = store.trend("c", TrendWindow::ALL).unwrap();
+    let want: Vec<TrendPoint> = (1..=n).map(trend_point).collect();
+    assert_eq!(trend, want, "the trend holds every commit's point once, the newest from commit {n}");
 
     let stats = store.outbox_stats().unwrap();
     let bytes: u64 = lines.iter().map(|l| l.to_string().len() as u64).sum();

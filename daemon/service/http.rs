@@ -1,9 +1,11 @@
-//! The HTTP side: health, readiness, Prometheus metrics, the JSON snapshot
-//! and a component's alarm history. Read-only (alarm commands aside, which
-//! go to the ledger thread): it reads the snapshot the ledger thread
-//! publishes, and the alarm journal on a read-only connection of its own.
+//! The HTTP side: health, readiness, Prometheus metrics, the JSON snapshot,
+//! a component's trend and its alarm history. Read-only (alarm commands
+//! aside, which go to the ledger thread): it reads the snapshot the ledger
+//! thread publishes, and the trends and the alarm journal from the ledger
+//! file on read-only connections of its own.
 
 use super::snapshot::{metrics_text, Snapshot};
+use crate::store::{StoreError, TrendWindow};
 use axum::extract::State;
 use axum::http::{header, StatusCode};
 use axum::response::{IntoResponse, Response};
@@ -16,7 +18,6 @@ use tokio::sync::watch;
 #[derive(Clone)]
 pub struct HttpState {
     pub snapshot: watch::Receiver<Arc<Snapshot>>,
-    pub trends: watch::Receiver<Arc<super::snapshot::Trends>>,
     /// Token allowing acknowledge/shelve over HTTP; `None`: read-only.
     pub token: Option<String>,
     /// Where HTTP alarm commands go (the ledger thread).
@@ -25,6 +26,8 @@ pub struct HttpState {
     pub library: Arc<crate::settings::library::MaterialLibrary>,
     /// The ledger's alarm journal, for `/api/components/{name}/alarms`.
     pub journal: crate::store::JournalReader,
+    /// The ledger's component trends, for `/api/components/{name}/trend`.
+    pub trend: crate::store::TrendReader,
 }
 
 /// Events `/api/components/{name}/alarms` returns without `limit`.
@@ -71,12 +74,63 @@ async fn components(State(s): State<HttpState>) -> Json<Snapshot> {
     Json((*snap).clone())
 }
 
-async fn trend(State(s): State<HttpState>, axum::extract::Path(name): axum::extract::Path<String>) -> Response {
-    let t = s.trends.borrow().clone();
-    match t.components.get(&name) {
-        Some(points) => Json(serde_json::json!({"component": name, "points": points})).into_response(),
-        None => (StatusCode::NOT_FOUND, format!("no trend for component {name:?}\n")).into_response(),
+/// Reads the rows of component `name` from the ledger file with `read`,
+/// off the async runtime's workers. A failure is a 500 answer; no rows for
+/// a name that is not a component (configured or retired) is a 404 saying
+/// "no component NAME and no `what` for it".
+async fn component_rows<T: Send + 'static>(
+    s: &HttpState,
+    name: &str,
+    what: &str,
+    read: impl FnOnce(&str) -> Result<Vec<T>, StoreError> + Send + 'static,
+) -> Result<Vec<T>, Response> {
+    let component = name.to_string();
+    let rows = match tokio::task::spawn_blocking(move || read(&component)).await {
+        Ok(Ok(rows)) => rows,
+        Ok(Err(e)) => return Err((StatusCode::INTERNAL_SERVER_ERROR, format!("{e}\n")).into_response()),
+        Err(e) => {
+            return Err((StatusCode::INTERNAL_SERVER_ERROR, format!("reading the {what} failed: {e}\n")).into_response())
+        }
+    };
+    if rows.is_empty() {
+        let snap = s.snapshot.borrow().clone();
+        let known =
+            snap.components.iter().any(|c| c.component == name) || snap.retired_components.iter().any(|r| r == name);
+        if !known {
+            return Err(
+                (StatusCode::NOT_FOUND, format!("no component {name:?} and no {what} for it\n")).into_response()
+            );
+        }
     }
+    Ok(rows)
+}
+
+/// Query of `/api/components/{name}/trend`; without either, every point
+/// the store keeps for the component.
+#[derive(serde::Deserialize)]
+struct TrendQuery {
+    /// Only points at or after this event time, ms since the epoch.
+    since_ms: Option<i64>,
+    /// Only the newest this many (of those since `since_ms`).
+    limit: Option<usize>,
+}
+
+/// A component's trend from the store, newest last:
+/// `{"component", "points": [{"t", "metal_temperature_c", "pressure_mpa",
+/// "hoop_stress_mpa", "creep_life_fraction", "creep_strain", "wear_index"}]}`.
+/// A known component without points has an empty list; 404 for a name that
+/// is neither a component (configured or retired) nor in the trend table.
+async fn trend(
+    State(s): State<HttpState>,
+    axum::extract::Path(name): axum::extract::Path<String>,
+    axum::extract::Query(q): axum::extract::Query<TrendQuery>,
+) -> Response {
+    let (reader, window) = (s.trend.clone(), TrendWindow { since_ms: q.since_ms, limit: q.limit });
+    let points = match component_rows(&s, &name, "trend", move |c| reader.component(c, window)).await {
+        Ok(points) => points,
+        Err(answer) => return answer,
+    };
+    Json(serde_json::json!({"component": name, "points": points})).into_response()
 }
 
 /// Query of `/api/components/{name}/alarms`.
@@ -97,22 +151,11 @@ async fn alarm_history(
     axum::extract::Query(q): axum::extract::Query<HistoryQuery>,
 ) -> Response {
     let limit = q.limit.unwrap_or(DEFAULT_HISTORY_LIMIT).min(MAX_HISTORY_LIMIT);
-    let (reader, component) = (s.journal.clone(), name.clone());
-    let rows = match tokio::task::spawn_blocking(move || reader.component(&component, limit)).await {
-        Ok(Ok(rows)) => rows,
-        Ok(Err(e)) => return (StatusCode::INTERNAL_SERVER_ERROR, format!("{e}\n")).into_response(),
-        Err(e) => {
-            return (StatusCode::INTERNAL_SERVER_ERROR, format!("alarm journal read failed: {e}\n")).into_response()
-        }
+    let reader = s.journal.clone();
+    let rows = match component_rows(&s, &name, "alarm events", move |c| reader.component(c, limit)).await {
+        Ok(rows) => rows,
+        Err(answer) => return answer,
     };
-    if rows.is_empty() {
-        let snap = s.snapshot.borrow().clone();
-        let known = snap.components.iter().any(|c| c.component == name) || snap.retired_components.contains(&name);
-        if !known {
-            return (StatusCode::NOT_FOUND, format!("no component {name:?} and no alarm events for it\n"))
-                .into_response();
-        }
-    }
     let events: Vec<serde_json::Value> = rows
         .into_iter()
         .filter_map(|(id, row)| match serde_json::from_str::<serde_json::Value>(&row.event) {

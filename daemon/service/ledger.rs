@@ -12,7 +12,10 @@
 //!
 //! The alarm events of a batch go into the store's alarm journal in the
 //! same transaction; at start-up the newest of them fill the snapshot's
-//! `recent_events`, so the alarm history shown survives a restart.
+//! `recent_events`, so the alarm history shown survives a restart. So do
+//! the status page's trends: each `component_state` point's figures go into
+//! the store's trend table in the same transaction, and the HTTP side reads
+//! them from there.
 
 use super::settings::ServiceSettings;
 use super::snapshot::{ServiceCounters, Snapshot};
@@ -23,7 +26,7 @@ use crate::ingest::{now_ms, Inbound};
 use crate::replay::{tag_index, TagIndex};
 use crate::report::{component_point, rfc3339_ms, threshold_points, ComponentReport};
 use crate::settings::LoadedConfig;
-use crate::store::{Commit, JournalEntry, Store};
+use crate::store::{Commit, JournalEntry, Store, TrendPoint};
 use rumqttc::{AsyncClient, Publish, QoS};
 use std::collections::{BTreeSet, HashMap};
 use std::sync::Arc;
@@ -96,8 +99,9 @@ pub struct Ledger {
     holding: bool,
     /// Outbox lines not tied to a component change (thresholds, health).
     extra_outbox: Vec<String>,
-    trends: super::snapshot::Trends,
-    trends_tx: watch::Sender<Arc<super::snapshot::Trends>>,
+    /// Trend points of a commit that failed, written with the next one
+    /// (like `extra_outbox`).
+    trend_points: Vec<(String, TrendPoint)>,
     recent_events: std::collections::VecDeque<AlarmEvent>,
     /// Commit even with nothing pending (an HTTP command changed alarms).
     force_commit: bool,
@@ -106,11 +110,6 @@ pub struct Ledger {
 
 /// Alarm events kept in memory for the snapshot (`recent_events`).
 const RECENT_EVENTS: usize = 200;
-
-/// Points kept per component for trends: bounded in total.
-fn trend_cap(ncomp: usize) -> usize {
-    (2_000_000 / ncomp.max(1)).clamp(50, 5000)
-}
 
 /// The newest [`RECENT_EVENTS`] events of the alarm journal, oldest first
 /// (as `recent_events` keeps them). An unreadable entry is logged and
@@ -143,10 +142,10 @@ impl Ledger {
         service: ServiceSettings,
         client: AsyncClient,
         snapshot_tx: watch::Sender<Arc<Snapshot>>,
-        trends_tx: watch::Sender<Arc<super::snapshot::Trends>>,
     ) -> anyhow::Result<Ledger> {
         let mut store = Store::open(&service.store.path)?;
         store.set_alarm_journal_max_events(service.store.alarm_journal_max_events);
+        store.set_trend_points_per_component(service.store.trend_points_per_component);
         let loaded = store.load()?;
         let recent_events = recent_events(&store)?;
         let mut engine = Engine::new(cfg.plan.clone());
@@ -228,8 +227,7 @@ impl Ledger {
             outbox: stats,
             holding: false,
             extra_outbox: vec![],
-            trends: Default::default(),
-            trends_tx,
+            trend_points: vec![],
             recent_events,
             force_commit: false,
             last_sensor_check: Instant::now() - Duration::from_secs(60),
@@ -528,6 +526,7 @@ impl Ledger {
             && self.extra_outbox.is_empty()
             && self.events.is_empty()
             && self.dirty_alarms.is_empty()
+            && self.trend_points.is_empty()
         {
             self.force_commit = false;
             return;
@@ -538,6 +537,7 @@ impl Ledger {
         let interval = self.service.store.series_interval_s.max(1) * 1000;
         let mut components = Vec::with_capacity(changed.len());
         let mut outbox = std::mem::take(&mut self.extra_outbox);
+        let mut trend_points = std::mem::take(&mut self.trend_points);
         for &ci in &changed {
             let plan = &self.engine.plan().components[ci];
             let st = &self.engine.components()[ci];
@@ -549,20 +549,18 @@ impl Ledger {
                         outbox.push(l);
                         self.counters.series_points += 1;
                     }
-                    let cap = trend_cap(self.next_series_ms.len());
-                    let q = self.trends.components.entry(plan.name.clone()).or_default();
-                    q.push_back(super::snapshot::TrendPoint {
-                        t,
-                        metal_temperature_c: crate::physics::units::kelvin_to_celsius(st.now.metal_temperature_k),
-                        pressure_mpa: st.now.pressure_mpa,
-                        hoop_stress_mpa: st.now.hoop_stress_mpa,
-                        creep_life_fraction: st.life_fraction,
-                        creep_strain: st.creep_strain,
-                        wear_index: st.wear_index(plan),
-                    });
-                    while q.len() > cap {
-                        q.pop_front();
-                    }
+                    trend_points.push((
+                        plan.name.clone(),
+                        TrendPoint {
+                            t,
+                            metal_temperature_c: crate::physics::units::kelvin_to_celsius(st.now.metal_temperature_k),
+                            pressure_mpa: st.now.pressure_mpa,
+                            hoop_stress_mpa: st.now.hoop_stress_mpa,
+                            creep_life_fraction: st.life_fraction,
+                            creep_strain: st.creep_strain,
+                            wear_index: st.wear_index(plan),
+                        },
+                    ));
                     outbox.extend(threshold_points(&plant, plan, t).into_iter().filter_map(|p| p.to_line()));
                     self.next_series_ms[ci] = (t.div_euclid(interval) + 1) * interval;
                 }
@@ -619,6 +617,7 @@ impl Ledger {
             meta: &meta,
             outbox: &outbox,
             alarm_events: &journal,
+            trend_points: &trend_points,
         };
         match self.store.commit(&commit) {
             Ok(stats) => {
@@ -659,6 +658,7 @@ impl Ledger {
                     self.engine.mark_changed(ci);
                 }
                 self.extra_outbox = outbox;
+                self.trend_points = trend_points;
             }
         }
         self.publish_snapshot(false);
@@ -740,6 +740,7 @@ impl Ledger {
         self.templates = service.mqtt.templates().unwrap_or_default();
         self.book.set_config(service.alarms.clone());
         self.store.set_alarm_journal_max_events(service.store.alarm_journal_max_events);
+        self.store.set_trend_points_per_component(service.store.trend_points_per_component);
         self.next_series_ms = vec![i64::MIN; cfg.plan.components.len()];
         self.sensor = vec![(false, false); cfg.plan.tags.len()];
         self.sensor_latched = vec![(false, false); cfg.plan.tags.len()];
@@ -762,7 +763,6 @@ impl Ledger {
             return;
         }
         self.last_snapshot = Instant::now();
-        let _ = self.trends_tx.send(Arc::new(self.trends.clone()));
         let components: Vec<ComponentReport> = self
             .engine
             .plan()

@@ -8,7 +8,8 @@
 //!   connection; group-commits, then acknowledges;
 //! * outbox sender ([`outbox`]): drains the outbox to the database;
 //! * HTTP ([`http`]): health, readiness, metrics, JSON snapshot, alarm
-//!   history (from the store's alarm journal).
+//!   history and component trends (from the store's alarm journal and
+//!   trend table).
 //!
 //! Shutdown is a broadcast signal every task listens for. SIGTERM or SIGINT:
 //! intake stops, the ledger commits and acknowledges what it has, the
@@ -56,9 +57,8 @@ pub async fn run_until(config_path: &Path, stop: impl std::future::Future<Output
     let options = svc.mqtt.options().map_err(|e| anyhow::anyhow!(e))?;
     let (client, eventloop) = rumqttc::AsyncClient::new(options, 4096);
     let (snap_tx, snap_rx) = watch::channel(Arc::new(snapshot::Snapshot::default()));
-    let (trend_tx, trend_rx) = watch::channel(Arc::new(snapshot::Trends::default()));
     let library = Arc::new(cfg.library.clone());
-    let ledger = Ledger::open(cfg, svc.clone(), client.clone(), snap_tx, trend_tx)
+    let ledger = Ledger::open(cfg, svc.clone(), client.clone(), snap_tx)
         .with_context(|| format!("opening the ledger {}", svc.store.path.display()))?;
     let filters = Ledger::filters(&svc);
 
@@ -76,11 +76,11 @@ pub async fn run_until(config_path: &Path, stop: impl std::future::Future<Output
     };
     let http_state = http::HttpState {
         snapshot: snap_rx.clone(),
-        trends: trend_rx,
         token,
         commands: in_tx.clone(),
         library,
         journal: crate::store::JournalReader::new(&svc.store.path),
+        trend: crate::store::TrendReader::new(&svc.store.path),
     };
     let mut http_shutdown = shutdown_tx.subscribe();
     let http_task = tokio::spawn(async move {

@@ -29,6 +29,11 @@ pub struct StoreSettings {
     /// ones are deleted in the commit that adds new ones). At least 1.
     #[serde(default = "default_journal")]
     pub alarm_journal_max_events: u64,
+    /// Trend points kept per component for the status page (the newest;
+    /// a component may hold a tenth more before it is pruned back). At
+    /// least 1.
+    #[serde(default = "default_trend")]
+    pub trend_points_per_component: u64,
 }
 
 fn default_path() -> PathBuf {
@@ -46,6 +51,9 @@ fn default_health() -> u64 {
 fn default_journal() -> u64 {
     crate::store::journal::DEFAULT_MAX_EVENTS
 }
+fn default_trend() -> u64 {
+    crate::store::trend::DEFAULT_POINTS_PER_COMPONENT
+}
 
 impl Default for StoreSettings {
     fn default() -> Self {
@@ -55,6 +63,7 @@ impl Default for StoreSettings {
             series_interval_s: default_series(),
             health_interval_s: default_health(),
             alarm_journal_max_events: default_journal(),
+            trend_points_per_component: default_trend(),
         }
     }
 }
@@ -131,6 +140,13 @@ impl ServiceSettings {
                     .into(),
             );
         }
+        if store.as_ref().is_some_and(|s| s.trend_points_per_component == 0) {
+            errors.push(format!(
+                "[store]: trend_points_per_component = 0 would keep no trend for the status page; set at least 1 \
+                 (the default {} is one week of points at series_interval_s = 60)",
+                default_trend()
+            ));
+        }
         let database = section::<DatabaseSettings>("database", &s.database).unwrap_or_else(|e| {
             errors.push(e);
             None
@@ -184,5 +200,21 @@ mod tests {
         assert!(errors[0].contains("[store]") && errors[0].contains("set at least 1"), "{}", errors[0]);
         let typo = store_section("alarm_journal_max = 5").unwrap_err();
         assert!(typo[0].contains("unknown field"), "{typo:?}");
+    }
+
+    #[test]
+    fn the_trend_keeps_a_week_of_minutes_per_component_unless_told() {
+        assert_eq!(store_section("").unwrap().store.trend_points_per_component, 10_080);
+        assert_eq!(StoreSettings::default().trend_points_per_component, 10_080);
+        let s = store_section("trend_points_per_component = 500").unwrap();
+        assert_eq!(s.store.trend_points_per_component, 500);
+    }
+
+    #[test]
+    fn a_trend_of_nothing_is_refused_with_the_fix() {
+        let errors = store_section("trend_points_per_component = 0\nalarm_journal_max_events = 0").unwrap_err();
+        assert_eq!(errors.len(), 2, "both problems at once: {errors:?}");
+        let trend = errors.iter().find(|e| e.contains("trend_points_per_component")).unwrap();
+        assert!(trend.contains("[store]") && trend.contains("set at least 1"), "{trend}");
     }
 }

@@ -28,25 +28,6 @@ pub struct ServiceCounters {
     pub series_points: u64,
 }
 
-/// One point of a component's recent trend (for the status page).
-#[derive(Debug, Clone, Copy, Serialize)]
-pub struct TrendPoint {
-    /// Event time, ms since the epoch.
-    pub t: i64,
-    pub metal_temperature_c: f64,
-    pub pressure_mpa: f64,
-    pub hoop_stress_mpa: f64,
-    pub creep_life_fraction: f64,
-    pub creep_strain: f64,
-    pub wear_index: f64,
-}
-
-/// Recent trends of every component, newest last, bounded per component.
-#[derive(Debug, Clone, Default, Serialize)]
-pub struct Trends {
-    pub components: BTreeMap<String, std::collections::VecDeque<TrendPoint>>,
-}
-
 /// What `/api/components`, `/metrics`, `/healthz` and `/readyz` show.
 #[derive(Debug, Clone, Default, Serialize)]
 pub struct Snapshot {

@@ -20,9 +20,9 @@
 
 use std::path::{Path, PathBuf};
 
-use rusqlite::{Connection, OpenFlags, Row};
+use rusqlite::{Connection, Row};
 
-use super::{Store, StoreError, BUSY_TIMEOUT};
+use super::{read_only, Store, StoreError};
 
 /// How many events the journal keeps when the configuration does not say.
 pub const DEFAULT_MAX_EVENTS: u64 = 10_000;
@@ -116,9 +116,7 @@ impl JournalReader {
     /// ids. Blocking: call it off the async runtime's worker threads.
     pub fn component(&self, component: &str, limit: usize) -> Result<Vec<(i64, JournalEntry)>, StoreError> {
         let fail = |e| StoreError::sqlite(&self.path, "reading the alarm journal", e);
-        let flags = OpenFlags::SQLITE_OPEN_READ_ONLY | OpenFlags::SQLITE_OPEN_NO_MUTEX;
-        let conn = Connection::open_with_flags(&self.path, flags).map_err(fail)?;
-        conn.busy_timeout(BUSY_TIMEOUT).map_err(fail)?;
+        let conn = read_only(&self.path).map_err(fail)?;
         newest(&conn, Some(component), limit).map_err(fail)
     }
 }
@@ -126,8 +124,9 @@ impl JournalReader {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::store::tests::fresh;
-    use crate::store::{schema, Commit, Loaded};
+    use crate::store::schema;
+    use crate::store::tests::{assert_upgraded_with_v1_rows, earlier_ledger, fresh};
+    use crate::store::Commit;
 
     fn entry(n: i64, component: &str) -> JournalEntry {
         JournalEntry {
@@ -226,40 +225,10 @@ mod tests {
     fn a_version_1_ledger_is_upgraded_and_keeps_its_data() {
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("ledger.db");
-        // A ledger as the previous release wrote it: schema version 1, data
-        // in every table, closed.
-        {
-            let mut conn = Connection::open(&path).unwrap();
-            conn.pragma_update(None, "journal_mode", "WAL").unwrap();
-            schema::migrate(&mut conn, &path, &schema::MIGRATIONS[..1]).unwrap();
-            conn.execute_batch(
-                r#"INSERT INTO component VALUES ('sh-1', '{"d":0.5}');
-                   INSERT INTO tag VALUES ('TI-101', '{"cursor_ms":1}');
-                   INSERT INTO alarm VALUES ('sh-1/creep_life_fraction', '{"state":"acknowledged"}');
-                   INSERT INTO meta VALUES ('engine_counters', '{"accepted":7}');
-                   INSERT INTO outbox (line) VALUES ('m v=1 1');
-                   UPDATE outbox_total SET lines = 1, bytes = 7;"#,
-            )
-            .unwrap();
-        }
-        assert_eq!(schema::inspect(&path).unwrap(), schema::Found::Ledger(1));
-
+        // A ledger as the release before the journal wrote it.
+        earlier_ledger(&path, 1);
         let mut store = Store::open(&path).unwrap();
-        let version: i64 = store.conn.pragma_query_value(None, "user_version", |r| r.get(0)).unwrap();
-        assert_eq!(version, i64::from(schema::SCHEMA_VERSION));
-        let pair = |k: &str, v: &str| vec![(k.to_string(), v.to_string())];
-        assert_eq!(
-            store.load().unwrap(),
-            Loaded {
-                components: pair("sh-1", r#"{"d":0.5}"#),
-                tags: pair("TI-101", r#"{"cursor_ms":1}"#),
-                alarms: pair("sh-1/creep_life_fraction", r#"{"state":"acknowledged"}"#),
-                meta: pair("engine_counters", r#"{"accepted":7}"#),
-            }
-        );
-        let outbox: Vec<String> = store.outbox_batch(10, usize::MAX).unwrap().into_iter().map(|(_, l)| l).collect();
-        assert_eq!(outbox, ["m v=1 1"]);
-        assert_eq!(store.outbox_stats().unwrap().lines, 1);
+        assert_upgraded_with_v1_rows(&store);
 
         // The new journal starts empty and takes events.
         assert!(store.alarm_journal_newest(10).unwrap().is_empty());

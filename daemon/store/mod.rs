@@ -1,18 +1,20 @@
 //! The durable ledger: one SQLite file holding component states, tag
-//! cursors, alarm records, service counters and the outbox of line-protocol
-//! points not yet accepted by the time-series database.
+//! cursors, alarm records, service counters, the alarm journal, component
+//! trends and the outbox of line-protocol points not yet accepted by the
+//! time-series database.
 //!
 //! The store is generic over JSON text: it stores and returns strings and
 //! knows nothing of engine types, so the engine's state can evolve without
-//! touching SQL. It is plain synchronous Rust; the service owns one
+//! touching SQL. Trend points are the one exception: plain numbers in
+//! columns of their own, so that a window of them is one indexed read. It is plain synchronous Rust; the service owns one
 //! [`Store`] on a dedicated thread and sends it batches.
 //!
 //! # Why it is built this way
 //!
 //! * **One transaction per batch.** [`Store::commit`] writes component
-//!   states, tag cursors, alarms, alarm events, counters and outbox lines
-//!   together, so a
-//!   crash at any instant leaves them all from the same batch: the ledger
+//!   states, tag cursors, alarms, alarm events, trend points, counters and
+//!   outbox lines together, so a crash at any instant leaves them all from
+//!   the same batch: the ledger
 //!   never holds damage whose points are missing from the outbox, nor a
 //!   cursor ahead of the state it guards. MQTT messages are acked only after
 //!   `commit` returns (invariant 2).
@@ -29,14 +31,17 @@
 //!   fix, and is not modified.
 //!
 //! The parts: [`schema`] (identity and migrations), [`outbox`] (draining the
-//! outbox), [`journal`] (the bounded history of alarm events), [`error`]
-//! (what can go wrong, for people).
+//! outbox), [`journal`] (the bounded history of alarm events), [`trend`]
+//! (the bounded per-component trends of the status page), [`error`] (what
+//! can go wrong, for people).
 
 pub mod error;
 pub mod journal;
 pub mod outbox;
 pub mod schema;
+pub mod trend;
 
+use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::time::Duration;
 
@@ -46,10 +51,11 @@ pub use error::StoreError;
 pub use journal::{JournalEntry, JournalReader};
 pub use outbox::OutboxStats;
 pub use schema::{APPLICATION_ID, SCHEMA_VERSION};
+pub use trend::{TrendPoint, TrendReader, TrendWindow};
 
 /// How long a write waits for a lock held by another connection (an
 /// operator's `sqlite3`, a backup) before it fails with "busy".
-pub(crate) const BUSY_TIMEOUT: Duration = Duration::from_secs(5);
+const BUSY_TIMEOUT: Duration = Duration::from_secs(5);
 
 /// After a checkpoint, SQLite truncates the write-ahead log back to this
 /// size, so one burst of writes does not leave a large `-wal` file behind.
@@ -62,6 +68,11 @@ pub struct Store {
     path: PathBuf,
     /// How many alarm events the journal keeps (see [`journal`]).
     journal_max_events: u64,
+    /// How many points each component's trend keeps (see [`trend`]).
+    trend_keep: u64,
+    /// Trend points per component as far as this connection knows: counted
+    /// at a component's first point, kept up to date by the commits.
+    trend_rows: BTreeMap<String, u64>,
 }
 
 /// One batch of changes, written by [`Store::commit`] in one transaction.
@@ -85,9 +96,12 @@ pub struct Commit<'a> {
     /// Alarm events raised by this batch, appended to the journal in slice
     /// order; the journal is then pruned to its limit.
     pub alarm_events: &'a [JournalEntry],
+    /// (component name, trend point): upserted by event time, then each
+    /// component is pruned to its bound (see [`trend`]).
+    pub trend_points: &'a [(String, TrendPoint)],
 }
 
-/// Everything but the outbox and the alarm journal, as [`Store::load`]
+/// Everything but the outbox, the alarm journal and the trends, as [`Store::load`]
 /// reads it at start-up.
 /// Each list is sorted by key.
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
@@ -135,7 +149,13 @@ impl Store {
             .map_err(|e| StoreError::sqlite(path, "opening the ledger for writing", e))?;
         configure(&conn, path)?;
         schema::migrate(&mut conn, path, schema::MIGRATIONS)?;
-        Ok(Store { conn, path: path.into(), journal_max_events: journal::DEFAULT_MAX_EVENTS })
+        Ok(Store {
+            conn,
+            path: path.into(),
+            journal_max_events: journal::DEFAULT_MAX_EVENTS,
+            trend_keep: trend::DEFAULT_POINTS_PER_COMPONENT,
+            trend_rows: BTreeMap::new(),
+        })
     }
 
     /// The ledger file this store writes.
@@ -194,9 +214,12 @@ impl Store {
         )
         .map_err(fail)?;
         journal::append(&tx, c.alarm_events, keep).map_err(fail)?;
+        let trend_rows = trend::upsert(&tx, c.trend_points, self.trend_keep, &self.trend_rows).map_err(fail)?;
         outbox::append(&tx, c.outbox).map_err(fail)?;
         let stats = outbox::totals(&tx).map_err(fail)?;
         tx.commit().map_err(fail)?;
+        // Only now: a rolled-back batch must leave the counts as they were.
+        self.trend_rows.extend(trend_rows);
         Ok(CommitStats { outbox: stats })
     }
 }
@@ -211,6 +234,14 @@ fn upsert(conn: &Connection, sql: &str, rows: &[(String, String)]) -> rusqlite::
         stmt.execute((key, json))?;
     }
     Ok(())
+}
+
+/// A read-only connection to the ledger at `path`, for readers outside the
+/// ledger thread (WAL lets them read while it writes).
+pub(crate) fn read_only(path: &Path) -> rusqlite::Result<Connection> {
+    let conn = Connection::open_with_flags(path, OpenFlags::SQLITE_OPEN_READ_ONLY | OpenFlags::SQLITE_OPEN_NO_MUTEX)?;
+    conn.busy_timeout(BUSY_TIMEOUT)?;
+    Ok(conn)
 }
 
 /// Sets the per-connection behaviour the durability promises rest on, and
@@ -240,6 +271,46 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let store = Store::open(&dir.path().join("ledger.db")).unwrap();
         (dir, store)
+    }
+
+    /// Writes at `path` a ledger as an earlier release left it: schema
+    /// `version` (the first `version` migrations), a row in every table of
+    /// version 1, closed. Check it with [`assert_upgraded_with_v1_rows`].
+    pub(super) fn earlier_ledger(path: &Path, version: u32) {
+        let mut conn = Connection::open(path).unwrap();
+        conn.pragma_update(None, "journal_mode", "WAL").unwrap();
+        schema::migrate(&mut conn, path, &schema::MIGRATIONS[..version as usize]).unwrap();
+        conn.execute_batch(
+            r#"INSERT INTO component VALUES ('sh-1', '{"d":0.5}');
+               INSERT INTO tag VALUES ('TI-101', '{"cursor_ms":1}');
+               INSERT INTO alarm VALUES ('sh-1/creep_life_fraction', '{"state":"acknowledged"}');
+               INSERT INTO meta VALUES ('engine_counters', '{"accepted":7}');
+               INSERT INTO outbox (line) VALUES ('m v=1 1');
+               UPDATE outbox_total SET lines = 1, bytes = 7;"#,
+        )
+        .unwrap();
+        drop(conn);
+        assert_eq!(schema::inspect(path).unwrap(), schema::Found::Ledger(version));
+    }
+
+    /// `store`, opened on an [`earlier_ledger`], is at this build's schema
+    /// version and holds the version-1 rows as they were.
+    pub(super) fn assert_upgraded_with_v1_rows(store: &Store) {
+        let version: i64 = store.conn.pragma_query_value(None, "user_version", |r| r.get(0)).unwrap();
+        assert_eq!(version, i64::from(SCHEMA_VERSION));
+        let pair = |k: &str, v: &str| vec![(k.to_string(), v.to_string())];
+        assert_eq!(
+            store.load().unwrap(),
+            Loaded {
+                components: pair("sh-1", r#"{"d":0.5}"#),
+                tags: pair("TI-101", r#"{"cursor_ms":1}"#),
+                alarms: pair("sh-1/creep_life_fraction", r#"{"state":"acknowledged"}"#),
+                meta: pair("engine_counters", r#"{"accepted":7}"#),
+            }
+        );
+        let outbox: Vec<String> = store.outbox_batch(10, usize::MAX).unwrap().into_iter().map(|(_, l)| l).collect();
+        assert_eq!(outbox, ["m v=1 1"]);
+        assert_eq!(store.outbox_stats().unwrap().lines, 1);
     }
 
     #[test]
@@ -283,6 +354,16 @@ mod tests {
             index: "creep".into(),
             event: r#"{"state":"unacknowledged"}"#.into(),
         }];
+        let point = TrendPoint {
+            t: 1_700_000_000_000,
+            metal_temperature_c: 545.5,
+            pressure_mpa: 17.0,
+            hoop_stress_mpa: 70.25,
+            creep_life_fraction: 0.125,
+            creep_strain: 2.5e-4,
+            wear_index: 0.0,
+        };
+        let trend_points = vec![("sh-1".to_string(), point)];
         {
             let mut store = Store::open(&path).unwrap();
             let batch = Commit {
@@ -292,6 +373,7 @@ mod tests {
                 meta: &meta,
                 outbox: &outbox,
                 alarm_events: &events,
+                trend_points: &trend_points,
             };
             store.commit(&batch).unwrap();
         }
@@ -304,6 +386,7 @@ mod tests {
         assert_eq!(lines, outbox);
         let journal: Vec<JournalEntry> = store.alarm_journal_newest(10).unwrap().into_iter().map(|(_, e)| e).collect();
         assert_eq!(journal, events);
+        assert_eq!(store.trend("sh-1", TrendWindow::ALL).unwrap(), [point]);
     }
 
     #[test]

@@ -41,6 +41,7 @@ pub const MIGRATIONS: &[Migration] = &[
         apply: v1_initial,
     },
     Migration { summary: "the alarm journal: every alarm event, newest kept", apply: v2_alarm_journal },
+    Migration { summary: "component trends: the status page's points by component and event time", apply: v3_trend },
 ];
 
 /// The newest schema version this build knows: the number of migrations.
@@ -89,6 +90,30 @@ fn v2_alarm_journal(tx: &Transaction<'_>) -> rusqlite::Result<()> {
              event TEXT NOT NULL
          );
          CREATE INDEX alarm_journal_by_component ON alarm_journal (component, id);",
+    )
+}
+
+/// Version 3: component trends, what the status page draws.
+///
+/// One row per `component_state` point: its event time and the figures
+/// the page plots. The primary key (component, event time) makes a point
+/// written again at the same time an update, and `WITHOUT ROWID` stores
+/// the rows in that order, so a component's newest points are one range
+/// of one B-tree (no second index to keep). Values are nullable: SQLite
+/// stores a NaN as `NULL`.
+fn v3_trend(tx: &Transaction<'_>) -> rusqlite::Result<()> {
+    tx.execute_batch(
+        "CREATE TABLE trend_point (
+             component TEXT NOT NULL,
+             t_ms INTEGER NOT NULL,
+             metal_temperature_c REAL,
+             pressure_mpa REAL,
+             hoop_stress_mpa REAL,
+             creep_life_fraction REAL,
+             creep_strain REAL,
+             wear_index REAL,
+             PRIMARY KEY (component, t_ms)
+         ) WITHOUT ROWID;",
     )
 }
 

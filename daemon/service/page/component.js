@@ -303,7 +303,7 @@
       trendErr = null;
     } catch (e) {
       trend = null;
-      trendErr = e.status === 404 ? 'No trend for this component yet: the service keeps trends in memory, from its start.' : 'Trend: ' + e.message;
+      trendErr = e.status === 404 ? 'No trend for this component in the ledger.' : 'Trend: ' + e.message;
     }
   }
 
