@@ -15,6 +15,8 @@ use axum::response::{IntoResponse, Response};
 use axum::routing::get;
 use axum::Router;
 
+/// The head, top bar and caution every page shares.
+const FRAME_HTML: &str = include_str!("frame.html");
 const INDEX_HTML: &str = include_str!("index.html");
 const COMPONENT_HTML: &str = include_str!("component.html");
 const APP_CSS: &str = include_str!("app.css");
@@ -36,17 +38,22 @@ pub fn routes() -> Router<HttpState> {
 }
 
 async fn index(State(s): State<HttpState>) -> Response {
-    page(&s, INDEX_HTML)
+    page(&s, "", "overview", INDEX_HTML)
 }
 
 async fn component(State(s): State<HttpState>) -> Response {
-    page(&s, COMPONENT_HTML)
+    page(&s, "Component · ", "component", COMPONENT_HTML)
 }
 
-/// A page with the plant name and the caution filled in.
-fn page(s: &HttpState, template: &str) -> Response {
+/// A page in the shared frame, with its title prefix, page id, the plant
+/// name and the caution filled in.
+fn page(s: &HttpState, title: &str, id: &str, template: &str) -> Response {
     let plant = s.snapshot.borrow().plant.clone();
-    let body = template.replace("{{CAUTION}}", &html(crate::CAUTION)).replace("{{PLANT}}", &html(&plant));
+    let frame = FRAME_HTML.replace("{{TITLE}}", title).replace("{{PAGE}}", id);
+    let body = template
+        .replace("{{FRAME}}", &frame)
+        .replace("{{CAUTION}}", &html(crate::CAUTION))
+        .replace("{{PLANT}}", &html(&plant));
     let mut r = ([(header::CONTENT_TYPE, "text/html; charset=utf-8")], body).into_response();
     r.headers_mut().insert(header::CACHE_CONTROL, HeaderValue::from_static("no-cache"));
     r
@@ -69,11 +76,16 @@ mod tests {
 
     #[test]
     fn pages_have_their_placeholders_and_assets() {
-        for t in [INDEX_HTML, COMPONENT_HTML] {
-            assert!(t.contains("{{CAUTION}}") && t.contains("{{PLANT}}"));
-            assert!(t.contains("/page/app.css") && t.contains("/page/app.js"));
-            // No asset may come from elsewhere: the plant network is closed.
+        assert!(FRAME_HTML.contains("{{CAUTION}}") && FRAME_HTML.contains("{{PLANT}}"));
+        assert!(FRAME_HTML.contains("{{TITLE}}") && FRAME_HTML.contains("{{PAGE}}"));
+        assert!(FRAME_HTML.contains("/page/app.css"));
+        // No asset may come from elsewhere: the plant network is closed.
+        for t in [FRAME_HTML, INDEX_HTML, COMPONENT_HTML] {
             assert!(!t.contains("http://") && !t.contains("https://"));
+        }
+        for t in [INDEX_HTML, COMPONENT_HTML] {
+            assert!(t.starts_with("{{FRAME}}"));
+            assert!(t.contains("/page/app.js"));
         }
         for a in [APP_CSS, APP_JS, OVERVIEW_JS, COMPONENT_JS, ICON_SVG] {
             // The SVG namespace is a name, not a download.
