@@ -6,6 +6,7 @@
   const { $, esc } = LL;
   const name = decodeURIComponent(location.pathname.replace(/^\/component\//, '').replace(/\/+$/, ''));
   const WINDOW_KEY = 'lifeledger.trend-window';
+  const MAX_TREND_POINTS = 50000;
   let snap = null, comp = null, alarms = null, trend = null, trendErr = null;
   // This component's alarm history from the durable journal; null until
   // (or unless) it loads, then the snapshot's recent events stand in.
@@ -297,9 +298,19 @@
     renderMaterial();
   }
 
+  // The whole trend once, then only the points newer than the newest one
+  // held (the store keeps a week or more per component).
   async function loadTrend() {
+    const base = '/api/components/' + encodeURIComponent(name) + '/trend';
     try {
-      trend = await LL.api('/api/components/' + encodeURIComponent(name) + '/trend');
+      const pts = trend && trend.points;
+      if (pts && pts.length) {
+        const newer = await LL.api(base + '?since_ms=' + (pts[pts.length - 1].t + 1));
+        for (const p of newer.points || []) pts.push(p);
+        if (pts.length > MAX_TREND_POINTS) pts.splice(0, pts.length - MAX_TREND_POINTS);
+      } else {
+        trend = await LL.api(base);
+      }
       trendErr = null;
     } catch (e) {
       trend = null;
