@@ -360,6 +360,22 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
             return Ok(1);
         }
     };
+    // The service sections too: what `run` would refuse must fail here,
+    // before a deployment. Only addresses and paths are shown, never
+    // credentials.
+    let service = match lifeledger::service::settings::ServiceSettings::from_settings(&cfg.settings) {
+        Ok(s) => s,
+        Err(errs) => {
+            eprintln!("configuration {}:\n  - {}", cfg.file, errs.join("\n  - "));
+            return Ok(1);
+        }
+    };
+    let service_summary = serde_json::json!({
+        "mqtt": format!("{}:{}", service.mqtt.host, service.mqtt.port),
+        "store": service.store.path.display().to_string(),
+        "database": service.database.as_ref().map(|d| lifeledger::sink::redacted_url(&d.url)),
+        "http": service.http.listen,
+    });
     let checks: Vec<_> = cfg.plan.components.iter().map(report::design_check).collect();
     let mut out = std::io::stdout().lock();
     if format == Format::Json {
@@ -367,6 +383,7 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
             "config": cfg.file,
             "ok": true,
             "warnings": cfg.warnings.iter().map(|w| w.to_string()).collect::<Vec<_>>(),
+            "service": service_summary,
             "components": checks,
             "caution": lifeledger::CAUTION,
         });
@@ -375,6 +392,15 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
         return Ok(0);
     }
     writeln!(out, "{}: OK, {} tags, {} components", cfg.file, cfg.plan.tags.len(), cfg.plan.components.len())?;
+    writeln!(
+        out,
+        "service: MQTT {}:{}, ledger {}, database {}, HTTP {}",
+        service.mqtt.host,
+        service.mqtt.port,
+        service.store.path.display(),
+        service.database.as_ref().map_or("none".to_string(), |d| lifeledger::sink::redacted_url(&d.url)),
+        service.http.listen
+    )?;
     for w in &cfg.warnings {
         writeln!(out, "warning: {w}")?;
     }

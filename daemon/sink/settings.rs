@@ -149,12 +149,26 @@ impl DatabaseSettings {
     }
 }
 
+/// `url` with any `user:password@` part replaced by `***@`: the form in
+/// which a database URL may be printed or logged.
+pub fn redacted_url(url: &str) -> String {
+    if let Some((scheme, rest)) = url.split_once("://") {
+        let host_end = rest.find(['/', '?', '#']).unwrap_or(rest.len());
+        if let Some(at) = rest[..host_end].rfind('@') {
+            return format!("{scheme}://***@{}", &rest[at + 1..]);
+        }
+    }
+    url.to_string()
+}
+
 /// Accepts `http(s)://host[:port][/]` only. The influxdb2 client replaces
 /// the URL's path with `/api/v2/write`, so a path prefix (say a proxy's
 /// `/influx`) would be silently dropped; refuse it instead.
 fn check_url(url: &str) -> Result<(), SinkError> {
-    let bad =
-        |why: &str| Err(SinkError::Config(format!("database.url = {url:?}: {why}; write it as http://HOST:PORT")));
+    let bad = |why: &str| {
+        let shown = redacted_url(url);
+        Err(SinkError::Config(format!("database.url = {shown:?}: {why}; write it as http://HOST:PORT")))
+    };
     let Some(("http" | "https", rest)) = url.split_once("://") else {
         return bad("the scheme must be http or https");
     };
@@ -201,6 +215,14 @@ fn check_url(url: &str) -> Result<(), SinkError> {
 
 #[cfg(test)]
 mod tests {
+
+    #[test]
+    fn printed_urls_hide_credentials() {
+        assert_eq!(redacted_url("http://u:p@db.plant:8086"), "http://***@db.plant:8086");
+        assert_eq!(redacted_url("https://u:p%40x@db/path"), "https://***@db/path");
+        assert_eq!(redacted_url("http://db.plant:8086"), "http://db.plant:8086");
+        assert_eq!(redacted_url("http://db/?q=a@b"), "http://db/?q=a@b");
+    }
     use super::*;
 
     fn settings() -> DatabaseSettings {
