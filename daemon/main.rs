@@ -103,6 +103,20 @@ enum Command {
         #[arg(long, value_enum, default_value_t = LogFormat::Human)]
         log_format: LogFormat,
     },
+    /// Show the ledger a service keeps: per component, life used, strain, wear, remaining life, flags.
+    ///
+    /// Reads the ledger file named by [store] path in the configuration
+    /// without changing it, so it is safe while the service runs (it shows
+    /// the last committed batch). Ledgers kept for components no longer in
+    /// the configuration are listed by name.
+    #[command(after_help = CAUTION_HELP)]
+    Ledger {
+        /// Configuration file (TOML) of the service.
+        #[arg(long, short)]
+        config: PathBuf,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+    },
     /// Run everything on this machine with no external servers: embedded broker, plant simulator, live service, status page.
     ///
     /// An invented unit (Brackenmoor Demo Station, U2) is simulated, time
@@ -199,6 +213,7 @@ fn main() {
     }
     let result = match cli.command {
         Command::Run { config, .. } => cmd_run(config),
+        Command::Ledger { config, format } => cmd_ledger(&config, format),
         Command::Demo {
             duration,
             speed,
@@ -341,6 +356,46 @@ fn cmd_replay(
             write!(out, "{}", report::summary_table(&reports))?;
             if let Some(p) = &write_lp {
                 writeln!(out, "\nwrote {} line-protocol points to {}", outcome.points_written, p.display())?;
+            }
+            writeln!(out, "\n{}", lifeledger::CAUTION)?;
+        }
+    }
+    Ok(0)
+}
+
+fn cmd_ledger(config: &std::path::Path, format: Format) -> Result<i32> {
+    let (cfg, service) = lifeledger::service::load_service(config)?;
+    let path = &service.store.path;
+    let loaded = lifeledger::store::read_ledger(path)?;
+    let (state, decode_rejected) = lifeledger::service::ledger::engine_state(&loaded, path)?;
+    let mut engine = Engine::new(cfg.plan.clone());
+    let retired = engine.import_state(state);
+    let reports: Vec<ComponentReport> =
+        engine.plan().components.iter().zip(engine.components()).map(|(p, s)| ComponentReport::new(p, s)).collect();
+    let retired: Vec<&str> = retired.components.iter().map(|(n, _)| n.as_str()).collect();
+    let mut out = std::io::stdout().lock();
+    match format {
+        Format::Json => {
+            let j = serde_json::json!({
+                "plant": engine.plan().plant,
+                "config": cfg.file,
+                "ledger": path.display().to_string(),
+                "counters": engine.counters(),
+                "decode_rejected": decode_rejected,
+                "components": reports,
+                "retired_components": retired,
+                "caution": lifeledger::CAUTION,
+            });
+            serde_json::to_writer_pretty(&mut out, &j)?;
+            writeln!(out)?;
+        }
+        Format::Table => {
+            writeln!(out, "lifeledger ledger: {} ({})", engine.plant_name(), path.display())?;
+            writeln!(out, "{}", report::counters_line(engine.counters()))?;
+            writeln!(out)?;
+            write!(out, "{}", report::summary_table(&reports))?;
+            if !retired.is_empty() {
+                writeln!(out, "\nledgers kept for components no longer configured: {}", retired.join(", "))?;
             }
             writeln!(out, "\n{}", lifeledger::CAUTION)?;
         }

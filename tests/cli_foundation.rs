@@ -210,6 +210,19 @@ fn check_config_also_checks_the_service_sections() {
 }
 
 #[test]
+fn ledger_without_a_ledger_file_says_so_and_creates_nothing() {
+    let demo = std::fs::read_to_string("config/demo/plant.toml").unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let store = dir.path().join("none.sqlite");
+    let cfg = dir.path().join("plant.toml");
+    std::fs::write(&cfg, format!("{demo}\n[store]\npath = {:?}\n", store.to_str().unwrap())).unwrap();
+    let (code, _out, err) = run(&["ledger", "--config", cfg.to_str().unwrap()]);
+    assert_eq!(code, 2, "{err}");
+    assert!(err.contains("none.sqlite") && err.contains("no ledger here yet"), "{err}");
+    assert!(!store.exists(), "reading must not create a ledger");
+}
+
+#[test]
 fn unknown_keys_and_syntax_errors_name_the_line() {
     let dir = tempfile::tempdir().unwrap();
     let f = dir.path().join("typo.toml");
@@ -249,7 +262,13 @@ fn materials_show_prints_sources_and_caution() {
 
 #[test]
 fn help_teaches_and_cautions() {
-    for sub in [vec!["--help"], vec!["replay", "--help"], vec!["check-config", "--help"], vec!["materials", "--help"]] {
+    for sub in [
+        vec!["--help"],
+        vec!["replay", "--help"],
+        vec!["check-config", "--help"],
+        vec!["ledger", "--help"],
+        vec!["materials", "--help"],
+    ] {
         let (code, out, _) = run(&sub);
         assert_eq!(code, 0);
         assert!(out.contains("governing code"), "{sub:?}");

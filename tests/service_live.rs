@@ -110,7 +110,27 @@ fn live_and_replay_give_identical_ledgers() {
     assert_eq!(live["engine"]["accepted"], replay["counters"]["accepted"]);
     assert!(live["components"][0]["creep_life_fraction"].as_f64().unwrap() > 0.0);
     assert!(live["components"][1]["wear_depth_mm"].as_f64().unwrap() > 0.0);
+    // `lifeledger ledger` reads the same ledger from the file while the
+    // service runs, without changing it.
+    let file = ledger_json(&cfg);
+    compare(&file, &replay, 0.0);
+    assert_eq!(file["counters"]["accepted"], replay["counters"]["accepted"]);
+    assert!(file["caution"].as_str().unwrap().contains("governing code"));
     assert!(svc.sigterm().success());
+    let ledger = dir.path().join("ledger.sqlite");
+    let before = std::fs::read(&ledger).unwrap();
+    compare(&ledger_json(&cfg), &replay, 0.0);
+    assert!(std::fs::read(&ledger).unwrap() == before, "reading the ledger changed the file");
+}
+
+/// `lifeledger ledger --format json` on a service's configuration.
+fn ledger_json(config: &Path) -> serde_json::Value {
+    let o = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+        .args(["ledger", "--config", config.to_str().unwrap(), "--format", "json"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    serde_json::from_slice(&o.stdout).unwrap()
 }
 
 #[test]

@@ -111,6 +111,38 @@ pub struct Ledger {
 /// Alarm events kept in memory for the snapshot (`recent_events`).
 const RECENT_EVENTS: usize = 200;
 
+/// The engine state (tag cursors, component ledgers, counters) and the
+/// decoder's rejection counts held in a loaded ledger. A state that does not
+/// parse is an error naming the ledger and the entry: the service must not
+/// start over a ledger it cannot read.
+pub fn engine_state(
+    loaded: &crate::store::Loaded,
+    path: &std::path::Path,
+) -> anyhow::Result<(EngineState, std::collections::BTreeMap<String, u64>)> {
+    let mut tags = vec![];
+    for (name, json) in &loaded.tags {
+        let t: TagState =
+            serde_json::from_str(json).map_err(|e| anyhow::anyhow!("ledger {}: tag {name}: {e}", path.display()))?;
+        tags.push((name.clone(), t));
+    }
+    let mut components = vec![];
+    for (name, json) in &loaded.components {
+        let c: ComponentState = serde_json::from_str(json)
+            .map_err(|e| anyhow::anyhow!("ledger {}: component {name}: {e}", path.display()))?;
+        components.push((name.clone(), c));
+    }
+    let mut counters = crate::engine::Counters::default();
+    let mut decode_rejected = Default::default();
+    for (k, json) in &loaded.meta {
+        match k.as_str() {
+            "engine_counters" => counters = serde_json::from_str(json).unwrap_or_default(),
+            "decode_rejected" => decode_rejected = serde_json::from_str(json).unwrap_or_default(),
+            _ => {}
+        }
+    }
+    Ok((EngineState { tags, components, counters }, decode_rejected))
+}
+
 /// The newest [`RECENT_EVENTS`] events of the alarm journal, oldest first
 /// (as `recent_events` keeps them). An unreadable entry is logged and
 /// left out: it must not keep the service from starting.
@@ -149,28 +181,9 @@ impl Ledger {
         let loaded = store.load()?;
         let recent_events = recent_events(&store)?;
         let mut engine = Engine::new(cfg.plan.clone());
-        let mut tags = vec![];
-        for (name, json) in &loaded.tags {
-            let t: TagState = serde_json::from_str(json)
-                .map_err(|e| anyhow::anyhow!("ledger {}: tag {name}: {e}", service.store.path.display()))?;
-            tags.push((name.clone(), t));
-        }
-        let mut components = vec![];
-        for (name, json) in &loaded.components {
-            let c: ComponentState = serde_json::from_str(json)
-                .map_err(|e| anyhow::anyhow!("ledger {}: component {name}: {e}", service.store.path.display()))?;
-            components.push((name.clone(), c));
-        }
-        let mut counters = crate::engine::Counters::default();
-        let mut svc = ServiceCounters::default();
-        for (k, json) in &loaded.meta {
-            match k.as_str() {
-                "engine_counters" => counters = serde_json::from_str(json).unwrap_or_default(),
-                "decode_rejected" => svc.decode_rejected = serde_json::from_str(json).unwrap_or_default(),
-                _ => {}
-            }
-        }
-        let left = engine.import_state(EngineState { tags, components, counters });
+        let (state, decode_rejected) = engine_state(&loaded, &service.store.path)?;
+        let svc = ServiceCounters { decode_rejected, ..ServiceCounters::default() };
+        let left = engine.import_state(state);
         let mut records = vec![];
         for (key, json) in &loaded.alarms {
             match serde_json::from_str::<AlarmRecord>(json) {

@@ -53,6 +53,16 @@ pub enum StoreError {
         path: PathBuf,
     },
 
+    /// A read-only look at a ledger that is not there yet or is at another
+    /// schema version than this build's.
+    #[error("ledger store {}: {detail}. The file was not changed", path.display())]
+    NotReadable {
+        /// The file looked at.
+        path: PathBuf,
+        /// What is wrong and what to do.
+        detail: String,
+    },
+
     /// SQLite's `quick_check` found damage.
     #[error(
         "ledger store {}: the file is damaged (SQLite quick_check: {detail}). The file was \

@@ -166,23 +166,7 @@ impl Store {
     /// Reads every component state, tag cursor, alarm record and meta entry,
     /// all from one consistent snapshot.
     pub fn load(&self) -> Result<Loaded, StoreError> {
-        let fail = |e| StoreError::sqlite(&self.path, "loading the ledger", e);
-        // A read transaction, so the four tables come from the same commit
-        // even if another connection writes meanwhile.
-        let tx = self.conn.unchecked_transaction().map_err(fail)?;
-        let read = |sql: &str| -> rusqlite::Result<Vec<(String, String)>> {
-            let mut stmt = tx.prepare_cached(sql)?;
-            let rows = stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?)))?;
-            rows.collect()
-        };
-        let loaded = Loaded {
-            components: read("SELECT name, state FROM component ORDER BY name").map_err(fail)?,
-            tags: read("SELECT name, state FROM tag ORDER BY name").map_err(fail)?,
-            alarms: read("SELECT key, record FROM alarm ORDER BY key").map_err(fail)?,
-            meta: read("SELECT key, value FROM meta ORDER BY key").map_err(fail)?,
-        };
-        tx.finish().map_err(fail)?;
-        Ok(loaded)
+        load_from(&self.conn, &self.path)
     }
 
     /// Writes the whole batch in one transaction and returns once it is on
@@ -234,6 +218,55 @@ fn upsert(conn: &Connection, sql: &str, rows: &[(String, String)]) -> rusqlite::
         stmt.execute((key, json))?;
     }
     Ok(())
+}
+
+/// Reads a ledger without changing it, for tools that look at the ledger
+/// of a service that may be running (WAL lets them read while it writes):
+/// the same as [`Store::load`], but the file is never created, upgraded or
+/// written. A missing or empty file, or one that is not a ledger of a
+/// version this build reads, is an error that says so.
+pub fn read_ledger(path: &Path) -> Result<Loaded, StoreError> {
+    match schema::inspect(path)? {
+        schema::Found::Ledger(v) if v == SCHEMA_VERSION => {}
+        schema::Found::Ledger(v) => {
+            return Err(StoreError::NotReadable {
+                path: path.into(),
+                detail: format!(
+                    "schema version {v}, this build reads {SCHEMA_VERSION}; start the service once to upgrade it"
+                ),
+            })
+        }
+        schema::Found::Missing | schema::Found::Blank => {
+            return Err(StoreError::NotReadable {
+                path: path.into(),
+                detail: "no ledger here yet: has the service run with this [store] path?".into(),
+            })
+        }
+    }
+    let conn = read_only(path).map_err(|e| StoreError::sqlite(path, "opening the ledger for reading", e))?;
+    load_from(&conn, path)
+}
+
+/// Every component state, tag cursor, alarm record and meta entry from one
+/// read transaction on `conn`.
+fn load_from(conn: &Connection, path: &Path) -> Result<Loaded, StoreError> {
+    let fail = |e| StoreError::sqlite(path, "loading the ledger", e);
+    // A read transaction, so the four tables come from the same commit
+    // even if another connection writes meanwhile.
+    let tx = conn.unchecked_transaction().map_err(fail)?;
+    let read = |sql: &str| -> rusqlite::Result<Vec<(String, String)>> {
+        let mut stmt = tx.prepare_cached(sql)?;
+        let rows = stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?)))?;
+        rows.collect()
+    };
+    let loaded = Loaded {
+        components: read("SELECT name, state FROM component ORDER BY name").map_err(fail)?,
+        tags: read("SELECT name, state FROM tag ORDER BY name").map_err(fail)?,
+        alarms: read("SELECT key, record FROM alarm ORDER BY key").map_err(fail)?,
+        meta: read("SELECT key, value FROM meta ORDER BY key").map_err(fail)?,
+    };
+    tx.finish().map_err(fail)?;
+    Ok(loaded)
 }
 
 /// A read-only connection to the ledger at `path`, for readers outside the
