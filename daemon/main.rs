@@ -314,8 +314,7 @@ fn cmd_replay(
         f.flush()?;
     }
     let elapsed = started.elapsed().as_secs_f64();
-    let reports: Vec<ComponentReport> =
-        engine.plan().components.iter().zip(engine.components()).map(|(p, s)| ComponentReport::new(p, s)).collect();
+    let reports = component_reports(&engine);
     let mut out = std::io::stdout().lock();
     match format {
         Format::Json => {
@@ -363,6 +362,11 @@ fn cmd_replay(
     Ok(0)
 }
 
+/// The per-component summary of an engine's ledgers, in plan order.
+fn component_reports(engine: &Engine) -> Vec<ComponentReport> {
+    engine.plan().components.iter().zip(engine.components()).map(|(p, s)| ComponentReport::new(p, s)).collect()
+}
+
 fn cmd_ledger(config: &std::path::Path, format: Format) -> Result<i32> {
     let (cfg, service) = lifeledger::service::load_service(config)?;
     let path = &service.store.path;
@@ -370,8 +374,7 @@ fn cmd_ledger(config: &std::path::Path, format: Format) -> Result<i32> {
     let (state, decode_rejected) = lifeledger::service::ledger::engine_state(&loaded, path)?;
     let mut engine = Engine::new(cfg.plan.clone());
     let retired = engine.import_state(state);
-    let reports: Vec<ComponentReport> =
-        engine.plan().components.iter().zip(engine.components()).map(|(p, s)| ComponentReport::new(p, s)).collect();
+    let reports = component_reports(&engine);
     let retired: Vec<&str> = retired.components.iter().map(|(n, _)| n.as_str()).collect();
     let mut out = std::io::stdout().lock();
     match format {
