@@ -919,20 +919,19 @@ fn production_config_service_sections_are_valid_and_complete() {
     assert!(subs.iter().any(|s| s.get("payload").is_some()), "{PRODUCTION}: no [mqtt.subscription.payload]");
 
     // The environment overrides deploy/Containerfile and deploy/compose.yaml
-    // set reach the service sections. (No other test of this binary reads
-    // these variables in-process; subprocesses ignore them.)
-    let overrides = [
-        ("LIFELEDGER__MQTT__HOST", "mosquitto"),
-        ("LIFELEDGER__MQTT__PORT", "8883"),
-        ("LIFELEDGER__DATABASE__URL", "http://influxdb:8086"),
-        ("LIFELEDGER__HTTP__LISTEN", "0.0.0.0:8470"),
-        ("LIFELEDGER__STORE__PATH", "/var/lib/lifeledger/lifeledger.ledger"),
-    ];
-    for (k, v) in overrides {
+    // set, read from those files, reach the service sections. (No other test
+    // of this binary reads these variables in-process; subprocesses ignore
+    // them.)
+    let overrides = container_overrides();
+    let names: Vec<&str> = overrides.iter().map(|(k, _)| k.as_str()).collect();
+    for k in ["MQTT__HOST", "MQTT__PORT", "DATABASE__URL", "HTTP__LISTEN", "STORE__PATH"] {
+        assert!(names.contains(&format!("LIFELEDGER__{k}").as_str()), "no LIFELEDGER__{k} in the container files");
+    }
+    for (k, v) in &overrides {
         std::env::set_var(k, v);
     }
     let loaded = lifeledger::service::load_service(&path);
-    for (k, _) in overrides {
+    for (k, _) in &overrides {
         std::env::remove_var(k);
     }
     let (_, o) = loaded.unwrap_or_else(|e| panic!("{PRODUCTION} with the container's environment overrides: {e:#}"));
@@ -953,6 +952,79 @@ fn production_config_service_sections_are_valid_and_complete() {
         }
         if !l.is_empty() {
             prev = l;
+        }
+    }
+}
+
+/// `LIFELEDGER__…` settings of deploy/Containerfile (`ENV K=V`, with
+/// continuation lines) and of the lifeledger service in deploy/compose.yaml
+/// (`K: V`, a `${VAR:-default}` taken at its default), compose last.
+fn container_overrides() -> Vec<(String, String)> {
+    let mut out = vec![];
+    let containerfile = std::fs::read_to_string(repo().join("deploy/Containerfile")).unwrap();
+    for word in containerfile.split_whitespace() {
+        if let Some((k, v)) = word.split_once('=').filter(|(k, _)| k.starts_with("LIFELEDGER__")) {
+            out.push((k.to_string(), v.to_string()));
+        }
+    }
+    let compose = std::fs::read_to_string(repo().join("deploy/compose.yaml")).unwrap();
+    for line in compose.lines() {
+        if let Some((k, v)) = line.trim().split_once(": ").filter(|(k, _)| k.starts_with("LIFELEDGER__")) {
+            let v = v.trim().trim_matches('"');
+            let v = match v.strip_prefix("${").and_then(|x| x.strip_suffix('}')).and_then(|x| x.split_once(":-")) {
+                Some((_, default)) => default.to_string(),
+                None => v.to_string(),
+            };
+            out.retain(|(o, _)| o != k);
+            out.push((k.to_string(), v));
+        }
+    }
+    out
+}
+
+// Common practice for container recipes (no source): build in one stage and
+// ship only the binary in a slim one, run as a dedicated non-root user, and
+// mount only files that exist or that the deployment guide says to create.
+#[test]
+fn container_recipe_and_compose_file_hold_together() {
+    let text = std::fs::read_to_string(repo().join("deploy/Containerfile")).unwrap();
+    let froms = text.lines().filter(|l| l.starts_with("FROM ")).count();
+    assert!(froms >= 2, "deploy/Containerfile: not multi-stage ({froms} FROM)");
+    assert!(text.contains("cargo build --release --locked"), "deploy/Containerfile: build must be locked");
+    assert!(repo().join("Cargo.lock").exists(), "--locked needs Cargo.lock in the repository");
+    let user = text.lines().find_map(|l| l.strip_prefix("USER ")).expect("deploy/Containerfile: no USER");
+    assert!(!user.starts_with("root") && !user.starts_with('0'), "deploy/Containerfile runs as {user}");
+    // Everything it copies from the build context exists.
+    for line in text.lines().filter(|l| l.starts_with("COPY ") && !l.contains("--from=")) {
+        let parts: Vec<&str> = line.split_whitespace().skip(1).collect();
+        for src in &parts[..parts.len() - 1] {
+            assert!(repo().join(src).exists(), "deploy/Containerfile: COPY {src}: no such path");
+        }
+    }
+    // The configuration it runs with is the one it copies.
+    assert!(text.contains("COPY deploy/lifeledger.production.toml /etc/lifeledger/lifeledger.toml"));
+    assert!(text.contains(r#""run", "--config", "/etc/lifeledger/lifeledger.toml""#));
+
+    let compose = std::fs::read_to_string(repo().join("deploy/compose.yaml")).unwrap();
+    for service in ["mosquitto", "influxdb", "grafana", "lifeledger"] {
+        assert!(compose.contains(&format!("\n  {service}:\n")), "deploy/compose.yaml: no service {service}");
+    }
+    assert!(compose.contains("../dashboards:/var/lib/grafana/dashboards"), "Grafana must get the dashboards");
+    let guide = std::fs::read_to_string(repo().join("deploy/README.md")).unwrap();
+    for line in compose.lines() {
+        let Some(mount) = line.trim().strip_prefix("- ") else { continue };
+        let host = mount.split(':').next().unwrap();
+        if !(host.starts_with("./") || host.starts_with("../")) {
+            continue;
+        }
+        let p = repo().join("deploy").join(host);
+        // Credentials are made by the operator, never committed.
+        let made_by_operator = host.contains("/certs") || host.ends_with("/passwd");
+        if made_by_operator {
+            let name = if host.ends_with("/passwd") { "passwd" } else { "make-dev-certs.sh" };
+            assert!(guide.contains(name), "deploy/README.md must say how to create {host}");
+        } else {
+            assert!(p.exists(), "deploy/compose.yaml mounts {host}, which does not exist");
         }
     }
 }
