@@ -217,6 +217,8 @@ pub async fn run_event_loop(
     mut shutdown: broadcast::Receiver<()>,
 ) {
     let mut delay = settings.reconnect_min_s;
+    // Set once the service has sent its DISCONNECT (shutdown).
+    let mut disconnecting = false;
     // Messages received but not yet handed to the ledger. The event loop is
     // polled while they wait, so the ledger's acknowledgements (which travel
     // through the client's request queue) always get out; the queue holds at
@@ -270,7 +272,14 @@ pub async fn run_event_loop(
             Ok(Event::Incoming(Packet::Publish(p))) => {
                 waiting.push_back(Inbound::Message { publish: p, received_ms: now_ms() });
             }
+            // The service asked to disconnect (shutdown): the broker closing
+            // the connection next is the expected end, not a fault.
+            Ok(Event::Outgoing(rumqttc::Outgoing::Disconnect)) => disconnecting = true,
             Ok(_) => {}
+            Err(e) if disconnecting => {
+                tracing::debug!("MQTT connection closed after disconnect: {e}");
+                break;
+            }
             Err(e) => {
                 tracing::warn!(
                     "MQTT connection to {}:{} lost or refused: {e}; retrying in {delay:.1} s",
