@@ -233,7 +233,12 @@ fn sigterm_stops_cleanly_and_restart_resumes() {
     svc.wait_connected();
     publish_all(broker.port, &s[..600], "publisher-term-1");
     svc.wait_until_integrated(s[599].1);
-    assert!(svc.sigterm().success(), "clean exit on SIGTERM");
+    let (status, log) = svc.sigterm_with_log();
+    assert!(status.success(), "clean exit on SIGTERM");
+    // A clean stop says so, and the broker closing the connection after the
+    // service's DISCONNECT is not reported as a fault.
+    assert!(log.contains("stopped"), "{log}");
+    assert!(!log.contains("lost or refused") && !log.contains("WARN") && !log.contains("ERROR"), "{log}");
     // While it is down the broker keeps the backlog of the persistent session.
     publish_all(broker.port, &s[600..], "publisher-term-2");
     let svc = Service::start(&cfg, http_port);

@@ -290,9 +290,15 @@ impl Service {
     }
 
     /// SIGTERM and the exit status once the service has stopped.
-    pub fn sigterm(mut self) -> ExitStatus {
+    pub fn sigterm(self) -> ExitStatus {
+        self.sigterm_with_log().0
+    }
+
+    /// SIGTERM, the exit status once the service has stopped, and its log.
+    pub fn sigterm_with_log(mut self) -> (ExitStatus, String) {
         self.signal("TERM");
-        self.child.wait().unwrap()
+        let status = self.child.wait().unwrap();
+        (status, std::fs::read_to_string(&self.log).unwrap_or_default())
     }
 }
 
