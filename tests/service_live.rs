@@ -237,8 +237,10 @@ fn sigterm_stops_cleanly_and_restart_resumes() {
     assert!(status.success(), "clean exit on SIGTERM");
     // A clean stop says so, and the broker closing the connection after the
     // service's DISCONNECT is not reported as a fault.
-    assert!(log.contains("stopped"), "{log}");
-    assert!(!log.contains("lost or refused") && !log.contains("WARN") && !log.contains("ERROR"), "{log}");
+    let stopping = log.find("SIGTERM: stopping").unwrap_or_else(|| panic!("no stop in the log:\n{log}"));
+    let tail = &log[stopping..];
+    assert!(tail.contains("stopped"), "{log}");
+    assert!(!tail.contains("lost or refused") && !tail.contains("WARN") && !tail.contains("ERROR"), "{tail}");
     // While it is down the broker keeps the backlog of the persistent session.
     publish_all(broker.port, &s[600..], "publisher-term-2");
     let svc = Service::start(&cfg, http_port);
