@@ -376,6 +376,15 @@ fn cmd_ledger(config: &std::path::Path, format: Format) -> Result<i32> {
     let retired = engine.import_state(state);
     let reports = component_reports(&engine);
     let retired: Vec<&str> = retired.components.iter().map(|(n, _)| n.as_str()).collect();
+    let mut records = vec![];
+    for (key, json) in &loaded.alarms {
+        match serde_json::from_str::<lifeledger::alarm::AlarmRecord>(json) {
+            Ok(r) => records.push(r),
+            Err(e) => eprintln!("warning: ledger {}: alarm record {key} unreadable ({e}); not shown", path.display()),
+        }
+    }
+    let book = lifeledger::alarm::AlarmBook::from_records(records);
+    let alarms: Vec<_> = engine.plan().components.iter().map(|c| book.current(&c.name)).collect();
     let mut out = std::io::stdout().lock();
     match format {
         Format::Json => {
@@ -386,6 +395,7 @@ fn cmd_ledger(config: &std::path::Path, format: Format) -> Result<i32> {
                 "counters": engine.counters(),
                 "decode_rejected": decode_rejected,
                 "components": reports,
+                "alarms": alarms,
                 "retired_components": retired,
                 "caution": lifeledger::CAUTION,
             });
@@ -397,6 +407,33 @@ fn cmd_ledger(config: &std::path::Path, format: Format) -> Result<i32> {
             writeln!(out, "{}", report::counters_line(engine.counters()))?;
             writeln!(out)?;
             write!(out, "{}", report::summary_table(&reports))?;
+            // Alarms that want attention: active, awaiting acknowledge, or shelved.
+            let name = |v: serde_json::Result<serde_json::Value>| {
+                v.ok().and_then(|v| v.as_str().map(str::to_string)).unwrap_or_default()
+            };
+            let open: Vec<_> = book
+                .records()
+                .filter(|r| {
+                    r.is_active() || r.state.needs_acknowledge() || r.state == lifeledger::alarm::AlarmState::Shelved
+                })
+                .collect();
+            if open.is_empty() {
+                writeln!(out, "\nno alarm active, unacknowledged or shelved")?;
+            } else {
+                writeln!(out, "\nalarms active, unacknowledged or shelved (as of their last change of state):")?;
+                for r in open {
+                    writeln!(
+                        out,
+                        "  {:<28} {:<30} {:<9} {:<20} level {:<8} since {}",
+                        r.component,
+                        name(serde_json::to_value(r.index)),
+                        r.severity.map(|s| name(serde_json::to_value(s))).unwrap_or_else(|| "-".into()),
+                        name(serde_json::to_value(r.state)),
+                        r.threshold.map_or("-".to_string(), |t| t.to_string()),
+                        report::rfc3339_ms(r.since_ms)
+                    )?;
+                }
+            }
             if !retired.is_empty() {
                 writeln!(out, "\nledgers kept for components no longer configured: {}", retired.join(", "))?;
             }

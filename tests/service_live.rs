@@ -116,6 +116,28 @@ fn live_and_replay_give_identical_ledgers() {
     compare(&file, &replay, 0.0);
     assert_eq!(file["counters"]["accepted"], replay["counters"]["accepted"]);
     assert!(file["caution"].as_str().unwrap().contains("governing code"));
+    // The alarm states are the ones the service holds (records are stored
+    // when their state changes, so values are those of the last change;
+    // the tube's low advisory level is passed in this stream).
+    let records = |v: &serde_json::Value| -> Vec<serde_json::Value> {
+        v["alarms"].as_array().unwrap().iter().flat_map(|c| c["alarms"].as_array().unwrap().clone()).collect()
+    };
+    let live_records = records(&live);
+    for r in records(&file) {
+        let l = live_records.iter().find(|l| l["component"] == r["component"] && l["index"] == r["index"]).unwrap();
+        for k in ["state", "severity", "since_ms"] {
+            assert_eq!(r[k], l[k], "{} {} {k}", r["component"], r["index"]);
+        }
+    }
+    let tube = file["alarms"].as_array().unwrap().iter().find(|a| a["component"] == "SH-TUBE").unwrap();
+    assert!(
+        tube["alarms"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|r| r["index"] == "creep_life_fraction" && r["severity"] == "advisory"),
+        "{tube}"
+    );
     assert!(svc.sigterm().success());
     let ledger = dir.path().join("ledger.sqlite");
     let before = std::fs::read(&ledger).unwrap();
