@@ -1,5 +1,6 @@
 //! What the engine knows about one tag: its cursor and its last two good
-//! samples, and how a value at an arbitrary instant is read from them.
+//! samples, and how its values over a piece of an interval are read from
+//! them.
 //!
 //! Between two samples closer than the tag's hold time the value is a
 //! straight line (or a step, for report-on-change tags). Past the newest
@@ -22,17 +23,6 @@ pub struct TagState {
     pub last: Option<(i64, f64)>,
 }
 
-/// The value of a tag at an instant.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum Reading {
-    /// A trusted value.
-    Value(f64),
-    /// In a gap; the last good value before it.
-    Gap(f64),
-    /// No sample yet.
-    Missing,
-}
-
 impl TagState {
     /// Accept a new sample (caller has checked it is newer than the cursor).
     #[inline]
@@ -42,46 +32,8 @@ impl TagState {
         self.cursor_ms = Some(time_ms);
     }
 
-    /// Read the value at `tau_ms`.
-    #[inline]
-    pub fn read(&self, plan: &TagPlan, tau_ms: f64) -> Reading {
-        let Some((t1, v1)) = self.last else { return Reading::Missing };
-        let hold = plan.max_hold_ms as f64;
-        let t1f = t1 as f64;
-        if tau_ms >= t1f {
-            return if tau_ms - t1f <= hold { Reading::Value(v1) } else { Reading::Gap(v1) };
-        }
-        match self.prev {
-            Some((t0, v0)) if tau_ms >= t0 as f64 => {
-                let t0f = t0 as f64;
-                if t1f - t0f > hold {
-                    // The samples are too far apart to join: hold the older
-                    // one for the hold time, then it is a gap.
-                    if tau_ms - t0f <= hold {
-                        Reading::Value(v0)
-                    } else {
-                        Reading::Gap(v0)
-                    }
-                } else {
-                    match plan.interpolation {
-                        Interpolation::Step => Reading::Value(v0),
-                        Interpolation::Linear => {
-                            let w = (tau_ms - t0f) / (t1f - t0f);
-                            Reading::Value(v0 + (v1 - v0) * w)
-                        }
-                    }
-                }
-            }
-            // Before anything we still hold: the engine never asks for this
-            // (it integrates before it forgets a sample), but answer safely.
-            Some((_, v0)) => Reading::Value(v0),
-            None => Reading::Value(v1),
-        }
-    }
-
     /// The reading over a piece `[a, b]` with no breakpoint inside (see
-    /// [`TagState::breakpoints`]): the same values as [`TagState::read`] at
-    /// every instant of the piece, found with one look-up and at most one
+    /// [`TagState::breakpoints`]), found with one look-up and at most one
     /// division. Ends that fall on a sample instant carry the sample value
     /// exactly, so one piece's end is bit-identical to the next one's start.
     #[inline(always)]
@@ -97,6 +49,8 @@ impl TagState {
             Some((t0, v0)) if mid >= t0 as f64 => {
                 let t0f = t0 as f64;
                 if t1f - t0f > hold {
+                    // The samples are too far apart to join: hold the older
+                    // one for the hold time, then it is a gap.
                     if mid - t0f <= hold {
                         Segment::constant(v0)
                     } else {
@@ -121,6 +75,8 @@ impl TagState {
                     }
                 }
             }
+            // Before anything we still hold: the engine never asks for this
+            // (it integrates before it forgets a sample), but answer safely.
             Some((_, v0)) => Segment::constant(v0),
             None => Segment::constant(v1),
         }
