@@ -14,7 +14,7 @@ use super::signal::{Breaks, Segment, TagState};
 use crate::physics::histogram::TimeAtCondition;
 use crate::physics::larson_miller::RangeFlags;
 use crate::physics::norton::creep_rate_per_h_ln;
-use crate::physics::stress::{hoop_stress_mpa, remaining_wall_mm};
+use crate::physics::stress::{hoop_stress_mpa, hoop_stress_per_mpa, remaining_wall_mm};
 use crate::physics::wear::{fretting_regime, fretting_sliding_speed_mm_s, FrettingRegime};
 use crate::settings::schema::{GapPolicy, WearModel};
 use serde::{Deserialize, Serialize};
@@ -158,7 +158,7 @@ impl Scratch {
             } if thinning_rate_mm_per_year <= 0.0 => {
                 let wall = remaining_wall_mm(wall_mm, measured_loss_mm, 0.0, 0.0);
                 Some((
-                    hoop_stress_mpa(basis, 1.0, outside_diameter_mm, wall) * plan.stress_factor,
+                    hoop_stress_per_mpa(basis, outside_diameter_mm, wall) * plan.stress_factor,
                     wall <= crate::physics::stress::MIN_WALL_MM,
                 ))
             }

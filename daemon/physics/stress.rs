@@ -36,15 +36,21 @@ pub const MIN_WALL_MM: f64 = 1e-3;
 /// creep under external pressure is not modelled.
 #[inline]
 pub fn hoop_stress_mpa(basis: StressBasis, p_mpa: f64, do_mm: f64, wall_mm: f64) -> f64 {
-    let p = p_mpa.max(0.0);
+    p_mpa.max(0.0) * hoop_stress_per_mpa(basis, do_mm, wall_mm)
+}
+
+/// Hoop stress per MPa of gauge pressure: every formula here is linear in
+/// pressure, so a part whose wall does not change can compute this once.
+#[inline]
+pub fn hoop_stress_per_mpa(basis: StressBasis, do_mm: f64, wall_mm: f64) -> f64 {
     let t = wall_mm.clamp(MIN_WALL_MM, do_mm * 0.5 - MIN_WALL_MM);
     match basis {
-        StressBasis::ThinWall => p * do_mm / (2.0 * t),
-        StressBasis::MeanDiameter => p * (do_mm - t) / (2.0 * t),
+        StressBasis::ThinWall => do_mm / (2.0 * t),
+        StressBasis::MeanDiameter => (do_mm - t) / (2.0 * t),
         StressBasis::Lame => {
             let ro = 0.5 * do_mm;
             let ri = ro - t;
-            p * (ro * ro + ri * ri) / (ro * ro - ri * ri)
+            (ro * ro + ri * ri) / (ro * ro - ri * ri)
         }
     }
 }
