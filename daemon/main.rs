@@ -371,19 +371,16 @@ fn cmd_ledger(config: &std::path::Path, format: Format) -> Result<i32> {
     let (cfg, service) = lifeledger::service::load_service(config)?;
     let path = &service.store.path;
     let loaded = lifeledger::store::read_ledger(path)?;
-    let (state, decode_rejected) = lifeledger::service::ledger::engine_state(&loaded, path)?;
+    let stored = lifeledger::service::ledger::StoredLedger::parse(&loaded, path)?;
+    for (key, e) in &stored.unreadable_alarms {
+        eprintln!("warning: ledger {}: alarm record {key} unreadable ({e}); not shown", path.display());
+    }
+    let decode_rejected = stored.decode_rejected;
     let mut engine = Engine::new(cfg.plan.clone());
-    let retired = engine.import_state(state);
+    let retired = engine.import_state(stored.engine);
     let reports = component_reports(&engine);
     let retired: Vec<&str> = retired.components.iter().map(|(n, _)| n.as_str()).collect();
-    let mut records = vec![];
-    for (key, json) in &loaded.alarms {
-        match serde_json::from_str::<lifeledger::alarm::AlarmRecord>(json) {
-            Ok(r) => records.push(r),
-            Err(e) => eprintln!("warning: ledger {}: alarm record {key} unreadable ({e}); not shown", path.display()),
-        }
-    }
-    let book = lifeledger::alarm::AlarmBook::from_records(records);
+    let book = lifeledger::alarm::AlarmBook::from_records(stored.alarms);
     let alarms: Vec<_> = engine.plan().components.iter().map(|c| book.current(&c.name)).collect();
     let mut out = std::io::stdout().lock();
     match format {

@@ -111,36 +111,60 @@ pub struct Ledger {
 /// Alarm events kept in memory for the snapshot (`recent_events`).
 const RECENT_EVENTS: usize = 200;
 
-/// The engine state (tag cursors, component ledgers, counters) and the
-/// decoder's rejection counts held in a loaded ledger. A state that does not
-/// parse is an error naming the ledger and the entry: the service must not
-/// start over a ledger it cannot read.
-pub fn engine_state(
-    loaded: &crate::store::Loaded,
-    path: &std::path::Path,
-) -> anyhow::Result<(EngineState, std::collections::BTreeMap<String, u64>)> {
-    let mut tags = vec![];
-    for (name, json) in &loaded.tags {
-        let t: TagState =
-            serde_json::from_str(json).map_err(|e| anyhow::anyhow!("ledger {}: tag {name}: {e}", path.display()))?;
-        tags.push((name.clone(), t));
-    }
-    let mut components = vec![];
-    for (name, json) in &loaded.components {
-        let c: ComponentState = serde_json::from_str(json)
-            .map_err(|e| anyhow::anyhow!("ledger {}: component {name}: {e}", path.display()))?;
-        components.push((name.clone(), c));
-    }
-    let mut counters = crate::engine::Counters::default();
-    let mut decode_rejected = Default::default();
-    for (k, json) in &loaded.meta {
-        match k.as_str() {
-            "engine_counters" => counters = serde_json::from_str(json).unwrap_or_default(),
-            "decode_rejected" => decode_rejected = serde_json::from_str(json).unwrap_or_default(),
-            _ => {}
+/// What a loaded ledger holds, typed: what the service starts from and
+/// what `lifeledger ledger` shows.
+pub struct StoredLedger {
+    /// Tag cursors, component ledgers and engine counters.
+    pub engine: EngineState,
+    /// The decoder's rejection counts by reason.
+    pub decode_rejected: std::collections::BTreeMap<String, u64>,
+    /// Alarm records that parse.
+    pub alarms: Vec<AlarmRecord>,
+    /// Alarm records that do not parse: (key, why). They start afresh.
+    pub unreadable_alarms: Vec<(String, String)>,
+}
+
+impl StoredLedger {
+    /// Type a loaded ledger. A tag or component state that does not parse is
+    /// an error naming the ledger and the entry: the service must not start
+    /// over a ledger it cannot read. An unreadable alarm record is only
+    /// listed: the alarm starts afresh.
+    pub fn parse(loaded: &crate::store::Loaded, path: &std::path::Path) -> anyhow::Result<StoredLedger> {
+        let mut tags = vec![];
+        for (name, json) in &loaded.tags {
+            let t: TagState = serde_json::from_str(json)
+                .map_err(|e| anyhow::anyhow!("ledger {}: tag {name}: {e}", path.display()))?;
+            tags.push((name.clone(), t));
         }
+        let mut components = vec![];
+        for (name, json) in &loaded.components {
+            let c: ComponentState = serde_json::from_str(json)
+                .map_err(|e| anyhow::anyhow!("ledger {}: component {name}: {e}", path.display()))?;
+            components.push((name.clone(), c));
+        }
+        let mut counters = crate::engine::Counters::default();
+        let mut decode_rejected = Default::default();
+        for (k, json) in &loaded.meta {
+            match k.as_str() {
+                "engine_counters" => counters = serde_json::from_str(json).unwrap_or_default(),
+                "decode_rejected" => decode_rejected = serde_json::from_str(json).unwrap_or_default(),
+                _ => {}
+            }
+        }
+        let (mut alarms, mut unreadable_alarms) = (vec![], vec![]);
+        for (key, json) in &loaded.alarms {
+            match serde_json::from_str::<AlarmRecord>(json) {
+                Ok(r) => alarms.push(r),
+                Err(e) => unreadable_alarms.push((key.clone(), e.to_string())),
+            }
+        }
+        Ok(StoredLedger {
+            engine: EngineState { tags, components, counters },
+            decode_rejected,
+            alarms,
+            unreadable_alarms,
+        })
     }
-    Ok((EngineState { tags, components, counters }, decode_rejected))
 }
 
 /// The newest [`RECENT_EVENTS`] events of the alarm journal, oldest first
@@ -181,19 +205,16 @@ impl Ledger {
         let loaded = store.load()?;
         let recent_events = recent_events(&store)?;
         let mut engine = Engine::new(cfg.plan.clone());
-        let (state, decode_rejected) = engine_state(&loaded, &service.store.path)?;
-        let svc = ServiceCounters { decode_rejected, ..ServiceCounters::default() };
-        let left = engine.import_state(state);
-        let mut records = vec![];
-        for (key, json) in &loaded.alarms {
-            match serde_json::from_str::<AlarmRecord>(json) {
-                Ok(r) => records.push(r),
-                Err(e) => tracing::error!(
-                    "ledger {}: alarm record {key} unreadable ({e}); it starts afresh",
-                    service.store.path.display()
-                ),
-            }
+        let stored = StoredLedger::parse(&loaded, &service.store.path)?;
+        let svc = ServiceCounters { decode_rejected: stored.decode_rejected, ..ServiceCounters::default() };
+        let left = engine.import_state(stored.engine);
+        for (key, e) in &stored.unreadable_alarms {
+            tracing::error!(
+                "ledger {}: alarm record {key} unreadable ({e}); it starts afresh",
+                service.store.path.display()
+            );
         }
+        let records = stored.alarms;
         let book = AlarmBook::from_records(records).with_config(service.alarms.clone());
         let templates = service.mqtt.templates().map_err(|e| anyhow::anyhow!(e))?;
         let index = tag_index(&engine);
