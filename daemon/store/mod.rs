@@ -6,16 +6,17 @@
 //! The store is generic over JSON text: it stores and returns strings and
 //! knows nothing of engine types, so the engine's state can evolve without
 //! touching SQL. Trend points are the one exception: plain numbers in
-//! columns of their own, so that a window of them is one indexed read. It is plain synchronous Rust; the service owns one
-//! [`Store`] on a dedicated thread and sends it batches.
+//! columns of their own, so that a window of them is one indexed read. It
+//! is plain synchronous Rust; the service owns one [`Store`] on a dedicated
+//! thread and sends it batches.
 //!
 //! # Why it is built this way
 //!
 //! * **One transaction per batch.** [`Store::commit`] writes component
 //!   states, tag cursors, alarms, alarm events, trend points, counters and
 //!   outbox lines together, so a crash at any instant leaves them all from
-//!   the same batch: the ledger
-//!   never holds damage whose points are missing from the outbox, nor a
+//!   the same batch: the ledger never holds damage whose points are missing
+//!   from the outbox, nor a
 //!   cursor ahead of the state it guards. MQTT messages are acked only after
 //!   `commit` returns (invariant 2).
 //! * **SQLite, WAL, `synchronous = FULL`.** SQLite is a single, well-tested
