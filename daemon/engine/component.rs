@@ -333,48 +333,22 @@ fn integrate_piece(
             return;
         }
     }
-    let span = b - a;
-    let point = |dt: f64| Point {
-        t_k: lt.at(dt),
-        p_mpa: lp.at(dt),
-        load_n: ll.at(dt),
-        speed_mm_s: ls.at(dt),
-        slip_mm: lsl.at(dt),
-        freq_hz: lf.at(dt),
-    };
-    // The piece end: the values there exactly (a sample value when the end
-    // is a sample instant), so the next piece's start hits the rate memo.
-    let end = Point { t_k: lt.v1, p_mpa: lp.v1, load_n: ll.v1, speed_mm_s: ls.v1, slip_mm: lsl.v1, freq_hz: lf.v1 };
+    let lines = PieceLines { t: lt, p: lp, load: ll, speed: ls, slip: lsl, freq: lf };
     let thinning =
         matches!(plan.stress, StressPlan::Hoop { thinning_rate_mm_per_year, .. } if thinning_rate_mm_per_year > 0.0);
-    let constant = lt.k == 0.0 && lp.k == 0.0 && ll.k == 0.0 && ls.k == 0.0 && lsl.k == 0.0 && lf.k == 0.0 && !thinning;
-    let start_ms = state.first_sample_ms.unwrap_or(a_ms);
-    let threshold_k = plan.creep_threshold_k();
+    let constant = lines.constant() && !thinning;
     let mut classes = scratch.classes;
-    let mut eval = |p: &Point, tau: f64| -> Rates {
-        if !thinning {
-            if let Some((mp, mr)) = &scratch.memo {
-                if mp == p {
-                    return *mr;
-                }
-            }
-        }
-        let r = rates(plan, scratch.stress_per_mpa, p, tau, start_ms, threshold_k);
-        scratch.memo = Some((*p, r));
-        r
+    let mut eval = RateEval {
+        plan,
+        memo: &mut scratch.memo,
+        stress_per_mpa: scratch.stress_per_mpa,
+        thinning,
+        start_ms: state.first_sample_ms.unwrap_or(a_ms),
+        threshold_k: plan.creep_threshold_k(),
     };
-
-    let (mut d_life, mut d_strain, mut d_wear) = (0.0, 0.0, 0.0);
-    let (last_rates, last_point);
-    if constant {
-        let p = point(0.0);
-        let r = eval(&p, a);
-        d_life = r.life_per_h * dt_h;
-        d_strain = r.strain_per_h * dt_h;
-        d_wear = r.wear_mm_per_h * dt_h;
-        account_node(plan, state, &mut classes, &p, &r, dt_h);
-        last_rates = r;
-        last_point = p;
+    let span = b - a;
+    let piece = if constant {
+        piece_constant(&mut eval, state, &mut classes, &lines, a, dt_h)
     } else {
         let dtk = (lt.k * span).abs();
         let pmax = lp.v0.abs().max(lp.v1.abs()).max(1e-9);
@@ -385,48 +359,15 @@ fn integrate_piece(
         // k ≈ 0.07 /K, below 2e-4 for ΔT ≤ 0.5 K, and it over-estimates
         // damage for a convex rate (conservative).
         let small = dtk <= TRAPEZOID_TEMPERATURE_STEP_K && dp <= TRAPEZOID_PRESSURE_STEP * pmax && !thinning;
-        let n = if small {
-            1
-        } else {
-            ((dtk / PANEL_TEMPERATURE_STEP_K).max(dp / pmax / PANEL_PRESSURE_STEP).ceil() as usize).clamp(1, MAX_PANELS)
-        };
-        let h = span / n as f64;
-        let h_h = dt_h / n as f64;
-        // Composite Simpson: nodes at panel ends and midpoints,
-        // weights h/6 · (1, 4, 1) per panel.
-        let mut r0p = point(0.0);
-        let mut r0 = eval(&r0p, a);
         if small {
-            let p1 = end;
-            let r1 = eval(&p1, b);
-            let w = 0.5 * dt_h;
-            d_life = w * (r0.life_per_h + r1.life_per_h);
-            d_strain = w * (r0.strain_per_h + r1.strain_per_h);
-            d_wear = w * (r0.wear_mm_per_h + r1.wear_mm_per_h);
-            account_pair(plan, state, &mut classes, &r0p, &r0, &p1, &r1, dt_h);
-            r0 = r1;
-            r0p = p1;
+            piece_trapezoid(&mut eval, state, &mut classes, &lines, a, b, dt_h)
+        } else {
+            let n = ((dtk / PANEL_TEMPERATURE_STEP_K).max(dp / pmax / PANEL_PRESSURE_STEP).ceil() as usize)
+                .clamp(1, MAX_PANELS);
+            piece_simpson(&mut eval, state, &mut classes, &lines, a, span, dt_h, n)
         }
-        for i in 0..(if small { 0 } else { n }) {
-            let xm = h * (i as f64 + 0.5);
-            let x1 = if i + 1 == n { span } else { h * (i + 1) as f64 };
-            let pm = point(xm);
-            let p1 = if i + 1 == n { end } else { point(x1) };
-            let rm = eval(&pm, a + xm);
-            let r1 = eval(&p1, a + x1);
-            let w = h_h / 6.0;
-            d_life += w * (r0.life_per_h + 4.0 * rm.life_per_h + r1.life_per_h);
-            d_strain += w * (r0.strain_per_h + 4.0 * rm.strain_per_h + r1.strain_per_h);
-            d_wear += w * (r0.wear_mm_per_h + 4.0 * rm.wear_mm_per_h + r1.wear_mm_per_h);
-            account_node(plan, state, &mut classes, &r0p, &r0, w);
-            account_node(plan, state, &mut classes, &pm, &rm, 4.0 * w);
-            account_node(plan, state, &mut classes, &p1, &r1, w);
-            r0 = r1;
-            r0p = p1;
-        }
-        last_rates = r0;
-        last_point = r0p;
-    }
+    };
+    let Piece { d_life, d_strain, d_wear, last_rates, last_point } = piece;
     scratch.classes = classes;
     state.life_fraction += d_life;
     state.creep_strain += d_strain;
@@ -463,6 +404,183 @@ fn integrate_piece(
         }),
         unmonitored,
     };
+}
+
+/// The six input lines of one piece.
+struct PieceLines {
+    t: Line,
+    p: Line,
+    load: Line,
+    speed: Line,
+    slip: Line,
+    freq: Line,
+}
+
+impl PieceLines {
+    /// Whether every input is constant over the piece.
+    #[inline]
+    fn constant(&self) -> bool {
+        self.t.k == 0.0
+            && self.p.k == 0.0
+            && self.load.k == 0.0
+            && self.speed.k == 0.0
+            && self.slip.k == 0.0
+            && self.freq.k == 0.0
+    }
+
+    /// The inputs `dt` ms after the piece start.
+    #[inline]
+    fn at(&self, dt: f64) -> Point {
+        Point {
+            t_k: self.t.at(dt),
+            p_mpa: self.p.at(dt),
+            load_n: self.load.at(dt),
+            speed_mm_s: self.speed.at(dt),
+            slip_mm: self.slip.at(dt),
+            freq_hz: self.freq.at(dt),
+        }
+    }
+
+    /// The inputs at the piece end, exactly (a sample value when the end is
+    /// a sample instant), so the next piece's start hits the rate memo.
+    #[inline]
+    fn end(&self) -> Point {
+        Point {
+            t_k: self.t.v1,
+            p_mpa: self.p.v1,
+            load_n: self.load.v1,
+            speed_mm_s: self.speed.v1,
+            slip_mm: self.slip.v1,
+            freq_hz: self.freq.v1,
+        }
+    }
+}
+
+/// Rate evaluation for one piece, through the component's memo.
+struct RateEval<'a> {
+    plan: &'a ComponentPlan,
+    memo: &'a mut Option<(Point, Rates)>,
+    stress_per_mpa: Option<(f64, bool)>,
+    /// The wall thins with service time, so rates depend on time too and
+    /// the memo (keyed by inputs only) is not used.
+    thinning: bool,
+    start_ms: i64,
+    threshold_k: f64,
+}
+
+impl RateEval<'_> {
+    /// Rates at inputs `p` and event time `tau_ms`.
+    #[inline(always)]
+    fn at(&mut self, p: &Point, tau_ms: f64) -> Rates {
+        if !self.thinning {
+            if let Some((mp, mr)) = &*self.memo {
+                if mp == p {
+                    return *mr;
+                }
+            }
+        }
+        let r = rates(self.plan, self.stress_per_mpa, p, tau_ms, self.start_ms, self.threshold_k);
+        *self.memo = Some((*p, r));
+        r
+    }
+}
+
+/// What one piece adds, and the rates and inputs at its end.
+struct Piece {
+    d_life: f64,
+    d_strain: f64,
+    d_wear: f64,
+    last_rates: Rates,
+    last_point: Point,
+}
+
+/// A piece with constant inputs: exact, one evaluation.
+#[inline]
+fn piece_constant(
+    eval: &mut RateEval,
+    state: &mut ComponentState,
+    classes: &mut (usize, usize),
+    lines: &PieceLines,
+    a: f64,
+    dt_h: f64,
+) -> Piece {
+    let p = lines.at(0.0);
+    let r = eval.at(&p, a);
+    account_node(eval.plan, state, classes, &p, &r, dt_h);
+    Piece {
+        d_life: r.life_per_h * dt_h,
+        d_strain: r.strain_per_h * dt_h,
+        d_wear: r.wear_mm_per_h * dt_h,
+        last_rates: r,
+        last_point: p,
+    }
+}
+
+/// A piece with small steps: the trapezoid rule on the end rates.
+#[inline]
+fn piece_trapezoid(
+    eval: &mut RateEval,
+    state: &mut ComponentState,
+    classes: &mut (usize, usize),
+    lines: &PieceLines,
+    a: f64,
+    b: f64,
+    dt_h: f64,
+) -> Piece {
+    let p0 = lines.at(0.0);
+    let r0 = eval.at(&p0, a);
+    let p1 = lines.end();
+    let r1 = eval.at(&p1, b);
+    let w = 0.5 * dt_h;
+    account_pair(eval.plan, state, classes, &p0, &r0, &p1, &r1, dt_h);
+    Piece {
+        d_life: w * (r0.life_per_h + r1.life_per_h),
+        d_strain: w * (r0.strain_per_h + r1.strain_per_h),
+        d_wear: w * (r0.wear_mm_per_h + r1.wear_mm_per_h),
+        last_rates: r1,
+        last_point: p1,
+    }
+}
+
+/// A piece with larger steps: composite Simpson over `n` panels, nodes at
+/// panel ends and midpoints, weights h/6 · (1, 4, 1) per panel. Kept out of
+/// line: the common pieces are constant or small, and this loop's code in
+/// the middle of theirs slows them.
+#[inline(never)]
+#[allow(clippy::too_many_arguments)]
+fn piece_simpson(
+    eval: &mut RateEval,
+    state: &mut ComponentState,
+    classes: &mut (usize, usize),
+    lines: &PieceLines,
+    a: f64,
+    span: f64,
+    dt_h: f64,
+    n: usize,
+) -> Piece {
+    let plan = eval.plan;
+    let h = span / n as f64;
+    let w = dt_h / n as f64 / 6.0;
+    let (mut d_life, mut d_strain, mut d_wear) = (0.0, 0.0, 0.0);
+    let mut p0 = lines.at(0.0);
+    let mut r0 = eval.at(&p0, a);
+    for i in 0..n {
+        let xm = h * (i as f64 + 0.5);
+        let x1 = if i + 1 == n { span } else { h * (i + 1) as f64 };
+        let pm = lines.at(xm);
+        let p1 = if i + 1 == n { lines.end() } else { lines.at(x1) };
+        let rm = eval.at(&pm, a + xm);
+        let r1 = eval.at(&p1, a + x1);
+        d_life += w * (r0.life_per_h + 4.0 * rm.life_per_h + r1.life_per_h);
+        d_strain += w * (r0.strain_per_h + 4.0 * rm.strain_per_h + r1.strain_per_h);
+        d_wear += w * (r0.wear_mm_per_h + 4.0 * rm.wear_mm_per_h + r1.wear_mm_per_h);
+        account_node(plan, state, classes, &p0, &r0, w);
+        account_node(plan, state, classes, &pm, &rm, 4.0 * w);
+        account_node(plan, state, classes, &p1, &r1, w);
+        r0 = r1;
+        p0 = p1;
+    }
+    Piece { d_life, d_strain, d_wear, last_rates: r0, last_point: p0 }
 }
 
 /// Book-keeping at one quadrature node carrying `w_h` hours.
