@@ -298,6 +298,20 @@ pub fn summary_table(reports: &[ComponentReport]) -> String {
     s
 }
 
+/// Sort key for `index.severity` level names (`life_fraction.warning`):
+/// by index, then in rising severity (advisory, warning, critical), the
+/// order an engineer reads them in.
+pub fn level_order(key: &str) -> (&str, u8) {
+    let (index, severity) = key.rsplit_once('.').unwrap_or((key, ""));
+    let rank = match severity {
+        "advisory" => 0,
+        "warning" => 1,
+        "critical" => 2,
+        _ => 3,
+    };
+    (index, rank)
+}
+
 /// Counter summary line.
 pub fn counters_line(c: &Counters) -> String {
     format!(
@@ -354,8 +368,11 @@ pub fn design_check(plan: &ComponentPlan) -> DesignCheck {
             }
             if life < 100_000.0 {
                 warnings.push(format!(
-                    "rupture life at design conditions is only {life:.0} h on the {:?} curve",
-                    plan.curve_basis
+                    "rupture life at design conditions is only {life:.0} h on the {} curve",
+                    match plan.curve_basis {
+                        CurveBasis::Minimum => "minimum",
+                        CurveBasis::Mean => "mean",
+                    }
                 ));
             }
         }

@@ -97,6 +97,10 @@ fn check_config_prints_design_values() {
     assert!(out.contains("homologous temperature"));
     assert!(out.contains("rupture life at design"));
     assert!(out.contains("governing code"));
+    // Levels read in rising severity, as an engineer would list them.
+    let first = out.split("\n\n").nth(1).expect("a component block");
+    let at = |level: &str| first.find(&format!("life_fraction.{level}")).unwrap_or_else(|| panic!("{level}: {first}"));
+    assert!(at("advisory") < at("warning") && at("warning") < at("critical"), "{first}");
 }
 
 #[test]
