@@ -512,9 +512,7 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
             fmt_opt(c.rupture_life_minimum_h, 0),
             fmt_opt(c.rupture_life_mean_h, 0)
         )?;
-        let mut levels: Vec<_> = c.hours_to_levels_at_design.iter().collect();
-        levels.sort_by_key(|(k, _)| lifeledger::report::level_order(k));
-        for (k, h) in levels {
+        for (k, h) in &c.hours_to_levels_at_design {
             writeln!(out, "  hours at design to {k:<22} {h:.0} h")?;
         }
         for w in &c.warnings {

@@ -298,20 +298,6 @@ pub fn summary_table(reports: &[ComponentReport]) -> String {
     s
 }
 
-/// Sort key for `index.severity` level names (`life_fraction.warning`):
-/// by index, then in rising severity (advisory, warning, critical), the
-/// order an engineer reads them in.
-pub fn level_order(key: &str) -> (&str, u8) {
-    let (index, severity) = key.rsplit_once('.').unwrap_or((key, ""));
-    let rank = match severity {
-        "advisory" => 0,
-        "warning" => 1,
-        "critical" => 2,
-        _ => 3,
-    };
-    (index, rank)
-}
-
 /// Counter summary line.
 pub fn counters_line(c: &Counters) -> String {
     format!(
@@ -332,9 +318,17 @@ pub struct DesignCheck {
     pub rupture_life_minimum_h: Option<f64>,
     pub rupture_life_mean_h: Option<f64>,
     /// Hours at design conditions to each life-fraction level from the
-    /// initial value, on the configured curve.
-    pub hours_to_levels_at_design: BTreeMap<String, f64>,
+    /// initial value, on the configured curve, in rising severity (the
+    /// order of [`crate::engine::plan::Levels::iter`]); written as a JSON
+    /// object keyed by level, as before.
+    #[serde(serialize_with = "ordered_map")]
+    pub hours_to_levels_at_design: Vec<(String, f64)>,
     pub warnings: Vec<String>,
+}
+
+/// Serialize name–value pairs as a map.
+fn ordered_map<S: serde::Serializer>(pairs: &[(String, f64)], s: S) -> Result<S::Ok, S::Error> {
+    s.collect_map(pairs.iter().map(|(k, v)| (k, v)))
 }
 
 /// Values an engineer sanity-checks before trusting a configuration.
@@ -352,7 +346,7 @@ pub fn design_check(plan: &ComponentPlan) -> DesignCheck {
     let t = plan.design_temperature_k;
     let mut life_min = None;
     let mut life_mean = None;
-    let mut hours_to = BTreeMap::new();
+    let mut hours_to = Vec::new();
     if let (Some(s), Some(t)) = (sigma, t) {
         if t >= threshold && s > 0.0 {
             let (lmin, f) = rupture_life_h(&plan.material.larson_miller, s, t, CurveBasis::Minimum);
@@ -364,7 +358,7 @@ pub fn design_check(plan: &ComponentPlan) -> DesignCheck {
             }
             let life = if plan.curve_basis == CurveBasis::Minimum { lmin } else { lmean };
             for (sev, l) in plan.thresholds.life_fraction.iter() {
-                hours_to.insert(format!("life_fraction.{sev}"), ((l - plan.initial_life_fraction).max(0.0)) * life);
+                hours_to.push((format!("life_fraction.{sev}"), ((l - plan.initial_life_fraction).max(0.0)) * life));
             }
             if life < 100_000.0 {
                 warnings.push(format!(
