@@ -594,3 +594,34 @@ fn trends_survive_a_restart() {
     assert_eq!(*t.last().unwrap(), s.last().unwrap().1 * 1000);
     assert!(svc.sigterm().success());
 }
+
+#[test]
+fn a_sample_stamped_in_2062_is_a_sensor_fault_and_poisons_nothing() {
+    // The reproduction: one JSON sample stamped decades ahead used to be
+    // integrated to that instant, after which every good sample was late
+    // and the component stayed dead.
+    let dir = tempfile::tempdir().unwrap();
+    let (broker, cfg, svc) = start_plant(dir.path());
+    let s = samples(240);
+    let (first, rest) = s.split_at(400);
+    publish_all(broker.port, first, "publisher-before");
+    // 2062-03-01T00:00:00Z, as epoch seconds.
+    publish_messages(
+        broker.port,
+        vec![("plant/TE-1", br#"{"value": 560.0, "timestamp": 2908483200}"#.to_vec())],
+        "gateway-with-a-bad-clock",
+    );
+    publish_all(broker.port, rest, "publisher-after");
+    let live = svc.wait_until_integrated(s.last().unwrap().1);
+    let replay = replay_json(&cfg, &csv(dir.path(), &s));
+    compare(&live, &replay, 0.0);
+    assert_eq!(live["engine"]["implausible_time"], 1, "counted by its own reason");
+    assert_eq!(live["engine"]["accepted"], replay["counters"]["accepted"]);
+    let m = http::get(svc.http_port, "/metrics").unwrap().text();
+    assert!(m.contains("lifeledger_samples_rejected_total{reason=\"implausible_time\"} 1"), "{m}");
+    // Shown as a sensor fault of the tube that reads TE-1.
+    let tube = live["alarms"].as_array().unwrap().iter().find(|a| a["component"] == "SH-TUBE").unwrap();
+    let fault = tube["alarms"].as_array().unwrap().iter().find(|r| r["index"] == "sensor_out_of_range");
+    assert!(fault.is_some_and(|r| r["state"] != "normal"), "no sensor fault for the 2062 sample: {tube}");
+    assert!(svc.sigterm().success());
+}

@@ -106,6 +106,10 @@ pub struct Ledger {
     /// Commit even with nothing pending (an HTTP command changed alarms).
     force_commit: bool,
     last_sensor_check: Instant,
+    /// Reorder-window changes not yet committed (kept across a failed
+    /// commit, like the outbox lines).
+    held_added: Vec<(crate::engine::TagId, crate::engine::HeldSample)>,
+    held_released: Vec<u64>,
 }
 
 /// Alarm events kept in memory for the snapshot (`recent_events`).
@@ -158,8 +162,23 @@ impl StoredLedger {
                 Err(e) => unreadable_alarms.push((key.clone(), e.to_string())),
             }
         }
+        let held = loaded
+            .held
+            .iter()
+            .map(|h| {
+                (
+                    h.tag.clone(),
+                    crate::engine::HeldSample {
+                        seq: h.seq,
+                        time_ms: h.time_ms,
+                        value: h.value,
+                        arrival_ms: h.arrival_ms,
+                    },
+                )
+            })
+            .collect();
         Ok(StoredLedger {
-            engine: EngineState { tags, components, counters },
+            engine: EngineState { tags, components, counters, held },
             decode_rejected,
             alarms,
             unreadable_alarms,
@@ -265,6 +284,8 @@ impl Ledger {
             recent_events,
             force_commit: false,
             last_sensor_check: Instant::now() - Duration::from_secs(60),
+            held_added: vec![],
+            held_released: vec![],
             service,
         };
         // Thresholds go to the database at start-up, at the newest event time.
@@ -363,6 +384,10 @@ impl Ledger {
 
     fn periodic(&mut self) {
         let now = now_ms();
+        // Held samples whose window of wall time has passed (a feed that
+        // stopped), and parts without tag inputs, move with the wall clock.
+        self.engine.release_due(now);
+        self.engine.advance_clock(now);
         if let Ok(s) = self.store.outbox_stats() {
             self.outbox = s;
         }
@@ -470,12 +495,12 @@ impl Ledger {
         };
         self.pending_samples += 1;
         let s = Sample { tag: id, time_ms: d.time_ms, value: d.value, quality: d.quality };
-        let r = self.engine.ingest(&s);
+        // The receive time is the wall clock the event time is judged by.
+        let r = self.engine.offer(&s, received_ms);
         let ti = id as usize;
         let (oor, badq) = self.sensor[ti];
         match r {
             Ok(()) => {
-                self.dirty_tags.insert(ti);
                 self.newest_ms = Some(self.newest_ms.map_or(d.time_ms, |n| n.max(d.time_ms)));
                 if oor || badq {
                     self.sensor[ti] = (false, false);
@@ -486,7 +511,9 @@ impl Ledger {
                     format!("sample of {tag} at {} rejected: {}", rfc3339_ms(d.time_ms), reason.name())
                 });
                 match reason {
-                    Rejection::OutOfRange | Rejection::NotFinite => {
+                    // A sample stamped in the future or before the plant
+                    // existed is a sensor (gateway clock) fault.
+                    Rejection::OutOfRange | Rejection::NotFinite | Rejection::ImplausibleTime => {
                         self.sensor[ti].0 = true;
                         self.sensor_latched[ti].0 = true;
                     }
@@ -555,7 +582,13 @@ impl Ledger {
     /// Write the batch in one transaction, then acknowledge and publish.
     pub fn commit(&mut self) {
         let changed = self.engine.take_changed();
+        self.dirty_tags.extend(self.engine.take_changed_tags());
+        let held = self.engine.take_held_changes();
+        self.held_added.extend(held.added);
+        self.held_released.extend(held.released);
         if changed.is_empty()
+            && self.held_added.is_empty()
+            && self.held_released.is_empty()
             && self.pending.is_empty()
             && self.extra_outbox.is_empty()
             && self.events.is_empty()
@@ -644,7 +677,21 @@ impl Ledger {
                 event: e.to_json(),
             })
             .collect();
+        let tag_names = &self.engine.plan().tags;
+        let held_added: Vec<crate::store::held::HeldRow> = self
+            .held_added
+            .iter()
+            .map(|(t, h)| crate::store::held::HeldRow {
+                seq: h.seq,
+                tag: tag_names[*t as usize].name.as_str(),
+                time_ms: h.time_ms,
+                value: h.value,
+                arrival_ms: h.arrival_ms,
+            })
+            .collect();
         let commit = Commit {
+            held_added: &held_added,
+            held_released: &self.held_released,
             components: &components,
             tags: &tags,
             alarms: &alarms,
@@ -672,6 +719,8 @@ impl Ledger {
                 }
                 self.pending_samples = 0;
                 self.dirty_tags.clear();
+                self.held_added.clear();
+                self.held_released.clear();
                 self.dirty_alarms.clear();
                 let events = std::mem::take(&mut self.events);
                 self.publish_alarms(&events);
