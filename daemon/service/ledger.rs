@@ -18,7 +18,7 @@
 //! them from there.
 
 use super::settings::ServiceSettings;
-use super::snapshot::{ServiceCounters, Snapshot};
+use super::snapshot::{ComponentFreshness, Freshness, ServiceCounters, Snapshot, TagFreshness};
 use crate::alarm::{parse_command, AlarmBook, AlarmEvent, AlarmIndex, AlarmRecord};
 use crate::engine::{ComponentState, Engine, EngineState, Rejection, Sample, TagState};
 use crate::ingest::decode::{decode_payload, PayloadSettings, TopicTemplate};
@@ -110,7 +110,18 @@ pub struct Ledger {
     /// commit, like the outbox lines).
     held_added: Vec<(crate::engine::TagId, crate::engine::HeldSample)>,
     held_released: Vec<u64>,
+    /// Per tag: wall-clock time of the newest accepted sample.
+    last_arrival: Vec<Option<i64>>,
+    /// Wall-clock time of the newest accepted sample of any tag.
+    last_any_arrival: Option<i64>,
+    /// Wall-clock start of this run (never-reporting tags count from it).
+    started_ms: i64,
+    /// No accepted sample from any tag for `[alarms] no_data_alarm_s`.
+    no_plant_data: bool,
 }
+
+/// The plant-level alarm raised when no tag delivers data.
+pub const PLANT_DATA_ALARM: &str = "lifeledger:plant-data";
 
 /// Alarm events kept in memory for the snapshot (`recent_events`).
 const RECENT_EVENTS: usize = 200;
@@ -286,6 +297,10 @@ impl Ledger {
             last_sensor_check: Instant::now() - Duration::from_secs(60),
             held_added: vec![],
             held_released: vec![],
+            last_arrival: vec![None; ntags],
+            last_any_arrival: None,
+            started_ms: now_ms(),
+            no_plant_data: false,
             service,
         };
         // Thresholds go to the database at start-up, at the newest event time.
@@ -388,6 +403,12 @@ impl Ledger {
         // stopped), and parts without tag inputs, move with the wall clock.
         self.engine.release_due(now);
         self.engine.advance_clock(now);
+        // Silence is judged by the wall clock, so a dead feed alarms even
+        // though no batch arrives to trigger a commit.
+        self.sensor_check();
+        if !self.events.is_empty() {
+            self.commit();
+        }
         if let Ok(s) = self.store.outbox_stats() {
             self.outbox = s;
         }
@@ -502,6 +523,8 @@ impl Ledger {
         match r {
             Ok(()) => {
                 self.newest_ms = Some(self.newest_ms.map_or(d.time_ms, |n| n.max(d.time_ms)));
+                self.last_arrival[ti] = Some(received_ms);
+                self.last_any_arrival = Some(received_ms);
                 if oor || badq {
                     self.sensor[ti] = (false, false);
                 }
@@ -529,9 +552,13 @@ impl Ledger {
 
     /// Sensor-fault alarms per component: a component's stale, out-of-range
     /// or bad-quality alarm is active while any tag it reads is in that
-    /// fault; the detail names the tags. Staleness is judged in event time:
-    /// a tag is stale when the newest sample of any tag is more than the
-    /// tag's hold time ahead of its own newest sample.
+    /// fault; the detail names the tags. A tag is stale when, by the wall
+    /// clock, no sample of it was accepted for its hold time plus
+    /// `[alarms] stale_grace_s` (a tag that never reported counts from the
+    /// service's start), or when, in event time, the newest sample of any
+    /// tag is more than the tag's hold time ahead of its own newest sample.
+    /// No accepted sample from any tag for `[alarms] no_data_alarm_s`
+    /// raises the plant-level service-health alarm.
     fn sensor_check(&mut self) {
         // At most every 500 ms of wall time: it visits every component.
         if self.last_sensor_check.elapsed() < Duration::from_millis(500) {
@@ -540,6 +567,26 @@ impl Ledger {
         self.last_sensor_check = Instant::now();
         let newest = self.newest_ms;
         let t = newest.unwrap_or_else(now_ms);
+        let now = now_ms();
+        let grace_ms = (self.service.alarms.stale_grace_s * 1000.0) as i64;
+        let silent_ms = now - self.last_any_arrival.unwrap_or(self.started_ms);
+        let no_data =
+            !self.engine.plan().tags.is_empty() && silent_ms > (self.service.alarms.no_data_alarm_s * 1000.0) as i64;
+        if no_data != self.no_plant_data {
+            self.no_plant_data = no_data;
+            let detail = if no_data {
+                format!("no sample accepted from any tag for {} s", silent_ms / 1000)
+            } else {
+                "plant data arriving again".to_string()
+            };
+            if no_data {
+                tracing::error!("{detail}: the ledgers are not moving");
+            } else {
+                tracing::info!("{detail}");
+            }
+            let ev = self.book.evaluate_condition(PLANT_DATA_ALARM, "", AlarmIndex::ServiceHealth, no_data, &detail, t);
+            self.note_events(ev);
+        }
         let plan = self.engine.plan();
         let mut evaluations = vec![];
         for (ci, c) in plan.components.iter().enumerate() {
@@ -547,10 +594,14 @@ impl Ledger {
             for &ti in self.engine.inputs(ci) {
                 let ti = ti as usize;
                 let tp = &plan.tags[ti];
-                if let (Some(n), Some(last)) = (newest, self.engine.tags()[ti].cursor_ms) {
-                    if n - last > tp.max_hold_ms {
-                        stale.push(tp.name.as_str());
-                    }
+                let event_stale = match (newest, self.engine.tags()[ti].cursor_ms) {
+                    (Some(n), Some(last)) => n - last > tp.max_hold_ms,
+                    _ => false,
+                };
+                let wall_stale =
+                    now - self.last_arrival[ti].unwrap_or(self.started_ms) > tp.max_hold_ms.saturating_add(grace_ms);
+                if event_stale || wall_stale {
+                    stale.push(tp.name.as_str());
                 }
                 // A fault seen since the last check counts even if a good
                 // sample has cleared it since, so a short fault still alarms.
@@ -814,6 +865,9 @@ impl Ledger {
         let mut state = self.engine.export_state();
         state.components.append(&mut self.retired);
         state.tags.append(&mut self.retired_tags);
+        let arrivals: HashMap<String, Option<i64>> =
+            self.engine.plan().tags.iter().zip(&self.last_arrival).map(|(t, a)| (t.name.clone(), *a)).collect();
+        self.last_arrival = cfg.plan.tags.iter().map(|t| arrivals.get(&t.name).copied().flatten()).collect();
         let mut engine = Engine::new(cfg.plan.clone());
         let left = engine.import_state(state);
         self.retired = left.components;
@@ -837,6 +891,46 @@ impl Ledger {
             "configuration reloaded; every ledger kept"
         );
         self.publish_snapshot(true);
+    }
+
+    /// Data age of every tag and component, and each component's lag, by
+    /// the wall clock now.
+    fn freshness(&self) -> Freshness {
+        let now = now_ms();
+        let plan = self.engine.plan();
+        let grace_ms = (self.service.alarms.stale_grace_s * 1000.0) as i64;
+        let age = |a: Option<i64>| a.map(|a| (now - a).max(0) as f64 / 1000.0);
+        let tags = plan
+            .tags
+            .iter()
+            .zip(&self.last_arrival)
+            .map(|(t, a)| TagFreshness {
+                tag: t.name.clone(),
+                data_age_s: age(*a),
+                stale: now - a.unwrap_or(self.started_ms) > t.max_hold_ms.saturating_add(grace_ms),
+            })
+            .collect();
+        let components = plan
+            .components
+            .iter()
+            .enumerate()
+            .map(|(ci, c)| {
+                let inputs = self.engine.inputs(ci);
+                // The stalest input sets the age; a part on the plant clock
+                // has none.
+                let data_age_s = if inputs.is_empty() {
+                    None
+                } else {
+                    inputs
+                        .iter()
+                        .map(|&t| age(self.last_arrival[t as usize]))
+                        .try_fold(0.0f64, |m, a| a.map(|a| m.max(a)))
+                };
+                let lag_s = self.engine.components()[ci].integrated_to_ms.map(|t| (now - t) as f64 / 1000.0);
+                ComponentFreshness { component: c.name.clone(), data_age_s, lag_s, on_plant_clock: inputs.is_empty() }
+            })
+            .collect();
+        Freshness { tags, components }
     }
 
     fn publish_snapshot(&mut self, force: bool) {
@@ -872,6 +966,9 @@ impl Ledger {
             alarms,
             retired_components: self.retired.iter().map(|(n, _)| n.clone()).collect(),
             recent_events: self.recent_events.iter().cloned().collect(),
+            no_plant_data: self.no_plant_data,
+            freshness: self.freshness(),
+            held_samples: self.engine.held_len() as u64,
             caution: crate::CAUTION,
         };
         let _ = self.snapshot_tx.send(Arc::new(snap));
