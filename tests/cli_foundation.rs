@@ -325,3 +325,20 @@ allowable_depth = { value = 0.8, unit = "mm" }
     let got = c["wear_depth_mm"].as_f64().unwrap();
     assert!((got / want - 1.0).abs() < 1e-12, "wear {got} mm, closed form {want} mm");
 }
+
+#[test]
+fn a_plant_name_with_a_control_character_is_refused() {
+    // Every name that reaches the database is validated: a newline or NUL
+    // in the plant name would split or end a line-protocol point.
+    let dir = tempfile::tempdir().unwrap();
+    for (name, bad) in [("newline", "LP2\\nx"), ("nul", "LP2\\u0000")] {
+        let demo = std::fs::read_to_string("config/demo/plant.toml").unwrap();
+        let text = demo.replace("name = \"Brackenmoor Demo Station\"", &format!("name = \"{bad}\""));
+        assert_ne!(text, demo, "the demo's plant name is where the test expects it");
+        let path = dir.path().join(format!("{name}.toml"));
+        std::fs::write(&path, text).unwrap();
+        let (code, out, err) = run(&["check-config", path.to_str().unwrap()]);
+        assert_eq!(code, 1, "{name}: {out}{err}");
+        assert!(err.contains("[plant]") && err.contains("control character"), "{name}: {err}");
+    }
+}

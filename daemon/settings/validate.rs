@@ -105,6 +105,9 @@ pub fn plan_settings(file: &str, settings: Settings) -> Result<LoadedConfig, Con
         v.material(m);
         library.insert(m.clone());
     }
+    if let Some(p) = name_problem(&settings.plant.name) {
+        v.err("[plant]", "name", p, "use printable characters only (it is the plant tag of every database point)");
+    }
     let tags = v.tags(&settings);
     let timing = v.timing(&settings);
     let tag_index: HashMap<&str, usize> = tags.iter().enumerate().map(|(i, t)| (t.name.as_str(), i)).collect();
