@@ -293,6 +293,7 @@ pub fn replay(
     let mut next_lp: Vec<i64> = vec![i64::MIN; ncomp];
     let plant = engine.plan().plant.clone();
     let interval = opts.lp_interval_ms.max(1);
+    let mut touched = Vec::new();
     loop {
         line.clear();
         let n = match input.read_line(&mut line) {
@@ -358,33 +359,41 @@ pub fn replay(
             });
         }
         if let Some(w) = lp.as_deref_mut() {
-            write_series(engine, w, &plant, &mut next_lp, interval, &mut out)?;
+            write_series(engine, w, &plant, &mut next_lp, interval, &mut touched, &mut out)?;
         }
     }
     // The end of the input: integrate what the reorder window still holds.
     engine.flush();
     if let Some(w) = lp {
-        write_series(engine, w, &plant, &mut next_lp, interval, &mut out)?;
+        write_series(engine, w, &plant, &mut next_lp, interval, &mut touched, &mut out)?;
     }
     tick(out.rows);
     Ok(out)
 }
 
 /// Write a `component_state` point (and its threshold lines) for every
-/// component whose integration passed its next series instant.
+/// component advanced since the last call whose integration passed its
+/// next series instant.
 fn write_series(
-    engine: &Engine,
+    engine: &mut Engine,
     w: &mut dyn Write,
     plant: &str,
     next_lp: &mut [i64],
     interval: i64,
+    touched: &mut Vec<u32>,
     out: &mut ReplayOutcome,
 ) -> io::Result<()> {
-    for (ci, next) in next_lp.iter_mut().enumerate() {
-        let Some(t) = engine.components()[ci].integrated_to_ms else { continue };
-        if t >= *next {
+    engine.drain_touched(touched);
+    for &ci in touched.iter() {
+        let ci = ci as usize;
+        let next = &mut next_lp[ci];
+        let st = &engine.components()[ci];
+        let Some(t) = st.integrated_to_ms else { continue };
+        // No point before anything is integrated (the first sample alone
+        // gives no conditions); the live service keeps the same rule.
+        if t >= *next && st.integrated_h > 0.0 {
             let plan = &engine.plan().components[ci];
-            let p = component_point(plant, plan, &engine.components()[ci], t);
+            let p = component_point(plant, plan, st, t);
             if let Some(line) = p.to_line() {
                 writeln!(w, "{line}")?;
                 out.points_written += 1;

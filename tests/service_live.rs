@@ -700,3 +700,37 @@ fn a_dead_feed_raises_stale_alarms_by_the_wall_clock_and_readiness_says_so() {
     );
     assert!(svc.sigterm().success());
 }
+
+#[test]
+fn series_points_follow_event_time_not_commits() {
+    // The reproduction: a backlog of one-minute scans arriving in one burst
+    // was committed in a few batches and gave one point per batch (75
+    // instead of 84 over 84 minutes). Points are due at every
+    // series_interval_s (60 s here) of event time, as `replay --write-lp`
+    // writes them.
+    let dir = tempfile::tempdir().unwrap();
+    let (broker, cfg, svc) = start_plant(dir.path());
+    let s = samples(84);
+    publish_all(broker.port, &s, "burst-publisher");
+    svc.wait_until_integrated(s.last().unwrap().1);
+    let live = times(&trend(&svc, "SH-TUBE", ""));
+    let lp = dir.path().join("series.lp");
+    let o = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+        .args(["replay", "--config", cfg.to_str().unwrap(), "--format", "json", "--lp-interval-s", "60", "--input"])
+        .arg(csv(dir.path(), &s))
+        .arg("--write-lp")
+        .arg(&lp)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let replayed: Vec<i64> = std::fs::read_to_string(&lp)
+        .unwrap()
+        .lines()
+        .filter(|l| l.starts_with("component_state,") && l.contains("component=SH-TUBE"))
+        .map(|l| l.rsplit(' ').next().unwrap().parse::<i64>().unwrap() / 1_000_000)
+        .collect();
+    // One point a minute from the first integrated minute to the last.
+    assert_eq!(live.len(), 83, "{live:?}");
+    assert_eq!(live, replayed, "the live series has the replay's event times");
+    assert!(svc.sigterm().success());
+}

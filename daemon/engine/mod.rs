@@ -215,6 +215,15 @@ pub struct HeldChanges {
     pub released: Vec<u64>,
 }
 
+/// Note component `ci` in the touched list (once).
+#[inline]
+fn touch(list: &mut Vec<u32>, flags: &mut [bool], ci: usize) {
+    if !flags[ci] {
+        flags[ci] = true;
+        list.push(ci as u32);
+    }
+}
+
 /// A one-to-many relation (tag → components, component → tags) in two flat
 /// arrays, so the hot path follows no pointers.
 #[derive(Debug, Clone)]
@@ -262,6 +271,11 @@ pub struct Engine {
     changed: Vec<bool>,
     /// Tags whose cursor moved since the last [`Engine::take_changed_tags`].
     changed_tags: Vec<bool>,
+    /// Components advanced since the last [`Engine::drain_touched`], in
+    /// the order they were first advanced, and the flags that keep the
+    /// list free of repeats.
+    touched: Vec<u32>,
+    touched_flag: Vec<bool>,
     /// The reorder window: accepted samples not yet integrated, in
     /// event-time order (arrival order among equal times).
     held: std::collections::VecDeque<(TagId, HeldSample)>,
@@ -297,6 +311,8 @@ impl Engine {
             components: plan.components.iter().map(ComponentState::new).collect(),
             changed: vec![false; plan.components.len()],
             changed_tags: vec![false; plan.tags.len()],
+            touched: vec![],
+            touched_flag: vec![false; plan.components.len()],
             scratch: plan.components.iter().map(component::Scratch::new).collect(),
             consumers,
             inputs,
@@ -592,6 +608,7 @@ impl Engine {
                 Some(_) => continue,
             }
             self.changed[ci] = true;
+            touch(&mut self.touched, &mut self.touched_flag, ci);
         }
     }
 
@@ -618,6 +635,7 @@ impl Engine {
                         tau,
                     );
                     self.changed[ci] = true;
+                    touch(&mut self.touched, &mut self.touched_flag, ci);
                 }
             }
         }
@@ -629,6 +647,7 @@ impl Engine {
                 st.integrated_to_ms = Some(t);
                 st.first_sample_ms = Some(t);
                 self.changed[ci] = true;
+                touch(&mut self.touched, &mut self.touched_flag, ci);
                 continue;
             }
             // Watermark: the newest instant every live input has reached.
@@ -657,11 +676,23 @@ impl Engine {
                     tau,
                 );
                 self.changed[ci] = true;
+                touch(&mut self.touched, &mut self.touched_flag, ci);
             }
         }
         if !self.clockless.is_empty() {
             self.advance_clock(t);
         }
+    }
+
+    /// Components advanced since the last call (each once), for writers of
+    /// series points that must see every step of event time, not only the
+    /// state at a commit. Costs nothing per untouched component.
+    pub fn drain_touched(&mut self, out: &mut Vec<u32>) {
+        out.clear();
+        for &ci in &self.touched {
+            self.touched_flag[ci as usize] = false;
+        }
+        std::mem::swap(out, &mut self.touched);
     }
 
     /// Indices of tags whose cursor moved since the last call.

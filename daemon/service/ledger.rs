@@ -118,7 +118,15 @@ pub struct Ledger {
     started_ms: i64,
     /// No accepted sample from any tag for `[alarms] no_data_alarm_s`.
     no_plant_data: bool,
+    /// Scratch list of components the engine advanced.
+    touched: Vec<u32>,
+    /// Per component: event time from which threshold lines are due again.
+    next_threshold_ms: Vec<i64>,
 }
+
+/// Threshold lines go out with a component's series at most this often in
+/// event time (1 h), besides start-up and reloads.
+const THRESHOLD_REFRESH_MS: i64 = 3_600_000;
 
 /// The plant-level alarm raised when no tag delivers data.
 pub const PLANT_DATA_ALARM: &str = "lifeledger:plant-data";
@@ -301,6 +309,8 @@ impl Ledger {
             last_any_arrival: None,
             started_ms: now_ms(),
             no_plant_data: false,
+            touched: vec![],
+            next_threshold_ms: vec![i64::MIN; ncomp],
             service,
         };
         // Thresholds go to the database at start-up, at the newest event time.
@@ -403,6 +413,7 @@ impl Ledger {
         // stopped), and parts without tag inputs, move with the wall clock.
         self.engine.release_due(now);
         self.engine.advance_clock(now);
+        self.collect_series();
         // Silence is judged by the wall clock, so a dead feed alarms even
         // though no batch arrives to trigger a commit.
         self.sensor_check();
@@ -518,6 +529,7 @@ impl Ledger {
         let s = Sample { tag: id, time_ms: d.time_ms, value: d.value, quality: d.quality };
         // The receive time is the wall clock the event time is judged by.
         let r = self.engine.offer(&s, received_ms);
+        self.collect_series();
         let ti = id as usize;
         let (oor, badq) = self.sensor[ti];
         match r {
@@ -630,8 +642,59 @@ impl Ledger {
         }
     }
 
+    /// Series points at `series_interval_s` spacing of event time: called
+    /// after every step of the engine (each sample, each release of the
+    /// reorder window, each clock advance), so a burst of scans committed
+    /// together still gives one point per interval, as `replay` does.
+    fn collect_series(&mut self) {
+        let mut touched = std::mem::take(&mut self.touched);
+        self.engine.drain_touched(&mut touched);
+        if touched.is_empty() {
+            self.touched = touched;
+            return;
+        }
+        let plant = &self.cfg.plan.plant;
+        let interval = self.service.store.series_interval_s.max(1) * 1000;
+        for &ci in &touched {
+            let ci = ci as usize;
+            let plan = &self.engine.plan().components[ci];
+            let st = &self.engine.components()[ci];
+            let Some(t) = st.integrated_to_ms else { continue };
+            // Nothing integrated yet (only the first sample seen): no point.
+            if t < self.next_series_ms[ci] || st.integrated_h <= 0.0 {
+                continue;
+            }
+            if let Some(l) = component_point(plant, plan, st, t).to_line() {
+                self.extra_outbox.push(l);
+                self.counters.series_points += 1;
+            }
+            self.trend_points.push((
+                plan.name.clone(),
+                TrendPoint {
+                    t,
+                    metal_temperature_c: crate::physics::units::kelvin_to_celsius(st.now.metal_temperature_k),
+                    pressure_mpa: st.now.pressure_mpa,
+                    hoop_stress_mpa: st.now.hoop_stress_mpa,
+                    creep_life_fraction: st.life_fraction,
+                    creep_strain: st.creep_strain,
+                    wear_index: st.wear_index(plan),
+                },
+            ));
+            // Threshold lines beside the series at most once an hour of
+            // event time per component (and at start and reload): they
+            // change only with the configuration.
+            if t >= self.next_threshold_ms[ci] {
+                self.extra_outbox.extend(threshold_points(plant, plan, t).into_iter().filter_map(|p| p.to_line()));
+                self.next_threshold_ms[ci] = (t.div_euclid(THRESHOLD_REFRESH_MS) + 1) * THRESHOLD_REFRESH_MS;
+            }
+            self.next_series_ms[ci] = (t.div_euclid(interval) + 1) * interval;
+        }
+        self.touched = touched;
+    }
+
     /// Write the batch in one transaction, then acknowledge and publish.
     pub fn commit(&mut self) {
+        self.collect_series();
         let changed = self.engine.take_changed();
         self.dirty_tags.extend(self.engine.take_changed_tags());
         let held = self.engine.take_held_changes();
@@ -652,36 +715,14 @@ impl Ledger {
         self.force_commit = false;
         let started = Instant::now();
         let plant = self.cfg.plan.plant.clone();
-        let interval = self.service.store.series_interval_s.max(1) * 1000;
         let mut components = Vec::with_capacity(changed.len());
         let mut outbox = std::mem::take(&mut self.extra_outbox);
-        let mut trend_points = std::mem::take(&mut self.trend_points);
+        let trend_points = std::mem::take(&mut self.trend_points);
         for &ci in &changed {
             let plan = &self.engine.plan().components[ci];
             let st = &self.engine.components()[ci];
             components.push((plan.name.clone(), serde_json::to_string(st).unwrap_or_default()));
             if let Some(t) = st.integrated_to_ms {
-                // Nothing integrated yet (only the first sample seen): no point.
-                if t >= self.next_series_ms[ci] && st.integrated_h > 0.0 {
-                    if let Some(l) = component_point(&plant, plan, st, t).to_line() {
-                        outbox.push(l);
-                        self.counters.series_points += 1;
-                    }
-                    trend_points.push((
-                        plan.name.clone(),
-                        TrendPoint {
-                            t,
-                            metal_temperature_c: crate::physics::units::kelvin_to_celsius(st.now.metal_temperature_k),
-                            pressure_mpa: st.now.pressure_mpa,
-                            hoop_stress_mpa: st.now.hoop_stress_mpa,
-                            creep_life_fraction: st.life_fraction,
-                            creep_strain: st.creep_strain,
-                            wear_index: st.wear_index(plan),
-                        },
-                    ));
-                    outbox.extend(threshold_points(&plant, plan, t).into_iter().filter_map(|p| p.to_line()));
-                    self.next_series_ms[ci] = (t.div_euclid(interval) + 1) * interval;
-                }
                 let ev = self.book.evaluate_component(plan, st, t);
                 for e in &ev {
                     self.dirty_alarms.insert(e.key());
@@ -879,6 +920,7 @@ impl Ledger {
         self.store.set_alarm_journal_max_events(service.store.alarm_journal_max_events);
         self.store.set_trend_points_per_component(service.store.trend_points_per_component);
         self.next_series_ms = vec![i64::MIN; cfg.plan.components.len()];
+        self.next_threshold_ms = vec![i64::MIN; cfg.plan.components.len()];
         self.sensor = vec![(false, false); cfg.plan.tags.len()];
         self.sensor_latched = vec![(false, false); cfg.plan.tags.len()];
         self.cfg = Arc::new(cfg);
