@@ -42,6 +42,10 @@ pub const MIGRATIONS: &[Migration] = &[
     },
     Migration { summary: "the alarm journal: every alarm event, newest kept", apply: v2_alarm_journal },
     Migration { summary: "component trends: the status page's points by component and event time", apply: v3_trend },
+    Migration {
+        summary: "checkpoints: a daily copy of each component's ledger and its tags, for rollback",
+        apply: v4_checkpoint,
+    },
 ];
 
 /// The newest schema version this build knows: the number of migrations.
@@ -113,6 +117,28 @@ fn v3_trend(tx: &Transaction<'_>) -> rusqlite::Result<()> {
              creep_strain REAL,
              wear_index REAL,
              PRIMARY KEY (component, t_ms)
+         ) WITHOUT ROWID;",
+    )
+}
+
+/// Version 4: checkpoints, daily copies of each component's ledger for
+/// rolling a poisoned ledger back (see [`super::checkpoint`]).
+///
+/// One row per component and checkpoint: the event time the component was
+/// integrated to (`at_ms`), the wall-clock time the row was written
+/// (`written_ms`, which retention goes by), the component's state and the
+/// states of the tags it reads, both JSON text. The primary key serves
+/// "the newest checkpoint of a component at or before a time" as one
+/// range of one B-tree.
+fn v4_checkpoint(tx: &Transaction<'_>) -> rusqlite::Result<()> {
+    tx.execute_batch(
+        "CREATE TABLE checkpoint (
+             component TEXT NOT NULL,
+             at_ms INTEGER NOT NULL,
+             written_ms INTEGER NOT NULL,
+             state TEXT NOT NULL,
+             tags TEXT NOT NULL,
+             PRIMARY KEY (component, at_ms)
          ) WITHOUT ROWID;",
     )
 }
