@@ -361,7 +361,7 @@ mod tests {
             .restore(&Restore {
                 components: &[("sh-1".into(), r#"{"day":0}"#.into(), OCT_1)],
                 tags: &[("TI-1".into(), r#"{"cursor_ms":1}"#.into())],
-                journal: &[entry.clone()],
+                journal: std::slice::from_ref(&entry),
             })
             .unwrap();
         let loaded = store.load().unwrap();
