@@ -600,6 +600,38 @@ wall = { value = 6.0, unit = "mm" }
         assert_eq!(back.tags(), clean.tags(), "and every tag too");
     }
 
+    /// Without a backfill, the hours from the checkpoint to the next
+    /// sample are a gap: past the hold time they are integrated by the gap
+    /// policy and counted as unmonitored (the rule of the engine, README
+    /// "Integration over time").
+    #[test]
+    fn without_a_backfill_the_hours_since_the_checkpoint_are_unmonitored() {
+        let mut e = engine();
+        feed(&mut e, 0..1440);
+        let cp = checkpoint_of(&e, "A");
+        feed(&mut e, 1440..2 * 1440);
+        let plan = plan_rollback(
+            &e,
+            &Scope::Component("A".into()),
+            cp.at_ms,
+            &BTreeMap::from([("A".into(), found(Some(cp)))]),
+        )
+        .unwrap();
+        let mut back = apply(&e, &plan);
+        let before = state(&back, "A").unmonitored_h;
+        // The next data: minute 2880, a day and a minute after the checkpoint.
+        feed(&mut back, 2 * 1440..2 * 1440 + 1);
+        let a = state(&back, "A");
+        assert_eq!(a.integrated_to_ms, Some(T0 + 2880 * MIN));
+        // 1441 minutes without samples, the first 900 s held (max_hold_s).
+        let want = 1441.0 / 60.0 - 900.0 / 3600.0;
+        assert!(
+            (a.unmonitored_h - before - want).abs() < 1e-9,
+            "{} h unmonitored, want {want}",
+            a.unmonitored_h - before
+        );
+    }
+
     #[test]
     fn components_at_or_before_the_time_are_left_and_tags_take_the_oldest_copy() {
         let mut e = engine();

@@ -15,7 +15,9 @@
 //! nothing of alarm types.
 //!
 //! Rollbacks of the ledger (`lifeledger rollback`) are recorded here too,
-//! one entry per component rolled back, under the index [`ROLLBACK_INDEX`]:
+//! one entry per component rolled back, under the index [`ROLLBACK_INDEX`]
+//! and stamped with the wall-clock time of the rollback (alarm events carry
+//! event time):
 //! they belong in a component's history beside its alarms, but they are
 //! not alarm events, so [`Store::alarm_journal_newest`] passes over them.
 //!
