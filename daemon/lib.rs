@@ -16,6 +16,7 @@
 //! * [`fit`]: material constants from creep test data.
 //! * [`report`]: human and JSON renderings of ledgers and derived checks.
 //! * [`store`]: the durable ledger (SQLite, one transaction per batch).
+//! * [`recovery`]: checkpoints, rollback and backfill of a poisoned ledger.
 //! * [`sink`]: delivery of line protocol to the time-series database.
 //! * [`alarm`]: threshold alarms with ISA-18.2 states.
 
@@ -30,6 +31,7 @@ pub mod fit;
 pub mod ingest;
 pub mod lineproto;
 pub mod physics;
+pub mod recovery;
 pub mod replay;
 pub mod report;
 pub mod service;

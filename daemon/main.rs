@@ -119,6 +119,85 @@ enum Command {
         #[arg(long, value_enum, default_value_t = Format::Table)]
         format: Format,
     },
+    /// Roll one component, or the whole ledger, back to its newest checkpoint at or before a time.
+    ///
+    /// For a ledger poisoned by wrong data (a gateway clock years ahead, a bad
+    /// historian export). Works on the ledger file of a STOPPED service: it
+    /// refuses, changing nothing, while the service or any other program has
+    /// the file open. The service keeps a checkpoint of every component once a
+    /// UTC day of event time, for [store] checkpoint_days (default 90) days.
+    ///
+    /// The tags a rolled-back component reads are rewound with it, so that
+    /// `lifeledger backfill` can deliver their samples again; other components
+    /// that read those tags count nothing twice (they integrate only past their
+    /// own time). Who did it and why go into the alarm journal.
+    ///
+    /// Then refill the hours since the checkpoint with `lifeledger backfill`
+    /// from the historian, and start the service. Without a backfill, those
+    /// hours are integrated by the gap policy (conservative by default) and
+    /// counted as unmonitored when data arrive again.
+    ///
+    /// Example:
+    ///   lifeledger rollback --config plant.toml --component U2-SH3-OUTLET-LEG-A \
+    ///     --to 2026-10-20T00:00:00Z --by "A. Engineer" --reason "gateway clock jumped to 2030"
+    #[command(after_help = CAUTION_HELP)]
+    #[command(group(clap::ArgGroup::new("scope").required(true).args(["component", "all"])))]
+    Rollback {
+        /// Configuration file (TOML) of the service.
+        #[arg(long, short)]
+        config: PathBuf,
+        /// Ledger file [default: the [store] path of the configuration].
+        #[arg(long)]
+        ledger: Option<PathBuf>,
+        /// The component to roll back.
+        #[arg(long, value_name = "NAME")]
+        component: Option<String>,
+        /// Roll every component of the configuration back.
+        #[arg(long)]
+        all: bool,
+        /// Roll back to the newest checkpoint at or before this time (RFC 3339).
+        #[arg(long, value_name = "RFC3339")]
+        to: String,
+        /// Who rolls the ledger back (recorded in the alarm journal).
+        #[arg(long, value_name = "NAME")]
+        by: String,
+        /// Why (recorded in the alarm journal).
+        #[arg(long, value_name = "TEXT")]
+        reason: String,
+        /// Say what would be restored, change nothing.
+        #[arg(long)]
+        dry_run: bool,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+    },
+    /// Feed a historian CSV into a stopped service's ledger, through the same engine as `replay`.
+    ///
+    /// The engine starts from the ledger's stored state; rows at or before
+    /// their tag's cursor are already in the ledger and are skipped (counted
+    /// as duplicate or late). The result is committed in one transaction,
+    /// with a checkpoint of each changed component. A missing ledger file is
+    /// created: this is how a new installation starts from its history. Like
+    /// `rollback`, it refuses while the service or another program has the
+    /// file open. Alarms are evaluated by the service with its next data.
+    ///
+    /// The CSV is the same as for `replay`: `timestamp,tag,value[,quality]`.
+    ///
+    /// Example:
+    ///   lifeledger backfill --config plant.toml --input historian-since-oct-20.csv.gz
+    #[command(after_help = CAUTION_HELP)]
+    Backfill {
+        /// Configuration file (TOML) of the service.
+        #[arg(long, short)]
+        config: PathBuf,
+        /// Ledger file [default: the [store] path of the configuration].
+        #[arg(long)]
+        ledger: Option<PathBuf>,
+        /// Historian CSV (or .csv.gz); `-` reads standard input.
+        #[arg(long, short)]
+        input: String,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+    },
     /// Run everything on this machine with no external servers: embedded broker, plant simulator, live service, status page.
     ///
     /// An invented unit (Brackenmoor Demo Station, U2) is simulated, time
@@ -250,6 +329,11 @@ fn main() {
             cmd_replay(config, input, format, write_lp, lp_interval_s, no_progress)
         }
         Command::CheckConfig { config, format } => cmd_check(config, format),
+        Command::Rollback { config, ledger, component, all: _, to, by, reason, dry_run, format } => {
+            let scope = component.map_or(lifeledger::recovery::Scope::Whole, lifeledger::recovery::Scope::Component);
+            cmd_rollback(&config, ledger, scope, &to, by, reason, dry_run, format)
+        }
+        Command::Backfill { config, ledger, input, format } => cmd_backfill(&config, ledger, &input, format),
         Command::Materials { action } => cmd_materials(action),
         Command::Fit { cmd } => lifeledger::fit::run(&cmd).map(|_| 0),
     };
@@ -453,6 +537,222 @@ fn cmd_ledger(config: &std::path::Path, format: Format) -> Result<i32> {
             writeln!(out, "\n{}", lifeledger::CAUTION)?;
         }
     }
+    Ok(0)
+}
+
+/// An event time for people, or `-`.
+fn time_or_dash(t: Option<i64>) -> String {
+    t.map_or("-".to_string(), report::rfc3339_ms)
+}
+
+#[allow(clippy::too_many_arguments)]
+fn cmd_rollback(
+    config: &std::path::Path,
+    ledger: Option<PathBuf>,
+    scope: lifeledger::recovery::Scope,
+    to: &str,
+    by: String,
+    reason: String,
+    dry_run: bool,
+    format: Format,
+) -> Result<i32> {
+    use lifeledger::alarm::index::short;
+    let to_ms = lifeledger::replay::parse_timestamp_ms(to.trim())
+        .with_context(|| format!("--to {to:?} is not a time; give RFC 3339, for example 2026-10-20T00:00:00Z"))?;
+    let (cfg, service) = lifeledger::service::load_service(config)?;
+    let req = lifeledger::recovery::RollbackRequest {
+        ledger,
+        scope,
+        to_ms,
+        by: by.trim().to_string(),
+        reason: reason.trim().to_string(),
+        dry_run,
+    };
+    let o = lifeledger::recovery::rollback(&cfg, &service, &req)?;
+    let mut out = std::io::stdout().lock();
+    if format == Format::Json {
+        let j = serde_json::json!({
+            "plant": cfg.plan.plant,
+            "ledger": o.ledger.display().to_string(),
+            "to": report::rfc3339_ms(to_ms),
+            "by": req.by,
+            "reason": req.reason,
+            "dry_run": dry_run,
+            "written": o.written,
+            "components": o.plan.components,
+            "tags": o.plan.tags,
+            "unchanged": o.plan.unchanged,
+            "integrated_past_now": o.integrated_past_now,
+            "caution": lifeledger::CAUTION,
+        });
+        serde_json::to_writer_pretty(&mut out, &j)?;
+        writeln!(out)?;
+        return Ok(0);
+    }
+    writeln!(out, "lifeledger rollback: {} ({})", cfg.plan.plant, o.ledger.display())?;
+    writeln!(
+        out,
+        "to the newest checkpoint at or before {}, by {}: {}",
+        report::rfc3339_ms(to_ms),
+        req.by,
+        req.reason
+    )?;
+    if o.plan.components.is_empty() {
+        writeln!(out, "\nnothing to roll back: every component in scope is integrated only to that time or earlier")?;
+    } else {
+        writeln!(
+            out,
+            "\n{:<28} {:<26} {:>13}   {:<26} {:>13}",
+            "component", "integrated to", "life fraction", "checkpoint", "life fraction"
+        )?;
+        for c in &o.plan.components {
+            writeln!(
+                out,
+                "{:<28} {:<26} {:>13} → {:<26} {:>13}",
+                c.component,
+                time_or_dash(c.integrated_to_ms_before),
+                short(c.before.life_fraction),
+                report::rfc3339_ms(c.checkpoint_ms),
+                short(c.after.life_fraction)
+            )?;
+        }
+    }
+    for t in &o.plan.tags {
+        write!(
+            out,
+            "tag {} rewound: cursor {} → {}",
+            t.tag,
+            time_or_dash(t.cursor_ms_before),
+            time_or_dash(t.cursor_ms_after)
+        )?;
+        if !t.also_read_by.is_empty() {
+            write!(
+                out,
+                " (also read by {}, which count nothing twice: they integrate only past their own time)",
+                t.also_read_by.join(", ")
+            )?;
+        }
+        writeln!(out)?;
+    }
+    for (name, t) in &o.plan.unchanged {
+        writeln!(out, "left as it is: {name} (integrated to {})", time_or_dash(*t))?;
+    }
+    for (name, t) in &o.integrated_past_now {
+        writeln!(
+            out,
+            "warning: {name} is integrated to {}, later than the wall clock: probably poisoned too; roll it back as well",
+            report::rfc3339_ms(*t)
+        )?;
+    }
+    if dry_run {
+        writeln!(out, "\ndry run: nothing was changed")?;
+    } else if o.written {
+        writeln!(
+            out,
+            "\nrecorded in the alarm journal. Next: refill the hours since the checkpoint with \
+             `lifeledger backfill --config {}{} --input HISTORIAN.csv`, then start the service; without a \
+             backfill those hours are integrated by the gap policy, and counted as unmonitored, when data arrive",
+            config.display(),
+            req.ledger.as_ref().map_or(String::new(), |l| format!(" --ledger {}", l.display()))
+        )?;
+    }
+    writeln!(out, "\n{}", lifeledger::CAUTION)?;
+    Ok(0)
+}
+
+/// `after − before` for every counter, by name (zeros left out).
+fn counter_delta(
+    before: &lifeledger::engine::Counters,
+    after: &lifeledger::engine::Counters,
+) -> serde_json::Map<String, serde_json::Value> {
+    let (b, a) = (serde_json::to_value(before).unwrap_or_default(), serde_json::to_value(after).unwrap_or_default());
+    let mut delta = serde_json::Map::new();
+    if let Some(a) = a.as_object() {
+        for (k, v) in a {
+            let d = v.as_u64().unwrap_or(0).saturating_sub(b.get(k).and_then(|x| x.as_u64()).unwrap_or(0));
+            if d > 0 {
+                delta.insert(k.clone(), d.into());
+            }
+        }
+    }
+    delta
+}
+
+fn cmd_backfill(config: &std::path::Path, ledger: Option<PathBuf>, input: &str, format: Format) -> Result<i32> {
+    let (cfg, service) = lifeledger::service::load_service(config)?;
+    for w in &cfg.warnings {
+        eprintln!("warning: {w}");
+    }
+    let o = lifeledger::recovery::backfill(&cfg, &service, ledger, input)?;
+    let delta = counter_delta(&o.counters_before, &o.counters_after);
+    let mut out = std::io::stdout().lock();
+    if format == Format::Json {
+        let j = serde_json::json!({
+            "plant": cfg.plan.plant,
+            "ledger": o.ledger.display().to_string(),
+            "input": input,
+            "rows": o.input.rows,
+            "malformed_rows": o.input.malformed,
+            "malformed_examples": o.input.malformed_examples,
+            "unknown_tags": o.input.unknown_tags,
+            "first_sample": o.input.first_time_ms.map(report::rfc3339_ms),
+            "last_sample": o.input.last_time_ms.map(report::rfc3339_ms),
+            "samples": delta,
+            "components": o.components,
+            "checkpoints_written": o.checkpoints_written,
+            "caution": lifeledger::CAUTION,
+        });
+        serde_json::to_writer_pretty(&mut out, &j)?;
+        writeln!(out)?;
+        return Ok(0);
+    }
+    writeln!(out, "lifeledger backfill: {} ({}) from {input}", cfg.plan.plant, o.ledger.display())?;
+    if let (Some(a), Some(b)) = (o.input.first_time_ms, o.input.last_time_ms) {
+        writeln!(out, "{} rows, event time {} to {}", o.input.rows, report::rfc3339_ms(a), report::rfc3339_ms(b))?;
+    }
+    let words: Vec<String> = delta.iter().map(|(k, v)| format!("{} {v}", k.replace('_', " "))).collect();
+    writeln!(out, "samples: {}", if words.is_empty() { "none".to_string() } else { words.join(", ") })?;
+    if delta.contains_key("duplicate") || delta.contains_key("late") {
+        writeln!(
+            out,
+            "(duplicate and late rows are at or before their tag's cursor: already in the ledger, integrated once)"
+        )?;
+    }
+    if o.input.malformed > 0 {
+        writeln!(out, "malformed rows: {}", o.input.malformed)?;
+        for m in &o.input.malformed_examples {
+            writeln!(out, "  line {}: {}", m.line, m.problem)?;
+        }
+    }
+    for (t, n) in &o.input.unknown_tags {
+        writeln!(out, "unknown tag {t:?}: {n} rows (not in the configuration)")?;
+    }
+    if o.components.is_empty() {
+        writeln!(out, "\nno component changed")?;
+    } else {
+        writeln!(
+            out,
+            "\n{:<28} {:<26}   {:<26} {:>13}   {:>13}",
+            "component", "integrated to before", "after", "life fraction", "after"
+        )?;
+        for c in &o.components {
+            writeln!(
+                out,
+                "{:<28} {:<26} → {:<26} {:>13} → {:>13}",
+                c.component,
+                time_or_dash(c.integrated_to_ms_before),
+                time_or_dash(c.integrated_to_ms_after),
+                lifeledger::alarm::index::short(c.before.life_fraction),
+                lifeledger::alarm::index::short(c.after.life_fraction)
+            )?;
+        }
+    }
+    writeln!(
+        out,
+        "\ncheckpoints written: {}; alarms are evaluated by the service with its next data",
+        o.checkpoints_written
+    )?;
+    writeln!(out, "\n{}", lifeledger::CAUTION)?;
     Ok(0)
 }
 

@@ -265,6 +265,8 @@ fn help_teaches_and_cautions() {
         vec!["replay", "--help"],
         vec!["check-config", "--help"],
         vec!["ledger", "--help"],
+        vec!["rollback", "--help"],
+        vec!["backfill", "--help"],
         vec!["materials", "--help"],
     ] {
         let (code, out, _) = run(&sub);

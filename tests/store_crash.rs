@@ -1,6 +1,6 @@
 //! Crash safety of the ledger store: a writer killed with SIGKILL at an
 //! arbitrary instant leaves component state, tag cursor, alarm, counters,
-//! alarm journal, trend and outbox all from the same commit, and loses no
+//! alarm journal, trend, checkpoints and outbox all from the same commit, and loses no
 //! commit it reported.
 //!
 //! The test re-runs its own binary as the writer (selected by an
@@ -12,7 +12,7 @@ use std::io::{BufRead, BufReader};
 use std::path::Path;
 use std::process::{Command, Stdio};
 
-use lifeledger::store::{Commit, JournalEntry, Store, TrendPoint, TrendWindow};
+use lifeledger::store::{CheckpointRow, Commit, JournalEntry, Store, TrendPoint, TrendWindow};
 
 /// Set to the ledger path in the writer child.
 const WRITER_ENV: &str = "LIFELEDGER_TEST_STORE_CRASH_WRITER";
@@ -50,8 +50,11 @@ fn write_until_killed(path: &Path) -> ! {
         let one = |key: &str| vec![(key.to_string(), state.clone())];
         let (tags, alarms, meta) = (one("t"), one("c/creep"), one("commits"));
         let outbox = vec![k.to_string()];
-        let event = JournalEntry { time_ms: k as i64, component: "c".into(), index: "creep".into(), event: state };
+        let event =
+            JournalEntry { time_ms: k as i64, component: "c".into(), index: "creep".into(), event: state.clone() };
         let point = trend_point(k);
+        // One checkpoint per commit: commit k is "integrated to" day k.
+        let checkpoint = CheckpointRow { component: "c".into(), at_ms: k as i64 * DAY_MS, state, tags: "{}".into() };
         let batch = Commit {
             components: &components,
             tags: &tags,
@@ -60,6 +63,7 @@ fn write_until_killed(path: &Path) -> ! {
             outbox: &outbox,
             alarm_events: &[event],
             trend_points: &[("c".to_string(), point)],
+            checkpoints: &[checkpoint],
             ..Commit::default()
         };
         store.commit(&batch).expect("writer commits");
@@ -72,6 +76,9 @@ fn write_until_killed(path: &Path) -> ! {
         println!("{MARK}committed {k}");
     }
 }
+
+/// One day in ms: the event-time step between two commits' checkpoints.
+const DAY_MS: i64 = 86_400_000;
 
 /// What a consistent ledger holds.
 struct Ledger {
@@ -108,6 +115,7 @@ fn read_consistent(store: &Store) -> Ledger {
         assert_eq!(store.outbox_stats().unwrap().lines, 0);
         assert!(store.alarm_journal_newest(1).unwrap().is_empty());
         assert!(store.trend("c", TrendWindow::ALL).unwrap().is_empty());
+        assert!(store.checkpoint_times("c").unwrap().is_empty());
         return Ledger { n: 0, removed: 0 };
     };
     let n = n_of(c);
@@ -140,6 +148,13 @@ fn read_consistent(store: &Store) -> Ledger {
     let trend = store.trend("c", TrendWindow::ALL).unwrap();
     let want: Vec<TrendPoint> = (1..=n).map(trend_point).collect();
     assert_eq!(trend, want, "the trend holds every commit's point once, the newest from commit {n}");
+
+    // One checkpoint per commit (one a day, all written within the
+    // default retention), the newest holding the state of commit n.
+    let days: Vec<i64> = store.checkpoint_times("c").unwrap().into_iter().map(|(t, _)| t / DAY_MS).collect();
+    assert_eq!(days, (1..=n as i64).collect::<Vec<_>>(), "a checkpoint for every commit, once");
+    let newest = store.checkpoint_at_or_before("c", i64::MAX).unwrap().unwrap();
+    assert_eq!(n_of(&newest.row.state), n, "the newest checkpoint is from the same commit as the state");
 
     let stats = store.outbox_stats().unwrap();
     let bytes: u64 = lines.iter().map(|l| l.to_string().len() as u64).sum();

@@ -15,7 +15,9 @@
 //! `recent_events`, so the alarm history shown survives a restart. So do
 //! the status page's trends: each `component_state` point's figures go into
 //! the store's trend table in the same transaction, and the HTTP side reads
-//! them from there.
+//! them from there. Once a UTC day of event time, each component's ledger
+//! and its tags' states are copied into the store's checkpoints in the same
+//! transaction too (`crate::recovery::checkpoint_rows`), for rollback.
 
 use super::settings::ServiceSettings;
 use super::snapshot::{ComponentFreshness, Freshness, ServiceCounters, Snapshot, TagFreshness};
@@ -240,6 +242,7 @@ impl Ledger {
         let mut store = Store::open(&service.store.path)?;
         store.set_alarm_journal_max_events(service.store.alarm_journal_max_events);
         store.set_trend_points_per_component(service.store.trend_points_per_component);
+        store.set_checkpoint_days(service.store.checkpoint_days);
         let loaded = store.load()?;
         let recent_events = recent_events(&store)?;
         let mut engine = Engine::new(cfg.plan.clone());
@@ -781,6 +784,8 @@ impl Ledger {
                 arrival_ms: h.arrival_ms,
             })
             .collect();
+        // A daily copy of each changed component whose day has turned.
+        let checkpoints = crate::recovery::checkpoint_rows(&self.engine, &changed, &self.store);
         let commit = Commit {
             held_added: &held_added,
             held_released: &self.held_released,
@@ -791,6 +796,7 @@ impl Ledger {
             outbox: &outbox,
             alarm_events: &journal,
             trend_points: &trend_points,
+            checkpoints: &checkpoints,
         };
         match self.store.commit(&commit) {
             Ok(stats) => {
@@ -919,6 +925,7 @@ impl Ledger {
         self.book.set_config(service.alarms.clone());
         self.store.set_alarm_journal_max_events(service.store.alarm_journal_max_events);
         self.store.set_trend_points_per_component(service.store.trend_points_per_component);
+        self.store.set_checkpoint_days(service.store.checkpoint_days);
         self.next_series_ms = vec![i64::MIN; cfg.plan.components.len()];
         self.next_threshold_ms = vec![i64::MIN; cfg.plan.components.len()];
         self.sensor = vec![(false, false); cfg.plan.tags.len()];

@@ -34,6 +34,11 @@ pub struct StoreSettings {
     /// least 1.
     #[serde(default = "default_trend")]
     pub trend_points_per_component: u64,
+    /// Days (wall clock) the daily checkpoints of each component's ledger
+    /// are kept, for `lifeledger rollback`; a component's newest is always
+    /// kept. At least 1.
+    #[serde(default = "default_checkpoint_days")]
+    pub checkpoint_days: u64,
 }
 
 fn default_path() -> PathBuf {
@@ -54,6 +59,9 @@ fn default_journal() -> u64 {
 fn default_trend() -> u64 {
     crate::store::trend::DEFAULT_POINTS_PER_COMPONENT
 }
+fn default_checkpoint_days() -> u64 {
+    crate::store::checkpoint::DEFAULT_DAYS
+}
 
 impl Default for StoreSettings {
     fn default() -> Self {
@@ -64,6 +72,7 @@ impl Default for StoreSettings {
             health_interval_s: default_health(),
             alarm_journal_max_events: default_journal(),
             trend_points_per_component: default_trend(),
+            checkpoint_days: default_checkpoint_days(),
         }
     }
 }
@@ -147,6 +156,13 @@ impl ServiceSettings {
                 default_trend()
             ));
         }
+        if store.as_ref().is_some_and(|s| s.checkpoint_days == 0) {
+            errors.push(format!(
+                "[store]: checkpoint_days = 0 would keep no checkpoint to roll a poisoned ledger back to; set at \
+                 least 1 (the default {} keeps about a quarter of a year)",
+                default_checkpoint_days()
+            ));
+        }
         let database = section::<DatabaseSettings>("database", &s.database).unwrap_or_else(|e| {
             errors.push(e);
             None
@@ -218,6 +234,20 @@ mod tests {
         assert_eq!(StoreSettings::default().trend_points_per_component, 10_080);
         let s = store_section("trend_points_per_component = 500").unwrap();
         assert_eq!(s.store.trend_points_per_component, 500);
+    }
+
+    #[test]
+    fn checkpoints_are_kept_ninety_days_unless_told() {
+        assert_eq!(store_section("").unwrap().store.checkpoint_days, 90);
+        assert_eq!(StoreSettings::default().checkpoint_days, 90);
+        assert_eq!(store_section("checkpoint_days = 400").unwrap().store.checkpoint_days, 400);
+        let errors = store_section("checkpoint_days = 0").unwrap_err();
+        assert_eq!(errors.len(), 1, "{errors:?}");
+        assert!(
+            errors[0].contains("[store]: checkpoint_days = 0") && errors[0].contains("set at least 1"),
+            "{}",
+            errors[0]
+        );
     }
 
     #[test]

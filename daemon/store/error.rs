@@ -63,6 +63,19 @@ pub enum StoreError {
         detail: String,
     },
 
+    /// A tool that needs the ledger to itself found another connection on
+    /// it: most likely the service is running.
+    #[error(
+        "ledger store {}: the ledger is in use by another program (a running `lifeledger run`, \
+         `lifeledger ledger`, a backup or an sqlite3 session). The file was not changed. Stop the \
+         service (for example `systemctl stop lifeledger`), close the other programs, and try again",
+        path.display()
+    )]
+    InUse {
+        /// The ledger file.
+        path: PathBuf,
+    },
+
     /// SQLite's `quick_check` found damage.
     #[error(
         "ledger store {}: the file is damaged (SQLite quick_check: {detail}). The file was \

@@ -14,6 +14,13 @@
 //! next event. Like the rest of the store it holds JSON text and knows
 //! nothing of alarm types.
 //!
+//! Rollbacks of the ledger (`lifeledger rollback`) are recorded here too,
+//! one entry per component rolled back, under the index [`ROLLBACK_INDEX`]
+//! and stamped with the wall-clock time of the rollback (alarm events carry
+//! event time):
+//! they belong in a component's history beside its alarms, but they are
+//! not alarm events, so [`Store::alarm_journal_newest`] passes over them.
+//!
 //! Readers: [`Store::alarm_journal_newest`] on the ledger thread at start-up,
 //! and [`JournalReader`], which opens its own read-only connection per call,
 //! for the HTTP API (WAL lets it read while the ledger thread writes).
@@ -23,6 +30,10 @@ use std::path::{Path, PathBuf};
 use rusqlite::{Connection, Row};
 
 use super::{read_only, Store, StoreError};
+
+/// The `alarm_index` of journal entries that record a rollback of the
+/// ledger rather than an alarm event.
+pub const ROLLBACK_INDEX: &str = "ledger_rollback";
 
 /// How many events the journal keeps when the configuration does not say.
 pub const DEFAULT_MAX_EVENTS: u64 = 10_000;
@@ -62,8 +73,9 @@ pub(super) fn append(conn: &Connection, entries: &[JournalEntry], keep: u64) -> 
     Ok(())
 }
 
-/// The newest `limit` events, newest first, of one component or (with
-/// `None`) of the whole plant, each with its id (higher is newer).
+/// The newest `limit` entries, newest first, of one component (rollbacks
+/// included) or (with `None`) the alarm events of the whole plant
+/// (rollbacks left out), each with its id (higher is newer).
 fn newest(conn: &Connection, component: Option<&str>, limit: usize) -> rusqlite::Result<Vec<(i64, JournalEntry)>> {
     let limit = i64::try_from(limit).unwrap_or(i64::MAX);
     let row = |r: &Row<'_>| {
@@ -72,8 +84,9 @@ fn newest(conn: &Connection, component: Option<&str>, limit: usize) -> rusqlite:
     const COLUMNS: &str = "SELECT id, time_ms, component, alarm_index, event FROM alarm_journal";
     match component {
         None => {
-            let mut stmt = conn.prepare_cached(&format!("{COLUMNS} ORDER BY id DESC LIMIT ?1"))?;
-            let rows = stmt.query_map([limit], row)?;
+            let mut stmt =
+                conn.prepare_cached(&format!("{COLUMNS} WHERE alarm_index != ?2 ORDER BY id DESC LIMIT ?1"))?;
+            let rows = stmt.query_map((limit, ROLLBACK_INDEX), row)?;
             rows.collect()
         }
         Some(c) => {
@@ -92,7 +105,8 @@ impl Store {
         self.journal_max_events = n;
     }
 
-    /// The newest `limit` events of the plant, newest first, with their ids.
+    /// The newest `limit` alarm events of the plant, newest first, with
+    /// their ids; rollback records are left out.
     pub fn alarm_journal_newest(&self, limit: usize) -> Result<Vec<(i64, JournalEntry)>, StoreError> {
         newest(&self.conn, None, limit).map_err(|e| StoreError::sqlite(&self.path, "reading the alarm journal", e))
     }
@@ -112,8 +126,9 @@ impl JournalReader {
         JournalReader { path: path.into() }
     }
 
-    /// The newest `limit` events of `component`, newest first, with their
-    /// ids. Blocking: call it off the async runtime's worker threads.
+    /// The newest `limit` entries of `component` (alarm events and
+    /// rollbacks), newest first, with their ids. Blocking: call it off the
+    /// async runtime's worker threads.
     pub fn component(&self, component: &str, limit: usize) -> Result<Vec<(i64, JournalEntry)>, StoreError> {
         let fail = |e| StoreError::sqlite(&self.path, "reading the alarm journal", e);
         let conn = read_only(&self.path).map_err(fail)?;
@@ -171,6 +186,18 @@ mod tests {
         assert_eq!(numbers(&reader.component("even", 10).unwrap()), [6, 4, 2]);
         assert_eq!(numbers(&reader.component("odd", 2).unwrap()), [5, 3]);
         assert!(reader.component("none", 10).unwrap().is_empty());
+    }
+
+    #[test]
+    fn rollback_records_are_in_a_components_history_but_not_among_the_plants_alarm_events() {
+        let (dir, mut store) = fresh();
+        let rollback = JournalEntry { index: ROLLBACK_INDEX.into(), ..entry(2, "sh-1") };
+        store
+            .commit(&Commit { alarm_events: &[entry(1, "sh-1"), rollback, entry(3, "sh-2")], ..Default::default() })
+            .unwrap();
+        assert_eq!(numbers(&store.alarm_journal_newest(10).unwrap()), [3, 1]);
+        let reader = JournalReader::new(&dir.path().join("ledger.db"));
+        assert_eq!(numbers(&reader.component("sh-1", 10).unwrap()), [2, 1]);
     }
 
     #[test]

@@ -13,8 +13,8 @@
 //! # Why it is built this way
 //!
 //! * **One transaction per batch.** [`Store::commit`] writes component
-//!   states, tag cursors, alarms, alarm events, trend points, counters and
-//!   outbox lines together, so a crash at any instant leaves them all from
+//!   states, tag cursors, alarms, alarm events, trend points, checkpoints,
+//!   counters and outbox lines together, so a crash at any instant leaves them all from
 //!   the same batch: the ledger never holds damage whose points are missing
 //!   from the outbox, nor a
 //!   cursor ahead of the state it guards. MQTT messages are acked only after
@@ -31,11 +31,19 @@
 //!   a newer lifeledger is refused with an error naming the file and the
 //!   fix, and is not modified.
 //!
+//! * **One writer for repairs.** [`Store::open_exclusive`] is for tools
+//!   that change the ledger of a stopped service (rollback, backfill): it
+//!   takes SQLite's exclusive lock without waiting and refuses, changing
+//!   nothing, while any other connection (a running service, a reader) has
+//!   the file open; while it is held, nobody else can open the file.
+//!
 //! The parts: [`schema`] (identity and migrations), [`outbox`] (draining the
 //! outbox), [`journal`] (the bounded history of alarm events), [`trend`]
-//! (the bounded per-component trends of the status page), [`error`] (what
+//! (the bounded per-component trends of the status page), [`checkpoint`]
+//! (daily copies of each component's ledger, for rollback), [`error`] (what
 //! can go wrong, for people).
 
+pub mod checkpoint;
 pub mod error;
 pub mod held;
 pub mod journal;
@@ -49,6 +57,7 @@ use std::time::Duration;
 
 use rusqlite::{Connection, OpenFlags, TransactionBehavior};
 
+pub use checkpoint::{CheckpointRow, Restore, StoredCheckpoint};
 pub use error::StoreError;
 pub use journal::{JournalEntry, JournalReader};
 pub use outbox::OutboxStats;
@@ -75,6 +84,10 @@ pub struct Store {
     /// Trend points per component as far as this connection knows: counted
     /// at a component's first point, kept up to date by the commits.
     trend_rows: BTreeMap<String, u64>,
+    /// How many days (wall clock) checkpoints are kept (see [`checkpoint`]).
+    checkpoint_days: u64,
+    /// Event time of each component's newest committed checkpoint.
+    checkpoint_newest: BTreeMap<String, i64>,
 }
 
 /// One batch of changes, written by [`Store::commit`] in one transaction.
@@ -105,6 +118,9 @@ pub struct Commit<'a> {
     pub held_added: &'a [held::HeldRow<'a>],
     /// Sequence numbers of held samples the engine integrated.
     pub held_released: &'a [u64],
+    /// Checkpoints offered for this batch; only those due are written (see
+    /// [`checkpoint`]), and old ones of the components written are pruned.
+    pub checkpoints: &'a [CheckpointRow],
 }
 
 /// Everything but the outbox, the alarm journal and the trends, as [`Store::load`]
@@ -157,12 +173,83 @@ impl Store {
             .map_err(|e| StoreError::sqlite(path, "opening the ledger for writing", e))?;
         configure(&conn, path)?;
         schema::migrate(&mut conn, path, schema::MIGRATIONS)?;
+        Store::over(conn, path)
+    }
+
+    /// Opens the ledger at `path` for a tool that changes the ledger of a
+    /// stopped service (rollback, backfill), holding SQLite's exclusive
+    /// lock until the store is dropped: no service or reader can open the
+    /// file meanwhile.
+    ///
+    /// Refuses with [`StoreError::InUse`], without waiting and without
+    /// changing anything, while any other connection has the file open (a
+    /// running service keeps one open all the time). A missing or blank
+    /// file is created as a new ledger only if `create` is set; otherwise it
+    /// is refused. An older schema is upgraded, as [`Store::open`] does.
+    pub fn open_exclusive(path: &Path, create: bool) -> Result<Store, StoreError> {
+        // The file itself is looked at first, before this process has any
+        // connection to it: closing a file descriptor of the ledger while a
+        // connection is open would drop that connection's POSIX locks.
+        let found = schema::inspect(path)?;
+        match found {
+            schema::Found::Ledger(_) => {}
+            schema::Found::Missing | schema::Found::Blank if create => {
+                if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
+                    std::fs::create_dir_all(dir).map_err(|source| StoreError::CreateDir {
+                        path: path.into(),
+                        dir: dir.into(),
+                        source,
+                    })?;
+                }
+            }
+            schema::Found::Missing | schema::Found::Blank => {
+                return Err(StoreError::NotReadable {
+                    path: path.into(),
+                    detail: "no ledger here: check `--ledger` or the [store] path of the configuration".into(),
+                })
+            }
+        }
+        let mut flags = OpenFlags::SQLITE_OPEN_READ_WRITE | OpenFlags::SQLITE_OPEN_NO_MUTEX;
+        if create {
+            flags |= OpenFlags::SQLITE_OPEN_CREATE;
+        }
+        let mut conn = Connection::open_with_flags(path, flags)
+            .map_err(|e| StoreError::sqlite(path, "opening the ledger for writing", e))?;
+        let fail = |e| StoreError::sqlite(path, "locking the ledger", e);
+        // No waiting: a lock held by someone else means the file is in use.
+        conn.busy_timeout(Duration::ZERO).map_err(fail)?;
+        // In WAL mode every open connection keeps a shared lock on the file;
+        // with locking_mode EXCLUSIVE the first transaction needs the
+        // exclusive lock, gets it only if nobody else has the file open, and
+        // keeps it until the connection closes.
+        conn.pragma_update(None, "locking_mode", "EXCLUSIVE").map_err(fail)?;
+        if let Err(e) = conn.execute_batch("BEGIN IMMEDIATE; SELECT count(*) FROM sqlite_schema; COMMIT") {
+            return Err(match e.sqlite_error_code() {
+                Some(rusqlite::ErrorCode::DatabaseBusy) | Some(rusqlite::ErrorCode::DatabaseLocked) => {
+                    StoreError::InUse { path: path.into() }
+                }
+                _ => fail(e),
+            });
+        }
+        configure(&conn, path)?;
+        // Keep refusing to wait: the lock is ours now.
+        conn.busy_timeout(Duration::ZERO).map_err(fail)?;
+        schema::migrate(&mut conn, path, schema::MIGRATIONS)?;
+        Store::over(conn, path)
+    }
+
+    /// The store over an open, configured, up-to-date connection.
+    fn over(conn: Connection, path: &Path) -> Result<Store, StoreError> {
+        let checkpoint_newest =
+            checkpoint::newest(&conn).map_err(|e| StoreError::sqlite(path, "reading the checkpoints", e))?;
         Ok(Store {
             conn,
             path: path.into(),
             journal_max_events: journal::DEFAULT_MAX_EVENTS,
             trend_keep: trend::DEFAULT_POINTS_PER_COMPONENT,
             trend_rows: BTreeMap::new(),
+            checkpoint_days: checkpoint::DEFAULT_DAYS,
+            checkpoint_newest,
         })
     }
 
@@ -208,11 +295,16 @@ impl Store {
         held::apply(&tx, c.held_added, c.held_released).map_err(fail)?;
         journal::append(&tx, c.alarm_events, keep).map_err(fail)?;
         let trend_rows = trend::upsert(&tx, c.trend_points, self.trend_keep, &self.trend_rows).map_err(fail)?;
+        let now = wall_clock_ms();
+        let days = i64::try_from(self.checkpoint_days).unwrap_or(i64::MAX);
+        let cutoff = now.saturating_sub(days.saturating_mul(86_400_000));
+        let checkpoints = checkpoint::write(&tx, c.checkpoints, &self.checkpoint_newest, now, cutoff).map_err(fail)?;
         outbox::append(&tx, c.outbox).map_err(fail)?;
         let stats = outbox::totals(&tx).map_err(fail)?;
         tx.commit().map_err(fail)?;
         // Only now: a rolled-back batch must leave the counts as they were.
         self.trend_rows.extend(trend_rows);
+        self.checkpoint_newest.extend(checkpoints);
         Ok(CommitStats { outbox: stats })
     }
 }
@@ -277,6 +369,12 @@ fn load_from(conn: &Connection, path: &Path) -> Result<Loaded, StoreError> {
     };
     tx.finish().map_err(fail)?;
     Ok(loaded)
+}
+
+/// The wall clock, ms since the Unix epoch: when a checkpoint is written.
+pub(crate) fn wall_clock_ms() -> i64 {
+    let since = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).unwrap_or_default();
+    i64::try_from(since.as_millis()).unwrap_or(i64::MAX)
 }
 
 /// A read-only connection to the ledger at `path`, for readers outside the
@@ -358,6 +456,50 @@ mod tests {
     }
 
     #[test]
+    fn the_exclusive_store_refuses_while_anyone_else_has_the_ledger_open() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("ledger.db");
+        let components = pairs(&[("sh-1", r#"{"d":0.5}"#)]);
+        let mut service = Store::open(&path).unwrap();
+        service.commit(&Commit { components: &components, ..Default::default() }).unwrap();
+        // An idle writer (a service between two commits) and a reader both
+        // keep the file in use.
+        let err = Store::open_exclusive(&path, false).unwrap_err();
+        assert!(matches!(err, StoreError::InUse { .. }), "{err}");
+        let text = err.to_string();
+        assert!(text.contains("ledger.db") && text.contains("in use") && text.contains("Stop the service"), "{text}");
+        assert!(text.contains("not changed"), "{text}");
+        drop(service);
+        let reader = read_only(&path).unwrap();
+        reader.query_row("SELECT count(*) FROM component", [], |r| r.get::<_, i64>(0)).unwrap();
+        assert!(matches!(Store::open_exclusive(&path, true), Err(StoreError::InUse { .. })));
+        drop(reader);
+
+        // Alone, it opens and writes; after it, the service opens again.
+        let mut tool = Store::open_exclusive(&path, false).unwrap();
+        assert_eq!(tool.load().unwrap().components, components);
+        let changed = pairs(&[("sh-1", r#"{"d":0.25}"#)]);
+        tool.commit(&Commit { components: &changed, ..Default::default() }).unwrap();
+        drop(tool);
+        assert_eq!(Store::open(&path).unwrap().load().unwrap().components, changed);
+    }
+
+    #[test]
+    fn the_exclusive_store_creates_a_ledger_only_when_asked() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("new/ledger.db");
+        let err = Store::open_exclusive(&path, false).unwrap_err();
+        assert!(err.to_string().contains("no ledger here"), "{err}");
+        assert!(!path.exists(), "refusing must not create the file");
+        drop(Store::open_exclusive(&path, true).unwrap());
+        assert_eq!(schema::inspect(&path).unwrap(), schema::Found::Ledger(SCHEMA_VERSION));
+        // A ledger made by the tool is an ordinary WAL ledger for the service.
+        let store = Store::open(&path).unwrap();
+        let mode: String = store.conn.pragma_query_value(None, "journal_mode", |r| r.get(0)).unwrap();
+        assert_eq!(mode, "wal");
+    }
+
+    #[test]
     fn the_store_can_move_to_its_own_thread() {
         fn is_send<T: Send>() {}
         is_send::<Store>();
@@ -423,6 +565,7 @@ mod tests {
                     held::HeldRow { seq: 4, tag: "TI-101", time_ms: 8, value: 1.0, arrival_ms: 9 },
                 ],
                 held_released: &[4],
+                checkpoints: &[],
             };
             store.commit(&batch).unwrap();
         }

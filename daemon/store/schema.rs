@@ -43,6 +43,10 @@ pub const MIGRATIONS: &[Migration] = &[
     Migration { summary: "the alarm journal: every alarm event, newest kept", apply: v2_alarm_journal },
     Migration { summary: "component trends: the status page's points by component and event time", apply: v3_trend },
     Migration { summary: "the reorder window: accepted samples not yet integrated", apply: v4_held },
+    Migration {
+        summary: "checkpoints: a daily copy of each component's ledger and its tags, for rollback",
+        apply: v5_checkpoint,
+    },
 ];
 
 /// The newest schema version this build knows: the number of migrations.
@@ -130,6 +134,28 @@ fn v4_held(tx: &Transaction<'_>) -> rusqlite::Result<()> {
              value REAL NOT NULL,
              arrival_ms INTEGER NOT NULL
          );",
+    )
+}
+
+/// Version 5: checkpoints, daily copies of each component's ledger for
+/// rolling a poisoned ledger back (see [`super::checkpoint`]).
+///
+/// One row per component and checkpoint: the event time the component was
+/// integrated to (`at_ms`), the wall-clock time the row was written
+/// (`written_ms`, which retention goes by), the component's state and the
+/// states of the tags it reads, both JSON text. The primary key serves
+/// "the newest checkpoint of a component at or before a time" as one
+/// range of one B-tree.
+fn v5_checkpoint(tx: &Transaction<'_>) -> rusqlite::Result<()> {
+    tx.execute_batch(
+        "CREATE TABLE checkpoint (
+             component TEXT NOT NULL,
+             at_ms INTEGER NOT NULL,
+             written_ms INTEGER NOT NULL,
+             state TEXT NOT NULL,
+             tags TEXT NOT NULL,
+             PRIMARY KEY (component, at_ms)
+         ) WITHOUT ROWID;",
     )
 }
 
