@@ -313,11 +313,27 @@ source = "test grade"
 "#
         )
     };
-    std::fs::write(&cfg, grade("MEASURED-HEAT", "basis = \"measured\"") + &grade("UNSAID-HEAT", "")).unwrap();
+    // A reference point left out of the fit is still listed, with its reason.
+    let dropped_point = r#"
+[[material.reference_rupture_strengths]]
+temperature_c = 550.0
+hours = 10000.0
+stress_mpa = 120.0
+source = "test heat, one specimen"
+dropped = "specimen failed at a thermocouple weld, not a creep rupture"
+"#;
+    std::fs::write(&cfg, grade("MEASURED-HEAT", "basis = \"measured\"") + dropped_point + &grade("UNSAID-HEAT", ""))
+        .unwrap();
     let (code, out, err) = run(&["materials", "show", "MEASURED-HEAT", "--config", cfg.to_str().unwrap()]);
     assert_eq!(code, 0, "{err}");
     assert!(out.contains("basis              measured"), "{out}");
     assert!(!out.contains("NOTE"), "{out}");
+    assert!(
+        out.contains(
+            "DROPPED from the fit and the 5 % rule: specimen failed at a thermocouple weld, not a creep rupture"
+        ),
+        "{out}"
+    );
     let (code, out, err) = run(&["materials", "show", "UNSAID-HEAT", "--config", cfg.to_str().unwrap()]);
     assert_eq!(code, 0, "{err}");
     assert!(out.contains("basis              not_stated"), "{out}");

@@ -254,39 +254,77 @@ fn reference_points_span_more_than_one_rupture_time() {
 fn derive_py_check_passes() {
     // The shipped files must be what config/materials/derive.py derives from
     // their reference points, and derive.py applies the 5 % rule itself.
+    let (ok, out) = derive_py(&["--check"]);
+    println!("{out}");
+    assert!(
+        ok,
+        "config/materials/derive.py --check failed: a grade file is stale (run derive.py --write) or breaks the \
+         library rule.\n--- stdout (tail) ---\n{}",
+        out.lines().rev().take(15).collect::<Vec<_>>().into_iter().rev().collect::<Vec<_>>().join("\n")
+    );
+}
+
+/// Runs `python3 config/materials/derive.py ARGS` from the repository root
+/// with a bounded wait; returns (success, stdout).
+fn derive_py(args: &[&str]) -> (bool, String) {
     let root = env!("CARGO_MANIFEST_DIR");
     let mut child = std::process::Command::new("python3")
         .arg("config/materials/derive.py")
-        .arg("--check")
+        .args(args)
         .current_dir(root)
         .stdout(std::process::Stdio::piped())
         .stderr(std::process::Stdio::piped())
         .spawn()
         .expect("python3 is needed to run config/materials/derive.py (tests/run installs numpy)");
     // Bounded wait: 3000 polls 100 ms apart.
-    let mut status = None;
     for _ in 0..3000 {
-        if let Some(s) = child.try_wait().expect("waiting for derive.py") {
-            status = Some(s);
-            break;
+        if let Some(status) = child.try_wait().expect("waiting for derive.py") {
+            let out = child.wait_with_output().expect("derive.py output");
+            let stderr = String::from_utf8_lossy(&out.stderr);
+            assert!(stderr.trim().is_empty() || status.success(), "derive.py {args:?}: {stderr}");
+            return (status.success(), String::from_utf8_lossy(&out.stdout).into_owned());
         }
         std::thread::sleep(std::time::Duration::from_millis(100));
     }
-    let Some(status) = status else {
-        let _ = child.kill();
-        let _ = child.wait();
-        panic!("config/materials/derive.py --check did not finish after 3000 polls 100 ms apart; killed it");
-    };
-    let out = child.wait_with_output().expect("derive.py output");
-    let stdout = String::from_utf8_lossy(&out.stdout);
-    let stderr = String::from_utf8_lossy(&out.stderr);
-    println!("{stdout}");
-    assert!(
-        status.success(),
-        "config/materials/derive.py --check failed ({status}): a grade file is stale (run derive.py --write) or \
-         breaks the library rule.\n--- stdout (tail) ---\n{}\n--- stderr ---\n{stderr}",
-        stdout.lines().rev().take(15).collect::<Vec<_>>().into_iter().rev().collect::<Vec<_>>().join("\n")
-    );
+    let _ = child.kill();
+    let _ = child.wait();
+    panic!("config/materials/derive.py {args:?} did not finish after 3000 polls 100 ms apart; killed it");
+}
+
+#[test]
+fn a_dropped_point_stays_out_of_the_fit_and_the_rule_but_is_still_shown() {
+    // A 16Mo3 file with one extra point far off the curve. Marked dropped,
+    // derive.py leaves the curve, ranges and Norton law exactly as shipped,
+    // the file passes the rule, and the point stays listed with its reason;
+    // the same point not dropped breaks the rule.
+    let root = env!("CARGO_MANIFEST_DIR");
+    let text = std::fs::read_to_string(format!("{root}/config/materials/0.5mo-16mo3.toml")).unwrap();
+    let extra = "\n[[reference_rupture_strengths]]\ntemperature_c = 500.0\nhours = 100000.0\nstress_mpa = 150.0\n\
+                 source = \"test point, 50 % above the annex value\"\n";
+    let reason = "test: a point far off the curve, left out on purpose";
+    let dir = tempfile::tempdir().unwrap();
+    let dropped = dir.path().join("dropped.toml");
+    std::fs::write(&dropped, format!("{text}{extra}dropped = \"{reason}\"\n")).unwrap();
+    let (_, out) = derive_py(&["--write", dropped.to_str().unwrap()]);
+    assert!(out.contains(&format!("dropped: {reason}")), "{out}");
+    let (ok, out) = derive_py(&["--check", dropped.to_str().unwrap()]);
+    assert!(ok, "a dropped point must not fail the rule:\n{out}");
+    let load = |t: &str| MaterialLibrary::from_sources([("x.toml", t)]).unwrap().grades().next().unwrap().clone();
+    let shipped = load(&text);
+    let derived = load(&std::fs::read_to_string(&dropped).unwrap());
+    assert_eq!(derived.larson_miller.coefficients, shipped.larson_miller.coefficients);
+    assert_eq!(derived.larson_miller.stress_range_mpa, shipped.larson_miller.stress_range_mpa);
+    assert_eq!(derived.larson_miller.temperature_range_k, shipped.larson_miller.temperature_range_k);
+    let (a, b) = (derived.norton.unwrap(), shipped.norton.unwrap());
+    assert_eq!((a.a_per_h, a.n, a.q_j_per_mol), (b.a_per_h, b.n, b.q_j_per_mol));
+    assert!(derived.larson_miller.source.contains("1 more dropped, each with its reason"));
+    assert_eq!(derived.reference_rupture_strengths.last().unwrap().dropped.as_deref(), Some(reason));
+
+    let kept = dir.path().join("kept.toml");
+    std::fs::write(&kept, format!("{text}{extra}")).unwrap();
+    let (ok, out) = derive_py(&["--check", kept.to_str().unwrap()]);
+    assert!(!ok, "the same point not dropped must fail --check:\n{out}");
+    assert!(out.contains("FAILS ACCEPTANCE"), "{out}");
 }
 
 /// One value from a second published source, as the mean 100 000 h rupture
