@@ -6,7 +6,7 @@ Usage (from the repository root or anywhere):
 
     python3 config/materials/derive.py            # print fits, change nothing
     python3 config/materials/derive.py --write    # rewrite the derived lines
-    python3 config/materials/derive.py --check    # exit 1 if a file is stale
+    python3 config/materials/derive.py --check    # exit 1 if a file is stale or misses the 5 % rule
     python3 config/materials/derive.py --scan-c   # also print max error vs C
 
 Needs Python >= 3.11 (tomllib) and numpy.
