@@ -935,6 +935,11 @@ fn cmd_materials(action: MaterialsAction) -> Result<i32> {
                     n.a_per_h, n.n, n.q_j_per_mol
                 )?;
                 writeln!(out, "  source             {}", n.source)?;
+                let basis = serde_json::to_value(n.basis).ok().and_then(|v| v.as_str().map(str::to_string));
+                writeln!(out, "  basis              {}", basis.unwrap_or_default())?;
+                if let Some(note) = n.basis.strain_note() {
+                    writeln!(out, "  NOTE               {note}")?;
+                }
             }
             if !m.reference_rupture_strengths.is_empty() {
                 writeln!(out, "\nreference rupture strengths against the master curve:")?;
@@ -955,6 +960,9 @@ fn cmd_materials(action: MaterialsAction) -> Result<i32> {
                         fmt_opt(rupture_strength_mpa(lm, tk, r.hours, CurveBasis::Minimum), 1),
                         r.source
                     )?;
+                    if let Some(reason) = &r.dropped {
+                        writeln!(out, "  {:>6} DROPPED from the fit and the 5 % rule: {reason}", "")?;
+                    }
                 }
             }
             writeln!(out, "\nThese are screening values. {}", lifeledger::CAUTION)?;

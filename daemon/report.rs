@@ -6,6 +6,7 @@ use crate::engine::plan::{ComponentPlan, Levels, StressPlan};
 use crate::engine::{ComponentState, Counters};
 use crate::lineproto::Point;
 use crate::physics::larson_miller::{rupture_life_h, CurveBasis, RangeFlags};
+use crate::physics::material::NortonBasis;
 use crate::physics::remaining::hours_to_threshold;
 use crate::physics::stress::hoop_stress_mpa;
 use crate::physics::temperature::homologous_temperature;
@@ -41,6 +42,13 @@ pub struct ComponentReport {
     pub integrated_to: Option<String>,
     pub creep_life_fraction: f64,
     pub creep_strain: f64,
+    /// Where the Norton constants behind `creep_strain` come from (null when
+    /// the part computes no creep strain).
+    pub creep_strain_basis: Option<NortonBasis>,
+    /// What an operator must know about `creep_strain`: set unless the
+    /// Norton constants are measured (derived from the rupture curve, strain
+    /// is no independent evidence).
+    pub creep_strain_note: Option<String>,
     pub wear_depth_mm: f64,
     pub wear_index: f64,
     /// Recent life-fraction rate, 1/h.
@@ -165,6 +173,7 @@ impl ComponentReport {
             flags.push("wall_exhausted".into());
         }
         let h = &st.histogram;
+        let strain_basis = plan.material.norton.as_ref().filter(|_| has_creep).map(|n| n.basis);
         ComponentReport {
             component: plan.name.clone(),
             unit: plan.unit.clone(),
@@ -174,6 +183,8 @@ impl ComponentReport {
             integrated_to: st.integrated_to_ms.map(rfc3339_ms),
             creep_life_fraction: st.life_fraction,
             creep_strain: st.creep_strain,
+            creep_strain_basis: strain_basis,
+            creep_strain_note: strain_basis.and_then(NortonBasis::strain_note).map(String::from),
             wear_depth_mm: st.wear_depth_mm,
             wear_index,
             damage_rate_per_h: st.recent_life_fraction_rate_per_h,
@@ -294,6 +305,20 @@ pub fn summary_table(reports: &[ComponentReport]) -> String {
             r.unmonitored_h,
             notes.join(", ")
         ));
+    }
+    // Say beside the table when a strain column is no evidence of its own.
+    let mut strain_notes: Vec<(&str, Vec<&str>)> = vec![];
+    for r in reports {
+        if let Some(note) = r.creep_strain_note.as_deref() {
+            match strain_notes.iter_mut().find(|(n, _)| *n == note) {
+                Some((_, grades)) if !grades.contains(&r.material.as_str()) => grades.push(&r.material),
+                Some(_) => {}
+                None => strain_notes.push((note, vec![&r.material])),
+            }
+        }
+    }
+    for (note, grades) in strain_notes {
+        s.push_str(&format!("note on strain % ({}): {note}\n", grades.join(", ")));
     }
     s
 }

@@ -344,3 +344,106 @@ fn a_plant_name_with_a_control_character_is_refused() {
         assert!(err.contains("[plant]") && err.contains("control character"), "{name}: {err}");
     }
 }
+
+/// The shipped Norton constants are tangents to the rupture curves
+/// (config/materials/derive.py), so the creep strain computed with them
+/// restates the life fraction. Every screen that shows strain says so.
+#[test]
+fn materials_show_says_where_the_norton_constants_come_from() {
+    let (code, out, err) = run(&["materials", "show", "13CrMo4-5"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(out.contains("basis              derived_from_rupture"), "{out}");
+    assert!(out.contains("creep strain restates the life fraction and is not independent evidence"), "{out}");
+    let (code, out, err) = run(&["materials", "show", "13CrMo4-5", "--format", "json"]);
+    assert_eq!(code, 0, "{err}");
+    let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+    assert_eq!(v["material"]["norton"]["basis"], "derived_from_rupture");
+
+    // User grades: a measured law carries no note; one that does not say
+    // where its constants come from is read cautiously.
+    let dir = tempfile::tempdir().unwrap();
+    let cfg = dir.path().join("grades.toml");
+    let grade = |name: &str, basis: &str| {
+        format!(
+            r#"
+[[material]]
+grade = "{name}"
+melting_point_k = {{ value = 1780.0, source = "test grade" }}
+[material.larson_miller]
+constant_c = 20.0
+coefficients = [28000.0, -1500.0, -800.0]
+stress_range_mpa = [20.0, 300.0]
+temperature_range_k = [723.0, 923.0]
+minimum = {{ rule = "stress_factor", factor = 0.8 }}
+source = "test grade"
+[material.norton]
+{basis}
+a_per_h = 1.0e10
+n = 5.0
+q_j_per_mol = 300000.0
+source = "test grade"
+"#
+        )
+    };
+    // A reference point left out of the fit is still listed, with its reason.
+    let dropped_point = r#"
+[[material.reference_rupture_strengths]]
+temperature_c = 550.0
+hours = 10000.0
+stress_mpa = 120.0
+source = "test heat, one specimen"
+dropped = "specimen failed at a thermocouple weld, not a creep rupture"
+"#;
+    std::fs::write(&cfg, grade("MEASURED-HEAT", "basis = \"measured\"") + dropped_point + &grade("UNSAID-HEAT", ""))
+        .unwrap();
+    let (code, out, err) = run(&["materials", "show", "MEASURED-HEAT", "--config", cfg.to_str().unwrap()]);
+    assert_eq!(code, 0, "{err}");
+    assert!(out.contains("basis              measured"), "{out}");
+    assert!(!out.contains("NOTE"), "{out}");
+    assert!(
+        out.contains(
+            "DROPPED from the fit and the 5 % rule: specimen failed at a thermocouple weld, not a creep rupture"
+        ),
+        "{out}"
+    );
+    let (code, out, err) = run(&["materials", "show", "UNSAID-HEAT", "--config", cfg.to_str().unwrap()]);
+    assert_eq!(code, 0, "{err}");
+    assert!(out.contains("basis              not_stated"), "{out}");
+    assert!(out.contains("not independent evidence"), "{out}");
+}
+
+#[test]
+fn replay_says_when_creep_strain_is_not_independent_evidence() {
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("h.csv");
+    std::fs::write(
+        &csv,
+        "timestamp,tag,value,quality\n\
+         2026-10-01T00:00:00Z,U2.SH3.TE-311A,540,good\n\
+         2026-10-01T00:10:00Z,U2.SH3.TE-311A,541,good\n",
+    )
+    .unwrap();
+    let args = ["replay", "--config", "config/demo/plant.toml", "--input", csv.to_str().unwrap()];
+    let (code, out, err) = run(&args);
+    assert_eq!(code, 0, "{err}");
+    let note =
+        out.lines().find(|l| l.starts_with("note on strain %")).unwrap_or_else(|| panic!("no strain note:\n{out}"));
+    for grade in ["1.25Cr-0.5Mo", "2.25Cr-1Mo", "347H", "9Cr-1Mo-V"] {
+        assert!(note.contains(grade), "{note}");
+    }
+    assert!(note.contains("derived from the rupture curve") && note.contains("not independent evidence"), "{note}");
+
+    let (code, out, err) = run(&[&args[..], &["--format", "json"]].concat());
+    assert_eq!(code, 0, "{err}");
+    let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+    for c in v["components"].as_array().unwrap() {
+        let creep = c["hours_to_threshold"].as_object().unwrap().keys().any(|k| k.starts_with("life_fraction."));
+        if creep {
+            assert_eq!(c["creep_strain_basis"], "derived_from_rupture", "{}", c["component"]);
+            assert!(c["creep_strain_note"].as_str().unwrap().contains("not independent evidence"));
+        } else {
+            // Wear contacts compute no creep strain: nothing to qualify.
+            assert!(c["creep_strain_basis"].is_null() && c["creep_strain_note"].is_null(), "{}", c["component"]);
+        }
+    }
+}

@@ -232,6 +232,12 @@ fn overview_shows_every_component_worst_first_with_the_caution() {
         assert!(dom.contains(&format!(">{shown}<")), "{name}: {shown} not on the page");
         assert!(if wear { wi > 0.0 } else { lf > 0.0 }, "{name} did not move: {c}");
     }
+    // Strain of grades whose Norton constants are derived from the rupture
+    // curve is marked, and the footnote under the table says why.
+    let strain_note =
+        comps.iter().find_map(|c| c["creep_strain_note"].as_str()).expect("a creep part with a strain note");
+    assert!(dom.contains("id=\"strain-note\">† Creep strain ("), "strain footnote missing from the overview");
+    assert!(dom.contains(&format!("): {strain_note}.</p>")), "strain footnote does not carry the note");
     // Worst first.
     let order = worst_first(&f.snap);
     let rows = &dom[dom.find("id=\"component-rows\"").expect("component table")..];
@@ -291,6 +297,16 @@ fn component_page_shows_trends_histogram_alarms_and_material_sources() {
     // The life fraction as the overview shows it.
     let c = f.snap["components"].as_array().unwrap().iter().find(|c| c["component"] == "SH-TUBE").unwrap();
     assert!(dom.contains(&frac(c["creep_life_fraction"].as_f64().unwrap())));
+    // Creep strain from Norton constants derived from the rupture curve is
+    // no independent evidence: the API carries the basis and the page says so.
+    assert_eq!(mat["material"]["norton"]["basis"], "derived_from_rupture");
+    assert_eq!(c["creep_strain_basis"], "derived_from_rupture");
+    let note = c["creep_strain_note"].as_str().expect("creep_strain_note in /api/components");
+    assert!(note.contains("not independent evidence"), "{note}");
+    assert!(
+        dom.contains(&format!("<p class=\"warnnote small\" id=\"strain-note\">Creep strain: {note}.</p>")),
+        "strain note not shown on the component page"
+    );
     // Material data with their sources.
     let m = &mat["material"];
     for src in [&m["larson_miller"]["source"], &m["melting_point_k"]["source"]] {

@@ -30,7 +30,7 @@ use super::error::{line_list, FitError};
 use super::larson_miller::{distinct, range};
 use super::lsq::{least_squares, LsqError};
 use super::RateTest;
-use crate::physics::material::NortonLaw;
+use crate::physics::material::{NortonBasis, NortonLaw};
 use crate::physics::norton::GAS_CONSTANT;
 use serde::Serialize;
 
@@ -127,6 +127,8 @@ impl NortonFit {
     /// The law in the project's material format.
     pub fn law(&self, input_name: &str) -> NortonLaw {
         NortonLaw {
+            // Fitted to minimum creep rates from tests: measured constants.
+            basis: NortonBasis::Measured,
             a_per_h: self.a_per_h,
             n: self.n,
             q_j_per_mol: self.q_j_per_mol,

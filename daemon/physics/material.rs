@@ -48,11 +48,51 @@ pub struct LarsonMillerCurve {
     pub source: String,
 }
 
+/// Where the constants of a Norton law come from. It decides whether the
+/// creep strain computed with them is evidence of its own or only the life
+/// fraction said again in other units.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum NortonBasis {
+    /// Fitted to measured minimum creep rates (for example by
+    /// `lifeledger fit norton`).
+    Measured,
+    /// Derived from the grade's rupture curve (a tangent to it under an
+    /// assumed Monkman-Grant product, as `config/materials/derive.py` does):
+    /// the strain follows the life fraction and is no independent evidence.
+    DerivedFromRupture,
+    /// The grade file does not say. Treated like a derived law when strain
+    /// is shown (the cautious reading).
+    #[default]
+    NotStated,
+}
+
+impl NortonBasis {
+    /// The note that goes beside a creep strain computed with such a law;
+    /// `None` for measured constants.
+    pub fn strain_note(self) -> Option<&'static str> {
+        match self {
+            NortonBasis::Measured => None,
+            NortonBasis::DerivedFromRupture => Some(
+                "Norton constants derived from the rupture curve, not measured: creep strain restates the life \
+                 fraction and is not independent evidence",
+            ),
+            NortonBasis::NotStated => Some(
+                "basis of the Norton constants not stated (measured or derived from the rupture curve): creep \
+                 strain may restate the life fraction and is not independent evidence until that is known",
+            ),
+        }
+    }
+}
+
 /// Norton-Arrhenius secondary creep law `ε̇ = A · σ^n · exp(−Q / (R·T))`,
 /// with ε̇ in 1/h, σ in MPa, Q in J/mol, T in K.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct NortonLaw {
+    /// Measured, derived from the rupture curve, or not stated (default).
+    #[serde(default)]
+    pub basis: NortonBasis,
     /// A in 1/h per MPa^n.
     pub a_per_h: f64,
     pub n: f64,
@@ -69,6 +109,10 @@ pub struct ReferenceRuptureStrength {
     pub hours: f64,
     pub stress_mpa: f64,
     pub source: String,
+    /// Why the point is left out of the fit and of the 5 % rule, when it is;
+    /// it stays in the file and is still compared with the curve.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub dropped: Option<String>,
 }
 
 /// One material grade with everything the engine needs.

@@ -33,7 +33,13 @@ mod tests {
     use super::*;
 
     fn law() -> NortonLaw {
-        NortonLaw { a_per_h: 1.0e10, n: 5.0, q_j_per_mol: 300_000.0, source: "test".into() }
+        NortonLaw {
+            basis: crate::physics::material::NortonBasis::Measured,
+            a_per_h: 1.0e10,
+            n: 5.0,
+            q_j_per_mol: 300_000.0,
+            source: "test".into(),
+        }
     }
 
     // Power law: doubling stress multiplies the rate by 2^n.

@@ -95,6 +95,11 @@
     t += tile('Unmonitored', LL.hours(c.unmonitored_h), ' h', 'integrated by the gap policy', c.unmonitored_h > 0 ? 'data' : '');
     $('figures').innerHTML = t;
     $('component-flags').innerHTML = (c.flags && c.flags.length) ? '<span class="muted">Flags</span> ' + LL.flagChips(c.flags) : '';
+    // Strain from Norton constants derived from the rupture curve restates
+    // the life fraction: say so wherever strain is shown.
+    const note = $('strain-note');
+    note.textContent = creep && c.creep_strain_note ? 'Creep strain: ' + c.creep_strain_note + '.' : '';
+    note.hidden = !note.textContent;
   }
 
   function renderTitle() {
@@ -269,7 +274,9 @@
     }
     const nl = m.norton;
     if (nl) {
-      h += '<tr><th>Norton creep</th><td class="num">A = ' + esc(LL.sig(nl.a_per_h, 3)) + ' /h·MPa⁻ⁿ<br>n = ' + esc(LL.sig(nl.n, 3)) + ', Q = ' + esc(LL.sig(nl.q_j_per_mol / 1000, 4)) + ' kJ/mol</td><td class="source">' + esc(nl.source) + '</td></tr>';
+      const basis = { measured: 'measured', derived_from_rupture: 'derived from the rupture curve, not measured: strain is not independent evidence', not_stated: 'basis not stated: strain is not independent evidence until it is known' }[nl.basis] || nl.basis || '';
+      h += '<tr><th>Norton creep</th><td class="num">A = ' + esc(LL.sig(nl.a_per_h, 3)) + ' /h·MPa⁻ⁿ<br>n = ' + esc(LL.sig(nl.n, 3)) + ', Q = ' + esc(LL.sig(nl.q_j_per_mol / 1000, 4)) + ' kJ/mol</td><td class="source">' + esc(nl.source) +
+        (basis ? '<br><span class="' + (nl.basis === 'measured' ? 'muted' : 'warnnote') + '">Basis: ' + esc(basis) + '</span>' : '') + '</td></tr>';
     } else {
       h += '<tr><th>Norton creep</th><td class="num muted">—</td><td class="source muted">no creep strain law for this grade</td></tr>';
     }
@@ -278,7 +285,8 @@
     const refs = m.reference_rupture_strengths || [];
     if (refs.length) {
       h += '<h3>Reference rupture strengths</h3><table class="mat refs"><thead><tr><th class="num">Temperature</th><th class="num">Time</th><th class="num">Stress</th><th>Source</th></tr></thead><tbody>' +
-        refs.map((r) => '<tr><td class="num">' + esc(LL.fixed(r.temperature_c, 0)) + ' °C</td><td class="num">' + esc(LL.group(r.hours)) + ' h</td><td class="num">' + esc(LL.sig(r.stress_mpa, 3)) + ' MPa</td><td class="source">' + esc(r.source) + '</td></tr>').join('') +
+        refs.map((r) => '<tr><td class="num">' + esc(LL.fixed(r.temperature_c, 0)) + ' °C</td><td class="num">' + esc(LL.group(r.hours)) + ' h</td><td class="num">' + esc(LL.sig(r.stress_mpa, 3)) + ' MPa</td><td class="source">' + esc(r.source) +
+          (r.dropped ? '<br><span class="warnnote">Dropped from the fit: ' + esc(r.dropped) + '</span>' : '') + '</td></tr>').join('') +
         '</tbody></table>';
     }
     box.innerHTML = h;

@@ -99,7 +99,8 @@
           '<td class="name"><a href="' + href + '">' + esc(c.component) + '</a><span class="sub">' + esc(c.unit) + ' · ' + esc(LL.kindLabel(c.kind)) + ' · ' + esc(c.material) + '</span></td>' +
           '<td class="num lf' + (creep ? '' : ' na') + '" data-value="' + esc(c.creep_life_fraction) + '"><span class="big">' + (creep ? LL.frac(c.creep_life_fraction) : '—') + '</span>' +
             (creep ? meter(c.creep_life_fraction, levelsOf(c, 'life_fraction'), lr.life_fraction) : '') + '</td>' +
-          '<td class="num' + (strain || creep ? '' : ' na') + '" data-value="' + esc(c.creep_strain) + '"><span class="big">' + (strain || creep ? LL.frac(c.creep_strain * 100) : '—') + '</span>' + (strain || creep ? '<span class="sub">%</span>' : '') + '</td>' +
+          '<td class="num' + (strain || creep ? '' : ' na') + '" data-value="' + esc(c.creep_strain) + '"><span class="big">' + (strain || creep ? LL.frac(c.creep_strain * 100) : '—') + '</span>' + (strain || creep ? '<span class="sub">%</span>' : '') +
+            (creep && c.creep_strain_note ? '<span class="sub warnnote" title="' + esc(c.creep_strain_note) + '">†</span>' : '') + '</td>' +
           '<td class="num wi' + (wear ? '' : ' na') + '" data-value="' + esc(c.wear_index) + '"><span class="big">' + (wear ? LL.frac(c.wear_index) : '—') + '</span>' +
             (wear ? meter(c.wear_index, levelsOf(c, 'wear_index'), lr.wear_index) : '') + '</td>' +
           '<td class="num rem">' + (LL.num(rem) === null ? '<span class="muted">not moving</span>' :
@@ -110,6 +111,17 @@
           '</tr>';
       }).join('');
     }
+    // Strain computed with Norton constants derived from the rupture curve
+    // restates the life fraction: the footnote says so, per note and grade.
+    const notes = new Map();
+    for (const { c } of list) {
+      if (!has(c, 'life_fraction') || !c.creep_strain_note) continue;
+      if (!notes.has(c.creep_strain_note)) notes.set(c.creep_strain_note, new Set());
+      notes.get(c.creep_strain_note).add(c.material);
+    }
+    const foot = $('strain-note');
+    foot.textContent = [...notes].map(([n, g]) => '† Creep strain (' + [...g].join(', ') + '): ' + n + '.').join(' ');
+    foot.hidden = !foot.textContent;
 
     const evs = (snap.recent_events || []).filter((e) => !unit || e.unit === unit).slice(-40).reverse();
     $('events').innerHTML = evs.length ? evs.map((e) => LL.eventItem(e, true)).join('') : '<li class="muted">No alarm events yet.</li>';
