@@ -10,6 +10,8 @@ use crate::physics::remaining::hours_to_threshold;
 use crate::physics::stress::hoop_stress_mpa;
 use crate::physics::temperature::homologous_temperature;
 use crate::physics::units::kelvin_to_celsius;
+use crate::physics::wear::FrettingRegime;
+use crate::settings::schema::ComponentKind;
 use serde::Serialize;
 use std::collections::BTreeMap;
 
@@ -35,7 +37,8 @@ pub struct Histograms {
 pub struct ComponentReport {
     pub component: String,
     pub unit: String,
-    pub kind: String,
+    /// As the configuration spells it (`wear_contact`).
+    pub kind: ComponentKind,
     pub material: String,
     pub curve_basis: CurveBasis,
     pub integrated_to: Option<String>,
@@ -60,7 +63,8 @@ pub struct ComponentReport {
     pub pressure_mpa: f64,
     pub hoop_stress_mpa: f64,
     pub creep_rate_per_h: f64,
-    pub fretting_regime: Option<String>,
+    /// As the configuration spells it (`gross_slip`).
+    pub fretting_regime: Option<FrettingRegime>,
     /// Highest alarm severity whose level is reached, by index.
     pub levels_reached: BTreeMap<String, String>,
     pub flags: Vec<String>,
@@ -168,7 +172,7 @@ impl ComponentReport {
         ComponentReport {
             component: plan.name.clone(),
             unit: plan.unit.clone(),
-            kind: format!("{:?}", plan.kind).to_lowercase(),
+            kind: plan.kind,
             material: plan.material.grade.clone(),
             curve_basis: plan.curve_basis,
             integrated_to: st.integrated_to_ms.map(rfc3339_ms),
@@ -192,7 +196,7 @@ impl ComponentReport {
             pressure_mpa: st.now.pressure_mpa,
             hoop_stress_mpa: st.now.hoop_stress_mpa,
             creep_rate_per_h: st.now.creep_rate_per_h,
-            fretting_regime: st.now.fretting_regime.map(|r| format!("{r:?}")),
+            fretting_regime: st.now.fretting_regime,
             levels_reached: reached,
             flags,
             histograms: Histograms {
@@ -385,5 +389,22 @@ pub fn design_check(plan: &ComponentPlan) -> DesignCheck {
         rupture_life_mean_h: life_mean,
         hours_to_levels_at_design: hours_to,
         warnings,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::engine::Conditions;
+    use crate::physics::wear::FrettingRegime;
+
+    // Ledgers store the regime snake case; one stored with the type's name
+    // (`GrossSlip`) still loads, to the same regime.
+    #[test]
+    fn stored_conditions_load_with_either_regime_spelling() {
+        let now = Conditions { fretting_regime: Some(FrettingRegime::GrossSlip), ..Conditions::default() };
+        let text = serde_json::to_string(&now).unwrap();
+        assert!(text.contains("\"fretting_regime\":\"gross_slip\""), "{text}");
+        let old = text.replace("gross_slip", "GrossSlip");
+        assert_eq!(serde_json::from_str::<Conditions>(&old).unwrap(), now);
     }
 }

@@ -114,8 +114,7 @@ const LL = (() => {
     const d = new Date(ms);
     return pad2(d.getUTCMonth() + 1) + '-' + pad2(d.getUTCDate()) + ' ' + timeUtc(ms, false);
   }
-  const KIND_LABEL = { wearcontact: 'wear contact', furnacetube: 'furnace tube' };
-  function kindLabel(k) { return KIND_LABEL[k] || String(k || '').replace(/_/g, ' '); }
+  function kindLabel(k) { return String(k || '').replace(/_/g, ' '); }
   function sevRank(s) { return SEV_RANK[s] || 0; }
   function sevBadge(sev, extra) {
     if (!sev) return '<span class="badge ok">normal</span>';

@@ -75,7 +75,7 @@
     }
     if (wear) {
       t += tile('Wear index', LL.frac(c.wear_index), '', nextLevel(c, 'wear_index'), lr.wear_index || '');
-      t += tile('Wear depth', LL.sig(c.wear_depth_mm, 3), ' mm', c.fretting_regime ? 'regime: ' + c.fretting_regime.replace(/([a-z])([A-Z])/g, '$1 $2').toLowerCase() : '');
+      t += tile('Wear depth', LL.sig(c.wear_depth_mm, 3), ' mm', c.fretting_regime ? 'regime: ' + String(c.fretting_regime).replace(/_/g, ' ') : '');
     }
     const rem = c.remaining_life_h;
     t += tile('Remaining life', LL.num(rem) === null ? 'not moving' : LL.hours(rem), LL.num(rem) === null ? '' : ' h',
