@@ -597,7 +597,9 @@ fn cmd_materials(action: MaterialsAction) -> Result<i32> {
                 "\nLarson-Miller        P = T[K]·({} + log10 t_r[h]) = Σ a_i·(log10 σ[MPa])^i",
                 lm.constant_c
             )?;
-            writeln!(out, "  coefficients       {:?}", lm.coefficients)?;
+            let coefficients: Vec<String> =
+                lm.coefficients.iter().enumerate().map(|(i, a)| format!("a{i} = {a}")).collect();
+            writeln!(out, "  coefficients       {}", coefficients.join(", "))?;
             writeln!(
                 out,
                 "  data range         {:.0}–{:.0} MPa, {:.0}–{:.0} °C",
@@ -606,7 +608,7 @@ fn cmd_materials(action: MaterialsAction) -> Result<i32> {
                 c(lm.temperature_range_k[0]),
                 c(lm.temperature_range_k[1])
             )?;
-            writeln!(out, "  minimum curve      {:?}", lm.minimum)?;
+            writeln!(out, "  minimum curve      {}", lm.minimum)?;
             writeln!(out, "  source             {}", lm.source)?;
             if let Some(n) = &m.norton {
                 writeln!(

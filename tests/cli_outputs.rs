@@ -129,3 +129,20 @@ fn fretting_regime_and_kind_are_spelled_as_in_the_configuration() {
     assert_eq!(c["kind"], "wear_contact", "{c}");
     assert_eq!(component(&v, "TUBE")["kind"], "tube");
 }
+
+#[test]
+fn materials_show_prints_words_not_debug_formatting() {
+    let (code, out, err) = run(&["materials", "show", "2.25Cr-1Mo"]);
+    assert_eq!(code, 0, "{err}");
+    for leak in ["StressFactor", "LogTimeOffset", "factor:", "{ "] {
+        assert!(!out.contains(leak), "debug formatting {leak:?} in:\n{out}");
+    }
+    let line = |start: &str| {
+        out.lines().find(|l| l.trim_start().starts_with(start)).unwrap_or_else(|| panic!("no {start} line:\n{out}"))
+    };
+    // The grade's rule is 0.8 × the mean rupture stress (its TOML file).
+    let minimum = line("minimum curve");
+    assert!(minimum.contains("0.8") && minimum.contains("mean rupture stress"), "{minimum}");
+    let coefficients = line("coefficients");
+    assert!(coefficients.contains("a0 = ") && !coefficients.contains('['), "{coefficients}");
+}
