@@ -332,7 +332,12 @@ pub fn replay(
         if let Some(w) = lp.as_deref_mut() {
             for (ci, next) in next_lp.iter_mut().enumerate() {
                 let Some(t) = engine.components()[ci].integrated_to_ms else { continue };
-                if t >= *next {
+                // No point before anything is known (the first sample alone
+                // gives no conditions: 0 K, 0 MPa); the live service keeps
+                // the same rule.
+                if t >= *next
+                    && crate::report::conditions_known(&engine.plan().components[ci], &engine.components()[ci])
+                {
                     let plan = &engine.plan().components[ci];
                     let p = component_point(&plant, plan, &engine.components()[ci], t);
                     if let Some(line) = p.to_line() {

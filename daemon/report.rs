@@ -59,9 +59,13 @@ pub struct ComponentReport {
     pub extrapolated_h: f64,
     pub over_design_h: f64,
     pub peak_metal_temperature_c: Option<f64>,
-    pub metal_temperature_c: f64,
-    pub pressure_mpa: f64,
-    pub hoop_stress_mpa: f64,
+    /// Conditions at the newest integrated instant; null where the part has
+    /// no such input or nothing is known yet (see [`conditions_known`]).
+    pub metal_temperature_c: Option<f64>,
+    pub pressure_mpa: Option<f64>,
+    /// Hoop stress, or the configured fixed stress; null for parts without
+    /// a metal temperature (wear contacts: no creep assessment).
+    pub hoop_stress_mpa: Option<f64>,
     pub creep_rate_per_h: f64,
     /// As the configuration spells it (`gross_slip`).
     pub fretting_regime: Option<FrettingRegime>,
@@ -169,6 +173,7 @@ impl ComponentReport {
             flags.push("wall_exhausted".into());
         }
         let h = &st.histogram;
+        let known = conditions_known(plan, st);
         ComponentReport {
             component: plan.name.clone(),
             unit: plan.unit.clone(),
@@ -192,9 +197,9 @@ impl ComponentReport {
                 .peak_temperature_k
                 .is_finite()
                 .then(|| kelvin_to_celsius(st.peak_temperature_k)),
-            metal_temperature_c: kelvin_to_celsius(st.now.metal_temperature_k),
-            pressure_mpa: st.now.pressure_mpa,
-            hoop_stress_mpa: st.now.hoop_stress_mpa,
+            metal_temperature_c: (known && has_creep).then(|| kelvin_to_celsius(st.now.metal_temperature_k)),
+            pressure_mpa: (known && plan.pressure.is_some()).then_some(st.now.pressure_mpa),
+            hoop_stress_mpa: (known && has_creep).then_some(st.now.hoop_stress_mpa),
             creep_rate_per_h: st.now.creep_rate_per_h,
             fretting_regime: st.now.fretting_regime,
             levels_reached: reached,
@@ -209,7 +214,20 @@ impl ComponentReport {
     }
 }
 
+/// Whether a component's present conditions (`ComponentState::now`) are
+/// known, so a `component_state` point or a trend point may be written:
+/// something has been integrated (before that, `now` holds no instant at
+/// all: 0 K, 0 MPa), and a part with a metal temperature input has a
+/// temperature above absolute zero (a piece integrated before its
+/// temperature tag's first sample, with no design temperature to fill the
+/// gap, carries 0 K). Live and replay write their series by this one rule.
+pub fn conditions_known(plan: &ComponentPlan, st: &ComponentState) -> bool {
+    st.integrated_h > 0.0 && (plan.metal_temperature.is_none() || st.now.metal_temperature_k > 0.0)
+}
+
 /// The `component_state` point for the database and line-protocol files.
+/// Callers write it only when [`conditions_known`]; the condition fields
+/// are left out otherwise.
 pub fn component_point(plant: &str, plan: &ComponentPlan, st: &ComponentState, time_ms: i64) -> Point {
     let r = ComponentReport::new(plan, st);
     let mut p = Point::new("component_state", time_ms * 1_000_000)
@@ -218,10 +236,13 @@ pub fn component_point(plant: &str, plan: &ComponentPlan, st: &ComponentState, t
         .tag("component", &plan.name)
         .tag("material", &plan.material.grade);
     if plan.metal_temperature.is_some() {
+        if conditions_known(plan, st) {
+            p = p
+                .float("metal_temperature_k", st.now.metal_temperature_k)
+                .float("pressure_mpa", st.now.pressure_mpa)
+                .float("hoop_stress_mpa", st.now.hoop_stress_mpa);
+        }
         p = p
-            .float("metal_temperature_k", st.now.metal_temperature_k)
-            .float("pressure_mpa", st.now.pressure_mpa)
-            .float("hoop_stress_mpa", st.now.hoop_stress_mpa)
             .float("creep_life_fraction", st.life_fraction)
             .float("damage_rate_per_h", st.recent_life_fraction_rate_per_h)
             .float("creep_rate_per_h", st.now.creep_rate_per_h)

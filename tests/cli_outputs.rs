@@ -114,6 +114,17 @@ fn component<'a>(v: &'a serde_json::Value, name: &str) -> &'a serde_json::Value 
     v["components"].as_array().unwrap().iter().find(|c| c["component"] == name).unwrap()
 }
 
+/// A field of a line-protocol line (`name=value`), as a number (a boolean
+/// as 1 or 0). The field set follows the first space not escaped by `\`.
+fn lp_field(line: &str, name: &str) -> Option<f64> {
+    let b = line.as_bytes();
+    let at = (1..b.len()).find(|&i| b[i] == b' ' && b[i - 1] != b'\\')?;
+    let fields = line[at + 1..].split(' ').next()?;
+    fields.split(',').find_map(|kv| kv.strip_prefix(&format!("{name}="))).map(|v| {
+        v.trim_end_matches('i').parse::<f64>().unwrap_or_else(|_| if v == "true" || v == "t" { 1.0 } else { 0.0 })
+    })
+}
+
 #[test]
 fn fretting_regime_and_kind_are_spelled_as_in_the_configuration() {
     let dir = tempfile::tempdir().unwrap();
@@ -145,4 +156,35 @@ fn materials_show_prints_words_not_debug_formatting() {
     assert!(minimum.contains("0.8") && minimum.contains("mean rupture stress"), "{minimum}");
     let coefficients = line("coefficients");
     assert!(coefficients.contains("a0 = ") && !coefficients.contains('['), "{coefficients}");
+}
+
+#[test]
+fn no_series_point_before_conditions_are_known() {
+    let dir = tempfile::tempdir().unwrap();
+    let cfg = write(dir.path(), "plant.toml", PLANT);
+    let csv = write(dir.path(), "h.csv", &steady_history());
+    let lp = dir.path().join("series.lp");
+    let v = replay_json(&cfg, &csv, Some(&lp));
+    let text = std::fs::read_to_string(&lp).unwrap();
+    let tube: Vec<&str> =
+        text.lines().filter(|l| l.starts_with("component_state,") && l.contains("component=TUBE")).collect();
+    assert!(tube.len() > 100, "a point a minute for six hours: {}", tube.len());
+    for l in &tube {
+        // 540 °C is 813.15 K (T/K = t/°C + 273.15, exact); 16 MPa as sampled.
+        let t = lp_field(l, "metal_temperature_k").unwrap();
+        let p = lp_field(l, "pressure_mpa").unwrap();
+        assert!((t - 813.15).abs() < 1e-9 && (p - 16.0).abs() < 1e-12, "a point with unknown conditions: {l}");
+        assert!(lp_field(l, "hoop_stress_mpa").unwrap() > 0.0, "{l}");
+    }
+    let n = text.lines().filter(|l| l.starts_with("component_state,")).count();
+    assert_eq!(n as u64, v["line_protocol_points"].as_u64().unwrap());
+    // A wear contact has no metal temperature or pressure, and a casing on
+    // a fixed stress no pressure: none is reported (not 0 K = −273.15 °C).
+    let support = component(&v, "SUPPORT");
+    assert!(support["metal_temperature_c"].is_null() && support["pressure_mpa"].is_null(), "{support}");
+    assert!(support["hoop_stress_mpa"].is_null(), "{support}");
+    let casing = component(&v, "CASING");
+    assert!(casing["pressure_mpa"].is_null(), "{casing}");
+    assert_eq!(casing["metal_temperature_c"], 540.0);
+    assert_eq!(component(&v, "TUBE")["pressure_mpa"], 16.0);
 }

@@ -577,8 +577,9 @@ impl Ledger {
             let st = &self.engine.components()[ci];
             components.push((plan.name.clone(), serde_json::to_string(st).unwrap_or_default()));
             if let Some(t) = st.integrated_to_ms {
-                // Nothing integrated yet (only the first sample seen): no point.
-                if t >= self.next_series_ms[ci] && st.integrated_h > 0.0 {
+                // No point before the conditions are known (only the first
+                // sample seen): the rule replay keeps too.
+                if t >= self.next_series_ms[ci] && crate::report::conditions_known(plan, st) {
                     if let Some(l) = component_point(&plant, plan, st, t).to_line() {
                         outbox.push(l);
                         self.counters.series_points += 1;
