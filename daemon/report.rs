@@ -42,10 +42,20 @@ pub struct ComponentReport {
     pub material: String,
     pub curve_basis: CurveBasis,
     pub integrated_to: Option<String>,
+    /// Robinson life fraction, shown no higher than [`DISPLAY_CEILING`].
     pub creep_life_fraction: f64,
+    /// Creep strain (fraction), shown no higher than [`CREEP_STRAIN_CEILING`].
     pub creep_strain: f64,
+    /// Wear depth, shown no deeper than [`DISPLAY_CEILING`] allowable depths.
     pub wear_depth_mm: f64,
+    /// Wear index, shown no higher than [`DISPLAY_CEILING`].
     pub wear_index: f64,
+    /// The part is used up: life fraction at or past 1, wear index at or
+    /// past 1, or the wall gone (flags `life_exhausted`,
+    /// `wear_allowance_exhausted`, `wall_exhausted`).
+    pub exhausted: bool,
+    /// The ceiling of the shown life fraction and wear index.
+    pub display_ceiling: f64,
     /// Recent life-fraction rate, 1/h.
     pub damage_rate_per_h: f64,
     /// Hours to life fraction 1 or wear index 1 at the recent rates,
@@ -89,6 +99,31 @@ fn classes(edges: &[f64], hours: &[f64], conv: impl Fn(f64) -> f64) -> Vec<Class
             hours: h,
         })
         .collect()
+}
+
+/// Largest life fraction and wear index a report, a series point or the
+/// status page shows. Robinson's rule predicts rupture at a life fraction
+/// of 1, and a wear index of 1 is the allowable depth; ten times that says
+/// nothing more about the part, and a ledger integrated on after the wall
+/// is gone runs to numbers like 5e23 that nobody can read. Such a part is
+/// flagged exhausted; the ledger keeps the true sum, and alarms and
+/// projections work from it, so the ceiling can only hide how far past
+/// exhaustion a part is, never that it is. It lies above every alarm level
+/// a configuration can sensibly set (levels are at or below 1).
+pub const DISPLAY_CEILING: f64 = 10.0;
+
+/// Largest creep strain (a fraction: 1 = 100 %) shown, for the same reason:
+/// tubes and pipes rupture at strains of tens of percent.
+pub const CREEP_STRAIN_CEILING: f64 = 1.0;
+
+/// `v`, or `ceiling` when `v` is above it (NaN stays NaN).
+#[inline]
+pub fn capped(v: f64, ceiling: f64) -> f64 {
+    if v > ceiling {
+        ceiling
+    } else {
+        v
+    }
 }
 
 /// Flag names for range flags.
@@ -172,6 +207,15 @@ impl ComponentReport {
         if st.flags.wall_exhausted {
             flags.push("wall_exhausted".into());
         }
+        // Robinson's rule: a life fraction of 1 is predicted rupture.
+        let life_exhausted = has_creep && st.life_fraction >= 1.0;
+        if life_exhausted {
+            flags.push("life_exhausted".into());
+        }
+        let wear_exhausted = plan.wear.is_some() && wear_index >= 1.0;
+        if wear_exhausted {
+            flags.push("wear_allowance_exhausted".into());
+        }
         let h = &st.histogram;
         let known = conditions_known(plan, st);
         ComponentReport {
@@ -181,10 +225,15 @@ impl ComponentReport {
             material: plan.material.grade.clone(),
             curve_basis: plan.curve_basis,
             integrated_to: st.integrated_to_ms.map(rfc3339_ms),
-            creep_life_fraction: st.life_fraction,
-            creep_strain: st.creep_strain,
-            wear_depth_mm: st.wear_depth_mm,
-            wear_index,
+            creep_life_fraction: capped(st.life_fraction, DISPLAY_CEILING),
+            creep_strain: capped(st.creep_strain, CREEP_STRAIN_CEILING),
+            wear_depth_mm: plan
+                .wear
+                .as_ref()
+                .map_or(st.wear_depth_mm, |w| capped(st.wear_depth_mm, DISPLAY_CEILING * w.allowable_depth_mm)),
+            wear_index: capped(wear_index, DISPLAY_CEILING),
+            exhausted: life_exhausted || wear_exhausted || st.flags.wall_exhausted,
+            display_ceiling: DISPLAY_CEILING,
             damage_rate_per_h: st.recent_life_fraction_rate_per_h,
             remaining_life_h: remaining,
             hours_to_threshold: hours_to,
@@ -243,15 +292,16 @@ pub fn component_point(plant: &str, plan: &ComponentPlan, st: &ComponentState, t
                 .float("hoop_stress_mpa", st.now.hoop_stress_mpa);
         }
         p = p
-            .float("creep_life_fraction", st.life_fraction)
+            .float("creep_life_fraction", r.creep_life_fraction)
             .float("damage_rate_per_h", st.recent_life_fraction_rate_per_h)
             .float("creep_rate_per_h", st.now.creep_rate_per_h)
-            .float("creep_strain", st.creep_strain)
+            .float("creep_strain", r.creep_strain)
             .float("hours_in_creep_range", st.hours_in_creep_range);
     }
     if plan.wear.is_some() {
-        p = p.float("wear_depth_mm", st.wear_depth_mm).float("wear_index", r.wear_index);
+        p = p.float("wear_depth_mm", r.wear_depth_mm).float("wear_index", r.wear_index);
     }
+    p = p.boolean("exhausted", r.exhausted);
     if let Some(h) = r.remaining_life_h {
         p = p.float("remaining_life_h", h);
     }
@@ -305,15 +355,25 @@ pub fn summary_table(reports: &[ComponentReport]) -> String {
     ));
     for r in reports {
         let levels: Vec<String> = r.levels_reached.iter().map(|(k, v)| format!("{k}:{v}")).collect();
-        let mut notes = levels;
+        let mut notes = if r.exhausted { vec!["EXHAUSTED".to_string()] } else { vec![] };
+        notes.extend(levels);
         notes.extend(r.flags.iter().cloned());
+        // A value at its ceiling is shown as "≥ ceiling": the true sum is
+        // beyond it.
+        let cell = |v: f64, ceiling: f64, prec: usize| {
+            if v >= ceiling {
+                format!("≥{ceiling}")
+            } else {
+                format!("{v:.prec$}")
+            }
+        };
         s.push_str(&format!(
-            "{:<24} {:<12} {:>10.5} {:>9.4} {:>9.4} {:>12} {:>9.1} {:>9.1}  {}\n",
+            "{:<24} {:<12} {:>10} {:>9} {:>9} {:>12} {:>9.1} {:>9.1}  {}\n",
             r.component,
             r.material,
-            r.creep_life_fraction,
-            r.creep_strain * 100.0,
-            r.wear_index,
+            cell(r.creep_life_fraction, r.display_ceiling, 5),
+            cell(r.creep_strain * 100.0, CREEP_STRAIN_CEILING * 100.0, 4),
+            cell(r.wear_index, r.display_ceiling, 4),
             r.remaining_life_h.map_or("-".to_string(), |h| format!("{h:.0}")),
             r.hours_in_creep_range,
             r.unmonitored_h,

@@ -188,3 +188,50 @@ fn no_series_point_before_conditions_are_known() {
     assert_eq!(casing["metal_temperature_c"], 540.0);
     assert_eq!(component(&v, "TUBE")["pressure_mpa"], 16.0);
 }
+
+#[test]
+fn an_exhausted_part_says_so_with_numbers_people_can_read() {
+    // The wall thins by 20 m a year (a wall of 8 mm is gone in about 3.5 h):
+    // stress and life fraction run away once the wall is at the formula's
+    // floor, as in a part with a badly entered thinning rate or wall loss.
+    let plant = PLANT.replace(
+        "wall = { value = 8.0, unit = \"mm\" }",
+        "wall = { value = 8.0, unit = \"mm\" }\nthinning_rate_mm_per_year = 20000.0\nwall_reference_date = \"2026-10-01\"",
+    );
+    let dir = tempfile::tempdir().unwrap();
+    let cfg = write(dir.path(), "plant.toml", &plant);
+    let csv = write(dir.path(), "h.csv", &steady_history());
+    let lp = dir.path().join("series.lp");
+    let v = replay_json(&cfg, &csv, Some(&lp));
+    let c = component(&v, "TUBE");
+    assert_eq!(c["exhausted"], true, "{c}");
+    let flags: Vec<&str> = c["flags"].as_array().unwrap().iter().map(|f| f.as_str().unwrap()).collect();
+    assert!(flags.contains(&"wall_exhausted") && flags.contains(&"life_exhausted"), "{flags:?}");
+    // Robinson's rule: a life fraction of 1 is predicted rupture (common
+    // practice); past the stated ceiling the number carries no meaning and
+    // is shown as the ceiling.
+    let lf = c["creep_life_fraction"].as_f64().unwrap();
+    assert_eq!(lf, c["display_ceiling"].as_f64().unwrap(), "{c}");
+    assert!((1.0..=100.0).contains(&lf), "{lf}");
+    assert_eq!(c["remaining_life_h"], 0.0);
+    // The other parts are not exhausted.
+    assert_eq!(component(&v, "CASING")["exhausted"], false);
+
+    // The table says it in words, without an astronomic number.
+    let (code, out, err) = run(&["replay", "--config", cfg.to_str().unwrap(), "--input", csv.to_str().unwrap()]);
+    assert_eq!(code, 0, "{err}");
+    let row = out.lines().find(|l| l.starts_with("TUBE ")).expect("a TUBE row");
+    assert!(row.contains("exhausted"), "{row}");
+    assert!(!row.contains("e+") && !row.contains("e2"), "{row}");
+    for tok in row.split_whitespace() {
+        if let Ok(x) = tok.trim_start_matches('>').parse::<f64>() {
+            assert!(x.abs() < 1e7, "unreadable number {tok} in {row}");
+        }
+    }
+    // The exported series carries the capped value and the exhausted flag.
+    let text = std::fs::read_to_string(&lp).unwrap();
+    let last = text.lines().filter(|l| l.starts_with("component_state,") && l.contains("component=TUBE")).last();
+    let last = last.expect("TUBE points");
+    assert_eq!(lp_field(last, "creep_life_fraction"), Some(lf), "{last}");
+    assert_eq!(lp_field(last, "exhausted"), Some(1.0), "{last}");
+}

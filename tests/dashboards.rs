@@ -82,6 +82,7 @@ fn schema() -> Vec<Measurement> {
                 "wear_index",
                 "remaining_life_h",
                 "unmonitored_h",
+                "exhausted",
             ]),
         },
         Measurement {
