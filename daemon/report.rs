@@ -11,7 +11,7 @@ use crate::physics::stress::hoop_stress_mpa;
 use crate::physics::temperature::homologous_temperature;
 use crate::physics::units::kelvin_to_celsius;
 use crate::physics::wear::FrettingRegime;
-use crate::settings::schema::ComponentKind;
+use crate::settings::schema::{ComponentKind, WearModel};
 use serde::Serialize;
 use std::collections::BTreeMap;
 
@@ -396,7 +396,20 @@ pub fn counters_line(c: &Counters) -> String {
 pub struct DesignCheck {
     pub component: String,
     pub material: String,
+    /// Hoop stress at design pressure (stress factor included), for parts
+    /// whose stress comes from pressure and geometry; null otherwise.
     pub hoop_stress_at_design_mpa: Option<f64>,
+    /// The configured fixed stress (stress factor included), for parts on a
+    /// fixed stress; null otherwise.
+    pub fixed_stress_mpa: Option<f64>,
+    /// The stress factor both stresses above include.
+    pub stress_factor: f64,
+    /// Wear model of a wear contact (`archard`, `fretting`); null otherwise.
+    pub wear_model: Option<WearModel>,
+    /// Allowable wear depth of a wear contact, mm.
+    pub allowable_wear_depth_mm: Option<f64>,
+    /// Whether creep is assessed (the part has a metal temperature input).
+    pub creep_assessed: bool,
     pub homologous_temperature: Option<f64>,
     pub creep_threshold_c: f64,
     pub in_creep_range: Option<bool>,
@@ -421,13 +434,20 @@ pub fn design_check(plan: &ComponentPlan) -> DesignCheck {
     let mut warnings = vec![];
     let tm = plan.material.melting_point_k.value;
     let threshold = plan.creep_threshold_k();
-    let sigma = match (plan.stress, plan.design_pressure_mpa) {
-        (StressPlan::Fixed(s), _) => Some(s * plan.stress_factor),
+    let creep_assessed = plan.metal_temperature.is_some();
+    // A wear contact without a configured stress carries a fixed stress of
+    // 0 (it does not creep): no stress to show.
+    let hoop = match (plan.stress, plan.design_pressure_mpa) {
         (StressPlan::Hoop { basis, outside_diameter_mm, wall_mm, measured_loss_mm, .. }, Some(p)) => {
             Some(hoop_stress_mpa(basis, p, outside_diameter_mm, wall_mm - measured_loss_mm) * plan.stress_factor)
         }
         _ => None,
     };
+    let fixed = match plan.stress {
+        StressPlan::Fixed(s) if creep_assessed && !(plan.wear.is_some() && s == 0.0) => Some(s * plan.stress_factor),
+        _ => None,
+    };
+    let sigma = hoop.or(fixed);
     let t = plan.design_temperature_k;
     let mut life_min = None;
     let mut life_mean = None;
@@ -462,10 +482,15 @@ pub fn design_check(plan: &ComponentPlan) -> DesignCheck {
     DesignCheck {
         component: plan.name.clone(),
         material: plan.material.grade.clone(),
-        hoop_stress_at_design_mpa: sigma,
-        homologous_temperature: t.map(|t| homologous_temperature(t, tm)),
+        hoop_stress_at_design_mpa: hoop,
+        fixed_stress_mpa: fixed,
+        stress_factor: plan.stress_factor,
+        wear_model: plan.wear.as_ref().map(|w| w.model),
+        allowable_wear_depth_mm: plan.wear.as_ref().map(|w| w.allowable_depth_mm),
+        creep_assessed,
+        homologous_temperature: t.filter(|_| creep_assessed).map(|t| homologous_temperature(t, tm)),
         creep_threshold_c: kelvin_to_celsius(threshold),
-        in_creep_range: t.map(|t| t >= threshold),
+        in_creep_range: t.filter(|_| creep_assessed).map(|t| t >= threshold),
         rupture_life_minimum_h: life_min,
         rupture_life_mean_h: life_mean,
         hours_to_levels_at_design: hours_to,

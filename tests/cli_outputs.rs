@@ -235,3 +235,33 @@ fn an_exhausted_part_says_so_with_numbers_people_can_read() {
     assert_eq!(lp_field(last, "creep_life_fraction"), Some(lf), "{last}");
     assert_eq!(lp_field(last, "exhausted"), Some(1.0), "{last}");
 }
+
+#[test]
+fn check_config_names_stress_by_its_source() {
+    let dir = tempfile::tempdir().unwrap();
+    let cfg = write(dir.path(), "plant.toml", PLANT);
+    let (code, out, err) = run(&["check-config", cfg.to_str().unwrap()]);
+    assert_eq!(code, 0, "{err}");
+    let block = |name: &str| {
+        out.split("\n\n").find(|b| b.starts_with(name)).unwrap_or_else(|| panic!("no block for {name}:\n{out}"))
+    };
+    let tube = block("TUBE");
+    assert!(tube.contains("hoop stress at design pressure"), "{tube}");
+    let casing = block("CASING");
+    assert!(!casing.contains("hoop stress"), "{casing}");
+    // 55 MPa as configured (stress factor 1).
+    assert!(casing.contains("fixed stress (configured)") && casing.contains("55.0 MPa"), "{casing}");
+    let support = block("SUPPORT");
+    assert!(!support.contains("stress") && !support.contains("0.0 MPa"), "{support}");
+    assert!(support.contains("fretting"), "{support}");
+
+    let (code, out, err) = run(&["check-config", cfg.to_str().unwrap(), "--format", "json"]);
+    assert_eq!(code, 0, "{err}");
+    let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+    let by = |n: &str| v["components"].as_array().unwrap().iter().find(|c| c["component"] == n).unwrap().clone();
+    assert_eq!(by("CASING")["hoop_stress_at_design_mpa"], serde_json::Value::Null);
+    assert_eq!(by("CASING")["fixed_stress_mpa"], 55.0);
+    assert_eq!(by("SUPPORT")["hoop_stress_at_design_mpa"], serde_json::Value::Null);
+    assert_eq!(by("SUPPORT")["fixed_stress_mpa"], serde_json::Value::Null);
+    assert!(by("TUBE")["hoop_stress_at_design_mpa"].as_f64().unwrap() > 0.0);
+}
