@@ -65,8 +65,29 @@ pub struct LoadedConfig {
     pub warnings: Vec<ConfigProblem>,
 }
 
+/// Where the `LIFELEDGER__SECTION__KEY` overrides of a configuration file
+/// come from.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub enum Overrides {
+    /// The process environment: what `run`, `replay`, `check-config` and
+    /// `ledger` read (containers configure the service this way).
+    #[default]
+    Environment,
+    /// None: the file alone. The demo runs on its own settings and must not
+    /// follow a production environment into a production ledger or database.
+    FileOnly,
+    /// These variables (name, value) instead of the process environment, so
+    /// tests never change the environment other tests and children inherit.
+    Given(Vec<(String, String)>),
+}
+
 /// Read a configuration file with `LIFELEDGER__…` environment overrides.
 pub fn read_settings(path: &Path) -> Result<Settings, ConfigError> {
+    read_settings_with(path, &Overrides::Environment)
+}
+
+/// Read a configuration file with overrides from `overrides`.
+pub fn read_settings_with(path: &Path, overrides: &Overrides) -> Result<Settings, ConfigError> {
     let file = path.display().to_string();
     let fail = |problem: String, fix: &str| ConfigError {
         file: file.clone(),
@@ -80,20 +101,28 @@ pub fn read_settings(path: &Path) -> Result<Settings, ConfigError> {
     if let Err(e) = toml::from_str::<Settings>(&text) {
         return Err(fail(e.to_string().replace('\n', " "), "correct the TOML at the line shown"));
     }
-    let cfg = config::Config::builder()
-        .add_source(config::File::from(PathBuf::from(path)).format(config::FileFormat::Toml))
-        .add_source(
-            config::Environment::with_prefix("LIFELEDGER").prefix_separator("__").separator("__").try_parsing(true),
-        )
-        .build()
-        .map_err(|e| fail(e.to_string(), "correct the TOML"))?;
+    let env =
+        || config::Environment::with_prefix("LIFELEDGER").prefix_separator("__").separator("__").try_parsing(true);
+    let builder =
+        config::Config::builder().add_source(config::File::from(PathBuf::from(path)).format(config::FileFormat::Toml));
+    let builder = match overrides {
+        Overrides::Environment => builder.add_source(env()),
+        Overrides::FileOnly => builder,
+        Overrides::Given(vars) => builder.add_source(env().source(Some(vars.iter().cloned().collect()))),
+    };
+    let cfg = builder.build().map_err(|e| fail(e.to_string(), "correct the TOML"))?;
     cfg.try_deserialize::<Settings>()
         .map_err(|e| fail(format!("after environment overrides: {e}"), "check LIFELEDGER__… variables"))
 }
 
-/// Read, validate and plan a configuration file.
+/// Read, validate and plan a configuration file (with environment overrides).
 pub fn load_plan(path: &Path) -> Result<LoadedConfig, ConfigError> {
-    let settings = read_settings(path)?;
+    load_plan_with(path, &Overrides::Environment)
+}
+
+/// Read, validate and plan a configuration file with overrides from `overrides`.
+pub fn load_plan_with(path: &Path, overrides: &Overrides) -> Result<LoadedConfig, ConfigError> {
+    let settings = read_settings_with(path, overrides)?;
     plan_settings(&path.display().to_string(), settings)
 }
 
