@@ -125,7 +125,8 @@ enum Command {
     /// broker on a loopback port; the live service subscribes exactly as in
     /// production. Within a minute the ledgers move, a warning fires (an
     /// over-temperature excursion) and a stale-tag alarm fires (a failing
-    /// thermocouple). Demo data only.
+    /// thermocouple). Demo data only. The demo runs on its own settings:
+    /// LIFELEDGER__… environment variables are ignored.
     ///
     /// Example: lifeledger demo --duration 60
     #[command(after_help = CAUTION_HELP)]

@@ -265,3 +265,24 @@ fn check_config_names_stress_by_its_source() {
     assert_eq!(by("SUPPORT")["fixed_stress_mpa"], serde_json::Value::Null);
     assert!(by("TUBE")["hoop_stress_at_design_mpa"].as_f64().unwrap() > 0.0);
 }
+
+#[test]
+fn check_config_warns_where_a_default_plausibility_range_applies() {
+    // LOAD and SLIP lose their valid ranges; TE and PT keep theirs.
+    let plant = PLANT
+        .replace("unit = \"N\"\nvalid_range = [0.0, 2000.0]", "unit = \"kN\"")
+        .replace("unit = \"um\"\nvalid_range = [0.0, 1000.0]", "unit = \"um\"");
+    let dir = tempfile::tempdir().unwrap();
+    let cfg = write(dir.path(), "plant.toml", &plant);
+    let (code, out, err) = run(&["check-config", cfg.to_str().unwrap()]);
+    assert_eq!(code, 0, "{err}");
+    let warnings: Vec<&str> = out.lines().filter(|l| l.starts_with("warning: tag")).collect();
+    assert_eq!(warnings.len(), 2, "{out}");
+    // The force default is ±10 MN, in the tag's unit kN: ±10 000 kN.
+    let load = warnings.iter().find(|w| w.contains("\"LOAD\"")).expect("a warning for LOAD");
+    assert!(load.contains("valid_range") && load.contains("-10000") && load.contains("10000 kN"), "{load}");
+    let slip = warnings.iter().find(|w| w.contains("\"SLIP\"")).expect("a warning for SLIP");
+    // ±1 m is ±1 000 000 µm.
+    assert!(slip.contains("1000000 um"), "{slip}");
+    assert!(!out.contains("tag \"TE\"") && !out.contains("tag \"PT\""), "{out}");
+}

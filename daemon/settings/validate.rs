@@ -178,6 +178,18 @@ pub fn name_problem(name: &str) -> Option<String> {
     None
 }
 
+/// A number for a message: at most six decimals, trailing zeros dropped
+/// (−273.15, 10000, 1000000).
+fn tidy(x: f64) -> String {
+    let s = format!("{x:.6}");
+    let s = s.trim_end_matches('0').trim_end_matches('.');
+    if s == "-0" {
+        "0".into()
+    } else {
+        s.into()
+    }
+}
+
 /// Parse an RFC 3339 date-time or a plain date (midnight UTC) to ms.
 pub fn parse_date_ms(s: &str) -> Option<i64> {
     if let Ok(t) = chrono::DateTime::parse_from_rfc3339(s) {
@@ -271,11 +283,34 @@ impl Validator {
                     Unit::parse("1").unwrap()
                 }
             };
-            if let Some([lo, hi]) = t.valid_range {
-                if !(lo < hi) {
-                    self.err(&place, "valid_range", "low must be below high", "give [low, high] in the tag's unit");
+            // Every tag has a plausibility range: its own, or else the
+            // physical default of its quantity, in the tag's unit (the unit
+            // of the value after scale and offset, which the engine's screen
+            // compares with the range).
+            let valid_range = match t.valid_range {
+                Some([lo, hi]) => {
+                    if !(lo < hi) {
+                        self.err(&place, "valid_range", "low must be below high", "give [low, high] in the tag's unit");
+                    }
+                    [lo, hi]
                 }
-            }
+                None => {
+                    let [lo, hi] = unit.plausible_range();
+                    self.warn(
+                        &place,
+                        "valid_range",
+                        format!(
+                            "not set: the physical default for {} applies, {} to {} {}",
+                            unit.quantity,
+                            tidy(lo),
+                            tidy(hi),
+                            unit.name
+                        ),
+                        "set valid_range = [low, high] to the transmitter's calibrated span",
+                    );
+                    [lo, hi]
+                }
+            };
             let hold = t.max_hold_s.unwrap_or(s.engine.max_hold_s);
             if !(hold > 0.0 && hold.is_finite()) {
                 self.err(&place, "max_hold_s", "must be a positive number of seconds", "for example 900");
@@ -291,7 +326,7 @@ impl Validator {
             out.push(TagPlan {
                 name: t.name.clone(),
                 unit,
-                valid_range: t.valid_range,
+                valid_range: Some(valid_range),
                 max_hold_ms: (hold * 1000.0).round() as i64,
                 interpolation: t.interpolation,
                 scale: t.scale,
@@ -327,7 +362,27 @@ impl Validator {
         index: &HashMap<&str, usize>,
     ) -> Option<Input> {
         match i {
-            InputSetting::Constant(q) => self.quantity(place, key, q, quantity).map(Input::Constant),
+            InputSetting::Constant(q) => {
+                let v = self.quantity(place, key, q, quantity)?;
+                let [lo, hi] = quantity.plausible_range();
+                if !(lo..=hi).contains(&v) || (quantity == Quantity::Temperature && v <= 0.0) {
+                    let u = Unit::parse(&q.unit).unwrap_or_else(|_| Unit::parse("1").unwrap());
+                    self.err(
+                        place,
+                        key,
+                        format!(
+                            "{} {} is outside the physical range of {quantity} ({} to {} {})",
+                            q.value,
+                            q.unit,
+                            tidy(u.from_internal(lo)),
+                            tidy(u.from_internal(hi)),
+                            u.name
+                        ),
+                        "check the value and its unit",
+                    );
+                }
+                Some(Input::Constant(v))
+            }
             InputSetting::Tag(name) => match index.get(name.as_str()) {
                 Some(&ti) => {
                     if tags[ti].unit.quantity != quantity {
