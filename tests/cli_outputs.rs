@@ -230,7 +230,7 @@ fn an_exhausted_part_says_so_with_numbers_people_can_read() {
     }
     // The exported series carries the capped value and the exhausted flag.
     let text = std::fs::read_to_string(&lp).unwrap();
-    let last = text.lines().filter(|l| l.starts_with("component_state,") && l.contains("component=TUBE")).last();
+    let last = text.lines().rfind(|l| l.starts_with("component_state,") && l.contains("component=TUBE"));
     let last = last.expect("TUBE points");
     assert_eq!(lp_field(last, "creep_life_fraction"), Some(lf), "{last}");
     assert_eq!(lp_field(last, "exhausted"), Some(1.0), "{last}");
