@@ -71,7 +71,8 @@ enum Command {
     },
     /// Validate a configuration and print the values an engineer should sanity-check.
     ///
-    /// Prints, per component: hoop stress at design pressure, homologous
+    /// Prints, per component: the stress at design conditions (hoop stress
+    /// at design pressure, or the configured fixed stress), homologous
     /// temperature and whether it is in the creep range, rupture life at
     /// design conditions on the minimum and mean curves, hours at design
     /// conditions to each life-fraction alarm level, and validity warnings.
@@ -205,7 +206,8 @@ enum Command {
     /// broker on a loopback port; the live service subscribes exactly as in
     /// production. Within a minute the ledgers move, a warning fires (an
     /// over-temperature excursion) and a stale-tag alarm fires (a failing
-    /// thermocouple). Demo data only.
+    /// thermocouple). Demo data only. The demo runs on its own settings:
+    /// LIFELEDGER__… environment variables are ignored.
     ///
     /// Example: lifeledger demo --duration 60
     #[command(after_help = CAUTION_HELP)]
@@ -756,6 +758,15 @@ fn cmd_backfill(config: &std::path::Path, ledger: Option<PathBuf>, input: &str, 
     Ok(0)
 }
 
+/// " (stress factor 1.1 included)" when the factor is not 1.
+fn factor_note(f: f64) -> String {
+    if f == 1.0 {
+        String::new()
+    } else {
+        format!(" (stress factor {f} included)")
+    }
+}
+
 fn fmt_opt(v: Option<f64>, prec: usize) -> String {
     v.map_or("-".into(), |x| format!("{x:.prec$}"))
 }
@@ -817,7 +828,29 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
     }
     for c in &checks {
         writeln!(out, "\n{} ({})", c.component, c.material)?;
-        writeln!(out, "  hoop stress at design pressure   {} MPa", fmt_opt(c.hoop_stress_at_design_mpa, 1))?;
+        if let (Some(model), Some(depth)) = (c.wear_model, c.allowable_wear_depth_mm) {
+            let model = match model {
+                lifeledger::settings::schema::WearModel::Archard => "Archard sliding",
+                lifeledger::settings::schema::WearModel::Fretting => "fretting work-rate",
+            };
+            writeln!(out, "  wear                             {model} model, allowable depth {depth:.3} mm")?;
+        }
+        if !c.creep_assessed {
+            writeln!(out, "  creep                            not assessed (no metal temperature input)")?;
+            for w in &c.warnings {
+                writeln!(out, "  warning: {w}")?;
+            }
+            continue;
+        }
+        match (c.hoop_stress_at_design_mpa, c.fixed_stress_mpa) {
+            (_, Some(s)) => {
+                writeln!(out, "  fixed stress (configured)        {s:.1} MPa{}", factor_note(c.stress_factor))?
+            }
+            (Some(s), None) => {
+                writeln!(out, "  hoop stress at design pressure   {s:.1} MPa{}", factor_note(c.stress_factor))?
+            }
+            (None, None) => writeln!(out, "  hoop stress at design pressure   - (no design pressure)")?,
+        }
         writeln!(
             out,
             "  homologous temperature T/Tm      {} (creep threshold {:.0} °C; in creep range: {})",
@@ -917,7 +950,9 @@ fn cmd_materials(action: MaterialsAction) -> Result<i32> {
                 "\nLarson-Miller        P = T[K]·({} + log10 t_r[h]) = Σ a_i·(log10 σ[MPa])^i",
                 lm.constant_c
             )?;
-            writeln!(out, "  coefficients       {:?}", lm.coefficients)?;
+            let coefficients: Vec<String> =
+                lm.coefficients.iter().enumerate().map(|(i, a)| format!("a{i} = {a}")).collect();
+            writeln!(out, "  coefficients       {}", coefficients.join(", "))?;
             writeln!(
                 out,
                 "  data range         {:.0}–{:.0} MPa, {:.0}–{:.0} °C",
@@ -926,7 +961,7 @@ fn cmd_materials(action: MaterialsAction) -> Result<i32> {
                 c(lm.temperature_range_k[0]),
                 c(lm.temperature_range_k[1])
             )?;
-            writeln!(out, "  minimum curve      {:?}", lm.minimum)?;
+            writeln!(out, "  minimum curve      {}", lm.minimum)?;
             writeln!(out, "  source             {}", lm.source)?;
             if let Some(n) = &m.norton {
                 writeln!(

@@ -389,9 +389,9 @@ fn write_series(
         let next = &mut next_lp[ci];
         let st = &engine.components()[ci];
         let Some(t) = st.integrated_to_ms else { continue };
-        // No point before anything is integrated (the first sample alone
-        // gives no conditions); the live service keeps the same rule.
-        if t >= *next && st.integrated_h > 0.0 {
+        // No point before anything is known (the first sample alone gives
+        // no conditions: 0 K, 0 MPa); the live service keeps the same rule.
+        if t >= *next && crate::report::conditions_known(&engine.plan().components[ci], st) {
             let plan = &engine.plan().components[ci];
             let p = component_point(plant, plan, st, t);
             if let Some(line) = p.to_line() {

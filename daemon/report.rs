@@ -11,6 +11,8 @@ use crate::physics::remaining::hours_to_threshold;
 use crate::physics::stress::hoop_stress_mpa;
 use crate::physics::temperature::homologous_temperature;
 use crate::physics::units::kelvin_to_celsius;
+use crate::physics::wear::FrettingRegime;
+use crate::settings::schema::{ComponentKind, WearModel};
 use serde::Serialize;
 use std::collections::BTreeMap;
 
@@ -36,11 +38,14 @@ pub struct Histograms {
 pub struct ComponentReport {
     pub component: String,
     pub unit: String,
-    pub kind: String,
+    /// As the configuration spells it (`wear_contact`).
+    pub kind: ComponentKind,
     pub material: String,
     pub curve_basis: CurveBasis,
     pub integrated_to: Option<String>,
+    /// Robinson life fraction, shown no higher than [`DISPLAY_CEILING`].
     pub creep_life_fraction: f64,
+    /// Creep strain (fraction), shown no higher than [`CREEP_STRAIN_CEILING`].
     pub creep_strain: f64,
     /// Where the Norton constants behind `creep_strain` come from (null when
     /// the part computes no creep strain).
@@ -49,8 +54,16 @@ pub struct ComponentReport {
     /// Norton constants are measured (derived from the rupture curve, strain
     /// is no independent evidence).
     pub creep_strain_note: Option<String>,
+    /// Wear depth, shown no deeper than [`DISPLAY_CEILING`] allowable depths.
     pub wear_depth_mm: f64,
+    /// Wear index, shown no higher than [`DISPLAY_CEILING`].
     pub wear_index: f64,
+    /// The part is used up: life fraction at or past 1, wear index at or
+    /// past 1, or the wall gone (flags `life_exhausted`,
+    /// `wear_allowance_exhausted`, `wall_exhausted`).
+    pub exhausted: bool,
+    /// The ceiling of the shown life fraction and wear index.
+    pub display_ceiling: f64,
     /// Recent life-fraction rate, 1/h.
     pub damage_rate_per_h: f64,
     /// Hours to life fraction 1 or wear index 1 at the recent rates,
@@ -64,11 +77,16 @@ pub struct ComponentReport {
     pub extrapolated_h: f64,
     pub over_design_h: f64,
     pub peak_metal_temperature_c: Option<f64>,
-    pub metal_temperature_c: f64,
-    pub pressure_mpa: f64,
-    pub hoop_stress_mpa: f64,
+    /// Conditions at the newest integrated instant; null where the part has
+    /// no such input or nothing is known yet (see [`conditions_known`]).
+    pub metal_temperature_c: Option<f64>,
+    pub pressure_mpa: Option<f64>,
+    /// Hoop stress, or the configured fixed stress; null for parts without
+    /// a metal temperature (wear contacts: no creep assessment).
+    pub hoop_stress_mpa: Option<f64>,
     pub creep_rate_per_h: f64,
-    pub fretting_regime: Option<String>,
+    /// As the configuration spells it (`gross_slip`).
+    pub fretting_regime: Option<FrettingRegime>,
     /// Highest alarm severity whose level is reached, by index.
     pub levels_reached: BTreeMap<String, String>,
     pub flags: Vec<String>,
@@ -89,6 +107,31 @@ fn classes(edges: &[f64], hours: &[f64], conv: impl Fn(f64) -> f64) -> Vec<Class
             hours: h,
         })
         .collect()
+}
+
+/// Largest life fraction and wear index a report, a series point or the
+/// status page shows. Robinson's rule predicts rupture at a life fraction
+/// of 1, and a wear index of 1 is the allowable depth; ten times that says
+/// nothing more about the part, and a ledger integrated on after the wall
+/// is gone runs to numbers like 5e23 that nobody can read. Such a part is
+/// flagged exhausted; the ledger keeps the true sum, and alarms and
+/// projections work from it, so the ceiling can only hide how far past
+/// exhaustion a part is, never that it is. It lies above every alarm level
+/// a configuration can sensibly set (levels are at or below 1).
+pub const DISPLAY_CEILING: f64 = 10.0;
+
+/// Largest creep strain (a fraction: 1 = 100 %) shown, for the same reason:
+/// tubes and pipes rupture at strains of tens of percent.
+pub const CREEP_STRAIN_CEILING: f64 = 1.0;
+
+/// `v`, or `ceiling` when `v` is above it (NaN stays NaN).
+#[inline]
+pub fn capped(v: f64, ceiling: f64) -> f64 {
+    if v > ceiling {
+        ceiling
+    } else {
+        v
+    }
 }
 
 /// Flag names for range flags.
@@ -172,21 +215,36 @@ impl ComponentReport {
         if st.flags.wall_exhausted {
             flags.push("wall_exhausted".into());
         }
+        // Robinson's rule: a life fraction of 1 is predicted rupture.
+        let life_exhausted = has_creep && st.life_fraction >= 1.0;
+        if life_exhausted {
+            flags.push("life_exhausted".into());
+        }
+        let wear_exhausted = plan.wear.is_some() && wear_index >= 1.0;
+        if wear_exhausted {
+            flags.push("wear_allowance_exhausted".into());
+        }
         let h = &st.histogram;
         let strain_basis = plan.material.norton.as_ref().filter(|_| has_creep).map(|n| n.basis);
+        let known = conditions_known(plan, st);
         ComponentReport {
             component: plan.name.clone(),
             unit: plan.unit.clone(),
-            kind: format!("{:?}", plan.kind).to_lowercase(),
+            kind: plan.kind,
             material: plan.material.grade.clone(),
             curve_basis: plan.curve_basis,
             integrated_to: st.integrated_to_ms.map(rfc3339_ms),
-            creep_life_fraction: st.life_fraction,
-            creep_strain: st.creep_strain,
+            creep_life_fraction: capped(st.life_fraction, DISPLAY_CEILING),
+            creep_strain: capped(st.creep_strain, CREEP_STRAIN_CEILING),
             creep_strain_basis: strain_basis,
             creep_strain_note: strain_basis.and_then(NortonBasis::strain_note).map(String::from),
-            wear_depth_mm: st.wear_depth_mm,
-            wear_index,
+            wear_depth_mm: plan
+                .wear
+                .as_ref()
+                .map_or(st.wear_depth_mm, |w| capped(st.wear_depth_mm, DISPLAY_CEILING * w.allowable_depth_mm)),
+            wear_index: capped(wear_index, DISPLAY_CEILING),
+            exhausted: life_exhausted || wear_exhausted || st.flags.wall_exhausted,
+            display_ceiling: DISPLAY_CEILING,
             damage_rate_per_h: st.recent_life_fraction_rate_per_h,
             remaining_life_h: remaining,
             hours_to_threshold: hours_to,
@@ -199,11 +257,11 @@ impl ComponentReport {
                 .peak_temperature_k
                 .is_finite()
                 .then(|| kelvin_to_celsius(st.peak_temperature_k)),
-            metal_temperature_c: kelvin_to_celsius(st.now.metal_temperature_k),
-            pressure_mpa: st.now.pressure_mpa,
-            hoop_stress_mpa: st.now.hoop_stress_mpa,
+            metal_temperature_c: (known && has_creep).then(|| kelvin_to_celsius(st.now.metal_temperature_k)),
+            pressure_mpa: (known && plan.pressure.is_some()).then_some(st.now.pressure_mpa),
+            hoop_stress_mpa: (known && has_creep).then_some(st.now.hoop_stress_mpa),
             creep_rate_per_h: st.now.creep_rate_per_h,
-            fretting_regime: st.now.fretting_regime.map(|r| format!("{r:?}")),
+            fretting_regime: st.now.fretting_regime,
             levels_reached: reached,
             flags,
             histograms: Histograms {
@@ -216,7 +274,20 @@ impl ComponentReport {
     }
 }
 
+/// Whether a component's present conditions (`ComponentState::now`) are
+/// known, so a `component_state` point or a trend point may be written:
+/// something has been integrated (before that, `now` holds no instant at
+/// all: 0 K, 0 MPa), and a part with a metal temperature input has a
+/// temperature above absolute zero (a piece integrated before its
+/// temperature tag's first sample, with no design temperature to fill the
+/// gap, carries 0 K). Live and replay write their series by this one rule.
+pub fn conditions_known(plan: &ComponentPlan, st: &ComponentState) -> bool {
+    st.integrated_h > 0.0 && (plan.metal_temperature.is_none() || st.now.metal_temperature_k > 0.0)
+}
+
 /// The `component_state` point for the database and line-protocol files.
+/// Callers write it only when [`conditions_known`]; the condition fields
+/// are left out otherwise.
 pub fn component_point(plant: &str, plan: &ComponentPlan, st: &ComponentState, time_ms: i64) -> Point {
     let r = ComponentReport::new(plan, st);
     let mut p = Point::new("component_state", time_ms * 1_000_000)
@@ -225,19 +296,23 @@ pub fn component_point(plant: &str, plan: &ComponentPlan, st: &ComponentState, t
         .tag("component", &plan.name)
         .tag("material", &plan.material.grade);
     if plan.metal_temperature.is_some() {
+        if conditions_known(plan, st) {
+            p = p
+                .float("metal_temperature_k", st.now.metal_temperature_k)
+                .float("pressure_mpa", st.now.pressure_mpa)
+                .float("hoop_stress_mpa", st.now.hoop_stress_mpa);
+        }
         p = p
-            .float("metal_temperature_k", st.now.metal_temperature_k)
-            .float("pressure_mpa", st.now.pressure_mpa)
-            .float("hoop_stress_mpa", st.now.hoop_stress_mpa)
-            .float("creep_life_fraction", st.life_fraction)
+            .float("creep_life_fraction", r.creep_life_fraction)
             .float("damage_rate_per_h", st.recent_life_fraction_rate_per_h)
             .float("creep_rate_per_h", st.now.creep_rate_per_h)
-            .float("creep_strain", st.creep_strain)
+            .float("creep_strain", r.creep_strain)
             .float("hours_in_creep_range", st.hours_in_creep_range);
     }
     if plan.wear.is_some() {
-        p = p.float("wear_depth_mm", st.wear_depth_mm).float("wear_index", r.wear_index);
+        p = p.float("wear_depth_mm", r.wear_depth_mm).float("wear_index", r.wear_index);
     }
+    p = p.boolean("exhausted", r.exhausted);
     if let Some(h) = r.remaining_life_h {
         p = p.float("remaining_life_h", h);
     }
@@ -291,15 +366,25 @@ pub fn summary_table(reports: &[ComponentReport]) -> String {
     ));
     for r in reports {
         let levels: Vec<String> = r.levels_reached.iter().map(|(k, v)| format!("{k}:{v}")).collect();
-        let mut notes = levels;
+        let mut notes = if r.exhausted { vec!["EXHAUSTED".to_string()] } else { vec![] };
+        notes.extend(levels);
         notes.extend(r.flags.iter().cloned());
+        // A value at its ceiling is shown as "≥ ceiling": the true sum is
+        // beyond it.
+        let cell = |v: f64, ceiling: f64, prec: usize| {
+            if v >= ceiling {
+                format!("≥{ceiling}")
+            } else {
+                format!("{v:.prec$}")
+            }
+        };
         s.push_str(&format!(
-            "{:<24} {:<12} {:>10.5} {:>9.4} {:>9.4} {:>12} {:>9.1} {:>9.1}  {}\n",
+            "{:<24} {:<12} {:>10} {:>9} {:>9} {:>12} {:>9.1} {:>9.1}  {}\n",
             r.component,
             r.material,
-            r.creep_life_fraction,
-            r.creep_strain * 100.0,
-            r.wear_index,
+            cell(r.creep_life_fraction, r.display_ceiling, 5),
+            cell(r.creep_strain * 100.0, CREEP_STRAIN_CEILING * 100.0, 4),
+            cell(r.wear_index, r.display_ceiling, 4),
             r.remaining_life_h.map_or("-".to_string(), |h| format!("{h:.0}")),
             r.hours_in_creep_range,
             r.unmonitored_h,
@@ -337,7 +422,20 @@ pub fn counters_line(c: &Counters) -> String {
 pub struct DesignCheck {
     pub component: String,
     pub material: String,
+    /// Hoop stress at design pressure (stress factor included), for parts
+    /// whose stress comes from pressure and geometry; null otherwise.
     pub hoop_stress_at_design_mpa: Option<f64>,
+    /// The configured fixed stress (stress factor included), for parts on a
+    /// fixed stress; null otherwise.
+    pub fixed_stress_mpa: Option<f64>,
+    /// The stress factor both stresses above include.
+    pub stress_factor: f64,
+    /// Wear model of a wear contact (`archard`, `fretting`); null otherwise.
+    pub wear_model: Option<WearModel>,
+    /// Allowable wear depth of a wear contact, mm.
+    pub allowable_wear_depth_mm: Option<f64>,
+    /// Whether creep is assessed (the part has a metal temperature input).
+    pub creep_assessed: bool,
     pub homologous_temperature: Option<f64>,
     pub creep_threshold_c: f64,
     pub in_creep_range: Option<bool>,
@@ -377,13 +475,20 @@ pub fn design_check(plan: &ComponentPlan) -> DesignCheck {
     let mut warnings = vec![];
     let tm = plan.material.melting_point_k.value;
     let threshold = plan.creep_threshold_k();
-    let sigma = match (plan.stress, plan.design_pressure_mpa) {
-        (StressPlan::Fixed(s), _) => Some(s * plan.stress_factor),
+    let creep_assessed = plan.metal_temperature.is_some();
+    // A wear contact without a configured stress carries a fixed stress of
+    // 0 (it does not creep): no stress to show.
+    let hoop = match (plan.stress, plan.design_pressure_mpa) {
         (StressPlan::Hoop { basis, outside_diameter_mm, wall_mm, measured_loss_mm, .. }, Some(p)) => {
             Some(hoop_stress_mpa(basis, p, outside_diameter_mm, wall_mm - measured_loss_mm) * plan.stress_factor)
         }
         _ => None,
     };
+    let fixed = match plan.stress {
+        StressPlan::Fixed(s) if creep_assessed && !(plan.wear.is_some() && s == 0.0) => Some(s * plan.stress_factor),
+        _ => None,
+    };
+    let sigma = hoop.or(fixed);
     let t = plan.design_temperature_k;
     let mut life_min = None;
     let mut life_mean = None;
@@ -418,14 +523,36 @@ pub fn design_check(plan: &ComponentPlan) -> DesignCheck {
     DesignCheck {
         component: plan.name.clone(),
         material: plan.material.grade.clone(),
-        hoop_stress_at_design_mpa: sigma,
-        homologous_temperature: t.map(|t| homologous_temperature(t, tm)),
+        hoop_stress_at_design_mpa: hoop,
+        fixed_stress_mpa: fixed,
+        stress_factor: plan.stress_factor,
+        wear_model: plan.wear.as_ref().map(|w| w.model),
+        allowable_wear_depth_mm: plan.wear.as_ref().map(|w| w.allowable_depth_mm),
+        creep_assessed,
+        homologous_temperature: t.filter(|_| creep_assessed).map(|t| homologous_temperature(t, tm)),
         creep_threshold_c: kelvin_to_celsius(threshold),
-        in_creep_range: t.map(|t| t >= threshold),
+        in_creep_range: t.filter(|_| creep_assessed).map(|t| t >= threshold),
         rupture_life_minimum_h: life_min,
         rupture_life_mean_h: life_mean,
         hours_to_levels_at_design: hours_to,
         warnings,
         advances_with: String::new(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::engine::Conditions;
+    use crate::physics::wear::FrettingRegime;
+
+    // Ledgers store the regime snake case; one stored with the type's name
+    // (`GrossSlip`) still loads, to the same regime.
+    #[test]
+    fn stored_conditions_load_with_either_regime_spelling() {
+        let now = Conditions { fretting_regime: Some(FrettingRegime::GrossSlip), ..Conditions::default() };
+        let text = serde_json::to_string(&now).unwrap();
+        assert!(text.contains("\"fretting_regime\":\"gross_slip\""), "{text}");
+        let old = text.replace("gross_slip", "GrossSlip");
+        assert_eq!(serde_json::from_str::<Conditions>(&old).unwrap(), now);
     }
 }

@@ -22,6 +22,7 @@ use lifeledger::alarm::{AlarmEvent, AlarmIndex, AlarmState, Severity, Transition
 use lifeledger::engine::Rejection;
 use lifeledger::ingest::decode::DecodeError;
 use lifeledger::lineproto::Point;
+use lifeledger::settings::Overrides;
 use serde_json::Value;
 use std::collections::{BTreeMap, BTreeSet};
 use std::path::PathBuf;
@@ -82,6 +83,7 @@ fn schema() -> Vec<Measurement> {
                 "wear_index",
                 "remaining_life_h",
                 "unmonitored_h",
+                "exhausted",
             ]),
         },
         Measurement {
@@ -919,21 +921,15 @@ fn production_config_service_sections_are_valid_and_complete() {
     assert!(subs.iter().any(|s| s.get("payload").is_some()), "{PRODUCTION}: no [mqtt.subscription.payload]");
 
     // The environment overrides deploy/Containerfile and deploy/compose.yaml
-    // set, read from those files, reach the service sections. (No other test
-    // of this binary reads these variables in-process; subprocesses ignore
-    // them.)
+    // set, read from those files, reach the service sections. They are
+    // handed to the loader as given variables: the process environment,
+    // which parallel tests and their children share, is left alone.
     let overrides = container_overrides();
     let names: Vec<&str> = overrides.iter().map(|(k, _)| k.as_str()).collect();
     for k in ["MQTT__HOST", "MQTT__PORT", "DATABASE__URL", "HTTP__LISTEN", "STORE__PATH"] {
         assert!(names.contains(&format!("LIFELEDGER__{k}").as_str()), "no LIFELEDGER__{k} in the container files");
     }
-    for (k, v) in &overrides {
-        std::env::set_var(k, v);
-    }
-    let loaded = lifeledger::service::load_service(&path);
-    for (k, _) in &overrides {
-        std::env::remove_var(k);
-    }
+    let loaded = lifeledger::service::load_service_with(&path, &Overrides::Given(overrides.clone()));
     let (_, o) = loaded.unwrap_or_else(|e| panic!("{PRODUCTION} with the container's environment overrides: {e:#}"));
     assert_eq!(o.mqtt.host, "mosquitto");
     assert_eq!(o.mqtt.port, 8883);

@@ -59,3 +59,59 @@ fn demo_moves_ledgers_and_raises_a_warning_and_a_stale_tag_alarm() {
     assert!(text.contains("status page"), "{text}");
     assert!(text.contains("what to watch"), "{text}");
 }
+
+/// The demo runs on its own settings only: the production environment
+/// (`LIFELEDGER__STORE__PATH`, `LIFELEDGER__DATABASE__URL`, as the shipped
+/// container and compose files set them) must not send invented plant data
+/// into the production ledger or queue it for the production database.
+#[test]
+fn demo_ignores_the_production_environment() {
+    let dir = tempfile::tempdir().unwrap();
+    let production_ledger = dir.path().join("production.ledger");
+    // A "production database": a listener that records whether anyone
+    // connected while the demo ran.
+    let db = std::net::TcpListener::bind("127.0.0.1:0").unwrap();
+    db.set_nonblocking(true).unwrap();
+    let db_url = format!("http://{}", db.local_addr().unwrap());
+    let state = dir.path().join("demo-state");
+    let port = free_port();
+    let mut child = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+        .args(["demo", "--duration", "3", "--http", &format!("127.0.0.1:{port}")])
+        .arg("--state-dir")
+        .arg(&state)
+        .env("LIFELEDGER__STORE__PATH", &production_ledger)
+        .env("LIFELEDGER__DATABASE__URL", &db_url)
+        .env("LIFELEDGER__DATABASE__ORG", "plant")
+        .env("LIFELEDGER__DATABASE__BUCKET", "production")
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    // A three-second demo stops by itself; the wait is bounded by count.
+    let mut exited = false;
+    for _ in 0..common::POLL_TRIES {
+        if child.try_wait().unwrap().is_some() {
+            exited = true;
+            break;
+        }
+        std::thread::sleep(common::POLL_PAUSE);
+    }
+    if !exited {
+        let _ = child.kill();
+    }
+    let out = child.wait_with_output().unwrap();
+    assert!(exited, "the demo with --duration 3 did not stop by itself");
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "demo failed:\n{stdout}\n{stderr}");
+    assert!(!production_ledger.exists(), "the demo wrote into the production ledger:\n{stdout}");
+    assert!(db.accept().is_err(), "the demo connected to the production database");
+    // Its own ledger is where it says, with nothing queued for a database.
+    let ledger = state.join("ledger.sqlite");
+    assert!(ledger.exists(), "no demo ledger in {}:\n{stdout}", state.display());
+    let conn = rusqlite::Connection::open_with_flags(&ledger, rusqlite::OpenFlags::SQLITE_OPEN_READ_ONLY).unwrap();
+    let queued: i64 = conn.query_row("SELECT COUNT(*) FROM outbox", [], |r| r.get(0)).unwrap();
+    assert_eq!(queued, 0, "points queued for a database the demo was not given");
+    // And it says so.
+    assert!(stdout.contains("LIFELEDGER__") && stdout.contains("ignored"), "{stdout}");
+}

@@ -4,7 +4,11 @@
 //! service subscribed to them exactly as in production, with its ledger in a
 //! temporary (or named) directory and its status page on loopback.
 //!
-//! The plant, its tags and its history are invented, for the demo only.
+//! The plant, its tags and its history are invented, for the demo only. The
+//! demo runs on its own settings alone: `LIFELEDGER__…` environment
+//! overrides, which configure a production service, are ignored, so a demo
+//! started where they are set never writes into that service's ledger or
+//! database.
 
 pub mod sim;
 
@@ -111,7 +115,11 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
     );
     let config_path = dir.join("demo.toml");
     std::fs::write(&config_path, &config_text)?;
-    let (cfg, _) = crate::service::load_service(&config_path)?;
+    // The demo's own settings only: a production environment
+    // (LIFELEDGER__STORE__PATH, LIFELEDGER__DATABASE__URL, …, as the
+    // container files set them) must not send invented data to production.
+    let overrides = crate::settings::Overrides::FileOnly;
+    let (cfg, _) = crate::service::load_service_with(&config_path, &overrides)?;
     let plan = cfg.plan.clone();
 
     // The simulated clock ends near the present: it starts as far in the
@@ -130,6 +138,10 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
         "  embedded broker  mqtt://127.0.0.1:{broker_port} (tags on brackenmoor/<tag>, alarms on lifeledger/alarms/#)"
     );
     println!("  ledger           {}", dir.join("ledger.sqlite").display());
+    println!(
+        "  settings         the demo's own only: LIFELEDGER__… environment variables are ignored{}",
+        if opts.database_url.is_some() { "" } else { "; no database (--database-url to add one)" }
+    );
     println!(
         "  speed            {:.0} simulated seconds per second ({:.1} simulated days per second)",
         opts.speed,
@@ -193,7 +205,7 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
             tokio::time::sleep(Duration::from_millis(50)).await;
         }
     });
-    let result = crate::service::run_until(&config_path, stop).await;
+    let result = crate::service::run_until_with(&config_path, overrides, stop).await;
     publisher.abort();
     sim_loop.abort();
     println!("lifeledger demo stopped; the ledger is in {}", dir.display());

@@ -19,6 +19,8 @@ pub struct TagPlan {
     pub name: String,
     pub unit: Unit,
     /// Accepted range in the tag's own unit (after scale and offset).
+    /// Settings validation always sets it: the configured range, else the
+    /// physical default of the unit's quantity.
     pub valid_range: Option<[f64; 2]>,
     /// Longest trusted hold, milliseconds.
     pub max_hold_ms: i64,

@@ -6,8 +6,9 @@
 //! built from the captures by a second template (default `{tag}`).
 //! Payloads are a bare number, or JSON with configurable dotted paths for
 //! value, timestamp and quality. Timestamps are RFC 3339 strings or epoch
-//! numbers (seconds or milliseconds, by setting or by magnitude); when a
-//! payload has none, the receive time is used and the sample is flagged.
+//! numbers (seconds or milliseconds, by setting or by magnitude), quoted or
+//! not: a quoted epoch is read exactly as the same number; when a payload
+//! has none, the receive time is used and the sample is flagged.
 
 use crate::engine::Quality;
 use crate::replay::{parse_quality, parse_timestamp_ms};
@@ -173,8 +174,14 @@ pub fn decode_payload(p: &PayloadSettings, payload: &[u8], receive_ms: i64) -> R
                     (numeric_time(x, p.timestamp_unit).ok_or_else(|| DecodeError::BadTimestamp(n.to_string()))?, false)
                 }
                 Some(serde_json::Value::String(s)) => {
-                    let t = parse_timestamp_ms(s.trim()).ok_or_else(|| DecodeError::BadTimestamp(clip(s)))?;
-                    (t, false)
+                    // A quoted epoch is the same number as an unquoted one and
+                    // follows `timestamp_unit` (gateways often quote epoch
+                    // milliseconds); anything else must be RFC 3339.
+                    let t = match s.trim().parse::<f64>() {
+                        Ok(x) => numeric_time(x, p.timestamp_unit),
+                        Err(_) => parse_timestamp_ms(s.trim()),
+                    };
+                    (t.ok_or_else(|| DecodeError::BadTimestamp(clip(s)))?, false)
                 }
                 Some(other) => return Err(DecodeError::BadTimestamp(clip(&other.to_string()))),
             };
@@ -353,6 +360,53 @@ mod tests {
         assert_eq!(decode_payload(&nested, br#"{"data":{"v":3,"t":1}}"#, 0).unwrap().value, 3.0);
         let num = PayloadSettings { format: PayloadFormat::Number, ..p.clone() };
         assert_eq!(decode_payload(&num, b" 12.5 ", 99).unwrap().time_ms, 99);
+    }
+
+    // A string epoch is read exactly like the same number: 1 790 822 820 s
+    // after the epoch is 2026-10-01T02:47:00Z (checked with Python:
+    // datetime.fromtimestamp(1790822820, timezone.utc)); gateways that
+    // quote their epoch milliseconds send "1790822820000".
+    #[test]
+    fn string_epochs_are_read_like_numbers() {
+        let t = 1_790_822_820_000;
+        for unit in [TimestampUnit::Auto, TimestampUnit::Ms] {
+            let p = PayloadSettings { timestamp_unit: unit, ..PayloadSettings::default() };
+            for payload in
+                [&br#"{"value": 1, "timestamp": "1790822820000"}"#[..], br#"{"value": 1, "timestamp": 1790822820000}"#]
+            {
+                assert_eq!(
+                    decode_payload(&p, payload, 0).unwrap().time_ms,
+                    t,
+                    "{unit:?} {}",
+                    String::from_utf8_lossy(payload)
+                );
+            }
+            let p = PayloadSettings { timestamp_unit: unit, ..PayloadSettings::default() };
+            let d = decode_payload(&p, br#"{"value": 1, "timestamp": " 1790822820000.5 "}"#, 0).unwrap();
+            assert_eq!(d.time_ms, t + 1, "{unit:?}");
+        }
+        for unit in [TimestampUnit::Auto, TimestampUnit::S] {
+            let p = PayloadSettings { timestamp_unit: unit, ..PayloadSettings::default() };
+            for payload in
+                [&br#"{"value": 1, "timestamp": "1790822820"}"#[..], br#"{"value": 1, "timestamp": 1790822820}"#]
+            {
+                assert_eq!(decode_payload(&p, payload, 0).unwrap().time_ms, t, "{unit:?}");
+            }
+            let d = decode_payload(&p, br#"{"value": 1, "timestamp": "1790822820.25"}"#, 0).unwrap();
+            assert_eq!(d.time_ms, t + 250);
+        }
+        // With `s` set, a string of milliseconds is as far out of range as
+        // the number would be.
+        let s = PayloadSettings { timestamp_unit: TimestampUnit::S, ..PayloadSettings::default() };
+        assert!(matches!(
+            decode_payload(&s, br#"{"value": 1, "timestamp": "1790822820000"}"#, 0),
+            Err(DecodeError::BadTimestamp(_))
+        ));
+        assert!(decode_payload(&s, br#"{"value": 1, "timestamp": 1790822820000}"#, 0).is_err());
+        // RFC 3339 strings are unchanged, negative epochs are refused.
+        let p = PayloadSettings::default();
+        assert_eq!(decode_payload(&p, br#"{"value": 1, "timestamp": "2026-10-01T02:47:00Z"}"#, 0).unwrap().time_ms, t);
+        assert!(decode_payload(&p, br#"{"value": 1, "timestamp": "-5"}"#, 0).is_err());
     }
 
     #[test]

@@ -29,6 +29,20 @@ pub enum MinimumCurveRule {
     LogTimeOffset { offset: f64 },
 }
 
+impl std::fmt::Display for MinimumCurveRule {
+    /// The rule in words, for people (`materials show`).
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            MinimumCurveRule::StressFactor { factor } => {
+                write!(f, "{factor} × the mean rupture stress at the same time and temperature")
+            }
+            MinimumCurveRule::LogTimeOffset { offset } => {
+                write!(f, "log10 of the mean rupture life minus {offset} (log10 h) at the same stress and temperature")
+            }
+        }
+    }
+}
+
 /// Larson-Miller master curve of a grade.
 ///
 /// `P = T · (C + log10 t_r)` with T in K and t_r in hours; the master curve

@@ -40,6 +40,54 @@ impl fmt::Display for Quantity {
     }
 }
 
+/// Physical plausibility bounds `[low, high]` of each quantity, in internal
+/// units: a tag whose configuration gives no `valid_range` rejects samples
+/// outside these (as `out_of_range`, like a configured range). They are
+/// deliberately generous: they catch what cannot be a plant reading at all
+/// (a unit mix-up, a transmitter fault, 1e308), not what is merely unusual,
+/// so a tag's own `valid_range` (its calibrated span) is always better.
+/// Values are common practice and orders of magnitude, from memory.
+///
+/// Temperature, K: above absolute zero (0 K itself is rejected by the
+/// engine's screen too) and below 3000 K, well above the melting point of
+/// every steel and nickel alloy (about 1700–1800 K) and of furnace-gas
+/// thermocouple ranges.
+pub const PLAUSIBLE_TEMPERATURE_K: [f64; 2] = [0.0, 3000.0];
+/// Pressure, MPa gauge: from twice a full vacuum (−0.2 MPa, leaving room
+/// for transmitter error near −0.101 MPa) to 1000 MPa, above what any
+/// plant equipment holds (supercritical boilers about 30 MPa, hydrocrackers
+/// about 20 MPa, high-pressure polyethylene reactors about 300 MPa).
+pub const PLAUSIBLE_PRESSURE_MPA: [f64; 2] = [-0.2, 1000.0];
+/// Force, N: ±10 MN (about 1000 tonnes-force), beyond any contact load of
+/// a support, a valve stem or a bearing; negative for load cells reading
+/// tension.
+pub const PLAUSIBLE_FORCE_N: [f64; 2] = [-1.0e7, 1.0e7];
+/// Length, mm: ±1 m, beyond any slip amplitude or displacement reading.
+pub const PLAUSIBLE_LENGTH_MM: [f64; 2] = [-1000.0, 1000.0];
+/// Frequency, Hz: 0 to 100 kHz, beyond vibration, rotation (60 000 rpm is
+/// 1 kHz) and ultrasound.
+pub const PLAUSIBLE_FREQUENCY_HZ: [f64; 2] = [0.0, 1.0e5];
+/// Speed, mm/s: ±100 m/s, beyond any sliding speed of a plant wear contact.
+pub const PLAUSIBLE_SPEED_MM_S: [f64; 2] = [-1.0e5, 1.0e5];
+/// Dimensionless: ±1e6, numbers of ordinary size.
+pub const PLAUSIBLE_DIMENSIONLESS: [f64; 2] = [-1.0e6, 1.0e6];
+
+impl Quantity {
+    /// The physical plausibility bounds of this quantity, internal units
+    /// (see [`PLAUSIBLE_TEMPERATURE_K`] and its neighbours).
+    pub fn plausible_range(self) -> [f64; 2] {
+        match self {
+            Quantity::Temperature => PLAUSIBLE_TEMPERATURE_K,
+            Quantity::Pressure => PLAUSIBLE_PRESSURE_MPA,
+            Quantity::Force => PLAUSIBLE_FORCE_N,
+            Quantity::Length => PLAUSIBLE_LENGTH_MM,
+            Quantity::Frequency => PLAUSIBLE_FREQUENCY_HZ,
+            Quantity::Speed => PLAUSIBLE_SPEED_MM_S,
+            Quantity::Dimensionless => PLAUSIBLE_DIMENSIONLESS,
+        }
+    }
+}
+
 /// Standard atmosphere in MPa (exact by definition).
 pub const STANDARD_ATMOSPHERE_MPA: f64 = 0.101_325;
 /// NIST SP 811 B.8: 1 psi = 6.894 757 E+03 Pa.
@@ -171,6 +219,13 @@ impl Unit {
     pub fn from_internal(&self, internal: f64) -> f64 {
         (internal - self.offset) / self.scale
     }
+
+    /// The plausibility bounds of this unit's quantity, expressed in this
+    /// unit (low below high: every scale is positive).
+    pub fn plausible_range(&self) -> [f64; 2] {
+        let [lo, hi] = self.quantity.plausible_range();
+        [self.from_internal(lo), self.from_internal(hi)]
+    }
 }
 
 /// °C to K.
@@ -230,6 +285,25 @@ mod tests {
             let u = Unit::parse(name).unwrap();
             let x = 123.456;
             assert!(close(u.from_internal(u.to_internal(x)), x, 1e-12), "{name}");
+        }
+    }
+
+    // Absolute zero in the units people use: −273.15 °C and −459.67 °F
+    // (NIST SP 811 B.9); a full vacuum is −1.01325 bar gauge and 0 bar
+    // absolute (standard atmosphere, exact), inside the pressure bounds.
+    #[test]
+    fn plausible_ranges_in_each_unit() {
+        let lo = |u: &str| Unit::parse(u).unwrap().plausible_range()[0];
+        assert!((lo("degC") + 273.15).abs() < 1e-9);
+        assert!((lo("degF") + 459.67).abs() < 1e-9);
+        assert_eq!(lo("K"), 0.0);
+        assert!(lo("bar") < -1.01325 && lo("bara") < 0.0);
+        for name in Unit::spellings(None) {
+            let u = Unit::parse(name).unwrap();
+            let [lo, hi] = u.plausible_range();
+            assert!(lo < hi && lo.is_finite() && hi.is_finite(), "{name}");
+            let [ilo, ihi] = u.quantity.plausible_range();
+            assert!(close(u.to_internal(hi), ihi, 1e-12) && (u.to_internal(lo) - ilo).abs() <= 1e-9 * ihi, "{name}");
         }
     }
 

@@ -36,14 +36,32 @@ pub fn work_rate_mw(load_n: f64, speed_mm_s: f64) -> f64 {
     load_n.max(0.0) * speed_mm_s.max(0.0)
 }
 
-/// Fretting regime by slip amplitude.
+/// Fretting regime by slip amplitude. Written in snake case, as the
+/// configuration spells the regime bounds (`gross_slip`); the type names
+/// (`GrossSlip`) are read too, so ledgers written with either load.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum FrettingRegime {
+    #[serde(alias = "Stick")]
     Stick,
+    #[serde(alias = "PartialSlip")]
     PartialSlip,
+    #[serde(alias = "GrossSlip")]
     GrossSlip,
+    #[serde(alias = "ReciprocatingSliding")]
     ReciprocatingSliding,
+}
+
+impl FrettingRegime {
+    /// The regime in plain words, for people ("gross slip").
+    pub fn words(self) -> &'static str {
+        match self {
+            FrettingRegime::Stick => "stick",
+            FrettingRegime::PartialSlip => "partial slip",
+            FrettingRegime::GrossSlip => "gross slip",
+            FrettingRegime::ReciprocatingSliding => "reciprocating sliding",
+        }
+    }
 }
 
 /// Slip-amplitude boundaries between regimes, mm.
@@ -118,6 +136,23 @@ mod tests {
     #[test]
     fn sliding_speed() {
         assert!((fretting_sliding_speed_mm_s(0.05, 30.0) - 6.0).abs() < 1e-12);
+    }
+
+    // Written as the configuration and README spell it; both spellings read.
+    #[test]
+    fn regime_names() {
+        let all = [
+            (FrettingRegime::Stick, "stick", "Stick"),
+            (FrettingRegime::PartialSlip, "partial_slip", "PartialSlip"),
+            (FrettingRegime::GrossSlip, "gross_slip", "GrossSlip"),
+            (FrettingRegime::ReciprocatingSliding, "reciprocating_sliding", "ReciprocatingSliding"),
+        ];
+        for (r, snake, type_name) in all {
+            assert_eq!(serde_json::to_string(&r).unwrap(), format!("\"{snake}\""));
+            assert_eq!(serde_json::from_str::<FrettingRegime>(&format!("\"{snake}\"")).unwrap(), r);
+            assert_eq!(serde_json::from_str::<FrettingRegime>(&format!("\"{type_name}\"")).unwrap(), r);
+            assert_eq!(r.words(), snake.replace('_', " "));
+        }
     }
 
     #[test]

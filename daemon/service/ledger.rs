@@ -26,7 +26,9 @@ use crate::engine::{ComponentState, Engine, EngineState, Rejection, Sample, TagS
 use crate::ingest::decode::{decode_payload, PayloadSettings, TopicTemplate};
 use crate::ingest::{now_ms, Inbound};
 use crate::replay::{tag_index, TagIndex};
-use crate::report::{component_point, rfc3339_ms, threshold_points, ComponentReport};
+use crate::report::{
+    capped, component_point, rfc3339_ms, threshold_points, ComponentReport, CREEP_STRAIN_CEILING, DISPLAY_CEILING,
+};
 use crate::settings::LoadedConfig;
 use crate::store::{Commit, JournalEntry, Store, TrendPoint};
 use rumqttc::{AsyncClient, Publish, QoS};
@@ -663,8 +665,9 @@ impl Ledger {
             let plan = &self.engine.plan().components[ci];
             let st = &self.engine.components()[ci];
             let Some(t) = st.integrated_to_ms else { continue };
-            // Nothing integrated yet (only the first sample seen): no point.
-            if t < self.next_series_ms[ci] || st.integrated_h <= 0.0 {
+            // No point before the conditions are known (only the first
+            // sample seen): the rule replay keeps too.
+            if t < self.next_series_ms[ci] || !crate::report::conditions_known(plan, st) {
                 continue;
             }
             if let Some(l) = component_point(plant, plan, st, t).to_line() {
@@ -678,9 +681,10 @@ impl Ledger {
                     metal_temperature_c: crate::physics::units::kelvin_to_celsius(st.now.metal_temperature_k),
                     pressure_mpa: st.now.pressure_mpa,
                     hoop_stress_mpa: st.now.hoop_stress_mpa,
-                    creep_life_fraction: st.life_fraction,
-                    creep_strain: st.creep_strain,
-                    wear_index: st.wear_index(plan),
+                    // As reports show them: capped past exhaustion.
+                    creep_life_fraction: capped(st.life_fraction, DISPLAY_CEILING),
+                    creep_strain: capped(st.creep_strain, CREEP_STRAIN_CEILING),
+                    wear_index: capped(st.wear_index(plan), DISPLAY_CEILING),
                 },
             ));
             // Threshold lines beside the series at most once an hour of

@@ -24,7 +24,7 @@ pub mod settings;
 pub mod snapshot;
 
 use crate::ingest::{offline_payload, run_event_loop, Inbound};
-use crate::settings::load_plan;
+use crate::settings::{load_plan_with, Overrides};
 use anyhow::Context;
 use ledger::{Control, Ledger};
 pub use settings::ServiceSettings;
@@ -33,9 +33,18 @@ use std::sync::Arc;
 use std::time::Duration;
 use tokio::sync::{broadcast, mpsc, watch};
 
-/// Load and type a configuration for the service.
+/// Load and type a configuration for the service (with `LIFELEDGER__…`
+/// environment overrides).
 pub fn load_service(path: &Path) -> anyhow::Result<(crate::settings::LoadedConfig, ServiceSettings)> {
-    let cfg = load_plan(path).map_err(|e| anyhow::anyhow!("{e}"))?;
+    load_service_with(path, &Overrides::Environment)
+}
+
+/// Load and type a configuration for the service with overrides from `overrides`.
+pub fn load_service_with(
+    path: &Path,
+    overrides: &Overrides,
+) -> anyhow::Result<(crate::settings::LoadedConfig, ServiceSettings)> {
+    let cfg = load_plan_with(path, overrides).map_err(|e| anyhow::anyhow!("{e}"))?;
     let svc = ServiceSettings::from_settings(&cfg.settings)
         .map_err(|errs| anyhow::anyhow!("configuration {}:\n  - {}", path.display(), errs.join("\n  - ")))?;
     Ok((cfg, svc))
@@ -48,7 +57,17 @@ pub async fn run(config_path: &Path) -> anyhow::Result<()> {
 
 /// Run the service until SIGTERM, SIGINT or `stop` completes.
 pub async fn run_until(config_path: &Path, stop: impl std::future::Future<Output = ()>) -> anyhow::Result<()> {
-    let (cfg, svc) = load_service(config_path)?;
+    run_until_with(config_path, Overrides::Environment, stop).await
+}
+
+/// [`run_until`] with the configuration's overrides from `overrides`, at
+/// start and at every SIGHUP reload.
+pub async fn run_until_with(
+    config_path: &Path,
+    overrides: Overrides,
+    stop: impl std::future::Future<Output = ()>,
+) -> anyhow::Result<()> {
+    let (cfg, svc) = load_service_with(config_path, &overrides)?;
     for w in &cfg.warnings {
         tracing::warn!("{w}");
     }
@@ -127,7 +146,7 @@ pub async fn run_until(config_path: &Path, stop: impl std::future::Future<Output
                 _ = term.recv() => { tracing::info!("SIGTERM: stopping"); break; }
                 _ = int.recv() => { tracing::info!("SIGINT: stopping"); break; }
                 _ = hup.recv() => {
-                    match load_service(config_path) {
+                    match load_service_with(config_path, &overrides) {
                         Ok((c, s)) => { let _ = ctl_tx.send(Control::Reload(Box::new(c), Box::new(s))); }
                         Err(e) => tracing::error!("SIGHUP: configuration not reloaded, the running one stays: {e:#}"),
                     }

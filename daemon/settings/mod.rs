@@ -14,4 +14,4 @@ pub mod schema;
 pub mod validate;
 
 pub use schema::Settings;
-pub use validate::{load_plan, ConfigError, ConfigProblem, LoadedConfig};
+pub use validate::{load_plan, load_plan_with, plan_settings, ConfigError, ConfigProblem, LoadedConfig, Overrides};

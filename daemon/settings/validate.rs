@@ -65,8 +65,29 @@ pub struct LoadedConfig {
     pub warnings: Vec<ConfigProblem>,
 }
 
+/// Where the `LIFELEDGER__SECTION__KEY` overrides of a configuration file
+/// come from.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub enum Overrides {
+    /// The process environment: what `run`, `replay`, `check-config` and
+    /// `ledger` read (containers configure the service this way).
+    #[default]
+    Environment,
+    /// None: the file alone. The demo runs on its own settings and must not
+    /// follow a production environment into a production ledger or database.
+    FileOnly,
+    /// These variables (name, value) instead of the process environment, so
+    /// tests never change the environment other tests and children inherit.
+    Given(Vec<(String, String)>),
+}
+
 /// Read a configuration file with `LIFELEDGER__…` environment overrides.
 pub fn read_settings(path: &Path) -> Result<Settings, ConfigError> {
+    read_settings_with(path, &Overrides::Environment)
+}
+
+/// Read a configuration file with overrides from `overrides`.
+pub fn read_settings_with(path: &Path, overrides: &Overrides) -> Result<Settings, ConfigError> {
     let file = path.display().to_string();
     let fail = |problem: String, fix: &str| ConfigError {
         file: file.clone(),
@@ -80,20 +101,28 @@ pub fn read_settings(path: &Path) -> Result<Settings, ConfigError> {
     if let Err(e) = toml::from_str::<Settings>(&text) {
         return Err(fail(e.to_string().replace('\n', " "), "correct the TOML at the line shown"));
     }
-    let cfg = config::Config::builder()
-        .add_source(config::File::from(PathBuf::from(path)).format(config::FileFormat::Toml))
-        .add_source(
-            config::Environment::with_prefix("LIFELEDGER").prefix_separator("__").separator("__").try_parsing(true),
-        )
-        .build()
-        .map_err(|e| fail(e.to_string(), "correct the TOML"))?;
+    let env =
+        || config::Environment::with_prefix("LIFELEDGER").prefix_separator("__").separator("__").try_parsing(true);
+    let builder =
+        config::Config::builder().add_source(config::File::from(PathBuf::from(path)).format(config::FileFormat::Toml));
+    let builder = match overrides {
+        Overrides::Environment => builder.add_source(env()),
+        Overrides::FileOnly => builder,
+        Overrides::Given(vars) => builder.add_source(env().source(Some(vars.iter().cloned().collect()))),
+    };
+    let cfg = builder.build().map_err(|e| fail(e.to_string(), "correct the TOML"))?;
     cfg.try_deserialize::<Settings>()
         .map_err(|e| fail(format!("after environment overrides: {e}"), "check LIFELEDGER__… variables"))
 }
 
-/// Read, validate and plan a configuration file.
+/// Read, validate and plan a configuration file (with environment overrides).
 pub fn load_plan(path: &Path) -> Result<LoadedConfig, ConfigError> {
-    let settings = read_settings(path)?;
+    load_plan_with(path, &Overrides::Environment)
+}
+
+/// Read, validate and plan a configuration file with overrides from `overrides`.
+pub fn load_plan_with(path: &Path, overrides: &Overrides) -> Result<LoadedConfig, ConfigError> {
+    let settings = read_settings_with(path, overrides)?;
     plan_settings(&path.display().to_string(), settings)
 }
 
@@ -154,6 +183,18 @@ pub fn name_problem(name: &str) -> Option<String> {
         return Some("name has leading or trailing spaces".into());
     }
     None
+}
+
+/// A number for a message: at most six decimals, trailing zeros dropped
+/// (−273.15, 10000, 1000000).
+fn tidy(x: f64) -> String {
+    let s = format!("{x:.6}");
+    let s = s.trim_end_matches('0').trim_end_matches('.');
+    if s == "-0" {
+        "0".into()
+    } else {
+        s.into()
+    }
 }
 
 /// Parse an RFC 3339 date-time or a plain date (midnight UTC) to ms.
@@ -293,11 +334,34 @@ impl Validator {
                     Unit::parse("1").unwrap()
                 }
             };
-            if let Some([lo, hi]) = t.valid_range {
-                if !(lo < hi) {
-                    self.err(&place, "valid_range", "low must be below high", "give [low, high] in the tag's unit");
+            // Every tag has a plausibility range: its own, or else the
+            // physical default of its quantity, in the tag's unit (the unit
+            // of the value after scale and offset, which the engine's screen
+            // compares with the range).
+            let valid_range = match t.valid_range {
+                Some([lo, hi]) => {
+                    if !(lo < hi) {
+                        self.err(&place, "valid_range", "low must be below high", "give [low, high] in the tag's unit");
+                    }
+                    [lo, hi]
                 }
-            }
+                None => {
+                    let [lo, hi] = unit.plausible_range();
+                    self.warn(
+                        &place,
+                        "valid_range",
+                        format!(
+                            "not set: the physical default for {} applies, {} to {} {}",
+                            unit.quantity,
+                            tidy(lo),
+                            tidy(hi),
+                            unit.name
+                        ),
+                        "set valid_range = [low, high] to the transmitter's calibrated span",
+                    );
+                    [lo, hi]
+                }
+            };
             let hold = t.max_hold_s.unwrap_or(s.engine.max_hold_s);
             if !(hold > 0.0 && hold.is_finite()) {
                 self.err(&place, "max_hold_s", "must be a positive number of seconds", "for example 900");
@@ -313,7 +377,7 @@ impl Validator {
             out.push(TagPlan {
                 name: t.name.clone(),
                 unit,
-                valid_range: t.valid_range,
+                valid_range: Some(valid_range),
                 max_hold_ms: (hold * 1000.0).round() as i64,
                 interpolation: t.interpolation,
                 scale: t.scale,
@@ -349,7 +413,27 @@ impl Validator {
         index: &HashMap<&str, usize>,
     ) -> Option<Input> {
         match i {
-            InputSetting::Constant(q) => self.quantity(place, key, q, quantity).map(Input::Constant),
+            InputSetting::Constant(q) => {
+                let v = self.quantity(place, key, q, quantity)?;
+                let [lo, hi] = quantity.plausible_range();
+                if !(lo..=hi).contains(&v) || (quantity == Quantity::Temperature && v <= 0.0) {
+                    let u = Unit::parse(&q.unit).unwrap_or_else(|_| Unit::parse("1").unwrap());
+                    self.err(
+                        place,
+                        key,
+                        format!(
+                            "{} {} is outside the physical range of {quantity} ({} to {} {})",
+                            q.value,
+                            q.unit,
+                            tidy(u.from_internal(lo)),
+                            tidy(u.from_internal(hi)),
+                            u.name
+                        ),
+                        "check the value and its unit",
+                    );
+                }
+                Some(Input::Constant(v))
+            }
             InputSetting::Tag(name) => match index.get(name.as_str()) {
                 Some(&ti) => {
                     if tags[ti].unit.quantity != quantity {

@@ -122,15 +122,20 @@ impl DatabaseSettings {
     /// The API token: from `token_env`, from `token_file`, or empty (no
     /// `Authorization` header) when neither is set. Never log the result.
     pub fn token(&self) -> Result<String, SinkError> {
+        self.token_with(|var| std::env::var(var).ok())
+    }
+
+    /// [`Self::token`] with environment variables read through `env`.
+    pub fn token_with(&self, env: impl Fn(&str) -> Option<String>) -> Result<String, SinkError> {
         match (&self.token_env, &self.token_file) {
             (Some(_), Some(_)) => {
                 Err(SinkError::Config("database.token_env and database.token_file are both set; keep one".into()))
             }
             (None, None) => Ok(String::new()),
-            (Some(var), None) => match std::env::var(var) {
-                Ok(t) if !t.trim().is_empty() => Ok(t.trim().to_string()),
-                Ok(_) => Err(SinkError::Config(format!("database.token_env: environment variable {var} is empty"))),
-                Err(_) => Err(SinkError::Config(format!(
+            (Some(var), None) => match env(var) {
+                Some(t) if !t.trim().is_empty() => Ok(t.trim().to_string()),
+                Some(_) => Err(SinkError::Config(format!("database.token_env: environment variable {var} is empty"))),
+                None => Err(SinkError::Config(format!(
                     "database.token_env: environment variable {var} is not set \
                      (or not valid UTF-8); export it before starting"
                 ))),
@@ -276,11 +281,15 @@ mod tests {
     fn token_from_env_file_or_none() {
         assert_eq!(settings().token().unwrap(), "");
 
+        // The environment is given to the reader, never set process-wide.
+        let env = |var: &str| (var == "LIFELEDGER_SINK_TEST_TOKEN_ENV").then(|| " env-token\n".to_string());
         let mut s = settings();
+        s.token_env = Some("LIFELEDGER_SINK_TEST_TOKEN_ENV_UNSET".into());
+        assert!(s.token_with(env).is_err(), "unset variable must be an error");
         s.token_env = Some("LIFELEDGER_SINK_TEST_TOKEN_ENV".into());
-        assert!(s.token().is_err(), "unset variable must be an error");
-        std::env::set_var("LIFELEDGER_SINK_TEST_TOKEN_ENV", " env-token\n");
-        assert_eq!(s.token().unwrap(), "env-token");
+        assert_eq!(s.token_with(env).unwrap(), "env-token");
+        let blank = |_: &str| Some("  ".to_string());
+        assert!(s.token_with(blank).unwrap_err().to_string().contains("empty"));
 
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("token");

@@ -33,6 +33,8 @@ const LL = (() => {
     unmonitored_hours: 'unmonitored hours',
     over_design_temperature: 'over design temperature',
     wall_exhausted: 'wall exhausted',
+    life_exhausted: 'life exhausted',
+    wear_allowance_exhausted: 'wear allowance exhausted',
   };
   const STATE_LABEL = {
     normal: 'normal',
@@ -58,6 +60,13 @@ const LL = (() => {
     if (v === null) return '—';
     if (v === 0) return '0';
     return Math.abs(v) >= 0.01 ? v.toFixed(3) : v.toExponential(2);
+  }
+  // A life fraction or wear index as reports cap it: at the ceiling it is
+  // "≥ ceiling" (the ledger's sum is beyond it; the part is exhausted).
+  function capped(v, ceiling) {
+    v = num(v);
+    if (v === null) return '—';
+    return num(ceiling) !== null && v >= ceiling ? '≥ ' + ceiling : frac(v);
   }
   // A general number with about `sig` significant digits.
   function sig(v, sigd) {
@@ -114,8 +123,7 @@ const LL = (() => {
     const d = new Date(ms);
     return pad2(d.getUTCMonth() + 1) + '-' + pad2(d.getUTCDate()) + ' ' + timeUtc(ms, false);
   }
-  const KIND_LABEL = { wearcontact: 'wear contact', furnacetube: 'furnace tube' };
-  function kindLabel(k) { return KIND_LABEL[k] || String(k || '').replace(/_/g, ' '); }
+  function kindLabel(k) { return String(k || '').replace(/_/g, ' '); }
   function sevRank(s) { return SEV_RANK[s] || 0; }
   function sevBadge(sev, extra) {
     if (!sev) return '<span class="badge ok">normal</span>';
@@ -554,7 +562,7 @@ const LL = (() => {
   document.addEventListener('DOMContentLoaded', () => { renderOperator(); probeCommands(); });
 
   return {
-    POLL_MS, DEFAULT_LEVELS, esc, $, num, frac, sig, fixed, group, hours, years, timeUtc, shortUtc, isoUtc, kindLabel,
+    POLL_MS, DEFAULT_LEVELS, esc, $, num, frac, capped, sig, fixed, group, hours, years, timeUtc, shortUtc, isoUtc, kindLabel,
     sevRank, sevBadge, flagChips, indexLabel, indexValue, api, poll, renderHeader, updated,
     token, canCommand, command, notice, set onOperatorChange(f) { onOperatorChange = f; },
     lineChart, attachHover, histogram, eventItem, STATE_LABEL, CONDITION_INDEX,

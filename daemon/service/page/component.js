@@ -70,12 +70,14 @@
     const lr = c.levels_reached || {};
     let t = '';
     if (creep) {
-      t += tile('Life fraction', LL.frac(c.creep_life_fraction), '', nextLevel(c, 'life_fraction'), lr.life_fraction || '');
-      t += tile('Creep strain', LL.frac(c.creep_strain * 100), ' %', has(c, 'creep_strain') ? nextLevel(c, 'creep_strain') : 'no Norton law for this grade', lr.creep_strain || '');
+      const gone = (c.flags || []).includes('life_exhausted') || (c.flags || []).includes('wall_exhausted');
+      t += tile('Life fraction', LL.capped(c.creep_life_fraction, c.display_ceiling), '', (gone ? 'EXHAUSTED · ' : '') + nextLevel(c, 'life_fraction'), gone ? 'critical' : (lr.life_fraction || ''));
+      t += tile('Creep strain', LL.capped(c.creep_strain * 100, 100), ' %', has(c, 'creep_strain') ? nextLevel(c, 'creep_strain') : 'no Norton law for this grade', lr.creep_strain || '');
     }
     if (wear) {
-      t += tile('Wear index', LL.frac(c.wear_index), '', nextLevel(c, 'wear_index'), lr.wear_index || '');
-      t += tile('Wear depth', LL.sig(c.wear_depth_mm, 3), ' mm', c.fretting_regime ? 'regime: ' + c.fretting_regime.replace(/([a-z])([A-Z])/g, '$1 $2').toLowerCase() : '');
+      const worn = (c.flags || []).includes('wear_allowance_exhausted');
+      t += tile('Wear index', LL.capped(c.wear_index, c.display_ceiling), '', (worn ? 'EXHAUSTED · ' : '') + nextLevel(c, 'wear_index'), worn ? 'critical' : (lr.wear_index || ''));
+      t += tile('Wear depth', LL.sig(c.wear_depth_mm, 3), ' mm', c.fretting_regime ? 'regime: ' + String(c.fretting_regime).replace(/_/g, ' ') : '');
     }
     const rem = c.remaining_life_h;
     t += tile('Remaining life', LL.num(rem) === null ? 'not moving' : LL.hours(rem), LL.num(rem) === null ? '' : ' h',

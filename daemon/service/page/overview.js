@@ -97,11 +97,11 @@
         return '<tr class="row sev-' + esc(sev || 'none') + '" data-component="' + esc(c.component) + '">' +
           '<td class="alarm">' + alarmCell + '</td>' +
           '<td class="name"><a href="' + href + '">' + esc(c.component) + '</a><span class="sub">' + esc(c.unit) + ' · ' + esc(LL.kindLabel(c.kind)) + ' · ' + esc(c.material) + '</span></td>' +
-          '<td class="num lf' + (creep ? '' : ' na') + '" data-value="' + esc(c.creep_life_fraction) + '"><span class="big">' + (creep ? LL.frac(c.creep_life_fraction) : '—') + '</span>' +
+          '<td class="num lf' + (creep ? '' : ' na') + '" data-value="' + esc(c.creep_life_fraction) + '"><span class="big">' + (creep ? LL.capped(c.creep_life_fraction, c.display_ceiling) : '—') + '</span>' + (c.exhausted ? '<span class="sub exhausted">exhausted</span>' : '') +
             (creep ? meter(c.creep_life_fraction, levelsOf(c, 'life_fraction'), lr.life_fraction) : '') + '</td>' +
-          '<td class="num' + (strain || creep ? '' : ' na') + '" data-value="' + esc(c.creep_strain) + '"><span class="big">' + (strain || creep ? LL.frac(c.creep_strain * 100) : '—') + '</span>' + (strain || creep ? '<span class="sub">%</span>' : '') +
+          '<td class="num' + (strain || creep ? '' : ' na') + '" data-value="' + esc(c.creep_strain) + '"><span class="big">' + (strain || creep ? LL.capped(c.creep_strain * 100, 100) : '—') + '</span>' + (strain || creep ? '<span class="sub">%</span>' : '') +
             (creep && c.creep_strain_note ? '<span class="sub warnnote" title="' + esc(c.creep_strain_note) + '">†</span>' : '') + '</td>' +
-          '<td class="num wi' + (wear ? '' : ' na') + '" data-value="' + esc(c.wear_index) + '"><span class="big">' + (wear ? LL.frac(c.wear_index) : '—') + '</span>' +
+          '<td class="num wi' + (wear ? '' : ' na') + '" data-value="' + esc(c.wear_index) + '"><span class="big">' + (wear ? LL.capped(c.wear_index, c.display_ceiling) : '—') + '</span>' +
             (wear ? meter(c.wear_index, levelsOf(c, 'wear_index'), lr.wear_index) : '') + '</td>' +
           '<td class="num rem">' + (LL.num(rem) === null ? '<span class="muted">not moving</span>' :
             '<span class="big">' + LL.hours(rem) + ' h</span><span class="sub">' + LL.years(rem) + ' years</span>') + '</td>' +
