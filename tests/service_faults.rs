@@ -1,0 +1,101 @@
+//! The live service under what operators and the outside world do to it,
+//! against real servers (mosquitto, VictoriaMetrics, the stock `sqlite3`
+//! tool):
+//! * the documented online backup (`sqlite3 LEDGER ".backup 'B'"`, see
+//!   deploy/README.md) taken while the service runs, followed by `kill -9`,
+//!   loses nothing acknowledged;
+//! * one message larger than the client would take does not stop intake:
+//!   it is counted as rejected and the samples behind it are processed;
+//! * commits that keep failing are counted, make `/readyz` answer not
+//!   ready, and end the process with a clear error after the configured
+//!   time, having acknowledged nothing they did not write.
+
+mod common;
+
+use common::service::{publish_all, publish_messages, samples, Service, ServiceConfig};
+use common::{free_port, http, poll_until, Mosquitto, VictoriaMetrics};
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+/// The shared test plant with `tail` after its `[http]` section.
+fn config(dir: &Path, mqtt_port: u16, http_port: u16, tail: &str) -> PathBuf {
+    ServiceConfig { plant: "Test Station", client_id: "lifeledger-faults", tail, ..ServiceConfig::default() }
+        .write(dir, mqtt_port, http_port)
+}
+
+/// A `[database]` section for VictoriaMetrics at `url`, short backoff.
+fn database(url: &str) -> String {
+    format!(
+        "[database]\nurl = \"{url}\"\norg = \"test\"\nbucket = \"test\"\nbackoff_initial_s = 0.1\nbackoff_max_s = 0.5\n"
+    )
+}
+
+/// Runs the stock `sqlite3` tool on `db` with `args`; panics with its
+/// output unless it succeeds. Returns its standard output.
+fn sqlite3(db: &Path, args: &[&str]) -> String {
+    let o = Command::new("sqlite3")
+        .arg(db)
+        .args(args)
+        .output()
+        .unwrap_or_else(|e| panic!("cannot run sqlite3 (is it installed? see tests/run): {e}"));
+    assert!(
+        o.status.success(),
+        "sqlite3 {} {args:?} failed: {}{}",
+        db.display(),
+        String::from_utf8_lossy(&o.stdout),
+        String::from_utf8_lossy(&o.stderr)
+    );
+    String::from_utf8_lossy(&o.stdout).into_owned()
+}
+
+/// The number of messages the service has acknowledged, from its snapshot.
+fn acked(svc: &Service) -> Option<u64> {
+    svc.snapshot().and_then(|v| v["service"]["acked"].as_u64())
+}
+
+/// deploy/README.md's online backup, taken while the service runs with a
+/// database configured (so the outbox sender holds a second connection to
+/// the ledger), must not cost durability: every sample acknowledged after
+/// the backup is still in the ledger after a `kill -9`. The broker does not
+/// redeliver what was acknowledged, so a lost commit would show as missing
+/// samples.
+#[test]
+fn an_online_backup_then_kill_9_loses_nothing_acknowledged() {
+    let broker = Mosquitto::start();
+    let vm = VictoriaMetrics::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, &database(&vm.url()));
+    let ledger = dir.path().join("ledger.sqlite");
+    let backup = dir.path().join("backup.ledger");
+    let s = samples(300);
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+
+    publish_all(broker.port, &s[..400], "publisher-backup-1");
+    svc.wait_until_integrated(s[399].1);
+    // The backup step exactly as deploy/README.md gives it.
+    sqlite3(&ledger, &[&format!(".backup '{}'", backup.display())]);
+    assert_eq!(sqlite3(&backup, &["PRAGMA integrity_check"]).trim(), "ok", "the backup is a sound SQLite file");
+
+    publish_all(broker.port, &s[400..], "publisher-backup-2");
+    svc.wait_until_integrated(s.last().unwrap().1);
+    poll_until("every message acknowledged", || acked(&svc).filter(|&a| a >= s.len() as u64));
+    // What the service acknowledged is in the file for other readers too.
+    let n: u64 =
+        sqlite3(&ledger, &["SELECT json_extract(value, '$.accepted') FROM meta WHERE key = 'engine_counters'"])
+            .trim()
+            .parse()
+            .unwrap();
+    assert_eq!(n, s.len() as u64, "the ledger file holds every acknowledged sample while the service runs");
+
+    svc.kill9();
+    let svc = Service::start(&cfg, http_port);
+    let snap = poll_until("the snapshot after the restart", || svc.snapshot());
+    assert_eq!(
+        snap["engine"]["accepted"].as_u64(),
+        Some(s.len() as u64),
+        "every sample acknowledged before the kill is in the ledger after it"
+    );
+    assert!(svc.sigterm().success());
+}
