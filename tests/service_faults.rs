@@ -99,3 +99,32 @@ fn an_online_backup_then_kill_9_loses_nothing_acknowledged() {
     );
     assert!(svc.sigterm().success());
 }
+
+/// One message far larger than any tag sample (2 MiB) must not stop
+/// intake: the service takes it, rejects it as `oversized`, acknowledges
+/// it once the rejection is committed, and goes on with the samples behind
+/// it. Before, the client refused the packet and dropped the connection,
+/// and the broker redelivered it on every reconnect.
+#[test]
+fn an_oversized_message_is_counted_and_intake_goes_on() {
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, "");
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+
+    let s = samples(60);
+    let pad = "x".repeat(2 << 20);
+    let big = format!("{{\"value\": 500.0, \"timestamp\": {}, \"pad\": \"{pad}\"}}", s[0].1).into_bytes();
+    publish_messages(broker.port, vec![("plant/TE-1", big)], "publisher-oversized-1");
+    publish_all(broker.port, &s, "publisher-oversized-2");
+    let snap = svc.wait_until_integrated(s.last().unwrap().1);
+    assert_eq!(snap["engine"]["accepted"].as_u64(), Some(s.len() as u64), "every normal sample integrated");
+    let all = s.len() as u64 + 1;
+    poll_until("every message acknowledged, the oversized one too", || acked(&svc).filter(|&a| a >= all));
+    let m = http::get(http_port, "/metrics").unwrap().text();
+    assert!(m.contains("lifeledger_samples_rejected_total{reason=\"oversized\"} 1"), "{m}");
+    assert_eq!(http::get(http_port, "/readyz").unwrap().status, 200);
+    assert!(svc.sigterm().success());
+}
