@@ -128,3 +128,69 @@ fn an_oversized_message_is_counted_and_intake_goes_on() {
     assert_eq!(http::get(http_port, "/readyz").unwrap().status, 200);
     assert!(svc.sigterm().success());
 }
+
+/// Triggers that make every write of the service's counters fail, as a
+/// full disk or a ledger file the service may not write would: every
+/// commit writes the counters. They work whoever runs the test, root
+/// included (file permissions do not stop root), and come off again with
+/// [`ALLOW_WRITES`].
+const REFUSE_WRITES: &str = "CREATE TRIGGER test_refuse_insert BEFORE INSERT ON meta \
+     BEGIN SELECT RAISE(ABORT, 'writes refused by the test'); END; \
+     CREATE TRIGGER test_refuse_update BEFORE UPDATE ON meta \
+     BEGIN SELECT RAISE(ABORT, 'writes refused by the test'); END;";
+const ALLOW_WRITES: &str = "DROP TRIGGER test_refuse_insert; DROP TRIGGER test_refuse_update;";
+
+/// The value of an unlabelled metric in `/metrics` text.
+fn metric(text: &str, name: &str) -> Option<f64> {
+    text.lines().find_map(|l| l.strip_prefix(name)?.strip_prefix(' ')?.trim().parse().ok())
+}
+
+/// While every commit fails the service must say so and not spin: failures
+/// are counted in `/metrics`, `/readyz` answers 503 naming the cause, the
+/// error is logged a few times rather than thousands, and after
+/// `commit_failure_limit_s` the process ends with a clear error and a
+/// non-zero status (so systemd restarts it). Nothing it could not write was
+/// acknowledged: once writes work again, a restart takes the redelivered
+/// messages and the ledger holds every sample exactly once.
+#[test]
+fn failing_commits_are_reported_and_end_the_process_after_the_limit() {
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, "");
+    let text = std::fs::read_to_string(&cfg).unwrap();
+    let limit = "health_interval_s = 1\ncommit_failure_limit_s = 15\n";
+    std::fs::write(&cfg, text.replace("health_interval_s = 1\n", limit)).unwrap();
+    let ledger = dir.path().join("ledger.sqlite");
+    let s = samples(200);
+    let mut svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    publish_all(broker.port, &s[..400], "publisher-failing-1");
+    svc.wait_until_integrated(s[399].1);
+    assert_eq!(http::get(http_port, "/readyz").unwrap().status, 200);
+
+    sqlite3(&ledger, &[REFUSE_WRITES]);
+    publish_all(broker.port, &s[400..], "publisher-failing-2");
+    let why = poll_until("/readyz to answer not ready while commits fail", || {
+        http::get(http_port, "/readyz").ok().filter(|r| r.status == 503).map(|r| r.text())
+    });
+    assert!(why.contains("commit"), "readiness names the failing commits: {why}");
+    let failures = poll_until("lifeledger_commit_failures_total above 0", || {
+        let m = http::get(http_port, "/metrics").ok()?.text();
+        metric(&m, "lifeledger_commit_failures_total").filter(|&n| n > 0.0)
+    });
+    assert!(failures >= 1.0);
+
+    let (status, log) = svc.wait_exit("the service to stop after commits failed for commit_failure_limit_s");
+    assert!(!status.success(), "a service that cannot write its ledger exits with an error: {status}");
+    assert!(log.contains("commits have failed for"), "a clear last word in the log:\n{log}");
+    let logged = log.lines().filter(|l| l.contains("ledger commit failed")).count();
+    assert!((1..=20).contains(&logged), "commit errors are rate-limited, {logged} lines:\n{log}");
+    drop(svc);
+
+    sqlite3(&ledger, &[ALLOW_WRITES]);
+    let svc = Service::start(&cfg, http_port);
+    let live = svc.wait_until_integrated(s.last().unwrap().1);
+    assert_eq!(live["engine"]["accepted"].as_u64(), Some(s.len() as u64), "every sample exactly once");
+    assert!(svc.sigterm().success());
+}

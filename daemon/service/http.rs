@@ -56,12 +56,16 @@ async fn healthz() -> &'static str {
 
 async fn readyz(State(s): State<HttpState>) -> Response {
     let snap = s.snapshot.borrow().clone();
-    if snap.mqtt_connected && !snap.holding {
-        (StatusCode::OK, "ready\n").into_response()
+    let why = if let Some(e) = &snap.commit_failing {
+        format!("ledger commits failing, intake paused: {e}")
+    } else if snap.holding {
+        "outbox over quota, intake paused".into()
+    } else if !snap.mqtt_connected {
+        "not connected to the MQTT broker".into()
     } else {
-        let why = if snap.holding { "outbox over quota, intake paused" } else { "not connected to the MQTT broker" };
-        (StatusCode::SERVICE_UNAVAILABLE, format!("not ready: {why}\n")).into_response()
-    }
+        return (StatusCode::OK, "ready\n").into_response();
+    };
+    (StatusCode::SERVICE_UNAVAILABLE, format!("not ready: {why}\n")).into_response()
 }
 
 async fn metrics(State(s): State<HttpState>) -> Response {

@@ -17,6 +17,7 @@
 //! the store's trend table in the same transaction, and the HTTP side reads
 //! them from there.
 
+use super::commit_retry::{AfterFailure, CommitRetry};
 use super::settings::ServiceSettings;
 use super::snapshot::{ServiceCounters, Snapshot};
 use crate::alarm::{parse_command, AlarmBook, AlarmEvent, AlarmIndex, AlarmRecord};
@@ -50,14 +51,29 @@ struct RateLimitedLog {
 
 impl RateLimitedLog {
     fn warn(&mut self, reason: &'static str, msg: impl FnOnce() -> String) {
+        if let Some(suppressed) = self.due(reason) {
+            tracing::warn!(reason, suppressed, "{}", msg());
+        }
+    }
+
+    fn error(&mut self, reason: &'static str, msg: impl FnOnce() -> String) {
+        if let Some(suppressed) = self.due(reason) {
+            tracing::error!(reason, suppressed, "{}", msg());
+        }
+    }
+
+    /// Whether a line for `reason` may go out now, and how many were
+    /// suppressed since the last one.
+    fn due(&mut self, reason: &'static str) -> Option<u64> {
         let now = Instant::now();
         let e = self.last.entry(reason).or_insert((now - Duration::from_secs(3600), 0));
         if now.duration_since(e.0) >= Duration::from_secs(10) {
             let suppressed = e.1;
-            tracing::warn!(reason, suppressed, "{}", msg());
             *e = (now, 0);
+            Some(suppressed)
         } else {
             e.1 += 1;
+            None
         }
     }
 }
@@ -106,6 +122,12 @@ pub struct Ledger {
     /// Commit even with nothing pending (an HTTP command changed alarms).
     force_commit: bool,
     last_sensor_check: Instant,
+    /// When to try a failed commit again, and when to give up.
+    retry: CommitRetry,
+    /// The last commit error while commits fail (readiness shows it).
+    commit_error: Option<String>,
+    /// Set when commits have failed for too long: `run` returns it.
+    fatal: Option<anyhow::Error>,
 }
 
 /// Alarm events kept in memory for the snapshot (`recent_events`).
@@ -187,6 +209,12 @@ fn recent_events(store: &Store) -> anyhow::Result<std::collections::VecDeque<Ala
     Ok(events)
 }
 
+/// `[store] commit_failure_limit_s` as a duration (validated positive and
+/// at most a day; a limit that does not convert falls back to 300 s).
+fn commit_failure_limit(s: &ServiceSettings) -> Duration {
+    Duration::try_from_secs_f64(s.store.commit_failure_limit_s).unwrap_or(Duration::from_secs(300))
+}
+
 fn quota(s: &ServiceSettings) -> u64 {
     s.database.as_ref().map_or(u64::MAX, |d| d.outbox_quota_bytes)
 }
@@ -265,6 +293,9 @@ impl Ledger {
             recent_events,
             force_commit: false,
             last_sensor_check: Instant::now() - Duration::from_secs(60),
+            retry: CommitRetry::new(commit_failure_limit(&service)),
+            commit_error: None,
+            fatal: None,
             service,
         };
         // Thresholds go to the database at start-up, at the newest event time.
@@ -290,28 +321,44 @@ impl Ledger {
         f
     }
 
-    /// Run until stopped: the group-commit loop.
+    /// Run until stopped: the group-commit loop. Returns an error, having
+    /// acknowledged nothing it could not write, when commits have failed
+    /// without a break for `[store] commit_failure_limit_s`.
     pub fn run(
         mut self,
         mut rx: mpsc::Receiver<Inbound>,
         control: std::sync::mpsc::Receiver<Control>,
         rt: tokio::runtime::Handle,
-    ) {
+    ) -> anyhow::Result<()> {
         loop {
+            if let Some(e) = self.fatal.take() {
+                self.publish_snapshot(true);
+                return Err(e);
+            }
             match control.try_recv() {
                 Ok(Control::Stop) | Err(std::sync::mpsc::TryRecvError::Disconnected) => {
                     // Take what is already queued, then finish.
                     while let Ok(m) = rx.try_recv() {
                         self.handle(m);
                     }
+                    // One last attempt even while failing commits wait.
+                    self.retry.try_now();
                     self.commit();
                     break;
                 }
                 Ok(Control::Reload(cfg, service)) => {
+                    self.retry.try_now();
                     self.commit();
                     self.reload(*cfg, *service);
                 }
                 Err(std::sync::mpsc::TryRecvError::Empty) => {}
+            }
+            // After a failed commit: take no messages until the next
+            // attempt is due (the broker keeps them), and do not spin.
+            if let Some(wait) = self.retry.wait(Instant::now()) {
+                std::thread::sleep(wait.min(Duration::from_millis(200)));
+                self.periodic();
+                continue;
             }
             if self.holding {
                 self.check_quota();
@@ -358,7 +405,12 @@ impl Ledger {
             }
         }
         self.publish_snapshot(true);
-        tracing::info!("ledger closed cleanly");
+        if self.retry.failing() {
+            tracing::error!("ledger closed with its last batch not written; the broker redelivers it");
+        } else {
+            tracing::info!("ledger closed cleanly");
+        }
+        Ok(())
     }
 
     fn periodic(&mut self) {
@@ -553,7 +605,11 @@ impl Ledger {
     }
 
     /// Write the batch in one transaction, then acknowledge and publish.
+    /// After a failure nothing is tried before the retry wait is over.
     pub fn commit(&mut self) {
+        if self.retry.wait(Instant::now()).is_some() {
+            return;
+        }
         let changed = self.engine.take_changed();
         if changed.is_empty()
             && self.pending.is_empty()
@@ -621,6 +677,9 @@ impl Ledger {
             .iter()
             .filter_map(|k| self.book.record(k).map(|r| (k.clone(), serde_json::to_string(r).unwrap_or_default())))
             .collect();
+        // The events' lines are made afresh by each attempt: a failed one
+        // keeps everything before them, not them (no duplicates on retries).
+        let before_events = outbox.len();
         for e in &self.events {
             if let Some(l) = e.to_point(&plant).to_line() {
                 outbox.push(l);
@@ -655,6 +714,11 @@ impl Ledger {
         };
         match self.store.commit(&commit) {
             Ok(stats) => {
+                if let Some(d) = self.retry.succeeded(Instant::now()) {
+                    tracing::info!("ledger commits succeed again after failing for {:.1} s", d.as_secs_f64());
+                    self.commit_error = None;
+                    self.last_snapshot = Instant::now() - Duration::from_secs(60);
+                }
                 self.outbox = stats.outbox;
                 let ms = started.elapsed().as_secs_f64() * 1000.0;
                 let c = &mut self.counters;
@@ -687,10 +751,33 @@ impl Ledger {
                 // Nothing is acknowledged; the state stays in memory and the
                 // next commit writes it (upserts carry whole ledgers).
                 self.counters.commit_failures += 1;
-                tracing::error!("ledger commit failed, nothing acknowledged: {e}");
+                let failures = self.counters.commit_failures;
+                let after = self.retry.failed(Instant::now());
+                self.log.error("commit_failed", || {
+                    let next = match after {
+                        AfterFailure::RetryIn(d) => format!("next attempt in {:.2} s", d.as_secs_f64()),
+                        AfterFailure::GiveUp { .. } => "giving up".into(),
+                    };
+                    format!("ledger commit failed ({failures} failures so far), nothing acknowledged: {e}; {next}")
+                });
+                if self.commit_error.is_none() {
+                    self.last_snapshot = Instant::now() - Duration::from_secs(60);
+                }
+                self.commit_error = Some(e.to_string());
+                if let AfterFailure::GiveUp { failing_for } = after {
+                    self.fatal = Some(anyhow::anyhow!(
+                        "ledger commits have failed for {:.0} s without a break ([store] commit_failure_limit_s = {}); \
+                         stopping so that the service manager restarts lifeledger. Nothing unwritten was \
+                         acknowledged. Check that the ledger file, its -wal and -shm files and their directory \
+                         are writable by the service user and that the disk has room. Last error: {e}",
+                        failing_for.as_secs_f64(),
+                        self.service.store.commit_failure_limit_s
+                    ));
+                }
                 for &ci in &changed {
                     self.engine.mark_changed(ci);
                 }
+                outbox.truncate(before_events);
                 self.extra_outbox = outbox;
                 self.trend_points = trend_points;
             }
@@ -775,6 +862,7 @@ impl Ledger {
         self.book.set_config(service.alarms.clone());
         self.store.set_alarm_journal_max_events(service.store.alarm_journal_max_events);
         self.store.set_trend_points_per_component(service.store.trend_points_per_component);
+        self.retry.set_give_up_after(commit_failure_limit(&service));
         self.next_series_ms = vec![i64::MIN; cfg.plan.components.len()];
         self.sensor = vec![(false, false); cfg.plan.tags.len()];
         self.sensor_latched = vec![(false, false); cfg.plan.tags.len()];
@@ -815,6 +903,7 @@ impl Ledger {
             outbox_bytes: self.outbox.bytes,
             outbox_quota_bytes: quota(&self.service),
             holding: self.holding,
+            commit_failing: self.commit_error.clone(),
             database_configured: self.service.database.is_some(),
             database_reachable: None,
             engine: self.engine.counters().clone(),

@@ -34,6 +34,12 @@ pub struct StoreSettings {
     /// least 1.
     #[serde(default = "default_trend")]
     pub trend_points_per_component: u64,
+    /// Seconds commits may fail without a break before the service gives
+    /// up and exits with an error (for the service manager to restart it).
+    /// Until then failed commits are retried with a growing wait, nothing
+    /// is acknowledged and `/readyz` answers not ready.
+    #[serde(default = "default_commit_failure_limit")]
+    pub commit_failure_limit_s: f64,
 }
 
 fn default_path() -> PathBuf {
@@ -54,6 +60,9 @@ fn default_journal() -> u64 {
 fn default_trend() -> u64 {
     crate::store::trend::DEFAULT_POINTS_PER_COMPONENT
 }
+fn default_commit_failure_limit() -> f64 {
+    300.0
+}
 
 impl Default for StoreSettings {
     fn default() -> Self {
@@ -64,6 +73,7 @@ impl Default for StoreSettings {
             health_interval_s: default_health(),
             alarm_journal_max_events: default_journal(),
             trend_points_per_component: default_trend(),
+            commit_failure_limit_s: default_commit_failure_limit(),
         }
     }
 }
@@ -265,6 +275,7 @@ fn store_problems(s: &StoreSettings) -> Vec<String> {
         MAX_SECONDS as u64,
         "1 to 86400 seconds between service_health points (default 10)",
     ));
+    p.extend(seconds_problem("store", "commit_failure_limit_s", s.commit_failure_limit_s, 300.0));
     if s.alarm_journal_max_events == 0 {
         p.push(
             "[store] alarm_journal_max_events = 0 would keep no alarm history; use at least 1 \
@@ -356,6 +367,8 @@ mod tests {
             ("[mqtt]\n[[mqtt.subscription]]\ntopic = \"p/{tag}\"\npayload = { max_bytes = 0 }", "payload.max_bytes"),
             ("[store]\nseries_interval_s = 0", "series_interval_s"),
             ("[store]\nhealth_interval_s = 86401", "health_interval_s"),
+            ("[store]\ncommit_failure_limit_s = nan", "commit_failure_limit_s"),
+            ("[store]\ncommit_failure_limit_s = -5", "commit_failure_limit_s"),
             ("[http]\nlisten = \"127.0.0.1\"", "listen"),
             ("[http]\nlisten = \"[::1]:0\"", "listen"),
             ("[alarms.deadbands.wear_index]\nfraction = nan", "deadbands.wear_index.fraction"),

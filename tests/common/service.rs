@@ -289,6 +289,13 @@ impl Service {
         Command::new("kill").args([&format!("-{sig}"), &self.child.id().to_string()]).status().unwrap();
     }
 
+    /// Waits until the service exits by itself (bounded by [`poll_until`]);
+    /// its exit status and log.
+    pub fn wait_exit(&mut self, what: &str) -> (ExitStatus, String) {
+        let status = poll_until(what, || self.child.try_wait().unwrap());
+        (status, std::fs::read_to_string(&self.log).unwrap_or_default())
+    }
+
     /// SIGKILL, as a crash would, and reaps the process.
     pub fn kill9(mut self) {
         self.child.kill().unwrap();
