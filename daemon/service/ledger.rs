@@ -917,3 +917,67 @@ impl Ledger {
         let _ = self.snapshot_tx.send(Arc::new(snap));
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A ledger on the demo plant with its store in `dir` and a database
+    /// configured (never contacted: no outbox sender runs here), so that
+    /// outbox lines are kept.
+    fn ledger(dir: &std::path::Path) -> Ledger {
+        let cfg = crate::settings::load_plan(std::path::Path::new("config/demo/plant.toml")).unwrap();
+        let text = format!(
+            "[store]\npath = {:?}\n[database]\nurl = \"http://127.0.0.1:9\"\norg = \"o\"\nbucket = \"b\"\n",
+            dir.join("ledger.db")
+        );
+        let service = ServiceSettings::from_settings(&toml::from_str(&text).unwrap()).unwrap();
+        let (client, _eventloop) = AsyncClient::new(rumqttc::MqttOptions::new("unit", "127.0.0.1", 9), 100);
+        let (snap_tx, _snap_rx) = watch::channel(Arc::new(Snapshot::default()));
+        Ledger::open(cfg, service, client, snap_tx).unwrap()
+    }
+
+    /// The outbox lines of the ledger file that start with `measurement`.
+    fn outbox_lines(dir: &std::path::Path, measurement: &str) -> usize {
+        let store = Store::attach(&dir.join("ledger.db")).unwrap();
+        let lines = store.outbox_batch(usize::MAX, usize::MAX).unwrap();
+        lines.iter().filter(|(_, l)| l.starts_with(&format!("{measurement},"))).count()
+    }
+
+    /// Failed commits keep their batch but make its alarm events' points
+    /// afresh on each attempt: after three failures and one success the
+    /// outbox holds the event once (before, each retry queued it again).
+    #[test]
+    fn retried_commits_write_each_alarm_event_once() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut l = ledger(dir.path());
+        l.commit();
+        assert!(!l.retry.failing());
+        let refuse = rusqlite::Connection::open(dir.path().join("ledger.db")).unwrap();
+        refuse
+            .execute_batch(
+                "CREATE TRIGGER refuse BEFORE INSERT ON alarm_journal BEGIN SELECT RAISE(ABORT, 'refused'); END",
+            )
+            .unwrap();
+        let ev = l.book.evaluate_condition("lifeledger", "", AlarmIndex::ServiceHealth, true, "unit test", 1_000);
+        assert_eq!(ev.len(), 1);
+        l.note_events(ev);
+        for attempt in 1..=3 {
+            l.retry.try_now();
+            l.commit();
+            assert!(l.retry.failing(), "attempt {attempt} failed");
+            assert_eq!(l.counters.commit_failures, attempt);
+            assert!(l.commit_error.as_deref().is_some_and(|e| e.contains("refused")), "{:?}", l.commit_error);
+            assert!(!l.extra_outbox.iter().any(|p| p.starts_with("alarm_event,")), "{:?}", l.extra_outbox);
+        }
+        // Until the wait is over, commit() does not even try.
+        l.commit();
+        assert_eq!(l.counters.commit_failures, 3, "no attempt before the retry wait is over");
+
+        refuse.execute_batch("DROP TRIGGER refuse").unwrap();
+        l.retry.try_now();
+        l.commit();
+        assert!(!l.retry.failing() && l.commit_error.is_none());
+        assert_eq!(outbox_lines(dir.path(), "alarm_event"), 1, "the event's point is in the outbox once");
+    }
+}
