@@ -31,9 +31,11 @@ fn database(url: &str) -> String {
 }
 
 /// Runs the stock `sqlite3` tool on `db` with `args`; panics with its
-/// output unless it succeeds. Returns its standard output.
+/// output unless it succeeds. Returns its standard output. It waits up to
+/// 10 s for a lock the service holds in a commit rather than failing at once.
 fn sqlite3(db: &Path, args: &[&str]) -> String {
     let o = Command::new("sqlite3")
+        .args(["-cmd", ".timeout 10000"])
         .arg(db)
         .args(args)
         .output()

@@ -94,7 +94,7 @@ pub struct MqttSettings {
 }
 
 /// The largest packet MQTT 3.1.1 can frame: a remaining length of at most
-/// 268 435 455 bytes (OASIS MQTT 3.1.1, section 2.2.3).
+/// 268 435 455 bytes (OASIS MQTT 3.1.1, section 2.2.3; from memory).
 pub const MQTT_MAX_PACKET_BYTES: usize = 268_435_455;
 
 /// How long a connection must stay up before a loss of it restarts the
@@ -386,6 +386,8 @@ mod tests {
     #[test]
     fn the_client_takes_any_packet_mqtt_can_frame_unless_told() {
         let s = settings(0.5, 30.0);
+        // MQTT 3.1.1 (OASIS), section 2.2.3: the remaining length is at most
+        // 268 435 455 bytes (from memory).
         assert_eq!(s.max_message_bytes, 268_435_455);
         assert_eq!(s.options().unwrap().max_packet_size(), 268_435_455);
     }

@@ -174,7 +174,7 @@ fn payload(ts: i64, v: f64) -> Vec<u8> {
 }
 
 /// The largest packet MQTT 3.1.1 can frame: a remaining length of at most
-/// 268 435 455 bytes (OASIS MQTT 3.1.1, section 2.2.3).
+/// 268 435 455 bytes (OASIS MQTT 3.1.1, section 2.2.3; from memory).
 pub const MQTT_MAX_PACKET_BYTES: usize = 268_435_455;
 
 /// Publishes every sample to `plant/{tag}` on 127.0.0.1:`port` with QoS 1
