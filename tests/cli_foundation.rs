@@ -209,6 +209,53 @@ fn check_config_also_checks_the_service_sections() {
     assert!(out.contains("database http://127.0.0.1:8428"), "{out}");
 }
 
+/// Every numeric setting of the service sections is checked before `run`
+/// could trip over it: NaN, infinities, negatives and zeros where they make
+/// no sense are refused by check-config and by `run`, every problem at
+/// once, each naming its section, key and what to give instead. (Before,
+/// `reconnect_min_s = -1` passed check-config and panicked the intake task
+/// at the first lost connection.)
+#[test]
+fn check_config_refuses_numbers_the_service_cannot_use() {
+    let dir = tempfile::tempdir().unwrap();
+    let bad = demo_with(
+        dir.path(),
+        "numbers.toml",
+        "[mqtt]\nreconnect_min_s = -1\nreconnect_max_s = nan\nkeep_alive_s = 0\nport = 0\n\
+         [store]\ncommit_max_samples = 0\nseries_interval_s = -60\nhealth_interval_s = 0\n\
+         [http]\nlisten = \"127.0.0.1:99999\"\n\
+         [alarms.deadbands.creep_life_fraction]\nfraction = -inf\n\
+         [database]\nurl = \"http://127.0.0.1:8428\"\norg = \"o\"\nbucket = \"b\"\ntimeout_s = nan\n",
+    );
+    let (code, out, err) = run(&["check-config", bad.to_str().unwrap()]);
+    assert_eq!(code, 1, "check-config must refuse:\n{out}{err}");
+    for (section, key) in [
+        ("[mqtt]", "reconnect_min_s = -1"),
+        ("[mqtt]", "reconnect_max_s = NaN"),
+        ("[mqtt]", "keep_alive_s = 0"),
+        ("[mqtt]", "port = 0"),
+        ("[store]", "commit_max_samples = 0"),
+        ("[store]", "series_interval_s = -60"),
+        ("[store]", "health_interval_s = 0"),
+        ("[http]", "listen"),
+        ("[alarms]", "creep_life_fraction"),
+        ("[database]", "timeout_s = NaN"),
+    ] {
+        let line = err
+            .lines()
+            .find(|l| l.contains(section) && l.contains(key))
+            .unwrap_or_else(|| panic!("no error naming {section} {key}:\n{err}"));
+        // Each says what to give instead.
+        assert!(line.contains("use ") || line.contains("give "), "no fix in: {line}");
+    }
+    // `run` refuses the same file at once, with the same words, instead of
+    // starting and panicking later.
+    let (code, _out, run_err) = run(&["run", "--config", bad.to_str().unwrap()]);
+    assert_ne!(code, 0);
+    assert!(run_err.contains("reconnect_min_s = -1"), "{run_err}");
+    assert!(!run_err.contains("panicked"), "{run_err}");
+}
+
 #[test]
 fn ledger_without_a_ledger_file_says_so_and_creates_nothing() {
     let dir = tempfile::tempdir().unwrap();

@@ -35,6 +35,11 @@ pub struct PayloadSettings {
     /// Unit of numeric timestamps: `s`, `ms`, or `auto` (≥ 1e11 means ms).
     #[serde(default)]
     pub timestamp_unit: TimestampUnit,
+    /// Largest payload decoded, bytes; a longer one is rejected as
+    /// `oversized` (counted and acknowledged like any bad input) without
+    /// being parsed. Tag messages are far smaller than the default.
+    #[serde(default = "default_max_bytes")]
+    pub max_bytes: usize,
 }
 
 /// Payload layout.
@@ -67,6 +72,12 @@ fn default_timestamp_path() -> Option<String> {
 fn default_quality_path() -> Option<String> {
     Some("quality".into())
 }
+/// Default of [`PayloadSettings::max_bytes`]: 64 KiB, hundreds of times a
+/// tag message.
+pub const DEFAULT_MAX_PAYLOAD_BYTES: usize = 64 * 1024;
+fn default_max_bytes() -> usize {
+    DEFAULT_MAX_PAYLOAD_BYTES
+}
 
 impl Default for PayloadSettings {
     fn default() -> Self {
@@ -76,6 +87,7 @@ impl Default for PayloadSettings {
             timestamp: Some("timestamp".into()),
             quality: Some("quality".into()),
             timestamp_unit: TimestampUnit::Auto,
+            max_bytes: DEFAULT_MAX_PAYLOAD_BYTES,
         }
     }
 }
@@ -109,6 +121,8 @@ pub enum DecodeError {
     BadTimestamp(String),
     #[error("quality {0:?} is not good, uncertain or bad")]
     BadQuality(String),
+    #[error("payload of {len} bytes is larger than payload.max_bytes = {limit}")]
+    Oversized { len: usize, limit: usize },
 }
 
 impl DecodeError {
@@ -120,6 +134,7 @@ impl DecodeError {
             DecodeError::MissingField(_) | DecodeError::FieldNotNumber(_) => "malformed_payload",
             DecodeError::BadTimestamp(_) => "bad_timestamp",
             DecodeError::BadQuality(_) => "bad_quality_field",
+            DecodeError::Oversized { .. } => "oversized",
         }
     }
 }
@@ -143,6 +158,9 @@ fn numeric_time(x: f64, unit: TimestampUnit) -> Option<i64> {
 
 /// Decode a payload received at `receive_ms`.
 pub fn decode_payload(p: &PayloadSettings, payload: &[u8], receive_ms: i64) -> Result<Decoded, DecodeError> {
+    if payload.len() > p.max_bytes {
+        return Err(DecodeError::Oversized { len: payload.len(), limit: p.max_bytes });
+    }
     let text = std::str::from_utf8(payload).map_err(|_| DecodeError::NotUtf8)?.trim();
     match p.format {
         PayloadFormat::Number => {
@@ -432,5 +450,20 @@ mod tests {
         assert_eq!(decode_payload(&p, &[0xff, 0xfe], 0).unwrap_err(), DecodeError::NotUtf8);
         let num = PayloadSettings { format: PayloadFormat::Number, ..p };
         assert!(matches!(decode_payload(&num, b"NaNx", 0), Err(DecodeError::NotNumber(_))));
+    }
+
+    #[test]
+    fn a_payload_over_the_limit_is_oversized_and_one_at_it_is_decoded() {
+        let p = PayloadSettings { max_bytes: 16, ..PayloadSettings::default() };
+        let at = br#"{"value": 12.25}"#;
+        assert_eq!(at.len(), 16);
+        assert_eq!(decode_payload(&p, at, 7).unwrap().value, 12.25);
+        let over = br#"{"value": 12.250}"#;
+        let err = decode_payload(&p, over, 7).unwrap_err();
+        assert_eq!(err, DecodeError::Oversized { len: 17, limit: 16 });
+        assert_eq!(err.reason(), "oversized");
+        assert!(err.to_string().contains("payload.max_bytes"), "{err}");
+        let default: PayloadSettings = toml::from_str("").unwrap();
+        assert_eq!(default.max_bytes, 65_536);
     }
 }

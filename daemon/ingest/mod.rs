@@ -82,7 +82,26 @@ pub struct MqttSettings {
     pub reconnect_min_s: f64,
     #[serde(default = "default_backoff_max")]
     pub reconnect_max_s: f64,
+    /// Largest MQTT packet the client takes, bytes. A larger one would make
+    /// the client drop the connection, and the broker would redeliver it on
+    /// every reconnect: intake would stop for good. The default is MQTT
+    /// 3.1.1's largest packet, so whatever the broker delivers is received;
+    /// payloads over a subscription's `payload.max_bytes` are then rejected
+    /// as `oversized` and acknowledged. Limit message sizes at the broker
+    /// (mosquitto `max_packet_size`) to protect memory.
+    #[serde(default = "default_max_message_bytes")]
+    pub max_message_bytes: usize,
 }
+
+/// The largest packet MQTT 3.1.1 can frame: a remaining length of at most
+/// 268 435 455 bytes (OASIS MQTT 3.1.1, section 2.2.3; from memory).
+pub const MQTT_MAX_PACKET_BYTES: usize = 268_435_455;
+
+/// How long a connection must stay up before a loss of it restarts the
+/// reconnect backoff from `reconnect_min_s`. A connection the broker closes
+/// at once (a refused login, a message it cannot hand over) keeps doubling
+/// the delay instead of reconnecting at the shortest one forever.
+pub const STABLE_CONNECTION: Duration = Duration::from_secs(10);
 
 fn default_host() -> String {
     "127.0.0.1".into()
@@ -104,6 +123,9 @@ fn default_backoff_min() -> f64 {
 }
 fn default_backoff_max() -> f64 {
     30.0
+}
+fn default_max_message_bytes() -> usize {
+    MQTT_MAX_PACKET_BYTES
 }
 
 impl MqttSettings {
@@ -160,7 +182,7 @@ impl MqttSettings {
         o.set_manual_acks(true);
         o.set_request_channel_capacity(4096);
         o.set_inflight(1000);
-        o.set_max_packet_size(1 << 20, 1 << 20);
+        o.set_max_packet_size(self.max_message_bytes, self.max_message_bytes);
         o.set_last_will(LastWill::new(self.status_topic(), offline_payload(), QoS::AtLeastOnce, true));
         if let Some(user) = &self.username {
             o.set_credentials(user, self.password()?.unwrap_or_default());
@@ -207,7 +229,8 @@ pub fn now_ms() -> i64 {
 
 /// Poll the event loop until shutdown: subscribe on every connection
 /// without a kept session, forward publishes, reconnect with exponential
-/// backoff.
+/// backoff. The backoff starts again from `reconnect_min_s` only after a
+/// connection has stayed up for [`STABLE_CONNECTION`].
 pub async fn run_event_loop(
     settings: MqttSettings,
     client: AsyncClient,
@@ -217,6 +240,8 @@ pub async fn run_event_loop(
     mut shutdown: broadcast::Receiver<()>,
 ) {
     let mut delay = settings.reconnect_min_s;
+    // When the current connection was acknowledged by the broker.
+    let mut connected_at: Option<std::time::Instant> = None;
     // Set once the service has sent its DISCONNECT (shutdown).
     let mut disconnecting = false;
     // Messages received but not yet handed to the ledger. The event loop is
@@ -252,7 +277,7 @@ pub async fn run_event_loop(
         };
         match ev {
             Ok(Event::Incoming(Packet::ConnAck(ack))) => {
-                delay = settings.reconnect_min_s;
+                connected_at = Some(std::time::Instant::now());
                 tracing::info!(
                     session_present = ack.session_present,
                     "connected to MQTT broker {}:{}",
@@ -281,18 +306,89 @@ pub async fn run_event_loop(
                 break;
             }
             Err(e) => {
+                let wait;
+                (wait, delay) = reconnect_backoff(delay, connected_at.take().map(|t| t.elapsed()), &settings);
                 tracing::warn!(
-                    "MQTT connection to {}:{} lost or refused: {e}; retrying in {delay:.1} s",
+                    "MQTT connection to {}:{} lost or refused: {e}; retrying in {wait:.1} s",
                     settings.host,
                     settings.port
                 );
                 waiting.push_back(Inbound::Connection { connected: false });
                 tokio::select! {
-                    _ = tokio::time::sleep(Duration::from_secs_f64(delay)) => {}
+                    // Validated settings keep `wait` positive and finite; a
+                    // second's wait stands in should one ever not be.
+                    _ = tokio::time::sleep(Duration::try_from_secs_f64(wait).unwrap_or(Duration::from_secs(1))) => {}
                     _ = shutdown.recv() => break,
                 }
-                delay = (delay * 2.0).min(settings.reconnect_max_s);
             }
         }
+    }
+}
+
+/// The reconnect backoff after an attempt or a connection failed: returns
+/// (the wait before the next attempt, the wait after a further failure).
+/// `planned` is what the previous call returned second (at first
+/// `reconnect_min_s`); `up_for` how long the connection that just ended
+/// had been up (`None`: it never got as far as the broker's
+/// acknowledgement). Only a connection that stayed up for
+/// [`STABLE_CONNECTION`] restarts the backoff at `reconnect_min_s`;
+/// otherwise each failure doubles the wait, up to `reconnect_max_s`.
+pub fn reconnect_backoff(planned: f64, up_for: Option<Duration>, s: &MqttSettings) -> (f64, f64) {
+    let wait = match up_for {
+        Some(up) if up >= STABLE_CONNECTION => s.reconnect_min_s,
+        _ => planned,
+    };
+    // min/max rather than clamp: clamp panics on bounds validation let through.
+    (wait, (wait * 2.0).min(s.reconnect_max_s).max(s.reconnect_min_s))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn settings(min: f64, max: f64) -> MqttSettings {
+        toml::from_str(&format!("reconnect_min_s = {min:?}\nreconnect_max_s = {max:?}")).unwrap()
+    }
+
+    /// Waits of `failures` connections that each ended after `up_for`.
+    fn waits(s: &MqttSettings, up_for: Option<Duration>, failures: usize) -> Vec<f64> {
+        let mut planned = s.reconnect_min_s;
+        (0..failures)
+            .map(|_| {
+                let wait;
+                (wait, planned) = reconnect_backoff(planned, up_for, s);
+                wait
+            })
+            .collect()
+    }
+
+    #[test]
+    fn refused_attempts_back_off_exponentially_up_to_the_maximum() {
+        let s = settings(0.5, 30.0);
+        assert_eq!(waits(&s, None, 8), [0.5, 1.0, 2.0, 4.0, 8.0, 16.0, 30.0, 30.0]);
+    }
+
+    #[test]
+    fn a_connection_that_dies_at_once_does_not_reset_the_backoff() {
+        // The broker accepts the connection and the client drops it at the
+        // first message: each session lasts well under a second.
+        let s = settings(0.5, 30.0);
+        assert_eq!(waits(&s, Some(Duration::from_millis(50)), 7), [0.5, 1.0, 2.0, 4.0, 8.0, 16.0, 30.0]);
+    }
+
+    #[test]
+    fn a_connection_that_stayed_up_restarts_the_backoff_at_the_minimum() {
+        let s = settings(0.5, 30.0);
+        let (wait, next) = reconnect_backoff(30.0, Some(STABLE_CONNECTION), &s);
+        assert_eq!((wait, next), (0.5, 1.0));
+    }
+
+    #[test]
+    fn the_client_takes_any_packet_mqtt_can_frame_unless_told() {
+        let s = settings(0.5, 30.0);
+        // MQTT 3.1.1 (OASIS), section 2.2.3: the remaining length is at most
+        // 268 435 455 bytes (from memory).
+        assert_eq!(s.max_message_bytes, 268_435_455);
+        assert_eq!(s.options().unwrap().max_packet_size(), 268_435_455);
     }
 }

@@ -19,6 +19,7 @@
 //! and its tags' states are copied into the store's checkpoints in the same
 //! transaction too (`crate::recovery::checkpoint_rows`), for rollback.
 
+use super::commit_retry::{AfterFailure, CommitRetry};
 use super::settings::ServiceSettings;
 use super::snapshot::{ComponentFreshness, Freshness, ServiceCounters, Snapshot, TagFreshness};
 use crate::alarm::{parse_command, AlarmBook, AlarmEvent, AlarmIndex, AlarmRecord};
@@ -54,14 +55,29 @@ struct RateLimitedLog {
 
 impl RateLimitedLog {
     fn warn(&mut self, reason: &'static str, msg: impl FnOnce() -> String) {
+        if let Some(suppressed) = self.due(reason) {
+            tracing::warn!(reason, suppressed, "{}", msg());
+        }
+    }
+
+    fn error(&mut self, reason: &'static str, msg: impl FnOnce() -> String) {
+        if let Some(suppressed) = self.due(reason) {
+            tracing::error!(reason, suppressed, "{}", msg());
+        }
+    }
+
+    /// Whether a line for `reason` may go out now, and how many were
+    /// suppressed since the last one.
+    fn due(&mut self, reason: &'static str) -> Option<u64> {
         let now = Instant::now();
         let e = self.last.entry(reason).or_insert((now - Duration::from_secs(3600), 0));
         if now.duration_since(e.0) >= Duration::from_secs(10) {
             let suppressed = e.1;
-            tracing::warn!(reason, suppressed, "{}", msg());
             *e = (now, 0);
+            Some(suppressed)
         } else {
             e.1 += 1;
+            None
         }
     }
 }
@@ -126,6 +142,12 @@ pub struct Ledger {
     touched: Vec<u32>,
     /// Per component: event time from which threshold lines are due again.
     next_threshold_ms: Vec<i64>,
+    /// When to try a failed commit again, and when to give up.
+    retry: CommitRetry,
+    /// The last commit error while commits fail (readiness shows it).
+    commit_error: Option<String>,
+    /// Set when commits have failed for too long: `run` returns it.
+    fatal: Option<anyhow::Error>,
 }
 
 /// Threshold lines go out with a component's series at most this often in
@@ -229,6 +251,12 @@ fn recent_events(store: &Store) -> anyhow::Result<std::collections::VecDeque<Ala
     Ok(events)
 }
 
+/// `[store] commit_failure_limit_s` as a duration (validated positive and
+/// at most a day; a limit that does not convert falls back to 300 s).
+fn commit_failure_limit(s: &ServiceSettings) -> Duration {
+    Duration::try_from_secs_f64(s.store.commit_failure_limit_s).unwrap_or(Duration::from_secs(300))
+}
+
 fn quota(s: &ServiceSettings) -> u64 {
     s.database.as_ref().map_or(u64::MAX, |d| d.outbox_quota_bytes)
 }
@@ -316,6 +344,9 @@ impl Ledger {
             no_plant_data: false,
             touched: vec![],
             next_threshold_ms: vec![i64::MIN; ncomp],
+            retry: CommitRetry::new(commit_failure_limit(&service)),
+            commit_error: None,
+            fatal: None,
             service,
         };
         // Thresholds go to the database at start-up, at the newest event time.
@@ -341,28 +372,44 @@ impl Ledger {
         f
     }
 
-    /// Run until stopped: the group-commit loop.
+    /// Run until stopped: the group-commit loop. Returns an error, having
+    /// acknowledged nothing it could not write, when commits have failed
+    /// without a break for `[store] commit_failure_limit_s`.
     pub fn run(
         mut self,
         mut rx: mpsc::Receiver<Inbound>,
         control: std::sync::mpsc::Receiver<Control>,
         rt: tokio::runtime::Handle,
-    ) {
+    ) -> anyhow::Result<()> {
         loop {
+            if let Some(e) = self.fatal.take() {
+                self.publish_snapshot(true);
+                return Err(e);
+            }
             match control.try_recv() {
                 Ok(Control::Stop) | Err(std::sync::mpsc::TryRecvError::Disconnected) => {
                     // Take what is already queued, then finish.
                     while let Ok(m) = rx.try_recv() {
                         self.handle(m);
                     }
+                    // One last attempt even while failing commits wait.
+                    self.retry.try_now();
                     self.commit();
                     break;
                 }
                 Ok(Control::Reload(cfg, service)) => {
+                    self.retry.try_now();
                     self.commit();
                     self.reload(*cfg, *service);
                 }
                 Err(std::sync::mpsc::TryRecvError::Empty) => {}
+            }
+            // After a failed commit: take no messages until the next
+            // attempt is due (the broker keeps them), and do not spin.
+            if let Some(wait) = self.retry.wait(Instant::now()) {
+                std::thread::sleep(wait.min(Duration::from_millis(200)));
+                self.periodic();
+                continue;
             }
             if self.holding {
                 self.check_quota();
@@ -409,7 +456,12 @@ impl Ledger {
             }
         }
         self.publish_snapshot(true);
-        tracing::info!("ledger closed cleanly");
+        if self.retry.failing() {
+            tracing::error!("ledger closed with its last batch not written; the broker redelivers it");
+        } else {
+            tracing::info!("ledger closed cleanly");
+        }
+        Ok(())
     }
 
     fn periodic(&mut self) {
@@ -700,7 +752,11 @@ impl Ledger {
     }
 
     /// Write the batch in one transaction, then acknowledge and publish.
+    /// After a failure nothing is tried before the retry wait is over.
     pub fn commit(&mut self) {
+        if self.retry.wait(Instant::now()).is_some() {
+            return;
+        }
         self.collect_series();
         let changed = self.engine.take_changed();
         self.dirty_tags.extend(self.engine.take_changed_tags());
@@ -753,6 +809,9 @@ impl Ledger {
             .iter()
             .filter_map(|k| self.book.record(k).map(|r| (k.clone(), serde_json::to_string(r).unwrap_or_default())))
             .collect();
+        // The events' lines are made afresh by each attempt: a failed one
+        // keeps everything before them, not them (no duplicates on retries).
+        let before_events = outbox.len();
         for e in &self.events {
             if let Some(l) = e.to_point(&plant).to_line() {
                 outbox.push(l);
@@ -804,6 +863,11 @@ impl Ledger {
         };
         match self.store.commit(&commit) {
             Ok(stats) => {
+                if let Some(d) = self.retry.succeeded(Instant::now()) {
+                    tracing::info!("ledger commits succeed again after failing for {:.1} s", d.as_secs_f64());
+                    self.commit_error = None;
+                    self.last_snapshot = Instant::now() - Duration::from_secs(60);
+                }
                 self.outbox = stats.outbox;
                 let ms = started.elapsed().as_secs_f64() * 1000.0;
                 let c = &mut self.counters;
@@ -838,10 +902,33 @@ impl Ledger {
                 // Nothing is acknowledged; the state stays in memory and the
                 // next commit writes it (upserts carry whole ledgers).
                 self.counters.commit_failures += 1;
-                tracing::error!("ledger commit failed, nothing acknowledged: {e}");
+                let failures = self.counters.commit_failures;
+                let after = self.retry.failed(Instant::now());
+                self.log.error("commit_failed", || {
+                    let next = match after {
+                        AfterFailure::RetryIn(d) => format!("next attempt in {:.2} s", d.as_secs_f64()),
+                        AfterFailure::GiveUp { .. } => "giving up".into(),
+                    };
+                    format!("ledger commit failed ({failures} failures so far), nothing acknowledged: {e}; {next}")
+                });
+                if self.commit_error.is_none() {
+                    self.last_snapshot = Instant::now() - Duration::from_secs(60);
+                }
+                self.commit_error = Some(e.to_string());
+                if let AfterFailure::GiveUp { failing_for } = after {
+                    self.fatal = Some(anyhow::anyhow!(
+                        "ledger commits have failed for {:.0} s without a break ([store] commit_failure_limit_s = {}); \
+                         stopping so that the service manager restarts lifeledger. Nothing unwritten was \
+                         acknowledged. Check that the ledger file, its -wal and -shm files and their directory \
+                         are writable by the service user and that the disk has room. Last error: {e}",
+                        failing_for.as_secs_f64(),
+                        self.service.store.commit_failure_limit_s
+                    ));
+                }
                 for &ci in &changed {
                     self.engine.mark_changed(ci);
                 }
+                outbox.truncate(before_events);
                 self.extra_outbox = outbox;
                 self.trend_points = trend_points;
             }
@@ -930,6 +1017,7 @@ impl Ledger {
         self.store.set_alarm_journal_max_events(service.store.alarm_journal_max_events);
         self.store.set_trend_points_per_component(service.store.trend_points_per_component);
         self.store.set_checkpoint_days(service.store.checkpoint_days);
+        self.retry.set_give_up_after(commit_failure_limit(&service));
         self.next_series_ms = vec![i64::MIN; cfg.plan.components.len()];
         self.next_threshold_ms = vec![i64::MIN; cfg.plan.components.len()];
         self.sensor = vec![(false, false); cfg.plan.tags.len()];
@@ -1011,6 +1099,7 @@ impl Ledger {
             outbox_bytes: self.outbox.bytes,
             outbox_quota_bytes: quota(&self.service),
             holding: self.holding,
+            commit_failing: self.commit_error.clone(),
             database_configured: self.service.database.is_some(),
             database_reachable: None,
             engine: self.engine.counters().clone(),
@@ -1025,5 +1114,69 @@ impl Ledger {
             caution: crate::CAUTION,
         };
         let _ = self.snapshot_tx.send(Arc::new(snap));
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A ledger on the demo plant with its store in `dir` and a database
+    /// configured (never contacted: no outbox sender runs here), so that
+    /// outbox lines are kept.
+    fn ledger(dir: &std::path::Path) -> Ledger {
+        let cfg = crate::settings::load_plan(std::path::Path::new("config/demo/plant.toml")).unwrap();
+        let text = format!(
+            "[store]\npath = {:?}\n[database]\nurl = \"http://127.0.0.1:9\"\norg = \"o\"\nbucket = \"b\"\n",
+            dir.join("ledger.db")
+        );
+        let service = ServiceSettings::from_settings(&toml::from_str(&text).unwrap()).unwrap();
+        let (client, _eventloop) = AsyncClient::new(rumqttc::MqttOptions::new("unit", "127.0.0.1", 9), 100);
+        let (snap_tx, _snap_rx) = watch::channel(Arc::new(Snapshot::default()));
+        Ledger::open(cfg, service, client, snap_tx).unwrap()
+    }
+
+    /// The outbox lines of the ledger file that start with `measurement`.
+    fn outbox_lines(dir: &std::path::Path, measurement: &str) -> usize {
+        let store = Store::attach(&dir.join("ledger.db")).unwrap();
+        let lines = store.outbox_batch(usize::MAX, usize::MAX).unwrap();
+        lines.iter().filter(|(_, l)| l.starts_with(&format!("{measurement},"))).count()
+    }
+
+    /// Failed commits keep their batch but make its alarm events' points
+    /// afresh on each attempt: after three failures and one success the
+    /// outbox holds the event once (before, each retry queued it again).
+    #[test]
+    fn retried_commits_write_each_alarm_event_once() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut l = ledger(dir.path());
+        l.commit();
+        assert!(!l.retry.failing());
+        let refuse = rusqlite::Connection::open(dir.path().join("ledger.db")).unwrap();
+        refuse
+            .execute_batch(
+                "CREATE TRIGGER refuse BEFORE INSERT ON alarm_journal BEGIN SELECT RAISE(ABORT, 'refused'); END",
+            )
+            .unwrap();
+        let ev = l.book.evaluate_condition("lifeledger", "", AlarmIndex::ServiceHealth, true, "unit test", 1_000);
+        assert_eq!(ev.len(), 1);
+        l.note_events(ev);
+        for attempt in 1..=3 {
+            l.retry.try_now();
+            l.commit();
+            assert!(l.retry.failing(), "attempt {attempt} failed");
+            assert_eq!(l.counters.commit_failures, attempt);
+            assert!(l.commit_error.as_deref().is_some_and(|e| e.contains("refused")), "{:?}", l.commit_error);
+            assert!(!l.extra_outbox.iter().any(|p| p.starts_with("alarm_event,")), "{:?}", l.extra_outbox);
+        }
+        // Until the wait is over, commit() does not even try.
+        l.commit();
+        assert_eq!(l.counters.commit_failures, 3, "no attempt before the retry wait is over");
+
+        refuse.execute_batch("DROP TRIGGER refuse").unwrap();
+        l.retry.try_now();
+        l.commit();
+        assert!(!l.retry.failing() && l.commit_error.is_none());
+        assert_eq!(outbox_lines(dir.path(), "alarm_event"), 1, "the event's point is in the outbox once");
     }
 }

@@ -16,6 +16,7 @@
 //! outbox gets a last flush, the service publishes its offline status and
 //! disconnects. SIGHUP reloads the configuration and keeps every ledger.
 
+pub mod commit_retry;
 pub mod http;
 pub mod ledger;
 pub mod outbox;
@@ -112,12 +113,12 @@ pub async fn run_until_with(
 
     let (ctl_tx, ctl_rx) = std::sync::mpsc::channel::<Control>();
     let rt = tokio::runtime::Handle::current();
-    let ledger_task = tokio::task::spawn_blocking(move || ledger.run(in_rx, ctl_rx, rt));
+    let mut ledger_task = tokio::task::spawn_blocking(move || ledger.run(in_rx, ctl_rx, rt));
 
     // The event loop keeps polling until the very end so that the last
     // acknowledgements and the offline status reach the broker.
     let (loop_stop_tx, _) = broadcast::channel::<()>(1);
-    let ingest_task = tokio::spawn(run_event_loop(
+    let mut ingest_task = tokio::spawn(run_event_loop(
         svc.mqtt.clone(),
         client.clone(),
         eventloop,
@@ -127,10 +128,24 @@ pub async fn run_until_with(
     ));
 
     let (reach_tx, _reach_rx) = watch::channel(None);
-    let sender_task = svc
+    let mut sender_task = svc
         .database
         .clone()
         .map(|d| tokio::spawn(outbox::run_sender(d, svc.store.path.clone(), reach_tx, shutdown_tx.subscribe())));
+    // The outbox sender, while it runs (never, without a database).
+    let sender_ended = async {
+        match sender_task.as_mut() {
+            Some(t) => t.await,
+            None => std::future::pending().await,
+        }
+    };
+    tokio::pin!(sender_ended);
+
+    // A task that ends before shutdown is a failure: the process stops with
+    // an error naming it, so that the service manager restarts it.
+    let mut failure: Option<anyhow::Error> = None;
+    let mut ledger_done = None;
+    let mut ingest_done = false;
 
     // Signals.
     #[cfg(unix)]
@@ -142,6 +157,25 @@ pub async fn run_until_with(
         tokio::pin!(stop);
         loop {
             tokio::select! {
+                r = &mut ledger_task => {
+                    failure = Some(match &r {
+                        Ok(Err(e)) => anyhow::anyhow!("{e:#}"),
+                        Ok(Ok(())) => anyhow::anyhow!("the ledger thread stopped unexpectedly"),
+                        Err(e) => anyhow::anyhow!("the ledger thread failed: {e}"),
+                    });
+                    ledger_done = Some(r);
+                    break;
+                }
+                r = &mut ingest_task => {
+                    failure = Some(anyhow::anyhow!("the MQTT intake task stopped unexpectedly: {r:?}"));
+                    ingest_done = true;
+                    break;
+                }
+                r = &mut sender_ended => {
+                    failure = Some(anyhow::anyhow!("the outbox sender stopped unexpectedly (see the log above): {r:?}"));
+                    sender_task = None;
+                    break;
+                }
                 _ = &mut stop => { tracing::info!("stopping"); break; }
                 _ = term.recv() => { tracing::info!("SIGTERM: stopping"); break; }
                 _ = int.recv() => { tracing::info!("SIGINT: stopping"); break; }
@@ -161,10 +195,15 @@ pub async fn run_until_with(
             _ = stop => {}
         }
     }
+    if let Some(e) = &failure {
+        tracing::error!("stopping: {e:#}");
+    }
 
     // Stop intake, let the ledger commit and acknowledge.
     let _ = ctl_tx.send(Control::Stop);
-    let _ = ledger_task.await;
+    if ledger_done.is_none() {
+        let _ = ledger_task.await;
+    }
     let _ = client.try_publish(svc.mqtt.status_topic(), rumqttc::QoS::AtLeastOnce, true, offline_payload());
     // Let the event loop carry the last acknowledgements and the status out.
     tokio::time::sleep(Duration::from_millis(300)).await;
@@ -175,8 +214,13 @@ pub async fn run_until_with(
     if let Some(t) = sender_task {
         let _ = tokio::time::timeout(Duration::from_secs(10), t).await;
     }
-    let _ = tokio::time::timeout(Duration::from_secs(2), ingest_task).await;
+    if !ingest_done {
+        let _ = tokio::time::timeout(Duration::from_secs(2), ingest_task).await;
+    }
     let _ = tokio::time::timeout(Duration::from_secs(2), http_task).await;
+    if let Some(e) = failure {
+        return Err(e);
+    }
     tracing::info!("stopped");
     Ok(())
 }

@@ -2,7 +2,9 @@
 //! time-series database, oldest first, at least once.
 //!
 //! It uses its own connection to the ledger file (SQLite in WAL mode lets it
-//! read while the ledger thread writes). A batch is removed from the outbox
+//! read while the ledger thread writes), opened with
+//! [`Store::attach`](crate::store::Store::attach): through SQLite only, so
+//! the ledger thread's file locks stay intact. A batch is removed from the outbox
 //! only after the database accepted it; a failed batch is retried with
 //! exponential backoff and jitter. Because every point carries its event
 //! time, a batch that was accepted but not yet removed when the process
@@ -28,7 +30,10 @@ pub async fn run_sender(
             return;
         }
     };
-    let mut store = match tokio::task::block_in_place(|| Store::open(&ledger_path)) {
+    // `attach`, not `open`: the ledger thread holds the file open, and only
+    // a connection opened through SQLite leaves its locks intact (see
+    // `Store::attach`).
+    let mut store = match tokio::task::block_in_place(|| Store::attach(&ledger_path)) {
         Ok(s) => s,
         Err(e) => {
             tracing::error!("outbox sender cannot open the ledger: {e}");

@@ -39,6 +39,12 @@ pub struct StoreSettings {
     /// kept. At least 1.
     #[serde(default = "default_checkpoint_days")]
     pub checkpoint_days: u64,
+    /// Seconds commits may fail without a break before the service gives
+    /// up and exits with an error (for the service manager to restart it).
+    /// Until then failed commits are retried with a growing wait, nothing
+    /// is acknowledged and `/readyz` answers not ready.
+    #[serde(default = "default_commit_failure_limit")]
+    pub commit_failure_limit_s: f64,
 }
 
 fn default_path() -> PathBuf {
@@ -62,6 +68,9 @@ fn default_trend() -> u64 {
 fn default_checkpoint_days() -> u64 {
     crate::store::checkpoint::DEFAULT_DAYS
 }
+fn default_commit_failure_limit() -> f64 {
+    300.0
+}
 
 impl Default for StoreSettings {
     fn default() -> Self {
@@ -73,6 +82,7 @@ impl Default for StoreSettings {
             alarm_journal_max_events: default_journal(),
             trend_points_per_component: default_trend(),
             checkpoint_days: default_checkpoint_days(),
+            commit_failure_limit_s: default_commit_failure_limit(),
         }
     }
 }
@@ -138,23 +148,13 @@ impl ServiceSettings {
         if let Err(e) = mqtt.templates() {
             errors.push(e);
         }
+        errors.extend(mqtt_problems(&mqtt));
         let store = section::<StoreSettings>("store", &s.store).unwrap_or_else(|e| {
             errors.push(e);
             None
         });
-        if store.as_ref().is_some_and(|s| s.alarm_journal_max_events == 0) {
-            errors.push(
-                "[store]: alarm_journal_max_events = 0 would keep no alarm history; set at least 1 \
-                 (200 or more fills the status page's event list after a restart)"
-                    .into(),
-            );
-        }
-        if store.as_ref().is_some_and(|s| s.trend_points_per_component == 0) {
-            errors.push(format!(
-                "[store]: trend_points_per_component = 0 would keep no trend for the status page; set at least 1 \
-                 (the default {} is one week of points at series_interval_s = 60)",
-                default_trend()
-            ));
+        if let Some(st) = &store {
+            errors.extend(store_problems(st));
         }
         if store.as_ref().is_some_and(|s| s.checkpoint_days == 0) {
             errors.push(format!(
@@ -180,6 +180,12 @@ impl ServiceSettings {
             errors.push(e);
             None
         });
+        if let Some(h) = &http {
+            errors.extend(http_problems(h));
+        }
+        if let Some(a) = &alarms {
+            errors.extend(alarm_problems(a));
+        }
         if let Some(a) = &alarms {
             for (key, v, fix) in [
                 ("stale_grace_s", a.stale_grace_s, "for example 60"),
@@ -203,6 +209,160 @@ impl ServiceSettings {
     }
 }
 
+/// Longest time any setting in seconds may give: a day. Longer waits are
+/// surely mistakes, and the bound keeps every conversion to a `Duration`
+/// or to milliseconds far from overflow.
+const MAX_SECONDS: f64 = 86_400.0;
+
+/// A problem unless `v` is a positive, finite number of seconds of at most
+/// [`MAX_SECONDS`]. Written `[section] key = value: what; use what`.
+fn seconds_problem(section: &str, key: &str, v: f64, default: f64) -> Option<String> {
+    (!(v.is_finite() && v > 0.0 && v <= MAX_SECONDS)).then(|| {
+        format!(
+            "[{section}] {key} = {v:?}: not a usable number of seconds; use a positive number \
+             up to {MAX_SECONDS} (default {default})"
+        )
+    })
+}
+
+/// A problem unless the whole number `v` lies in `lo..=hi`.
+fn count_problem<T>(section: &str, key: &str, v: T, lo: T, hi: T, fix: &str) -> Option<String>
+where
+    T: PartialOrd + std::fmt::Display,
+{
+    (v < lo || v > hi).then(|| format!("[{section}] {key} = {v}: out of range; use {fix}"))
+}
+
+/// Every number of the `[mqtt]` section, checked so that no value can make
+/// the intake task panic or spin (`Duration::from_secs_f64` panics on a
+/// negative or NaN delay).
+fn mqtt_problems(m: &MqttSettings) -> Vec<String> {
+    let mut p = vec![];
+    p.extend(count_problem("mqtt", "port", m.port, 1, u16::MAX, "the broker's TCP port, 1 to 65535 (default 1883)"));
+    // MQTT carries the keep-alive in 16 bits; rumqttc wants at least 5 s.
+    p.extend(count_problem("mqtt", "keep_alive_s", m.keep_alive_s, 5, 65_535, "5 to 65535 seconds (default 30)"));
+    let min = seconds_problem("mqtt", "reconnect_min_s", m.reconnect_min_s, 0.5);
+    let max = seconds_problem("mqtt", "reconnect_max_s", m.reconnect_max_s, 30.0);
+    let both_usable = min.is_none() && max.is_none();
+    p.extend(min.into_iter().chain(max));
+    if both_usable && m.reconnect_max_s < m.reconnect_min_s {
+        p.push(format!(
+            "[mqtt] reconnect_max_s = {:?} is below reconnect_min_s = {:?}; use a maximum at least the minimum",
+            m.reconnect_max_s, m.reconnect_min_s
+        ));
+    }
+    p.extend(count_problem(
+        "mqtt",
+        "max_message_bytes",
+        m.max_message_bytes,
+        1024,
+        crate::ingest::MQTT_MAX_PACKET_BYTES,
+        "1024 to 268435455 bytes, at least the broker's largest packet (default 268435455)",
+    ));
+    for (i, sub) in m.subscriptions.iter().enumerate() {
+        let limit = sub.payload.max_bytes;
+        if limit == 0 || limit > m.max_message_bytes {
+            p.push(format!(
+                "[[mqtt.subscription]] #{} payload.max_bytes = {limit}: out of range; use 1 to \
+                 max_message_bytes ({}) (default {})",
+                i + 1,
+                m.max_message_bytes,
+                crate::ingest::decode::DEFAULT_MAX_PAYLOAD_BYTES
+            ));
+        }
+    }
+    p
+}
+
+/// Every number of the `[store]` section.
+fn store_problems(s: &StoreSettings) -> Vec<String> {
+    let mut p = vec![];
+    p.extend(count_problem(
+        "store",
+        "commit_max_samples",
+        s.commit_max_samples,
+        1,
+        10_000_000,
+        "at least 1 sample per commit (default 2000)",
+    ));
+    p.extend(count_problem(
+        "store",
+        "series_interval_s",
+        s.series_interval_s,
+        1,
+        MAX_SECONDS as i64,
+        "1 to 86400 seconds of event time between component_state points (default 60)",
+    ));
+    p.extend(count_problem(
+        "store",
+        "health_interval_s",
+        s.health_interval_s,
+        1,
+        MAX_SECONDS as u64,
+        "1 to 86400 seconds between service_health points (default 10)",
+    ));
+    p.extend(seconds_problem("store", "commit_failure_limit_s", s.commit_failure_limit_s, 300.0));
+    if s.alarm_journal_max_events == 0 {
+        p.push(
+            "[store] alarm_journal_max_events = 0 would keep no alarm history; use at least 1 \
+             (200 or more fills the status page's event list after a restart)"
+                .into(),
+        );
+    }
+    if s.trend_points_per_component == 0 {
+        p.push(format!(
+            "[store] trend_points_per_component = 0 would keep no trend for the status page; use at least 1 \
+             (the default {} is one week of points at series_interval_s = 60)",
+            default_trend()
+        ));
+    }
+    p
+}
+
+/// The `[http]` listen address: `HOST:PORT` with a port of 1 to 65535.
+fn http_problems(h: &HttpSettings) -> Vec<String> {
+    let port = h.listen.rsplit_once(':').map(|(_, port)| port.parse::<u16>());
+    match port {
+        Some(Ok(p)) if p > 0 => vec![],
+        _ => vec![format!(
+            "[http] listen = {:?}: not HOST:PORT with a port of 1 to 65535; use for example \"127.0.0.1:8470\"",
+            h.listen
+        )],
+    }
+}
+
+/// Deadbands (finite, not negative, a fraction below 1) and damage-rate
+/// levels (finite, not negative, rising).
+fn alarm_problems(a: &AlarmConfig) -> Vec<String> {
+    let mut p = vec![];
+    for (index, d) in &a.deadbands {
+        let name = index.name();
+        if !(d.fraction.is_finite() && (0.0..1.0).contains(&d.fraction)) {
+            p.push(format!(
+                "[alarms] deadbands.{name}.fraction = {:?}: not a usable fraction; use 0 to below 1 \
+                 (default 0.02, 2 % of the level)",
+                d.fraction
+            ));
+        }
+        if !(d.minimum.is_finite() && d.minimum >= 0.0) {
+            p.push(format!(
+                "[alarms] deadbands.{name}.minimum = {:?}: use a finite number ≥ 0 in the index's unit",
+                d.minimum
+            ));
+        }
+    }
+    let levels: Vec<(&str, f64)> = a.damage_rate.iter().collect();
+    if levels.iter().any(|(_, v)| !(v.is_finite() && *v >= 0.0)) || levels.windows(2).any(|w| w[0].1 >= w[1].1) {
+        let given: Vec<String> = levels.iter().map(|(n, v)| format!("{n} = {v:?}")).collect();
+        p.push(format!(
+            "[alarms] damage_rate {{ {} }}: levels must be finite, not negative and rising; \
+             give advisory < warning < critical in 1/h",
+            given.join(", ")
+        ));
+    }
+    p
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -210,6 +370,42 @@ mod tests {
     fn store_section(text: &str) -> Result<ServiceSettings, Vec<String>> {
         let s: Settings = toml::from_str(&format!("[store]\n{text}")).unwrap();
         ServiceSettings::from_settings(&s)
+    }
+
+    fn service(text: &str) -> Result<ServiceSettings, Vec<String>> {
+        ServiceSettings::from_settings(&toml::from_str(text).unwrap())
+    }
+
+    #[test]
+    fn the_defaults_pass_every_check() {
+        let s = service("").unwrap();
+        assert_eq!((s.mqtt.reconnect_min_s, s.mqtt.reconnect_max_s), (0.5, 30.0));
+    }
+
+    #[test]
+    fn numbers_the_service_cannot_use_are_refused_each_with_its_key() {
+        for (text, key) in [
+            ("[mqtt]\nreconnect_min_s = 0", "reconnect_min_s"),
+            ("[mqtt]\nreconnect_min_s = inf", "reconnect_min_s"),
+            ("[mqtt]\nreconnect_min_s = 5.0\nreconnect_max_s = 1.0", "reconnect_max_s = 1.0 is below"),
+            ("[mqtt]\nkeep_alive_s = 70000", "keep_alive_s"),
+            ("[mqtt]\nmax_message_bytes = 10", "max_message_bytes"),
+            ("[mqtt]\n[[mqtt.subscription]]\ntopic = \"p/{tag}\"\npayload = { max_bytes = 0 }", "payload.max_bytes"),
+            ("[store]\nseries_interval_s = 0", "series_interval_s"),
+            ("[store]\nhealth_interval_s = 86401", "health_interval_s"),
+            ("[store]\ncommit_failure_limit_s = nan", "commit_failure_limit_s"),
+            ("[store]\ncommit_failure_limit_s = -5", "commit_failure_limit_s"),
+            ("[http]\nlisten = \"127.0.0.1\"", "listen"),
+            ("[http]\nlisten = \"[::1]:0\"", "listen"),
+            ("[alarms.deadbands.wear_index]\nfraction = nan", "deadbands.wear_index.fraction"),
+            ("[alarms.deadbands.wear_index]\nfraction = 0.1\nminimum = -1", "deadbands.wear_index.minimum"),
+            ("[alarms.damage_rate]\nwarning = 1e-5\ncritical = 1e-6", "damage_rate"),
+        ] {
+            let errors = service(text).expect_err(text);
+            assert_eq!(errors.len(), 1, "{text}: {errors:?}");
+            assert!(errors[0].contains(key), "{text}: {}", errors[0]);
+        }
+        assert!(service("[http]\nlisten = \"[::1]:8470\"").is_ok());
     }
 
     #[test]
@@ -223,7 +419,7 @@ mod tests {
     fn an_alarm_journal_of_nothing_is_refused_with_the_fix() {
         let errors = store_section("alarm_journal_max_events = 0").unwrap_err();
         assert_eq!(errors.len(), 1, "{errors:?}");
-        assert!(errors[0].contains("[store]") && errors[0].contains("set at least 1"), "{}", errors[0]);
+        assert!(errors[0].contains("[store]") && errors[0].contains("use at least 1"), "{}", errors[0]);
         let typo = store_section("alarm_journal_max = 5").unwrap_err();
         assert!(typo[0].contains("unknown field"), "{typo:?}");
     }
@@ -255,6 +451,6 @@ mod tests {
         let errors = store_section("trend_points_per_component = 0\nalarm_journal_max_events = 0").unwrap_err();
         assert_eq!(errors.len(), 2, "both problems at once: {errors:?}");
         let trend = errors.iter().find(|e| e.contains("trend_points_per_component")).unwrap();
-        assert!(trend.contains("[store]") && trend.contains("set at least 1"), "{trend}");
+        assert!(trend.contains("[store]") && trend.contains("use at least 1"), "{trend}");
     }
 }

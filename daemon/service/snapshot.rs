@@ -40,6 +40,9 @@ pub struct Snapshot {
     pub outbox_quota_bytes: u64,
     /// Intake is paused because the outbox is over its quota.
     pub holding: bool,
+    /// While ledger commits fail: the last error (intake waits, nothing is
+    /// acknowledged, readiness answers not ready).
+    pub commit_failing: Option<String>,
     pub database_configured: bool,
     pub database_reachable: Option<bool>,
     pub engine: Counters,
@@ -95,6 +98,9 @@ pub struct ComponentFreshness {
 impl Snapshot {
     /// Why the service is not ready, if it is not: what `/readyz` says.
     pub fn not_ready(&self) -> Option<String> {
+        if let Some(e) = &self.commit_failing {
+            return Some(format!("ledger commits failing, intake paused: {e}"));
+        }
         if !self.mqtt_connected {
             return Some("not connected to the MQTT broker".into());
         }
@@ -197,6 +203,18 @@ pub fn metrics_text(s: &Snapshot) -> String {
         "Ledger transactions committed.",
         "counter",
         vec![(String::new(), s.service.commits as f64)],
+    );
+    metric(
+        "lifeledger_commit_failures_total",
+        "Ledger transactions that failed (nothing of them acknowledged; retried with a growing wait).",
+        "counter",
+        vec![(String::new(), s.service.commit_failures as f64)],
+    );
+    metric(
+        "lifeledger_commit_failing",
+        "1 while ledger commits fail.",
+        "gauge",
+        vec![(String::new(), s.commit_failing.is_some() as u8 as f64)],
     );
     metric(
         "lifeledger_commit_latency_ms",

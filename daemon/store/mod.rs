@@ -156,6 +156,10 @@ impl Store {
     /// An existing file is first checked without being changed; a file that
     /// is not SQLite, is damaged, belongs to another program or has a newer
     /// schema is refused with a [`StoreError`] that says what to do.
+    ///
+    /// The check reads the file's header with an ordinary file descriptor,
+    /// so call this only while the process holds no other connection to the
+    /// same file; a second connection uses [`Store::attach`].
     pub fn open(path: &Path) -> Result<Store, StoreError> {
         let found = schema::inspect(path)?;
         if found == schema::Found::Missing {
@@ -250,6 +254,52 @@ impl Store {
             trend_rows: BTreeMap::new(),
             checkpoint_days: checkpoint::DEFAULT_DAYS,
             checkpoint_newest,
+        })
+    }
+
+    /// A second connection to a ledger that this process already holds
+    /// open with [`Store::open`]: the outbox sender's, beside the ledger
+    /// thread's.
+    ///
+    /// It looks at the file only through SQLite. [`Store::open`] reads the
+    /// file's first bytes with an ordinary file descriptor, and closing any
+    /// descriptor of a file drops every POSIX lock this process holds on it
+    /// (`fcntl(2)`), including the open connection's. Another program's
+    /// `sqlite3` (the documented online backup) would then take itself for
+    /// the last connection, checkpoint the write-ahead log and delete it
+    /// under the running service, whose later commits would go into an
+    /// unlinked file and be lost by a crash. SQLite itself shares one set of
+    /// locks per file among the connections of a process, so connections it
+    /// opens are safe.
+    ///
+    /// The file must exist and be a ledger at this build's schema version;
+    /// it is never created or upgraded here.
+    pub fn attach(path: &Path) -> Result<Store, StoreError> {
+        let flags = OpenFlags::SQLITE_OPEN_READ_WRITE | OpenFlags::SQLITE_OPEN_NO_MUTEX;
+        let conn = Connection::open_with_flags(path, flags)
+            .map_err(|e| StoreError::sqlite(path, "opening a second connection to the ledger", e))?;
+        let read = |e| StoreError::sqlite(path, "reading the ledger's identity", e);
+        let application_id: i32 = conn.pragma_query_value(None, "application_id", |r| r.get(0)).map_err(read)?;
+        let version: i64 = conn.pragma_query_value(None, "user_version", |r| r.get(0)).map_err(read)?;
+        if application_id != APPLICATION_ID || version != i64::from(SCHEMA_VERSION) {
+            return Err(StoreError::NotReadable {
+                path: path.into(),
+                detail: format!(
+                    "a second connection expects a ledger at schema version {SCHEMA_VERSION} \
+                     (application_id 0x{APPLICATION_ID:08X}) that the service has opened, but found \
+                     application_id 0x{application_id:08X}, schema version {version}"
+                ),
+            });
+        }
+        configure(&conn, path)?;
+        Ok(Store {
+            conn,
+            path: path.into(),
+            journal_max_events: journal::DEFAULT_MAX_EVENTS,
+            trend_keep: trend::DEFAULT_POINTS_PER_COMPONENT,
+            trend_rows: BTreeMap::new(),
+            checkpoint_days: checkpoint::DEFAULT_DAYS,
+            checkpoint_newest: BTreeMap::new(),
         })
     }
 
@@ -514,6 +564,35 @@ mod tests {
         assert_eq!(store.path(), path);
         assert!(path.is_file());
         assert_eq!(store.load().unwrap(), Loaded::default());
+    }
+
+    #[test]
+    fn a_second_connection_attaches_to_an_open_ledger_and_sees_its_commits() {
+        let (_dir, mut store) = fresh();
+        let second = Store::attach(store.path()).unwrap();
+        let sync: i64 = second.conn.pragma_query_value(None, "synchronous", |r| r.get(0)).unwrap();
+        assert_eq!(sync, 2, "the second connection syncs as fully as the first");
+        store.commit(&Commit { outbox: &["m v=1 1".to_string()], ..Default::default() }).unwrap();
+        assert_eq!(second.outbox_stats().unwrap().lines, 1);
+    }
+
+    #[test]
+    fn attach_neither_creates_nor_takes_a_file_that_is_not_a_current_ledger() {
+        let dir = tempfile::tempdir().unwrap();
+        let missing = dir.path().join("missing.db");
+        let err = Store::attach(&missing).unwrap_err();
+        assert!(err.to_string().contains("missing.db"), "{err}");
+        assert!(!missing.exists(), "attach must not create a ledger");
+
+        let foreign = dir.path().join("foreign.db");
+        Connection::open(&foreign).unwrap().execute_batch("CREATE TABLE t (x)").unwrap();
+        let err = Store::attach(&foreign).unwrap_err();
+        assert!(err.to_string().contains("schema version 0"), "{err}");
+
+        let older = dir.path().join("older.db");
+        earlier_ledger(&older, 1);
+        let err = Store::attach(&older).unwrap_err();
+        assert!(err.to_string().contains("schema version 1"), "{err}");
     }
 
     #[test]

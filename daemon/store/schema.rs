@@ -182,6 +182,11 @@ const SQLITE_HEADER: &[u8; 16] = b"SQLite format 3\0";
 /// The file is opened read-only, so SQLite neither rolls back a hot journal
 /// nor checkpoints a write-ahead log into it; at most it creates the `-shm`
 /// companion that WAL readers need.
+///
+/// The header is read with an ordinary file descriptor, and closing it
+/// drops every POSIX lock this process holds on the file: never call this
+/// while the process has a connection to the same file open (see
+/// [`Store::attach`](super::Store::attach)).
 pub fn inspect(path: &Path) -> Result<Found, StoreError> {
     let mut head = Vec::with_capacity(SQLITE_HEADER.len());
     match File::open(path) {

@@ -176,6 +176,10 @@ fn payload(ts: i64, v: f64) -> Vec<u8> {
     format!("{{\"value\": {v:?}, \"timestamp\": {ts}}}").into_bytes()
 }
 
+/// The largest packet MQTT 3.1.1 can frame: a remaining length of at most
+/// 268 435 455 bytes (OASIS MQTT 3.1.1, section 2.2.3; from memory).
+pub const MQTT_MAX_PACKET_BYTES: usize = 268_435_455;
+
 /// Publishes every sample to `plant/{tag}` on 127.0.0.1:`port` with QoS 1
 /// as MQTT client `id`, and returns once the broker acknowledged every
 /// message.
@@ -194,6 +198,8 @@ pub fn publish_messages(port: u16, messages: Vec<(impl Into<String>, Vec<u8>)>, 
     let mut o = MqttOptions::new(id, "127.0.0.1", port);
     o.set_keep_alive(Duration::from_secs(30));
     o.set_inflight(100);
+    // Up to MQTT's largest packet, so a test can publish oversized messages.
+    o.set_max_packet_size(MQTT_MAX_PACKET_BYTES, MQTT_MAX_PACKET_BYTES);
     let (client, mut conn) = Client::new(o, 1000);
     let n = messages.len();
     let pubber = std::thread::spawn(move || {
@@ -284,6 +290,13 @@ impl Service {
     /// `kill(1)`.
     pub fn signal(&self, sig: &str) {
         Command::new("kill").args([&format!("-{sig}"), &self.child.id().to_string()]).status().unwrap();
+    }
+
+    /// Waits until the service exits by itself (bounded by [`poll_until`]);
+    /// its exit status and log.
+    pub fn wait_exit(&mut self, what: &str) -> (ExitStatus, String) {
+        let status = poll_until(what, || self.child.try_wait().unwrap());
+        (status, std::fs::read_to_string(&self.log).unwrap_or_default())
     }
 
     /// SIGKILL, as a crash would, and reaps the process.

@@ -1,0 +1,198 @@
+//! The live service under what operators and the outside world do to it,
+//! against real servers (mosquitto, VictoriaMetrics, the stock `sqlite3`
+//! tool):
+//! * the documented online backup (`sqlite3 LEDGER ".backup 'B'"`, see
+//!   deploy/README.md) taken while the service runs, followed by `kill -9`,
+//!   loses nothing acknowledged;
+//! * one message larger than the client would take does not stop intake:
+//!   it is counted as rejected and the samples behind it are processed;
+//! * commits that keep failing are counted, make `/readyz` answer not
+//!   ready, and end the process with a clear error after the configured
+//!   time, having acknowledged nothing they did not write.
+
+mod common;
+
+use common::service::{publish_all, publish_messages, samples, Service, ServiceConfig};
+use common::{free_port, http, poll_until, Mosquitto, VictoriaMetrics};
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+/// The shared test plant with `tail` after its `[http]` section.
+fn config(dir: &Path, mqtt_port: u16, http_port: u16, tail: &str) -> PathBuf {
+    ServiceConfig { plant: "Test Station", client_id: "lifeledger-faults", tail, ..ServiceConfig::default() }
+        .write(dir, mqtt_port, http_port)
+}
+
+/// A `[database]` section for VictoriaMetrics at `url`, short backoff.
+fn database(url: &str) -> String {
+    format!(
+        "[database]\nurl = \"{url}\"\norg = \"test\"\nbucket = \"test\"\nbackoff_initial_s = 0.1\nbackoff_max_s = 0.5\n"
+    )
+}
+
+/// Runs the stock `sqlite3` tool on `db` with `args`; panics with its
+/// output unless it succeeds. Returns its standard output. It waits up to
+/// 10 s for a lock the service holds in a commit rather than failing at once.
+fn sqlite3(db: &Path, args: &[&str]) -> String {
+    let o = Command::new("sqlite3")
+        .args(["-cmd", ".timeout 10000"])
+        .arg(db)
+        .args(args)
+        .output()
+        .unwrap_or_else(|e| panic!("cannot run sqlite3 (is it installed? see tests/run): {e}"));
+    assert!(
+        o.status.success(),
+        "sqlite3 {} {args:?} failed: {}{}",
+        db.display(),
+        String::from_utf8_lossy(&o.stdout),
+        String::from_utf8_lossy(&o.stderr)
+    );
+    String::from_utf8_lossy(&o.stdout).into_owned()
+}
+
+/// The number of messages the service has acknowledged, from its snapshot.
+fn acked(svc: &Service) -> Option<u64> {
+    svc.snapshot().and_then(|v| v["service"]["acked"].as_u64())
+}
+
+/// deploy/README.md's online backup, taken while the service runs with a
+/// database configured (so the outbox sender holds a second connection to
+/// the ledger), must not cost durability: every sample acknowledged after
+/// the backup is still in the ledger after a `kill -9`. The broker does not
+/// redeliver what was acknowledged, so a lost commit would show as missing
+/// samples.
+#[test]
+fn an_online_backup_then_kill_9_loses_nothing_acknowledged() {
+    let broker = Mosquitto::start();
+    let vm = VictoriaMetrics::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, &database(&vm.url()));
+    let ledger = dir.path().join("ledger.sqlite");
+    let backup = dir.path().join("backup.ledger");
+    let s = samples(300);
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+
+    publish_all(broker.port, &s[..400], "publisher-backup-1");
+    svc.wait_until_integrated(s[399].1);
+    // The backup step exactly as deploy/README.md gives it.
+    sqlite3(&ledger, &[&format!(".backup '{}'", backup.display())]);
+    assert_eq!(sqlite3(&backup, &["PRAGMA integrity_check"]).trim(), "ok", "the backup is a sound SQLite file");
+
+    publish_all(broker.port, &s[400..], "publisher-backup-2");
+    svc.wait_until_integrated(s.last().unwrap().1);
+    poll_until("every message acknowledged", || acked(&svc).filter(|&a| a >= s.len() as u64));
+    // What the service acknowledged is in the file for other readers too.
+    let n: u64 =
+        sqlite3(&ledger, &["SELECT json_extract(value, '$.accepted') FROM meta WHERE key = 'engine_counters'"])
+            .trim()
+            .parse()
+            .unwrap();
+    assert_eq!(n, s.len() as u64, "the ledger file holds every acknowledged sample while the service runs");
+
+    svc.kill9();
+    let svc = Service::start(&cfg, http_port);
+    let snap = poll_until("the snapshot after the restart", || svc.snapshot());
+    assert_eq!(
+        snap["engine"]["accepted"].as_u64(),
+        Some(s.len() as u64),
+        "every sample acknowledged before the kill is in the ledger after it"
+    );
+    assert!(svc.sigterm().success());
+}
+
+/// One message far larger than any tag sample (2 MiB) must not stop
+/// intake: the service takes it, rejects it as `oversized`, acknowledges
+/// it once the rejection is committed, and goes on with the samples behind
+/// it. Before, the client refused the packet and dropped the connection,
+/// and the broker redelivered it on every reconnect.
+#[test]
+fn an_oversized_message_is_counted_and_intake_goes_on() {
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, "");
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+
+    let s = samples(60);
+    let pad = "x".repeat(2 << 20);
+    let big = format!("{{\"value\": 500.0, \"timestamp\": {}, \"pad\": \"{pad}\"}}", s[0].1).into_bytes();
+    publish_messages(broker.port, vec![("plant/TE-1", big)], "publisher-oversized-1");
+    publish_all(broker.port, &s, "publisher-oversized-2");
+    let snap = svc.wait_until_integrated(s.last().unwrap().1);
+    assert_eq!(snap["engine"]["accepted"].as_u64(), Some(s.len() as u64), "every normal sample integrated");
+    let all = s.len() as u64 + 1;
+    poll_until("every message acknowledged, the oversized one too", || acked(&svc).filter(|&a| a >= all));
+    let m = http::get(http_port, "/metrics").unwrap().text();
+    assert!(m.contains("lifeledger_samples_rejected_total{reason=\"oversized\"} 1"), "{m}");
+    assert_eq!(http::get(http_port, "/readyz").unwrap().status, 200);
+    assert!(svc.sigterm().success());
+}
+
+/// Triggers that make every write of the service's counters fail, as a
+/// full disk or a ledger file the service may not write would: every
+/// commit writes the counters. They work whoever runs the test, root
+/// included (file permissions do not stop root), and come off again with
+/// [`ALLOW_WRITES`].
+const REFUSE_WRITES: &str = "CREATE TRIGGER test_refuse_insert BEFORE INSERT ON meta \
+     BEGIN SELECT RAISE(ABORT, 'writes refused by the test'); END; \
+     CREATE TRIGGER test_refuse_update BEFORE UPDATE ON meta \
+     BEGIN SELECT RAISE(ABORT, 'writes refused by the test'); END;";
+const ALLOW_WRITES: &str = "DROP TRIGGER test_refuse_insert; DROP TRIGGER test_refuse_update;";
+
+/// The value of an unlabelled metric in `/metrics` text.
+fn metric(text: &str, name: &str) -> Option<f64> {
+    text.lines().find_map(|l| l.strip_prefix(name)?.strip_prefix(' ')?.trim().parse().ok())
+}
+
+/// While every commit fails the service must say so and not spin: failures
+/// are counted in `/metrics`, `/readyz` answers 503 naming the cause, the
+/// error is logged a few times rather than thousands, and after
+/// `commit_failure_limit_s` the process ends with a clear error and a
+/// non-zero status (so systemd restarts it). Nothing it could not write was
+/// acknowledged: once writes work again, a restart takes the redelivered
+/// messages and the ledger holds every sample exactly once.
+#[test]
+fn failing_commits_are_reported_and_end_the_process_after_the_limit() {
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, "");
+    let text = std::fs::read_to_string(&cfg).unwrap();
+    let limit = "health_interval_s = 1\ncommit_failure_limit_s = 15\n";
+    std::fs::write(&cfg, text.replace("health_interval_s = 1\n", limit)).unwrap();
+    let ledger = dir.path().join("ledger.sqlite");
+    let s = samples(200);
+    let mut svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    publish_all(broker.port, &s[..400], "publisher-failing-1");
+    svc.wait_until_integrated(s[399].1);
+    assert_eq!(http::get(http_port, "/readyz").unwrap().status, 200);
+
+    sqlite3(&ledger, &[REFUSE_WRITES]);
+    publish_all(broker.port, &s[400..], "publisher-failing-2");
+    let why = poll_until("/readyz to answer not ready while commits fail", || {
+        http::get(http_port, "/readyz").ok().filter(|r| r.status == 503).map(|r| r.text())
+    });
+    assert!(why.contains("commit"), "readiness names the failing commits: {why}");
+    let failures = poll_until("lifeledger_commit_failures_total above 0", || {
+        let m = http::get(http_port, "/metrics").ok()?.text();
+        metric(&m, "lifeledger_commit_failures_total").filter(|&n| n > 0.0)
+    });
+    assert!(failures >= 1.0);
+
+    let (status, log) = svc.wait_exit("the service to stop after commits failed for commit_failure_limit_s");
+    assert!(!status.success(), "a service that cannot write its ledger exits with an error: {status}");
+    assert!(log.contains("commits have failed for"), "a clear last word in the log:\n{log}");
+    let logged = log.lines().filter(|l| l.contains("ledger commit failed")).count();
+    assert!((1..=20).contains(&logged), "commit errors are rate-limited, {logged} lines:\n{log}");
+    drop(svc);
+
+    sqlite3(&ledger, &[ALLOW_WRITES]);
+    let svc = Service::start(&cfg, http_port);
+    let live = svc.wait_until_integrated(s.last().unwrap().1);
+    assert_eq!(live["engine"]["accepted"].as_u64(), Some(s.len() as u64), "every sample exactly once");
+    assert!(svc.sigterm().success());
+}
