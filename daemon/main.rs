@@ -837,6 +837,7 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
         }
         if !c.creep_assessed {
             writeln!(out, "  creep                            not assessed (no metal temperature input)")?;
+            writeln!(out, "  advances with                    {}", c.advances_with)?;
             for w in &c.warnings {
                 writeln!(out, "  warning: {w}")?;
             }
