@@ -334,6 +334,50 @@ pub fn summary_table(reports: &[ComponentReport]) -> String {
     s
 }
 
+/// The temperature × pressure class table of one component as text: a row
+/// per temperature class that holds hours, a column per pressure class,
+/// with totals. Empty for a component without a metal temperature.
+pub fn class_table_text(r: &ComponentReport) -> String {
+    let t = &r.histograms.temperature_pressure;
+    let rows: Vec<(usize, &Vec<f64>)> =
+        t.hours.iter().enumerate().filter(|(_, row)| row.iter().any(|&h| h > 0.0)).collect();
+    if rows.is_empty() {
+        return String::new();
+    }
+    let label = |edges: &[f64], i: usize| match i {
+        0 => format!("< {}", edges[0]),
+        i if i == edges.len() => format!(">= {}", edges[i - 1]),
+        i => format!("{}-{}", edges[i - 1], edges[i]),
+    };
+    let pe: Vec<f64> = t.pressure_edges_mpa.iter().map(|p| (p * 1000.0).round() / 1000.0).collect();
+    let cols = pe.len() + 1;
+    let mut s = format!("{}: hours by temperature class (degC, rows) and pressure class (MPa, columns)\n", r.component);
+    s.push_str(&format!("  {:<12}", "degC \\ MPa"));
+    for j in 0..cols {
+        s.push_str(&format!(" {:>12}", label(&pe, j)));
+    }
+    s.push_str(&format!(" {:>10}\n", "all"));
+    let mut col_sum = vec![0.0; cols];
+    for (i, row) in rows {
+        s.push_str(&format!("  {:<12}", label(&t.temperature_edges_c, i)));
+        for (j, &h) in row.iter().enumerate() {
+            col_sum[j] += h;
+            if h > 0.0 {
+                s.push_str(&format!(" {h:>12.1}"));
+            } else {
+                s.push_str(&format!(" {:>12}", "."));
+            }
+        }
+        s.push_str(&format!(" {:>10.1}\n", row.iter().sum::<f64>()));
+    }
+    s.push_str(&format!("  {:<12}", "all"));
+    for h in &col_sum {
+        s.push_str(&format!(" {h:>12.1}"));
+    }
+    s.push_str(&format!(" {:>10.1}\n", col_sum.iter().sum::<f64>()));
+    s
+}
+
 /// Counter summary line.
 pub fn counters_line(c: &Counters) -> String {
     format!(
@@ -483,5 +527,12 @@ mod tests {
         assert!((t.hours[ti][pi] - 10.0).abs() < 1e-9, "{:?}", t.hours);
         let total: f64 = t.hours.iter().flatten().sum();
         assert!((total - 10.0).abs() < 1e-9);
+        // The text form (`lifeledger ledger`): one class row, and totals.
+        let text = class_table_text(&r);
+        let lines: Vec<&str> = text.lines().collect();
+        assert_eq!(lines.len(), 4, "{text}");
+        assert!(lines[1].contains("< 3.6") && lines[1].contains(">= 21.6"), "{text}");
+        assert!(lines[2].trim_start().starts_with("550-560") && lines[2].trim_end().ends_with("10.0"), "{text}");
+        assert!(lines[3].trim_start().starts_with("all"), "{text}");
     }
 }
