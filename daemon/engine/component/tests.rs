@@ -457,3 +457,21 @@ fn creep_hours_where_temperature_and_pressure_cross_in_opposite_directions() {
     let got = component(&e, "TUBE").hours_in_creep_range;
     assert!((got - want).abs() < 1e-9, "{got} h, closed form {want} h");
 }
+
+#[test]
+fn class_origin_is_configurable_and_engine_numbers_are_checked() {
+    let with = |extra: &str| CONFIG.replace("curve_basis = \"mean\"", &format!("curve_basis = \"mean\"\n{extra}"));
+    let plan = plan_settings("test", toml::from_str(&with("temperature_class_origin_c = 5")).unwrap()).unwrap().plan;
+    let edges: Vec<f64> = plan.components[0].temperature_edges_k.iter().map(|k| k - 273.15).collect();
+    assert!((edges[0] - 495.0).abs() < 1e-9, "{edges:?}");
+    assert!(edges.windows(2).all(|w| (w[1] - w[0] - 10.0).abs() < 1e-9));
+    for (bad, key) in [
+        ("recent_rate_settling_h = -1", "recent_rate_settling_h"),
+        ("recent_rate_window_h = 0", "recent_rate_window_h"),
+        ("temperature_class_k = 0", "temperature_class_k"),
+    ] {
+        let err = plan_settings("test", toml::from_str(&with(bad)).unwrap()).err().expect(bad);
+        let p = err.problems.iter().find(|p| p.key == key).unwrap_or_else(|| panic!("{bad}: {err}"));
+        assert_eq!(p.place, "[engine]");
+    }
+}
