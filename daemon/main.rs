@@ -39,7 +39,9 @@ enum Command {
     /// Replay a historian CSV export through the engine and print the ledger.
     ///
     /// The CSV is long format, one sample per row: `timestamp,tag,value[,quality]`,
-    /// with an optional header row. Timestamps are RFC 3339 or epoch seconds;
+    /// with an optional header row. Timestamps are RFC 3339 or epoch seconds
+    /// (milliseconds at or above 1e11); rows stamped ahead of the clock or
+    /// before [engine] earliest_plausible are rejected and listed;
     /// quality is good (default), uncertain or bad. The file may be gzipped.
     /// Values are in each tag's configured unit. Malformed rows are counted
     /// and listed with their line numbers; they never stop the replay.
@@ -297,7 +299,10 @@ fn cmd_replay(
         )),
         None => None,
     };
-    let opts = lifeledger::replay::ReplayOptions { lp_interval_ms: lp_interval_s.max(1) * 1000 };
+    let opts = lifeledger::replay::ReplayOptions {
+        lp_interval_ms: lp_interval_s.max(1) * 1000,
+        ..lifeledger::replay::ReplayOptions::default()
+    };
     let started = std::time::Instant::now();
     let outcome =
         lifeledger::replay::replay(&mut engine, reader, lp_file.as_mut().map(|w| w as &mut dyn Write), &opts, |rows| {
@@ -325,6 +330,7 @@ fn cmd_replay(
                 "rows": outcome.rows,
                 "malformed_rows": outcome.malformed,
                 "malformed_examples": outcome.malformed_examples,
+                "implausible_time_examples": outcome.implausible_examples,
                 "unknown_tags": outcome.unknown_tags,
                 "first_sample": outcome.first_time_ms.map(report::rfc3339_ms),
                 "last_sample": outcome.last_time_ms.map(report::rfc3339_ms),
@@ -345,6 +351,16 @@ fn cmd_replay(
             if outcome.malformed > 0 {
                 writeln!(out, "malformed rows: {}", outcome.malformed)?;
                 for m in &outcome.malformed_examples {
+                    writeln!(out, "  line {}: {}", m.line, m.problem)?;
+                }
+            }
+            let implausible = engine.counters().implausible_time;
+            if implausible > 0 {
+                writeln!(
+                    out,
+                    "WARNING: {implausible} rows rejected for an implausible event time (never integrated):"
+                )?;
+                for m in &outcome.implausible_examples {
                     writeln!(out, "  line {}: {}", m.line, m.problem)?;
                 }
             }
@@ -475,7 +491,10 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
         "database": service.database.as_ref().map(|d| lifeledger::sink::redacted_url(&d.url)),
         "http": service.http.listen,
     });
-    let checks: Vec<_> = cfg.plan.components.iter().map(report::design_check).collect();
+    let mut checks: Vec<_> = cfg.plan.components.iter().map(report::design_check).collect();
+    for (ci, c) in checks.iter_mut().enumerate() {
+        c.advances_with = report::advance_rule(&cfg.plan, ci);
+    }
     let mut out = std::io::stdout().lock();
     if format == Format::Json {
         let j = serde_json::json!({
@@ -522,6 +541,7 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
         for (k, h) in &c.hours_to_levels_at_design {
             writeln!(out, "  hours at design to {k:<22} {h:.0} h")?;
         }
+        writeln!(out, "  advances with                    {}", c.advances_with)?;
         for w in &c.warnings {
             writeln!(out, "  warning: {w}")?;
         }

@@ -59,6 +59,8 @@ pub struct ReplayOutcome {
     pub first_time_ms: Option<i64>,
     pub last_time_ms: Option<i64>,
     pub points_written: u64,
+    /// The first rows rejected for an implausible event time.
+    pub implausible_examples: Vec<MalformedRow>,
 }
 
 /// Options of a replay.
@@ -66,11 +68,14 @@ pub struct ReplayOutcome {
 pub struct ReplayOptions {
     /// Event-time spacing of the component series written as line protocol.
     pub lp_interval_ms: i64,
+    /// Wall-clock time of the replay, ms: rows stamped further ahead of it
+    /// than the plan's margin are rejected as implausible, as live.
+    pub now_ms: i64,
 }
 
 impl Default for ReplayOptions {
     fn default() -> Self {
-        ReplayOptions { lp_interval_ms: 600_000 }
+        ReplayOptions { lp_interval_ms: 600_000, now_ms: chrono::Utc::now().timestamp_millis() }
     }
 }
 
@@ -97,7 +102,13 @@ fn digits(b: &[u8]) -> Option<i64> {
     Some(v)
 }
 
-/// Parse an RFC 3339 timestamp or epoch seconds to milliseconds.
+/// Epoch numbers at or above this are milliseconds, below it seconds
+/// (1e11 s is the year 5138; 1e11 ms is 1973), as the MQTT decoder reads
+/// numeric timestamps by magnitude.
+pub const EPOCH_MS_FROM: f64 = 1e11;
+
+/// Parse an RFC 3339 timestamp or an epoch number (seconds, or
+/// milliseconds by magnitude: see [`EPOCH_MS_FROM`]) to milliseconds.
 pub fn parse_timestamp_ms(s: &str) -> Option<i64> {
     let b = s.as_bytes();
     if b.len() >= 20
@@ -152,11 +163,14 @@ pub fn parse_timestamp_ms(s: &str) -> Option<i64> {
         let secs = days * 86_400 + h * 3600 + mi * 60 + se - offset_min * 60;
         return Some(secs * 1000 + frac_ms);
     }
-    // Epoch seconds (integer or decimal).
+    // Epoch seconds or milliseconds (integer or decimal).
     if !b.is_empty() && b.iter().all(|c| c.is_ascii_digit() || *c == b'.' || *c == b'-') {
         let v: f64 = s.parse().ok()?;
-        if v.is_finite() && v.abs() < 1e13 {
+        if v.is_finite() && v.abs() < EPOCH_MS_FROM {
             return Some((v * 1000.0).round() as i64);
+        }
+        if v.is_finite() && v.abs() < 1e15 {
+            return Some(v.round() as i64);
         }
     }
     None
@@ -218,7 +232,7 @@ pub fn parse_row(line: &str) -> Result<Row<'_>, String> {
     let value = &line[cut[1] + 1..cut[2]];
     let quality = if n == 3 { &line[cut[2] + 1..] } else { "" };
     let time_ms = parse_timestamp_ms(trim(ts))
-        .ok_or_else(|| format!("timestamp {ts:?} is neither RFC 3339 nor epoch seconds"))?;
+        .ok_or_else(|| format!("timestamp {ts:?} is neither RFC 3339 nor epoch seconds or milliseconds"))?;
     let tag = trim(tag);
     if tag.is_empty() {
         return Err("empty tag".into());
@@ -326,32 +340,65 @@ pub fn replay(
             *out.unknown_tags.entry(row.tag.to_string()).or_insert(0) += 1;
             continue;
         };
-        out.first_time_ms = Some(out.first_time_ms.map_or(row.time_ms, |t| t.min(row.time_ms)));
-        out.last_time_ms = Some(out.last_time_ms.map_or(row.time_ms, |t| t.max(row.time_ms)));
-        let _ = engine.ingest(&Sample { tag, time_ms: row.time_ms, value: row.value, quality: row.quality });
-        if let Some(w) = lp.as_deref_mut() {
-            for (ci, next) in next_lp.iter_mut().enumerate() {
-                let Some(t) = engine.components()[ci].integrated_to_ms else { continue };
-                if t >= *next {
-                    let plan = &engine.plan().components[ci];
-                    let p = component_point(&plant, plan, &engine.components()[ci], t);
-                    if let Some(line) = p.to_line() {
-                        writeln!(w, "{line}")?;
-                        out.points_written += 1;
-                    }
-                    // Threshold lines beside the series, as the live service writes them.
-                    for tp in crate::report::threshold_points(&plant, plan, t) {
-                        if let Some(line) = tp.to_line() {
-                            writeln!(w, "{line}")?;
-                        }
-                    }
-                    *next = (t.div_euclid(interval) + 1) * interval;
-                }
-            }
+        let r =
+            engine.offer(&Sample { tag, time_ms: row.time_ms, value: row.value, quality: row.quality }, opts.now_ms);
+        if r != Err(crate::engine::Rejection::ImplausibleTime) {
+            out.first_time_ms = Some(out.first_time_ms.map_or(row.time_ms, |t| t.min(row.time_ms)));
+            out.last_time_ms = Some(out.last_time_ms.map_or(row.time_ms, |t| t.max(row.time_ms)));
+        } else if out.implausible_examples.len() < MALFORMED_EXAMPLES {
+            out.implausible_examples.push(MalformedRow {
+                line: lineno,
+                problem: format!(
+                    "{} stamped {}: outside the plausible event times (earliest {}, at most {} s ahead of the clock)",
+                    row.tag,
+                    crate::report::rfc3339_ms(row.time_ms),
+                    crate::report::rfc3339_ms(engine.plan().earliest_plausible_ms),
+                    engine.plan().future_margin_ms / 1000
+                ),
+            });
         }
+        if let Some(w) = lp.as_deref_mut() {
+            write_series(engine, w, &plant, &mut next_lp, interval, &mut out)?;
+        }
+    }
+    // The end of the input: integrate what the reorder window still holds.
+    engine.flush();
+    if let Some(w) = lp {
+        write_series(engine, w, &plant, &mut next_lp, interval, &mut out)?;
     }
     tick(out.rows);
     Ok(out)
+}
+
+/// Write a `component_state` point (and its threshold lines) for every
+/// component whose integration passed its next series instant.
+fn write_series(
+    engine: &Engine,
+    w: &mut dyn Write,
+    plant: &str,
+    next_lp: &mut [i64],
+    interval: i64,
+    out: &mut ReplayOutcome,
+) -> io::Result<()> {
+    for (ci, next) in next_lp.iter_mut().enumerate() {
+        let Some(t) = engine.components()[ci].integrated_to_ms else { continue };
+        if t >= *next {
+            let plan = &engine.plan().components[ci];
+            let p = component_point(plant, plan, &engine.components()[ci], t);
+            if let Some(line) = p.to_line() {
+                writeln!(w, "{line}")?;
+                out.points_written += 1;
+            }
+            // Threshold lines beside the series, as the live service writes them.
+            for tp in crate::report::threshold_points(plant, plan, t) {
+                if let Some(line) = tp.to_line() {
+                    writeln!(w, "{line}")?;
+                }
+            }
+            *next = (t.div_euclid(interval) + 1) * interval;
+        }
+    }
+    Ok(())
 }
 
 #[cfg(test)]

@@ -381,8 +381,9 @@ pub fn class_table_text(r: &ComponentReport) -> String {
 /// Counter summary line.
 pub fn counters_line(c: &Counters) -> String {
     format!(
-        "samples accepted {}, uncertain {}, rejected {} (not finite {}, out of range {}, bad quality {}, duplicate {}, late {}, unknown tag {})",
-        c.accepted, c.uncertain, c.rejected(), c.not_finite, c.out_of_range, c.bad_quality, c.duplicate, c.late, c.unknown_tag
+        "samples accepted {}, uncertain {}, rejected {} (not finite {}, out of range {}, bad quality {}, duplicate {}, late {}, unknown tag {}, implausible time {})",
+        c.accepted, c.uncertain, c.rejected(), c.not_finite, c.out_of_range, c.bad_quality, c.duplicate, c.late, c.unknown_tag,
+        c.implausible_time
     )
 }
 
@@ -404,6 +405,21 @@ pub struct DesignCheck {
     #[serde(serialize_with = "ordered_map")]
     pub hours_to_levels_at_design: Vec<(String, f64)>,
     pub warnings: Vec<String>,
+    /// What moves this part's ledger on (see [`advance_rule`]).
+    pub advances_with: String,
+}
+
+/// How a component's ledger advances: with the samples of its tags, or,
+/// when every input is a constant, with the plant clock.
+pub fn advance_rule(plan: &crate::engine::Plan, ci: usize) -> String {
+    let tags: Vec<&str> = plan.components[ci].tags().iter().map(|&t| plan.tags[t as usize].name.as_str()).collect();
+    if tags.is_empty() {
+        "the plant clock (every input is a constant): the newest event time of the plant's data in replay, \
+         the wall clock in the service"
+            .into()
+    } else {
+        format!("the samples of {}", tags.join(", "))
+    }
 }
 
 /// Serialize name–value pairs as a map.
@@ -465,6 +481,7 @@ pub fn design_check(plan: &ComponentPlan) -> DesignCheck {
         rupture_life_mean_h: life_mean,
         hours_to_levels_at_design: hours_to,
         warnings,
+        advances_with: String::new(),
     }
 }
 

@@ -272,3 +272,73 @@ fn help_teaches_and_cautions() {
         assert!(out.contains("governing code"), "{sub:?}");
     }
 }
+
+#[test]
+fn a_part_with_only_constant_inputs_advances_and_check_config_says_how() {
+    // A fretting contact characterised once by a vibration survey: load,
+    // slip and frequency all constants. It used to end a month of replay
+    // with 0 h integrated and no wear.
+    let dir = tempfile::tempdir().unwrap();
+    let cfg = demo_with(
+        dir.path(),
+        "surveyed.toml",
+        r#"
+[[component]]
+name = "U2-SH1-SUPPORT-R09"
+unit = "U2"
+kind = "wear_contact"
+material = "1.25Cr-0.5Mo"
+[component.wear]
+model = "fretting"
+normal_load = { value = 120.0, unit = "N" }
+slip_amplitude = { value = 30.0, unit = "um" }
+frequency = { value = 14.0, unit = "Hz" }
+wear_coefficient = 1.5e-8
+contact_area_mm2 = 50.0
+allowable_depth = { value = 0.8, unit = "mm" }
+"#,
+    );
+    let (code, out, err) = run(&["check-config", cfg.to_str().unwrap()]);
+    assert_eq!(code, 0, "{err}");
+    let block = out.split("\n\n").find(|b| b.contains("U2-SH1-SUPPORT-R09")).unwrap();
+    assert!(block.contains("advances with") && block.contains("plant clock"), "{block}");
+    let other = out.split("\n\n").find(|b| b.contains("U2-SH1-SUPPORT-R07")).unwrap();
+    assert!(other.contains("the samples of U2.SH1.WT-171, U2.SH1.ZT-172"), "{other}");
+    let (code, out, err) = run(&[
+        "replay",
+        "--config",
+        cfg.to_str().unwrap(),
+        "--input",
+        "config/demo/history.csv.gz",
+        "--format",
+        "json",
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+    let c = v["components"].as_array().unwrap().iter().find(|c| c["component"] == "U2-SH1-SUPPORT-R09").unwrap();
+    // The plant's data span 2026-10-01T00:00Z to 2026-10-31T23:59Z.
+    let hours = 31.0 * 24.0 - 1.0 / 60.0;
+    assert!((c["integrated_h"].as_f64().unwrap() - hours).abs() < 1e-9, "{c}");
+    // Fretting work-rate model (closed form): sliding speed 4·δ·f =
+    // 4 · 0.030 mm · 14 Hz = 1.68 mm/s; depth rate K·F·v/A per second.
+    let want = 1.5e-8 * 120.0 * 1.68 / 50.0 * 3600.0 * hours;
+    let got = c["wear_depth_mm"].as_f64().unwrap();
+    assert!((got / want - 1.0).abs() < 1e-12, "wear {got} mm, closed form {want} mm");
+}
+
+#[test]
+fn a_plant_name_with_a_control_character_is_refused() {
+    // Every name that reaches the database is validated: a newline or NUL
+    // in the plant name would split or end a line-protocol point.
+    let dir = tempfile::tempdir().unwrap();
+    for (name, bad) in [("newline", "LP2\\nx"), ("nul", "LP2\\u0000")] {
+        let demo = std::fs::read_to_string("config/demo/plant.toml").unwrap();
+        let text = demo.replace("name = \"Brackenmoor Demo Station\"", &format!("name = \"{bad}\""));
+        assert_ne!(text, demo, "the demo's plant name is where the test expects it");
+        let path = dir.path().join(format!("{name}.toml"));
+        std::fs::write(&path, text).unwrap();
+        let (code, out, err) = run(&["check-config", path.to_str().unwrap()]);
+        assert_eq!(code, 1, "{name}: {out}{err}");
+        assert!(err.contains("[plant]") && err.contains("control character"), "{name}: {err}");
+    }
+}

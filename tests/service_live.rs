@@ -594,3 +594,109 @@ fn trends_survive_a_restart() {
     assert_eq!(*t.last().unwrap(), s.last().unwrap().1 * 1000);
     assert!(svc.sigterm().success());
 }
+
+#[test]
+fn a_sample_stamped_in_2062_is_a_sensor_fault_and_poisons_nothing() {
+    // The reproduction: one JSON sample stamped decades ahead used to be
+    // integrated to that instant, after which every good sample was late
+    // and the component stayed dead.
+    let dir = tempfile::tempdir().unwrap();
+    let (broker, cfg, svc) = start_plant(dir.path());
+    let s = samples(240);
+    let (first, rest) = s.split_at(400);
+    publish_all(broker.port, first, "publisher-before");
+    // 2062-03-01T00:00:00Z, as epoch seconds.
+    publish_messages(
+        broker.port,
+        vec![("plant/TE-1", br#"{"value": 560.0, "timestamp": 2908483200}"#.to_vec())],
+        "gateway-with-a-bad-clock",
+    );
+    publish_all(broker.port, rest, "publisher-after");
+    let live = svc.wait_until_integrated(s.last().unwrap().1);
+    let replay = replay_json(&cfg, &csv(dir.path(), &s));
+    compare(&live, &replay, 0.0);
+    assert_eq!(live["engine"]["implausible_time"], 1, "counted by its own reason");
+    assert_eq!(live["engine"]["accepted"], replay["counters"]["accepted"]);
+    let m = http::get(svc.http_port, "/metrics").unwrap().text();
+    assert!(m.contains("lifeledger_samples_rejected_total{reason=\"implausible_time\"} 1"), "{m}");
+    // Shown as a sensor fault of the tube that reads TE-1.
+    let tube = live["alarms"].as_array().unwrap().iter().find(|a| a["component"] == "SH-TUBE").unwrap();
+    let fault = tube["alarms"].as_array().unwrap().iter().find(|r| r["index"] == "sensor_out_of_range");
+    assert!(fault.is_some_and(|r| r["state"] != "normal"), "no sensor fault for the 2062 sample: {tube}");
+    assert!(svc.sigterm().success());
+}
+
+/// The state of alarm `index` of `component` in a snapshot.
+fn alarm_state(snap: &serde_json::Value, component: &str, index: &str) -> Option<String> {
+    let c = snap["alarms"].as_array()?.iter().find(|a| a["component"] == component)?;
+    let r = c["alarms"].as_array()?.iter().find(|r| r["index"] == index)?;
+    r["state"].as_str().map(String::from)
+}
+
+#[test]
+fn a_dead_feed_raises_stale_alarms_by_the_wall_clock_and_readiness_says_so() {
+    // The reproduction: ten minutes of samples, then nothing, used to leave
+    // every alarm normal and /readyz ready; a tag that never reported
+    // raised nothing.
+    let dir = tempfile::tempdir().unwrap();
+    let broker = Mosquitto::start();
+    let http_port = free_port();
+    let cfg = ServiceConfig {
+        plant: "Test Station",
+        client_id: "lifeledger-dead-feed",
+        tail: "[alarms]\nstale_grace_s = 1\nno_data_alarm_s = 6\n",
+        ..ServiceConfig::default()
+    }
+    .write(dir.path(), broker.port, http_port);
+    let text = std::fs::read_to_string(&cfg).unwrap().replace("max_hold_s = 600", "max_hold_s = 3");
+    std::fs::write(&cfg, text).unwrap();
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    // Ten minutes of samples stamped up to now, for every tag but SLIP-1.
+    let now_s = chrono::Utc::now().timestamp();
+    let mut msgs = vec![];
+    for k in (0..10).rev() {
+        let ts = now_s - 60 * k;
+        for (tag, v) in [("TE-1", 540.0), ("PT-1", 170.0), ("LOAD-1", 80.0)] {
+            msgs.push((format!("plant/{tag}"), format!("{{\"value\": {v}, \"timestamp\": {ts}}}").into_bytes()));
+        }
+    }
+    publish_messages(broker.port, msgs, "feed-that-dies");
+    let snap = poll_until("the feed's samples to be accepted", || {
+        svc.snapshot().filter(|s| s["engine"]["accepted"].as_u64() == Some(30))
+    });
+    let te = snap["freshness"]["tags"].as_array().unwrap().iter().find(|t| t["tag"] == "TE-1").unwrap().clone();
+    assert!(te["data_age_s"].as_f64().is_some(), "{te}");
+    // SLIP-1 never reported: the support's stale alarm, from start-up.
+    poll_until("the stale alarm of the support (SLIP-1 never reported)", || {
+        svc.snapshot().filter(|s| alarm_state(s, "SUPPORT", "sensor_stale").is_some_and(|st| st != "normal"))
+    });
+    // The feed is dead: the tube's inputs go stale by the wall clock.
+    poll_until("the stale alarm of the tube after its feed stopped", || {
+        svc.snapshot().filter(|s| alarm_state(s, "SH-TUBE", "sensor_stale").is_some_and(|st| st != "normal"))
+    });
+    let r = poll_until("/readyz to say there is no plant data", || {
+        http::get(http_port, "/readyz").ok().filter(|r| r.status == 503)
+    });
+    assert!(r.text().contains("no plant data"), "{}", r.text());
+    let m = http::get(http_port, "/metrics").unwrap().text();
+    assert!(m.contains("lifeledger_tag_data_age_seconds{tag=\"TE-1\"}"), "{m}");
+    assert!(m.contains("lifeledger_tag_stale{tag=\"SLIP-1\"} 1"), "{m}");
+    assert!(m.contains("lifeledger_plant_data_missing 1"), "{m}");
+    assert!(m.contains("lifeledger_component_lag_seconds{component=\"SH-TUBE\"}"), "{m}");
+    let snap = svc.snapshot().unwrap();
+    let tube =
+        snap["freshness"]["components"].as_array().unwrap().iter().find(|c| c["component"] == "SH-TUBE").unwrap();
+    assert!(tube["data_age_s"].as_f64().unwrap() >= 3.0, "{tube}");
+    // The plant-level service-health alarm went out as an event.
+    assert!(
+        snap["recent_events"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|e| e["index"] == "service_health" && e["component"] == "lifeledger:plant-data"),
+        "{}",
+        snap["recent_events"]
+    );
+    assert!(svc.sigterm().success());
+}

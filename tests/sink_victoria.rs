@@ -141,3 +141,60 @@ async fn a_full_batch_arrives_whole() {
     assert!((got[0].values[4321] - sent).abs() <= 1e-12 * sent, "{}", got[0].values[4321]);
     assert_eq!(got[0].timestamps[4321], T0_NS / MS + 4321);
 }
+
+/// Names with every character line protocol treats specially, each alone,
+/// at the end of a name and before another special one.
+const AWKWARD_NAMES: [&str; 12] = [
+    "C4\\",
+    "C6\\,z=w",
+    "\\lead",
+    "mid\\dle",
+    "two\\\\back",
+    "a b",
+    "x=y",
+    "co,mma",
+    "quo\"te",
+    "end ",
+    "=",
+    "\\ \\=\\,",
+];
+
+#[tokio::test]
+async fn names_with_special_characters_come_back_as_they_were() {
+    // The reproduction: components named `C4\` and `C6\,z=w`, or a plant
+    // `LP2\`, made the database refuse every point (or swallow the next
+    // tag) while the service counted them delivered.
+    let vm = VictoriaMetrics::start();
+    let w = writer_for(&vm);
+    let mut lines = vec![];
+    for (i, name) in AWKWARD_NAMES.iter().enumerate() {
+        lines.push(
+            Point::new("component_state", T0_NS + i as i64 * MS)
+                .tag("plant", "LP2\\")
+                .tag("component", name)
+                .tag("unit", "U\\1")
+                .float("creep_life_fraction", i as f64)
+                .string("note", &format!("say \"{name}\" \\ done"))
+                .to_line()
+                .unwrap(),
+        );
+    }
+    w.write_lines(&lines).await.expect("the database accepts every line");
+    vm.flush();
+    let series = vm.export(r#"{__name__="component_state_creep_life_fraction"}"#);
+    let mut got: Vec<(String, String, String)> = series
+        .iter()
+        .map(|s| {
+            (
+                s.label("component").unwrap_or("?").to_string(),
+                s.label("plant").unwrap_or("?").to_string(),
+                s.label("unit").unwrap_or("?").to_string(),
+            )
+        })
+        .collect();
+    got.sort();
+    let mut want: Vec<(String, String, String)> =
+        AWKWARD_NAMES.iter().map(|n| (n.to_string(), "LP2\\".to_string(), "U\\1".to_string())).collect();
+    want.sort();
+    assert_eq!(got, want, "labels as written (line protocol escaping per the InfluxDB v2 reference)");
+}

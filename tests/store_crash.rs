@@ -60,6 +60,7 @@ fn write_until_killed(path: &Path) -> ! {
             outbox: &outbox,
             alarm_events: &[event],
             trend_points: &[("c".to_string(), point)],
+            ..Commit::default()
         };
         store.commit(&batch).expect("writer commits");
         if k % DRAIN_EVERY == 0 {

@@ -54,9 +54,19 @@ pub const MAX_SHELVE_H: f64 = 720.0;
 const MS_PER_H: f64 = 3_600_000.0;
 
 /// Book-wide settings.
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct AlarmConfig {
+    /// Seconds beyond a tag's hold time without an accepted sample, by the
+    /// wall clock, before its sensor-stale alarm (default 60 s: a couple of
+    /// missed gateway scans). A tag that never reports is judged from the
+    /// service's start.
+    #[serde(default = "default_stale_grace")]
+    pub stale_grace_s: f64,
+    /// Seconds without an accepted sample from any tag before the plant-level
+    /// service-health alarm and a not-ready `/readyz` (default 300 s).
+    #[serde(default = "default_no_data")]
+    pub no_data_alarm_s: f64,
     /// Deadbands by index; an index not listed uses
     /// [`Deadband::default_for`].
     #[serde(default)]
@@ -66,6 +76,24 @@ pub struct AlarmConfig {
     /// component thresholds do not carry damage-rate levels.
     #[serde(default)]
     pub damage_rate: Levels,
+}
+
+fn default_stale_grace() -> f64 {
+    60.0
+}
+fn default_no_data() -> f64 {
+    300.0
+}
+
+impl Default for AlarmConfig {
+    fn default() -> Self {
+        AlarmConfig {
+            stale_grace_s: default_stale_grace(),
+            no_data_alarm_s: default_no_data(),
+            deadbands: BTreeMap::new(),
+            damage_rate: Levels::default(),
+        }
+    }
 }
 
 impl AlarmConfig {

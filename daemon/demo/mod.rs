@@ -173,7 +173,9 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
         let mut next_ms = start_ms;
         let mut last_print = Instant::now();
         loop {
-            let sim_now = start_ms + (began.elapsed().as_secs_f64() * speed * 1000.0) as i64;
+            // The simulated clock stops at the present: the service rejects
+            // samples stamped ahead of the wall clock.
+            let sim_now = (start_ms + (began.elapsed().as_secs_f64() * speed * 1000.0) as i64).min(now_ms());
             while next_ms <= sim_now {
                 for s in simulator.samples_at(next_ms) {
                     let payload = format!("{{\"value\": {}, \"timestamp\": {}}}", s.value, s.time_ms);

@@ -7,6 +7,14 @@
 //!   late arrival and is dropped and counted, never integrated;
 //! * non-finite, out-of-range and bad-quality samples are rejected and
 //!   counted; nothing already accepted changes;
+//! * a sample stamped further ahead of the wall clock than the plan's
+//!   margin, or before its earliest plausible time, is rejected as an
+//!   implausible time: it never moves a cursor, a watermark or the window;
+//! * samples are held for the plan's reorder window of event time and
+//!   integrated in event-time order, so data reordered within the window
+//!   gives the same ledger as ordered data ([`Engine::offer`]);
+//! * a component with no tag input advances with the plant's clock (the
+//!   newest integrated event time, or a clock the caller gives);
 //! * a component integrates up to the newest instant all its live inputs
 //!   have reached (its watermark), so samples of several tags stamped at the
 //!   same instant give the same ledger whatever order they arrive in;
@@ -93,6 +101,9 @@ pub enum Rejection {
     Duplicate,
     Late,
     UnknownTag,
+    /// Event time ahead of the wall clock by more than the margin, or
+    /// before the earliest plausible time.
+    ImplausibleTime,
 }
 
 impl Rejection {
@@ -105,21 +116,24 @@ impl Rejection {
             Rejection::Duplicate => "duplicate",
             Rejection::Late => "late",
             Rejection::UnknownTag => "unknown_tag",
+            Rejection::ImplausibleTime => "implausible_time",
         }
     }
 
-    pub const ALL: [Rejection; 6] = [
+    pub const ALL: [Rejection; 7] = [
         Rejection::NotFinite,
         Rejection::OutOfRange,
         Rejection::BadQuality,
         Rejection::Duplicate,
         Rejection::Late,
         Rejection::UnknownTag,
+        Rejection::ImplausibleTime,
     ];
 }
 
 /// Counts of what the engine did with its samples.
 #[derive(Debug, Clone, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(default)]
 pub struct Counters {
     pub accepted: u64,
     pub uncertain: u64,
@@ -129,6 +143,7 @@ pub struct Counters {
     pub duplicate: u64,
     pub late: u64,
     pub unknown_tag: u64,
+    pub implausible_time: u64,
 }
 
 impl Counters {
@@ -140,6 +155,7 @@ impl Counters {
             Rejection::Duplicate => self.duplicate += 1,
             Rejection::Late => self.late += 1,
             Rejection::UnknownTag => self.unknown_tag += 1,
+            Rejection::ImplausibleTime => self.implausible_time += 1,
         }
     }
 
@@ -152,6 +168,7 @@ impl Counters {
             Rejection::Duplicate => self.duplicate,
             Rejection::Late => self.late,
             Rejection::UnknownTag => self.unknown_tag,
+            Rejection::ImplausibleTime => self.implausible_time,
         }
     }
 
@@ -169,6 +186,33 @@ pub struct EngineState {
     /// Per component, by name.
     pub components: Vec<(String, ComponentState)>,
     pub counters: Counters,
+    /// Samples accepted but still inside the reorder window, by tag name,
+    /// in event-time order.
+    #[serde(default)]
+    pub held: Vec<(String, HeldSample)>,
+}
+
+/// An accepted sample waiting in the reorder window (value already in
+/// internal units). What the ledger store keeps so that an acknowledged
+/// sample survives a crash before it is integrated.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct HeldSample {
+    /// Arrival order, unique within a ledger.
+    pub seq: u64,
+    pub time_ms: i64,
+    pub value: f64,
+    /// Wall-clock time of arrival, ms (releases a sample that waited a
+    /// whole window of wall time although event time stood still).
+    pub arrival_ms: i64,
+}
+
+/// What changed in the reorder window since the last
+/// [`Engine::take_held_changes`]: samples to store, sequence numbers to
+/// delete.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct HeldChanges {
+    pub added: Vec<(TagId, HeldSample)>,
+    pub released: Vec<u64>,
 }
 
 /// A one-to-many relation (tag → components, component → tags) in two flat
@@ -216,6 +260,19 @@ pub struct Engine {
     counters: Counters,
     /// Components changed since the last [`Engine::take_changed`].
     changed: Vec<bool>,
+    /// Tags whose cursor moved since the last [`Engine::take_changed_tags`].
+    changed_tags: Vec<bool>,
+    /// The reorder window: accepted samples not yet integrated, in
+    /// event-time order (arrival order among equal times).
+    held: std::collections::VecDeque<(TagId, HeldSample)>,
+    /// Newest event time accepted (integrated or held).
+    frontier_ms: Option<i64>,
+    next_seq: u64,
+    held_changes: HeldChanges,
+    /// Components without a tag input: they advance with the plant clock.
+    clockless: Vec<u32>,
+    /// Newest plant-clock instant the clockless components reached.
+    clock_ms: Option<i64>,
 }
 
 impl Engine {
@@ -223,10 +280,14 @@ impl Engine {
     pub fn new(plan: Plan) -> Engine {
         let mut consumers = vec![Vec::new(); plan.tags.len()];
         let mut inputs = Vec::with_capacity(plan.components.len());
+        let mut clockless = vec![];
         for (ci, c) in plan.components.iter().enumerate() {
             let ts = c.tags();
             for &t in &ts {
                 consumers[t as usize].push(ci as u32);
+            }
+            if ts.is_empty() {
+                clockless.push(ci as u32);
             }
             inputs.push(ts);
         }
@@ -235,11 +296,18 @@ impl Engine {
             tags: vec![TagState::default(); plan.tags.len()],
             components: plan.components.iter().map(ComponentState::new).collect(),
             changed: vec![false; plan.components.len()],
+            changed_tags: vec![false; plan.tags.len()],
             scratch: plan.components.iter().map(component::Scratch::new).collect(),
             consumers,
             inputs,
             hold_ms: plan.tags.iter().map(|t| t.max_hold_ms).collect(),
             counters: Counters::default(),
+            held: Default::default(),
+            frontier_ms: None,
+            next_seq: 0,
+            held_changes: HeldChanges::default(),
+            clockless,
+            clock_ms: None,
             plan,
         }
     }
@@ -284,9 +352,25 @@ impl Engine {
         self.counters.count(Rejection::UnknownTag);
     }
 
-    /// Check a sample without changing anything.
+    /// Samples waiting in the reorder window.
+    pub fn held_len(&self) -> usize {
+        self.held.len()
+    }
+
+    /// Newest event time accepted (integrated or held).
+    pub fn frontier_ms(&self) -> Option<i64> {
+        self.frontier_ms
+    }
+
+    /// Components that advance with the plant clock (no tag input).
+    pub fn clockless(&self) -> &[u32] {
+        &self.clockless
+    }
+
+    /// Check a sample's value without changing anything; the value in
+    /// internal units.
     #[inline]
-    pub fn screen(&self, s: &Sample) -> Result<f64, Rejection> {
+    pub fn screen_value(&self, s: &Sample) -> Result<f64, Rejection> {
         let Some(tp) = self.plan.tags.get(s.tag as usize) else {
             return Err(Rejection::UnknownTag);
         };
@@ -309,14 +393,38 @@ impl Engine {
         if tp.unit.quantity == crate::physics::units::Quantity::Temperature && internal <= 0.0 {
             return Err(Rejection::OutOfRange);
         }
+        Ok(internal)
+    }
+
+    /// Check a sample against its tag's cursor (duplicate or late).
+    #[inline]
+    fn screen_cursor(&self, s: &Sample) -> Result<(), Rejection> {
         match self.tags[s.tag as usize].cursor_ms {
             Some(c) if s.time_ms == c => Err(Rejection::Duplicate),
             Some(c) if s.time_ms < c => Err(Rejection::Late),
-            _ => Ok(internal),
+            _ => Ok(()),
         }
     }
 
-    /// Feed one sample. Returns the rejection reason if it was not taken.
+    /// Check a sample without changing anything (value and cursor; not the
+    /// clock or the reorder window).
+    #[inline]
+    pub fn screen(&self, s: &Sample) -> Result<f64, Rejection> {
+        let v = self.screen_value(s)?;
+        self.screen_cursor(s)?;
+        Ok(v)
+    }
+
+    /// Whether an event time is plausible at wall-clock time `now_ms`.
+    #[inline]
+    pub fn plausible_time(&self, time_ms: i64, now_ms: i64) -> bool {
+        time_ms >= self.plan.earliest_plausible_ms && time_ms <= now_ms.saturating_add(self.plan.future_margin_ms)
+    }
+
+    /// Feed one sample directly: screened for value and cursor, integrated
+    /// at once, without the clock check or the reorder window. For tests
+    /// and the engine benchmark; the service and `replay` use
+    /// [`Engine::offer`].
     pub fn ingest(&mut self, s: &Sample) -> Result<(), Rejection> {
         let value = match self.screen(s) {
             Ok(v) => v,
@@ -325,14 +433,174 @@ impl Engine {
                 return Err(r);
             }
         };
+        self.count_accepted(s.quality);
+        self.apply(s.tag, s.time_ms, value);
+        Ok(())
+    }
+
+    /// Feed one sample arriving at wall-clock time `now_ms`: the one path
+    /// of live ingest and replay. The sample is screened (value, time
+    /// plausibility, cursor, duplicates in the window) and, when accepted,
+    /// held in the reorder window until event time has moved a window past
+    /// it; then it is integrated in event-time order. Returns the rejection
+    /// reason if it was not taken.
+    pub fn offer(&mut self, s: &Sample, now_ms: i64) -> Result<(), Rejection> {
+        let value = match self.screen_value(s) {
+            Ok(v) => v,
+            Err(r) => {
+                self.counters.count(r);
+                return Err(r);
+            }
+        };
+        if !self.plausible_time(s.time_ms, now_ms) {
+            self.counters.count(Rejection::ImplausibleTime);
+            return Err(Rejection::ImplausibleTime);
+        }
+        if let Err(r) = self.screen_cursor(s).and_then(|()| self.screen_held(s)) {
+            self.counters.count(r);
+            return Err(r);
+        }
+        self.count_accepted(s.quality);
+        let window = self.plan.reorder_window_ms;
+        let frontier = self.frontier_ms.map_or(s.time_ms, |f| f.max(s.time_ms));
+        self.frontier_ms = Some(frontier);
+        let horizon = frontier - window;
+        if window <= 0 || (self.held.is_empty() && s.time_ms <= horizon) {
+            self.apply(s.tag, s.time_ms, value);
+            return Ok(());
+        }
+        let h = HeldSample { seq: self.next_seq, time_ms: s.time_ms, value, arrival_ms: now_ms };
+        self.next_seq += 1;
+        self.held_changes.added.push((s.tag, h));
+        // In order (the common case): at the back; else after every held
+        // sample of the same or an earlier time.
+        let pos = if self.held.back().is_none_or(|(_, b)| b.time_ms <= s.time_ms) {
+            self.held.len()
+        } else {
+            self.held.partition_point(|(_, x)| x.time_ms <= s.time_ms)
+        };
+        self.held.insert(pos, (s.tag, h));
+        self.release_through(horizon);
+        Ok(())
+    }
+
+    /// A sample of the same tag and time already held is a duplicate.
+    #[inline]
+    fn screen_held(&self, s: &Sample) -> Result<(), Rejection> {
+        match self.held.back() {
+            None => return Ok(()),
+            Some((_, b)) if b.time_ms < s.time_ms => return Ok(()),
+            _ => {}
+        }
+        let from = self.held.partition_point(|(_, x)| x.time_ms < s.time_ms);
+        for (tag, h) in self.held.range(from..) {
+            if h.time_ms != s.time_ms {
+                break;
+            }
+            if *tag == s.tag {
+                return Err(Rejection::Duplicate);
+            }
+        }
+        Ok(())
+    }
+
+    #[inline]
+    fn count_accepted(&mut self, q: Quality) {
         self.counters.accepted += 1;
-        if s.quality == Quality::Uncertain {
+        if q == Quality::Uncertain {
             self.counters.uncertain += 1;
         }
-        let tid = s.tag as usize;
-        let t = s.time_ms;
+    }
+
+    /// Integrate held samples stamped at or before `horizon_ms`, in order.
+    fn release_through(&mut self, horizon_ms: i64) {
+        while let Some(&(tag, h)) = self.held.front() {
+            if h.time_ms > horizon_ms {
+                break;
+            }
+            self.held.pop_front();
+            self.held_changes.released.push(h.seq);
+            self.apply(tag, h.time_ms, h.value);
+        }
+    }
+
+    /// Integrate every held sample that arrived a whole window of wall
+    /// time before `now_ms` (and every sample stamped before it), so a feed
+    /// that stops does not leave its last samples waiting. Returns how many
+    /// were integrated.
+    pub fn release_due(&mut self, now_ms: i64) -> usize {
+        let window = self.plan.reorder_window_ms;
+        let Some(last) = self.held.iter().rposition(|(_, h)| h.arrival_ms.saturating_add(window) <= now_ms) else {
+            return 0;
+        };
+        let horizon = self.held[last].1.time_ms;
+        let before = self.held.len();
+        self.release_through(horizon);
+        before - self.held.len()
+    }
+
+    /// Integrate every held sample (end of a replay or a backfill).
+    pub fn flush(&mut self) {
+        self.release_through(i64::MAX);
+    }
+
+    /// What entered and left the reorder window since the last call (the
+    /// ledger store mirrors the window with it).
+    pub fn take_held_changes(&mut self) -> HeldChanges {
+        let mut c = std::mem::take(&mut self.held_changes);
+        // A sample held and released between two calls never reaches the
+        // store.
+        if !c.added.is_empty() && !c.released.is_empty() {
+            let first_added = c.added[0].1.seq;
+            let gone: std::collections::HashSet<u64> =
+                c.released.iter().copied().filter(|&q| q >= first_added).collect();
+            c.added.retain(|(_, h)| !gone.contains(&h.seq));
+            c.released.retain(|q| *q < first_added);
+        }
+        c
+    }
+
+    /// Advance the components that have no tag input to the plant-clock
+    /// instant `to_ms` (the service gives the wall clock; integration of
+    /// data moves it to the newest event time). Never moves backwards.
+    pub fn advance_clock(&mut self, to_ms: i64) {
+        if self.clockless.is_empty() || self.clock_ms.is_some_and(|c| c >= to_ms) {
+            return;
+        }
+        self.clock_ms = Some(to_ms);
         let policy = self.plan.gap_policy;
         let tau = self.plan.recent_rate_window_h;
+        for &ci in &self.clockless {
+            let ci = ci as usize;
+            let st = &mut self.components[ci];
+            match st.integrated_to_ms {
+                None => {
+                    st.integrated_to_ms = Some(to_ms);
+                    st.first_sample_ms = Some(to_ms);
+                }
+                Some(x) if x < to_ms => component::advance(
+                    &self.plan.components[ci],
+                    &[],
+                    &mut self.scratch[ci],
+                    st,
+                    &self.tags,
+                    &self.plan.tags,
+                    to_ms,
+                    policy,
+                    tau,
+                ),
+                Some(_) => continue,
+            }
+            self.changed[ci] = true;
+        }
+    }
+
+    /// Integrate one screened sample (value in internal units).
+    fn apply(&mut self, tag: TagId, t: i64, value: f64) {
+        let tid = tag as usize;
+        let policy = self.plan.gap_policy;
+        let tau = self.plan.recent_rate_window_h;
+        self.changed_tags[tid] = true;
         // Integrate past the sample this tag is about to forget.
         if let Some((last_t, _)) = self.tags[tid].last {
             for &ci in self.consumers.of(tid) {
@@ -391,7 +659,21 @@ impl Engine {
                 self.changed[ci] = true;
             }
         }
-        Ok(())
+        if !self.clockless.is_empty() {
+            self.advance_clock(t);
+        }
+    }
+
+    /// Indices of tags whose cursor moved since the last call.
+    pub fn take_changed_tags(&mut self) -> Vec<usize> {
+        let mut v = Vec::new();
+        for (i, c) in self.changed_tags.iter_mut().enumerate() {
+            if *c {
+                v.push(i);
+                *c = false;
+            }
+        }
+        v
     }
 
     /// Mark a component changed (so the next [`Engine::take_changed`] lists it).
@@ -425,6 +707,7 @@ impl Engine {
                 .zip(self.components.iter().cloned())
                 .collect(),
             counters: self.counters.clone(),
+            held: self.held.iter().map(|(t, h)| (self.plan.tags[*t as usize].name.clone(), *h)).collect(),
         }
     }
 
@@ -432,7 +715,7 @@ impl Engine {
     /// name; ones no longer in the plan are returned so the caller can keep
     /// their ledgers; new ones start fresh.
     pub fn import_state(&mut self, state: EngineState) -> EngineState {
-        let mut left = EngineState { tags: vec![], components: vec![], counters: Counters::default() };
+        let mut left = EngineState { tags: vec![], components: vec![], counters: Counters::default(), held: vec![] };
         for (name, ts) in state.tags {
             match self.plan.tags.iter().position(|t| t.name == name) {
                 Some(i) => self.tags[i] = ts,
@@ -446,9 +729,27 @@ impl Engine {
             }
         }
         self.counters = state.counters;
+        // The reorder window: held samples of tags still in the plan, in
+        // event-time order; those of retired tags are returned.
+        let mut held: Vec<(TagId, HeldSample)> = vec![];
+        for (name, h) in state.held {
+            match self.tag_id(&name) {
+                Some(t) => held.push((t, h)),
+                None => left.held.push((name, h)),
+            }
+        }
+        held.sort_by_key(|(_, h)| (h.time_ms, h.seq));
+        self.next_seq = held.iter().map(|(_, h)| h.seq + 1).max().unwrap_or(0).max(self.next_seq);
+        self.held = held.into();
+        let newest_cursor = self.tags.iter().filter_map(|t| t.cursor_ms).max();
+        let newest_held = self.held.back().map(|(_, h)| h.time_ms);
+        self.frontier_ms = newest_cursor.max(newest_held);
+        self.clock_ms = self.clockless.iter().filter_map(|&ci| self.components[ci as usize].integrated_to_ms).max();
         left
     }
 }
 
 #[cfg(test)]
 pub(crate) mod tests;
+#[cfg(test)]
+mod tests_intake;

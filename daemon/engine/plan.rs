@@ -175,6 +175,12 @@ pub struct Plan {
     pub plant: String,
     pub gap_policy: GapPolicy,
     pub recent_rate_window_h: f64,
+    /// Largest lead of a sample's event time over the wall clock, ms.
+    pub future_margin_ms: i64,
+    /// Earliest plausible event time, ms since the epoch.
+    pub earliest_plausible_ms: i64,
+    /// Allowed lateness (reorder window), ms of event time; 0: none.
+    pub reorder_window_ms: i64,
     pub tags: Vec<TagPlan>,
     pub components: Vec<ComponentPlan>,
 }

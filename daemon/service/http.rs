@@ -56,11 +56,16 @@ async fn healthz() -> &'static str {
 
 async fn readyz(State(s): State<HttpState>) -> Response {
     let snap = s.snapshot.borrow().clone();
-    if snap.mqtt_connected && !snap.holding {
-        (StatusCode::OK, "ready\n").into_response()
-    } else {
-        let why = if snap.holding { "outbox over quota, intake paused" } else { "not connected to the MQTT broker" };
-        (StatusCode::SERVICE_UNAVAILABLE, format!("not ready: {why}\n")).into_response()
+    match snap.not_ready() {
+        None => {
+            let stale: Vec<&str> = snap.freshness.tags.iter().filter(|t| t.stale).map(|t| t.tag.as_str()).collect();
+            if stale.is_empty() {
+                (StatusCode::OK, "ready\n").into_response()
+            } else {
+                (StatusCode::OK, format!("ready, degraded: stale tags {}\n", stale.join(", "))).into_response()
+            }
+        }
+        Some(why) => (StatusCode::SERVICE_UNAVAILABLE, format!("not ready: {why}\n")).into_response(),
     }
 }
 

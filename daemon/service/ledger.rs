@@ -18,7 +18,7 @@
 //! them from there.
 
 use super::settings::ServiceSettings;
-use super::snapshot::{ServiceCounters, Snapshot};
+use super::snapshot::{ComponentFreshness, Freshness, ServiceCounters, Snapshot, TagFreshness};
 use crate::alarm::{parse_command, AlarmBook, AlarmEvent, AlarmIndex, AlarmRecord};
 use crate::engine::{ComponentState, Engine, EngineState, Rejection, Sample, TagState};
 use crate::ingest::decode::{decode_payload, PayloadSettings, TopicTemplate};
@@ -106,7 +106,22 @@ pub struct Ledger {
     /// Commit even with nothing pending (an HTTP command changed alarms).
     force_commit: bool,
     last_sensor_check: Instant,
+    /// Reorder-window changes not yet committed (kept across a failed
+    /// commit, like the outbox lines).
+    held_added: Vec<(crate::engine::TagId, crate::engine::HeldSample)>,
+    held_released: Vec<u64>,
+    /// Per tag: wall-clock time of the newest accepted sample.
+    last_arrival: Vec<Option<i64>>,
+    /// Wall-clock time of the newest accepted sample of any tag.
+    last_any_arrival: Option<i64>,
+    /// Wall-clock start of this run (never-reporting tags count from it).
+    started_ms: i64,
+    /// No accepted sample from any tag for `[alarms] no_data_alarm_s`.
+    no_plant_data: bool,
 }
+
+/// The plant-level alarm raised when no tag delivers data.
+pub const PLANT_DATA_ALARM: &str = "lifeledger:plant-data";
 
 /// Alarm events kept in memory for the snapshot (`recent_events`).
 const RECENT_EVENTS: usize = 200;
@@ -158,8 +173,23 @@ impl StoredLedger {
                 Err(e) => unreadable_alarms.push((key.clone(), e.to_string())),
             }
         }
+        let held = loaded
+            .held
+            .iter()
+            .map(|h| {
+                (
+                    h.tag.clone(),
+                    crate::engine::HeldSample {
+                        seq: h.seq,
+                        time_ms: h.time_ms,
+                        value: h.value,
+                        arrival_ms: h.arrival_ms,
+                    },
+                )
+            })
+            .collect();
         Ok(StoredLedger {
-            engine: EngineState { tags, components, counters },
+            engine: EngineState { tags, components, counters, held },
             decode_rejected,
             alarms,
             unreadable_alarms,
@@ -265,6 +295,12 @@ impl Ledger {
             recent_events,
             force_commit: false,
             last_sensor_check: Instant::now() - Duration::from_secs(60),
+            held_added: vec![],
+            held_released: vec![],
+            last_arrival: vec![None; ntags],
+            last_any_arrival: None,
+            started_ms: now_ms(),
+            no_plant_data: false,
             service,
         };
         // Thresholds go to the database at start-up, at the newest event time.
@@ -363,6 +399,16 @@ impl Ledger {
 
     fn periodic(&mut self) {
         let now = now_ms();
+        // Held samples whose window of wall time has passed (a feed that
+        // stopped), and parts without tag inputs, move with the wall clock.
+        self.engine.release_due(now);
+        self.engine.advance_clock(now);
+        // Silence is judged by the wall clock, so a dead feed alarms even
+        // though no batch arrives to trigger a commit.
+        self.sensor_check();
+        if !self.events.is_empty() {
+            self.commit();
+        }
         if let Ok(s) = self.store.outbox_stats() {
             self.outbox = s;
         }
@@ -470,13 +516,15 @@ impl Ledger {
         };
         self.pending_samples += 1;
         let s = Sample { tag: id, time_ms: d.time_ms, value: d.value, quality: d.quality };
-        let r = self.engine.ingest(&s);
+        // The receive time is the wall clock the event time is judged by.
+        let r = self.engine.offer(&s, received_ms);
         let ti = id as usize;
         let (oor, badq) = self.sensor[ti];
         match r {
             Ok(()) => {
-                self.dirty_tags.insert(ti);
                 self.newest_ms = Some(self.newest_ms.map_or(d.time_ms, |n| n.max(d.time_ms)));
+                self.last_arrival[ti] = Some(received_ms);
+                self.last_any_arrival = Some(received_ms);
                 if oor || badq {
                     self.sensor[ti] = (false, false);
                 }
@@ -486,7 +534,9 @@ impl Ledger {
                     format!("sample of {tag} at {} rejected: {}", rfc3339_ms(d.time_ms), reason.name())
                 });
                 match reason {
-                    Rejection::OutOfRange | Rejection::NotFinite => {
+                    // A sample stamped in the future or before the plant
+                    // existed is a sensor (gateway clock) fault.
+                    Rejection::OutOfRange | Rejection::NotFinite | Rejection::ImplausibleTime => {
                         self.sensor[ti].0 = true;
                         self.sensor_latched[ti].0 = true;
                     }
@@ -502,9 +552,13 @@ impl Ledger {
 
     /// Sensor-fault alarms per component: a component's stale, out-of-range
     /// or bad-quality alarm is active while any tag it reads is in that
-    /// fault; the detail names the tags. Staleness is judged in event time:
-    /// a tag is stale when the newest sample of any tag is more than the
-    /// tag's hold time ahead of its own newest sample.
+    /// fault; the detail names the tags. A tag is stale when, by the wall
+    /// clock, no sample of it was accepted for its hold time plus
+    /// `[alarms] stale_grace_s` (a tag that never reported counts from the
+    /// service's start), or when, in event time, the newest sample of any
+    /// tag is more than the tag's hold time ahead of its own newest sample.
+    /// No accepted sample from any tag for `[alarms] no_data_alarm_s`
+    /// raises the plant-level service-health alarm.
     fn sensor_check(&mut self) {
         // At most every 500 ms of wall time: it visits every component.
         if self.last_sensor_check.elapsed() < Duration::from_millis(500) {
@@ -513,6 +567,26 @@ impl Ledger {
         self.last_sensor_check = Instant::now();
         let newest = self.newest_ms;
         let t = newest.unwrap_or_else(now_ms);
+        let now = now_ms();
+        let grace_ms = (self.service.alarms.stale_grace_s * 1000.0) as i64;
+        let silent_ms = now - self.last_any_arrival.unwrap_or(self.started_ms);
+        let no_data =
+            !self.engine.plan().tags.is_empty() && silent_ms > (self.service.alarms.no_data_alarm_s * 1000.0) as i64;
+        if no_data != self.no_plant_data {
+            self.no_plant_data = no_data;
+            let detail = if no_data {
+                format!("no sample accepted from any tag for {} s", silent_ms / 1000)
+            } else {
+                "plant data arriving again".to_string()
+            };
+            if no_data {
+                tracing::error!("{detail}: the ledgers are not moving");
+            } else {
+                tracing::info!("{detail}");
+            }
+            let ev = self.book.evaluate_condition(PLANT_DATA_ALARM, "", AlarmIndex::ServiceHealth, no_data, &detail, t);
+            self.note_events(ev);
+        }
         let plan = self.engine.plan();
         let mut evaluations = vec![];
         for (ci, c) in plan.components.iter().enumerate() {
@@ -520,10 +594,14 @@ impl Ledger {
             for &ti in self.engine.inputs(ci) {
                 let ti = ti as usize;
                 let tp = &plan.tags[ti];
-                if let (Some(n), Some(last)) = (newest, self.engine.tags()[ti].cursor_ms) {
-                    if n - last > tp.max_hold_ms {
-                        stale.push(tp.name.as_str());
-                    }
+                let event_stale = match (newest, self.engine.tags()[ti].cursor_ms) {
+                    (Some(n), Some(last)) => n - last > tp.max_hold_ms,
+                    _ => false,
+                };
+                let wall_stale =
+                    now - self.last_arrival[ti].unwrap_or(self.started_ms) > tp.max_hold_ms.saturating_add(grace_ms);
+                if event_stale || wall_stale {
+                    stale.push(tp.name.as_str());
                 }
                 // A fault seen since the last check counts even if a good
                 // sample has cleared it since, so a short fault still alarms.
@@ -555,7 +633,13 @@ impl Ledger {
     /// Write the batch in one transaction, then acknowledge and publish.
     pub fn commit(&mut self) {
         let changed = self.engine.take_changed();
+        self.dirty_tags.extend(self.engine.take_changed_tags());
+        let held = self.engine.take_held_changes();
+        self.held_added.extend(held.added);
+        self.held_released.extend(held.released);
         if changed.is_empty()
+            && self.held_added.is_empty()
+            && self.held_released.is_empty()
             && self.pending.is_empty()
             && self.extra_outbox.is_empty()
             && self.events.is_empty()
@@ -644,7 +728,21 @@ impl Ledger {
                 event: e.to_json(),
             })
             .collect();
+        let tag_names = &self.engine.plan().tags;
+        let held_added: Vec<crate::store::held::HeldRow> = self
+            .held_added
+            .iter()
+            .map(|(t, h)| crate::store::held::HeldRow {
+                seq: h.seq,
+                tag: tag_names[*t as usize].name.as_str(),
+                time_ms: h.time_ms,
+                value: h.value,
+                arrival_ms: h.arrival_ms,
+            })
+            .collect();
         let commit = Commit {
+            held_added: &held_added,
+            held_released: &self.held_released,
             components: &components,
             tags: &tags,
             alarms: &alarms,
@@ -672,6 +770,8 @@ impl Ledger {
                 }
                 self.pending_samples = 0;
                 self.dirty_tags.clear();
+                self.held_added.clear();
+                self.held_released.clear();
                 self.dirty_alarms.clear();
                 let events = std::mem::take(&mut self.events);
                 self.publish_alarms(&events);
@@ -765,6 +865,9 @@ impl Ledger {
         let mut state = self.engine.export_state();
         state.components.append(&mut self.retired);
         state.tags.append(&mut self.retired_tags);
+        let arrivals: HashMap<String, Option<i64>> =
+            self.engine.plan().tags.iter().zip(&self.last_arrival).map(|(t, a)| (t.name.clone(), *a)).collect();
+        self.last_arrival = cfg.plan.tags.iter().map(|t| arrivals.get(&t.name).copied().flatten()).collect();
         let mut engine = Engine::new(cfg.plan.clone());
         let left = engine.import_state(state);
         self.retired = left.components;
@@ -788,6 +891,46 @@ impl Ledger {
             "configuration reloaded; every ledger kept"
         );
         self.publish_snapshot(true);
+    }
+
+    /// Data age of every tag and component, and each component's lag, by
+    /// the wall clock now.
+    fn freshness(&self) -> Freshness {
+        let now = now_ms();
+        let plan = self.engine.plan();
+        let grace_ms = (self.service.alarms.stale_grace_s * 1000.0) as i64;
+        let age = |a: Option<i64>| a.map(|a| (now - a).max(0) as f64 / 1000.0);
+        let tags = plan
+            .tags
+            .iter()
+            .zip(&self.last_arrival)
+            .map(|(t, a)| TagFreshness {
+                tag: t.name.clone(),
+                data_age_s: age(*a),
+                stale: now - a.unwrap_or(self.started_ms) > t.max_hold_ms.saturating_add(grace_ms),
+            })
+            .collect();
+        let components = plan
+            .components
+            .iter()
+            .enumerate()
+            .map(|(ci, c)| {
+                let inputs = self.engine.inputs(ci);
+                // The stalest input sets the age; a part on the plant clock
+                // has none.
+                let data_age_s = if inputs.is_empty() {
+                    None
+                } else {
+                    inputs
+                        .iter()
+                        .map(|&t| age(self.last_arrival[t as usize]))
+                        .try_fold(0.0f64, |m, a| a.map(|a| m.max(a)))
+                };
+                let lag_s = self.engine.components()[ci].integrated_to_ms.map(|t| (now - t) as f64 / 1000.0);
+                ComponentFreshness { component: c.name.clone(), data_age_s, lag_s, on_plant_clock: inputs.is_empty() }
+            })
+            .collect();
+        Freshness { tags, components }
     }
 
     fn publish_snapshot(&mut self, force: bool) {
@@ -823,6 +966,9 @@ impl Ledger {
             alarms,
             retired_components: self.retired.iter().map(|(n, _)| n.clone()).collect(),
             recent_events: self.recent_events.iter().cloned().collect(),
+            no_plant_data: self.no_plant_data,
+            freshness: self.freshness(),
+            held_samples: self.engine.held_len() as u64,
             caution: crate::CAUTION,
         };
         let _ = self.snapshot_tx.send(Arc::new(snap));

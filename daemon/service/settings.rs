@@ -164,6 +164,16 @@ impl ServiceSettings {
             errors.push(e);
             None
         });
+        if let Some(a) = &alarms {
+            for (key, v, fix) in [
+                ("stale_grace_s", a.stale_grace_s, "for example 60"),
+                ("no_data_alarm_s", a.no_data_alarm_s, "for example 300"),
+            ] {
+                if !(v.is_finite() && (0.0..=86_400.0).contains(&v)) {
+                    errors.push(format!("[alarms] {key}: {v} is not a number of seconds from 0 to 86400; {fix}"));
+                }
+            }
+        }
         if !errors.is_empty() {
             return Err(errors);
         }

@@ -51,7 +51,61 @@ pub struct Snapshot {
     pub recent_events: Vec<crate::alarm::AlarmEvent>,
     /// Components kept in the ledger but no longer configured.
     pub retired_components: Vec<String>,
+    /// No accepted sample from any tag for `[alarms] no_data_alarm_s`:
+    /// the ledgers are not moving, and `/readyz` says so.
+    pub no_plant_data: bool,
+    /// How old each tag's and component's data is, by the wall clock.
+    pub freshness: Freshness,
+    /// Samples accepted and waiting in the reorder window.
+    pub held_samples: u64,
     pub caution: &'static str,
+}
+
+/// Data age by the wall clock: seconds since the newest accepted sample.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct Freshness {
+    pub tags: Vec<TagFreshness>,
+    pub components: Vec<ComponentFreshness>,
+}
+
+/// One tag's data age.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct TagFreshness {
+    pub tag: String,
+    /// Seconds since its newest accepted sample arrived; none yet: `None`.
+    pub data_age_s: Option<f64>,
+    /// Past its hold time plus the stale grace (never reported: counted
+    /// from the service's start).
+    pub stale: bool,
+}
+
+/// One component's data age and lag.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct ComponentFreshness {
+    pub component: String,
+    /// Age of its stalest input tag, seconds (`None`: an input never
+    /// reported, or a part on the plant clock).
+    pub data_age_s: Option<f64>,
+    /// Wall clock minus the event time it is integrated to, seconds.
+    pub lag_s: Option<f64>,
+    /// Every input is a constant: the part advances with the plant clock.
+    pub on_plant_clock: bool,
+}
+
+impl Snapshot {
+    /// Why the service is not ready, if it is not: what `/readyz` says.
+    pub fn not_ready(&self) -> Option<String> {
+        if !self.mqtt_connected {
+            return Some("not connected to the MQTT broker".into());
+        }
+        if self.holding {
+            return Some("outbox over quota, intake paused".into());
+        }
+        if self.no_plant_data {
+            return Some("no plant data: no sample accepted from any tag within [alarms] no_data_alarm_s".into());
+        }
+        None
+    }
 }
 
 /// Prometheus text exposition of a snapshot.
@@ -79,6 +133,47 @@ pub fn metrics_text(s: &Snapshot) -> String {
         rej.push((format!("{{reason=\"{k}\"}}"), *v as f64));
     }
     metric("lifeledger_samples_rejected_total", "Samples or messages not integrated, by reason.", "counter", rej);
+    let label = |k: &str, v: &str| format!("{{{k}=\"{}\"}}", esc(v));
+    metric(
+        "lifeledger_tag_data_age_seconds",
+        "Seconds since the tag's newest accepted sample arrived (absent: none yet).",
+        "gauge",
+        s.freshness.tags.iter().filter_map(|t| t.data_age_s.map(|a| (label("tag", &t.tag), a))).collect(),
+    );
+    metric(
+        "lifeledger_tag_stale",
+        "1 while the tag has sent nothing for its hold time plus the stale grace.",
+        "gauge",
+        s.freshness.tags.iter().map(|t| (label("tag", &t.tag), if t.stale { 1.0 } else { 0.0 })).collect(),
+    );
+    metric(
+        "lifeledger_component_data_age_seconds",
+        "Age of the component's stalest input, seconds.",
+        "gauge",
+        s.freshness
+            .components
+            .iter()
+            .filter_map(|c| c.data_age_s.map(|a| (label("component", &c.component), a)))
+            .collect(),
+    );
+    metric(
+        "lifeledger_component_lag_seconds",
+        "Wall clock minus the event time the component is integrated to.",
+        "gauge",
+        s.freshness.components.iter().filter_map(|c| c.lag_s.map(|a| (label("component", &c.component), a))).collect(),
+    );
+    metric(
+        "lifeledger_plant_data_missing",
+        "1 while no tag has delivered a sample within [alarms] no_data_alarm_s.",
+        "gauge",
+        vec![(String::new(), if s.no_plant_data { 1.0 } else { 0.0 })],
+    );
+    metric(
+        "lifeledger_held_samples",
+        "Samples accepted and waiting in the reorder window.",
+        "gauge",
+        vec![(String::new(), s.held_samples as f64)],
+    );
     metric(
         "lifeledger_duplicates_total",
         "Samples at or before their tag's cursor.",

@@ -110,6 +110,23 @@ pub struct EngineSettings {
     /// Number of pressure classes between zero and 1.2 × design pressure.
     #[serde(default = "default_pclasses")]
     pub pressure_classes: usize,
+    /// A sample stamped more than this many seconds ahead of the wall clock
+    /// is rejected as an implausible time (default 300 s: gateway clocks
+    /// drift by seconds, not minutes).
+    #[serde(default = "default_future_margin")]
+    pub future_margin_s: f64,
+    /// A sample stamped before this date (RFC 3339 date or date-time) is
+    /// rejected as an implausible time (default 2000-01-01: a clock reset to
+    /// the epoch, not plant history).
+    #[serde(default = "default_earliest")]
+    pub earliest_plausible: String,
+    /// Allowed lateness, seconds: samples are held this long in event time
+    /// and integrated in event-time order, so data reordered within the
+    /// window gives the same ledger as ordered data (default 120 s). The
+    /// cost is latency: ledgers and alarms run this far behind the newest
+    /// sample. 0 integrates every sample on arrival.
+    #[serde(default = "default_reorder")]
+    pub reorder_window_s: f64,
 }
 
 impl Default for EngineSettings {
@@ -123,6 +140,9 @@ impl Default for EngineSettings {
             temperature_class_k: default_tclass(),
             temperature_class_origin_c: 0.0,
             pressure_classes: default_pclasses(),
+            future_margin_s: default_future_margin(),
+            earliest_plausible: default_earliest(),
+            reorder_window_s: default_reorder(),
         }
     }
 }
@@ -141,6 +161,15 @@ fn default_tclass() -> f64 {
 }
 fn default_pclasses() -> usize {
     6
+}
+fn default_future_margin() -> f64 {
+    300.0
+}
+fn default_earliest() -> String {
+    "2000-01-01".into()
+}
+fn default_reorder() -> f64 {
+    120.0
 }
 
 /// Sample-and-hold or straight-line reconstruction between samples.

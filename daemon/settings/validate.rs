@@ -106,7 +106,11 @@ pub fn plan_settings(file: &str, settings: Settings) -> Result<LoadedConfig, Con
         library.insert(m.clone());
     }
     v.engine(&settings.engine);
+    if let Some(p) = name_problem(&settings.plant.name) {
+        v.err("[plant]", "name", p, "use printable characters only (it is the plant tag of every database point)");
+    }
     let tags = v.tags(&settings);
+    let timing = v.timing(&settings);
     let tag_index: HashMap<&str, usize> = tags.iter().enumerate().map(|(i, t)| (t.name.as_str(), i)).collect();
     let mut components = Vec::new();
     let mut seen = HashMap::new();
@@ -130,6 +134,9 @@ pub fn plan_settings(file: &str, settings: Settings) -> Result<LoadedConfig, Con
         plant: settings.plant.name.clone(),
         gap_policy: settings.engine.gap_policy,
         recent_rate_window_h: settings.engine.recent_rate_window_h,
+        future_margin_ms: timing.future_margin_ms,
+        earliest_plausible_ms: timing.earliest_plausible_ms,
+        reorder_window_ms: timing.reorder_window_ms,
         tags,
         components,
     };
@@ -159,6 +166,13 @@ pub fn parse_date_ms(s: &str) -> Option<i64> {
         .ok()
         .and_then(|d| d.and_hms_opt(0, 0, 0))
         .map(|d| d.and_utc().timestamp_millis())
+}
+
+/// The event-time rules of `[engine]`, in ms.
+struct Timing {
+    future_margin_ms: i64,
+    earliest_plausible_ms: i64,
+    reorder_window_ms: i64,
 }
 
 struct Validator {
@@ -240,6 +254,43 @@ impl Validator {
         if !e.temperature_class_origin_c.is_finite() {
             self.err(place, "temperature_class_origin_c", "must be a finite temperature in °C", "for example 0");
         }
+    }
+
+    /// Timestamp plausibility and the reorder window.
+    fn timing(&mut self, s: &Settings) -> Timing {
+        let e = &s.engine;
+        let mut seconds = |key: &str, v: f64, max_s: f64, fix: &str| -> i64 {
+            if !(v.is_finite() && (0.0..=max_s).contains(&v)) {
+                self.err("[engine]", key, format!("{v} is not a number of seconds from 0 to {max_s}"), fix);
+                return 0;
+            }
+            (v * 1000.0).round() as i64
+        };
+        let future_margin_ms = seconds(
+            "future_margin_s",
+            e.future_margin_s,
+            86_400.0,
+            "for example 300 (samples more than 5 minutes ahead of the clock are rejected)",
+        );
+        let reorder_window_ms = seconds(
+            "reorder_window_s",
+            e.reorder_window_s,
+            86_400.0,
+            "for example 120 (samples up to 2 minutes out of order are integrated in order)",
+        );
+        let earliest_plausible_ms = match parse_date_ms(e.earliest_plausible.trim()) {
+            Some(t) => t,
+            None => {
+                self.err(
+                    "[engine]",
+                    "earliest_plausible",
+                    format!("{:?} is not an RFC 3339 date or date-time", e.earliest_plausible),
+                    "for example \"2000-01-01\"",
+                );
+                0
+            }
+        };
+        Timing { future_margin_ms, earliest_plausible_ms, reorder_window_ms }
     }
 
     fn tags(&mut self, s: &Settings) -> Vec<TagPlan> {

@@ -37,6 +37,7 @@
 //! can go wrong, for people).
 
 pub mod error;
+pub mod held;
 pub mod journal;
 pub mod outbox;
 pub mod schema;
@@ -100,12 +101,16 @@ pub struct Commit<'a> {
     /// (component name, trend point): upserted by event time, then each
     /// component is pruned to its bound (see [`trend`]).
     pub trend_points: &'a [(String, TrendPoint)],
+    /// Samples that entered the reorder window (see [`held`]).
+    pub held_added: &'a [held::HeldRow<'a>],
+    /// Sequence numbers of held samples the engine integrated.
+    pub held_released: &'a [u64],
 }
 
 /// Everything but the outbox, the alarm journal and the trends, as [`Store::load`]
 /// reads it at start-up.
 /// Each list is sorted by key.
-#[derive(Debug, Clone, Default, PartialEq, Eq)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct Loaded {
     /// (component name, state JSON).
     pub components: Vec<(String, String)>,
@@ -115,6 +120,8 @@ pub struct Loaded {
     pub alarms: Vec<(String, String)>,
     /// (key, JSON).
     pub meta: Vec<(String, String)>,
+    /// The reorder window, in arrival order.
+    pub held: Vec<held::LoadedHeld>,
 }
 
 /// What [`Store::commit`] reports once the batch is durable.
@@ -198,6 +205,7 @@ impl Store {
             c.meta,
         )
         .map_err(fail)?;
+        held::apply(&tx, c.held_added, c.held_released).map_err(fail)?;
         journal::append(&tx, c.alarm_events, keep).map_err(fail)?;
         let trend_rows = trend::upsert(&tx, c.trend_points, self.trend_keep, &self.trend_rows).map_err(fail)?;
         outbox::append(&tx, c.outbox).map_err(fail)?;
@@ -265,6 +273,7 @@ fn load_from(conn: &Connection, path: &Path) -> Result<Loaded, StoreError> {
         tags: read("SELECT name, state FROM tag ORDER BY name").map_err(fail)?,
         alarms: read("SELECT key, record FROM alarm ORDER BY key").map_err(fail)?,
         meta: read("SELECT key, value FROM meta ORDER BY key").map_err(fail)?,
+        held: held::load(&tx).map_err(fail)?,
     };
     tx.finish().map_err(fail)?;
     Ok(loaded)
@@ -340,6 +349,7 @@ mod tests {
                 tags: pair("TI-101", r#"{"cursor_ms":1}"#),
                 alarms: pair("sh-1/creep_life_fraction", r#"{"state":"acknowledged"}"#),
                 meta: pair("engine_counters", r#"{"accepted":7}"#),
+                held: vec![],
             }
         );
         let outbox: Vec<String> = store.outbox_batch(10, usize::MAX).unwrap().into_iter().map(|(_, l)| l).collect();
@@ -408,6 +418,11 @@ mod tests {
                 outbox: &outbox,
                 alarm_events: &events,
                 trend_points: &trend_points,
+                held_added: &[
+                    held::HeldRow { seq: 3, tag: "TI-101", time_ms: 7, value: 0.1 + 0.2, arrival_ms: 9 },
+                    held::HeldRow { seq: 4, tag: "TI-101", time_ms: 8, value: 1.0, arrival_ms: 9 },
+                ],
+                held_released: &[4],
             };
             store.commit(&batch).unwrap();
         }
@@ -415,7 +430,22 @@ mod tests {
         let loaded = store.load().unwrap();
         let mut sorted = components.clone();
         sorted.sort();
-        assert_eq!(loaded, Loaded { components: sorted, tags, alarms, meta });
+        assert_eq!(
+            loaded,
+            Loaded {
+                components: sorted,
+                tags,
+                alarms,
+                meta,
+                held: vec![held::LoadedHeld {
+                    seq: 3,
+                    tag: "TI-101".into(),
+                    time_ms: 7,
+                    value: 0.1 + 0.2,
+                    arrival_ms: 9
+                }]
+            }
+        );
         let lines: Vec<String> = store.outbox_batch(10, usize::MAX).unwrap().into_iter().map(|(_, l)| l).collect();
         assert_eq!(lines, outbox);
         let journal: Vec<JournalEntry> = store.alarm_journal_newest(10).unwrap().into_iter().map(|(_, e)| e).collect();
@@ -443,7 +473,10 @@ mod tests {
 
         let want = pairs(&[("a", "1"), ("b", "20"), ("c", "30")]);
         let loaded = store.load().unwrap();
-        assert_eq!(loaded, Loaded { components: want.clone(), tags: want.clone(), alarms: want.clone(), meta: want });
+        assert_eq!(
+            loaded,
+            Loaded { components: want.clone(), tags: want.clone(), alarms: want.clone(), meta: want, held: vec![] }
+        );
     }
 
     #[test]

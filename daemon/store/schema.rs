@@ -42,6 +42,7 @@ pub const MIGRATIONS: &[Migration] = &[
     },
     Migration { summary: "the alarm journal: every alarm event, newest kept", apply: v2_alarm_journal },
     Migration { summary: "component trends: the status page's points by component and event time", apply: v3_trend },
+    Migration { summary: "the reorder window: accepted samples not yet integrated", apply: v4_held },
 ];
 
 /// The newest schema version this build knows: the number of migrations.
@@ -114,6 +115,21 @@ fn v3_trend(tx: &Transaction<'_>) -> rusqlite::Result<()> {
              wear_index REAL,
              PRIMARY KEY (component, t_ms)
          ) WITHOUT ROWID;",
+    )
+}
+
+/// Version 4: the reorder window, samples accepted (and acknowledged) but
+/// not yet integrated, keyed by arrival order. A value is never NaN here
+/// (the engine rejects non-finite values before holding one).
+fn v4_held(tx: &Transaction<'_>) -> rusqlite::Result<()> {
+    tx.execute_batch(
+        "CREATE TABLE held_sample (
+             seq INTEGER PRIMARY KEY NOT NULL,
+             tag TEXT NOT NULL,
+             time_ms INTEGER NOT NULL,
+             value REAL NOT NULL,
+             arrival_ms INTEGER NOT NULL
+         );",
     )
 }
 

@@ -68,6 +68,9 @@ impl ServiceConfig<'_> {
 name = "{plant}"
 [engine]
 max_hold_s = 600
+# A short reorder window, so the tests see held samples released by wall
+# time (and persisted across crashes) within seconds.
+reorder_window_s = 2
 [[tag]]
 name = "TE-1"
 unit = "degC"

@@ -79,8 +79,10 @@
       tile('Unmonitored', LL.hours(unmon) + ' h', unmon > 0 ? 'data' : 'quiet', 'summed over components');
 
     if (!list.length) {
-      $('component-rows').innerHTML = '<tr><td colspan="8" class="muted">' + (all.length ? 'No component in this unit.' : 'No component in the ledger yet.') + '</td></tr>';
+      $('component-rows').innerHTML = '<tr><td colspan="9" class="muted">' + (all.length ? 'No component in this unit.' : 'No component in the ledger yet.') + '</td></tr>';
     } else {
+      const fresh = {};
+      ((snap.freshness || {}).components || []).forEach((f) => { fresh[f.component] = f; });
       $('component-rows').innerHTML = list.map(({ c, a }) => {
         const sev = a.worst_severity || '';
         const href = '/component/' + encodeURIComponent(c.component);
@@ -103,6 +105,7 @@
           '<td class="num rem">' + (LL.num(rem) === null ? '<span class="muted">not moving</span>' :
             '<span class="big">' + LL.hours(rem) + ' h</span><span class="sub">' + LL.years(rem) + ' years</span>') + '</td>' +
           '<td class="num' + (c.unmonitored_h > 0 ? ' data' : '') + '"><span class="big">' + LL.hours(c.unmonitored_h) + '</span><span class="sub">h</span></td>' +
+          ageCell(fresh[c.component]) +
           '<td class="flags">' + LL.flagChips(c.flags) + '</td>' +
           '</tr>';
       }).join('');
@@ -110,6 +113,18 @@
 
     const evs = (snap.recent_events || []).filter((e) => !unit || e.unit === unit).slice(-40).reverse();
     $('events').innerHTML = evs.length ? evs.map((e) => LL.eventItem(e, true)).join('') : '<li class="muted">No alarm events yet.</li>';
+  }
+
+  // Wall-clock age of a part's stalest input: seconds, minutes or hours.
+  function ageCell(f) {
+    if (!f) return '<td class="num muted">—</td>';
+    const s = LL.num(f.data_age_s);
+    if (s === null) {
+      const why = f.on_plant_clock ? 'plant clock' : 'no data yet';
+      return '<td class="num data-age muted">' + why + '</td>';
+    }
+    const text = s < 120 ? Math.round(s) + ' s' : s < 7200 ? Math.round(s / 60) + ' min' : (s / 3600).toFixed(1) + ' h';
+    return '<td class="num data-age" data-age-s="' + esc(s) + '"><span class="big">' + esc(text) + '</span></td>';
   }
 
   $('unit-filter').addEventListener('change', () => {
