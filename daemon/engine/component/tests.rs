@@ -470,7 +470,7 @@ fn class_origin_is_configurable_and_engine_numbers_are_checked() {
         ("recent_rate_window_h = 0", "recent_rate_window_h"),
         ("temperature_class_k = 0", "temperature_class_k"),
     ] {
-        let err = plan_settings("test", toml::from_str(&with(bad)).unwrap()).err().expect(bad);
+        let Err(err) = plan_settings("test", toml::from_str(&with(bad)).unwrap()) else { panic!("{bad} accepted") };
         let p = err.problems.iter().find(|p| p.key == key).unwrap_or_else(|| panic!("{bad}: {err}"));
         assert_eq!(p.place, "[engine]");
     }
