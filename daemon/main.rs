@@ -506,6 +506,13 @@ fn cmd_ledger(config: &std::path::Path, format: Format) -> Result<i32> {
             writeln!(out, "{}", report::counters_line(engine.counters()))?;
             writeln!(out)?;
             write!(out, "{}", report::summary_table(&reports))?;
+            // Time at condition, by temperature and pressure class together.
+            for r in &reports {
+                let t = report::class_table_text(r);
+                if !t.is_empty() {
+                    write!(out, "\n{t}")?;
+                }
+            }
             // Alarms that want attention: active, awaiting acknowledge, or shelved.
             let name = |v: serde_json::Result<serde_json::Value>| {
                 v.ok().and_then(|v| v.as_str().map(str::to_string)).unwrap_or_default()

@@ -2,6 +2,7 @@
 //! by `replay`, the status API and the database points, plus the derived
 //! design-condition checks of `check-config`.
 
+use crate::engine::component::{projection, Projection};
 use crate::engine::plan::{ComponentPlan, Levels, StressPlan};
 use crate::engine::{ComponentState, Counters};
 use crate::lineproto::Point;
@@ -31,6 +32,26 @@ pub struct ClassHours {
 pub struct Histograms {
     pub temperature_c: Vec<ClassHours>,
     pub pressure_mpa: Vec<ClassHours>,
+    /// Hours by temperature class and pressure class together.
+    pub temperature_pressure: ClassTable,
+}
+
+/// Hours by temperature class (rows) and pressure class (columns): the
+/// table in-service life-expectancy calculations of European boiler
+/// practice work from. Row `i` is the class below `temperature_edges_c[i]`
+/// (above the previous edge); the first row is open below, the last open
+/// above; the same for columns and `pressure_edges_mpa`.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct ClassTable {
+    pub temperature_edges_c: Vec<f64>,
+    pub pressure_edges_mpa: Vec<f64>,
+    pub hours: Vec<Vec<f64>>,
+}
+
+/// A class edge in °C, rid of the rounding the kelvin round trip leaves
+/// (edges lie on round degrees by default).
+fn edge_c(k: f64) -> f64 {
+    (kelvin_to_celsius(k) * 1e6).round() / 1e6
 }
 
 /// A component's ledger summary.
@@ -64,13 +85,17 @@ pub struct ComponentReport {
     pub exhausted: bool,
     /// The ceiling of the shown life fraction and wear index.
     pub display_ceiling: f64,
-    /// Recent life-fraction rate, 1/h.
+    /// Recent life-fraction rate, 1/h (normalised exponentially weighted
+    /// mean, see `physics::remaining`).
     pub damage_rate_per_h: f64,
-    /// Hours to life fraction 1 or wear index 1 at the recent rates,
+    /// Hours to life fraction 1 or wear index 1 at the projection rates,
     /// whichever comes first; null when neither is moving.
     pub remaining_life_h: Option<f64>,
-    /// Hours to each alarm level at the recent rate (`index.severity`).
+    /// Hours to each alarm level at the projection rate (`index.severity`).
     pub hours_to_threshold: BTreeMap<String, Option<f64>>,
+    /// The rates the projections use and whether they are still settling
+    /// (then each is the larger of the recent and the design rate).
+    pub projection: Projection,
     pub integrated_h: f64,
     pub unmonitored_h: f64,
     pub hours_in_creep_range: f64,
@@ -168,14 +193,15 @@ impl ComponentReport {
     /// Summarise one component.
     pub fn new(plan: &ComponentPlan, st: &ComponentState) -> ComponentReport {
         let wear_index = st.wear_index(plan);
-        let wear_index_rate = plan.wear.as_ref().map_or(0.0, |w| st.recent_wear_rate_mm_per_h / w.allowable_depth_mm);
+        let pr = projection(plan, st);
+        let wear_index_rate = plan.wear.as_ref().map_or(0.0, |w| pr.wear_rate_mm_per_h / w.allowable_depth_mm);
         let mut remaining: Option<f64> = None;
         let mut take = |h: Option<f64>| {
             if let Some(h) = h {
                 remaining = Some(remaining.map_or(h, |r: f64| r.min(h)));
             }
         };
-        take(hours_to_threshold(st.life_fraction, 1.0, st.recent_life_fraction_rate_per_h));
+        take(hours_to_threshold(st.life_fraction, 1.0, pr.life_fraction_rate_per_h));
         if plan.wear.is_some() {
             take(hours_to_threshold(wear_index, 1.0, wear_index_rate));
         }
@@ -184,12 +210,12 @@ impl ComponentReport {
         let mut reached = BTreeMap::new();
         let has_creep = plan.metal_temperature.is_some();
         let indices: [(&str, &Levels, f64, f64, bool); 3] = [
-            ("life_fraction", &th.life_fraction, st.life_fraction, st.recent_life_fraction_rate_per_h, has_creep),
+            ("life_fraction", &th.life_fraction, st.life_fraction, pr.life_fraction_rate_per_h, has_creep),
             (
                 "creep_strain",
                 &th.creep_strain,
                 st.creep_strain,
-                st.recent_creep_strain_rate_per_h,
+                pr.creep_strain_rate_per_h,
                 has_creep && plan.material.norton.is_some(),
             ),
             ("wear_index", &th.wear_index, wear_index, wear_index_rate, plan.wear.is_some()),
@@ -224,9 +250,13 @@ impl ComponentReport {
         if wear_exhausted {
             flags.push("wear_allowance_exhausted".into());
         }
-        let h = &st.histogram;
         let strain_basis = plan.material.norton.as_ref().filter(|_| has_creep).map(|n| n.basis);
         let known = conditions_known(plan, st);
+        if pr.settling {
+            flags.push("projection_settling".into());
+        }
+        let h = &st.histogram;
+        let w = h.pressure_edges_mpa.len() + 1;
         ComponentReport {
             component: plan.name.clone(),
             unit: plan.unit.clone(),
@@ -248,6 +278,7 @@ impl ComponentReport {
             damage_rate_per_h: st.recent_life_fraction_rate_per_h,
             remaining_life_h: remaining,
             hours_to_threshold: hours_to,
+            projection: pr,
             integrated_h: st.integrated_h,
             unmonitored_h: st.unmonitored_h,
             hours_in_creep_range: st.hours_in_creep_range,
@@ -265,8 +296,13 @@ impl ComponentReport {
             levels_reached: reached,
             flags,
             histograms: Histograms {
-                temperature_c: classes(&h.temperature_edges_k, &h.temperature_hours(), kelvin_to_celsius),
+                temperature_c: classes(&h.temperature_edges_k, &h.temperature_hours(), edge_c),
                 pressure_mpa: classes(&h.pressure_edges_mpa, &h.pressure_hours(), |p| p),
+                temperature_pressure: ClassTable {
+                    temperature_edges_c: h.temperature_edges_k.iter().map(|&k| edge_c(k)).collect(),
+                    pressure_edges_mpa: h.pressure_edges_mpa.clone(),
+                    hours: h.hours.chunks(w).map(<[f64]>::to_vec).collect(),
+                },
             },
             thresholds: plan.thresholds.clone(),
             design_temperature_c: plan.design_temperature_k.map(kelvin_to_celsius),
@@ -408,6 +444,50 @@ pub fn summary_table(reports: &[ComponentReport]) -> String {
     s
 }
 
+/// The temperature × pressure class table of one component as text: a row
+/// per temperature class that holds hours, a column per pressure class,
+/// with totals. Empty for a component without a metal temperature.
+pub fn class_table_text(r: &ComponentReport) -> String {
+    let t = &r.histograms.temperature_pressure;
+    let rows: Vec<(usize, &Vec<f64>)> =
+        t.hours.iter().enumerate().filter(|(_, row)| row.iter().any(|&h| h > 0.0)).collect();
+    if rows.is_empty() {
+        return String::new();
+    }
+    let label = |edges: &[f64], i: usize| match i {
+        0 => format!("< {}", edges[0]),
+        i if i == edges.len() => format!(">= {}", edges[i - 1]),
+        i => format!("{}-{}", edges[i - 1], edges[i]),
+    };
+    let pe: Vec<f64> = t.pressure_edges_mpa.iter().map(|p| (p * 1000.0).round() / 1000.0).collect();
+    let cols = pe.len() + 1;
+    let mut s = format!("{}: hours by temperature class (degC, rows) and pressure class (MPa, columns)\n", r.component);
+    s.push_str(&format!("  {:<12}", "degC \\ MPa"));
+    for j in 0..cols {
+        s.push_str(&format!(" {:>12}", label(&pe, j)));
+    }
+    s.push_str(&format!(" {:>10}\n", "all"));
+    let mut col_sum = vec![0.0; cols];
+    for (i, row) in rows {
+        s.push_str(&format!("  {:<12}", label(&t.temperature_edges_c, i)));
+        for (j, &h) in row.iter().enumerate() {
+            col_sum[j] += h;
+            if h > 0.0 {
+                s.push_str(&format!(" {h:>12.1}"));
+            } else {
+                s.push_str(&format!(" {:>12}", "."));
+            }
+        }
+        s.push_str(&format!(" {:>10.1}\n", row.iter().sum::<f64>()));
+    }
+    s.push_str(&format!("  {:<12}", "all"));
+    for h in &col_sum {
+        s.push_str(&format!(" {h:>12.1}"));
+    }
+    s.push_str(&format!(" {:>10.1}\n", col_sum.iter().sum::<f64>()));
+    s
+}
+
 /// Counter summary line.
 pub fn counters_line(c: &Counters) -> String {
     format!(
@@ -542,6 +622,72 @@ pub fn design_check(plan: &ComponentPlan) -> DesignCheck {
 
 #[cfg(test)]
 mod tests {
+    use super::*;
+    use crate::engine::component::tests::{closed_form_life_h, component, steady};
+
+    /// Hours to each life-fraction level and to exhaustion against the
+    /// closed form (level − current)/rate, with current = 0.2 + H·rate from
+    /// the Larson-Miller definition (see `closed_form_life_h`).
+    #[test]
+    fn hours_to_level_match_the_closed_form_settling_or_settled() {
+        // (hours, °C, bar, the rate the projection must use)
+        let recent = |t: f64, p: f64| 1.0 / closed_form_life_h(t, p);
+        let design = recent(560.0, 180.0);
+        for (hours, t, p, rate, settling) in [
+            (10.0, 580.0, 180.0, recent(580.0, 180.0), true),
+            (200.0, 580.0, 180.0, recent(580.0, 180.0), false),
+            (2000.0, 580.0, 180.0, recent(580.0, 180.0), false),
+            (10.0, 540.0, 150.0, design, true),
+            (200.0, 540.0, 150.0, recent(540.0, 150.0), false),
+        ] {
+            let e = steady(hours, t, p);
+            let plan = &e.plan().components[0];
+            let r = ComponentReport::new(plan, component(&e, "TUBE"));
+            let current = 0.2 + hours * recent(t, p);
+            assert!((r.creep_life_fraction / current - 1.0).abs() < 1e-9);
+            assert_eq!(r.projection.settling, settling);
+            assert_eq!(r.flags.contains(&"projection_settling".to_string()), settling);
+            for (level, key) in [(0.3, "advisory"), (0.5, "warning"), (0.7, "critical")] {
+                let want = (level - current) / rate;
+                let got = r.hours_to_threshold[&format!("life_fraction.{key}")].unwrap();
+                assert!((got / want - 1.0).abs() < 1e-9, "{hours} h at {t} °C, {key}: {got} h, closed form {want} h");
+            }
+            let want = (1.0 - current) / rate;
+            let got = r.remaining_life_h.unwrap();
+            assert!((got / want - 1.0).abs() < 1e-9, "{hours} h at {t} °C: remaining {got} h, closed form {want} h");
+        }
+    }
+
+    #[test]
+    fn the_class_table_is_in_the_report_on_round_celsius_edges() {
+        let e = steady(10.0, 555.0, 150.0);
+        let r = ComponentReport::new(&e.plan().components[0], component(&e, "TUBE"));
+        let t = &r.histograms.temperature_pressure;
+        // 10 K classes from 500 °C (design 560 °C less 60 K) on round degrees.
+        assert_eq!(t.temperature_edges_c[0], 500.0);
+        assert!(
+            t.temperature_edges_c.iter().all(|c| c.fract() == 0.0 && c % 10.0 == 0.0),
+            "{:?}",
+            t.temperature_edges_c
+        );
+        assert_eq!(t.hours.len(), t.temperature_edges_c.len() + 1);
+        assert!(t.hours.iter().all(|row| row.len() == t.pressure_edges_mpa.len() + 1));
+        // All 10 h in [550, 560) °C and [14.4, 18) MPa (six classes to
+        // 1.2 × 18 MPa: edges every 3.6 MPa).
+        let ti = t.temperature_edges_c.iter().position(|&c| c == 560.0).unwrap();
+        let pi = t.pressure_edges_mpa.iter().position(|&p| (p - 18.0).abs() < 1e-9).unwrap();
+        assert!((t.hours[ti][pi] - 10.0).abs() < 1e-9, "{:?}", t.hours);
+        let total: f64 = t.hours.iter().flatten().sum();
+        assert!((total - 10.0).abs() < 1e-9);
+        // The text form (`lifeledger ledger`): one class row, and totals.
+        let text = class_table_text(&r);
+        let lines: Vec<&str> = text.lines().collect();
+        assert_eq!(lines.len(), 4, "{text}");
+        assert!(lines[1].contains("< 3.6") && lines[1].contains(">= 21.6"), "{text}");
+        assert!(lines[2].trim_start().starts_with("550-560") && lines[2].trim_end().ends_with("10.0"), "{text}");
+        assert!(lines[3].trim_start().starts_with("all"), "{text}");
+    }
+
     use crate::engine::Conditions;
     use crate::physics::wear::FrettingRegime;
 

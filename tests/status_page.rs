@@ -296,6 +296,21 @@ fn component_page_shows_trends_histogram_alarms_and_material_sources() {
     assert!(svg.matches("<rect class=\"bar").count() >= 3, "histogram has too few bars");
     // The life fraction as the overview shows it.
     let c = f.snap["components"].as_array().unwrap().iter().find(|c| c["component"] == "SH-TUBE").unwrap();
+    // The temperature × pressure class table: a header row, at least one
+    // temperature class with hours, and the total of the ledger's hours.
+    let at = dom.find("<table class=\"classes\" id=\"class-table\">").expect("temperature x pressure class table");
+    let table = &dom[at..at + dom[at..].find("</table>").unwrap()];
+    assert!(table.matches("<tr>").count() >= 3, "class table has no class with hours: {table}");
+    let total: f64 = c["histograms"]["temperature_pressure"]["hours"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .flat_map(|r| r.as_array().unwrap().iter().map(|h| h.as_f64().unwrap()))
+        .sum();
+    assert!(total > 0.0 && (total - c["integrated_h"].as_f64().unwrap()).abs() < 1e-6 * total);
+    // The remaining-life tile says whether the projection is still settling.
+    let settling = c["projection"]["settling"].as_bool().unwrap();
+    assert_eq!(dom.contains("settling: larger of recent and design rate"), settling, "settling {settling}");
     assert!(dom.contains(&frac(c["creep_life_fraction"].as_f64().unwrap())));
     // Creep strain from Norton constants derived from the rupture curve is
     // no independent evidence: the API carries the basis and the page says so.

@@ -39,6 +39,7 @@ use super::event::{AlarmEvent, Transition};
 use super::index::{AlarmIndex, Direction, Severity};
 use super::record::{key, AlarmRecord, AlarmState, Shelve};
 use super::AlarmError;
+use crate::engine::component::projection;
 use crate::engine::plan::{ComponentPlan, Levels};
 use crate::engine::ComponentState;
 use crate::physics::remaining::hours_to_threshold;
@@ -249,14 +250,17 @@ impl AlarmBook {
     /// * creep life fraction and hours to critical: with a metal
     ///   temperature input; hours to critical is the projection to the
     ///   critical life-fraction level (or the highest one set) at the
-    ///   recent rate, infinite (clear) when damage is not increasing;
+    ///   projection rate (the recent rate once settled, before that the
+    ///   larger of recent and design rate: `engine::component::projection`),
+    ///   infinite (clear) when damage is not increasing;
     /// * creep strain: also needs Norton constants for the material;
     /// * wear index: with a wear plan;
     /// * metal temperature over design: with a design temperature, once
     ///   data has been integrated and only when the newest piece was
     ///   monitored (a gap-filled temperature is not a measurement: the
     ///   alarm keeps its state and the sensor alarms tell the story);
-    /// * damage rate: with a metal temperature and book-wide levels.
+    /// * damage rate: with a metal temperature and book-wide levels, on the
+    ///   recent (measured) rate, not the projection rate.
     ///
     /// An index without levels is skipped unless it already has a record
     /// (so removing the levels clears an active alarm).
@@ -270,7 +274,7 @@ impl AlarmBook {
         let has_creep = plan.metal_temperature.is_some();
         let critical_lf = th.life_fraction.top();
         let hours = critical_lf
-            .and_then(|l| hours_to_threshold(state.life_fraction, l, state.recent_life_fraction_rate_per_h))
+            .and_then(|l| hours_to_threshold(state.life_fraction, l, projection(plan, state).life_fraction_rate_per_h))
             .unwrap_or(f64::INFINITY);
         let over_design = plan
             .design_temperature_k

@@ -444,6 +444,9 @@ fn component_evaluation_runs_the_indices_that_apply() {
     st.integrated_to_ms = Some(0);
     st.life_fraction = 0.55;
     st.recent_life_fraction_rate_per_h = 0.15 / 10_000.0; // 10 000 h to 0.7
+                                                          // A settled recent rate (a window of 1000 operating hours).
+    st.recent_weight = 1.0 - (-1000.0f64 / 720.0).exp();
+    st.recent_window_h = 1000.0;
     st.creep_strain = 0.001;
     st.now.metal_temperature_k = tube.design_temperature_k.unwrap() + 3.0;
     let ev = b.evaluate_component(tube, &st, H);
@@ -495,4 +498,37 @@ fn component_evaluation_runs_the_indices_that_apply() {
                 && e.message.contains("2e-5 /h reached the warning level 1e-5 /h")),
         "{ev:#?}"
     );
+}
+
+#[test]
+fn hours_to_critical_while_settling_uses_the_larger_design_rate() {
+    let plan = plan_settings("test", toml::from_str(CONFIG).unwrap()).unwrap().plan;
+    let tube = plan.components.iter().find(|c| c.name == "TUBE").unwrap();
+    assert_eq!(tube.recent_rate_settling_h, 168.0, "the documented default");
+    // Design rupture life of the test tube, from the definitions: hoop
+    // stress on the mean diameter σ = p·(Do − t)/(2t) at 180 bar; the
+    // minimum curve by the stress-factor rule is the mean curve at σ/0.8;
+    // Larson-Miller T·(C + log10 t_r) = P(log10 σ) with the synthetic
+    // grade's C = 20, P(x) = 28000 − 1500x − 800x², at 560 °C.
+    let sigma: f64 = 18.0 * (50.8 - 6.0) / 12.0 / 0.8;
+    let x = sigma.log10();
+    let life_h = 10f64.powf((28000.0 - 1500.0 * x - 800.0 * x * x) / (560.0 + 273.15) - 20.0);
+    let mut st = ComponentState::new(tube);
+    st.integrated_to_ms = Some(0);
+    st.first_sample_ms = Some(0);
+    st.life_fraction = 0.55;
+    // Ten operating hours at a rate far below the design rate.
+    st.recent_life_fraction_rate_per_h = 1e-9;
+    st.recent_weight = 1.0 - (-10.0f64 / 720.0).exp();
+    st.recent_window_h = 10.0;
+    let mut b = AlarmBook::new();
+    b.evaluate_component(tube, &st, H);
+    let hours = b.record("TUBE/hours_to_critical").unwrap().value;
+    let want = (0.7 - 0.55) * life_h;
+    assert!((hours / want - 1.0).abs() < 1e-9, "settling: {hours} h, design projection {want} h");
+    // Settled: the recent rate alone.
+    st.recent_window_h = 168.0;
+    b.evaluate_component(tube, &st, 2 * H);
+    let hours = b.record("TUBE/hours_to_critical").unwrap().value;
+    assert!((hours / (0.15 / 1e-9) - 1.0).abs() < 1e-9, "settled: {hours} h");
 }

@@ -3,17 +3,31 @@
 //!
 //! Over `[a, b]` the interval is cut where any input changes its formula
 //! (a sample instant, the end of a hold), so each piece has inputs that are
-//! straight lines or constants. Each piece is integrated by composite
-//! Simpson's rule with enough panels to keep the temperature step per panel
-//! small; a piece whose inputs are constant is integrated exactly with one
-//! evaluation. Pieces where an input is in a gap count as unmonitored hours
-//! and are integrated at the gap policy's values.
+//! straight lines or constants. Pieces where an input is in a gap count as
+//! unmonitored hours and are integrated at the gap policy's values.
+//!
+//! * A piece whose inputs are constant is integrated exactly with one
+//!   evaluation.
+//! * Creep damage and strain on a ramp: the trapezoid rule for very small
+//!   temperature and pressure steps, else composite Simpson with enough
+//!   panels to keep the temperature step per panel small.
+//! * Wear on a ramp is exact: its rate is a polynomial of degree three or
+//!   less in time between the inputs' zero crossings, which Simpson's rule
+//!   integrates exactly (`wear_exact`).
+//! * Hours by class, over design, in the creep range and extrapolated are
+//!   booked exactly on the piece's straight lines, from the analytic times
+//!   at which they cross class edges and limits (`account_line`), not at
+//!   quadrature nodes.
+//! * The recent rates are normalised exponentially weighted means
+//!   (`physics::remaining`); [`projection`] gives the rates projections
+//!   use, conservative while the window settles.
 
-use super::plan::{ComponentPlan, Input, StressPlan, TagPlan};
+use super::plan::{ComponentPlan, Input, StressPlan, TagPlan, WearPlan};
 use super::signal::{Breaks, Segment, TagState};
 use crate::physics::histogram::TimeAtCondition;
 use crate::physics::larson_miller::RangeFlags;
 use crate::physics::norton::creep_rate_per_h_ln;
+use crate::physics::remaining::{interval_weight, next_weight, projection_rate};
 use crate::physics::stress::{hoop_stress_mpa, hoop_stress_per_mpa, remaining_wall_mm};
 use crate::physics::wear::{fretting_regime, fretting_sliding_speed_mm_s, FrettingRegime};
 use crate::settings::schema::{GapPolicy, WearModel};
@@ -76,10 +90,25 @@ pub struct ComponentState {
     pub creep_strain: f64,
     /// Accumulated wear depth, mm, including the initial.
     pub wear_depth_mm: f64,
-    /// Recent (exponentially weighted) rates.
+    /// Recent rates: normalised exponentially weighted means of the index
+    /// rates (see [`crate::physics::remaining`]), exact for a steady
+    /// history from the first piece. Projections read them through
+    /// [`projection`].
     pub recent_life_fraction_rate_per_h: f64,
     pub recent_creep_strain_rate_per_h: f64,
     pub recent_wear_rate_mm_per_h: f64,
+    /// Accumulated weight of the recent rates, `1 − e^(−H/τ)` after H
+    /// hours; 0 means no recent rate is known. A ledger stored before this
+    /// field existed loads with 0: its old (biased-low) recent rates are
+    /// not trusted and are replaced by the first new piece, and it settles
+    /// again (conservative).
+    #[serde(default)]
+    pub recent_weight: f64,
+    /// Operating hours (hours in which life fraction, strain or wear grew)
+    /// that entered the recent rates; projections settle once it reaches
+    /// the plan's minimum. 0 for a ledger stored before it existed.
+    #[serde(default)]
+    pub recent_window_h: f64,
     /// Hours integrated in all.
     pub integrated_h: f64,
     /// Hours with at least one input in a gap.
@@ -109,6 +138,8 @@ impl ComponentState {
             recent_life_fraction_rate_per_h: 0.0,
             recent_creep_strain_rate_per_h: 0.0,
             recent_wear_rate_mm_per_h: 0.0,
+            recent_weight: 0.0,
+            recent_window_h: 0.0,
             integrated_h: 0.0,
             unmonitored_h: 0.0,
             hours_in_creep_range: 0.0,
@@ -127,6 +158,91 @@ impl ComponentState {
     }
 }
 
+/// Rates at design conditions: what a projection falls back on while the
+/// recent rates settle.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize)]
+pub struct DesignRates {
+    /// Life-fraction rate, 1/h, at the design temperature and pressure
+    /// (each, when not configured, the constant input or else the newest
+    /// integrated value), on the component's curve, stress factor and wall.
+    pub life_fraction_rate_per_h: f64,
+    /// Norton creep strain rate, 1/h, at the same conditions.
+    pub creep_strain_rate_per_h: f64,
+    /// Wear depth rate, mm/h, at the newest integrated wear inputs (a wear
+    /// contact has no design conditions; with constant inputs this is the
+    /// rate at those constants).
+    pub wear_rate_mm_per_h: f64,
+}
+
+/// The rates a remaining-life projection uses, and whether it is settling.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Projection {
+    /// The recent-rate window holds fewer operating hours than
+    /// `settling_h`: each rate below is the larger of the recent rate and
+    /// the design rate.
+    pub settling: bool,
+    /// Operating hours in the recent-rate window.
+    pub window_h: f64,
+    /// Operating hours the window needs before the recent rates are used alone.
+    pub settling_h: f64,
+    /// Life-fraction rate used for projections, 1/h.
+    pub life_fraction_rate_per_h: f64,
+    /// Creep strain rate used for projections, 1/h.
+    pub creep_strain_rate_per_h: f64,
+    /// Wear depth rate used for projections, mm/h.
+    pub wear_rate_mm_per_h: f64,
+    /// The design rates compared while settling.
+    pub design: DesignRates,
+}
+
+/// Rates at design conditions for a component in its present state (the
+/// wall as thinned by the newest integrated instant).
+pub fn design_rates(plan: &ComponentPlan, state: &ComponentState) -> DesignRates {
+    let value = |design: Option<f64>, input: Option<Input>, newest: f64| {
+        design
+            .or(match input {
+                Some(Input::Constant(v)) => Some(v),
+                _ => None,
+            })
+            .unwrap_or(newest)
+    };
+    let p = Point {
+        t_k: value(plan.design_temperature_k, plan.metal_temperature, state.now.metal_temperature_k),
+        p_mpa: value(plan.design_pressure_mpa, plan.pressure, state.now.pressure_mpa),
+        ..Point::default()
+    };
+    // Before anything is integrated the wall has not thinned (service
+    // hours are clamped at zero).
+    let tau_ms = state.integrated_to_ms.map_or(f64::NEG_INFINITY, |t| t as f64);
+    let start_ms = state.first_sample_ms.unwrap_or(0);
+    let r = rates(plan, None, &p, tau_ms, start_ms, plan.creep_threshold_k());
+    DesignRates {
+        life_fraction_rate_per_h: r.life_per_h,
+        creep_strain_rate_per_h: r.strain_per_h,
+        wear_rate_mm_per_h: state.now.wear_rate_mm_per_h,
+    }
+}
+
+/// The projection rates of a component: its recent rates once the window
+/// holds `plan.recent_rate_settling_h` operating hours, before that the
+/// larger of recent and design rate for each index
+/// ([`crate::physics::remaining::projection_rate`]).
+pub fn projection(plan: &ComponentPlan, state: &ComponentState) -> Projection {
+    let settling = !(state.recent_window_h >= plan.recent_rate_settling_h);
+    let design = design_rates(plan, state);
+    let known = state.recent_weight > 0.0;
+    let pick = |recent: f64, design: f64| projection_rate(known.then_some(recent), design, settling);
+    Projection {
+        settling,
+        window_h: state.recent_window_h,
+        settling_h: plan.recent_rate_settling_h,
+        life_fraction_rate_per_h: pick(state.recent_life_fraction_rate_per_h, design.life_fraction_rate_per_h),
+        creep_strain_rate_per_h: pick(state.recent_creep_strain_rate_per_h, design.creep_strain_rate_per_h),
+        wear_rate_mm_per_h: pick(state.recent_wear_rate_mm_per_h, design.wear_rate_mm_per_h),
+        design,
+    }
+}
+
 /// Per-component memo of the last rate evaluation. Rates are a pure
 /// function of the inputs, so reusing them for bit-identical inputs changes
 /// no result; it only saves work when values are steady or when one
@@ -142,6 +258,20 @@ pub struct Scratch {
     stress_per_mpa: Option<(f64, bool)>,
     /// Histogram classes of the last node (a search hint only).
     classes: (usize, usize),
+    /// The creep threshold and the material data's range, for booking
+    /// hours on a line.
+    bounds: DataBounds,
+}
+
+/// Where a component creeps and where its rupture life is extrapolated:
+/// creep at T ≥ `threshold_k` with σ > 0; inside the data for
+/// `t_k[0] ≤ T ≤ t_k[1]` and `stress_mpa[0] ≤ σ ≤ stress_mpa[1]` (the
+/// stress range as the prepared curve applies it, scatter shift included).
+#[derive(Debug, Clone, Copy, Default)]
+struct DataBounds {
+    threshold_k: f64,
+    t_k: [f64; 2],
+    stress_mpa: [f64; 2],
 }
 
 impl Scratch {
@@ -164,7 +294,9 @@ impl Scratch {
             }
             _ => None,
         };
-        Scratch { stress_per_mpa, ..Scratch::default() }
+        let (stress_mpa, t_k) = plan.curve.data_range();
+        let bounds = DataBounds { threshold_k: plan.creep_threshold_k(), t_k, stress_mpa };
+        Scratch { stress_per_mpa, bounds, ..Scratch::default() }
     }
 }
 
@@ -345,6 +477,7 @@ fn integrate_piece(
         thinning,
         start_ms: state.first_sample_ms.unwrap_or(a_ms),
         threshold_k: plan.creep_threshold_k(),
+        bounds: scratch.bounds,
     };
     let span = b - a;
     let piece = if constant {
@@ -367,27 +500,40 @@ fn integrate_piece(
             piece_simpson(&mut eval, state, &mut classes, &lines, a, span, dt_h, n)
         }
     };
-    let Piece { d_life, d_strain, d_wear, last_rates, last_point } = piece;
+    let Piece { d_life, d_strain, mut d_wear, last_rates, last_point } = piece;
+    if !constant && lines.wear_varies() {
+        if let Some(w) = &plan.wear {
+            d_wear = wear_exact(w, &lines, span, dt_h);
+        }
+    }
     scratch.classes = classes;
     state.life_fraction += d_life;
     state.creep_strain += d_strain;
     state.wear_depth_mm += d_wear;
     if dt_h > 0.0 {
-        // The same weight as physics::remaining::update_recent_rate, computed
-        // once per piece length.
+        // The normalised recent rates of physics::remaining::update_recent_rate;
+        // the interval weight is computed once per piece length.
         let alpha = match scratch.alpha {
             Some((h, a)) if h == dt_h => a,
             _ => {
-                let a = -(-dt_h / tau_h).exp_m1();
+                let a = interval_weight(dt_h, tau_h);
                 scratch.alpha = Some((dt_h, a));
                 a
             }
         };
+        let w = next_weight(state.recent_weight, alpha);
+        // α/W' is 1 on the first piece (W = 0): the rates become the
+        // piece's, whatever an old ledger held.
+        let beta = alpha / w;
+        state.recent_weight = w;
         let per_h = 1.0 / dt_h;
-        let upd = |recent: f64, rate: f64| recent + alpha * (rate - recent);
+        let upd = |recent: f64, rate: f64| recent + beta * (rate - recent);
         state.recent_life_fraction_rate_per_h = upd(state.recent_life_fraction_rate_per_h, d_life * per_h);
         state.recent_creep_strain_rate_per_h = upd(state.recent_creep_strain_rate_per_h, d_strain * per_h);
         state.recent_wear_rate_mm_per_h = upd(state.recent_wear_rate_mm_per_h, d_wear * per_h);
+        if d_life > 0.0 || d_strain > 0.0 || d_wear > 0.0 {
+            state.recent_window_h += dt_h;
+        }
     }
     state.now = Conditions {
         metal_temperature_k: last_point.t_k,
@@ -428,6 +574,12 @@ impl PieceLines {
             && self.freq.k == 0.0
     }
 
+    /// Whether a wear input changes over the piece.
+    #[inline]
+    fn wear_varies(&self) -> bool {
+        self.load.k != 0.0 || self.speed.k != 0.0 || self.slip.k != 0.0 || self.freq.k != 0.0
+    }
+
     /// The inputs `dt` ms after the piece start.
     #[inline]
     fn at(&self, dt: f64) -> Point {
@@ -466,6 +618,8 @@ struct RateEval<'a> {
     thinning: bool,
     start_ms: i64,
     threshold_k: f64,
+    /// Where rupture life is extrapolated (for booking hours on a line).
+    bounds: DataBounds,
 }
 
 impl RateEval<'_> {
@@ -532,7 +686,7 @@ fn piece_trapezoid(
     let p1 = lines.end();
     let r1 = eval.at(&p1, b);
     let w = 0.5 * dt_h;
-    account_pair(eval.plan, state, classes, &p0, &r0, &p1, &r1, dt_h);
+    account_line(eval, state, classes, (&p0, &r0), (&p1, &r1), dt_h);
     Piece {
         d_life: w * (r0.life_per_h + r1.life_per_h),
         d_strain: w * (r0.strain_per_h + r1.strain_per_h),
@@ -558,12 +712,12 @@ fn piece_simpson(
     dt_h: f64,
     n: usize,
 ) -> Piece {
-    let plan = eval.plan;
     let h = span / n as f64;
     let w = dt_h / n as f64 / 6.0;
     let (mut d_life, mut d_strain, mut d_wear) = (0.0, 0.0, 0.0);
     let mut p0 = lines.at(0.0);
     let mut r0 = eval.at(&p0, a);
+    let (p_start, r_start) = (p0, r0);
     for i in 0..n {
         let xm = h * (i as f64 + 0.5);
         let x1 = if i + 1 == n { span } else { h * (i + 1) as f64 };
@@ -574,12 +728,10 @@ fn piece_simpson(
         d_life += w * (r0.life_per_h + 4.0 * rm.life_per_h + r1.life_per_h);
         d_strain += w * (r0.strain_per_h + 4.0 * rm.strain_per_h + r1.strain_per_h);
         d_wear += w * (r0.wear_mm_per_h + 4.0 * rm.wear_mm_per_h + r1.wear_mm_per_h);
-        account_node(plan, state, classes, &p0, &r0, w);
-        account_node(plan, state, classes, &pm, &rm, 4.0 * w);
-        account_node(plan, state, classes, &p1, &r1, w);
         r0 = r1;
         p0 = p1;
     }
+    account_line(eval, state, classes, (&p_start, &r_start), (&p0, &r0), dt_h);
     Piece { d_life, d_strain, d_wear, last_rates: r0, last_point: p0 }
 }
 
@@ -625,38 +777,196 @@ fn account_creep(state: &mut ComponentState, r: &Rates, w_h: f64) {
     state.flags.wall_exhausted |= r.wall_exhausted;
 }
 
-/// Book-keeping for a trapezoid piece of `dt_h` hours between two nodes:
-/// the histogram class is taken once, at the midpoint (the steps are small),
-/// the peak from both ends.
+/// Book-keeping for a piece of `dt_h` hours on which temperature and
+/// pressure are straight lines between the two end nodes: hours by class,
+/// over design, in the creep range and extrapolated, each exact (the times
+/// at which a line crosses an edge are analytic). The peak is at an end.
+///
+/// Every condition booked is a line on one side of a constant, so it holds
+/// on one stretch of the piece; when all hold alike at both ends they hold
+/// throughout, and the piece is booked whole (the common case of small
+/// steps inside one class).
 #[inline]
-#[allow(clippy::too_many_arguments)]
-fn account_pair(
-    plan: &ComponentPlan,
+fn account_line(
+    eval: &RateEval,
     state: &mut ComponentState,
     classes: &mut (usize, usize),
-    p0: &Point,
-    r0: &Rates,
-    p1: &Point,
-    r1: &Rates,
+    (p0, r0): (&Point, &Rates),
+    (p1, r1): (&Point, &Rates),
     dt_h: f64,
 ) {
+    let plan = eval.plan;
     if plan.metal_temperature.is_some() {
-        let (tm, pm) = (0.5 * (p0.t_k + p1.t_k), 0.5 * (p0.p_mpa + p1.p_mpa));
-        state.histogram.add_hinted(tm, pm, dt_h, classes);
+        state.histogram.add_line_hinted((p0.t_k, p0.p_mpa), (p1.t_k, p1.p_mpa), dt_h, classes);
         let peak = p0.t_k.max(p1.t_k);
         if peak > state.peak_temperature_k {
             state.peak_temperature_k = peak;
         }
         if let Some(d) = plan.design_temperature_k {
-            let over = 0.5 * ((p0.t_k > d) as u8 as f64 + (p1.t_k > d) as u8 as f64) * dt_h;
+            let over = if p0.t_k > d && p1.t_k > d {
+                dt_h
+            } else if p0.t_k <= d && p1.t_k <= d {
+                0.0
+            } else {
+                len(stretch(p0.t_k, p1.t_k, d, true)) * dt_h
+            };
             if over > 0.0 {
                 state.over_design_h += over;
                 state.flags.over_design_temperature = true;
             }
         }
     }
-    account_creep(state, r0, 0.5 * dt_h);
-    account_creep(state, r1, 0.5 * dt_h);
+    let b = &eval.bounds;
+    let whole = match (r0.creep, r1.creep) {
+        (true, true) => r0.flags == r1.flags,
+        (false, false) => {
+            plan.metal_temperature.is_none()
+                || ((p0.t_k >= b.threshold_k) == (p1.t_k >= b.threshold_k)
+                    && (r0.stress_mpa > 0.0) == (r1.stress_mpa > 0.0))
+        }
+        _ => false,
+    };
+    if whole {
+        account_creep(state, r0, dt_h);
+    } else {
+        account_creep_line(eval, state, (p0, r0), (p1, r1), dt_h);
+    }
+    state.flags.wall_exhausted |= r0.wall_exhausted | r1.wall_exhausted;
+}
+
+/// The stretch `[from, to]` of a piece (as fractions of it, 0 to 1) on
+/// which a line from `v0` to `v1` is above `c` (`above`) or below it, the
+/// constant `c` itself included when `inclusive` (which matters only for a
+/// level line); empty when `from ≥ to`.
+#[inline]
+fn stretch_of(v0: f64, v1: f64, c: f64, above: bool, inclusive: bool) -> (f64, f64) {
+    if v0 == v1 {
+        let holds = if above { v0 > c } else { v0 < c } || (inclusive && v0 == c);
+        return if holds { (0.0, 1.0) } else { (1.0, 0.0) };
+    }
+    let u = ((c - v0) / (v1 - v0)).clamp(0.0, 1.0);
+    if (v1 > v0) == above {
+        (u, 1.0)
+    } else {
+        (0.0, u)
+    }
+}
+
+/// [`stretch_of`] strictly above or below `c`.
+#[inline]
+fn stretch(v0: f64, v1: f64, c: f64, above: bool) -> (f64, f64) {
+    stretch_of(v0, v1, c, above, false)
+}
+
+/// Where two stretches overlap.
+#[inline]
+fn meet(a: (f64, f64), b: (f64, f64)) -> (f64, f64) {
+    (a.0.max(b.0), a.1.min(b.1))
+}
+
+/// Length of a stretch (0 when empty).
+#[inline]
+fn len(a: (f64, f64)) -> f64 {
+    (a.1 - a.0).max(0.0)
+}
+
+/// Creep-range and extrapolated hours of a piece whose conditions change
+/// inside it, from the crossing times: creep where T ≥ threshold and
+/// σ > 0, extrapolated where, in addition, T or σ is outside the data.
+/// Stress is a line in pressure (every hoop formula is linear in pressure;
+/// a thinning wall is taken as the straight line between the end stresses).
+#[inline(never)]
+fn account_creep_line(
+    eval: &RateEval,
+    state: &mut ComponentState,
+    (p0, r0): (&Point, &Rates),
+    (p1, r1): (&Point, &Rates),
+    dt_h: f64,
+) {
+    if eval.plan.metal_temperature.is_none() {
+        return;
+    }
+    let b = &eval.bounds;
+    let (t0, t1) = (p0.t_k, p1.t_k);
+    // Unclamped stress lines, so that σ > 0 falls where p > 0.
+    let (s0, s1) = match eval.stress_per_mpa {
+        Some((k, _)) => (k * p0.p_mpa, k * p1.p_mpa),
+        None => (r0.stress_mpa, r1.stress_mpa),
+    };
+    // The same comparisons as the rates at a node: creep at T ≥ threshold
+    // and σ > 0, inside the data for t_lo ≤ T ≤ t_hi and s_lo ≤ σ ≤ s_hi.
+    let creep = meet(stretch_of(t0, t1, b.threshold_k, true, true), stretch(s0, s1, 0.0, true));
+    let c = len(creep);
+    if c <= 0.0 {
+        return;
+    }
+    state.hours_in_creep_range += c * dt_h;
+    let t_in = meet(stretch_of(t0, t1, b.t_k[0], true, true), stretch_of(t0, t1, b.t_k[1], false, true));
+    let s_in = meet(stretch_of(s0, s1, b.stress_mpa[0], true, true), stretch_of(s0, s1, b.stress_mpa[1], false, true));
+    let inside = len(meet(creep, meet(t_in, s_in)));
+    // A stretch of extrapolation per flag (a bound met exactly at a point
+    // is no stretch).
+    let some = |x: (f64, f64)| len(meet(creep, x)) > 0.0;
+    let f = &mut state.flags.extrapolated;
+    f.temperature_below |= some(stretch(t0, t1, b.t_k[0], false));
+    f.temperature_above |= some(stretch(t0, t1, b.t_k[1], true));
+    f.stress_below |= some(stretch(s0, s1, b.stress_mpa[0], false));
+    f.stress_above |= some(stretch(s0, s1, b.stress_mpa[1], true));
+    let extrapolated = (c - inside).max(0.0);
+    if extrapolated > 0.0 {
+        state.extrapolated_h += extrapolated * dt_h;
+    }
+}
+
+/// Wear depth rate (mm/h) at one instant: volume rate `K·F·v` (Archard,
+/// with K/H) or `K_w·F·4δf` (fretting) over the contact area.
+#[inline(always)]
+fn wear_rate_mm_per_h(w: &WearPlan, p: &Point) -> f64 {
+    let speed = match w.model {
+        WearModel::Archard => p.speed_mm_s.abs(),
+        WearModel::Fretting => fretting_sliding_speed_mm_s(p.slip_mm, p.freq_hz),
+    };
+    let vol_rate_mm3_s = w.volume_coefficient * p.load_n.max(0.0) * speed;
+    vol_rate_mm3_s / w.contact_area_mm2 * 3600.0
+}
+
+/// Wear depth (mm) over a piece of `dt_h` hours (`span` ms) whose wear
+/// inputs are straight lines. The rate is a product of at most three of
+/// them (load × speed, or load × slip × frequency): a polynomial of degree
+/// three or less wherever no input changes sign, on which Simpson's rule
+/// is exact (its error term is the fourth derivative; Abramowitz & Stegun
+/// 25.4.5). The piece is cut where an input crosses zero (the rate takes
+/// the load's positive part and the speed's magnitude) and each part
+/// integrated by one Simpson panel.
+#[inline(never)]
+fn wear_exact(w: &WearPlan, lines: &PieceLines, span: f64, dt_h: f64) -> f64 {
+    let mut cuts = [0.0f64; 6];
+    let mut n = 1;
+    for l in [&lines.load, &lines.speed, &lines.slip, &lines.freq] {
+        if (l.v0 < 0.0 && l.v1 > 0.0) || (l.v0 > 0.0 && l.v1 < 0.0) {
+            cuts[n] = l.v0 / (l.v0 - l.v1);
+            n += 1;
+        }
+    }
+    cuts[n] = 1.0;
+    n += 1;
+    cuts[..n].sort_unstable_by(f64::total_cmp);
+    let rate = |u: f64| {
+        let p = if u == 1.0 { lines.end() } else { lines.at(u * span) };
+        wear_rate_mm_per_h(w, &p)
+    };
+    let mut depth = 0.0;
+    let mut f0 = rate(0.0);
+    for c in cuts[..n].windows(2) {
+        let (u0, u1) = (c[0], c[1]);
+        if u1 <= u0 {
+            continue;
+        }
+        let f1 = rate(u1);
+        depth += (u1 - u0) * dt_h / 6.0 * (f0 + 4.0 * rate(0.5 * (u0 + u1)) + f1);
+        f0 = f1;
+    }
+    depth
 }
 
 /// Damage, strain and wear rates at one instant.
@@ -704,12 +1014,10 @@ fn rates(
         }
     }
     if let Some(w) = &plan.wear {
-        let speed = match w.model {
-            WearModel::Archard => p.speed_mm_s.abs(),
-            WearModel::Fretting => fretting_sliding_speed_mm_s(p.slip_mm, p.freq_hz),
-        };
-        let vol_rate_mm3_s = w.volume_coefficient * p.load_n.max(0.0) * speed;
-        r.wear_mm_per_h = vol_rate_mm3_s / w.contact_area_mm2 * 3600.0;
+        r.wear_mm_per_h = wear_rate_mm_per_h(w, p);
     }
     r
 }
+
+#[cfg(test)]
+pub(crate) mod tests;

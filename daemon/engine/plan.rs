@@ -133,6 +133,9 @@ pub struct ComponentPlan {
     pub initial_creep_strain: f64,
     pub initial_wear_depth_mm: f64,
     pub thresholds: Thresholds,
+    /// Operating hours the recent-rate window must hold before projections
+    /// use the recent rates alone (the engine-wide setting).
+    pub recent_rate_settling_h: f64,
     /// Temperature class edges of the histogram, K.
     pub temperature_edges_k: Vec<f64>,
     /// Pressure class edges of the histogram, MPa.

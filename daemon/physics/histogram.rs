@@ -4,6 +4,12 @@
 //!
 //! Classes are given by ascending edges; the first class is "below the first
 //! edge" and the last "at or above the last edge", so no time is lost.
+//!
+//! The table is two-dimensional (hours by temperature class *and* pressure
+//! class); the marginals are its row and column sums. Time on a straight
+//! line of temperature and pressure is booked exactly
+//! ([`TimeAtCondition::add_line_hinted`]): each cell gets the time between
+//! the line's crossings of its edges, found analytically.
 
 use serde::{Deserialize, Serialize};
 
@@ -67,6 +73,72 @@ impl TimeAtCondition {
         self.hours[ti * (self.pressure_edges_mpa.len() + 1) + pi] += dt_h;
     }
 
+    /// Add `dt_h` hours spent on a straight line from temperature and
+    /// pressure `from = (t0, p0)` to `to = (t1, p1)`: each cell gets the
+    /// fraction of the time the line spends in it, between its crossings of
+    /// the cell's edges (crossing at `u = (edge − v0)/(v1 − v0)` of the
+    /// way). `hint` is the classes at the line's start (a search hint, as
+    /// for [`TimeAtCondition::add_hinted`]) and becomes those at its end.
+    #[inline]
+    pub fn add_line_hinted(&mut self, from: (f64, f64), to: (f64, f64), dt_h: f64, hint: &mut (usize, usize)) {
+        let t_start = class_index_hinted(&self.temperature_edges_k, from.0, hint.0);
+        let p_start = class_index_hinted(&self.pressure_edges_mpa, from.1, hint.1);
+        let t_end = class_index_hinted(&self.temperature_edges_k, to.0, t_start);
+        let p_end = class_index_hinted(&self.pressure_edges_mpa, to.1, p_start);
+        *hint = (t_end, p_end);
+        let w = self.pressure_edges_mpa.len() + 1;
+        if t_start == t_end && p_start == p_end {
+            // Both ends in one cell: so is the whole line (classes are intervals).
+            self.hours[t_start * w + p_start] += dt_h;
+        } else {
+            self.add_crossing_line(from, to, dt_h, (t_start, p_start), (t_end, p_end));
+        }
+    }
+
+    /// [`TimeAtCondition::add_line_hinted`] for a line that leaves its
+    /// starting cell: walk the cells in order of the crossing times.
+    #[inline(never)]
+    fn add_crossing_line(
+        &mut self,
+        from: (f64, f64),
+        to: (f64, f64),
+        dt_h: f64,
+        start: (usize, usize),
+        end: (usize, usize),
+    ) {
+        let w = self.pressure_edges_mpa.len() + 1;
+        // The next crossing on one axis: the fraction of the way at which
+        // the line leaves class `i` towards class `j`, and the class it enters.
+        fn next(edges: &[f64], v0: f64, v1: f64, i: usize, j: usize) -> Option<(f64, usize)> {
+            if i == j {
+                return None;
+            }
+            let (edge, into) = if j > i { (edges[i], i + 1) } else { (edges[i - 1], i - 1) };
+            Some(((edge - v0) / (v1 - v0), into))
+        }
+        let (mut ti, mut pi) = start;
+        let mut u = 0.0;
+        loop {
+            let nt = next(&self.temperature_edges_k, from.0, to.0, ti, end.0);
+            let np = next(&self.pressure_edges_mpa, from.1, to.1, pi, end.1);
+            let (at, temperature) = match (nt, np) {
+                (None, None) => break,
+                (Some(a), None) => (a.0, true),
+                (None, Some(b)) => (b.0, false),
+                (Some(a), Some(b)) => (a.0.min(b.0), a.0 <= b.0),
+            };
+            let at = at.clamp(u, 1.0);
+            self.hours[ti * w + pi] += (at - u) * dt_h;
+            u = at;
+            if temperature {
+                ti = nt.map_or(ti, |n| n.1);
+            } else {
+                pi = np.map_or(pi, |n| n.1);
+            }
+        }
+        self.hours[ti * w + pi] += (1.0 - u) * dt_h;
+    }
+
     /// Total hours.
     pub fn total_h(&self) -> f64 {
         self.hours.iter().sum()
@@ -105,7 +177,41 @@ mod tests {
         assert_eq!(class_index(&e, 30.0), 3);
     }
 
+    #[test]
+    fn a_line_books_the_time_between_edge_crossings() {
+        // Temperature 0 → 40 over 8 h across edges 10, 20, 30; pressure
+        // 0 → 4 across edge 3. By hand: T passes 10, 20, 30 at 2, 4, 6 h;
+        // p passes 3 at 6 h as well.
+        let mut h = TimeAtCondition::new(vec![10.0, 20.0, 30.0], vec![3.0]);
+        let mut hint = (0, 0);
+        h.add_line_hinted((0.0, 0.0), (40.0, 4.0), 8.0, &mut hint);
+        assert_eq!(hint, (3, 1));
+        let want = [[2.0, 0.0], [2.0, 0.0], [2.0, 0.0], [0.0, 2.0]];
+        for (ti, row) in want.iter().enumerate() {
+            for (pi, &v) in row.iter().enumerate() {
+                assert!((h.hours[ti * 2 + pi] - v).abs() < 1e-12, "{ti},{pi}: {:?}", h.hours);
+            }
+        }
+        // Falling the other way books the same cells.
+        let mut g = TimeAtCondition::new(vec![10.0, 20.0, 30.0], vec![3.0]);
+        let mut hint = (3, 1);
+        g.add_line_hinted((40.0, 4.0), (0.0, 0.0), 8.0, &mut hint);
+        for (a, b) in g.hours.iter().zip(&h.hours) {
+            assert!((a - b).abs() < 1e-12);
+        }
+    }
+
     proptest! {
+        #[test]
+        fn a_line_loses_no_time(t0 in 600.0f64..900.0, t1 in 600.0f64..900.0, p0 in 0.0f64..25.0, p1 in 0.0f64..25.0, dt in 0.0f64..10.0, hint in (0usize..25, 0usize..5)) {
+            let mut h = TimeAtCondition::new(TimeAtCondition::even_edges(700.0, 900.0, 10.0), vec![5.0, 10.0, 20.0]);
+            let mut hint = hint;
+            h.add_line_hinted((t0, p0), (t1, p1), dt, &mut hint);
+            prop_assert!((h.total_h() - dt).abs() < 1e-12);
+            prop_assert!(h.hours.iter().all(|&x| x >= 0.0));
+            prop_assert_eq!(hint, (class_index(&h.temperature_edges_k, t1), class_index(&h.pressure_edges_mpa, p1)));
+        }
+
         #[test]
         fn hinted_class_is_the_class(x in -10.0f64..50.0, hint in 0usize..6) {
             let e = [10.0, 20.0, 30.0];

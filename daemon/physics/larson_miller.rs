@@ -290,6 +290,15 @@ impl PreparedCurve {
         }
     }
 
+    /// The data range as this curve applies it: stress in MPa (the
+    /// minimum curve's stress factor included) and temperature in K.
+    /// Inside both, [`PreparedCurve::log10_rupture_life_h`] raises no flag
+    /// (to rounding at the ends).
+    pub fn data_range(&self) -> ([f64; 2], [f64; 2]) {
+        let s = |x: f64| 10f64.powf(x + self.shift);
+        ([s(self.lo), s(self.hi)], [self.t_lo, self.t_hi])
+    }
+
     /// log10 rupture life (h) at `log10_stress` and `temperature_k`.
     #[inline]
     pub fn log10_rupture_life_h(&self, log10_stress: f64, temperature_k: f64) -> (f64, RangeFlags) {

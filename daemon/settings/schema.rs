@@ -93,9 +93,20 @@ pub struct EngineSettings {
     /// (default 720 h, about a month of operation).
     #[serde(default = "default_tau")]
     pub recent_rate_window_h: f64,
+    /// Operating hours the recent-rate window must hold before projections
+    /// use the recent rates alone; until then they use the larger of the
+    /// recent and the design rate and are flagged settling (default 168 h,
+    /// one week: a full weekly load cycle of a cycling unit).
+    #[serde(default = "default_settling")]
+    pub recent_rate_settling_h: f64,
     /// Width of temperature classes in the time-at-condition histogram, K.
     #[serde(default = "default_tclass")]
     pub temperature_class_k: f64,
+    /// Where the temperature classes are anchored, °C: class edges lie at
+    /// this value plus whole multiples of the class width (default 0, so
+    /// 10 K classes have edges on round tens of degrees Celsius).
+    #[serde(default)]
+    pub temperature_class_origin_c: f64,
     /// Number of pressure classes between zero and 1.2 × design pressure.
     #[serde(default = "default_pclasses")]
     pub pressure_classes: usize,
@@ -125,7 +136,9 @@ impl Default for EngineSettings {
             gap_policy: GapPolicy::default(),
             max_hold_s: default_hold(),
             recent_rate_window_h: default_tau(),
+            recent_rate_settling_h: default_settling(),
             temperature_class_k: default_tclass(),
+            temperature_class_origin_c: 0.0,
             pressure_classes: default_pclasses(),
             future_margin_s: default_future_margin(),
             earliest_plausible: default_earliest(),
@@ -139,6 +152,9 @@ fn default_hold() -> f64 {
 }
 fn default_tau() -> f64 {
     720.0
+}
+fn default_settling() -> f64 {
+    168.0
 }
 fn default_tclass() -> f64 {
     10.0

@@ -9,7 +9,7 @@ use crate::engine::plan::*;
 use crate::physics::histogram::TimeAtCondition;
 use crate::physics::material::Material;
 use crate::physics::stress::StressBasis;
-use crate::physics::units::{Quantity, Unit};
+use crate::physics::units::{celsius_to_kelvin, kelvin_to_celsius, Quantity, Unit};
 use std::collections::HashMap;
 use std::fmt;
 use std::path::{Path, PathBuf};
@@ -134,6 +134,7 @@ pub fn plan_settings(file: &str, settings: Settings) -> Result<LoadedConfig, Con
         v.material(m);
         library.insert(m.clone());
     }
+    v.engine(&settings.engine);
     if let Some(p) = name_problem(&settings.plant.name) {
         v.err("[plant]", "name", p, "use printable characters only (it is the plant tag of every database point)");
     }
@@ -271,6 +272,28 @@ impl Validator {
         }
         if !(m.melting_point_k.value > 0.0) {
             self.err(&place, "melting_point_k", "must be positive (K)", "give the solidus in K");
+        }
+    }
+
+    /// Engine-wide numbers.
+    fn engine(&mut self, e: &EngineSettings) {
+        let place = "[engine]";
+        if !(e.recent_rate_window_h > 0.0 && e.recent_rate_window_h.is_finite()) {
+            self.err(place, "recent_rate_window_h", "must be a positive number of hours", "for example 720");
+        }
+        if !(e.recent_rate_settling_h >= 0.0 && e.recent_rate_settling_h.is_finite()) {
+            self.err(
+                place,
+                "recent_rate_settling_h",
+                "must be zero or a positive number of hours",
+                "for example 168 (one week of operation)",
+            );
+        }
+        if !(e.temperature_class_k > 0.0 && e.temperature_class_k.is_finite()) {
+            self.err(place, "temperature_class_k", "must be a positive number of kelvin", "for example 10");
+        }
+        if !e.temperature_class_origin_c.is_finite() {
+            self.err(place, "temperature_class_origin_c", "must be a finite temperature in °C", "for example 0");
         }
     }
 
@@ -683,9 +706,17 @@ impl Validator {
         let material = material?;
         let stress = stress?;
         let t_ref = design_t.unwrap_or(material.larson_miller.temperature_range_k[1]);
+        // Classes on round degrees Celsius: edges at the origin plus whole
+        // class widths, from about 60 K below the reference temperature to
+        // about 40 K above it; converted to K as samples are, so a sample
+        // on an edge lands in the class above it.
         let step = s.engine.temperature_class_k.max(1.0);
-        let t_lo = ((t_ref - 60.0) / step).floor() * step;
-        let temperature_edges_k = TimeAtCondition::even_edges(t_lo, t_lo + 100.0 + step, step);
+        let origin_c = s.engine.temperature_class_origin_c;
+        let t_lo_c = origin_c + ((kelvin_to_celsius(t_ref) - 60.0 - origin_c) / step).floor() * step;
+        let temperature_edges_k: Vec<f64> = TimeAtCondition::even_edges(t_lo_c, t_lo_c + 100.0 + step, step)
+            .into_iter()
+            .map(celsius_to_kelvin)
+            .collect();
         let p_ref = design_p.unwrap_or(match stress {
             StressPlan::Fixed(_) => 1.0,
             _ => 20.0,
@@ -711,6 +742,7 @@ impl Validator {
             initial_creep_strain: c.initial.creep_strain,
             initial_wear_depth_mm: c.initial.wear_depth_mm,
             thresholds,
+            recent_rate_settling_h: s.engine.recent_rate_settling_h,
             temperature_edges_k,
             pressure_edges_mpa,
         })

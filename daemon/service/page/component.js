@@ -80,8 +80,14 @@
       t += tile('Wear depth', LL.sig(c.wear_depth_mm, 3), ' mm', c.fretting_regime ? 'regime: ' + String(c.fretting_regime).replace(/_/g, ' ') : '');
     }
     const rem = c.remaining_life_h;
+    const pr = c.projection || {};
+    // While the recent rate settles the projection takes the larger of the
+    // recent and the design rate; say so, with the hours still to go.
+    const basis = pr.settling
+      ? '; settling: larger of recent and design rate until ' + LL.hours(pr.settling_h) + ' operating h (' + LL.hours(pr.window_h) + ' so far)'
+      : ' at the recent rate';
     t += tile('Remaining life', LL.num(rem) === null ? 'not moving' : LL.hours(rem), LL.num(rem) === null ? '' : ' h',
-      LL.num(rem) === null ? 'no damage accumulating at the recent rate' : LL.years(rem) + ' years at the recent rate');
+      (LL.num(rem) === null ? 'no damage accumulating' : LL.years(rem) + ' years') + basis, pr.settling ? 'data' : '');
     if (creep) {
       const peak = LL.num(c.peak_metal_temperature_c) === null ? '' : 'peak ' + LL.fixed(c.peak_metal_temperature_c, 1) + ' °C';
       const design = LL.num(c.design_temperature_c) === null ? '' : 'design ' + LL.fixed(c.design_temperature_c, 0) + ' °C';
@@ -190,6 +196,45 @@
     $('hist-pressure-box').innerHTML = LL.histogram({
       id: 'hist-pressure', label: 'Hours at pressure', classes: (c.histograms || {}).pressure_mpa, unit: 'MPa', width: Math.max(320, $('hist-pressure-box').clientWidth - 2), height: 250,
     });
+  }
+
+  // Hours by temperature class (rows) and pressure class (columns), only
+  // the temperature classes that hold hours; open classes read "< 500" and
+  // "≥ 660".
+  function renderClassTable() {
+    const box = $('class-table-box');
+    const t = (comp.histograms || {}).temperature_pressure;
+    if (!t || !t.hours) {
+      box.innerHTML = '<p class="muted">No class table from this service.</p>';
+      return;
+    }
+    const label = (edges, i, fmt) => i === 0 ? '< ' + fmt(edges[0])
+      : i === edges.length ? '≥ ' + fmt(edges[edges.length - 1]) : fmt(edges[i - 1]) + ' – ' + fmt(edges[i]);
+    const tc = (v) => LL.fixed(v, Number.isInteger(v) ? 0 : 1);
+    const pc = (v) => LL.sig(v, 3);
+    const rows = t.hours.map((r, i) => ({ i, r })).filter((x) => x.r.some((h) => h > 0));
+    if (!rows.length) {
+      box.innerHTML = '<p class="muted">No hours booked yet.</p>';
+      return;
+    }
+    const cols = t.pressure_edges_mpa.length + 1;
+    const colSum = new Array(cols).fill(0);
+    let h = '<table class="classes" id="class-table"><thead><tr><th>°C / MPa</th>';
+    for (let j = 0; j < cols; j++) h += '<th class="num">' + esc(label(t.pressure_edges_mpa, j, pc)) + '</th>';
+    h += '<th class="num">all</th></tr></thead><tbody>';
+    for (const { i, r } of rows) {
+      let sum = 0;
+      h += '<tr><th>' + esc(label(t.temperature_edges_c, i, tc)) + '</th>';
+      r.forEach((v, j) => {
+        sum += v;
+        colSum[j] += v;
+        h += '<td class="num' + (v > 0 ? '' : ' zero') + '">' + (v > 0 ? esc(LL.hours(v)) : '·') + '</td>';
+      });
+      h += '<td class="num total">' + esc(LL.hours(sum)) + '</td></tr>';
+    }
+    h += '</tbody><tfoot><tr><th>all</th>' + colSum.map((v) => '<td class="num total">' + esc(LL.hours(v)) + '</td>').join('') +
+      '<td class="num total">' + esc(LL.hours(colSum.reduce((a, b) => a + b, 0))) + '</td></tr></tfoot></table>';
+    box.innerHTML = h;
   }
 
   function renderAlarms() {
@@ -341,6 +386,7 @@
     renderFigures();
     renderCharts();
     renderHistograms();
+    renderClassTable();
     renderAlarms();
     renderEvents();
   }
