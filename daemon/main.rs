@@ -789,6 +789,20 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
             return Ok(1);
         }
     };
+    // `run` refuses a plant without components unless told; with the
+    // permission it is only a warning.
+    let mut warnings: Vec<String> = cfg.warnings.iter().map(|w| w.to_string()).collect();
+    if let Some(e) = lifeledger::service::empty_plant_refusal(&cfg) {
+        eprintln!("configuration {}:\n  - {e}", cfg.file);
+        return Ok(1);
+    }
+    if cfg.plan.components.is_empty() {
+        warnings.push(
+            "no [[component]] is configured: every sample will be acknowledged and thrown away \
+             ([plant] allow_retiring_most = true allows it)"
+                .into(),
+        );
+    }
     let service_summary = serde_json::json!({
         "mqtt": format!("{}:{}", service.mqtt.host, service.mqtt.port),
         "store": service.store.path.display().to_string(),
@@ -804,7 +818,7 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
         let j = serde_json::json!({
             "config": cfg.file,
             "ok": true,
-            "warnings": cfg.warnings.iter().map(|w| w.to_string()).collect::<Vec<_>>(),
+            "warnings": warnings,
             "service": service_summary,
             "components": checks,
             "caution": lifeledger::CAUTION,
@@ -823,7 +837,7 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
         service.database.as_ref().map_or("none".to_string(), |d| lifeledger::sink::redacted_url(&d.url)),
         service.http.listen
     )?;
-    for w in &cfg.warnings {
+    for w in &warnings {
         writeln!(out, "warning: {w}")?;
     }
     for c in &checks {

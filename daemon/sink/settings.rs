@@ -20,7 +20,7 @@ use super::SinkError;
 /// bucket = "lifeledger"
 /// token_env = "LIFELEDGER_DB_TOKEN"  # or token_file = "/etc/lifeledger/db-token"
 /// ```
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct DatabaseSettings {
     /// Base URL of the database, `http://` or `https://`, host and port
