@@ -789,6 +789,13 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
             return Ok(1);
         }
     };
+    // Secrets and files, read from this process's environment and disk,
+    // as `run` would read them.
+    let problems = service.startup_problems(|var| std::env::var(var).ok());
+    if !problems.is_empty() {
+        eprintln!("configuration {}:\n  - {}", cfg.file, problems.join("\n  - "));
+        return Ok(1);
+    }
     // `run` refuses a plant without components unless told; with the
     // permission it is only a warning.
     let mut warnings: Vec<String> = cfg.warnings.iter().map(|w| w.to_string()).collect();

@@ -86,6 +86,12 @@ pub async fn run_until_with(
     if let Some(e) = empty_plant_refusal(&cfg) {
         anyhow::bail!("configuration {}: {e}", config_path.display());
     }
+    // What the tasks would fail on later (a secret unset, a file missing):
+    // refused now, every problem at once, as check-config does.
+    let problems = svc.startup_problems(|var| std::env::var(var).ok());
+    if !problems.is_empty() {
+        anyhow::bail!("configuration {}:\n  - {}", config_path.display(), problems.join("\n  - "));
+    }
     for w in &cfg.warnings {
         tracing::warn!("{w}");
     }

@@ -209,6 +209,104 @@ impl ServiceSettings {
     }
 }
 
+impl ServiceSettings {
+    /// Everything `run` needs from outside the file, checked as `run`
+    /// would meet it: secret variables set (through `env`), secret, CA,
+    /// certificate and key files present and readable, a client certificate
+    /// with its key, exactly one source per secret. Every problem at once,
+    /// each naming its section and key; never a secret's value.
+    pub fn startup_problems(&self, env: impl Fn(&str) -> Option<String>) -> Vec<String> {
+        let mut p = vec![];
+        let m = &self.mqtt;
+        match (&m.password_env, &m.password_file) {
+            (Some(_), Some(_)) => {
+                p.push("[mqtt] password_env and password_file are both set; keep exactly one".into());
+            }
+            (Some(var), None) => p.extend(variable_problem("[mqtt] password_env", var, &env)),
+            (None, Some(f)) => p.extend(secret_file_problem("[mqtt] password_file", f)),
+            (None, None) => {}
+        }
+        if (m.password_env.is_some() || m.password_file.is_some()) && m.username.is_none() {
+            p.push(
+                "[mqtt] a password is configured but no username: the broker would get no credentials; \
+                 set [mqtt] username"
+                    .into(),
+            );
+        }
+        if let Some(t) = &m.tls {
+            p.extend(pem_file_problem("[mqtt.tls] ca_file", &t.ca_file, "CERTIFICATE"));
+            match (&t.client_cert_file, &t.client_key_file) {
+                (Some(c), Some(k)) => {
+                    p.extend(pem_file_problem("[mqtt.tls] client_cert_file", c, "CERTIFICATE"));
+                    p.extend(pem_file_problem("[mqtt.tls] client_key_file", k, "PRIVATE KEY"));
+                }
+                (Some(_), None) => p.push(
+                    "[mqtt.tls] client_cert_file is set without client_key_file: a client certificate needs \
+                     its private key; set both or neither"
+                        .into(),
+                ),
+                (None, Some(_)) => {
+                    p.push("[mqtt.tls] client_key_file is set without client_cert_file: set both or neither".into())
+                }
+                (None, None) => {}
+            }
+        }
+        if let Some(var) = &self.http.token_env {
+            p.extend(variable_problem("[http] token_env", var, &env));
+        }
+        if let Some(d) = &self.database {
+            if let Err(e) = d.token_with(&env) {
+                p.push(format!("[database]: {e}"));
+            }
+            if let Some(ca) = &d.ca_file {
+                if let Err(e) = crate::sink::read_ca_file(ca) {
+                    p.push(format!("[database]: {e}"));
+                }
+            }
+        }
+        p
+    }
+}
+
+/// A problem unless environment variable `var` is set and not empty.
+fn variable_problem(key: &str, var: &str, env: &impl Fn(&str) -> Option<String>) -> Option<String> {
+    match env(var) {
+        Some(v) if !v.trim().is_empty() => None,
+        Some(_) => Some(format!("{key}: environment variable {var} is empty")),
+        None => Some(format!(
+            "{key}: environment variable {var} is not set (or not valid UTF-8); set it in the service's \
+             environment (for example the unit's EnvironmentFile)"
+        )),
+    }
+}
+
+/// A problem unless `path` can be read and holds something.
+fn secret_file_problem(key: &str, path: &std::path::Path) -> Option<String> {
+    match std::fs::read(path) {
+        Ok(b) if b.iter().all(|c| c.is_ascii_whitespace()) => {
+            Some(format!("{key} {}: the file is empty", path.display()))
+        }
+        Ok(_) => None,
+        Err(e) => Some(format!("{key} {}: cannot read: {e}", path.display())),
+    }
+}
+
+/// A problem unless `path` can be read and holds a PEM block whose label
+/// ends with `label` (`CERTIFICATE`, `PRIVATE KEY`).
+fn pem_file_problem(key: &str, path: &std::path::Path, label: &str) -> Option<String> {
+    match std::fs::read(path) {
+        Err(e) => Some(format!("{key} {}: cannot read: {e}", path.display())),
+        Ok(b) => {
+            let text = String::from_utf8_lossy(&b);
+            let found = text
+                .lines()
+                .filter_map(|l| l.trim().strip_prefix("-----BEGIN ").and_then(|r| r.strip_suffix("-----")))
+                .any(|l| l.ends_with(label));
+            (!found).then(|| format!("{key} {}: no PEM {label} block in the file", path.display()))
+        }
+    }
+}
+
 /// Longest time any setting in seconds may give: a day. Longer waits are
 /// surely mistakes, and the bound keeps every conversion to a `Duration`
 /// or to milliseconds far from overflow.
