@@ -81,6 +81,11 @@ enum Command {
     CheckConfig {
         /// Configuration file (TOML).
         config: PathBuf,
+        /// Check the file alone, not the environment variables and files it
+        /// names (secrets, certificates): for checking a file away from the
+        /// machine that runs it. The service's pre-start check must not use it.
+        #[arg(long)]
+        file_only: bool,
         #[arg(long, value_enum, default_value_t = Format::Table)]
         format: Format,
     },
@@ -330,7 +335,7 @@ fn main() {
         Command::Replay { config, input, format, write_lp, lp_interval_s, no_progress } => {
             cmd_replay(config, input, format, write_lp, lp_interval_s, no_progress)
         }
-        Command::CheckConfig { config, format } => cmd_check(config, format),
+        Command::CheckConfig { config, format, file_only } => cmd_check(config, format, file_only),
         Command::Rollback { config, ledger, component, all: _, to, by, reason, dry_run, format } => {
             let scope = component.map_or(lifeledger::recovery::Scope::Whole, lifeledger::recovery::Scope::Component);
             cmd_rollback(&config, ledger, scope, &to, by, reason, dry_run, format)
@@ -771,7 +776,7 @@ fn fmt_opt(v: Option<f64>, prec: usize) -> String {
     v.map_or("-".into(), |x| format!("{x:.prec$}"))
 }
 
-fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
+fn cmd_check(config: PathBuf, format: Format, file_only: bool) -> Result<i32> {
     let cfg = match load_plan(&config) {
         Ok(c) => c,
         Err(e) => {
@@ -791,7 +796,7 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
     };
     // Secrets and files, read from this process's environment and disk,
     // as `run` would read them.
-    let problems = service.startup_problems(|var| std::env::var(var).ok());
+    let problems = if file_only { vec![] } else { service.startup_problems(|var| std::env::var(var).ok()) };
     if !problems.is_empty() {
         eprintln!("configuration {}:\n  - {}", cfg.file, problems.join("\n  - "));
         return Ok(1);

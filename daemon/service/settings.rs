@@ -172,6 +172,7 @@ impl ServiceSettings {
                 errors.push(format!("[database]: {e}"));
             }
         }
+        errors.extend(secret_source_problems(&mqtt, database.as_ref()));
         let http = section::<HttpSettings>("http", &s.http).unwrap_or_else(|e| {
             errors.push(e);
             None
@@ -212,43 +213,24 @@ impl ServiceSettings {
 impl ServiceSettings {
     /// Everything `run` needs from outside the file, checked as `run`
     /// would meet it: secret variables set (through `env`), secret, CA,
-    /// certificate and key files present and readable, a client certificate
-    /// with its key, exactly one source per secret. Every problem at once,
-    /// each naming its section and key; never a secret's value.
+    /// certificate and key files present, readable and of the right kind.
+    /// Every problem at once, each naming its section and key; never a
+    /// secret's value. (Whether the sources themselves make sense is
+    /// checked with the file, by [`ServiceSettings::from_settings`].)
     pub fn startup_problems(&self, env: impl Fn(&str) -> Option<String>) -> Vec<String> {
         let mut p = vec![];
         let m = &self.mqtt;
-        match (&m.password_env, &m.password_file) {
-            (Some(_), Some(_)) => {
-                p.push("[mqtt] password_env and password_file are both set; keep exactly one".into());
-            }
-            (Some(var), None) => p.extend(variable_problem("[mqtt] password_env", var, &env)),
-            (None, Some(f)) => p.extend(secret_file_problem("[mqtt] password_file", f)),
-            (None, None) => {}
+        if let (Some(var), None) = (&m.password_env, &m.password_file) {
+            p.extend(variable_problem("[mqtt] password_env", var, &env));
         }
-        if (m.password_env.is_some() || m.password_file.is_some()) && m.username.is_none() {
-            p.push(
-                "[mqtt] a password is configured but no username: the broker would get no credentials; \
-                 set [mqtt] username"
-                    .into(),
-            );
+        if let (None, Some(f)) = (&m.password_env, &m.password_file) {
+            p.extend(secret_file_problem("[mqtt] password_file", f));
         }
         if let Some(t) = &m.tls {
             p.extend(pem_file_problem("[mqtt.tls] ca_file", &t.ca_file, "CERTIFICATE"));
-            match (&t.client_cert_file, &t.client_key_file) {
-                (Some(c), Some(k)) => {
-                    p.extend(pem_file_problem("[mqtt.tls] client_cert_file", c, "CERTIFICATE"));
-                    p.extend(pem_file_problem("[mqtt.tls] client_key_file", k, "PRIVATE KEY"));
-                }
-                (Some(_), None) => p.push(
-                    "[mqtt.tls] client_cert_file is set without client_key_file: a client certificate needs \
-                     its private key; set both or neither"
-                        .into(),
-                ),
-                (None, Some(_)) => {
-                    p.push("[mqtt.tls] client_key_file is set without client_cert_file: set both or neither".into())
-                }
-                (None, None) => {}
+            if let (Some(c), Some(k)) = (&t.client_cert_file, &t.client_key_file) {
+                p.extend(pem_file_problem("[mqtt.tls] client_cert_file", c, "CERTIFICATE"));
+                p.extend(pem_file_problem("[mqtt.tls] client_key_file", k, "PRIVATE KEY"));
             }
         }
         if let Some(var) = &self.http.token_env {
@@ -266,6 +248,42 @@ impl ServiceSettings {
         }
         p
     }
+}
+
+/// Secret sources that cannot work whatever the environment: two sources
+/// for one secret, a password without a username, a client certificate
+/// without its key (or a key without its certificate).
+fn secret_source_problems(m: &MqttSettings, database: Option<&DatabaseSettings>) -> Vec<String> {
+    let mut p = vec![];
+    if m.password_env.is_some() && m.password_file.is_some() {
+        p.push("[mqtt] password_env and password_file are both set; keep exactly one".into());
+    }
+    if (m.password_env.is_some() || m.password_file.is_some()) && m.username.is_none() {
+        p.push(
+            "[mqtt] a password is configured but no username: the broker would get no credentials; \
+             set [mqtt] username"
+                .into(),
+        );
+    }
+    if let Some(t) = &m.tls {
+        match (&t.client_cert_file, &t.client_key_file) {
+            (Some(_), None) => p.push(
+                "[mqtt.tls] client_cert_file is set without client_key_file: a client certificate needs \
+                 its private key; set both or neither"
+                    .into(),
+            ),
+            (None, Some(_)) => {
+                p.push("[mqtt.tls] client_key_file is set without client_cert_file: set both or neither".into())
+            }
+            _ => {}
+        }
+    }
+    if let Some(d) = database {
+        if d.token_env.is_some() && d.token_file.is_some() {
+            p.push("[database]: database.token_env and database.token_file are both set; keep exactly one".into());
+        }
+    }
+    p
 }
 
 /// A problem unless environment variable `var` is set and not empty.
