@@ -146,6 +146,25 @@ mod tests {
     }
 
     #[test]
+    fn a_plan_moves_the_subscription_and_keeps_start_up_settings() {
+        let cfg = crate::settings::load_plan(std::path::Path::new("config/demo/plant.toml")).unwrap();
+        let old = service("[[mqtt.subscription]]\ntopic = \"p/{tag}\"\n[http]\nlisten = \"127.0.0.1:1\"");
+        let new = service("[[mqtt.subscription]]\ntopic = \"q/{tag}\"\n[http]\nlisten = \"127.0.0.1:2\"");
+        let p = plan(&cfg, &old, &cfg, new).unwrap();
+        assert_eq!((p.subscribe, p.unsubscribe), (vec!["q/+".to_string()], vec!["p/+".to_string()]));
+        assert_eq!(p.restart_required, ["[http] listen"]);
+        assert_eq!(p.service.http.listen, "127.0.0.1:1", "the running address stays");
+        assert_eq!(p.service.mqtt.subscriptions[0].topic, "q/{tag}");
+        // A plant emptied by mistake is refused; with the permission, taken.
+        let mut empty = cfg.clone();
+        empty.plan.components.clear();
+        let e = plan(&cfg, &old, &empty, old.clone()).unwrap_err();
+        assert!(e.contains("every one"), "{e}");
+        empty.settings.plant.allow_retiring_most = true;
+        assert!(plan(&cfg, &old, &empty, old.clone()).is_ok());
+    }
+
+    #[test]
     fn start_up_settings_are_named_and_kept_while_the_rest_is_taken() {
         let old = service(
             "[mqtt]\nhost = \"a\"\n[[mqtt.subscription]]\ntopic = \"p/{tag}\"\n[store]\npath = \"x.ledger\"\n\
