@@ -81,6 +81,11 @@ enum Command {
     CheckConfig {
         /// Configuration file (TOML).
         config: PathBuf,
+        /// Check the file alone, not the environment variables and files it
+        /// names (secrets, certificates): for checking a file away from the
+        /// machine that runs it. The service's pre-start check must not use it.
+        #[arg(long)]
+        file_only: bool,
         #[arg(long, value_enum, default_value_t = Format::Table)]
         format: Format,
     },
@@ -330,7 +335,7 @@ fn main() {
         Command::Replay { config, input, format, write_lp, lp_interval_s, no_progress } => {
             cmd_replay(config, input, format, write_lp, lp_interval_s, no_progress)
         }
-        Command::CheckConfig { config, format } => cmd_check(config, format),
+        Command::CheckConfig { config, format, file_only } => cmd_check(config, format, file_only),
         Command::Rollback { config, ledger, component, all: _, to, by, reason, dry_run, format } => {
             let scope = component.map_or(lifeledger::recovery::Scope::Whole, lifeledger::recovery::Scope::Component);
             cmd_rollback(&config, ledger, scope, &to, by, reason, dry_run, format)
@@ -778,7 +783,7 @@ fn fmt_opt(v: Option<f64>, prec: usize) -> String {
     v.map_or("-".into(), |x| format!("{x:.prec$}"))
 }
 
-fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
+fn cmd_check(config: PathBuf, format: Format, file_only: bool) -> Result<i32> {
     let cfg = match load_plan(&config) {
         Ok(c) => c,
         Err(e) => {
@@ -796,6 +801,27 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
             return Ok(1);
         }
     };
+    // Secrets and files, read from this process's environment and disk,
+    // as `run` would read them.
+    let problems = if file_only { vec![] } else { service.startup_problems(|var| std::env::var(var).ok()) };
+    if !problems.is_empty() {
+        eprintln!("configuration {}:\n  - {}", cfg.file, problems.join("\n  - "));
+        return Ok(1);
+    }
+    // `run` refuses a plant without components unless told; with the
+    // permission it is only a warning.
+    let mut warnings: Vec<String> = cfg.warnings.iter().map(|w| w.to_string()).collect();
+    if let Some(e) = lifeledger::service::empty_plant_refusal(&cfg) {
+        eprintln!("configuration {}:\n  - {e}", cfg.file);
+        return Ok(1);
+    }
+    if cfg.plan.components.is_empty() {
+        warnings.push(
+            "no [[component]] is configured: every sample will be acknowledged and thrown away \
+             ([plant] allow_retiring_most = true allows it)"
+                .into(),
+        );
+    }
     let service_summary = serde_json::json!({
         "mqtt": format!("{}:{}", service.mqtt.host, service.mqtt.port),
         "store": service.store.path.display().to_string(),
@@ -811,7 +837,7 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
         let j = serde_json::json!({
             "config": cfg.file,
             "ok": true,
-            "warnings": cfg.warnings.iter().map(|w| w.to_string()).collect::<Vec<_>>(),
+            "warnings": warnings,
             "service": service_summary,
             "components": checks,
             "caution": lifeledger::CAUTION,
@@ -830,7 +856,7 @@ fn cmd_check(config: PathBuf, format: Format) -> Result<i32> {
         service.database.as_ref().map_or("none".to_string(), |d| lifeledger::sink::redacted_url(&d.url)),
         service.http.listen
     )?;
-    for w in &cfg.warnings {
+    for w in &warnings {
         writeln!(out, "warning: {w}")?;
     }
     for c in &checks {

@@ -881,7 +881,7 @@ const PRODUCTION: &str = "deploy/lifeledger.production.toml";
 fn production_config_passes_check_config() {
     let out = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
         .current_dir(repo())
-        .args(["check-config", PRODUCTION])
+        .args(["check-config", "--file-only", PRODUCTION])
         .env_remove("LIFELEDGER_DB_TOKEN")
         .output()
         .expect("run lifeledger check-config");
@@ -891,6 +891,18 @@ fn production_config_passes_check_config() {
         String::from_utf8_lossy(&out.stdout),
         String::from_utf8_lossy(&out.stderr)
     );
+    // Without --file-only, on a machine without the secrets and the
+    // certificates, it says what `run` would miss.
+    let out = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+        .current_dir(repo())
+        .args(["check-config", PRODUCTION])
+        .env_remove("LIFELEDGER_DB_TOKEN")
+        .env_remove("LIFELEDGER_MQTT_PASSWORD")
+        .output()
+        .expect("run lifeledger check-config");
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1), "{err}");
+    assert!(err.contains("LIFELEDGER_DB_TOKEN") && err.contains("LIFELEDGER_MQTT_PASSWORD"), "{err}");
 }
 
 #[test]

@@ -19,7 +19,7 @@ use std::time::Duration;
 use tokio::sync::{broadcast, mpsc};
 
 /// TLS settings of the broker connection.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct TlsSettings {
     /// PEM file of the certificate authority that signed the broker's certificate.
@@ -235,7 +235,7 @@ pub async fn run_event_loop(
     settings: MqttSettings,
     client: AsyncClient,
     mut eventloop: EventLoop,
-    filters: Vec<String>,
+    filters: std::sync::Arc<std::sync::Mutex<Vec<String>>>,
     to_ledger: mpsc::Sender<Inbound>,
     mut shutdown: broadcast::Receiver<()>,
 ) {
@@ -286,7 +286,9 @@ pub async fn run_event_loop(
                 );
                 // Subscriptions live in the broker's session; renew them anyway
                 // (harmless when present, needed when the broker lost the session).
-                for f in &filters {
+                // The filters in force now: a SIGHUP reload may have changed them.
+                let now: Vec<String> = filters.lock().unwrap_or_else(|p| p.into_inner()).clone();
+                for f in &now {
                     if let Err(e) = client.try_subscribe(f, QoS::AtLeastOnce) {
                         tracing::error!("subscribe {f}: {e}");
                     }

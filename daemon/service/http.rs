@@ -59,11 +59,19 @@ async fn readyz(State(s): State<HttpState>) -> Response {
     match snap.not_ready() {
         None => {
             let stale: Vec<&str> = snap.freshness.tags.iter().filter(|t| t.stale).map(|t| t.tag.as_str()).collect();
-            if stale.is_empty() {
-                (StatusCode::OK, "ready\n").into_response()
+            let mut body = if stale.is_empty() {
+                "ready".to_string()
             } else {
-                (StatusCode::OK, format!("ready, degraded: stale tags {}\n", stale.join(", "))).into_response()
+                format!("ready, degraded: stale tags {}", stale.join(", "))
+            };
+            // Reloaded settings waiting for a restart, and a refused reload.
+            if !snap.restart_required.is_empty() {
+                body.push_str(&format!("; restart required for {}", snap.restart_required.join(", ")));
             }
+            if let Some(why) = &snap.reload_refused {
+                body.push_str(&format!("; last reload refused: {why}"));
+            }
+            (StatusCode::OK, format!("{body}\n")).into_response()
         }
         Some(why) => (StatusCode::SERVICE_UNAVAILABLE, format!("not ready: {why}\n")).into_response(),
     }

@@ -20,6 +20,7 @@
 //! transaction too (`crate::recovery::checkpoint_rows`), for rollback.
 
 use super::commit_retry::{AfterFailure, CommitRetry};
+use super::reload::SharedFilters;
 use super::settings::ServiceSettings;
 use super::snapshot::{ComponentFreshness, Freshness, ServiceCounters, Snapshot, TagFreshness};
 use crate::alarm::{parse_command, AlarmBook, AlarmEvent, AlarmIndex, AlarmRecord};
@@ -148,6 +149,18 @@ pub struct Ledger {
     commit_error: Option<String>,
     /// Set when commits have failed for too long: `run` returns it.
     fatal: Option<anyhow::Error>,
+    /// Subscriptions in force and what the last reloads left undone.
+    reloads: Reloads,
+}
+
+/// The ledger's record of SIGHUP reloads (see [`super::reload`]).
+struct Reloads {
+    /// Filters subscribed to; the intake task renews them on reconnect.
+    filters: SharedFilters,
+    /// Changed settings that wait for a restart.
+    restart_required: Vec<String>,
+    /// Why the last reload was refused (cleared by one that is applied).
+    refused: Option<String>,
 }
 
 /// Threshold lines go out with a component's series at most this often in
@@ -347,6 +360,11 @@ impl Ledger {
             retry: CommitRetry::new(commit_failure_limit(&service)),
             commit_error: None,
             fatal: None,
+            reloads: Reloads {
+                filters: Arc::new(std::sync::Mutex::new(Ledger::filters(&service))),
+                restart_required: vec![],
+                refused: None,
+            },
             service,
         };
         // Thresholds go to the database at start-up, at the newest event time.
@@ -369,7 +387,14 @@ impl Ledger {
     pub fn filters(service: &ServiceSettings) -> Vec<String> {
         let mut f: Vec<String> = service.mqtt.templates().unwrap_or_default().iter().map(|(t, _)| t.filter()).collect();
         f.push(service.mqtt.command_topic());
+        f.dedup();
         f
+    }
+
+    /// The subscription filters in force, for the intake task to subscribe
+    /// to on every connection; reloads change them.
+    pub fn shared_filters(&self) -> SharedFilters {
+        self.reloads.filters.clone()
     }
 
     /// Run until stopped: the group-commit loop. Returns an error, having
@@ -1000,6 +1025,24 @@ impl Ledger {
     }
 
     fn reload(&mut self, cfg: LoadedConfig, service: ServiceSettings) {
+        let plan = match super::reload::plan(&self.cfg, &self.service, &cfg, service) {
+            Ok(p) => p,
+            Err(why) => {
+                tracing::error!("SIGHUP: configuration not reloaded: {why}");
+                self.reloads.refused = Some(why);
+                self.publish_snapshot(true);
+                return;
+            }
+        };
+        if !plan.restart_required.is_empty() {
+            tracing::error!(
+                "SIGHUP: changed settings not applied until the service restarts: {}; the running values stay",
+                plan.restart_required.join(", ")
+            );
+        }
+        self.reloads.restart_required = plan.restart_required;
+        self.reloads.refused = None;
+        let service = plan.service;
         let mut state = self.engine.export_state();
         state.components.append(&mut self.retired);
         state.tags.append(&mut self.retired_tags);
@@ -1013,6 +1056,21 @@ impl Ledger {
         self.engine = engine;
         self.index = tag_index(&self.engine);
         self.templates = service.mqtt.templates().unwrap_or_default();
+        // The broker subscriptions follow the templates: new filters after
+        // the templates that read them are in place, then the old ones go.
+        *self.reloads.filters.lock().unwrap_or_else(|p| p.into_inner()) = Ledger::filters(&service);
+        for f in &plan.subscribe {
+            match self.client.try_subscribe(f, QoS::AtLeastOnce) {
+                Ok(()) => tracing::info!("SIGHUP: subscribed to {f}"),
+                Err(e) => tracing::error!("SIGHUP: subscribe {f}: {e}"),
+            }
+        }
+        for f in &plan.unsubscribe {
+            match self.client.try_unsubscribe(f) {
+                Ok(()) => tracing::info!("SIGHUP: unsubscribed from {f}"),
+                Err(e) => tracing::error!("SIGHUP: unsubscribe {f}: {e}"),
+            }
+        }
         self.book.set_config(service.alarms.clone());
         self.store.set_alarm_journal_max_events(service.store.alarm_journal_max_events);
         self.store.set_trend_points_per_component(service.store.trend_points_per_component);
@@ -1111,6 +1169,8 @@ impl Ledger {
             no_plant_data: self.no_plant_data,
             freshness: self.freshness(),
             held_samples: self.engine.held_len() as u64,
+            restart_required: self.reloads.restart_required.clone(),
+            reload_refused: self.reloads.refused.clone(),
             caution: crate::CAUTION,
         };
         let _ = self.snapshot_tx.send(Arc::new(snap));

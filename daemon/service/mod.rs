@@ -14,13 +14,15 @@
 //! Shutdown is a broadcast signal every task listens for. SIGTERM or SIGINT:
 //! intake stops, the ledger commits and acknowledges what it has, the
 //! outbox gets a last flush, the service publishes its offline status and
-//! disconnects. SIGHUP reloads the configuration and keeps every ledger.
+//! disconnects. SIGHUP reloads the configuration and keeps every ledger
+//! ([`reload`] says what a reload may change).
 
 pub mod commit_retry;
 pub mod http;
 pub mod ledger;
 pub mod outbox;
 pub mod page;
+pub mod reload;
 pub mod settings;
 pub mod snapshot;
 
@@ -51,6 +53,18 @@ pub fn load_service_with(
     Ok((cfg, svc))
 }
 
+/// Why `run` refuses a configuration without components (every message
+/// would be acknowledged and thrown away), unless `[plant]
+/// allow_retiring_most = true` says that is intended; `None` when it
+/// starts.
+pub fn empty_plant_refusal(cfg: &crate::settings::LoadedConfig) -> Option<String> {
+    (cfg.plan.components.is_empty() && !cfg.settings.plant.allow_retiring_most).then(|| {
+        "no [[component]] is configured, so every sample would be acknowledged and thrown away; \
+         configure the plant's components (or, if this is intended, set [plant] allow_retiring_most = true)"
+            .to_string()
+    })
+}
+
 /// Run the service until SIGTERM or SIGINT.
 pub async fn run(config_path: &Path) -> anyhow::Result<()> {
     run_until(config_path, std::future::pending()).await
@@ -69,6 +83,15 @@ pub async fn run_until_with(
     stop: impl std::future::Future<Output = ()>,
 ) -> anyhow::Result<()> {
     let (cfg, svc) = load_service_with(config_path, &overrides)?;
+    if let Some(e) = empty_plant_refusal(&cfg) {
+        anyhow::bail!("configuration {}: {e}", config_path.display());
+    }
+    // What the tasks would fail on later (a secret unset, a file missing):
+    // refused now, every problem at once, as check-config does.
+    let problems = svc.startup_problems(|var| std::env::var(var).ok());
+    if !problems.is_empty() {
+        anyhow::bail!("configuration {}:\n  - {}", config_path.display(), problems.join("\n  - "));
+    }
     for w in &cfg.warnings {
         tracing::warn!("{w}");
     }
@@ -80,7 +103,7 @@ pub async fn run_until_with(
     let library = Arc::new(cfg.library.clone());
     let ledger = Ledger::open(cfg, svc.clone(), client.clone(), snap_tx)
         .with_context(|| format!("opening the ledger {}", svc.store.path.display()))?;
-    let filters = Ledger::filters(&svc);
+    let filters = ledger.shared_filters();
 
     // HTTP first, so health is visible from the start.
     let listener = tokio::net::TcpListener::bind(&svc.http.listen)

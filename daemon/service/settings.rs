@@ -172,6 +172,7 @@ impl ServiceSettings {
                 errors.push(format!("[database]: {e}"));
             }
         }
+        errors.extend(secret_source_problems(&mqtt, database.as_ref()));
         let http = section::<HttpSettings>("http", &s.http).unwrap_or_else(|e| {
             errors.push(e);
             None
@@ -206,6 +207,121 @@ impl ServiceSettings {
             http: http.unwrap_or_default(),
             alarms: alarms.unwrap_or_default(),
         })
+    }
+}
+
+impl ServiceSettings {
+    /// Everything `run` needs from outside the file, checked as `run`
+    /// would meet it: secret variables set (through `env`), secret, CA,
+    /// certificate and key files present, readable and of the right kind.
+    /// Every problem at once, each naming its section and key; never a
+    /// secret's value. (Whether the sources themselves make sense is
+    /// checked with the file, by [`ServiceSettings::from_settings`].)
+    pub fn startup_problems(&self, env: impl Fn(&str) -> Option<String>) -> Vec<String> {
+        let mut p = vec![];
+        let m = &self.mqtt;
+        if let (Some(var), None) = (&m.password_env, &m.password_file) {
+            p.extend(variable_problem("[mqtt] password_env", var, &env));
+        }
+        if let (None, Some(f)) = (&m.password_env, &m.password_file) {
+            p.extend(secret_file_problem("[mqtt] password_file", f));
+        }
+        if let Some(t) = &m.tls {
+            p.extend(pem_file_problem("[mqtt.tls] ca_file", &t.ca_file, "CERTIFICATE"));
+            if let (Some(c), Some(k)) = (&t.client_cert_file, &t.client_key_file) {
+                p.extend(pem_file_problem("[mqtt.tls] client_cert_file", c, "CERTIFICATE"));
+                p.extend(pem_file_problem("[mqtt.tls] client_key_file", k, "PRIVATE KEY"));
+            }
+        }
+        if let Some(var) = &self.http.token_env {
+            p.extend(variable_problem("[http] token_env", var, &env));
+        }
+        if let Some(d) = &self.database {
+            if let Err(e) = d.token_with(&env) {
+                p.push(format!("[database]: {e}"));
+            }
+            if let Some(ca) = &d.ca_file {
+                if let Err(e) = crate::sink::read_ca_file(ca) {
+                    p.push(format!("[database]: {e}"));
+                }
+            }
+        }
+        p
+    }
+}
+
+/// Secret sources that cannot work whatever the environment: two sources
+/// for one secret, a password without a username, a client certificate
+/// without its key (or a key without its certificate).
+fn secret_source_problems(m: &MqttSettings, database: Option<&DatabaseSettings>) -> Vec<String> {
+    let mut p = vec![];
+    if m.password_env.is_some() && m.password_file.is_some() {
+        p.push("[mqtt] password_env and password_file are both set; keep exactly one".into());
+    }
+    if (m.password_env.is_some() || m.password_file.is_some()) && m.username.is_none() {
+        p.push(
+            "[mqtt] a password is configured but no username: the broker would get no credentials; \
+             set [mqtt] username"
+                .into(),
+        );
+    }
+    if let Some(t) = &m.tls {
+        match (&t.client_cert_file, &t.client_key_file) {
+            (Some(_), None) => p.push(
+                "[mqtt.tls] client_cert_file is set without client_key_file: a client certificate needs \
+                 its private key; set both or neither"
+                    .into(),
+            ),
+            (None, Some(_)) => {
+                p.push("[mqtt.tls] client_key_file is set without client_cert_file: set both or neither".into())
+            }
+            _ => {}
+        }
+    }
+    if let Some(d) = database {
+        if d.token_env.is_some() && d.token_file.is_some() {
+            p.push("[database]: database.token_env and database.token_file are both set; keep exactly one".into());
+        }
+    }
+    p
+}
+
+/// A problem unless environment variable `var` is set and not empty.
+fn variable_problem(key: &str, var: &str, env: &impl Fn(&str) -> Option<String>) -> Option<String> {
+    match env(var) {
+        Some(v) if !v.trim().is_empty() => None,
+        Some(_) => Some(format!("{key}: environment variable {var} is empty")),
+        None => Some(format!(
+            "{key}: environment variable {var} is not set (or not valid UTF-8); set it in the service's \
+             environment (for example the unit's EnvironmentFile)"
+        )),
+    }
+}
+
+/// A problem unless `path` can be read and holds something.
+fn secret_file_problem(key: &str, path: &std::path::Path) -> Option<String> {
+    match std::fs::read(path) {
+        Ok(b) if b.iter().all(|c| c.is_ascii_whitespace()) => {
+            Some(format!("{key} {}: the file is empty", path.display()))
+        }
+        Ok(_) => None,
+        Err(e) => Some(format!("{key} {}: cannot read: {e}", path.display())),
+    }
+}
+
+/// A problem unless `path` can be read and holds a PEM block whose label
+/// ends with `label` (`CERTIFICATE`, `PRIVATE KEY`).
+fn pem_file_problem(key: &str, path: &std::path::Path, label: &str) -> Option<String> {
+    match std::fs::read(path) {
+        Err(e) => Some(format!("{key} {}: cannot read: {e}", path.display())),
+        Ok(b) => {
+            let text = String::from_utf8_lossy(&b);
+            let found = text
+                .lines()
+                .filter_map(|l| l.trim().strip_prefix("-----BEGIN ").and_then(|r| r.strip_suffix("-----")))
+                .any(|l| l.ends_with(label));
+            (!found).then(|| format!("{key} {}: no PEM {label} block in the file", path.display()))
+        }
     }
 }
 

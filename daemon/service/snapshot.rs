@@ -61,6 +61,13 @@ pub struct Snapshot {
     pub freshness: Freshness,
     /// Samples accepted and waiting in the reorder window.
     pub held_samples: u64,
+    /// Settings changed in the file and reloaded with SIGHUP that take
+    /// effect only at the next start (`[http] listen`, `[store] path`,
+    /// `[database]`, the `[mqtt]` connection); they run at their old values.
+    pub restart_required: Vec<String>,
+    /// Why the last SIGHUP reload was refused (the running configuration
+    /// stays); `None` once a reload is applied.
+    pub reload_refused: Option<String>,
     pub caution: &'static str,
 }
 
@@ -139,6 +146,18 @@ pub fn metrics_text(s: &Snapshot) -> String {
         rej.push((format!("{{reason=\"{k}\"}}"), *v as f64));
     }
     metric("lifeledger_samples_rejected_total", "Samples or messages not integrated, by reason.", "counter", rej);
+    metric(
+        "lifeledger_restart_required",
+        "1 while settings reloaded with SIGHUP wait for a restart (see /readyz), else 0.",
+        "gauge",
+        vec![(String::new(), if s.restart_required.is_empty() { 0.0 } else { 1.0 })],
+    );
+    metric(
+        "lifeledger_reload_refused",
+        "1 when the last SIGHUP reload was refused (see /readyz), else 0.",
+        "gauge",
+        vec![(String::new(), if s.reload_refused.is_some() { 1.0 } else { 0.0 })],
+    );
     let label = |k: &str, v: &str| format!("{{{k}=\"{}\"}}", esc(v));
     metric(
         "lifeledger_tag_data_age_seconds",

@@ -50,11 +50,16 @@ pub struct Settings {
 pub struct PlantSettings {
     #[serde(default = "default_plant")]
     pub name: String,
+    /// Let a SIGHUP reload retire every configured component, or more than
+    /// half of them, and let `run` start with no component at all. Off by
+    /// default: an empty or truncated file must not stop the ledgers.
+    #[serde(default)]
+    pub allow_retiring_most: bool,
 }
 
 impl Default for PlantSettings {
     fn default() -> Self {
-        PlantSettings { name: default_plant() }
+        PlantSettings { name: default_plant(), allow_retiring_most: false }
     }
 }
 

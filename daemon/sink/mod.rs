@@ -29,5 +29,5 @@ mod writer;
 
 pub use backoff::Backoff;
 pub use error::SinkError;
-pub use settings::{redacted_url, DatabaseSettings};
+pub use settings::{read_ca_file, redacted_url, DatabaseSettings};
 pub use writer::Writer;

@@ -20,7 +20,7 @@ use super::SinkError;
 /// bucket = "lifeledger"
 /// token_env = "LIFELEDGER_DB_TOKEN"  # or token_file = "/etc/lifeledger/db-token"
 /// ```
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct DatabaseSettings {
     /// Base URL of the database, `http://` or `https://`, host and port
@@ -50,6 +50,36 @@ pub struct DatabaseSettings {
     /// (design invariant 5).
     #[serde(default = "default_outbox_quota_bytes")]
     pub outbox_quota_bytes: u64,
+    /// PEM file of certificate authorities (a plant CA) trusted for an
+    /// `https` database, besides the bundled public roots.
+    #[serde(default)]
+    pub ca_file: Option<PathBuf>,
+}
+
+/// The certificates of the PEM file `path` for the database client's root
+/// store; an error (naming the file) when it cannot be read or holds no
+/// certificate.
+pub fn read_ca_file(path: &std::path::Path) -> Result<Vec<reqwest::Certificate>, SinkError> {
+    let bytes = std::fs::read(path)
+        .map_err(|e| SinkError::Config(format!("database.ca_file {}: cannot read: {e}", path.display())))?;
+    let certs = reqwest::Certificate::from_pem_bundle(&bytes)
+        .map_err(|e| SinkError::Config(format!("database.ca_file {}: not PEM certificates: {e}", path.display())))?;
+    if certs.is_empty() {
+        return Err(SinkError::Config(format!(
+            "database.ca_file {}: no PEM CERTIFICATE block in the file",
+            path.display()
+        )));
+    }
+    // The TLS library reads each certificate when a client is built: build
+    // one now, so that a block that is not a certificate is refused here.
+    let mut probe = reqwest::ClientBuilder::new();
+    for c in &certs {
+        probe = probe.add_root_certificate(c.clone());
+    }
+    probe.build().map_err(|e| {
+        SinkError::Config(format!("database.ca_file {}: not a usable certificate: {e}", path.display()))
+    })?;
+    Ok(certs)
 }
 
 fn default_batch_lines() -> usize {
@@ -83,6 +113,7 @@ impl DatabaseSettings {
             backoff_initial_s: default_backoff_initial_s(),
             backoff_max_s: default_backoff_max_s(),
             outbox_quota_bytes: default_outbox_quota_bytes(),
+            ca_file: None,
         }
     }
 

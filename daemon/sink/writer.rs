@@ -48,10 +48,17 @@ impl Writer {
         // `ClientBuilder::new` panics on a URL it cannot parse. `validate`
         // already refuses the malformed ones we know of; this catches the
         // rest so a bad setting is a config error, not a crash.
-        let built =
-            std::panic::catch_unwind(|| influxdb2::ClientBuilder::new(url.as_str(), s.org.as_str(), token).build())
-                .map_err(|_| SinkError::Config(format!("database.url = {:?} is not a valid URL", s.url)))?
-                .map_err(|e| SinkError::Config(format!("cannot build the HTTP client: {e}")))?;
+        let mut http = reqwest::ClientBuilder::new();
+        if let Some(ca) = &s.ca_file {
+            for cert in super::settings::read_ca_file(ca)? {
+                http = http.add_root_certificate(cert);
+            }
+        }
+        let built = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+            influxdb2::ClientBuilder::with_builder(http, url.as_str(), s.org.as_str(), token).build()
+        }))
+        .map_err(|_| SinkError::Config(format!("database.url = {:?} is not a valid URL", s.url)))?
+        .map_err(|e| SinkError::Config(format!("cannot build the HTTP client: {e}")))?;
         Ok(Writer {
             client: built,
             url,
