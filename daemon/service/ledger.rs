@@ -22,10 +22,10 @@
 use super::commit_retry::{AfterFailure, CommitRetry};
 use super::settings::ServiceSettings;
 use super::snapshot::{ComponentFreshness, Freshness, ServiceCounters, Snapshot, TagFreshness};
-use crate::alarm::{parse_command, AlarmBook, AlarmEvent, AlarmIndex, AlarmRecord};
+use crate::alarm::{carries_token, parse_command, AlarmBook, AlarmError, AlarmEvent, AlarmIndex, AlarmRecord};
 use crate::engine::{ComponentState, Engine, EngineState, Rejection, Sample, TagState};
 use crate::ingest::decode::{decode_payload, PayloadSettings, TopicTemplate};
-use crate::ingest::{now_ms, Inbound};
+use crate::ingest::{now_ms, CommandOutcome, Inbound};
 use crate::replay::{tag_index, TagIndex};
 use crate::report::{
     capped, component_point, rfc3339_ms, threshold_points, ComponentReport, CREEP_STRAIN_CEILING, DISPLAY_CEILING,
@@ -148,6 +148,12 @@ pub struct Ledger {
     commit_error: Option<String>,
     /// Set when commits have failed for too long: `run` returns it.
     fatal: Option<anyhow::Error>,
+    /// The operator token MQTT commands must carry (the `[http] token_env`
+    /// token); `None`: every MQTT command is refused.
+    command_token: Option<String>,
+    /// HTTP commands carried out but not yet committed: the component
+    /// addressed and where the outcome goes once the commit succeeded.
+    command_replies: Vec<(String, tokio::sync::oneshot::Sender<CommandOutcome>)>,
 }
 
 /// Threshold lines go out with a component's series at most this often in
@@ -347,6 +353,8 @@ impl Ledger {
             retry: CommitRetry::new(commit_failure_limit(&service)),
             commit_error: None,
             fatal: None,
+            command_token: None,
+            command_replies: vec![],
             service,
         };
         // Thresholds go to the database at start-up, at the newest event time.
@@ -354,6 +362,12 @@ impl Ledger {
         l.queue_thresholds(t);
         l.publish_snapshot(true);
         Ok(l)
+    }
+
+    /// The operator token MQTT commands must carry in their `token` field;
+    /// `None` (or empty): MQTT commands are refused, counted `unauthorised`.
+    pub fn set_command_token(&mut self, token: Option<String>) {
+        self.command_token = token.filter(|t| !t.is_empty());
     }
 
     fn queue_thresholds(&mut self, t: i64) {
@@ -523,11 +537,17 @@ impl Ledger {
 
     fn handle(&mut self, m: Inbound) {
         match m {
-            Inbound::HttpCommand { payload } => {
-                self.command(&payload);
-                // Nothing to acknowledge; commit so the change is durable.
-                self.force_commit = true;
-            }
+            Inbound::HttpCommand { payload, reply } => match self.command(&payload) {
+                Ok(component) => {
+                    // Nothing to acknowledge; commit so the change is
+                    // durable, then answer with the resulting state.
+                    self.command_replies.push((component, reply));
+                    self.force_commit = true;
+                }
+                Err(outcome) => {
+                    let _ = reply.send(outcome);
+                }
+            },
             Inbound::Connection { connected } => {
                 self.mqtt_connected = connected;
                 self.publish_snapshot(true);
@@ -535,7 +555,7 @@ impl Ledger {
             Inbound::Message { publish, received_ms } => {
                 let topic = publish.topic.clone();
                 if topic == self.command_topic {
-                    self.command(&publish.payload);
+                    self.mqtt_command(&publish);
                 } else {
                     self.sample(&topic, &publish.payload, received_ms);
                 }
@@ -544,20 +564,89 @@ impl Ledger {
         }
     }
 
-    fn command(&mut self, payload: &[u8]) {
+    /// A command from the MQTT command topic: carried out only if it is
+    /// not a retained message and carries the operator token; refused,
+    /// counted and logged (rate-limited, never echoing the payload or its
+    /// token) otherwise.
+    fn mqtt_command(&mut self, publish: &Publish) {
+        if publish.retain {
+            // A retained command would act again at every new subscription.
+            self.refuse_command("retained");
+            self.log.warn("command_retained", || {
+                format!(
+                    "alarm command on {} refused (retained): commands act once, when sent; clear the retained \
+                     message on that topic",
+                    publish.topic
+                )
+            });
+            return;
+        }
+        let authorised = self.command_token.as_deref().is_some_and(|t| carries_token(&publish.payload, t));
+        if !authorised {
+            self.refuse_command("unauthorised");
+            let why = if self.command_token.is_none() {
+                "no operator token is configured ([http] token_env), so MQTT commands are refused"
+            } else {
+                "missing or wrong \"token\""
+            };
+            self.log.warn("command_unauthorised", || {
+                format!("alarm command on {} refused (unauthorised): {why}", publish.topic)
+            });
+            return;
+        }
+        let _ = self.command(&publish.payload);
+    }
+
+    fn refuse_command(&mut self, reason: &str) {
+        *self.counters.commands_rejected.entry(reason.to_string()).or_insert(0) += 1;
+    }
+
+    /// Carry out an authorised command: the name of the component it
+    /// addressed, or what was wrong (counted and logged).
+    fn command(&mut self, payload: &[u8]) -> Result<String, CommandOutcome> {
         let now = now_ms();
-        match parse_command(payload).and_then(|c| self.book.apply(&c, now)) {
+        let cmd = match parse_command(payload) {
+            Ok(c) => c,
+            Err(e) => {
+                self.refuse_command("invalid");
+                tracing::warn!("alarm command rejected (invalid): {e}");
+                return Err(CommandOutcome::Invalid(e.to_string()));
+            }
+        };
+        match self.book.apply(&cmd, now) {
             Ok(ev) => {
                 self.counters.commands_applied += 1;
+                tracing::info!(by = cmd.by(), "alarm command carried out: {} event(s)", ev.len());
                 for e in &ev {
                     self.dirty_alarms.insert(e.key());
                 }
                 self.events.extend(ev);
+                // A full key `component/index` names its record's component.
+                let target = &cmd.target().component;
+                Ok(self.book.record(target).map_or_else(|| target.clone(), |r| r.component.clone()))
             }
             Err(e) => {
-                self.counters.commands_rejected += 1;
-                tracing::warn!("alarm command rejected: {e}");
+                self.refuse_command("refused");
+                tracing::warn!("alarm command rejected (refused by the alarm book): {e}");
+                Err(match e {
+                    AlarmError::UnknownAlarm { .. } | AlarmError::UnknownComponent { .. } => {
+                        CommandOutcome::Unknown(e.to_string())
+                    }
+                    _ => CommandOutcome::Invalid(e.to_string()),
+                })
             }
+        }
+    }
+
+    /// Answer the HTTP commands of a batch now durable, after publishing
+    /// the snapshot, so that what the caller reads next agrees.
+    fn answer_commands(&mut self) {
+        if self.command_replies.is_empty() {
+            return;
+        }
+        self.publish_snapshot(true);
+        for (component, reply) in self.command_replies.drain(..) {
+            let _ = reply.send(CommandOutcome::Applied(self.book.current(&component).to_json()));
         }
     }
 
@@ -773,6 +862,8 @@ impl Ledger {
             && self.trend_points.is_empty()
         {
             self.force_commit = false;
+            // Nothing to write: what the commands did is already durable.
+            self.answer_commands();
             return;
         }
         self.force_commit = false;
@@ -896,6 +987,7 @@ impl Ledger {
                         self.recent_events.pop_front();
                     }
                 }
+                self.answer_commands();
                 self.check_quota();
             }
             Err(e) => {

@@ -94,8 +94,9 @@ pub struct HttpSettings {
     /// Listen address; loopback by default.
     #[serde(default = "default_listen")]
     pub listen: String,
-    /// Environment variable holding a token that allows acknowledge and
-    /// shelve through HTTP; without it the HTTP side is read-only.
+    /// Environment variable holding the operator token, which allows
+    /// acknowledge, shelve and unshelve over HTTP (bearer token) and over
+    /// MQTT (the command's `token` field); without it both are refused.
     #[serde(default)]
     pub token_env: Option<String>,
 }
