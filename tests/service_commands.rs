@@ -1,14 +1,16 @@
-//! Operator commands against the live service and a real mosquitto broker:
+//! Operator commands against the live service, a real mosquitto broker and
+//! a real VictoriaMetrics:
 //! * an MQTT command without the operator token changes nothing and is
 //!   counted as `unauthorised` (and the token is never echoed in the log);
 //! * HTTP commands are answered with their real outcome (200 with the
 //!   resulting state, 404 for an unknown component, 400 for an invalid
-//!   command, 401 for a wrong token).
+//!   command, 401 for a wrong token);
+//! * the database's reachability reaches the snapshot and `/metrics`.
 
 mod common;
 
 use common::service::{publish_all, publish_messages, samples, Service, ServiceConfig};
-use common::{free_port, http, poll_until, Mosquitto};
+use common::{free_port, http, poll_until, Mosquitto, VictoriaMetrics};
 use std::path::{Path, PathBuf};
 
 /// The environment variable the tests' `[http] token_env` names.
@@ -142,5 +144,34 @@ fn http_commands_answer_with_their_real_outcome() {
     // Durable before the answer: the snapshot agrees at once.
     let snap = svc.snapshot().unwrap();
     assert_eq!(alarm_state(&snap, "SH-TUBE", "creep_life_fraction").as_deref(), Some("shelved"));
+    assert!(svc.sigterm().success());
+}
+
+#[test]
+fn database_reachability_reaches_the_snapshot_and_metrics() {
+    let broker = Mosquitto::start();
+    let mut vm = VictoriaMetrics::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let db = format!(
+        "[database]\nurl = \"{}\"\norg = \"test\"\nbucket = \"test\"\nbackoff_initial_s = 0.1\nbackoff_max_s = 0.5\n",
+        vm.url()
+    );
+    let cfg = config(dir.path(), broker.port, http_port, &db);
+    let svc = Service::start_with_env(&cfg, http_port, &[(TOKEN_VAR, TOKEN)]);
+    svc.wait_connected();
+    // Health points go out every second, so the sender talks to the
+    // database without any plant data.
+    poll_until("database_reachable true in the snapshot", || {
+        svc.snapshot().filter(|v| v["database_reachable"] == true)
+    });
+    let m = http::get(http_port, "/metrics").unwrap().text();
+    assert_eq!(metric(&m, "lifeledger_database_reachable"), Some(1.0), "{m}");
+    vm.stop();
+    poll_until("database_reachable false once the database is gone", || {
+        svc.snapshot().filter(|v| v["database_reachable"] == false)
+    });
+    let m = http::get(http_port, "/metrics").unwrap().text();
+    assert_eq!(metric(&m, "lifeledger_database_reachable"), Some(0.0), "{m}");
     assert!(svc.sigterm().success());
 }

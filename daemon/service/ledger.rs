@@ -151,6 +151,8 @@ pub struct Ledger {
     /// The operator token MQTT commands must carry (the `[http] token_env`
     /// token); `None`: every MQTT command is refused.
     command_token: Option<String>,
+    /// The outbox sender's view of the database (`None`: no sender).
+    database_reachable: Option<watch::Receiver<Option<bool>>>,
     /// HTTP commands carried out but not yet committed: the component
     /// addressed and where the outcome goes once the commit succeeded.
     command_replies: Vec<(String, tokio::sync::oneshot::Sender<CommandOutcome>)>,
@@ -354,6 +356,7 @@ impl Ledger {
             commit_error: None,
             fatal: None,
             command_token: None,
+            database_reachable: None,
             command_replies: vec![],
             service,
         };
@@ -368,6 +371,12 @@ impl Ledger {
     /// `None` (or empty): MQTT commands are refused, counted `unauthorised`.
     pub fn set_command_token(&mut self, token: Option<String>) {
         self.command_token = token.filter(|t| !t.is_empty());
+    }
+
+    /// Where the outbox sender says whether the database took its last
+    /// write; shown as `database_reachable` in the snapshot.
+    pub fn set_database_reachability(&mut self, reachable: watch::Receiver<Option<bool>>) {
+        self.database_reachable = Some(reachable);
     }
 
     fn queue_thresholds(&mut self, t: i64) {
@@ -1193,7 +1202,7 @@ impl Ledger {
             holding: self.holding,
             commit_failing: self.commit_error.clone(),
             database_configured: self.service.database.is_some(),
-            database_reachable: None,
+            database_reachable: self.database_reachable.as_ref().and_then(|r| *r.borrow()),
             engine: self.engine.counters().clone(),
             service: self.counters.clone(),
             components,

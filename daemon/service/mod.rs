@@ -91,7 +91,11 @@ pub async fn run_until_with(
     let mut ledger = Ledger::open(cfg, svc.clone(), client.clone(), snap_tx)
         .with_context(|| format!("opening the ledger {}", svc.store.path.display()))?;
     ledger.set_command_token(token.clone());
-    let (reach_tx, _reach_rx) = watch::channel(None);
+    // Whether the database took the outbox sender's last write.
+    let (reach_tx, reach_rx) = watch::channel(None);
+    if svc.database.is_some() {
+        ledger.set_database_reachability(reach_rx);
+    }
     let filters = Ledger::filters(&svc);
 
     // HTTP first, so health is visible from the start.

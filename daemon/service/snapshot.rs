@@ -249,6 +249,12 @@ pub fn metrics_text(s: &Snapshot) -> String {
             .collect(),
     );
     metric(
+        "lifeledger_database_reachable",
+        "1 when the last write to the database succeeded, 0 when it failed (absent: no database, or no write yet).",
+        "gauge",
+        s.database_reachable.map(|r| (String::new(), r as u8 as f64)).into_iter().collect(),
+    );
+    metric(
         "lifeledger_mqtt_connected",
         "1 when connected to the broker.",
         "gauge",
