@@ -5,13 +5,18 @@
 //! * HTTP commands are answered with their real outcome (200 with the
 //!   resulting state, 404 for an unknown component, 400 for an invalid
 //!   command, 401 for a wrong token);
-//! * the database's reachability reaches the snapshot and `/metrics`.
+//! * the database's reachability reaches the snapshot and `/metrics`;
+//! * the retained alarm state of every component is published again at
+//!   each connection, so a state message lost in a crash after the commit
+//!   comes back with the next start.
 
 mod common;
 
 use common::service::{publish_all, publish_messages, samples, Service, ServiceConfig};
 use common::{free_port, http, poll_until, Mosquitto, VictoriaMetrics};
+use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
 use std::path::{Path, PathBuf};
+use std::time::Duration;
 
 /// The environment variable the tests' `[http] token_env` names.
 const TOKEN_VAR: &str = "LIFELEDGER_TEST_OPERATOR_TOKEN";
@@ -173,5 +178,74 @@ fn database_reachability_reaches_the_snapshot_and_metrics() {
     });
     let m = http::get(http_port, "/metrics").unwrap().text();
     assert_eq!(metric(&m, "lifeledger_database_reachable"), Some(0.0), "{m}");
+    assert!(svc.sigterm().success());
+}
+
+/// Subscribes to `filter` on 127.0.0.1:`port` as client `id`; every
+/// message received (topic, payload) goes to the returned channel.
+fn listen(port: u16, filter: &str, id: &str) -> (Client, std::sync::mpsc::Receiver<(String, Vec<u8>)>) {
+    let mut o = MqttOptions::new(id, "127.0.0.1", port);
+    o.set_keep_alive(Duration::from_secs(30));
+    let (client, mut conn) = Client::new(o, 100);
+    client.subscribe(filter, QoS::AtLeastOnce).unwrap();
+    let (tx, rx) = std::sync::mpsc::channel();
+    std::thread::spawn(move || {
+        for ev in conn.iter() {
+            match ev {
+                Ok(Event::Incoming(Packet::Publish(p))) => {
+                    if tx.send((p.topic.clone(), p.payload.to_vec())).is_err() {
+                        break;
+                    }
+                }
+                Ok(_) => {}
+                Err(_) => break,
+            }
+        }
+    });
+    (client, rx)
+}
+
+/// Clears the retained message of `topic` (an empty retained publish,
+/// MQTT 3.1.1 section 3.3.1.3) and waits for the broker's acknowledgement.
+fn clear_retained(port: u16, topic: &str) {
+    let mut o = MqttOptions::new("retained-clearer", "127.0.0.1", port);
+    o.set_keep_alive(Duration::from_secs(30));
+    let (client, mut conn) = Client::new(o, 10);
+    client.publish(topic, QoS::AtLeastOnce, true, Vec::new()).unwrap();
+    for ev in conn.iter() {
+        match ev {
+            Ok(Event::Incoming(Packet::PubAck(_))) => break,
+            Ok(_) => {}
+            Err(e) => panic!("clearing the retained {topic} failed: {e}"),
+        }
+    }
+    let _ = client.disconnect();
+}
+
+#[test]
+fn the_retained_alarm_state_is_published_again_at_each_connection() {
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let svc = plant_with_an_alarm(dir.path(), &broker, "");
+    let http_port = svc.http_port;
+    let topic = "lifeledger/alarms/state/SH-TUBE";
+    let (first, rx) = listen(broker.port, topic, "state-listener-1");
+    poll_until("the retained SH-TUBE state", || rx.try_recv().ok().filter(|(_, p)| !p.is_empty()));
+    let _ = first.disconnect();
+    assert!(svc.sigterm().success());
+    // The state message lost, as when the process dies between the commit
+    // and the publish: the broker no longer holds it.
+    clear_retained(broker.port, topic);
+
+    let svc = Service::start_with_env(&dir.path().join("service.toml"), http_port, &[(TOKEN_VAR, TOKEN)]);
+    svc.wait_connected();
+    let (second, rx) = listen(broker.port, topic, "state-listener-2");
+    let state: serde_json::Value = poll_until("the SH-TUBE state published again after the restart", || {
+        rx.try_recv().ok().and_then(|(_, p)| serde_json::from_slice(&p).ok())
+    });
+    assert_eq!(state["component"], "SH-TUBE", "{state}");
+    let creep = state["alarms"].as_array().unwrap().iter().find(|r| r["index"] == "creep_life_fraction");
+    assert_eq!(creep.map(|r| r["state"].clone()), Some("unacknowledged".into()), "{state}");
+    let _ = second.disconnect();
     assert!(svc.sigterm().success());
 }

@@ -558,6 +558,9 @@ impl Ledger {
                 }
             },
             Inbound::Connection { connected } => {
+                if connected && !self.mqtt_connected {
+                    self.publish_all_states();
+                }
                 self.mqtt_connected = connected;
                 self.publish_snapshot(true);
             }
@@ -1084,6 +1087,31 @@ impl Ledger {
             self.dirty_alarms.insert(e.key());
         }
         self.events.extend(ev);
+    }
+
+    /// Publish the retained alarm state of every component in the alarm
+    /// book, at each connection: a state message lost after its commit (a
+    /// crash before the publish, a broker that lost its retained messages)
+    /// is put right at the next start or reconnection. Event messages are
+    /// not sent again; the alarm journal keeps them.
+    fn publish_all_states(&mut self) {
+        let components: Vec<String> = self.book.components().into_iter().map(String::from).collect();
+        let mut failed = 0usize;
+        for c in &components {
+            let s = self.book.current(c);
+            let topic = self.service.mqtt.alarm_state_topic(c);
+            if self.client.try_publish(topic, QoS::AtLeastOnce, true, s.to_json()).is_err() {
+                failed += 1;
+            }
+        }
+        if failed > 0 {
+            self.log.warn("state_republish_failed", || {
+                format!(
+                    "{failed} of {} retained alarm states not published again (client queue full)",
+                    components.len()
+                )
+            });
+        }
     }
 
     fn publish_alarms(&self, events: &[AlarmEvent]) {
