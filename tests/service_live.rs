@@ -50,6 +50,24 @@ fn start_plant(dir: &Path) -> (Mosquitto, PathBuf, Service) {
     (broker, cfg, svc)
 }
 
+/// The environment variable [`with_operator_token`] names in `[http] token_env`.
+const TOKEN_VAR: &str = "LIFELEDGER_TEST_OPERATOR_TOKEN";
+/// The operator token alarm commands carry (MQTT: the `token` field).
+const TOKEN: &str = "live-operator-token";
+
+/// Adds `[http] token_env` to the configuration at `cfg`: alarm commands
+/// need the operator token.
+fn with_operator_token(cfg: &Path) {
+    let text =
+        std::fs::read_to_string(cfg).unwrap().replace("[http]\n", &format!("[http]\ntoken_env = \"{TOKEN_VAR}\"\n"));
+    std::fs::write(cfg, text).unwrap();
+}
+
+/// The service with the operator token in its environment.
+fn start_operated(cfg: &Path, http_port: u16) -> Service {
+    Service::start_with_env(cfg, http_port, &[(TOKEN_VAR, TOKEN)])
+}
+
 fn csv(dir: &Path, s: &[Sample]) -> PathBuf {
     let mut t = String::from("timestamp,tag,value\n");
     for (tag, ts, v) in s {
@@ -288,6 +306,7 @@ fn alarms_go_out_on_mqtt_and_can_be_acknowledged() {
     let dir = tempfile::tempdir().unwrap();
     let http_port = free_port();
     let cfg = config(dir.path(), broker.port, http_port, None);
+    with_operator_token(&cfg);
     // A listener for the alarm topics.
     let mut o = MqttOptions::new("alarm-listener", "127.0.0.1", broker.port);
     o.set_keep_alive(Duration::from_secs(30));
@@ -309,7 +328,7 @@ fn alarms_go_out_on_mqtt_and_can_be_acknowledged() {
             }
         }
     });
-    let svc = Service::start(&cfg, http_port);
+    let svc = start_operated(&cfg, http_port);
     svc.wait_connected();
     let s = samples(400);
     publish_all(broker.port, &s, "publisher-alarms");
@@ -339,8 +358,9 @@ fn alarms_go_out_on_mqtt_and_can_be_acknowledged() {
             "lifeledger/commands",
             QoS::AtLeastOnce,
             false,
-            br#"{"action":"acknowledge","component":"SH-TUBE","index":"creep_life_fraction","by":"test operator"}"#
-                .to_vec(),
+            serde_json::json!({"action": "acknowledge", "component": "SH-TUBE", "index": "creep_life_fraction",
+                               "by": "test operator", "token": TOKEN})
+            .to_string(),
         )
         .unwrap();
     poll_until("the acknowledged state", || {
@@ -351,7 +371,7 @@ fn alarms_go_out_on_mqtt_and_can_be_acknowledged() {
     });
     // Durable: after a restart the alarm is still acknowledged.
     assert!(svc.sigterm().success());
-    let svc = Service::start(&cfg, http_port);
+    let svc = start_operated(&cfg, http_port);
     let snap = poll_until("snapshot", || svc.snapshot());
     let recs = snap["alarms"][0]["alarms"].as_array().unwrap();
     assert!(recs.iter().any(|r| r["index"] == "creep_life_fraction" && r["state"] == "acknowledged"), "{recs:?}");
@@ -474,8 +494,12 @@ fn without_id(event: &serde_json::Value) -> serde_json::Value {
 #[test]
 fn alarm_history_survives_a_restart() {
     let dir = tempfile::tempdir().unwrap();
-    let (broker, cfg, svc) = start_plant(dir.path());
-    let http_port = svc.http_port;
+    let broker = Mosquitto::start();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, None);
+    with_operator_token(&cfg);
+    let svc = start_operated(&cfg, http_port);
+    svc.wait_connected();
     let s = samples(400);
     publish_all(broker.port, &s, "publisher-history");
     svc.wait_until_integrated(s.last().unwrap().1);
@@ -488,7 +512,7 @@ fn alarm_history_survives_a_restart() {
     assert!(svc.sigterm().success(), "clean exit on SIGTERM");
 
     // Same store, new process: the history is read back from the ledger.
-    let svc = Service::start(&cfg, http_port);
+    let svc = start_operated(&cfg, http_port);
     let snap = poll_until("snapshot", || svc.snapshot());
     let recent = snap["recent_events"].as_array().unwrap();
     assert!(recent.contains(&raised), "the creep alarm is still among the recent events: {recent:?}");
@@ -499,8 +523,9 @@ fn alarm_history_survives_a_restart() {
 
     // New events follow the old ones, newest first, none of them twice.
     svc.wait_connected();
-    let ack = br#"{"action":"acknowledge","component":"SH-TUBE","index":"creep_life_fraction","by":"test operator"}"#;
-    publish_messages(broker.port, vec![("lifeledger/commands", ack.to_vec())], "command-sender");
+    let ack = serde_json::json!({"action": "acknowledge", "component": "SH-TUBE", "index": "creep_life_fraction",
+                                 "by": "test operator", "token": TOKEN});
+    publish_messages(broker.port, vec![("lifeledger/commands", ack.to_string().into_bytes())], "command-sender");
     let history = poll_until("the acknowledge in the alarm history", || {
         let h = alarm_history(&svc, "SH-TUBE", 1000);
         h.iter().any(|e| tube_creep(e, "acknowledged")).then_some(h)

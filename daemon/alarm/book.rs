@@ -49,7 +49,8 @@ use std::collections::BTreeMap;
 
 /// Longest shelve accepted, hours (30 days). ISA-18.2 wants shelving
 /// time-limited so that a suppressed alarm comes back to someone's
-/// attention; the length is a choice of this program.
+/// attention; the length is a choice of this program. `[alarms]
+/// max_shelve_h` can shorten it, never lengthen it.
 pub const MAX_SHELVE_H: f64 = 720.0;
 const MS_PER_H: f64 = 3_600_000.0;
 
@@ -76,6 +77,13 @@ pub struct AlarmConfig {
     /// component thresholds do not carry damage-rate levels.
     #[serde(default)]
     pub damage_rate: Levels,
+    /// Longest shelve, hours (default and ceiling [`MAX_SHELVE_H`]).
+    #[serde(default = "default_max_shelve")]
+    pub max_shelve_h: f64,
+}
+
+fn default_max_shelve() -> f64 {
+    MAX_SHELVE_H
 }
 
 fn default_stale_grace() -> f64 {
@@ -92,6 +100,7 @@ impl Default for AlarmConfig {
             no_data_alarm_s: default_no_data(),
             deadbands: BTreeMap::new(),
             damage_rate: Levels::default(),
+            max_shelve_h: default_max_shelve(),
         }
     }
 }
@@ -354,7 +363,8 @@ impl AlarmBook {
     }
 
     /// Shelve one alarm or every alarm of a component until `until_ms`
-    /// (after `time_ms`, at most [`MAX_SHELVE_H`] later). Shelving a
+    /// (after `time_ms`, at most `max_shelve_h` of the configuration, and
+    /// never more than [`MAX_SHELVE_H`], later). Shelving a
     /// shelved alarm moves its end and emits a new event.
     #[allow(clippy::too_many_arguments)]
     pub fn shelve(
@@ -373,11 +383,14 @@ impl AlarmBook {
                 now: rfc3339_ms(time_ms),
             });
         }
-        if (until_ms - time_ms) as f64 > MAX_SHELVE_H * MS_PER_H {
+        // NaN or beyond the ceiling: the ceiling.
+        let max_h =
+            if self.config.max_shelve_h > 0.0 { self.config.max_shelve_h.min(MAX_SHELVE_H) } else { MAX_SHELVE_H };
+        if (until_ms - time_ms) as f64 > max_h * MS_PER_H {
             return Err(AlarmError::ShelveTooLong {
                 target: key_or_component.to_string(),
                 hours: (until_ms - time_ms) as f64 / MS_PER_H,
-                max_h: MAX_SHELVE_H,
+                max_h,
             });
         }
         let keys = self.targets(key_or_component, index)?;

@@ -6,6 +6,11 @@
 //! {"action":"unshelve","component":"U2-SH3-OUTLET-LEG-A","by":"operator 7"}
 //! ```
 //!
+//! Over MQTT a command must also carry the operator token in a `token`
+//! field (see [`carries_token`]); the field is allowed in every action and
+//! never part of the parsed command. Over HTTP the token goes in the
+//! `Authorization` header instead.
+//!
 //! `component` may also be a full key (`component/index`); leaving out
 //! `index` (or giving null) addresses every alarm of the component. `by` is
 //! required (ISA-18.2 asks who acknowledged or shelved), and a shelve needs
@@ -83,6 +88,32 @@ fn text(o: &Map<String, Value>, field: &str) -> Result<String, AlarmError> {
     }
 }
 
+/// Whether `given` equals `expected`, compared in a time that depends only
+/// on the length of `expected` (not on where the two first differ), so
+/// that timing does not reveal the token a byte at a time.
+pub fn tokens_match(given: &[u8], expected: &[u8]) -> bool {
+    let mut diff = (given.len() != expected.len()) as u8;
+    for (i, e) in expected.iter().enumerate() {
+        diff |= given.get(i).copied().unwrap_or(0) ^ e;
+    }
+    diff == 0
+}
+
+/// Whether the command message `json` is a JSON object whose `token`
+/// field is the string `expected` (compared with [`tokens_match`]). An
+/// empty `expected` authorises nothing.
+pub fn carries_token(json: &[u8], expected: &str) -> bool {
+    if expected.is_empty() {
+        return false;
+    }
+    match serde_json::from_slice::<Value>(json) {
+        Ok(Value::Object(o)) => {
+            matches!(o.get("token"), Some(Value::String(t)) if tokens_match(t.as_bytes(), expected.as_bytes()))
+        }
+        _ => false,
+    }
+}
+
 /// Parse one command message.
 pub fn parse_command(json: &[u8]) -> Result<AlarmCommand, AlarmError> {
     let v: Value = serde_json::from_slice(json).map_err(|e| AlarmError::CommandJson { problem: e.to_string() })?;
@@ -91,8 +122,8 @@ pub fn parse_command(json: &[u8]) -> Result<AlarmCommand, AlarmError> {
     };
     let action = text(&o, "action")?;
     let allowed: &[&str] = match action.as_str() {
-        "acknowledge" | "unshelve" => &["action", "component", "index", "by"],
-        "shelve" => &["action", "component", "index", "by", "duration_h", "reason"],
+        "acknowledge" | "unshelve" => &["action", "component", "index", "by", "token"],
+        "shelve" => &["action", "component", "index", "by", "duration_h", "reason", "token"],
         other => {
             return Err(bad("action", format!("unknown action \"{other}\"; expected acknowledge, shelve or unshelve")))
         }
@@ -168,6 +199,22 @@ mod tests {
         let u = parse_command(br#"{"action":"unshelve","component":"C","by":"op"}"#).unwrap();
         assert_eq!(u.target().index, None);
         assert_eq!(u.by(), "op");
+    }
+
+    #[test]
+    fn a_command_is_authorised_only_by_the_exact_token() {
+        let cmd = |token: &str| format!(r#"{{"action":"unshelve","component":"C","by":"op","token":{token}}}"#);
+        assert!(carries_token(cmd("\"s3cret\"").as_bytes(), "s3cret"));
+        // The token field is not part of the command.
+        assert_eq!(parse_command(cmd("\"s3cret\"").as_bytes()).unwrap().by(), "op");
+        for wrong in ["\"s3cre\"", "\"s3cret \"", "\"s3crex\"", "\"S3CRET\"", "\"s3cret0\"", "\"\"", "null", "7"] {
+            assert!(!carries_token(cmd(wrong).as_bytes(), "s3cret"), "{wrong} must not authorise");
+        }
+        assert!(!carries_token(br#"{"action":"unshelve","component":"C","by":"op"}"#, "s3cret"), "no token");
+        assert!(!carries_token(b"not json", "s3cret"));
+        assert!(!carries_token(cmd("\"\"").as_bytes(), ""), "an empty configured token authorises nothing");
+        assert!(tokens_match(b"abc", b"abc") && !tokens_match(b"abc", b"abd") && !tokens_match(b"", b"a"));
+        assert!(!tokens_match(b"abcd", b"abc") && !tokens_match(b"ab", b"abc"));
     }
 
     #[test]

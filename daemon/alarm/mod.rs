@@ -30,7 +30,7 @@ pub mod record;
 mod tests;
 
 pub use book::{AlarmBook, AlarmConfig, ComponentAlarmSummary, MAX_SHELVE_H};
-pub use command::{parse_command, AlarmCommand, AlarmTarget};
+pub use command::{carries_token, parse_command, tokens_match, AlarmCommand, AlarmTarget};
 pub use deadband::Deadband;
 pub use event::{AlarmEvent, Transition};
 pub use index::{AlarmIndex, Direction, Severity};

@@ -532,3 +532,28 @@ fn hours_to_critical_while_settling_uses_the_larger_design_rate() {
     let hours = b.record("TUBE/hours_to_critical").unwrap().value;
     assert!((hours / (0.15 / 1e-9) - 1.0).abs() < 1e-9, "settled: {hours} h");
 }
+
+/// `[alarms] max_shelve_h` shortens the longest shelve below the built-in
+/// ceiling of 720 h (30 days); it cannot lengthen it. ISA-18.2 asks that
+/// shelving be time-limited (common practice: the length is the plant's
+/// choice).
+#[test]
+fn a_configured_shelve_limit_is_enforced_and_never_above_the_ceiling() {
+    assert_eq!(AlarmConfig::default().max_shelve_h, MAX_SHELVE_H, "default: the ceiling, 720 h");
+    let mut b = AlarmBook::new().with_config(AlarmConfig { max_shelve_h: 24.0, ..AlarmConfig::default() });
+    lf(&mut b, 0.4, 0);
+    let e = b.shelve(C, Some(LF), 25 * H, "op", "r", 0).unwrap_err();
+    assert!(matches!(e, AlarmError::ShelveTooLong { max_h, .. } if max_h == 24.0), "{e}");
+    let cmd = parse_command(
+        br#"{"action":"shelve","component":"U2-SH3-OUTLET-LEG-A","duration_h":100,"by":"op","reason":"r"}"#,
+    )
+    .unwrap();
+    assert!(b.apply(&cmd, 0).is_err(), "a command beyond the configured limit is refused");
+    assert_eq!(b.current(C).shelved, 0);
+    b.shelve(C, Some(LF), 24 * H, "op", "r", 0).unwrap();
+    assert_eq!(b.current(C).shelved, 1);
+    // A configured value above the ceiling does not lengthen it.
+    let mut b = AlarmBook::new().with_config(AlarmConfig { max_shelve_h: 10_000.0, ..AlarmConfig::default() });
+    lf(&mut b, 0.4, 0);
+    assert!(b.shelve(C, Some(LF), 721 * H, "op", "r", 0).is_err());
+}

@@ -218,8 +218,22 @@ pub enum Inbound {
     Message { publish: Publish, received_ms: i64 },
     /// Connection state changed.
     Connection { connected: bool },
-    /// An alarm command that came in over HTTP (already authorised).
-    HttpCommand { payload: Vec<u8> },
+    /// An alarm command that came in over HTTP (already authorised); the
+    /// ledger thread sends what became of it to `reply`.
+    HttpCommand { payload: Vec<u8>, reply: tokio::sync::oneshot::Sender<CommandOutcome> },
+}
+
+/// What became of an HTTP alarm command, as the ledger thread decided.
+#[derive(Debug, Clone, PartialEq)]
+pub enum CommandOutcome {
+    /// Carried out and committed to the ledger: the addressed component's
+    /// alarms as they now are (JSON of its alarm summary).
+    Applied(String),
+    /// Not a valid command, or one the alarm book cannot carry out as
+    /// given (a shelve too long or not ahead); the error.
+    Invalid(String),
+    /// No such component or alarm in the alarm book; the error.
+    Unknown(String),
 }
 
 /// Wall-clock now in ms since the epoch (shell only; the engine never reads clocks).

@@ -192,28 +192,58 @@ async fn material(State(s): State<HttpState>, axum::extract::Path(grade): axum::
     }
 }
 
+/// How long an HTTP alarm command waits for the ledger thread's outcome.
+const COMMAND_ANSWER: std::time::Duration = std::time::Duration::from_secs(10);
+
 /// Acknowledge, shelve or unshelve over HTTP: the same JSON as the MQTT
-/// command topic, allowed only with `Authorization: Bearer <token>` when a
-/// token is configured. The command is applied by the ledger thread like an
-/// MQTT command, so it is durable before it takes effect.
+/// command topic (without `token`), allowed only with `Authorization:
+/// Bearer <token>` when a token is configured. The ledger thread carries
+/// the command out and commits it before the answer, which is the real
+/// outcome: 200 with the component's alarms as they now are (JSON), 400 an
+/// invalid command, 404 an unknown component or alarm, 401 a missing or
+/// wrong token, 403 no token configured (read-only), 503 no outcome in
+/// time (intake paused or commits failing: see `/readyz`).
 async fn alarm_command(
     State(s): State<HttpState>,
     headers: axum::http::HeaderMap,
     body: axum::body::Bytes,
 ) -> Response {
+    use crate::ingest::{CommandOutcome, Inbound};
     let Some(token) = &s.token else {
         return (StatusCode::FORBIDDEN, "read-only: no [http] token_env configured\n").into_response();
     };
     let given =
         headers.get(header::AUTHORIZATION).and_then(|v| v.to_str().ok()).and_then(|v| v.strip_prefix("Bearer "));
-    if given != Some(token.as_str()) {
+    if !given.is_some_and(|g| crate::alarm::tokens_match(g.as_bytes(), token.as_bytes())) {
         return (StatusCode::UNAUTHORIZED, "missing or wrong bearer token\n").into_response();
     }
     if let Err(e) = crate::alarm::parse_command(&body) {
         return (StatusCode::BAD_REQUEST, format!("{e}\n")).into_response();
     }
-    match s.commands.send(crate::ingest::Inbound::HttpCommand { payload: body.to_vec() }).await {
-        Ok(()) => (StatusCode::ACCEPTED, "accepted\n").into_response(),
-        Err(_) => (StatusCode::SERVICE_UNAVAILABLE, "ledger is stopping\n").into_response(),
+    let (reply, outcome) = tokio::sync::oneshot::channel();
+    if s.commands.send(Inbound::HttpCommand { payload: body.to_vec(), reply }).await.is_err() {
+        return (StatusCode::SERVICE_UNAVAILABLE, "ledger is stopping; the command was not carried out\n")
+            .into_response();
+    }
+    match tokio::time::timeout(COMMAND_ANSWER, outcome).await {
+        Ok(Ok(CommandOutcome::Applied(state))) => {
+            ([(header::CONTENT_TYPE, "application/json")], format!("{state}\n")).into_response()
+        }
+        Ok(Ok(CommandOutcome::Invalid(e))) => (StatusCode::BAD_REQUEST, format!("{e}\n")).into_response(),
+        Ok(Ok(CommandOutcome::Unknown(e))) => (StatusCode::NOT_FOUND, format!("{e}\n")).into_response(),
+        Ok(Err(_)) => (
+            StatusCode::SERVICE_UNAVAILABLE,
+            "the ledger stopped before the command was written; it did not take effect durably\n",
+        )
+            .into_response(),
+        Err(_) => (
+            StatusCode::SERVICE_UNAVAILABLE,
+            format!(
+                "no outcome within {} s: intake is paused or ledger commits fail (see /readyz); the command is \
+                 queued, or carried out but not yet written, and takes effect when the ledger resumes\n",
+                COMMAND_ANSWER.as_secs()
+            ),
+        )
+            .into_response(),
     }
 }

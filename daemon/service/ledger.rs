@@ -23,10 +23,10 @@ use super::commit_retry::{AfterFailure, CommitRetry};
 use super::reload::SharedFilters;
 use super::settings::ServiceSettings;
 use super::snapshot::{ComponentFreshness, Freshness, ServiceCounters, Snapshot, TagFreshness};
-use crate::alarm::{parse_command, AlarmBook, AlarmEvent, AlarmIndex, AlarmRecord};
+use crate::alarm::{carries_token, parse_command, AlarmBook, AlarmError, AlarmEvent, AlarmIndex, AlarmRecord};
 use crate::engine::{ComponentState, Engine, EngineState, Rejection, Sample, TagState};
 use crate::ingest::decode::{decode_payload, PayloadSettings, TopicTemplate};
-use crate::ingest::{now_ms, Inbound};
+use crate::ingest::{now_ms, CommandOutcome, Inbound};
 use crate::replay::{tag_index, TagIndex};
 use crate::report::{
     capped, component_point, rfc3339_ms, threshold_points, ComponentReport, CREEP_STRAIN_CEILING, DISPLAY_CEILING,
@@ -149,6 +149,14 @@ pub struct Ledger {
     commit_error: Option<String>,
     /// Set when commits have failed for too long: `run` returns it.
     fatal: Option<anyhow::Error>,
+    /// The operator token MQTT commands must carry (the `[http] token_env`
+    /// token); `None`: every MQTT command is refused.
+    command_token: Option<String>,
+    /// The outbox sender's view of the database (`None`: no sender).
+    database_reachable: Option<watch::Receiver<Option<bool>>>,
+    /// HTTP commands carried out but not yet committed: the component
+    /// addressed and where the outcome goes once the commit succeeded.
+    command_replies: Vec<(String, tokio::sync::oneshot::Sender<CommandOutcome>)>,
     /// Subscriptions in force and what the last reloads left undone.
     reloads: Reloads,
 }
@@ -365,6 +373,9 @@ impl Ledger {
                 restart_required: vec![],
                 refused: None,
             },
+            command_token: None,
+            database_reachable: None,
+            command_replies: vec![],
             service,
         };
         // Thresholds go to the database at start-up, at the newest event time.
@@ -372,6 +383,18 @@ impl Ledger {
         l.queue_thresholds(t);
         l.publish_snapshot(true);
         Ok(l)
+    }
+
+    /// The operator token MQTT commands must carry in their `token` field;
+    /// `None` (or empty): MQTT commands are refused, counted `unauthorised`.
+    pub fn set_command_token(&mut self, token: Option<String>) {
+        self.command_token = token.filter(|t| !t.is_empty());
+    }
+
+    /// Where the outbox sender says whether the database took its last
+    /// write; shown as `database_reachable` in the snapshot.
+    pub fn set_database_reachability(&mut self, reachable: watch::Receiver<Option<bool>>) {
+        self.database_reachable = Some(reachable);
     }
 
     fn queue_thresholds(&mut self, t: i64) {
@@ -548,19 +571,28 @@ impl Ledger {
 
     fn handle(&mut self, m: Inbound) {
         match m {
-            Inbound::HttpCommand { payload } => {
-                self.command(&payload);
-                // Nothing to acknowledge; commit so the change is durable.
-                self.force_commit = true;
-            }
+            Inbound::HttpCommand { payload, reply } => match self.command(&payload) {
+                Ok(component) => {
+                    // Nothing to acknowledge; commit so the change is
+                    // durable, then answer with the resulting state.
+                    self.command_replies.push((component, reply));
+                    self.force_commit = true;
+                }
+                Err(outcome) => {
+                    let _ = reply.send(outcome);
+                }
+            },
             Inbound::Connection { connected } => {
+                if connected && !self.mqtt_connected {
+                    self.publish_all_states();
+                }
                 self.mqtt_connected = connected;
                 self.publish_snapshot(true);
             }
             Inbound::Message { publish, received_ms } => {
                 let topic = publish.topic.clone();
                 if topic == self.command_topic {
-                    self.command(&publish.payload);
+                    self.mqtt_command(&publish);
                 } else {
                     self.sample(&topic, &publish.payload, received_ms);
                 }
@@ -569,20 +601,89 @@ impl Ledger {
         }
     }
 
-    fn command(&mut self, payload: &[u8]) {
+    /// A command from the MQTT command topic: carried out only if it is
+    /// not a retained message and carries the operator token; refused,
+    /// counted and logged (rate-limited, never echoing the payload or its
+    /// token) otherwise.
+    fn mqtt_command(&mut self, publish: &Publish) {
+        if publish.retain {
+            // A retained command would act again at every new subscription.
+            self.refuse_command("retained");
+            self.log.warn("command_retained", || {
+                format!(
+                    "alarm command on {} refused (retained): commands act once, when sent; clear the retained \
+                     message on that topic",
+                    publish.topic
+                )
+            });
+            return;
+        }
+        let authorised = self.command_token.as_deref().is_some_and(|t| carries_token(&publish.payload, t));
+        if !authorised {
+            self.refuse_command("unauthorised");
+            let why = if self.command_token.is_none() {
+                "no operator token is configured ([http] token_env), so MQTT commands are refused"
+            } else {
+                "missing or wrong \"token\""
+            };
+            self.log.warn("command_unauthorised", || {
+                format!("alarm command on {} refused (unauthorised): {why}", publish.topic)
+            });
+            return;
+        }
+        let _ = self.command(&publish.payload);
+    }
+
+    fn refuse_command(&mut self, reason: &str) {
+        *self.counters.commands_rejected.entry(reason.to_string()).or_insert(0) += 1;
+    }
+
+    /// Carry out an authorised command: the name of the component it
+    /// addressed, or what was wrong (counted and logged).
+    fn command(&mut self, payload: &[u8]) -> Result<String, CommandOutcome> {
         let now = now_ms();
-        match parse_command(payload).and_then(|c| self.book.apply(&c, now)) {
+        let cmd = match parse_command(payload) {
+            Ok(c) => c,
+            Err(e) => {
+                self.refuse_command("invalid");
+                tracing::warn!("alarm command rejected (invalid): {e}");
+                return Err(CommandOutcome::Invalid(e.to_string()));
+            }
+        };
+        match self.book.apply(&cmd, now) {
             Ok(ev) => {
                 self.counters.commands_applied += 1;
+                tracing::info!(by = cmd.by(), "alarm command carried out: {} event(s)", ev.len());
                 for e in &ev {
                     self.dirty_alarms.insert(e.key());
                 }
                 self.events.extend(ev);
+                // A full key `component/index` names its record's component.
+                let target = &cmd.target().component;
+                Ok(self.book.record(target).map_or_else(|| target.clone(), |r| r.component.clone()))
             }
             Err(e) => {
-                self.counters.commands_rejected += 1;
-                tracing::warn!("alarm command rejected: {e}");
+                self.refuse_command("refused");
+                tracing::warn!("alarm command rejected (refused by the alarm book): {e}");
+                Err(match e {
+                    AlarmError::UnknownAlarm { .. } | AlarmError::UnknownComponent { .. } => {
+                        CommandOutcome::Unknown(e.to_string())
+                    }
+                    _ => CommandOutcome::Invalid(e.to_string()),
+                })
             }
+        }
+    }
+
+    /// Answer the HTTP commands of a batch now durable, after publishing
+    /// the snapshot, so that what the caller reads next agrees.
+    fn answer_commands(&mut self) {
+        if self.command_replies.is_empty() {
+            return;
+        }
+        self.publish_snapshot(true);
+        for (component, reply) in self.command_replies.drain(..) {
+            let _ = reply.send(CommandOutcome::Applied(self.book.current(&component).to_json()));
         }
     }
 
@@ -798,6 +899,8 @@ impl Ledger {
             && self.trend_points.is_empty()
         {
             self.force_commit = false;
+            // Nothing to write: what the commands did is already durable.
+            self.answer_commands();
             return;
         }
         self.force_commit = false;
@@ -921,6 +1024,7 @@ impl Ledger {
                         self.recent_events.pop_front();
                     }
                 }
+                self.answer_commands();
                 self.check_quota();
             }
             Err(e) => {
@@ -1008,6 +1112,31 @@ impl Ledger {
             self.dirty_alarms.insert(e.key());
         }
         self.events.extend(ev);
+    }
+
+    /// Publish the retained alarm state of every component in the alarm
+    /// book, at each connection: a state message lost after its commit (a
+    /// crash before the publish, a broker that lost its retained messages)
+    /// is put right at the next start or reconnection. Event messages are
+    /// not sent again; the alarm journal keeps them.
+    fn publish_all_states(&mut self) {
+        let components: Vec<String> = self.book.components().into_iter().map(String::from).collect();
+        let mut failed = 0usize;
+        for c in &components {
+            let s = self.book.current(c);
+            let topic = self.service.mqtt.alarm_state_topic(c);
+            if self.client.try_publish(topic, QoS::AtLeastOnce, true, s.to_json()).is_err() {
+                failed += 1;
+            }
+        }
+        if failed > 0 {
+            self.log.warn("state_republish_failed", || {
+                format!(
+                    "{failed} of {} retained alarm states not published again (client queue full)",
+                    components.len()
+                )
+            });
+        }
     }
 
     fn publish_alarms(&self, events: &[AlarmEvent]) {
@@ -1159,7 +1288,7 @@ impl Ledger {
             holding: self.holding,
             commit_failing: self.commit_error.clone(),
             database_configured: self.service.database.is_some(),
-            database_reachable: None,
+            database_reachable: self.database_reachable.as_ref().and_then(|r| *r.borrow()),
             engine: self.engine.counters().clone(),
             service: self.counters.clone(),
             components,

@@ -101,8 +101,24 @@ pub async fn run_until_with(
     let (client, eventloop) = rumqttc::AsyncClient::new(options, 4096);
     let (snap_tx, snap_rx) = watch::channel(Arc::new(snapshot::Snapshot::default()));
     let library = Arc::new(cfg.library.clone());
-    let ledger = Ledger::open(cfg, svc.clone(), client.clone(), snap_tx)
+    // The operator token: HTTP commands carry it as a bearer token, MQTT
+    // commands in their `token` field. Without it both are refused.
+    let token = match &svc.http.token_env {
+        Some(var) => match std::env::var(var) {
+            Ok(t) if t.is_empty() => anyhow::bail!("[http] token_env: environment variable {var} is empty"),
+            Ok(t) => Some(t),
+            Err(_) => anyhow::bail!("[http] token_env: environment variable {var} is not set"),
+        },
+        None => None,
+    };
+    let mut ledger = Ledger::open(cfg, svc.clone(), client.clone(), snap_tx)
         .with_context(|| format!("opening the ledger {}", svc.store.path.display()))?;
+    ledger.set_command_token(token.clone());
+    // Whether the database took the outbox sender's last write.
+    let (reach_tx, reach_rx) = watch::channel(None);
+    if svc.database.is_some() {
+        ledger.set_database_reachability(reach_rx);
+    }
     let filters = ledger.shared_filters();
 
     // HTTP first, so health is visible from the start.
@@ -111,12 +127,6 @@ pub async fn run_until_with(
         .with_context(|| format!("[http] listen {}: cannot bind", svc.http.listen))?;
     tracing::info!("status on http://{}/", listener.local_addr()?);
     let (in_tx, in_rx) = mpsc::channel::<Inbound>(1024);
-    let token = match &svc.http.token_env {
-        Some(var) => Some(
-            std::env::var(var).with_context(|| format!("[http] token_env: environment variable {var} is not set"))?,
-        ),
-        None => None,
-    };
     let http_state = http::HttpState {
         snapshot: snap_rx.clone(),
         token,
@@ -150,7 +160,6 @@ pub async fn run_until_with(
         loop_stop_tx.subscribe(),
     ));
 
-    let (reach_tx, _reach_rx) = watch::channel(None);
     let mut sender_task = svc
         .database
         .clone()

@@ -79,6 +79,8 @@ pub async fn run_sender(
                     "database refused a batch as malformed, dropping it from the outbox: {e}; first line: {}",
                     lines[0]
                 );
+                // It answered: the database is reachable.
+                let _ = reachable.send(Some(true));
                 let _ = tokio::task::block_in_place(|| store.outbox_remove_through(last_id));
             }
             Err(e) => {

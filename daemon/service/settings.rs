@@ -94,8 +94,9 @@ pub struct HttpSettings {
     /// Listen address; loopback by default.
     #[serde(default = "default_listen")]
     pub listen: String,
-    /// Environment variable holding a token that allows acknowledge and
-    /// shelve through HTTP; without it the HTTP side is read-only.
+    /// Environment variable holding the operator token, which allows
+    /// acknowledge, shelve and unshelve over HTTP (bearer token) and over
+    /// MQTT (the command's `token` field); without it both are refused.
     #[serde(default)]
     pub token_env: Option<String>,
 }
@@ -195,6 +196,14 @@ impl ServiceSettings {
                 if !(v.is_finite() && (0.0..=86_400.0).contains(&v)) {
                     errors.push(format!("[alarms] {key}: {v} is not a number of seconds from 0 to 86400; {fix}"));
                 }
+            }
+            let max = crate::alarm::MAX_SHELVE_H;
+            if !(a.max_shelve_h > 0.0 && a.max_shelve_h <= max) {
+                errors.push(format!(
+                    "[alarms] max_shelve_h: {} is not a number of hours above 0 and at most {max} (30 days); \
+                     for example 168 for a week",
+                    a.max_shelve_h
+                ));
             }
         }
         if !errors.is_empty() {
@@ -516,6 +525,9 @@ mod tests {
             ("[alarms.deadbands.wear_index]\nfraction = nan", "deadbands.wear_index.fraction"),
             ("[alarms.deadbands.wear_index]\nfraction = 0.1\nminimum = -1", "deadbands.wear_index.minimum"),
             ("[alarms.damage_rate]\nwarning = 1e-5\ncritical = 1e-6", "damage_rate"),
+            ("[alarms]\nmax_shelve_h = 0", "max_shelve_h"),
+            ("[alarms]\nmax_shelve_h = 721", "max_shelve_h"),
+            ("[alarms]\nmax_shelve_h = nan", "max_shelve_h"),
         ] {
             let errors = service(text).expect_err(text);
             assert_eq!(errors.len(), 1, "{text}: {errors:?}");

@@ -15,8 +15,13 @@ pub struct ServiceCounters {
     pub decode_rejected: BTreeMap<String, u64>,
     /// Samples that carried no timestamp (receive time used).
     pub receive_time_used: u64,
+    /// Alarm commands (MQTT and HTTP) the alarm book carried out.
     pub commands_applied: u64,
-    pub commands_rejected: u64,
+    /// Alarm commands refused, by reason: `unauthorised` (MQTT without the
+    /// operator token), `retained` (a retained MQTT message), `invalid`
+    /// (not a valid command), `refused` (the alarm book refused it, for
+    /// example an unknown component).
+    pub commands_rejected: BTreeMap<String, u64>,
     pub commits: u64,
     pub commit_failures: u64,
     pub last_commit_ms: f64,
@@ -246,6 +251,27 @@ pub fn metrics_text(s: &Snapshot) -> String {
         "Largest ledger commit latency.",
         "gauge",
         vec![(String::new(), s.service.max_commit_ms)],
+    );
+    metric(
+        "lifeledger_commands_applied_total",
+        "Alarm commands (MQTT and HTTP) carried out.",
+        "counter",
+        vec![(String::new(), s.service.commands_applied as f64)],
+    );
+    metric(
+        "lifeledger_commands_rejected_total",
+        "Alarm commands refused, by reason (unauthorised, retained, invalid, refused).",
+        "counter",
+        ["unauthorised", "retained", "invalid", "refused"]
+            .iter()
+            .map(|r| (format!("{{reason=\"{r}\"}}"), s.service.commands_rejected.get(*r).copied().unwrap_or(0) as f64))
+            .collect(),
+    );
+    metric(
+        "lifeledger_database_reachable",
+        "1 when the last write to the database succeeded, 0 when it failed (absent: no database, or no write yet).",
+        "gauge",
+        s.database_reachable.map(|r| (String::new(), r as u8 as f64)).into_iter().collect(),
     );
     metric(
         "lifeledger_mqtt_connected",

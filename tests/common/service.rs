@@ -243,11 +243,18 @@ impl Service {
     /// to a log beside the config; if it exits or never gets ready, the
     /// panic carries the log's tail.
     pub fn start(config: &Path, http_port: u16) -> Service {
+        Service::start_with_env(config, http_port, &[])
+    }
+
+    /// [`Service::start`] with extra environment variables for the child
+    /// only (for example the operator token named by `[http] token_env`).
+    pub fn start_with_env(config: &Path, http_port: u16, env: &[(&str, &str)]) -> Service {
         let n = STARTS.fetch_add(1, Ordering::Relaxed);
         let log = config.with_extension(format!("{n}.log"));
         let file = std::fs::File::create(&log).unwrap();
         let mut child = Command::new(workspace_bin())
             .args(["run", "--config", config.to_str().unwrap()])
+            .envs(env.iter().copied())
             .env("RUST_LOG", "info")
             .stdin(Stdio::null())
             .stdout(Stdio::null())

@@ -296,7 +296,7 @@ const LL = (() => {
       return false;
     }
     const text = (await r.text()).trim();
-    if (r.status === 202) {
+    if (r.ok) {
       notice(body.action + ' ' + body.component + ' ' + indexLabel(body.index).toLowerCase() + ': accepted', 'good');
       return true;
     }
