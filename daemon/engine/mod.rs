@@ -283,6 +283,10 @@ pub struct Engine {
     frontier_ms: Option<i64>,
     next_seq: u64,
     held_changes: HeldChanges,
+    /// Whether [`Engine::take_held_changes`] is used (the service's store
+    /// mirrors the window); off, nothing is recorded, so a replay of any
+    /// length keeps no list.
+    track_held: bool,
     /// Components without a tag input: they advance with the plant clock.
     clockless: Vec<u32>,
     /// Newest plant-clock instant the clockless components reached.
@@ -322,6 +326,7 @@ impl Engine {
             frontier_ms: None,
             next_seq: 0,
             held_changes: HeldChanges::default(),
+            track_held: false,
             clockless,
             clock_ms: None,
             plan,
@@ -487,15 +492,17 @@ impl Engine {
         }
         let h = HeldSample { seq: self.next_seq, time_ms: s.time_ms, value, arrival_ms: now_ms };
         self.next_seq += 1;
-        self.held_changes.added.push((s.tag, h));
+        if self.track_held {
+            self.held_changes.added.push((s.tag, h));
+        }
         // In order (the common case): at the back; else after every held
         // sample of the same or an earlier time.
-        let pos = if self.held.back().is_none_or(|(_, b)| b.time_ms <= s.time_ms) {
-            self.held.len()
+        if self.held.back().is_none_or(|(_, b)| b.time_ms <= s.time_ms) {
+            self.held.push_back((s.tag, h));
         } else {
-            self.held.partition_point(|(_, x)| x.time_ms <= s.time_ms)
-        };
-        self.held.insert(pos, (s.tag, h));
+            let pos = self.held.partition_point(|(_, x)| x.time_ms <= s.time_ms);
+            self.held.insert(pos, (s.tag, h));
+        }
         self.release_through(horizon);
         Ok(())
     }
@@ -506,6 +513,19 @@ impl Engine {
         match self.held.back() {
             None => return Ok(()),
             Some((_, b)) if b.time_ms < s.time_ms => return Ok(()),
+            Some((_, b)) if b.time_ms == s.time_ms => {
+                // In-order arrival of simultaneous samples (the common case):
+                // only the samples at the back share the time.
+                for (tag, h) in self.held.iter().rev() {
+                    if h.time_ms != s.time_ms {
+                        return Ok(());
+                    }
+                    if *tag == s.tag {
+                        return Err(Rejection::Duplicate);
+                    }
+                }
+                return Ok(());
+            }
             _ => {}
         }
         let from = self.held.partition_point(|(_, x)| x.time_ms < s.time_ms);
@@ -535,7 +555,9 @@ impl Engine {
                 break;
             }
             self.held.pop_front();
-            self.held_changes.released.push(h.seq);
+            if self.track_held {
+                self.held_changes.released.push(h.seq);
+            }
             self.apply(tag, h.time_ms, h.value);
         }
     }
@@ -560,8 +582,20 @@ impl Engine {
         self.release_through(i64::MAX);
     }
 
+    /// Record what enters and leaves the reorder window, for
+    /// [`Engine::take_held_changes`] (the service turns it on).
+    pub fn track_held_changes(&mut self, on: bool) {
+        self.track_held = on;
+    }
+
+    /// The sequence numbers of the samples held now.
+    pub fn held_seqs(&self) -> Vec<u64> {
+        self.held.iter().map(|(_, h)| h.seq).collect()
+    }
+
     /// What entered and left the reorder window since the last call (the
-    /// ledger store mirrors the window with it).
+    /// ledger store mirrors the window with it); empty unless
+    /// [`Engine::track_held_changes`] is on.
     pub fn take_held_changes(&mut self) -> HeldChanges {
         let mut c = std::mem::take(&mut self.held_changes);
         // A sample held and released between two calls never reaches the

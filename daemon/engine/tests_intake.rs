@@ -155,6 +155,16 @@ fn held_samples_survive_export_and_import() {
 }
 
 #[test]
+fn without_tracking_a_replay_keeps_no_list_of_window_changes() {
+    let mut e = engine_with("reorder_window_s = 120");
+    for i in 0..=10 {
+        offer(&mut e, "TT", T0 + i * 60_000, 560.0).unwrap();
+    }
+    assert_eq!(e.take_held_changes(), HeldChanges::default());
+    assert_eq!(e.held_len(), 2);
+}
+
+#[test]
 fn a_feed_that_stops_is_released_after_a_window_of_wall_time() {
     let mut e = engine_with("reorder_window_s = 120");
     for i in 0..=10 {
@@ -173,6 +183,7 @@ fn a_feed_that_stops_is_released_after_a_window_of_wall_time() {
 #[test]
 fn the_store_sees_each_held_sample_enter_and_leave() {
     let mut e = engine_with("reorder_window_s = 120");
+    e.track_held_changes(true);
     for i in 0..=10 {
         offer(&mut e, "TT", T0 + i * 60_000, 560.0).unwrap();
     }

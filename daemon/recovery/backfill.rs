@@ -77,6 +77,9 @@ pub fn backfill(
     let mut engine = Engine::new(cfg.plan.clone());
     // Ledgers of components no longer configured stay in the file as they are.
     engine.import_state(stored.engine);
+    // The samples the service left in the reorder window: the replay's
+    // final flush integrates them, so their rows go in the same commit.
+    let held_in_file = engine.held_seqs();
     let counters_before = engine.counters().clone();
     let before: Vec<_> = engine.components().iter().map(|s| (s.integrated_to_ms, Figures::of(s))).collect();
 
@@ -90,8 +93,7 @@ pub fn backfill(
     // The replay integrated every held sample the service left in the
     // reorder window (and whatever the input held): the window on disk is
     // emptied in the same transaction.
-    let held = engine.take_held_changes();
-    debug_assert!(engine.held_len() == 0 && held.added.is_empty());
+    debug_assert!(engine.held_len() == 0);
     let plan = engine.plan();
     let components: Vec<(String, String)> = changed
         .iter()
@@ -111,7 +113,7 @@ pub fn backfill(
             tags: &tags,
             meta: &meta,
             checkpoints: &checkpoints,
-            held_released: &held.released,
+            held_released: &held_in_file,
             ..Default::default()
         })
         .with_context(|| format!("backfill of {}: nothing was written", path.display()))?;

@@ -297,6 +297,8 @@ impl Ledger {
         let loaded = store.load()?;
         let recent_events = recent_events(&store)?;
         let mut engine = Engine::new(cfg.plan.clone());
+        // The store mirrors the reorder window: record what enters and leaves.
+        engine.track_held_changes(true);
         let stored = StoredLedger::parse(&loaded, &service.store.path)?;
         let svc = ServiceCounters { decode_rejected: stored.decode_rejected, ..ServiceCounters::default() };
         let left = engine.import_state(stored.engine);
@@ -1179,6 +1181,8 @@ impl Ledger {
             self.engine.plan().tags.iter().zip(&self.last_arrival).map(|(t, a)| (t.name.clone(), *a)).collect();
         self.last_arrival = cfg.plan.tags.iter().map(|t| arrivals.get(&t.name).copied().flatten()).collect();
         let mut engine = Engine::new(cfg.plan.clone());
+        // The store mirrors the reorder window: record what enters and leaves.
+        engine.track_held_changes(true);
         let left = engine.import_state(state);
         self.retired = left.components;
         self.retired_tags = left.tags;
