@@ -105,6 +105,14 @@ enum Command {
         /// Log format.
         #[arg(long, value_enum, default_value_t = LogFormat::Human)]
         log_format: LogFormat,
+        /// Create a new, empty ledger if the ledger file ([store] path) is missing or empty.
+        ///
+        /// Without it such a file is refused and nothing is created, so that a
+        /// data volume that failed to mount does not silently restart every
+        /// component from its initial values. Give it on the first start of a
+        /// new installation; an existing ledger is opened as always.
+        #[arg(long)]
+        init_ledger: bool,
     },
     /// Show the ledger a service keeps: per component, life used, strain, wear, remaining life, flags.
     ///
@@ -281,9 +289,9 @@ fn init_logs(default: &str, json: bool) {
     }
 }
 
-fn cmd_run(config: PathBuf) -> Result<i32> {
+fn cmd_run(config: PathBuf, init_ledger: bool) -> Result<i32> {
     let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
-    rt.block_on(lifeledger::service::run(&config))?;
+    rt.block_on(lifeledger::service::run(&config, init_ledger))?;
     Ok(0)
 }
 
@@ -295,7 +303,7 @@ fn main() {
         _ => init_logs("warn", false),
     }
     let result = match cli.command {
-        Command::Run { config, .. } => cmd_run(config),
+        Command::Run { config, init_ledger, .. } => cmd_run(config, init_ledger),
         Command::Ledger { config, format } => cmd_ledger(&config, format),
         Command::Demo {
             duration,

@@ -8,7 +8,10 @@
 //!   it is counted as rejected and the samples behind it are processed;
 //! * commits that keep failing are counted, make `/readyz` answer not
 //!   ready, and end the process with a clear error after the configured
-//!   time, having acknowledged nothing they did not write.
+//!   time, having acknowledged nothing they did not write;
+//! * a missing or empty ledger file (a data volume that did not mount) is
+//!   refused, creating nothing, unless `run --init-ledger` asks for a new
+//!   ledger.
 
 mod common;
 
@@ -195,4 +198,79 @@ fn failing_commits_are_reported_and_end_the_process_after_the_limit() {
     let live = svc.wait_until_integrated(s.last().unwrap().1);
     assert_eq!(live["engine"]["accepted"].as_u64(), Some(s.len() as u64), "every sample exactly once");
     assert!(svc.sigterm().success());
+}
+
+/// A ledger that is not there (a data volume that failed to mount leaves
+/// an empty directory, or a 0-byte file) must not silently become a new
+/// ledger that restarts every component from its initial values: `run`
+/// refuses, names the file and the fix, and creates nothing; with
+/// `--init-ledger` it starts a new ledger.
+#[test]
+fn a_missing_or_empty_ledger_is_refused_unless_run_is_told_to_create_one() {
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, "");
+    let ledger = dir.path().join("ledger.sqlite");
+    let listing = |d: &Path| {
+        let mut v: Vec<String> =
+            std::fs::read_dir(d).unwrap().map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).collect();
+        v.sort();
+        v
+    };
+    struct Kill(std::process::Child);
+    impl Drop for Kill {
+        fn drop(&mut self) {
+            let _ = self.0.kill();
+            let _ = self.0.wait();
+        }
+    }
+    // The log lives outside the ledger's directory, so the listing sees
+    // only what the service itself made.
+    let logs = tempfile::tempdir().unwrap();
+    let spawn = |log: &Path| {
+        Kill(
+            Command::new(common::workspace_bin())
+                .args(["run", "--config", cfg.to_str().unwrap()])
+                .env("RUST_LOG", "info")
+                .stdin(std::process::Stdio::null())
+                .stdout(std::process::Stdio::null())
+                .stderr(std::fs::File::create(log).unwrap())
+                .spawn()
+                .unwrap(),
+        )
+    };
+    let run = |log: &Path| {
+        let mut child = spawn(log);
+        let status = poll_until("run without --init-ledger to refuse and exit", || child.0.try_wait().unwrap());
+        (status, std::fs::read_to_string(log).unwrap())
+    };
+
+    for empty in [false, true] {
+        if empty {
+            std::fs::write(&ledger, b"").unwrap();
+        }
+        let before = listing(dir.path());
+        // Refused before it connects anywhere, so this returns at once.
+        let (status, err) = run(&logs.path().join(format!("refused-{empty}.log")));
+        assert!(!status.success(), "run must refuse a ledger that is not there:\n{err}");
+        let what = if empty { "the file is empty" } else { "the file does not exist" };
+        assert!(err.contains(&ledger.display().to_string()) && err.contains(what), "{err}");
+        assert!(err.contains("--init-ledger") && err.contains("Nothing was created"), "{err}");
+        assert_eq!(listing(dir.path()), before, "a refused start must create nothing");
+        if empty {
+            assert_eq!(std::fs::metadata(&ledger).unwrap().len(), 0, "the empty file stays empty");
+        }
+    }
+
+    // Told to, it creates the ledger and runs (Service::start passes
+    // --init-ledger); afterwards the ledger opens without the flag.
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    assert!(svc.sigterm().success());
+    assert!(std::fs::metadata(&ledger).unwrap().len() > 0);
+    let _again = spawn(&logs.path().join("again.log"));
+    poll_until("the restarted service (no --init-ledger) to answer /healthz", || {
+        http::get(http_port, "/healthz").ok().filter(|r| r.status == 200)
+    });
 }

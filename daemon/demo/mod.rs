@@ -205,7 +205,9 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
             tokio::time::sleep(Duration::from_millis(50)).await;
         }
     });
-    let result = crate::service::run_until_with(&config_path, overrides, stop).await;
+    // The demo keeps its ledger in its own state directory: the first start
+    // there creates it.
+    let result = crate::service::run_until_with(&config_path, overrides, true, stop).await;
     publisher.abort();
     sim_loop.abort();
     println!("lifeledger demo stopped; the ledger is in {}", dir.display());

@@ -269,7 +269,7 @@ impl Ledger {
         client: AsyncClient,
         snapshot_tx: watch::Sender<Arc<Snapshot>>,
     ) -> anyhow::Result<Ledger> {
-        let mut store = Store::open(&service.store.path)?;
+        let mut store = Store::open_with(&service.store.path, service.store.create_if_missing)?;
         store.set_alarm_journal_max_events(service.store.alarm_journal_max_events);
         store.set_trend_points_per_component(service.store.trend_points_per_component);
         store.set_checkpoint_days(service.store.checkpoint_days);

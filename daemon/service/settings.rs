@@ -45,6 +45,13 @@ pub struct StoreSettings {
     /// is acknowledged and `/readyz` answers not ready.
     #[serde(default = "default_commit_failure_limit")]
     pub commit_failure_limit_s: f64,
+    /// Whether the service may create a new ledger in place of a missing or
+    /// empty file. Not a configuration key: only `lifeledger run
+    /// --init-ledger` (and the demo, on its own state directory) sets it, so
+    /// a data volume that failed to mount is refused instead of silently
+    /// starting every component afresh.
+    #[serde(skip)]
+    pub create_if_missing: bool,
 }
 
 fn default_path() -> PathBuf {
@@ -83,6 +90,7 @@ impl Default for StoreSettings {
             trend_points_per_component: default_trend(),
             checkpoint_days: default_checkpoint_days(),
             commit_failure_limit_s: default_commit_failure_limit(),
+            create_if_missing: false,
         }
     }
 }
