@@ -796,3 +796,62 @@ fn a_steady_stream_is_group_committed_and_nothing_is_lost() {
     compare(&live, &replay_json(&cfg, &csv(dir.path(), &s)), 0.0);
     assert!(svc.sigterm().success());
 }
+
+/// `lifeledger resend`: a database that lost the points it had accepted
+/// (here: a new, empty VictoriaMetrics in place of the first) gets a
+/// component's series back from the ledger's own records, for the range of
+/// event time asked, with the values and event times the service first
+/// sent; sending twice changes nothing (points carry their event time).
+#[test]
+fn resend_restores_lost_points_from_the_ledger_idempotently() {
+    let broker = Mosquitto::start();
+    let first = VictoriaMetrics::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, Some(&first.url()));
+    let s = samples(240);
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    publish_all(broker.port, &s, "publisher-resend");
+    svc.wait_until_integrated(s.last().unwrap().1);
+    poll_until("the outbox to drain", || svc.snapshot().filter(|v| v["outbox_lines"] == 0));
+    assert!(svc.sigterm().success());
+    first.flush();
+    let series = |vm: &VictoriaMetrics, field: &str, component: &str| -> Vec<(i64, f64)> {
+        let e = vm.export(&format!("{{__name__=\"component_state_{field}\",component=\"{component}\"}}"));
+        assert!(e.len() <= 1, "one series per component and field: {}", e.len());
+        e.first().map(|e| e.samples()).unwrap_or_default()
+    };
+    let fields = [("creep_life_fraction", "SH-TUBE"), ("metal_temperature_k", "SH-TUBE"), ("wear_index", "SUPPORT")];
+    let sent: Vec<Vec<(i64, f64)>> = fields.iter().map(|(f, c)| series(&first, f, c)).collect();
+    assert!(sent.iter().all(|v| v.len() > 100), "the service wrote its series first");
+    drop(first);
+
+    // The database lost everything: a new one, empty.
+    let second = VictoriaMetrics::start();
+    let cfg = config(dir.path(), broker.port, http_port, Some(&second.url()));
+    let (from_ms, to_ms) = ((common::service::T0 + 3600) * 1000, (common::service::T0 + 3 * 3600) * 1000);
+    let rfc = |ms: i64| chrono::DateTime::from_timestamp_millis(ms).unwrap().to_rfc3339();
+    for _ in 0..2 {
+        let o = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+            .args(["resend", "--config", cfg.to_str().unwrap(), "--all", "--from", &rfc(from_ms), "--to", &rfc(to_ms)])
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "resend failed: {}", String::from_utf8_lossy(&o.stderr));
+    }
+    second.flush();
+    for ((field, component), before) in fields.iter().zip(&sent) {
+        let want: Vec<(i64, f64)> = before.iter().copied().filter(|(t, _)| (from_ms..=to_ms).contains(t)).collect();
+        assert!(want.len() >= 100, "{field}: the range holds points");
+        let got = series(&second, field, component);
+        assert_eq!(
+            got.iter().map(|p| p.0).collect::<Vec<_>>(),
+            want.iter().map(|p| p.0).collect::<Vec<_>>(),
+            "{component} {field}: the same event times, each once, none outside the range"
+        );
+        for ((t, a), (_, b)) in got.iter().zip(&want) {
+            // Temperatures go through the trend's degrees Celsius and back.
+            assert!((a - b).abs() <= 1e-9 * b.abs().max(1e-300), "{component} {field} at {t}: resent {a}, sent {b}");
+        }
+    }
+}
