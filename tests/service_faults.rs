@@ -11,7 +11,10 @@
 //!   time, having acknowledged nothing they did not write;
 //! * a missing or empty ledger file (a data volume that did not mount) is
 //!   refused, creating nothing, unless `run --init-ledger` asks for a new
-//!   ledger.
+//!   ledger;
+//! * a batch the database refuses as malformed is parked in the ledger,
+//!   counted and reported, not dropped and not counted as delivered, and
+//!   the points behind it go on.
 
 mod common;
 
@@ -273,4 +276,46 @@ fn a_missing_or_empty_ledger_is_refused_unless_run_is_told_to_create_one() {
     poll_until("the restarted service (no --init-ledger) to answer /healthz", || {
         http::get(http_port, "/healthz").ok().filter(|r| r.status == 200)
     });
+}
+
+/// A point the database refuses as malformed (VictoriaMetrics answers 400
+/// to a line longer than its 256 KiB line limit; its default
+/// `-influx.maxLineSize`, checked against the running server by the test)
+/// is parked: kept in the ledger's `parked_line` table with the database's
+/// answer, counted in the snapshot and in `/metrics`, never counted as
+/// delivered; the points before and after it are delivered.
+#[test]
+fn a_batch_the_database_refuses_is_parked_counted_and_kept() {
+    let broker = Mosquitto::start();
+    let vm = VictoriaMetrics::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    // One line per batch, so the refused line is a batch of its own.
+    let tail = format!("{}batch_lines = 1\n", database(&vm.url()));
+    let cfg = config(dir.path(), broker.port, http_port, &tail);
+    let t = "1790812800000000000";
+    let huge = format!("parking_probe,k=b s=\"{}\" {t}", "x".repeat(300 * 1024));
+    let lines = vec![format!("parking_probe,k=a v=1 {t}"), huge.clone(), format!("parking_probe,k=c v=3 {t}")];
+    {
+        let mut store = lifeledger::store::Store::open(&dir.path().join("ledger.sqlite")).unwrap();
+        store.commit(&lifeledger::store::Commit { outbox: &lines, ..Default::default() }).unwrap();
+    }
+    let svc = Service::start(&cfg, http_port);
+    let snap = poll_until("the outbox to empty with one line parked", || {
+        svc.snapshot().filter(|s| s["outbox_lines"] == 0 && s["outbox_parked_lines"] == 1)
+    });
+    assert_eq!(snap["outbox_parked_lines"], 1, "{snap}");
+    let metrics = http::get(http_port, "/metrics").unwrap().text();
+    assert_eq!(metric(&metrics, "lifeledger_outbox_parked_lines"), Some(1.0), "{metrics}");
+    vm.flush();
+    let mut delivered: Vec<String> =
+        vm.export("{__name__=\"parking_probe_v\"}").iter().map(|e| e.label("k").unwrap().to_string()).collect();
+    delivered.sort();
+    assert_eq!(delivered, ["a", "c"], "the points before and after the refused one are delivered");
+    assert!(svc.sigterm().success());
+    let store = lifeledger::store::Store::open(&dir.path().join("ledger.sqlite")).unwrap();
+    let parked = store.parked_lines().unwrap();
+    assert_eq!(parked.len(), 1);
+    assert_eq!(parked[0].0, huge, "the refused line is kept as it was");
+    assert!(parked[0].2.contains("400"), "the database's answer is kept: {}", parked[0].2);
 }

@@ -1123,6 +1123,7 @@ impl Ledger {
             store_path: self.service.store.path.display().to_string(),
             outbox_lines: self.outbox.lines,
             outbox_bytes: self.outbox.bytes,
+            outbox_parked_lines: self.outbox.parked,
             outbox_quota_bytes: quota(&self.service),
             holding: self.holding,
             commit_failing: self.commit_error.clone(),

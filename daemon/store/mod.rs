@@ -774,7 +774,7 @@ mod tests {
         let outbox: Vec<String> = (0..10_000).map(|i| format!("m v={i}i {i}")).collect();
         let stats = store.commit(&Commit { components: &components, outbox: &outbox, ..Default::default() }).unwrap();
         let bytes: usize = outbox.iter().map(String::len).sum();
-        assert_eq!(stats.outbox, OutboxStats { lines: 10_000, bytes: bytes as u64 });
+        assert_eq!(stats.outbox, OutboxStats { lines: 10_000, bytes: bytes as u64, parked: 0 });
         assert_eq!(store.load().unwrap().components, components);
     }
 }
