@@ -596,7 +596,6 @@ fn time_or_dash(t: Option<i64>) -> String {
     t.map_or("-".to_string(), report::rfc3339_ms)
 }
 
-#[allow(clippy::too_many_arguments)]
 fn cmd_resend(
     config: &std::path::Path,
     ledger: Option<PathBuf>,
@@ -639,6 +638,7 @@ fn cmd_resend(
     Ok(0)
 }
 
+#[allow(clippy::too_many_arguments)]
 fn cmd_rollback(
     config: &std::path::Path,
     ledger: Option<PathBuf>,
