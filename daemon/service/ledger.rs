@@ -1157,7 +1157,9 @@ mod tests {
             "[store]\npath = {:?}\n[database]\nurl = \"http://127.0.0.1:9\"\norg = \"o\"\nbucket = \"b\"\n",
             dir.join("ledger.db")
         );
-        let service = ServiceSettings::from_settings(&toml::from_str(&text).unwrap()).unwrap();
+        let mut service = ServiceSettings::from_settings(&toml::from_str(&text).unwrap()).unwrap();
+        // A new ledger, as `run --init-ledger` makes one.
+        service.store.create_if_missing = true;
         let (client, _eventloop) = AsyncClient::new(rumqttc::MqttOptions::new("unit", "127.0.0.1", 9), 100);
         let (snap_tx, _snap_rx) = watch::channel(Arc::new(Snapshot::default()));
         Ledger::open(cfg, service, client, snap_tx).unwrap()
