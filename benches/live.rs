@@ -147,7 +147,7 @@ impl Service {
     fn start(config: &Path, http_port: u16) -> Service {
         let log = config.with_extension("log");
         let child = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
-            .args(["run", "--config", config.to_str().unwrap()])
+            .args(["run", "--config", config.to_str().unwrap(), "--init-ledger"])
             .env("RUST_LOG", "info")
             .stdin(Stdio::null())
             .stdout(Stdio::null())

@@ -110,6 +110,14 @@ enum Command {
         /// Log format.
         #[arg(long, value_enum, default_value_t = LogFormat::Human)]
         log_format: LogFormat,
+        /// Create a new, empty ledger if the ledger file ([store] path) is missing or empty.
+        ///
+        /// Without it such a file is refused and nothing is created, so that a
+        /// data volume that failed to mount does not silently restart every
+        /// component from its initial values. Give it on the first start of a
+        /// new installation; an existing ledger is opened as always.
+        #[arg(long)]
+        init_ledger: bool,
     },
     /// Show the ledger a service keeps: per component, life used, strain, wear, remaining life, flags.
     ///
@@ -175,6 +183,43 @@ enum Command {
         dry_run: bool,
         #[arg(long, value_enum, default_value_t = Format::Table)]
         format: Format,
+    },
+    /// Re-send components' component_state points for a time range from the ledger to the database.
+    ///
+    /// For a database that lost points it had accepted. The points come
+    /// from the ledger's per-component trend records (the fields it keeps:
+    /// metal temperature, pressure, hoop stress, life fraction, creep
+    /// strain, wear index), with their event time, so re-sending is
+    /// idempotent. Only what the trend still holds can be re-sent ([store]
+    /// trend_points_per_component, a week by default). Reads the ledger
+    /// only; safe while the service runs. Needs [database] in the
+    /// configuration.
+    ///
+    /// Example:
+    ///   lifeledger resend --config plant.toml --all --from 2026-10-20T00:00:00Z --to 2026-10-21T00:00:00Z
+    #[command(after_help = CAUTION_HELP)]
+    Resend {
+        /// Configuration file (TOML) of the service.
+        #[arg(long, short)]
+        config: PathBuf,
+        /// Ledger file [default: the [store] path of the configuration].
+        #[arg(long)]
+        ledger: Option<PathBuf>,
+        /// The component whose points to re-send.
+        #[arg(long, value_name = "NAME", required_unless_present = "all", conflicts_with = "all")]
+        component: Option<String>,
+        /// Re-send the points of every component of the configuration.
+        #[arg(long)]
+        all: bool,
+        /// Earliest event time (RFC 3339), inclusive.
+        #[arg(long, value_name = "RFC3339")]
+        from: String,
+        /// Latest event time (RFC 3339), inclusive.
+        #[arg(long, value_name = "RFC3339")]
+        to: String,
+        /// Say how many points would be sent, send nothing.
+        #[arg(long)]
+        dry_run: bool,
     },
     /// Feed a historian CSV into a stopped service's ledger, through the same engine as `replay`.
     ///
@@ -286,9 +331,9 @@ fn init_logs(default: &str, json: bool) {
     }
 }
 
-fn cmd_run(config: PathBuf) -> Result<i32> {
+fn cmd_run(config: PathBuf, init_ledger: bool) -> Result<i32> {
     let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
-    rt.block_on(lifeledger::service::run(&config))?;
+    rt.block_on(lifeledger::service::run(&config, init_ledger))?;
     Ok(0)
 }
 
@@ -300,7 +345,7 @@ fn main() {
         _ => init_logs("warn", false),
     }
     let result = match cli.command {
-        Command::Run { config, .. } => cmd_run(config),
+        Command::Run { config, init_ledger, .. } => cmd_run(config, init_ledger),
         Command::Ledger { config, format } => cmd_ledger(&config, format),
         Command::Demo {
             duration,
@@ -341,6 +386,10 @@ fn main() {
             cmd_rollback(&config, ledger, scope, &to, by, reason, dry_run, format)
         }
         Command::Backfill { config, ledger, input, format } => cmd_backfill(&config, ledger, &input, format),
+        Command::Resend { config, ledger, component, all: _, from, to, dry_run } => {
+            let scope = component.map_or(lifeledger::recovery::Scope::Whole, lifeledger::recovery::Scope::Component);
+            cmd_resend(&config, ledger, scope, &from, &to, dry_run)
+        }
         Command::Materials { action } => cmd_materials(action),
         Command::Fit { cmd } => lifeledger::fit::run(&cmd).map(|_| 0),
     };
@@ -557,6 +606,48 @@ fn cmd_ledger(config: &std::path::Path, format: Format) -> Result<i32> {
 /// An event time for people, or `-`.
 fn time_or_dash(t: Option<i64>) -> String {
     t.map_or("-".to_string(), report::rfc3339_ms)
+}
+
+fn cmd_resend(
+    config: &std::path::Path,
+    ledger: Option<PathBuf>,
+    scope: lifeledger::recovery::Scope,
+    from: &str,
+    to: &str,
+    dry_run: bool,
+) -> Result<i32> {
+    let time = |flag: &str, v: &str| {
+        lifeledger::replay::parse_timestamp_ms(v.trim())
+            .with_context(|| format!("{flag} {v:?} is not a time; give RFC 3339, for example 2026-10-20T00:00:00Z"))
+    };
+    let (from_ms, to_ms) = (time("--from", from)?, time("--to", to)?);
+    let (cfg, service) = lifeledger::service::load_service(config)?;
+    let path = ledger.unwrap_or_else(|| service.store.path.clone());
+    let resend = lifeledger::recovery::resend::collect(&cfg, &path, &scope, from_ms, to_ms)?;
+    let lines: Vec<String> = resend.lines().cloned().collect();
+    let mut out = std::io::stdout().lock();
+    for (name, l) in &resend.components {
+        writeln!(out, "{name}: {} points", l.len())?;
+    }
+    if dry_run {
+        writeln!(out, "dry run: nothing sent ({} points)", lines.len())?;
+        return Ok(0);
+    }
+    let Some(db) = &service.database else {
+        anyhow::bail!("resend: the configuration {} has no [database] to send to", config.display());
+    };
+    let writer = lifeledger::sink::Writer::new(db)?;
+    let rt = tokio::runtime::Builder::new_current_thread().enable_all().build()?;
+    for chunk in lines.chunks(db.batch_lines.max(1)) {
+        rt.block_on(writer.write_lines(chunk)).with_context(|| {
+            format!(
+                "resend: the database at {} did not take the points; nothing is lost, run resend again",
+                writer.url()
+            )
+        })?;
+    }
+    writeln!(out, "sent {} points to {}", lines.len(), writer.url())?;
+    Ok(0)
 }
 
 #[allow(clippy::too_many_arguments)]

@@ -8,7 +8,13 @@
 //!   it is counted as rejected and the samples behind it are processed;
 //! * commits that keep failing are counted, make `/readyz` answer not
 //!   ready, and end the process with a clear error after the configured
-//!   time, having acknowledged nothing they did not write.
+//!   time, having acknowledged nothing they did not write;
+//! * a missing or empty ledger file (a data volume that did not mount) is
+//!   refused, creating nothing, unless `run --init-ledger` asks for a new
+//!   ledger;
+//! * a batch the database refuses as malformed is parked in the ledger,
+//!   counted and reported, not dropped and not counted as delivered, and
+//!   the points behind it go on.
 
 mod common;
 
@@ -195,4 +201,121 @@ fn failing_commits_are_reported_and_end_the_process_after_the_limit() {
     let live = svc.wait_until_integrated(s.last().unwrap().1);
     assert_eq!(live["engine"]["accepted"].as_u64(), Some(s.len() as u64), "every sample exactly once");
     assert!(svc.sigterm().success());
+}
+
+/// A ledger that is not there (a data volume that failed to mount leaves
+/// an empty directory, or a 0-byte file) must not silently become a new
+/// ledger that restarts every component from its initial values: `run`
+/// refuses, names the file and the fix, and creates nothing; with
+/// `--init-ledger` it starts a new ledger.
+#[test]
+fn a_missing_or_empty_ledger_is_refused_unless_run_is_told_to_create_one() {
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, "");
+    let ledger = dir.path().join("ledger.sqlite");
+    let listing = |d: &Path| {
+        let mut v: Vec<String> =
+            std::fs::read_dir(d).unwrap().map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).collect();
+        v.sort();
+        v
+    };
+    struct Kill(std::process::Child);
+    impl Drop for Kill {
+        fn drop(&mut self) {
+            let _ = self.0.kill();
+            let _ = self.0.wait();
+        }
+    }
+    // The log lives outside the ledger's directory, so the listing sees
+    // only what the service itself made.
+    let logs = tempfile::tempdir().unwrap();
+    let spawn = |log: &Path| {
+        Kill(
+            Command::new(common::workspace_bin())
+                .args(["run", "--config", cfg.to_str().unwrap()])
+                .env("RUST_LOG", "info")
+                .stdin(std::process::Stdio::null())
+                .stdout(std::process::Stdio::null())
+                .stderr(std::fs::File::create(log).unwrap())
+                .spawn()
+                .unwrap(),
+        )
+    };
+    let run = |log: &Path| {
+        let mut child = spawn(log);
+        let status = poll_until("run without --init-ledger to refuse and exit", || child.0.try_wait().unwrap());
+        (status, std::fs::read_to_string(log).unwrap())
+    };
+
+    for empty in [false, true] {
+        if empty {
+            std::fs::write(&ledger, b"").unwrap();
+        }
+        let before = listing(dir.path());
+        // Refused before it connects anywhere, so this returns at once.
+        let (status, err) = run(&logs.path().join(format!("refused-{empty}.log")));
+        assert!(!status.success(), "run must refuse a ledger that is not there:\n{err}");
+        let what = if empty { "the file is empty" } else { "the file does not exist" };
+        assert!(err.contains(&ledger.display().to_string()) && err.contains(what), "{err}");
+        assert!(err.contains("--init-ledger") && err.contains("Nothing was created"), "{err}");
+        assert_eq!(listing(dir.path()), before, "a refused start must create nothing");
+        if empty {
+            assert_eq!(std::fs::metadata(&ledger).unwrap().len(), 0, "the empty file stays empty");
+        }
+    }
+
+    // Told to, it creates the ledger and runs (Service::start passes
+    // --init-ledger); afterwards the ledger opens without the flag.
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    assert!(svc.sigterm().success());
+    assert!(std::fs::metadata(&ledger).unwrap().len() > 0);
+    let _again = spawn(&logs.path().join("again.log"));
+    poll_until("the restarted service (no --init-ledger) to answer /healthz", || {
+        http::get(http_port, "/healthz").ok().filter(|r| r.status == 200)
+    });
+}
+
+/// A point the database refuses as malformed (VictoriaMetrics answers 400
+/// to a line longer than its 256 KiB line limit; its default
+/// `-influx.maxLineSize`, checked against the running server by the test)
+/// is parked: kept in the ledger's `parked_line` table with the database's
+/// answer, counted in the snapshot and in `/metrics`, never counted as
+/// delivered; the points before and after it are delivered.
+#[test]
+fn a_batch_the_database_refuses_is_parked_counted_and_kept() {
+    let broker = Mosquitto::start();
+    let vm = VictoriaMetrics::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    // One line per batch, so the refused line is a batch of its own.
+    let tail = format!("{}batch_lines = 1\n", database(&vm.url()));
+    let cfg = config(dir.path(), broker.port, http_port, &tail);
+    let t = "1790812800000000000";
+    let huge = format!("parking_probe,k=b s=\"{}\" {t}", "x".repeat(300 * 1024));
+    let lines = vec![format!("parking_probe,k=a v=1 {t}"), huge.clone(), format!("parking_probe,k=c v=3 {t}")];
+    {
+        let mut store = lifeledger::store::Store::open(&dir.path().join("ledger.sqlite")).unwrap();
+        store.commit(&lifeledger::store::Commit { outbox: &lines, ..Default::default() }).unwrap();
+    }
+    let svc = Service::start(&cfg, http_port);
+    let snap = poll_until("the outbox to empty with one line parked", || {
+        svc.snapshot().filter(|s| s["outbox_lines"] == 0 && s["outbox_parked_lines"] == 1)
+    });
+    assert_eq!(snap["outbox_parked_lines"], 1, "{snap}");
+    let metrics = http::get(http_port, "/metrics").unwrap().text();
+    assert_eq!(metric(&metrics, "lifeledger_outbox_parked_lines"), Some(1.0), "{metrics}");
+    vm.flush();
+    let mut delivered: Vec<String> =
+        vm.export("{__name__=\"parking_probe_v\"}").iter().map(|e| e.label("k").unwrap().to_string()).collect();
+    delivered.sort();
+    assert_eq!(delivered, ["a", "c"], "the points before and after the refused one are delivered");
+    assert!(svc.sigterm().success());
+    let store = lifeledger::store::Store::open(&dir.path().join("ledger.sqlite")).unwrap();
+    let parked = store.parked_lines().unwrap();
+    assert_eq!(parked.len(), 1);
+    assert_eq!(parked[0].0, huge, "the refused line is kept as it was");
+    assert!(parked[0].2.contains("400"), "the database's answer is kept: {}", parked[0].2);
 }

@@ -759,3 +759,124 @@ fn series_points_follow_event_time_not_commits() {
     assert_eq!(live, replayed, "the live series has the replay's event times");
     assert!(svc.sigterm().success());
 }
+
+/// Publishes `s` to `plant/{tag}` with QoS 1, one message every `pause`
+/// (a steady stream, as a plant's gateways send), and returns once the
+/// broker acknowledged every message.
+fn publish_steadily(port: u16, s: &[Sample], id: &str, pause: Duration) {
+    let mut o = MqttOptions::new(id, "127.0.0.1", port);
+    o.set_keep_alive(Duration::from_secs(30));
+    let (client, mut conn) = Client::new(o, 1000);
+    let messages: Vec<(String, Vec<u8>)> = s
+        .iter()
+        .map(|(tag, ts, v)| (format!("plant/{tag}"), format!("{{\"value\": {v:?}, \"timestamp\": {ts}}}").into_bytes()))
+        .collect();
+    let n = messages.len();
+    let pubber = std::thread::spawn(move || {
+        for (topic, p) in messages {
+            client.publish(topic, QoS::AtLeastOnce, false, p).unwrap();
+            std::thread::sleep(pause);
+        }
+        client
+    });
+    let mut acked = 0;
+    for ev in conn.iter() {
+        match ev {
+            Ok(Event::Incoming(Packet::PubAck(_))) => {
+                acked += 1;
+                if acked == n {
+                    break;
+                }
+            }
+            Ok(_) => {}
+            Err(e) => panic!("publisher connection failed: {e}"),
+        }
+    }
+    let _ = pubber.join().unwrap().disconnect();
+}
+
+/// Group commit: 2 000 samples arriving steadily at about 500 a second
+/// (a rate at which the ledger thread's queue runs dry after every
+/// message) are written in far fewer transactions than samples, because an
+/// open batch is committed only once it is `[store] commit_interval_ms`
+/// (150 ms by default) old; and nothing is lost: the ledger equals a
+/// replay of the same samples.
+#[test]
+fn a_steady_stream_is_group_committed_and_nothing_is_lost() {
+    let dir = tempfile::tempdir().unwrap();
+    let (broker, cfg, svc) = start_plant(dir.path());
+    let commits = |v: &serde_json::Value| v["service"]["commits"].as_u64().expect("service.commits in the snapshot");
+    let before = commits(&svc.snapshot().unwrap());
+    let s = samples(500);
+    assert_eq!(s.len(), 2000);
+    publish_steadily(broker.port, &s, "steady-publisher", Duration::from_millis(2));
+    let live = svc.wait_until_integrated(s.last().unwrap().1);
+    let used = commits(&live) - before;
+    // About 4 s of stream at 150 ms per batch is some 30 commits, plus one
+    // per service_health point (each second in this configuration) and per
+    // alarm change; one commit per message would be about 2 000.
+    eprintln!("{used} commits for {} samples", s.len());
+    assert!(used <= 200, "{used} commits for {} samples: not group-committed", s.len());
+    assert_eq!(live["engine"]["accepted"], 2000, "{}", live["engine"]);
+    compare(&live, &replay_json(&cfg, &csv(dir.path(), &s)), 0.0);
+    assert!(svc.sigterm().success());
+}
+
+/// `lifeledger resend`: a database that lost the points it had accepted
+/// (here: a new, empty VictoriaMetrics in place of the first) gets a
+/// component's series back from the ledger's own records, for the range of
+/// event time asked, with the values and event times the service first
+/// sent; sending twice changes nothing (points carry their event time).
+#[test]
+fn resend_restores_lost_points_from_the_ledger_idempotently() {
+    let broker = Mosquitto::start();
+    let first = VictoriaMetrics::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, Some(&first.url()));
+    let s = samples(240);
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    publish_all(broker.port, &s, "publisher-resend");
+    svc.wait_until_integrated(s.last().unwrap().1);
+    poll_until("the outbox to drain", || svc.snapshot().filter(|v| v["outbox_lines"] == 0));
+    assert!(svc.sigterm().success());
+    first.flush();
+    let series = |vm: &VictoriaMetrics, field: &str, component: &str| -> Vec<(i64, f64)> {
+        let e = vm.export(&format!("{{__name__=\"component_state_{field}\",component=\"{component}\"}}"));
+        assert!(e.len() <= 1, "one series per component and field: {}", e.len());
+        e.first().map(|e| e.samples()).unwrap_or_default()
+    };
+    let fields = [("creep_life_fraction", "SH-TUBE"), ("metal_temperature_k", "SH-TUBE"), ("wear_index", "SUPPORT")];
+    let sent: Vec<Vec<(i64, f64)>> = fields.iter().map(|(f, c)| series(&first, f, c)).collect();
+    assert!(sent.iter().all(|v| v.len() > 100), "the service wrote its series first");
+    drop(first);
+
+    // The database lost everything: a new one, empty.
+    let second = VictoriaMetrics::start();
+    let cfg = config(dir.path(), broker.port, http_port, Some(&second.url()));
+    let (from_ms, to_ms) = ((common::service::T0 + 3600) * 1000, (common::service::T0 + 3 * 3600) * 1000);
+    let rfc = |ms: i64| chrono::DateTime::from_timestamp_millis(ms).unwrap().to_rfc3339();
+    for _ in 0..2 {
+        let o = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+            .args(["resend", "--config", cfg.to_str().unwrap(), "--all", "--from", &rfc(from_ms), "--to", &rfc(to_ms)])
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "resend failed: {}", String::from_utf8_lossy(&o.stderr));
+    }
+    second.flush();
+    for ((field, component), before) in fields.iter().zip(&sent) {
+        let want: Vec<(i64, f64)> = before.iter().copied().filter(|(t, _)| (from_ms..=to_ms).contains(t)).collect();
+        assert!(want.len() >= 100, "{field}: the range holds points");
+        let got = series(&second, field, component);
+        assert_eq!(
+            got.iter().map(|p| p.0).collect::<Vec<_>>(),
+            want.iter().map(|p| p.0).collect::<Vec<_>>(),
+            "{component} {field}: the same event times, each once, none outside the range"
+        );
+        for ((t, a), (_, b)) in got.iter().zip(&want) {
+            // Temperatures go through the trend's degrees Celsius and back.
+            assert!((a - b).abs() <= 1e-9 * b.abs().max(1e-300), "{component} {field} at {t}: resent {a}, sent {b}");
+        }
+    }
+}

@@ -18,6 +18,11 @@
 //!   hours since the checkpoint; on a new installation it starts the ledger
 //!   from the plant's history.
 //!
+//! * [`resend`]: `lifeledger resend` re-sends components' `component_state`
+//!   points for a range of event time from the ledger's trend records to
+//!   the database, for a database that lost points it had accepted. It
+//!   only reads the ledger.
+//!
 //! Rollback and backfill change the ledger file of a *stopped* service:
 //! both open it with `Store::open_exclusive`, which refuses while any other
 //! program has the file open, and keeps everyone else out until they are
@@ -25,6 +30,7 @@
 
 pub mod backfill;
 pub mod checkpoint;
+pub mod resend;
 pub mod rollback;
 
 pub use backfill::{backfill, BackfillOutcome};

@@ -2,7 +2,8 @@
 //! store's write connection.
 //!
 //! It takes messages from the ingest task, decodes and integrates them,
-//! and group-commits: whenever its queue runs dry (or a batch is full) it
+//! and group-commits: once a batch is `[store] commit_interval_ms` old (or
+//! full; with an interval of 0, whenever its queue runs dry) it
 //! writes, in one transaction, the changed component ledgers, the tag
 //! cursors, the alarm records, the counters and the new outbox points; only
 //! then does it acknowledge the MQTT messages of the batch and publish the
@@ -126,6 +127,9 @@ pub struct Ledger {
     recent_events: std::collections::VecDeque<AlarmEvent>,
     /// Commit even with nothing pending (an HTTP command changed alarms).
     force_commit: bool,
+    /// When the open batch took its first message: it is committed once it
+    /// is `[store] commit_interval_ms` old (group commit).
+    batch_opened: Option<Instant>,
     last_sensor_check: Instant,
     /// Reorder-window changes not yet committed (kept across a failed
     /// commit, like the outbox lines).
@@ -290,7 +294,7 @@ impl Ledger {
         client: AsyncClient,
         snapshot_tx: watch::Sender<Arc<Snapshot>>,
     ) -> anyhow::Result<Ledger> {
-        let mut store = Store::open(&service.store.path)?;
+        let mut store = Store::open_with(&service.store.path, service.store.create_if_missing)?;
         store.set_alarm_journal_max_events(service.store.alarm_journal_max_events);
         store.set_trend_points_per_component(service.store.trend_points_per_component);
         store.set_checkpoint_days(service.store.checkpoint_days);
@@ -358,6 +362,7 @@ impl Ledger {
             trend_points: vec![],
             recent_events,
             force_commit: false,
+            batch_opened: None,
             last_sensor_check: Instant::now() - Duration::from_secs(60),
             held_added: vec![],
             held_released: vec![],
@@ -471,7 +476,10 @@ impl Ledger {
             }
             let msg = if self.pending.is_empty() && self.extra_outbox.is_empty() && !self.force_commit {
                 match rt.block_on(async { tokio::time::timeout(Duration::from_millis(500), rx.recv()).await }) {
-                    Ok(Some(m)) => Some(m),
+                    Ok(Some(m)) => {
+                        self.batch_opened = Some(Instant::now());
+                        Some(m)
+                    }
                     Ok(None) => {
                         self.commit();
                         break;
@@ -482,10 +490,25 @@ impl Ledger {
                     }
                 }
             } else {
-                match rx.try_recv() {
+                // Group commit: take more messages until the open batch is
+                // commit_interval_ms old (0: until the queue runs dry).
+                let interval = Duration::from_millis(self.service.store.commit_interval_ms);
+                let left = interval.saturating_sub(self.batch_opened.get_or_insert_with(Instant::now).elapsed());
+                let next = if interval.is_zero() {
+                    rx.try_recv().map_err(|e| e == mpsc::error::TryRecvError::Disconnected)
+                } else if left.is_zero() {
+                    Err(false)
+                } else {
+                    match rt.block_on(async { tokio::time::timeout(left, rx.recv()).await }) {
+                        Ok(Some(m)) => Ok(m),
+                        Ok(None) => Err(true),
+                        Err(_) => Err(false),
+                    }
+                };
+                match next {
                     Ok(m) => Some(m),
-                    Err(mpsc::error::TryRecvError::Empty) => None,
-                    Err(mpsc::error::TryRecvError::Disconnected) => {
+                    Err(false) => None,
+                    Err(true) => {
                         self.commit();
                         break;
                     }
@@ -496,11 +519,14 @@ impl Ledger {
                     self.handle(m);
                     if self.pending_samples >= self.service.store.commit_max_samples {
                         self.commit();
+                        self.batch_opened = None;
                     }
                 }
-                // The queue ran dry: commit what we have (group commit).
+                // The batch is old enough (or the queue ran dry with an
+                // interval of 0): commit what we have (group commit).
                 None => {
                     self.commit();
+                    self.batch_opened = None;
                     self.periodic();
                 }
             }
@@ -1288,6 +1314,7 @@ impl Ledger {
             store_path: self.service.store.path.display().to_string(),
             outbox_lines: self.outbox.lines,
             outbox_bytes: self.outbox.bytes,
+            outbox_parked_lines: self.outbox.parked,
             outbox_quota_bytes: quota(&self.service),
             holding: self.holding,
             commit_failing: self.commit_error.clone(),
@@ -1323,7 +1350,9 @@ mod tests {
             "[store]\npath = {:?}\n[database]\nurl = \"http://127.0.0.1:9\"\norg = \"o\"\nbucket = \"b\"\n",
             dir.join("ledger.db")
         );
-        let service = ServiceSettings::from_settings(&toml::from_str(&text).unwrap()).unwrap();
+        let mut service = ServiceSettings::from_settings(&toml::from_str(&text).unwrap()).unwrap();
+        // A new ledger, as `run --init-ledger` makes one.
+        service.store.create_if_missing = true;
         let (client, _eventloop) = AsyncClient::new(rumqttc::MqttOptions::new("unit", "127.0.0.1", 9), 100);
         let (snap_tx, _snap_rx) = watch::channel(Arc::new(Snapshot::default()));
         Ledger::open(cfg, service, client, snap_tx).unwrap()

@@ -65,14 +65,20 @@ pub fn empty_plant_refusal(cfg: &crate::settings::LoadedConfig) -> Option<String
     })
 }
 
-/// Run the service until SIGTERM or SIGINT.
-pub async fn run(config_path: &Path) -> anyhow::Result<()> {
-    run_until(config_path, std::future::pending()).await
+/// Run the service until SIGTERM or SIGINT. A new ledger is created in
+/// place of a missing or empty ledger file only if `init_ledger` is set
+/// (`lifeledger run --init-ledger`); otherwise such a file is refused.
+pub async fn run(config_path: &Path, init_ledger: bool) -> anyhow::Result<()> {
+    run_until(config_path, init_ledger, std::future::pending()).await
 }
 
 /// Run the service until SIGTERM, SIGINT or `stop` completes.
-pub async fn run_until(config_path: &Path, stop: impl std::future::Future<Output = ()>) -> anyhow::Result<()> {
-    run_until_with(config_path, Overrides::Environment, stop).await
+pub async fn run_until(
+    config_path: &Path,
+    init_ledger: bool,
+    stop: impl std::future::Future<Output = ()>,
+) -> anyhow::Result<()> {
+    run_until_with(config_path, Overrides::Environment, init_ledger, stop).await
 }
 
 /// [`run_until`] with the configuration's overrides from `overrides`, at
@@ -80,9 +86,11 @@ pub async fn run_until(config_path: &Path, stop: impl std::future::Future<Output
 pub async fn run_until_with(
     config_path: &Path,
     overrides: Overrides,
+    init_ledger: bool,
     stop: impl std::future::Future<Output = ()>,
 ) -> anyhow::Result<()> {
-    let (cfg, svc) = load_service_with(config_path, &overrides)?;
+    let (cfg, mut svc) = load_service_with(config_path, &overrides)?;
+    svc.store.create_if_missing = init_ledger;
     if let Some(e) = empty_plant_refusal(&cfg) {
         anyhow::bail!("configuration {}: {e}", config_path.display());
     }

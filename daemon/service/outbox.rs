@@ -6,7 +6,9 @@
 //! [`Store::attach`](crate::store::Store::attach): through SQLite only, so
 //! the ledger thread's file locks stay intact. A batch is removed from the outbox
 //! only after the database accepted it; a failed batch is retried with
-//! exponential backoff and jitter. Because every point carries its event
+//! exponential backoff and jitter. A batch the database refuses as
+//! malformed (HTTP 400/422) is parked: moved in one transaction to the
+//! ledger's `parked_line` table, counted, never counted as delivered. Because every point carries its event
 //! time, a batch that was accepted but not yet removed when the process
 //! died is simply written again and overwrites itself.
 
@@ -72,16 +74,27 @@ pub async fn run_sender(
             }
             Err(e) if e.is_bad_data() => {
                 // The database refuses these lines as they are; retrying
-                // would block everything behind them. Say so loudly, keep
-                // them in the log, and move on.
-                tracing::error!(
-                    lines = lines.len(),
-                    "database refused a batch as malformed, dropping it from the outbox: {e}; first line: {}",
-                    lines[0]
-                );
-                // It answered: the database is reachable.
+                // would block everything behind them. Park them (kept in
+                // the ledger, counted, never counted as delivered), say so
+                // loudly, and move on.
                 let _ = reachable.send(Some(true));
-                let _ = tokio::task::block_in_place(|| store.outbox_remove_through(last_id));
+                let reason = e.to_string();
+                match tokio::task::block_in_place(|| store.outbox_park_through(last_id, &reason)) {
+                    Ok(n) => tracing::error!(
+                        lines = n,
+                        "database refused a batch as malformed; its lines are parked in the ledger \
+                         (table parked_line), not delivered: {e}; first line: {}",
+                        lines[0]
+                    ),
+                    Err(pe) => {
+                        tracing::error!("database refused a batch as malformed ({e}) and parking it failed: {pe}");
+                        let d = backoff.next_delay();
+                        tokio::select! {
+                            _ = tokio::time::sleep(d) => {}
+                            _ = shutdown.recv() => { stopping = true; }
+                        }
+                    }
+                }
             }
             Err(e) => {
                 let _ = reachable.send(Some(false));

@@ -19,6 +19,12 @@ pub struct StoreSettings {
     /// Largest number of samples in one group commit.
     #[serde(default = "default_batch")]
     pub commit_max_samples: usize,
+    /// Group-commit interval, ms: an open batch is committed once it is this
+    /// old (or `commit_max_samples` is reached), so a steady stream costs
+    /// about one fsync per interval instead of one per message. 0 commits
+    /// whenever the queue runs dry. 0 to 5000.
+    #[serde(default = "default_commit_interval")]
+    pub commit_interval_ms: u64,
     /// Event-time spacing of `component_state` points, seconds.
     #[serde(default = "default_series")]
     pub series_interval_s: i64,
@@ -45,6 +51,13 @@ pub struct StoreSettings {
     /// is acknowledged and `/readyz` answers not ready.
     #[serde(default = "default_commit_failure_limit")]
     pub commit_failure_limit_s: f64,
+    /// Whether the service may create a new ledger in place of a missing or
+    /// empty file. Not a configuration key: only `lifeledger run
+    /// --init-ledger` (and the demo, on its own state directory) sets it, so
+    /// a data volume that failed to mount is refused instead of silently
+    /// starting every component afresh.
+    #[serde(skip)]
+    pub create_if_missing: bool,
 }
 
 fn default_path() -> PathBuf {
@@ -52,6 +65,9 @@ fn default_path() -> PathBuf {
 }
 fn default_batch() -> usize {
     2000
+}
+fn default_commit_interval() -> u64 {
+    150
 }
 fn default_series() -> i64 {
     60
@@ -77,12 +93,14 @@ impl Default for StoreSettings {
         StoreSettings {
             path: default_path(),
             commit_max_samples: default_batch(),
+            commit_interval_ms: default_commit_interval(),
             series_interval_s: default_series(),
             health_interval_s: default_health(),
             alarm_journal_max_events: default_journal(),
             trend_points_per_component: default_trend(),
             checkpoint_days: default_checkpoint_days(),
             commit_failure_limit_s: default_commit_failure_limit(),
+            create_if_missing: false,
         }
     }
 }
@@ -412,6 +430,14 @@ fn store_problems(s: &StoreSettings) -> Vec<String> {
     ));
     p.extend(count_problem(
         "store",
+        "commit_interval_ms",
+        s.commit_interval_ms,
+        0,
+        5000,
+        "0 to 5000 ms between group commits (default 150; 0 commits whenever the queue runs dry)",
+    ));
+    p.extend(count_problem(
+        "store",
         "series_interval_s",
         s.series_interval_s,
         1,
@@ -519,6 +545,8 @@ mod tests {
             ("[store]\nseries_interval_s = 0", "series_interval_s"),
             ("[store]\nhealth_interval_s = 86401", "health_interval_s"),
             ("[store]\ncommit_failure_limit_s = nan", "commit_failure_limit_s"),
+            ("[store]\ncommit_interval_ms = 5001", "commit_interval_ms"),
+            ("[store]\ncommit_interval_ms = -1", "commit_interval_ms"),
             ("[store]\ncommit_failure_limit_s = -5", "commit_failure_limit_s"),
             ("[http]\nlisten = \"127.0.0.1\"", "listen"),
             ("[http]\nlisten = \"[::1]:0\"", "listen"),
@@ -558,6 +586,14 @@ mod tests {
         assert_eq!(StoreSettings::default().trend_points_per_component, 10_080);
         let s = store_section("trend_points_per_component = 500").unwrap();
         assert_eq!(s.store.trend_points_per_component, 500);
+    }
+
+    #[test]
+    fn group_commits_wait_150_ms_unless_told() {
+        assert_eq!(store_section("").unwrap().store.commit_interval_ms, 150);
+        assert_eq!(StoreSettings::default().commit_interval_ms, 150);
+        assert_eq!(store_section("commit_interval_ms = 0").unwrap().store.commit_interval_ms, 0);
+        assert_eq!(store_section("commit_interval_ms = 5000").unwrap().store.commit_interval_ms, 5000);
     }
 
     #[test]

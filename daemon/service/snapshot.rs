@@ -42,6 +42,9 @@ pub struct Snapshot {
     pub store_path: String,
     pub outbox_lines: u64,
     pub outbox_bytes: u64,
+    /// Lines the database refused as malformed, parked in the ledger's
+    /// `parked_line` table (not delivered, not waiting).
+    pub outbox_parked_lines: u64,
     pub outbox_quota_bytes: u64,
     /// Intake is paused because the outbox is over its quota.
     pub holding: bool,
@@ -221,6 +224,12 @@ pub fn metrics_text(s: &Snapshot) -> String {
         "Bytes waiting for the database.",
         "gauge",
         vec![(String::new(), s.outbox_bytes as f64)],
+    );
+    metric(
+        "lifeledger_outbox_parked_lines",
+        "Points the database refused as malformed, parked in the ledger (table parked_line), not delivered.",
+        "gauge",
+        vec![(String::new(), s.outbox_parked_lines as f64)],
     );
     metric(
         "lifeledger_commits_total",

@@ -41,6 +41,24 @@ pub enum StoreError {
         source: std::io::Error,
     },
 
+    /// No ledger at the configured path (the file is missing or empty) and
+    /// the service was not told to create one.
+    #[error(
+        "ledger store {}: no ledger here ({}). Nothing was created: a ledger that vanished \
+         (a data volume that did not mount, a wrong `store.path`) must not silently restart \
+         every component from its initial values. If a ledger should be here, mount the data \
+         volume, fix `store.path` or restore the backup; if this is the first start of a new \
+         installation, start once with `lifeledger run --config FILE --init-ledger`",
+        path.display(),
+        if *empty { "the file is empty" } else { "the file does not exist" }
+    )]
+    NoLedger {
+        /// The ledger file looked for.
+        path: PathBuf,
+        /// The file exists but holds nothing (0 bytes, or SQLite without tables).
+        empty: bool,
+    },
+
     /// The file does not start with the SQLite header.
     #[error(
         "ledger store {}: the file is not an SQLite database (it does not start with the \
@@ -95,7 +113,7 @@ pub enum StoreError {
     #[error(
         "ledger store {}: the file is an SQLite database of another program ({reason}), not a \
          lifeledger ledger. The file was not changed. Check `store.path` in the configuration; \
-         lifeledger needs a file of its own (a missing or empty file is created as a new ledger)",
+         lifeledger needs a file of its own (`run --init-ledger` creates a new ledger in place of a missing or empty file)",
         path.display()
     )]
     Foreign {

@@ -161,7 +161,19 @@ impl Store {
     /// so call this only while the process holds no other connection to the
     /// same file; a second connection uses [`Store::attach`].
     pub fn open(path: &Path) -> Result<Store, StoreError> {
+        Store::open_with(path, true)
+    }
+
+    /// [`Store::open`], creating a new ledger in place of a missing or
+    /// empty file only if `create` is set; otherwise such a file is refused
+    /// with [`StoreError::NoLedger`] and nothing is created. The service
+    /// opens its ledger this way: a data volume that failed to mount must
+    /// not silently restart every component from its initial values.
+    pub fn open_with(path: &Path, create: bool) -> Result<Store, StoreError> {
         let found = schema::inspect(path)?;
+        if !create && matches!(found, schema::Found::Missing | schema::Found::Blank) {
+            return Err(StoreError::NoLedger { path: path.into(), empty: found == schema::Found::Blank });
+        }
         if found == schema::Found::Missing {
             if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
                 std::fs::create_dir_all(dir).map_err(|source| StoreError::CreateDir {
@@ -172,7 +184,10 @@ impl Store {
             }
         }
 
-        let flags = OpenFlags::SQLITE_OPEN_READ_WRITE | OpenFlags::SQLITE_OPEN_CREATE | OpenFlags::SQLITE_OPEN_NO_MUTEX;
+        let mut flags = OpenFlags::SQLITE_OPEN_READ_WRITE | OpenFlags::SQLITE_OPEN_NO_MUTEX;
+        if create {
+            flags |= OpenFlags::SQLITE_OPEN_CREATE;
+        }
         let mut conn = Connection::open_with_flags(path, flags)
             .map_err(|e| StoreError::sqlite(path, "opening the ledger for writing", e))?;
         configure(&conn, path)?;
@@ -550,6 +565,30 @@ mod tests {
     }
 
     #[test]
+    fn open_with_creates_a_ledger_only_when_asked() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("new/ledger.db");
+        let err = Store::open_with(&path, false).unwrap_err();
+        assert!(matches!(err, StoreError::NoLedger { empty: false, .. }), "{err}");
+        let text = err.to_string();
+        assert!(text.contains("new/ledger.db") && text.contains("--init-ledger"), "{text}");
+        assert!(!path.exists() && !path.parent().unwrap().exists(), "refusing must create nothing");
+
+        // A 0-byte file (a file created by hand, a volume not yet filled)
+        // is refused as well, and stays 0 bytes.
+        std::fs::create_dir_all(path.parent().unwrap()).unwrap();
+        std::fs::write(&path, b"").unwrap();
+        let err = Store::open_with(&path, false).unwrap_err();
+        assert!(matches!(err, StoreError::NoLedger { empty: true, .. }), "{err}");
+        assert_eq!(std::fs::metadata(&path).unwrap().len(), 0);
+
+        drop(Store::open_with(&path, true).unwrap());
+        // Once there, the ledger opens without the flag.
+        let store = Store::open_with(&path, false).unwrap();
+        assert_eq!(store.load().unwrap(), Loaded::default());
+    }
+
+    #[test]
     fn the_store_can_move_to_its_own_thread() {
         fn is_send<T: Send>() {}
         is_send::<Store>();
@@ -735,7 +774,7 @@ mod tests {
         let outbox: Vec<String> = (0..10_000).map(|i| format!("m v={i}i {i}")).collect();
         let stats = store.commit(&Commit { components: &components, outbox: &outbox, ..Default::default() }).unwrap();
         let bytes: usize = outbox.iter().map(String::len).sum();
-        assert_eq!(stats.outbox, OutboxStats { lines: 10_000, bytes: bytes as u64 });
+        assert_eq!(stats.outbox, OutboxStats { lines: 10_000, bytes: bytes as u64, parked: 0 });
         assert_eq!(store.load().unwrap().components, components);
     }
 }

@@ -23,6 +23,9 @@ pub struct OutboxStats {
     pub lines: u64,
     /// Sum of the lines' lengths in bytes (UTF-8, without newlines).
     pub bytes: u64,
+    /// Lines the database refused as malformed, parked out of the outbox
+    /// (see [`Store::outbox_park_through`]); not counted in `lines`.
+    pub parked: u64,
 }
 
 /// Appends `lines` in order and adds them to the running totals. Runs
@@ -42,12 +45,13 @@ pub(super) fn append(conn: &Connection, lines: &[String]) -> rusqlite::Result<()
 
 /// Reads the running totals.
 pub(super) fn totals(conn: &Connection) -> rusqlite::Result<OutboxStats> {
-    let mut stmt = conn.prepare_cached("SELECT lines, bytes FROM outbox_total WHERE only = 1")?;
+    let mut stmt = conn.prepare_cached("SELECT lines, bytes, parked_lines FROM outbox_total WHERE only = 1")?;
     stmt.query_row([], |r| {
         let lines: i64 = r.get(0)?;
         let bytes: i64 = r.get(1)?;
+        let parked: i64 = r.get(2)?;
         // Never negative: every change is paired with the rows it counts.
-        Ok(OutboxStats { lines: lines.max(0) as u64, bytes: bytes.max(0) as u64 })
+        Ok(OutboxStats { lines: lines.max(0) as u64, bytes: bytes.max(0) as u64, parked: parked.max(0) as u64 })
     })
 }
 
@@ -104,6 +108,47 @@ impl Store {
         tx.commit().map_err(fail)
     }
 
+    /// Moves every line with an id at or below `id` out of the outbox into
+    /// the parked lines, in one transaction, with `reason` (the database's
+    /// answer) and the wall-clock time: for a batch the database refused as
+    /// malformed, which retrying would only refuse again while it blocks
+    /// every point behind it. Parked lines are kept, counted
+    /// ([`OutboxStats::parked`]) and never counted as delivered. Returns how
+    /// many lines were parked (0 if they were gone already).
+    pub fn outbox_park_through(&mut self, id: i64, reason: &str) -> Result<u64, StoreError> {
+        let path = &self.path;
+        let fail = |e| StoreError::sqlite(path, "parking refused lines out of the outbox", e);
+        let tx = self.conn.transaction_with_behavior(TransactionBehavior::Immediate).map_err(fail)?;
+        let (lines, bytes): (i64, i64) = tx
+            .prepare_cached("SELECT count(*), coalesce(sum(length(CAST(line AS BLOB))), 0) FROM outbox WHERE id <= ?1")
+            .and_then(|mut s| s.query_row([id], |r| Ok((r.get(0)?, r.get(1)?))))
+            .map_err(fail)?;
+        if lines > 0 {
+            tx.prepare_cached(
+                "INSERT INTO parked_line (line, parked_ms, reason)
+                 SELECT line, ?2, ?3 FROM outbox WHERE id <= ?1 ORDER BY id",
+            )
+            .and_then(|mut s| s.execute((id, super::wall_clock_ms(), reason)))
+            .map_err(fail)?;
+            tx.prepare_cached("DELETE FROM outbox WHERE id <= ?1").and_then(|mut s| s.execute([id])).map_err(fail)?;
+            add_to_totals(&tx, -lines, -bytes).map_err(fail)?;
+            tx.prepare_cached("UPDATE outbox_total SET parked_lines = parked_lines + ?1 WHERE only = 1")
+                .and_then(|mut s| s.execute([lines]))
+                .map_err(fail)?;
+        }
+        tx.commit().map_err(fail)?;
+        Ok(lines as u64)
+    }
+
+    /// The parked lines, oldest first: (line, wall-clock ms parked, reason).
+    pub fn parked_lines(&self) -> Result<Vec<(String, i64, String)>, StoreError> {
+        let fail = |e| StoreError::sqlite(&self.path, "reading the parked lines", e);
+        let mut stmt =
+            self.conn.prepare_cached("SELECT line, parked_ms, reason FROM parked_line ORDER BY id").map_err(fail)?;
+        let rows = stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?))).map_err(fail)?;
+        rows.collect::<rusqlite::Result<Vec<_>>>().map_err(fail)
+    }
+
     /// Lines and bytes waiting in the outbox (one row read).
     pub fn outbox_stats(&self) -> Result<OutboxStats, StoreError> {
         totals(&self.conn).map_err(|e| StoreError::sqlite(&self.path, "reading the outbox totals", e))
@@ -134,7 +179,7 @@ mod tests {
                 Ok((r.get(0)?, r.get(1)?))
             })
             .unwrap();
-        OutboxStats { lines: lines as u64, bytes: bytes as u64 }
+        OutboxStats { lines: lines as u64, bytes: bytes as u64, parked: 0 }
     }
 
     fn lines_of(batch: &[(i64, String)]) -> Vec<&str> {
@@ -184,6 +229,31 @@ mod tests {
     }
 
     #[test]
+    fn a_refused_batch_is_parked_whole_and_counted_not_dropped() {
+        let (_dir, mut store) = fresh();
+        append(&mut store, &["bad one", "bad two", "good"]);
+        let batch = store.outbox_batch(2, usize::MAX).unwrap();
+        let n = store.outbox_park_through(batch.last().unwrap().0, "HTTP 400: unable to parse").unwrap();
+        assert_eq!(n, 2);
+        assert_eq!(lines_of(&store.outbox_batch(10, usize::MAX).unwrap()), ["good"]);
+        assert_eq!(store.outbox_stats().unwrap(), OutboxStats { lines: 1, bytes: 4, parked: 2 });
+        let parked = store.parked_lines().unwrap();
+        let texts: Vec<&str> = parked.iter().map(|(l, _, _)| l.as_str()).collect();
+        assert_eq!(texts, ["bad one", "bad two"]);
+        assert!(parked.iter().all(|(_, ms, why)| *ms > 0 && why.contains("HTTP 400")));
+        // Parking through the same id again parks nothing more.
+        assert_eq!(store.outbox_park_through(batch.last().unwrap().0, "again").unwrap(), 0);
+        assert_eq!(store.outbox_stats().unwrap().parked, 2);
+        assert_eq!(store.outbox_stats().unwrap(), recount_with_parked(&store));
+    }
+
+    /// The totals as counted from the rows themselves.
+    fn recount_with_parked(store: &Store) -> OutboxStats {
+        let parked: i64 = store.conn.query_row("SELECT count(*) FROM parked_line", [], |r| r.get(0)).unwrap();
+        OutboxStats { parked: parked as u64, ..recount(store) }
+    }
+
+    #[test]
     fn ids_are_not_reused_after_the_outbox_drains_empty() {
         let (_dir, mut store) = fresh();
         append(&mut store, &["old"]);
@@ -206,18 +276,18 @@ mod tests {
 
         // Multi-byte UTF-8 counts in bytes, as the HTTP body will.
         let after = append(&mut store, &["abc", "é=1", "ü"]);
-        assert_eq!(after, OutboxStats { lines: 3, bytes: 3 + 4 + 2 });
+        assert_eq!(after, OutboxStats { lines: 3, bytes: 3 + 4 + 2, parked: 0 });
         assert_eq!(store.outbox_stats().unwrap(), after);
         assert_eq!(recount(&store), after);
 
         let first = store.outbox_batch(1, usize::MAX).unwrap()[0].0;
         store.outbox_remove_through(first).unwrap();
-        assert_eq!(store.outbox_stats().unwrap(), OutboxStats { lines: 2, bytes: 6 });
+        assert_eq!(store.outbox_stats().unwrap(), OutboxStats { lines: 2, bytes: 6, parked: 0 });
         assert_eq!(recount(&store), store.outbox_stats().unwrap());
 
         drop(store);
         let store = Store::open(&path).unwrap();
-        assert_eq!(store.outbox_stats().unwrap(), OutboxStats { lines: 2, bytes: 6 });
+        assert_eq!(store.outbox_stats().unwrap(), OutboxStats { lines: 2, bytes: 6, parked: 0 });
 
         let mut store = store;
         store.outbox_remove_through(i64::MAX).unwrap();

@@ -47,6 +47,10 @@ pub const MIGRATIONS: &[Migration] = &[
         summary: "checkpoints: a daily copy of each component's ledger and its tags, for rollback",
         apply: v5_checkpoint,
     },
+    Migration {
+        summary: "parked lines: outbox batches the database refused as malformed, kept instead of dropped",
+        apply: v6_parked_line,
+    },
 ];
 
 /// The newest schema version this build knows: the number of migrations.
@@ -156,6 +160,23 @@ fn v5_checkpoint(tx: &Transaction<'_>) -> rusqlite::Result<()> {
              tags TEXT NOT NULL,
              PRIMARY KEY (component, at_ms)
          ) WITHOUT ROWID;",
+    )
+}
+
+/// Version 6: lines the database refused as malformed (HTTP 400/422),
+/// moved out of the outbox in one transaction so they neither block the
+/// points behind them nor vanish: each with when it was parked (wall
+/// clock, ms) and the database's answer. `outbox_total.parked_lines`
+/// counts them, so reading the count stays one row read.
+fn v6_parked_line(tx: &Transaction<'_>) -> rusqlite::Result<()> {
+    tx.execute_batch(
+        "CREATE TABLE parked_line (
+             id INTEGER PRIMARY KEY AUTOINCREMENT,
+             line TEXT NOT NULL,
+             parked_ms INTEGER NOT NULL,
+             reason TEXT NOT NULL
+         );
+         ALTER TABLE outbox_total ADD COLUMN parked_lines INTEGER NOT NULL DEFAULT 0;",
     )
 }
 

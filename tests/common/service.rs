@@ -229,7 +229,8 @@ pub fn publish_messages(port: u16, messages: Vec<(impl Into<String>, Vec<u8>)>, 
 /// of the run before it.
 static STARTS: AtomicUsize = AtomicUsize::new(0);
 
-/// A running `lifeledger run --config ...`; killed (SIGKILL) on drop.
+/// A running `lifeledger run --config ... --init-ledger`; killed (SIGKILL)
+/// on drop.
 pub struct Service {
     /// Port of the HTTP API on 127.0.0.1.
     pub http_port: u16,
@@ -253,7 +254,9 @@ impl Service {
         let log = config.with_extension(format!("{n}.log"));
         let file = std::fs::File::create(&log).unwrap();
         let mut child = Command::new(workspace_bin())
-            .args(["run", "--config", config.to_str().unwrap()])
+            // A test's ledger starts new on the first start; later starts
+            // open the one that is there.
+            .args(["run", "--config", config.to_str().unwrap(), "--init-ledger"])
             .envs(env.iter().copied())
             .env("RUST_LOG", "info")
             .stdin(Stdio::null())
