@@ -287,6 +287,9 @@ pub struct Engine {
     /// mirrors the window); off, nothing is recorded, so a replay of any
     /// length keeps no list.
     track_held: bool,
+    /// Per tag: the newest event time it has in the window (a hint for
+    /// the duplicate check; may outlive the sample, never misses one).
+    newest_held_ms: Vec<Option<i64>>,
     /// Components without a tag input: they advance with the plant clock.
     clockless: Vec<u32>,
     /// Newest plant-clock instant the clockless components reached.
@@ -327,6 +330,7 @@ impl Engine {
             next_seq: 0,
             held_changes: HeldChanges::default(),
             track_held: false,
+            newest_held_ms: vec![None; plan.tags.len()],
             clockless,
             clock_ms: None,
             plan,
@@ -497,6 +501,8 @@ impl Engine {
         }
         // In order (the common case): at the back; else after every held
         // sample of the same or an earlier time.
+        let newest = &mut self.newest_held_ms[s.tag as usize];
+        *newest = Some(newest.map_or(s.time_ms, |n| n.max(s.time_ms)));
         if self.held.back().is_none_or(|(_, b)| b.time_ms <= s.time_ms) {
             self.held.push_back((s.tag, h));
         } else {
@@ -515,16 +521,12 @@ impl Engine {
             Some((_, b)) if b.time_ms < s.time_ms => return Ok(()),
             Some((_, b)) if b.time_ms == s.time_ms => {
                 // In-order arrival of simultaneous samples (the common case):
-                // only the samples at the back share the time.
-                for (tag, h) in self.held.iter().rev() {
-                    if h.time_ms != s.time_ms {
-                        return Ok(());
-                    }
-                    if *tag == s.tag {
-                        return Err(Rejection::Duplicate);
-                    }
-                }
-                return Ok(());
+                // a duplicate is the tag's newest held sample.
+                return if self.newest_held_ms[s.tag as usize] == Some(s.time_ms) {
+                    Err(Rejection::Duplicate)
+                } else {
+                    Ok(())
+                };
             }
             _ => {}
         }
@@ -805,6 +807,10 @@ impl Engine {
         }
         held.sort_by_key(|(_, h)| (h.time_ms, h.seq));
         self.next_seq = held.iter().map(|(_, h)| h.seq + 1).max().unwrap_or(0).max(self.next_seq);
+        for (t, h) in &held {
+            let n = &mut self.newest_held_ms[*t as usize];
+            *n = Some(n.map_or(h.time_ms, |x| x.max(h.time_ms)));
+        }
         self.held = held.into();
         let newest_cursor = self.tags.iter().filter_map(|t| t.cursor_ms).max();
         let newest_held = self.held.back().map(|(_, h)| h.time_ms);

@@ -147,6 +147,8 @@ pub struct Ledger {
     touched: Vec<u32>,
     /// Per component: event time from which threshold lines are due again.
     next_threshold_ms: Vec<i64>,
+    /// Series points made but not yet committed to the outbox.
+    series_pending: u64,
     /// When to try a failed commit again, and when to give up.
     retry: CommitRetry,
     /// The last commit error while commits fail (readiness shows it).
@@ -372,6 +374,7 @@ impl Ledger {
             no_plant_data: false,
             touched: vec![],
             next_threshold_ms: vec![i64::MIN; ncomp],
+            series_pending: 0,
             retry: CommitRetry::new(commit_failure_limit(&service)),
             commit_error: None,
             fatal: None,
@@ -550,7 +553,9 @@ impl Ledger {
         // Silence is judged by the wall clock, so a dead feed alarms even
         // though no batch arrives to trigger a commit.
         self.sensor_check();
-        if !self.events.is_empty() {
+        // Commit what the releases and the checks produced before the
+        // snapshot is published, so it never shows a point not yet queued.
+        if !self.events.is_empty() || !self.extra_outbox.is_empty() || !self.trend_points.is_empty() {
             self.commit();
         }
         if let Ok(s) = self.store.outbox_stats() {
@@ -878,7 +883,7 @@ impl Ledger {
             }
             if let Some(l) = component_point(plant, plan, st, t).to_line() {
                 self.extra_outbox.push(l);
-                self.counters.series_points += 1;
+                self.series_pending += 1;
             }
             self.trend_points.push((
                 plan.name.clone(),
@@ -1026,6 +1031,8 @@ impl Ledger {
                 }
                 self.outbox = stats.outbox;
                 let ms = started.elapsed().as_secs_f64() * 1000.0;
+                // Counted once the points are in the outbox, not before.
+                self.counters.series_points += std::mem::take(&mut self.series_pending);
                 let c = &mut self.counters;
                 c.commits += 1;
                 c.last_commit_ms = ms;
