@@ -1,6 +1,8 @@
 //! The command line as a user meets it: replay of the shipped demo,
 //! check-config on good and broken files, materials show.
 
+mod common;
+
 use std::process::Command;
 
 fn bin() -> Command {
@@ -250,7 +252,10 @@ fn check_config_refuses_numbers_the_service_cannot_use() {
     }
     // `run` refuses the same file at once, with the same words, instead of
     // starting and panicking later.
-    let (code, _out, run_err) = run(&["run", "--config", bad.to_str().unwrap()]);
+    let mut cmd = bin();
+    cmd.args(["run", "--config", bad.to_str().unwrap()]);
+    let o = common::output_within_budget(cmd, "run on a file with unusable numbers (it must refuse)");
+    let (code, run_err) = (o.status.code().unwrap_or(-1), String::from_utf8_lossy(&o.stderr).to_string());
     assert_ne!(code, 0);
     assert!(run_err.contains("reconnect_min_s = -1"), "{run_err}");
     assert!(!run_err.contains("panicked"), "{run_err}");

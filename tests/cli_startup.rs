@@ -6,6 +6,8 @@
 //! only; every child gets a cleared environment plus `PATH`, so that the
 //! machine's own variables cannot make a case pass.
 
+mod common;
+
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
@@ -154,7 +156,9 @@ fn unset_http_and_database_token_variables_fail_check_config() {
         "run.toml",
         &format!("[store]\npath = {store:?}\n{DB}token_env = \"LL_TEST_DB_TOKEN\"\n"),
     );
-    let o = bin(&[]).args(["run", "--config", runnable.to_str().unwrap()]).output().unwrap();
+    let mut run = bin(&[]);
+    run.args(["run", "--config", runnable.to_str().unwrap()]);
+    let o = common::output_within_budget(run, "run with an unset token variable (it must refuse)");
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(!o.status.success(), "{err}");
     assert!(err.contains("LL_TEST_DB_TOKEN") && err.contains("not set"), "{err}");

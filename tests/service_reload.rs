@@ -161,7 +161,9 @@ fn run_refuses_a_plant_without_components_unless_allowed() {
         format!("[store]\npath = {:?}\n[http]\nlisten = \"127.0.0.1:{http_port}\"\n[mqtt]\nport = 9\n", store),
     )
     .unwrap();
-    let out = Command::new(workspace_bin()).args(["run", "--config", cfg.to_str().unwrap()]).output().unwrap();
+    let mut run = Command::new(workspace_bin());
+    run.args(["run", "--config", cfg.to_str().unwrap()]);
+    let out = common::output_within_budget(run, "run on a plant without components (it must refuse)");
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(!out.status.success(), "run must refuse an empty plant: {err}");
     assert!(err.contains("no [[component]] is configured") && err.contains("allow_retiring_most"), "{err}");

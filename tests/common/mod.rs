@@ -14,6 +14,8 @@
 //! * [`http`]: a tiny blocking HTTP/1.1 client over `std::net::TcpStream`,
 //!   so the harness needs no HTTP crate.
 //! * [`workspace_bin`]: path of the built `lifeledger` binary.
+//! * [`output_within_budget`]: a command's output, failing the test if it
+//!   does not exit (for commands that must refuse rather than run on).
 //! * [`service`]: the live service under test, `lifeledger run` as a child
 //!   process, with its configuration, sample streams and a QoS 1 publisher.
 //!
@@ -67,4 +69,41 @@ pub fn poll_until<T>(what: &str, mut probe: impl FnMut() -> Option<T>) -> T {
 /// this module is compiled as part of each of them, so `env!` works here.
 pub fn workspace_bin() -> PathBuf {
     PathBuf::from(env!("CARGO_BIN_EXE_lifeledger"))
+}
+
+/// Runs `cmd` to its exit and returns its output; if it has not exited
+/// within the polling budget, kills it and fails the test naming `what`.
+/// For commands that must refuse at once (`lifeledger run` on a bad
+/// configuration), which would otherwise run, and hang the test, forever.
+/// Output goes through files, so a chatty child never blocks on a pipe.
+pub fn output_within_budget(mut cmd: std::process::Command, what: &str) -> std::process::Output {
+    let dir = tempfile::tempdir().expect("a temporary directory for the output");
+    let (out_path, err_path) = (dir.path().join("stdout"), dir.path().join("stderr"));
+    let mut child = cmd
+        .stdin(std::process::Stdio::null())
+        .stdout(std::fs::File::create(&out_path).unwrap())
+        .stderr(std::fs::File::create(&err_path).unwrap())
+        .spawn()
+        .unwrap_or_else(|e| panic!("cannot start {what}: {e}"));
+    let mut status = None;
+    for _ in 0..POLL_TRIES {
+        if let Some(s) = child.try_wait().unwrap() {
+            status = Some(s);
+            break;
+        }
+        std::thread::sleep(POLL_PAUSE);
+    }
+    let Some(status) = status else {
+        let _ = child.kill();
+        let _ = child.wait();
+        panic!(
+            "{what} did not exit within {POLL_TRIES} polls {POLL_PAUSE:?} apart; stderr:\n{}",
+            std::fs::read_to_string(&err_path).unwrap_or_default()
+        );
+    };
+    std::process::Output {
+        status,
+        stdout: std::fs::read(&out_path).unwrap_or_default(),
+        stderr: std::fs::read(&err_path).unwrap_or_default(),
+    }
 }
