@@ -107,6 +107,9 @@ fn digits(b: &[u8]) -> Option<i64> {
 /// numeric timestamps by magnitude.
 pub const EPOCH_MS_FROM: f64 = 1e11;
 
+/// Epoch milliseconds at or above this (the year 33658) are no time at all.
+pub const EPOCH_MS_BEYOND: f64 = 1e15;
+
 /// Parse an RFC 3339 timestamp or an epoch number (seconds, or
 /// milliseconds by magnitude: see [`EPOCH_MS_FROM`]) to milliseconds.
 pub fn parse_timestamp_ms(s: &str) -> Option<i64> {
@@ -169,7 +172,7 @@ pub fn parse_timestamp_ms(s: &str) -> Option<i64> {
         if v.is_finite() && v.abs() < EPOCH_MS_FROM {
             return Some((v * 1000.0).round() as i64);
         }
-        if v.is_finite() && v.abs() < 1e15 {
+        if v.is_finite() && v.abs() < EPOCH_MS_BEYOND {
             return Some(v.round() as i64);
         }
     }

@@ -150,10 +150,10 @@ fn numeric_time(x: f64, unit: TimestampUnit) -> Option<i64> {
     let ms = match unit {
         TimestampUnit::S => x * 1000.0,
         TimestampUnit::Ms => x,
-        TimestampUnit::Auto if x >= 1e11 => x,
+        TimestampUnit::Auto if x >= crate::replay::EPOCH_MS_FROM => x,
         TimestampUnit::Auto => x * 1000.0,
     };
-    (ms < 1e15).then(|| ms.round() as i64)
+    (ms < crate::replay::EPOCH_MS_BEYOND).then(|| ms.round() as i64)
 }
 
 /// Decode a payload received at `receive_ms`.
