@@ -250,8 +250,10 @@ pub fn projection(plan: &ComponentPlan, state: &ComponentState) -> Projection {
 #[derive(Debug, Clone, Default)]
 pub struct Scratch {
     memo: Option<(Point, Rates)>,
-    /// (piece length h, weight of the recent-rate update) of the last piece.
-    alpha: Option<(f64, f64)>,
+    /// (piece length h, weight of the recent-rate update, 1/h) of the last
+    /// piece: regular sampling repeats the length, so neither the weight's
+    /// exponential nor the reciprocal is recomputed.
+    alpha: Option<(f64, f64, f64)>,
     /// Hoop stress per MPa of gauge pressure (stress factor included) and
     /// whether the wall is at the formula floor, when the wall does not
     /// thin in service: every hoop formula is linear in pressure.
@@ -513,12 +515,12 @@ fn integrate_piece(
     if dt_h > 0.0 {
         // The normalised recent rates of physics::remaining::update_recent_rate;
         // the interval weight is computed once per piece length.
-        let alpha = match scratch.alpha {
-            Some((h, a)) if h == dt_h => a,
+        let (alpha, per_h) = match scratch.alpha {
+            Some((h, a, r)) if h == dt_h => (a, r),
             _ => {
-                let a = interval_weight(dt_h, tau_h);
-                scratch.alpha = Some((dt_h, a));
-                a
+                let (a, r) = (interval_weight(dt_h, tau_h), 1.0 / dt_h);
+                scratch.alpha = Some((dt_h, a, r));
+                (a, r)
             }
         };
         let w = next_weight(state.recent_weight, alpha);
@@ -526,7 +528,6 @@ fn integrate_piece(
         // piece's, whatever an old ledger held.
         let beta = alpha / w;
         state.recent_weight = w;
-        let per_h = 1.0 / dt_h;
         let upd = |recent: f64, rate: f64| recent + beta * (rate - recent);
         state.recent_life_fraction_rate_per_h = upd(state.recent_life_fraction_rate_per_h, d_life * per_h);
         state.recent_creep_strain_rate_per_h = upd(state.recent_creep_strain_rate_per_h, d_strain * per_h);
@@ -786,7 +787,7 @@ fn account_creep(state: &mut ComponentState, r: &Rates, w_h: f64) {
 /// on one stretch of the piece; when all hold alike at both ends they hold
 /// throughout, and the piece is booked whole (the common case of small
 /// steps inside one class).
-#[inline]
+#[inline(always)]
 fn account_line(
     eval: &RateEval,
     state: &mut ComponentState,

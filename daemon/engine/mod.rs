@@ -649,6 +649,7 @@ impl Engine {
     }
 
     /// Integrate one screened sample (value in internal units).
+    #[inline(always)]
     fn apply(&mut self, tag: TagId, t: i64, value: f64) {
         let tid = tag as usize;
         let policy = self.plan.gap_policy;
