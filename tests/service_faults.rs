@@ -14,7 +14,11 @@
 //!   ledger;
 //! * a batch the database refuses as malformed is parked in the ledger,
 //!   counted and reported, not dropped and not counted as delivered, and
-//!   the points behind it go on.
+//!   the points behind it go on;
+//! * a database that refuses the service itself (a wrong token: HTTP 401)
+//!   raises the service-health alarm and shows in the snapshot and
+//!   `/metrics`, keeps every point in the outbox, and clears when the
+//!   database takes the points again.
 
 mod common;
 
@@ -318,4 +322,56 @@ fn a_batch_the_database_refuses_is_parked_counted_and_kept() {
     assert_eq!(parked.len(), 1);
     assert_eq!(parked[0].0, huge, "the refused line is kept as it was");
     assert!(parked[0].2.contains("400"), "the database's answer is kept: {}", parked[0].2);
+}
+
+/// A database that refuses the service (VictoriaMetrics with basic
+/// authentication answers 401 to the token the InfluxDB v2 API carries)
+/// raises the `lifeledger:database` service-health alarm with the
+/// database's answer, shows in the snapshot and in `/metrics`, and loses
+/// nothing: the points stay in the outbox. With a database that takes the
+/// token again (restarted without authentication on the same port), the
+/// outbox drains and the alarm returns to normal.
+#[test]
+fn a_database_that_refuses_the_token_raises_the_service_health_alarm() {
+    let broker = Mosquitto::start();
+    let mut vm = VictoriaMetrics::start_with(&["-httpAuth.username=someone", "-httpAuth.password=else"]);
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, &database(&vm.url()));
+    let svc = Service::start(&cfg, http_port);
+    svc.wait_connected();
+    let s = samples(20);
+    publish_all(broker.port, &s, "faults-refused");
+    // The alarm record of the database, when there is one.
+    let record = |v: &serde_json::Value| -> Option<serde_json::Value> {
+        v["alarms"]
+            .as_array()?
+            .iter()
+            .find(|c| c["component"] == "lifeledger:database")
+            .and_then(|c| c["alarms"].as_array()?.first().cloned())
+    };
+    let snap = poll_until("the service-health alarm for the refusing database", || {
+        svc.snapshot().filter(|v| record(v).is_some_and(|r| r["condition"].is_string()))
+    });
+    let alarm = record(&snap).unwrap();
+    assert_eq!(alarm["index"], "service_health", "{alarm}");
+    assert!(alarm["detail"].as_str().unwrap_or("").contains("401"), "the database's answer is named: {alarm}");
+    assert!(snap["database_refusal"].as_str().is_some_and(|r| r.contains("401")), "{snap}");
+    assert!(snap["outbox_lines"].as_u64().unwrap_or(0) > 0, "points stay in the outbox: {snap}");
+    let metrics = http::get(http_port, "/metrics").unwrap().text();
+    assert_eq!(metric(&metrics, "lifeledger_database_refusing"), Some(1.0), "{metrics}");
+    // The database takes the token again: the outbox drains, the alarm clears.
+    vm.stop();
+    vm.restart_without_flags();
+    let snap = poll_until("the outbox to drain and the database alarm to clear", || {
+        svc.snapshot().filter(|v| {
+            v["outbox_lines"] == 0
+                && v["database_refusal"].is_null()
+                && record(v).is_some_and(|r| r["condition"].is_null())
+        })
+    });
+    assert_eq!(snap["database_reachable"], true, "{snap}");
+    let metrics = http::get(http_port, "/metrics").unwrap().text();
+    assert_eq!(metric(&metrics, "lifeledger_database_refusing"), Some(0.0), "{metrics}");
+    assert!(svc.sigterm().success());
 }

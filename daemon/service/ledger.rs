@@ -159,7 +159,9 @@ pub struct Ledger {
     /// token); `None`: every MQTT command is refused.
     command_token: Option<String>,
     /// The outbox sender's view of the database (`None`: no sender).
-    database_reachable: Option<watch::Receiver<Option<bool>>>,
+    database_link: Option<watch::Receiver<super::outbox::DatabaseLink>>,
+    /// The database refused the service at the last look (alarm raised).
+    database_refused: bool,
     /// HTTP commands carried out but not yet committed: the component
     /// addressed and where the outcome goes once the commit succeeded.
     command_replies: Vec<(String, tokio::sync::oneshot::Sender<CommandOutcome>)>,
@@ -183,6 +185,9 @@ const THRESHOLD_REFRESH_MS: i64 = 3_600_000;
 
 /// The plant-level alarm raised when no tag delivers data.
 pub const PLANT_DATA_ALARM: &str = "lifeledger:plant-data";
+
+/// The service-health alarm of a database that refuses the service.
+pub const DATABASE_ALARM: &str = "lifeledger:database";
 
 /// Alarm events kept in memory for the snapshot (`recent_events`).
 const RECENT_EVENTS: usize = 200;
@@ -384,7 +389,8 @@ impl Ledger {
                 refused: None,
             },
             command_token: None,
-            database_reachable: None,
+            database_link: None,
+            database_refused: false,
             command_replies: vec![],
             service,
         };
@@ -403,8 +409,8 @@ impl Ledger {
 
     /// Where the outbox sender says whether the database took its last
     /// write; shown as `database_reachable` in the snapshot.
-    pub fn set_database_reachability(&mut self, reachable: watch::Receiver<Option<bool>>) {
-        self.database_reachable = Some(reachable);
+    pub fn set_database_reachability(&mut self, link: watch::Receiver<super::outbox::DatabaseLink>) {
+        self.database_link = Some(link);
     }
 
     fn queue_thresholds(&mut self, t: i64) {
@@ -553,6 +559,7 @@ impl Ledger {
         // Silence is judged by the wall clock, so a dead feed alarms even
         // though no batch arrives to trigger a commit.
         self.sensor_check();
+        self.database_check();
         // Commit what the releases and the checks produced before the
         // snapshot is published, so it never shows a point not yet queued.
         if !self.events.is_empty() || !self.extra_outbox.is_empty() || !self.trend_points.is_empty() {
@@ -787,6 +794,40 @@ impl Ledger {
     /// tag is more than the tag's hold time ahead of its own newest sample.
     /// No accepted sample from any tag for `[alarms] no_data_alarm_s`
     /// raises the plant-level service-health alarm.
+    /// Raises the `lifeledger:database` service-health alarm while the
+    /// database refuses the service (a wrong token, organisation or
+    /// bucket), and returns it to normal once it takes points again.
+    fn database_check(&mut self) {
+        let Some(link) = &self.database_link else { return };
+        let refusal = link.borrow().refusal.clone();
+        if refusal.is_some() == self.database_refused {
+            return;
+        }
+        self.database_refused = refusal.is_some();
+        let detail = match &refusal {
+            Some(r) => {
+                tracing::error!(
+                    "the database refuses the service ({r}); points stay in the outbox: check [database] token, org and bucket"
+                );
+                format!("database refuses the service's writes: {r}; points are kept in the outbox")
+            }
+            None => {
+                tracing::info!("the database takes the service's writes again");
+                "database takes the service's writes again".to_string()
+            }
+        };
+        let t = self.newest_ms.unwrap_or_else(now_ms);
+        let ev = self.book.evaluate_condition(
+            DATABASE_ALARM,
+            "",
+            AlarmIndex::ServiceHealth,
+            self.database_refused,
+            &detail,
+            t,
+        );
+        self.note_events(ev);
+    }
+
     fn sensor_check(&mut self) {
         // At most every 500 ms of wall time: it visits every component.
         if self.last_sensor_check.elapsed() < Duration::from_millis(500) {
@@ -955,6 +996,7 @@ impl Ledger {
             }
         }
         self.sensor_check();
+        self.database_check();
         let tags: Vec<(String, String)> = self
             .dirty_tags
             .iter()
@@ -1313,7 +1355,12 @@ impl Ledger {
             .zip(self.engine.components())
             .map(|(p, s)| ComponentReport::new(p, s))
             .collect();
-        let alarms = self.engine.plan().components.iter().map(|c| self.book.current(&c.name)).collect();
+        let mut alarms: Vec<_> = self.engine.plan().components.iter().map(|c| self.book.current(&c.name)).collect();
+        // The service's own alarms (service health, plant data, database)
+        // after the components', so every standing alarm is in the snapshot.
+        let service: BTreeSet<&str> =
+            self.book.records().map(|r| r.component.as_str()).filter(|c| c.starts_with("lifeledger")).collect();
+        alarms.extend(service.into_iter().map(|c| self.book.current(c)));
         let snap = Snapshot {
             plant: self.cfg.plan.plant.clone(),
             started: self.started.clone(),
@@ -1326,7 +1373,8 @@ impl Ledger {
             holding: self.holding,
             commit_failing: self.commit_error.clone(),
             database_configured: self.service.database.is_some(),
-            database_reachable: self.database_reachable.as_ref().and_then(|r| *r.borrow()),
+            database_reachable: self.database_link.as_ref().and_then(|r| r.borrow().reachable),
+            database_refusal: self.database_link.as_ref().and_then(|r| r.borrow().refusal.clone()),
             engine: self.engine.counters().clone(),
             service: self.counters.clone(),
             components,

@@ -123,7 +123,7 @@ pub async fn run_until_with(
         .with_context(|| format!("opening the ledger {}", svc.store.path.display()))?;
     ledger.set_command_token(token.clone());
     // Whether the database took the outbox sender's last write.
-    let (reach_tx, reach_rx) = watch::channel(None);
+    let (reach_tx, reach_rx) = watch::channel(outbox::DatabaseLink::default());
     if svc.database.is_some() {
         ledger.set_database_reachability(reach_rx);
     }

@@ -18,11 +18,29 @@ use std::path::PathBuf;
 use std::time::Duration;
 use tokio::sync::{broadcast, watch};
 
+/// What the outbox sender last learned of the database, for the ledger
+/// thread (snapshot, `/metrics`, the service-health alarm).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct DatabaseLink {
+    /// Whether the last write got an answer (`None` before the first).
+    pub reachable: Option<bool>,
+    /// While the database refuses the service itself (HTTP 401, 403, 404,
+    /// 413: a wrong token, organisation or bucket): its answer. The points
+    /// stay in the outbox and are retried; cleared by the next write it takes.
+    pub refusal: Option<String>,
+}
+
+impl DatabaseLink {
+    fn took() -> DatabaseLink {
+        DatabaseLink { reachable: Some(true), refusal: None }
+    }
+}
+
 /// Run until shutdown; on shutdown, one last pass with a short deadline.
 pub async fn run_sender(
     settings: DatabaseSettings,
     ledger_path: PathBuf,
-    reachable: watch::Sender<Option<bool>>,
+    reachable: watch::Sender<DatabaseLink>,
     mut shutdown: broadcast::Receiver<()>,
 ) {
     let writer = match Writer::new(&settings) {
@@ -67,7 +85,7 @@ pub async fn run_sender(
         match writer.write_lines(&lines).await {
             Ok(()) => {
                 backoff.reset();
-                let _ = reachable.send(Some(true));
+                reachable.send_if_modified(|l| replace(l, DatabaseLink::took()));
                 if let Err(e) = tokio::task::block_in_place(|| store.outbox_remove_through(last_id)) {
                     tracing::error!("outbox cleanup failed (points will be written again): {e}");
                 }
@@ -77,7 +95,7 @@ pub async fn run_sender(
                 // would block everything behind them. Park them (kept in
                 // the ledger, counted, never counted as delivered), say so
                 // loudly, and move on.
-                let _ = reachable.send(Some(true));
+                reachable.send_if_modified(|l| replace(l, DatabaseLink::took()));
                 let reason = e.to_string();
                 match tokio::task::block_in_place(|| store.outbox_park_through(last_id, &reason)) {
                     Ok(n) => tracing::error!(
@@ -97,7 +115,13 @@ pub async fn run_sender(
                 }
             }
             Err(e) => {
-                let _ = reachable.send(Some(false));
+                // Unreachable, or reachable but refusing the service itself.
+                let link = if e.is_retryable() {
+                    DatabaseLink { reachable: Some(false), refusal: reachable.borrow().refusal.clone() }
+                } else {
+                    DatabaseLink { reachable: Some(true), refusal: Some(e.to_string()) }
+                };
+                reachable.send_if_modified(|l| replace(l, link));
                 if stopping {
                     tracing::warn!(
                         "database unreachable at shutdown; {} points stay in the outbox for the next start: {e}",
@@ -113,5 +137,15 @@ pub async fn run_sender(
                 }
             }
         }
+    }
+}
+
+/// Sets `*slot` to `new`; whether it changed (for `send_if_modified`).
+fn replace(slot: &mut DatabaseLink, new: DatabaseLink) -> bool {
+    if *slot == new {
+        false
+    } else {
+        *slot = new;
+        true
     }
 }

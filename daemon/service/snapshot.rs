@@ -53,6 +53,10 @@ pub struct Snapshot {
     pub commit_failing: Option<String>,
     pub database_configured: bool,
     pub database_reachable: Option<bool>,
+    /// While the database refuses the service (wrong token, organisation
+    /// or bucket): its answer; the `lifeledger:database` service-health
+    /// alarm is active meanwhile.
+    pub database_refusal: Option<String>,
     pub engine: Counters,
     pub service: ServiceCounters,
     pub components: Vec<ComponentReport>,
@@ -281,6 +285,16 @@ pub fn metrics_text(s: &Snapshot) -> String {
         "1 when the last write to the database succeeded, 0 when it failed (absent: no database, or no write yet).",
         "gauge",
         s.database_reachable.map(|r| (String::new(), r as u8 as f64)).into_iter().collect(),
+    );
+    metric(
+        "lifeledger_database_refusing",
+        "1 while the database refuses the service's writes (wrong token, organisation or bucket; points stay in the outbox), else 0 (absent: no database).",
+        "gauge",
+        if s.database_configured {
+            vec![(String::new(), s.database_refusal.is_some() as u8 as f64)]
+        } else {
+            vec![]
+        },
     );
     metric(
         "lifeledger_mqtt_connected",

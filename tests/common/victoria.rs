@@ -74,15 +74,25 @@ pub struct VictoriaMetrics {
     dir: TempDir,
     log: PathBuf,
     child: Option<Child>,
+    /// Flags beyond the defaults, kept for [`VictoriaMetrics::start_again`].
+    extra: Vec<String>,
 }
 
 impl VictoriaMetrics {
     /// Starts a server on a free port with an empty data directory and
     /// waits until `/health` answers `OK`.
     pub fn start() -> VictoriaMetrics {
+        VictoriaMetrics::start_with(&[])
+    }
+
+    /// [`VictoriaMetrics::start`] with more command-line flags, e.g.
+    /// `-httpAuth.username=...` for a server that refuses every write
+    /// carrying a token (HTTP 401) while `/health` still answers.
+    pub fn start_with(extra: &[&str]) -> VictoriaMetrics {
         let dir = tempfile::tempdir().expect("temp dir for victoria-metrics");
         let log = dir.path().join("victoria-metrics.log");
-        let mut vm = VictoriaMetrics { port: free_port(), dir, log, child: None };
+        let extra = extra.iter().map(|s| s.to_string()).collect();
+        let mut vm = VictoriaMetrics { port: free_port(), dir, log, child: None, extra };
         vm.spawn();
         vm
     }
@@ -106,6 +116,13 @@ impl VictoriaMetrics {
     pub fn start_again(&mut self) {
         assert!(self.child.is_none(), "victoria-metrics is still running");
         self.spawn();
+    }
+
+    /// Starts the server again like [`VictoriaMetrics::start_again`], but
+    /// without the extra flags it was started with.
+    pub fn restart_without_flags(&mut self) {
+        self.extra.clear();
+        self.start_again();
     }
 
     /// Whether the server process is running.
@@ -154,7 +171,7 @@ impl VictoriaMetrics {
     }
 
     fn spawn(&mut self) {
-        let args = vec![
+        let mut args = vec![
             format!("-httpListenAddr=127.0.0.1:{}", self.port),
             format!("-storageDataPath={}", self.dir.path().join("data").display()),
             "-retentionPeriod=100y".to_string(),
@@ -165,6 +182,7 @@ impl VictoriaMetrics {
             // overwrites itself, as it does in InfluxDB.
             "-dedup.minScrapeInterval=1ms".to_string(),
         ];
+        args.extend(self.extra.iter().cloned());
         let mut child = spawn(VICTORIA_METRICS, &args, &self.log);
         let port = self.port;
         let what = format!("victoria-metrics on 127.0.0.1:{port}");
