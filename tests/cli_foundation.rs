@@ -3,6 +3,8 @@
 
 mod common;
 
+use common::BoundedOutput;
+
 use std::process::Command;
 
 fn bin() -> Command {
@@ -10,7 +12,7 @@ fn bin() -> Command {
 }
 
 fn run(args: &[&str]) -> (i32, String, String) {
-    let o = bin().args(args).output().unwrap();
+    let o = bin().args(args).bounded_output().unwrap();
     (
         o.status.code().unwrap_or(-1),
         String::from_utf8_lossy(&o.stdout).into(),
@@ -291,7 +293,7 @@ fn environment_overrides_apply() {
     let o = bin()
         .args(["replay", "--config", "config/demo/plant.toml", "--input", csv.to_str().unwrap(), "--format", "json"])
         .env("LIFELEDGER__PLANT__NAME", "Override Works")
-        .output()
+        .bounded_output()
         .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();

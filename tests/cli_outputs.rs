@@ -4,6 +4,9 @@
 //! stress named by where it comes from, and a warning wherever a tag runs on
 //! the default plausibility range.
 
+mod common;
+
+use common::BoundedOutput;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
@@ -12,7 +15,7 @@ fn bin() -> Command {
 }
 
 fn run(args: &[&str]) -> (i32, String, String) {
-    let o = bin().args(args).output().unwrap();
+    let o = bin().args(args).bounded_output().unwrap();
     (
         o.status.code().unwrap_or(-1),
         String::from_utf8_lossy(&o.stdout).into(),

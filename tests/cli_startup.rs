@@ -8,6 +8,8 @@
 
 mod common;
 
+use common::BoundedOutput;
+
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
@@ -22,7 +24,7 @@ fn bin(env: &[(&str, &str)]) -> Command {
 
 /// check-config on `file` with `env`: (exit code, stdout and stderr).
 fn check(file: &Path, env: &[(&str, &str)]) -> (i32, String) {
-    let o = bin(env).args(["check-config", file.to_str().unwrap()]).output().unwrap();
+    let o = bin(env).args(["check-config", file.to_str().unwrap()]).bounded_output().unwrap();
     let text = format!("{}{}", String::from_utf8_lossy(&o.stdout), String::from_utf8_lossy(&o.stderr));
     (o.status.code().unwrap_or(-1), text)
 }
@@ -44,7 +46,7 @@ fn openssl_ca(dir: &Path) -> (PathBuf, PathBuf) {
         .arg(&key)
         .arg("-out")
         .arg(&cert)
-        .output()
+        .bounded_output()
         .expect("the openssl command runs");
     assert!(out.status.success(), "openssl: {}", String::from_utf8_lossy(&out.stderr));
     (cert, key)

@@ -16,6 +16,8 @@
 
 mod common;
 
+use common::BoundedOutput;
+
 use common::http::{self, encode};
 use common::VictoriaMetrics;
 use lifeledger::alarm::{AlarmEvent, AlarmIndex, AlarmState, Severity, Transition};
@@ -207,7 +209,7 @@ fn demo_lp() -> &'static str {
                 "--write-lp",
             ])
             .arg(&lp)
-            .output()
+            .bounded_output()
             .expect("run lifeledger replay");
         assert!(
             out.status.success(),
@@ -567,7 +569,7 @@ fn prometheus_dashboards_answer_after_a_short_demo_run() {
         })
     });
     std::process::Command::new("kill").args(["-TERM", &child.id().to_string()]).status().unwrap();
-    let status = child.wait().unwrap();
+    let status = common::poll_until("the demo to stop after SIGTERM", || child.try_wait().unwrap());
     assert!(status.success(), "the demo stops cleanly on SIGTERM");
     vm.flush();
     let ts: Vec<i64> = vm
@@ -883,7 +885,7 @@ fn production_config_passes_check_config() {
         .current_dir(repo())
         .args(["check-config", "--file-only", PRODUCTION])
         .env_remove("LIFELEDGER_DB_TOKEN")
-        .output()
+        .bounded_output()
         .expect("run lifeledger check-config");
     assert!(
         out.status.success(),
@@ -898,7 +900,7 @@ fn production_config_passes_check_config() {
         .args(["check-config", PRODUCTION])
         .env_remove("LIFELEDGER_DB_TOKEN")
         .env_remove("LIFELEDGER_MQTT_PASSWORD")
-        .output()
+        .bounded_output()
         .expect("run lifeledger check-config");
     let err = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(1), "{err}");

@@ -3,6 +3,9 @@
 //! of the clean history, and a row in epoch milliseconds is read as
 //! milliseconds (the reproduction of a poisoned outlet leg).
 
+mod common;
+
+use common::BoundedOutput;
 use std::io::{Read, Write};
 use std::process::Command;
 
@@ -10,7 +13,7 @@ fn replay_json(input: &std::path::Path) -> serde_json::Value {
     let o = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
         .args(["replay", "--config", "config/demo/plant.toml", "--format", "json", "--input"])
         .arg(input)
-        .output()
+        .bounded_output()
         .expect("lifeledger replay runs");
     assert!(o.status.success(), "replay failed: {}", String::from_utf8_lossy(&o.stderr));
     serde_json::from_slice(&o.stdout).expect("replay prints JSON")

@@ -22,6 +22,8 @@
 
 mod common;
 
+use common::BoundedOutput;
+
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
@@ -52,7 +54,7 @@ fn bin() -> Command {
 /// Runs the command line with `args` (and `env` for the child only):
 /// (exit code, stdout, stderr).
 fn run_env(args: &[&str], env: &[(&str, &str)]) -> (i32, String, String) {
-    let o = bin().args(args).envs(env.iter().copied()).output().unwrap();
+    let o = bin().args(args).envs(env.iter().copied()).bounded_output().unwrap();
     (
         o.status.code().unwrap_or(-1),
         String::from_utf8_lossy(&o.stdout).into(),

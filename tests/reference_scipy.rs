@@ -3,6 +3,9 @@
 //! Robinson damage rate and the Norton strain rate over a temperature ramp,
 //! compared with the engine's ledger for the same samples.
 
+mod common;
+
+use common::BoundedOutput;
 use lifeledger::engine::{Engine, Quality, Sample};
 use lifeledger::settings::validate::plan_settings;
 use std::process::Command;
@@ -83,7 +86,7 @@ print(json.dumps({{"life_fraction": d, "creep_strain": s}}))
     let out = Command::new("python3")
         .arg("-c")
         .arg(&script)
-        .output()
+        .bounded_output()
         .expect("python3 is needed for this reference test (tests/run installs numpy and scipy)");
     assert!(out.status.success(), "python failed: {}", String::from_utf8_lossy(&out.stderr));
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();

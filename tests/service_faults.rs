@@ -22,6 +22,8 @@
 
 mod common;
 
+use common::BoundedOutput;
+
 use common::service::{publish_all, publish_messages, samples, Service, ServiceConfig};
 use common::{free_port, http, poll_until, Mosquitto, VictoriaMetrics};
 use std::path::{Path, PathBuf};
@@ -48,7 +50,7 @@ fn sqlite3(db: &Path, args: &[&str]) -> String {
         .args(["-cmd", ".timeout 10000"])
         .arg(db)
         .args(args)
-        .output()
+        .bounded_output()
         .unwrap_or_else(|e| panic!("cannot run sqlite3 (is it installed? see tests/run): {e}"));
     assert!(
         o.status.success(),

@@ -13,6 +13,8 @@
 
 mod common;
 
+use common::BoundedOutput;
+
 use common::service::{publish_all, publish_messages, samples, Sample, Service, ServiceConfig};
 use common::{free_port, http, poll_until, Mosquitto, VictoriaMetrics};
 use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
@@ -81,7 +83,7 @@ fn csv(dir: &Path, s: &[Sample]) -> PathBuf {
 fn replay_json(config: &Path, csv: &Path) -> serde_json::Value {
     let o = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
         .args(["replay", "--config", config.to_str().unwrap(), "--input", csv.to_str().unwrap(), "--format", "json"])
-        .output()
+        .bounded_output()
         .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     serde_json::from_slice(&o.stdout).unwrap()
@@ -167,7 +169,7 @@ fn live_and_replay_give_identical_ledgers() {
 fn ledger_json(config: &Path) -> serde_json::Value {
     let o = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
         .args(["ledger", "--config", config.to_str().unwrap(), "--format", "json"])
-        .output()
+        .bounded_output()
         .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     serde_json::from_slice(&o.stdout).unwrap()
@@ -745,7 +747,7 @@ fn series_points_follow_event_time_not_commits() {
         .arg(csv(dir.path(), &s))
         .arg("--write-lp")
         .arg(&lp)
-        .output()
+        .bounded_output()
         .unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let replayed: Vec<i64> = std::fs::read_to_string(&lp)
@@ -860,7 +862,7 @@ fn resend_restores_lost_points_from_the_ledger_idempotently() {
     for _ in 0..2 {
         let o = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
             .args(["resend", "--config", cfg.to_str().unwrap(), "--all", "--from", &rfc(from_ms), "--to", &rfc(to_ms)])
-            .output()
+            .bounded_output()
             .unwrap();
         assert!(o.status.success(), "resend failed: {}", String::from_utf8_lossy(&o.stderr));
     }

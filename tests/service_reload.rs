@@ -11,6 +11,8 @@
 
 mod common;
 
+use common::BoundedOutput;
+
 use common::service::{publish_all, publish_messages, samples, Service, ServiceConfig};
 use common::{free_port, http, poll_until, workspace_bin, Mosquitto};
 use std::path::{Path, PathBuf};
@@ -169,14 +171,14 @@ fn run_refuses_a_plant_without_components_unless_allowed() {
     assert!(err.contains("no [[component]] is configured") && err.contains("allow_retiring_most"), "{err}");
     assert!(!store.exists(), "no ledger is created for a refused configuration");
     // check-config, the unit's pre-start check, refuses it the same way.
-    let out = Command::new(workspace_bin()).args(["check-config", cfg.to_str().unwrap()]).output().unwrap();
+    let out = Command::new(workspace_bin()).args(["check-config", cfg.to_str().unwrap()]).bounded_output().unwrap();
     let text = format!("{}{}", String::from_utf8_lossy(&out.stdout), String::from_utf8_lossy(&out.stderr));
     assert_eq!(out.status.code(), Some(1), "{text}");
     assert!(text.contains("no [[component]] is configured"), "{text}");
     // Allowed: check-config passes with a warning.
     std::fs::write(&cfg, format!("[plant]\nallow_retiring_most = true\n{}", std::fs::read_to_string(&cfg).unwrap()))
         .unwrap();
-    let out = Command::new(workspace_bin()).args(["check-config", cfg.to_str().unwrap()]).output().unwrap();
+    let out = Command::new(workspace_bin()).args(["check-config", cfg.to_str().unwrap()]).bounded_output().unwrap();
     let text = String::from_utf8_lossy(&out.stdout);
     assert_eq!(out.status.code(), Some(0), "{text}");
     assert!(text.contains("warning: no [[component]] is configured"), "{text}");

@@ -5,10 +5,12 @@
 //! the material sources and the caution; screenshots are kept under
 //! `target/test-artifacts/` for people to look at.
 //!
-//! Chromium (Debian packages `chromium` and `chromium-driver`) is installed
+//! Chromium (Debian package `chromium`) is installed
 //! by `tests/run`; without it these tests fail and say so.
 
 mod common;
+
+use common::BoundedOutput;
 
 use common::service::{publish_all, samples_with_header, Service, ServiceConfig};
 use common::{free_port, Mosquitto};
@@ -22,7 +24,7 @@ fn chromium() -> &'static str {
     if !Path::new(CHROMIUM).exists() {
         panic!(
             "headless Chromium not found at {CHROMIUM}: the status-page tests need the Debian packages \
-             `chromium` and `chromium-driver`; run tests/run, which installs them"
+             `chromium`; run tests/run, which installs it"
         );
     }
     CHROMIUM
@@ -89,7 +91,7 @@ fn chromium_run(url: &str, extra: &[&str]) -> String {
     args.push(format!("--user-data-dir={}", profile.path().display()));
     args.extend(extra.iter().map(|s| s.to_string()));
     args.push(url.to_string());
-    let out = Command::new(chromium()).args(&args).stdin(Stdio::null()).output().expect("run chromium");
+    let out = Command::new(chromium()).args(&args).stdin(Stdio::null()).bounded_output().expect("run chromium");
     assert!(
         out.status.success(),
         "chromium {args:?} failed ({}):\n{}",

@@ -180,7 +180,19 @@ fn a_killed_writer_leaves_state_and_outbox_from_the_same_commit() {
             .stderr(Stdio::inherit())
             .spawn()
             .unwrap();
-        let mut lines = BufReader::new(child.stdout.take().unwrap()).lines();
+        // Lines are read on a thread of their own, so a writer that hangs
+        // without printing fails the test (bounded wait) instead of
+        // blocking it forever.
+        let (tx, rx) = std::sync::mpsc::channel();
+        let stdout = child.stdout.take().unwrap();
+        let reader = std::thread::spawn(move || {
+            for line in BufReader::new(stdout).lines() {
+                if tx.send(line).is_err() {
+                    break;
+                }
+            }
+        });
+        let mut lines = LinesWithin { rx, round };
         let mut reported = None;
         let mut started = None;
         // Kill at a different depth each round.
@@ -201,8 +213,9 @@ fn a_killed_writer_leaves_state_and_outbox_from_the_same_commit() {
         }
         child.kill().unwrap();
         child.wait().unwrap();
+        reader.join().unwrap();
         // Whatever the writer printed before it died was committed too.
-        for line in lines {
+        for line in lines.rx.try_iter() {
             let line = line.unwrap();
             let report = line.split_once(MARK).map_or("", |(_, r)| r);
             if let Some(k) = report.strip_prefix("committed ") {
@@ -223,5 +236,30 @@ fn a_killed_writer_leaves_state_and_outbox_from_the_same_commit() {
         assert!(ledger.n <= reported + 1, "round {round}: the ledger ends at {} after report {reported}", ledger.n);
         assert!(ledger.removed >= previous.removed, "round {round}: removed lines came back");
         previous = ledger;
+    }
+}
+
+/// The writer's lines as they come, each waited for at most
+/// [`LINE_WAIT`]: a writer that stops printing fails the round with a
+/// message rather than hanging the test.
+struct LinesWithin {
+    rx: std::sync::mpsc::Receiver<std::io::Result<String>>,
+    round: u64,
+}
+
+/// Longest wait for the writer's next line (it prints one per commit).
+const LINE_WAIT: std::time::Duration = std::time::Duration::from_secs(120);
+
+impl Iterator for LinesWithin {
+    type Item = std::io::Result<String>;
+
+    fn next(&mut self) -> Option<Self::Item> {
+        match self.rx.recv_timeout(LINE_WAIT) {
+            Ok(l) => Some(l),
+            Err(std::sync::mpsc::RecvTimeoutError::Disconnected) => None,
+            Err(std::sync::mpsc::RecvTimeoutError::Timeout) => {
+                panic!("round {}: the writer printed nothing for {LINE_WAIT:?}", self.round)
+            }
+        }
     }
 }

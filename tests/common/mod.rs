@@ -77,6 +77,26 @@ pub fn workspace_bin() -> PathBuf {
 /// configuration), which would otherwise run, and hang the test, forever.
 /// Output goes through files, so a chatty child never blocks on a pipe.
 pub fn output_within_budget(mut cmd: std::process::Command, what: &str) -> std::process::Output {
+    run_within_budget(&mut cmd, what)
+}
+
+/// `Command::output` bounded by the polling budget: a child that does not
+/// exit (a hung browser, a command that started serving instead of
+/// exiting) is killed and the test fails naming the command, instead of
+/// the suite hanging.
+pub trait BoundedOutput {
+    /// Like `Command::output`, bounded (see [`output_within_budget`]).
+    fn bounded_output(&mut self) -> std::io::Result<std::process::Output>;
+}
+
+impl BoundedOutput for std::process::Command {
+    fn bounded_output(&mut self) -> std::io::Result<std::process::Output> {
+        let what = format!("{:?}", self);
+        Ok(run_within_budget(self, &what))
+    }
+}
+
+fn run_within_budget(cmd: &mut std::process::Command, what: &str) -> std::process::Output {
     let dir = tempfile::tempdir().expect("a temporary directory for the output");
     let (out_path, err_path) = (dir.path().join("stdout"), dir.path().join("stderr"));
     let mut child = cmd

@@ -208,22 +208,39 @@ pub fn publish_messages(port: u16, messages: Vec<(impl Into<String>, Vec<u8>)>, 
         }
         client
     });
-    let mut acked = 0;
-    for ev in conn.iter() {
-        match ev {
-            Ok(Event::Incoming(Packet::PubAck(_))) => {
+    // Bounded: a broker that stops answering fails the test after
+    // PUBLISH_IDLE_POLLS quiet polls in a row instead of hanging it.
+    let (mut acked, mut idle) = (0, 0);
+    while acked < n {
+        match conn.recv_timeout(PUBLISH_IDLE_WAIT) {
+            Ok(Ok(Event::Incoming(Packet::PubAck(_)))) => {
                 acked += 1;
-                if acked == n {
-                    break;
-                }
+                idle = 0;
             }
-            Ok(_) => {}
-            Err(e) => panic!("publisher connection failed: {e}"),
+            Ok(Ok(_)) => idle = 0,
+            Ok(Err(e)) => panic!("publisher connection failed: {e}"),
+            Err(rumqttc::RecvTimeoutError::Disconnected) => {
+                panic!("publisher connection closed after {acked} of {n} acknowledgements")
+            }
+            Err(rumqttc::RecvTimeoutError::Timeout) => {
+                idle += 1;
+                assert!(
+                    idle < PUBLISH_IDLE_POLLS,
+                    "the broker acknowledged {acked} of {n} messages, then nothing for {PUBLISH_IDLE_POLLS} waits of {PUBLISH_IDLE_WAIT:?}"
+                );
+            }
         }
     }
     let client = pubber.join().unwrap();
     let _ = client.disconnect();
 }
+
+/// Quiet waits of [`PUBLISH_IDLE_WAIT`] in a row before
+/// [`publish_messages`] gives up (about as long as [`poll_until`]'s budget).
+const PUBLISH_IDLE_POLLS: u32 = 60;
+
+/// One wait for the publisher's next event.
+const PUBLISH_IDLE_WAIT: Duration = Duration::from_secs(1);
 
 /// Numbers the log files of successive starts, so a restart keeps the log
 /// of the run before it.
@@ -323,8 +340,7 @@ impl Service {
     /// SIGTERM, the exit status once the service has stopped, and its log.
     pub fn sigterm_with_log(mut self) -> (ExitStatus, String) {
         self.signal("TERM");
-        let status = self.child.wait().unwrap();
-        (status, std::fs::read_to_string(&self.log).unwrap_or_default())
+        self.wait_exit("the service to stop after SIGTERM")
     }
 }
 
