@@ -300,6 +300,45 @@ fn environment_overrides_apply() {
     assert_eq!(v["plant"], "Override Works");
 }
 
+/// Environment overrides are text: a value that looks like a number or a
+/// boolean stays a string where the setting is a string (a plant or
+/// organisation named `12345`, a client id `007` keeps its zeros), and is
+/// read as a number where the setting is a number.
+#[test]
+fn environment_overrides_keep_strings_as_strings() {
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("h.csv");
+    std::fs::write(&csv, "2026-10-01T00:00:00Z,U2.SH3.TE-311A,1000\n").unwrap();
+    for name in ["12345", "007", "true", "1.5e3"] {
+        let o = bin()
+            .args([
+                "replay",
+                "--config",
+                "config/demo/plant.toml",
+                "--input",
+                csv.to_str().unwrap(),
+                "--format",
+                "json",
+            ])
+            .env("LIFELEDGER__PLANT__NAME", name)
+            .env("LIFELEDGER__ENGINE__MAX_HOLD_S", "900")
+            .bounded_output()
+            .unwrap();
+        assert!(o.status.success(), "plant name {name}: {}", String::from_utf8_lossy(&o.stderr));
+        let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+        assert_eq!(v["plant"], name, "the override is the plant's name as written");
+    }
+    // A number setting given text that is not a number is refused by name.
+    let o = bin()
+        .args(["replay", "--config", "config/demo/plant.toml", "--input", csv.to_str().unwrap(), "--format", "json"])
+        .env("LIFELEDGER__ENGINE__MAX_HOLD_S", "soon")
+        .bounded_output()
+        .unwrap();
+    assert!(!o.status.success());
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(err.contains("max_hold_s") || err.contains("LIFELEDGER__"), "{err}");
+}
+
 #[test]
 fn materials_show_prints_sources_and_caution() {
     let (code, out, _) = run(&["materials", "show", "t91"]);

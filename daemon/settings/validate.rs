@@ -101,8 +101,11 @@ pub fn read_settings_with(path: &Path, overrides: &Overrides) -> Result<Settings
     if let Err(e) = toml::from_str::<Settings>(&text) {
         return Err(fail(e.to_string().replace('\n', " "), "correct the TOML at the line shown"));
     }
+    // Overrides stay text (`try_parsing(false)`): a string setting keeps
+    // "007" or "12345" as written; number and boolean settings parse the
+    // text when the settings are deserialised.
     let env =
-        || config::Environment::with_prefix("LIFELEDGER").prefix_separator("__").separator("__").try_parsing(true);
+        || config::Environment::with_prefix("LIFELEDGER").prefix_separator("__").separator("__").try_parsing(false);
     let builder =
         config::Config::builder().add_source(config::File::from(PathBuf::from(path)).format(config::FileFormat::Toml));
     let builder = match overrides {
