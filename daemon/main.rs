@@ -323,7 +323,16 @@ enum MaterialsAction {
 
 fn init_logs(default: &str, json: bool) {
     let filter = tracing_subscriber::EnvFilter::try_from_default_env().unwrap_or_else(|_| default.into());
-    let b = tracing_subscriber::fmt().with_env_filter(filter).with_writer(std::io::stderr);
+    // Under systemd, standard error is the journal (JOURNAL_STREAM): each
+    // line starts with its priority, and no colour escapes are written
+    // where standard error is not a terminal.
+    use std::io::IsTerminal;
+    let journal = std::env::var_os("JOURNAL_STREAM").is_some();
+    let writer = lifeledger::service::systemd::JournalStderr { prefix: journal };
+    let b = tracing_subscriber::fmt()
+        .with_env_filter(filter)
+        .with_ansi(!journal && std::io::stderr().is_terminal())
+        .with_writer(writer);
     if json {
         b.json().init();
     } else {

@@ -1054,8 +1054,20 @@ fn systemd_unit_is_hardened() {
         "ExecReload=/bin/kill -HUP $MAINPID",
         "KillSignal=SIGTERM",
         "CapabilityBoundingSet=",
+        // Readiness and the watchdog (sd_notify; see daemon/service/systemd.rs).
+        "Type=notify",
+        "NotifyAccess=main",
     ] {
         assert!(lines.contains(want), "deploy/lifeledger.service lacks {want}");
+    }
+    assert!(lines.iter().any(|l| l.starts_with("WatchdogSec=")), "deploy/lifeledger.service lacks WatchdogSec=");
+    // Every Documentation= file is one the documented install steps put there.
+    let guide = std::fs::read_to_string(repo().join("deploy/README.md")).unwrap();
+    for doc in lines.iter().filter_map(|l| l.strip_prefix("Documentation=file://")) {
+        assert!(
+            guide.lines().any(|g| g.contains("install") && g.trim_end().ends_with(doc)),
+            "deploy/README.md's install steps do not install {doc}, which the unit's Documentation= names"
+        );
     }
     for prefix in ["User=", "RestartSec=", "TimeoutStopSec=", "MemoryMax=", "EnvironmentFile=", "ExecStart="] {
         assert!(lines.iter().any(|l| l.starts_with(prefix)), "deploy/lifeledger.service lacks {prefix}");

@@ -18,7 +18,10 @@
 //! * a database that refuses the service itself (a wrong token: HTTP 401)
 //!   raises the service-health alarm and shows in the snapshot and
 //!   `/metrics`, keeps every point in the outbox, and clears when the
-//!   database takes the points again.
+//!   database takes the points again;
+//! * under systemd (`Type=notify`), readiness is sent once intake runs and
+//!   the watchdog is fed only while the ledger commits; each log line
+//!   carries its journald priority.
 
 mod common;
 
@@ -376,4 +379,79 @@ fn a_database_that_refuses_the_token_raises_the_service_health_alarm() {
     let metrics = http::get(http_port, "/metrics").unwrap().text();
     assert_eq!(metric(&metrics, "lifeledger_database_refusing"), Some(0.0), "{metrics}");
     assert!(svc.sigterm().success());
+}
+
+/// The service under systemd's side channel: `READY=1` once intake runs,
+/// `WATCHDOG=1` pings at half the `WATCHDOG_USEC` interval while commits
+/// succeed and none while they fail (systemd then restarts a wedged
+/// service); with `JOURNAL_STREAM` set, every log line starts with its
+/// `sd-daemon(3)` priority (`<6>` info, `<4>` warning, `<3>` error), so
+/// `journalctl -p warning` finds the warnings. The variables are given to
+/// the child process only.
+#[test]
+fn under_systemd_readiness_watchdog_and_log_priorities_tell_the_truth() {
+    use std::os::unix::net::UnixDatagram;
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let http_port = free_port();
+    let cfg = config(dir.path(), broker.port, http_port, "");
+    let sock_path = dir.path().join("notify.sock");
+    let sock = UnixDatagram::bind(&sock_path).unwrap();
+    sock.set_read_timeout(Some(std::time::Duration::from_millis(50))).unwrap();
+    let env =
+        [("NOTIFY_SOCKET", sock_path.to_str().unwrap()), ("WATCHDOG_USEC", "1000000"), ("JOURNAL_STREAM", "8:12345")];
+    let svc = Service::start_with_env(&cfg, http_port, &env);
+    let recv = || -> Option<String> {
+        let mut buf = [0u8; 4096];
+        sock.recv(&mut buf).ok().map(|n| String::from_utf8_lossy(&buf[..n]).into_owned())
+    };
+    let mut seen: Vec<String> = vec![];
+    poll_until("READY=1 and two WATCHDOG=1 pings on NOTIFY_SOCKET", || {
+        seen.extend(recv());
+        (seen.iter().any(|m| m.starts_with("READY=1"))
+            && seen.iter().filter(|m| m.starts_with("WATCHDOG=1")).count() >= 2)
+            .then_some(())
+    });
+    let first_ping = seen.iter().position(|m| m.starts_with("WATCHDOG=1")).unwrap();
+    let ready = seen.iter().position(|m| m.starts_with("READY=1")).unwrap();
+    assert!(ready < first_ping, "readiness comes before the first ping: {seen:?}");
+
+    // Commits fail: the pings stop (status lines say why), readiness fails.
+    svc.wait_connected();
+    sqlite3(&dir.path().join("ledger.sqlite"), &[REFUSE_WRITES]);
+    publish_all(broker.port, &samples(5), "publisher-systemd");
+    poll_until("/readyz to answer not ready while commits fail", || {
+        http::get(http_port, "/readyz").ok().filter(|r| r.status == 503)
+    });
+    // Drain what was sent before the failure was seen, then listen for
+    // several watchdog intervals: status lines, no ping.
+    while recv().is_some() {}
+    let mut during: Vec<String> = vec![];
+    for _ in 0..80 {
+        during.extend(recv());
+    }
+    assert!(!during.is_empty(), "status lines keep coming while commits fail");
+    assert!(during.iter().all(|m| !m.starts_with("WATCHDOG=1")), "no watchdog ping while commits fail: {during:?}");
+    assert!(during.iter().any(|m| m.contains("commit")), "the status says why: {during:?}");
+    sqlite3(&dir.path().join("ledger.sqlite"), &[ALLOW_WRITES]);
+    poll_until("a WATCHDOG=1 ping once commits succeed again", || recv().filter(|m| m.starts_with("WATCHDOG=1")));
+
+    let (status, log) = svc.sigterm_with_log();
+    assert!(status.success());
+    let lines: Vec<&str> = log.lines().filter(|l| !l.trim().is_empty()).collect();
+    assert!(lines.iter().any(|l| l.starts_with("<6>") && l.contains("INFO")), "info lines carry <6>:\n{log}");
+    assert!(lines.iter().any(|l| l.starts_with("<3>") && l.contains("ERROR")), "error lines carry <3>:\n{log}");
+    for l in &lines {
+        let p = ["<3>", "<4>", "<6>", "<7>"].iter().find(|p| l.starts_with(**p));
+        if let Some(p) = p {
+            let level = match *p {
+                "<3>" => "ERROR",
+                "<4>" => "WARN",
+                "<6>" => "INFO",
+                _ => "DEBUG",
+            };
+            assert!(l.contains(level), "priority {p} on a line of another level: {l}");
+        }
+    }
+    assert!(!log.contains("\u{1b}["), "no colour escapes when stderr is not a terminal:\n{log}");
 }

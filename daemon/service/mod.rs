@@ -25,6 +25,7 @@ pub mod page;
 pub mod reload;
 pub mod settings;
 pub mod snapshot;
+pub mod systemd;
 
 use crate::ingest::{offline_payload, run_event_loop, Inbound};
 use crate::settings::{load_plan_with, Overrides};
@@ -168,6 +169,14 @@ pub async fn run_until_with(
         loop_stop_tx.subscribe(),
     ));
 
+    // systemd (Type=notify): ready once intake runs; the watchdog is fed
+    // while the ledger thread publishes and its commits succeed.
+    let notifier = Arc::new(systemd::Notifier::from_env());
+    notifier.ready(&format!("intake running; status on http://{}/", svc.http.listen));
+    let watchdog_task = notifier.watchdog.map(|interval| {
+        tokio::spawn(feed_watchdog(notifier.clone(), snap_rx.clone(), interval / 2, shutdown_tx.subscribe()))
+    });
+
     let mut sender_task = svc
         .database
         .clone()
@@ -238,6 +247,7 @@ pub async fn run_until_with(
     if let Some(e) = &failure {
         tracing::error!("stopping: {e:#}");
     }
+    notifier.stopping();
 
     // Stop intake, let the ledger commit and acknowledge.
     let _ = ctl_tx.send(Control::Stop);
@@ -258,9 +268,40 @@ pub async fn run_until_with(
         let _ = tokio::time::timeout(Duration::from_secs(2), ingest_task).await;
     }
     let _ = tokio::time::timeout(Duration::from_secs(2), http_task).await;
+    if let Some(t) = watchdog_task {
+        t.abort();
+    }
     if let Some(e) = failure {
         return Err(e);
     }
     tracing::info!("stopped");
     Ok(())
+}
+
+/// Feeds systemd's watchdog every `every` while the ledger thread is alive
+/// (it published a snapshot since the last look) and its commits succeed;
+/// otherwise sends only a status line saying why, so that systemd restarts
+/// a wedged service after `WatchdogSec`.
+async fn feed_watchdog(
+    notifier: Arc<systemd::Notifier>,
+    mut snapshots: watch::Receiver<Arc<snapshot::Snapshot>>,
+    every: Duration,
+    mut shutdown: broadcast::Receiver<()>,
+) {
+    let mut tick = tokio::time::interval(every);
+    loop {
+        tokio::select! {
+            _ = tick.tick() => {}
+            _ = shutdown.recv() => break,
+        }
+        let moved = snapshots.has_changed().unwrap_or(false);
+        let s = snapshots.borrow_and_update().clone();
+        match (&s.commit_failing, moved) {
+            (Some(e), _) => notifier.status(&format!("watchdog not fed: ledger commits failing: {e}")),
+            (None, false) => {
+                notifier.status("watchdog not fed: the ledger thread published nothing since the last look")
+            }
+            (None, true) => notifier.watchdog_ping(s.not_ready().as_deref().unwrap_or("ready")),
+        };
+    }
 }
