@@ -1039,6 +1039,26 @@ fn container_recipe_and_compose_file_hold_together() {
     }
 }
 
+/// The container build's context leaves out the build outputs and the
+/// history (Docker reads .dockerignore, Podman .containerignore), and the
+/// shipped release binary carries no debug information.
+#[test]
+fn container_context_and_release_binary_are_lean() {
+    for f in [".dockerignore", ".containerignore"] {
+        let text = std::fs::read_to_string(repo().join(f)).unwrap_or_else(|e| panic!("{f}: {e}"));
+        let entries: BTreeSet<&str> = text.lines().map(str::trim).filter(|l| !l.starts_with('#')).collect();
+        for want in ["target/", ".git/"] {
+            assert!(entries.contains(want), "{f} must leave out {want}");
+        }
+    }
+    let manifest: toml::Value = toml::from_str(&std::fs::read_to_string(repo().join("Cargo.toml")).unwrap()).unwrap();
+    let strip = manifest["profile"]["release"].get("strip").and_then(|v| v.as_str());
+    assert!(
+        matches!(strip, Some("debuginfo" | "symbols")),
+        "Cargo.toml [profile.release] must strip the shipped binary, has strip = {strip:?}"
+    );
+}
+
 #[test]
 fn systemd_unit_is_hardened() {
     let unit = std::fs::read_to_string(repo().join("deploy/lifeledger.service")).unwrap();
