@@ -1039,6 +1039,58 @@ fn container_recipe_and_compose_file_hold_together() {
     }
 }
 
+/// deploy/mosquitto/make-dev-certs.sh writes certificates the broker can
+/// load: mosquitto 2, started as root, drops to its own user before it
+/// reads the certificate files, so the server key must be readable by that
+/// user (the Debian broker here, started as the tests' user; the failure
+/// showed as "Unable to load server key file ... Permission denied").
+#[test]
+fn dev_certificates_load_in_mosquitto() {
+    let dir = tempfile::tempdir().unwrap();
+    use std::os::unix::fs::PermissionsExt;
+    std::fs::set_permissions(dir.path(), std::fs::Permissions::from_mode(0o755)).unwrap();
+    let m = dir.path().join("mosquitto");
+    std::fs::create_dir(&m).unwrap();
+    std::fs::copy(repo().join("deploy/mosquitto/make-dev-certs.sh"), m.join("make-dev-certs.sh")).unwrap();
+    let out = Command::new("bash").arg(m.join("make-dev-certs.sh")).bounded_output().unwrap();
+    assert!(out.status.success(), "make-dev-certs.sh failed: {}", String::from_utf8_lossy(&out.stderr));
+    let certs = m.join("certs");
+    let port = common::free_port();
+    let conf = dir.path().join("mosquitto.conf");
+    std::fs::write(
+        &conf,
+        format!(
+            "listener {port} 127.0.0.1\nallow_anonymous true\nlog_dest stderr\n\
+             cafile {c}/ca.crt\ncertfile {c}/server.crt\nkeyfile {c}/server.key\n",
+            c = certs.display()
+        ),
+    )
+    .unwrap();
+    let log = dir.path().join("mosquitto.log");
+    let mut child = Command::new(if std::path::Path::new("/usr/sbin/mosquitto").exists() {
+        "/usr/sbin/mosquitto"
+    } else {
+        "mosquitto"
+    })
+    .arg("-c")
+    .arg(&conf)
+    .stdout(std::process::Stdio::null())
+    .stderr(std::fs::File::create(&log).unwrap())
+    .spawn()
+    .expect("mosquitto is installed (tests/run)");
+    let listening = common::poll_until("mosquitto to listen with the dev certificates, or to exit", || {
+        if let Some(status) = child.try_wait().unwrap() {
+            return Some(Err(status));
+        }
+        std::net::TcpStream::connect(("127.0.0.1", port)).ok().map(|_| Ok(()))
+    });
+    let _ = child.kill();
+    let _ = child.wait();
+    let text = std::fs::read_to_string(&log).unwrap_or_default();
+    assert!(listening.is_ok(), "mosquitto exited with the dev certificates ({listening:?}):\n{text}");
+    assert!(!text.contains("Unable to load"), "mosquitto could not load a certificate file:\n{text}");
+}
+
 /// The container build's context leaves out the build outputs and the
 /// history (Docker reads .dockerignore, Podman .containerignore), and the
 /// shipped release binary carries no debug information.

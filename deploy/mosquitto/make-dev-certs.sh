@@ -23,6 +23,13 @@ openssl x509 -req -in server.csr -CA ca.crt -CAkey ca.key -CAcreateserial -days 
   -out server.crt 2>/dev/null
 rm -f server.csr ca.srl
 chmod 0644 ca.crt server.crt
-chmod 0640 server.key
+# mosquitto 2 started as root drops to its own user (the Debian package's
+# "mosquitto", uid 1883 in the eclipse-mosquitto image) BEFORE it reads the
+# certificate files, so the server key must be readable by that user.
+# These throw-away development keys are made readable by all; a production
+# key from the plant's PKI belongs to the broker's group instead:
+#   chgrp mosquitto server.key && chmod 0640 server.key
+chmod 0644 server.key
+# The CA key signs nothing the broker needs: only its maker reads it.
 chmod 0600 ca.key
 echo "wrote $dir (server names: $san)"
