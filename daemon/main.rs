@@ -79,8 +79,12 @@ enum Command {
     /// Every problem in the file is listed at once. Exit status 1 if any.
     #[command(name = "check-config", after_help = CAUTION_HELP)]
     CheckConfig {
-        /// Configuration file (TOML).
-        config: PathBuf,
+        /// Configuration file (TOML), by position or as `--config FILE`.
+        #[arg(required_unless_present = "config_flag", conflicts_with = "config_flag")]
+        config: Option<PathBuf>,
+        /// Configuration file (TOML), as the other commands take it.
+        #[arg(long = "config", id = "config_flag", value_name = "FILE")]
+        config_flag: Option<PathBuf>,
         /// Check the file alone, not the environment variables and files it
         /// names (secrets, certificates): for checking a file away from the
         /// machine that runs it. The service's pre-start check must not use it.
@@ -389,7 +393,11 @@ fn main() {
         Command::Replay { config, input, format, write_lp, lp_interval_s, no_progress } => {
             cmd_replay(config, input, format, write_lp, lp_interval_s, no_progress)
         }
-        Command::CheckConfig { config, format, file_only } => cmd_check(config, format, file_only),
+        Command::CheckConfig { config, config_flag, format, file_only } => {
+            // clap requires exactly one of the two.
+            let file = config.or(config_flag).expect("check-config: a configuration file");
+            cmd_check(file, format, file_only)
+        }
         Command::Rollback { config, ledger, component, all: _, to, by, reason, dry_run, format } => {
             let scope = component.map_or(lifeledger::recovery::Scope::Whole, lifeledger::recovery::Scope::Component);
             cmd_rollback(&config, ledger, scope, &to, by, reason, dry_run, format)
@@ -404,10 +412,31 @@ fn main() {
     };
     match result {
         Ok(code) => std::process::exit(code),
+        // The reader of our output went away (`| head`): stop quietly, as
+        // command-line tools do.
+        Err(e) if is_broken_pipe(&e) => std::process::exit(0),
         Err(e) => {
             eprintln!("error: {e:#}");
             std::process::exit(2);
         }
+    }
+}
+
+/// Whether an error comes from writing into a closed pipe.
+fn is_broken_pipe(e: &anyhow::Error) -> bool {
+    let pipe = std::io::ErrorKind::BrokenPipe;
+    e.chain().any(|c| {
+        c.downcast_ref::<std::io::Error>().is_some_and(|io| io.kind() == pipe)
+            || c.downcast_ref::<serde_json::Error>().is_some_and(|j| j.io_error_kind() == Some(pipe))
+    })
+}
+
+/// "malformed rows: 36", and when fewer are listed below, which ones.
+fn rows_heading(label: &str, total: u64, listed: usize) -> String {
+    if (listed as u64) < total {
+        format!("{label}: {total} (first {listed} of {total} listed)")
+    } else {
+        format!("{label}: {total}")
     }
 }
 
@@ -498,7 +527,11 @@ fn cmd_replay(
             }
             writeln!(out, "{}", report::counters_line(engine.counters()))?;
             if outcome.malformed > 0 {
-                writeln!(out, "malformed rows: {}", outcome.malformed)?;
+                writeln!(
+                    out,
+                    "{}",
+                    rows_heading("malformed rows", outcome.malformed as u64, outcome.malformed_examples.len())
+                )?;
                 for m in &outcome.malformed_examples {
                     writeln!(out, "  line {}: {}", m.line, m.problem)?;
                 }
@@ -833,7 +866,11 @@ fn cmd_backfill(config: &std::path::Path, ledger: Option<PathBuf>, input: &str, 
         )?;
     }
     if o.input.malformed > 0 {
-        writeln!(out, "malformed rows: {}", o.input.malformed)?;
+        writeln!(
+            out,
+            "{}",
+            rows_heading("malformed rows", o.input.malformed as u64, o.input.malformed_examples.len())
+        )?;
         for m in &o.input.malformed_examples {
             writeln!(out, "  line {}: {}", m.line, m.problem)?;
         }

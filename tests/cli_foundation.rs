@@ -540,3 +540,65 @@ fn replay_says_when_creep_strain_is_not_independent_evidence() {
         }
     }
 }
+
+/// `check-config` takes the file as every other command does
+/// (`--config FILE`) as well as by position.
+#[test]
+fn check_config_takes_config_like_every_command() {
+    let (code, out, err) = run(&["check-config", "--config", "config/demo/plant.toml", "--file-only"]);
+    assert_eq!(code, 0, "{out}{err}");
+    let (code, _, err) = run(&["check-config", "--file-only", "config/demo/plant.toml"]);
+    assert_eq!(code, 0, "{err}");
+    let (code, _, err) = run(&["check-config"]);
+    assert_eq!(code, 2, "no file at all is a usage error: {err}");
+    assert!(err.contains("--config") || err.contains("<CONFIG>"), "{err}");
+}
+
+/// A list cut short says so: 36 malformed rows, 20 shown, "first 20 of 36".
+#[test]
+fn a_shortened_list_of_rows_says_how_many_are_shown() {
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("h.csv");
+    let mut text = String::from("2026-10-01T00:00:00Z,U2.SH3.TE-311A,540\n");
+    for i in 0..36 {
+        text.push_str(&format!("not a row {i}\n"));
+    }
+    std::fs::write(&csv, text).unwrap();
+    let (code, out, err) = run(&["replay", "--config", "config/demo/plant.toml", "--input", csv.to_str().unwrap()]);
+    assert_eq!(code, 0, "{err}");
+    let line = out.lines().find(|l| l.starts_with("malformed rows")).unwrap_or_else(|| panic!("{out}"));
+    assert!(line.contains("36") && line.contains("first 20 of 36"), "{line}");
+    let listed = out
+        .lines()
+        .skip_while(|l| !l.starts_with("malformed rows"))
+        .skip(1)
+        .take_while(|l| l.starts_with("  line "))
+        .count();
+    assert_eq!(listed, 20, "{out}");
+}
+
+/// Output into a pipe that closes early (`| head`) ends the command
+/// quietly, as other command-line tools do: no "Broken pipe" error, no panic.
+#[test]
+fn a_closed_pipe_ends_output_quietly() {
+    use std::io::Read;
+    let dir = tempfile::tempdir().unwrap();
+    let err_path = dir.path().join("stderr");
+    let csv = dir.path().join("h.csv");
+    std::fs::write(&csv, "2026-10-01T00:00:00Z,U2.SH3.TE-311A,540\n").unwrap();
+    // The demo plant's JSON ledger is larger than a pipe's buffer (64 KiB).
+    let mut child = bin()
+        .args(["replay", "--config", "config/demo/plant.toml", "--input", csv.to_str().unwrap(), "--format", "json"])
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::fs::File::create(&err_path).unwrap())
+        .spawn()
+        .unwrap();
+    // Read one byte, then close the pipe before the command has written all.
+    let mut stdout = child.stdout.take().unwrap();
+    let mut one = [0u8; 1];
+    let _ = stdout.read(&mut one);
+    drop(stdout);
+    let status = common::poll_until("replay to end after its pipe closed", || child.try_wait().unwrap());
+    let err = std::fs::read_to_string(&err_path).unwrap();
+    assert!(!err.contains("Broken pipe") && !err.contains("panicked"), "{status}: {err}");
+}
