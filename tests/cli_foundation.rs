@@ -281,7 +281,7 @@ fn unknown_keys_and_syntax_errors_name_the_line() {
     std::fs::write(&f, "[engine]\nmax_hold = 5\n").unwrap();
     let (code, _, err) = run(&["check-config", f.to_str().unwrap()]);
     assert_eq!(code, 1);
-    assert!(err.contains("unknown field `max_hold`"), "{err}");
+    assert!(err.contains("unknown key `max_hold`"), "{err}");
     assert!(err.contains("line 2"), "{err}");
 }
 
@@ -601,4 +601,27 @@ fn a_closed_pipe_ends_output_quietly() {
     let status = common::poll_until("replay to end after its pipe closed", || child.try_wait().unwrap());
     let err = std::fs::read_to_string(&err_path).unwrap();
     assert!(!err.contains("Broken pipe") && !err.contains("panicked"), "{status}: {err}");
+}
+
+/// Misspelt keys are all reported in one run, each with its line and the
+/// nearest known key, and no problem is printed twice.
+#[test]
+fn every_misspelt_key_is_reported_at_once_with_a_suggestion() {
+    let dir = tempfile::tempdir().unwrap();
+    let f = dir.path().join("typos.toml");
+    std::fs::write(&f, "[plant]\nnam = \"x\"\n[engine]\nmax_hold = 5\nreorder_windw_s = 3\n").unwrap();
+    let (code, out, err) = run(&["check-config", f.to_str().unwrap()]);
+    assert_eq!(code, 1, "{out}{err}");
+    for (key, line, suggestion) in
+        [("nam", 2, "name"), ("max_hold", 4, "max_hold_s"), ("reorder_windw_s", 5, "reorder_window_s")]
+    {
+        let l =
+            err.lines().find(|l| l.contains(&format!("`{key}`"))).unwrap_or_else(|| panic!("{key} missing:\n{err}"));
+        assert!(l.contains(&format!("line {line}")), "{l}");
+        assert!(l.contains(&format!("did you mean `{suggestion}`")), "{l}");
+    }
+    assert!(err.contains("3 problem(s)"), "{err}");
+    let problems: Vec<&str> = err.lines().filter(|l| l.trim_start().starts_with("- ")).collect();
+    let unique: std::collections::BTreeSet<&&str> = problems.iter().collect();
+    assert_eq!(unique.len(), problems.len(), "a problem printed twice:\n{err}");
 }

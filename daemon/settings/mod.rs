@@ -11,6 +11,7 @@
 
 pub mod library;
 pub mod schema;
+pub mod schema_check;
 pub mod validate;
 
 pub use schema::Settings;

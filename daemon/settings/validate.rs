@@ -46,8 +46,15 @@ pub struct ConfigError {
 
 impl fmt::Display for ConfigError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        writeln!(f, "configuration {} has {} problem(s):", self.file, self.problems.len())?;
+        // The same problem found twice (by two checks) is printed once.
+        let mut unique: Vec<&ConfigProblem> = vec![];
         for p in &self.problems {
+            if !unique.contains(&p) {
+                unique.push(p);
+            }
+        }
+        writeln!(f, "configuration {} has {} problem(s):", self.file, unique.len())?;
+        for p in unique {
             writeln!(f, "  - {p}")?;
         }
         Ok(())
@@ -98,8 +105,11 @@ pub fn read_settings_with(path: &Path, overrides: &Overrides) -> Result<Settings
     }
     // Parse with toml first: its errors carry line and column numbers.
     let text = std::fs::read_to_string(path).map_err(|e| fail(e.to_string(), "check permissions"))?;
-    if let Err(e) = toml::from_str::<Settings>(&text) {
-        return Err(fail(e.to_string().replace('\n', " "), "correct the TOML at the line shown"));
+    // Every schema problem at once (each unknown key with its line and a
+    // suggestion), not one per run.
+    let problems = super::schema_check::schema_problems(&text);
+    if !problems.is_empty() {
+        return Err(ConfigError { file: file.clone(), problems });
     }
     // Overrides stay text (`try_parsing(false)`): a string setting keeps
     // "007" or "12345" as written; number and boolean settings parse the
