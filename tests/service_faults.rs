@@ -365,6 +365,15 @@ fn a_database_that_refuses_the_token_raises_the_service_health_alarm() {
     assert!(snap["outbox_lines"].as_u64().unwrap_or(0) > 0, "points stay in the outbox: {snap}");
     let metrics = http::get(http_port, "/metrics").unwrap().text();
     assert_eq!(metric(&metrics, "lifeledger_database_refusing"), Some(1.0), "{metrics}");
+    // Alarm counts by state and severity, and the build, are on /metrics too.
+    let standing: f64 = metrics
+        .lines()
+        .filter(|l| l.starts_with("lifeledger_alarms{") && l.contains("state=\"unacknowledged\""))
+        .filter_map(|l| l.rsplit(' ').next()?.parse::<f64>().ok())
+        .sum();
+    assert!(standing >= 1.0, "the database alarm is counted as unacknowledged:\n{metrics}");
+    let build = format!("lifeledger_build_info{{version=\"{}\"}} 1", env!("CARGO_PKG_VERSION"));
+    assert!(metrics.lines().any(|l| l == build), "{build} missing:\n{metrics}");
     // The database takes the token again: the outbox drains, the alarm clears.
     vm.stop();
     vm.restart_without_flags();

@@ -159,6 +159,34 @@ pub fn metrics_text(s: &Snapshot) -> String {
     }
     metric("lifeledger_samples_rejected_total", "Samples or messages not integrated, by reason.", "counter", rej);
     metric(
+        "lifeledger_build_info",
+        "The running build: its version (the value is always 1).",
+        "gauge",
+        vec![(format!("{{version=\"{}\"}}", env!("CARGO_PKG_VERSION")), 1.0)],
+    );
+    // Alarm records not in the normal state, by state and severity.
+    let mut by_state: std::collections::BTreeMap<(String, String), u64> = Default::default();
+    for r in s.alarms.iter().flat_map(|c| &c.alarms) {
+        let state = serde_json::to_value(r.state).ok().and_then(|v| v.as_str().map(str::to_string));
+        let state = state.unwrap_or_else(|| format!("{:?}", r.state));
+        if state == "normal" {
+            continue;
+        }
+        let severity = r.severity.map_or("none".to_string(), |v| {
+            serde_json::to_value(v).ok().and_then(|v| v.as_str().map(str::to_string)).unwrap_or_default()
+        });
+        *by_state.entry((state, severity)).or_default() += 1;
+    }
+    metric(
+        "lifeledger_alarms",
+        "Alarms not in the normal state, by ISA-18.2 state and severity (none: conditions without a level).",
+        "gauge",
+        by_state
+            .into_iter()
+            .map(|((state, severity), n)| (format!("{{state=\"{state}\",severity=\"{severity}\"}}"), n as f64))
+            .collect(),
+    );
+    metric(
         "lifeledger_restart_required",
         "1 while settings reloaded with SIGHUP wait for a restart (see /readyz), else 0.",
         "gauge",
