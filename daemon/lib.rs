@@ -19,6 +19,7 @@
 //! * [`recovery`]: checkpoints, rollback and backfill of a poisoned ledger.
 //! * [`sink`]: delivery of line protocol to the time-series database.
 //! * [`alarm`]: threshold alarms with ISA-18.2 states.
+//! * [`inspection`]: inspection records between people, the ledger file and the engine.
 
 // Validation writes `!(x > 0.0)` on purpose: it is also true for NaN, which
 // must be refused too.
@@ -29,6 +30,7 @@ pub mod demo;
 pub mod engine;
 pub mod fit;
 pub mod ingest;
+pub mod inspection;
 pub mod lineproto;
 pub mod physics;
 pub mod recovery;

@@ -294,6 +294,14 @@ enum Command {
         #[command(subcommand)]
         cmd: lifeledger::fit::FitCommand,
     },
+    /// Inspection findings in the ledger: add, correct (supersede), list.
+    ///
+    /// Works on a stopped service's ledger and, safely, on a running one's.
+    #[command(after_help = CAUTION_HELP)]
+    Inspection {
+        #[command(subcommand)]
+        cmd: lifeledger::inspection::cli::InspectionCommand,
+    },
 }
 
 #[derive(Clone, Copy, ValueEnum, PartialEq)]
@@ -392,6 +400,7 @@ fn main() {
         }
         Command::Materials { action } => cmd_materials(action),
         Command::Fit { cmd } => lifeledger::fit::run(&cmd).map(|_| 0),
+        Command::Inspection { cmd } => lifeledger::inspection::cli::run(&cmd),
     };
     match result {
         Ok(code) => std::process::exit(code),

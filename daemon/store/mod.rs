@@ -46,6 +46,7 @@
 pub mod checkpoint;
 pub mod error;
 pub mod held;
+pub mod inspection;
 pub mod journal;
 pub mod outbox;
 pub mod schema;
@@ -121,6 +122,11 @@ pub struct Commit<'a> {
     /// Checkpoints offered for this batch; only those due are written (see
     /// [`checkpoint`]), and old ones of the components written are pruned.
     pub checkpoints: &'a [CheckpointRow],
+    /// (record id, JSON): inspection records the ledger accepted in this
+    /// batch (see [`inspection`]).
+    pub inspections_accepted: &'a [(i64, String)],
+    /// (component name, point): the daily history (see [`inspection`]).
+    pub history: &'a [(String, inspection::HistoryPoint)],
 }
 
 /// Everything but the outbox, the alarm journal and the trends, as [`Store::load`]
@@ -364,6 +370,8 @@ impl Store {
         let days = i64::try_from(self.checkpoint_days).unwrap_or(i64::MAX);
         let cutoff = now.saturating_sub(days.saturating_mul(86_400_000));
         let checkpoints = checkpoint::write(&tx, c.checkpoints, &self.checkpoint_newest, now, cutoff).map_err(fail)?;
+        inspection::accept(&tx, c.inspections_accepted).map_err(fail)?;
+        inspection::upsert_history(&tx, c.history).map_err(fail)?;
         outbox::append(&tx, c.outbox).map_err(fail)?;
         let stats = outbox::totals(&tx).map_err(fail)?;
         tx.commit().map_err(fail)?;
@@ -684,6 +692,7 @@ mod tests {
                 ],
                 held_released: &[4],
                 checkpoints: &[],
+                ..Default::default()
             };
             store.commit(&batch).unwrap();
         }
