@@ -46,6 +46,7 @@ pub fn router(state: HttpState) -> Router {
         .route("/api/components/:name/alarms", get(alarm_history))
         .route("/api/materials/:grade", get(material))
         .route("/api/alarms/command", axum::routing::post(alarm_command))
+        .merge(super::http_inspection::routes())
         .merge(super::page::routes())
         .with_state(state)
 }

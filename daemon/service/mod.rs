@@ -19,6 +19,7 @@
 
 pub mod commit_retry;
 pub mod http;
+pub mod http_inspection;
 pub mod ledger;
 pub mod outbox;
 pub mod page;
