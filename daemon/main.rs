@@ -68,6 +68,11 @@ enum Command {
         /// Never show a progress bar (it is shown only on a terminal anyway).
         #[arg(long)]
         no_progress: bool,
+        /// Inspection records to apply at their dates: the JSON of
+        /// `lifeledger inspection list --json` (records a service accepted keep
+        /// their effective instants, so the replay gives the live ledger).
+        #[arg(long, value_name = "FILE")]
+        inspections: Option<PathBuf>,
     },
     /// Validate a configuration and print the values an engineer should sanity-check.
     ///
@@ -385,8 +390,8 @@ fn main() {
                 .and_then(|rt| rt.block_on(lifeledger::demo::run(opts)))
                 .map(|_| 0)
         }
-        Command::Replay { config, input, format, write_lp, lp_interval_s, no_progress } => {
-            cmd_replay(config, input, format, write_lp, lp_interval_s, no_progress)
+        Command::Replay { config, input, format, write_lp, lp_interval_s, no_progress, inspections } => {
+            cmd_replay(config, input, format, write_lp, lp_interval_s, no_progress, inspections)
         }
         Command::CheckConfig { config, format, file_only } => cmd_check(config, format, file_only),
         Command::Rollback { config, ledger, component, all: _, to, by, reason, dry_run, format } => {
@@ -422,12 +427,17 @@ fn cmd_replay(
     write_lp: Option<PathBuf>,
     lp_interval_s: i64,
     no_progress: bool,
+    inspections: Option<PathBuf>,
 ) -> Result<i32> {
     let cfg = load(&config)?;
     for w in &cfg.warnings {
         eprintln!("warning: {w}");
     }
     let mut engine = Engine::new(cfg.plan.clone());
+    if let Some(p) = &inspections {
+        let rows = lifeledger::inspection::load_records_file(p)?;
+        lifeledger::inspection::offer_rows_for_replay(&mut engine, &rows).map_err(|e| anyhow::anyhow!("{e}"))?;
+    }
     let counter = std::sync::Arc::new(std::sync::atomic::AtomicU64::new(0));
     let total = std::fs::metadata(&input).map(|m| m.len()).unwrap_or(0);
     let reader = lifeledger::replay::open_input(&input, Some(counter.clone()))

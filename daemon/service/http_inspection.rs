@@ -83,11 +83,12 @@ async fn list(State(s): State<HttpState>, Path(name): Path<String>) -> Response 
                     v
                 })
                 .collect();
-            Json(serde_json::json!({"component": name, "records": records, "caution": crate::CAUTION}))
-                .into_response()
+            Json(serde_json::json!({"component": name, "records": records, "caution": crate::CAUTION})).into_response()
         }
         Ok(Err(e)) => (StatusCode::INTERNAL_SERVER_ERROR, format!("{e}\n")).into_response(),
-        Err(e) => (StatusCode::INTERNAL_SERVER_ERROR, format!("reading inspection records failed: {e}\n")).into_response(),
+        Err(e) => {
+            (StatusCode::INTERNAL_SERVER_ERROR, format!("reading inspection records failed: {e}\n")).into_response()
+        }
     }
 }
 
