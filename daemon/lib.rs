@@ -15,6 +15,7 @@
 //!   database sink.
 //! * [`fit`]: material constants from creep test data.
 //! * [`report`]: human and JSON renderings of ledgers and derived checks.
+//! * [`assessment`]: the assessment report (HTML, CSV, JSON) of `lifeledger report`.
 //! * [`store`]: the durable ledger (SQLite, one transaction per batch).
 //! * [`recovery`]: checkpoints, rollback and backfill of a poisoned ledger.
 //! * [`sink`]: delivery of line protocol to the time-series database.
@@ -26,6 +27,7 @@
 #![allow(clippy::neg_cmp_op_on_partial_ord)]
 
 pub mod alarm;
+pub mod assessment;
 pub mod demo;
 pub mod engine;
 pub mod fit;

@@ -299,6 +299,33 @@ enum Command {
         #[command(subcommand)]
         cmd: lifeledger::fit::FitCommand,
     },
+    /// Write the assessment report of a component, a unit or the plant (HTML, CSV, JSON).
+    ///
+    /// Reads the service's ledger read-only (safe while it runs) and writes
+    /// report.html (prints on A4 and US letter), report.csv and report.json
+    /// into --out. Projections under design conditions, design + --shift-k,
+    /// the measured profile and the measured profile + --shift-k stand
+    /// beside the recent-rate projection.
+    #[command(after_help = CAUTION_HELP)]
+    Report {
+        #[arg(long, short)]
+        config: PathBuf,
+        /// Ledger file [default: the [store] path of the configuration].
+        #[arg(long)]
+        ledger: Option<PathBuf>,
+        /// One component.
+        #[arg(long, value_name = "NAME", conflicts_with = "unit")]
+        component: Option<String>,
+        /// Every component of one unit.
+        #[arg(long, value_name = "UNIT")]
+        unit: Option<String>,
+        /// Directory the three files go into.
+        #[arg(long, value_name = "DIR")]
+        out: PathBuf,
+        /// Temperature shift of the "what if" profiles, K.
+        #[arg(long, default_value_t = 10.0)]
+        shift_k: f64,
+    },
     /// Inspection findings in the ledger: add, correct (supersede), list.
     ///
     /// Works on a stopped service's ledger and, safely, on a running one's.
@@ -406,6 +433,14 @@ fn main() {
         Command::Materials { action } => cmd_materials(action),
         Command::Fit { cmd } => lifeledger::fit::run(&cmd).map(|_| 0),
         Command::Inspection { cmd } => lifeledger::inspection::cli::run(&cmd),
+        Command::Report { config, ledger, component, unit, out, shift_k } => {
+            let scope = match (component, unit) {
+                (Some(c), _) => lifeledger::assessment::Scope::Component(c),
+                (None, Some(u)) => lifeledger::assessment::Scope::Unit(u),
+                (None, None) => lifeledger::assessment::Scope::Plant,
+            };
+            cmd_report(&config, ledger, &scope, &out, shift_k)
+        }
     };
     match result {
         Ok(code) => std::process::exit(code),
@@ -414,6 +449,24 @@ fn main() {
             std::process::exit(2);
         }
     }
+}
+
+fn cmd_report(
+    config: &std::path::Path,
+    ledger: Option<PathBuf>,
+    scope: &lifeledger::assessment::Scope,
+    out: &std::path::Path,
+    shift_k: f64,
+) -> Result<i32> {
+    anyhow::ensure!(shift_k.is_finite(), "--shift-k {shift_k} is not a number of kelvin");
+    let (cfg, service) = lifeledger::service::load_service(config)?;
+    let path = ledger.unwrap_or(service.store.path);
+    let now = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).unwrap_or_default().as_millis() as i64;
+    let a = lifeledger::assessment::build(&cfg, &path, scope, shift_k, now)?;
+    for p in lifeledger::assessment::write(&a, out)? {
+        println!("wrote {}", p.display());
+    }
+    Ok(0)
 }
 
 fn load(config: &std::path::Path) -> Result<lifeledger::settings::LoadedConfig> {

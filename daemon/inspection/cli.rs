@@ -193,7 +193,7 @@ fn append(component: String, supersedes: Option<i64>, a: &FindingArgs) -> Result
     let when = if running {
         "the running service applies it within a second or two"
     } else {
-        "the service applies it when it next starts"
+        "the service applies it when it next starts (or the next backfill does)"
     };
     println!("recorded inspection record #{id} for {} in {}; {when}", n.component, path.display());
     Ok(0)

@@ -66,8 +66,20 @@ async fn list(State(s): State<HttpState>, Path(name): Path<String>) -> Response 
     }
     let path = s.trend.path().to_path_buf();
     let c = name.clone();
-    match tokio::task::spawn_blocking(move || read_inspections(&path, Some(&c))).await {
-        Ok(Ok(rows)) => {
+    let read = move || -> Result<_, crate::store::StoreError> {
+        let rows = read_inspections(&path, Some(&c))?;
+        // The records as the ledger applied them live in the component's state.
+        let events: Vec<crate::engine::inspection::Event> = crate::store::read_ledger(&path)?
+            .components
+            .into_iter()
+            .find(|(n, _)| *n == c)
+            .and_then(|(_, json)| serde_json::from_str::<crate::engine::ComponentState>(&json).ok())
+            .map(|st| st.inspection.events)
+            .unwrap_or_default();
+        Ok((rows, events))
+    };
+    match tokio::task::spawn_blocking(read).await {
+        Ok(Ok((rows, events))) => {
             let records: Vec<serde_json::Value> = rows
                 .iter()
                 .map(|r| {
@@ -79,6 +91,8 @@ async fn list(State(s): State<HttpState>, Path(name): Path<String>) -> Response 
                         let by = rows.iter().find(|o| o.supersedes == Some(r.id)).map(|o| o.id);
                         o.insert("superseded_by".into(), by.into());
                         o.insert("finding_date".into(), crate::report::rfc3339_ms(r.finding_ms).into());
+                        let ledger = events.iter().find(|e| e.id == r.id).and_then(|e| serde_json::to_value(e).ok());
+                        o.insert("ledger".into(), ledger.unwrap_or(serde_json::Value::Null));
                     }
                     v
                 })

@@ -17,9 +17,10 @@
   }
 
   function effect(r) {
-    const a = r.accepted;
+    const a = r.ledger || r.accepted;
     if (r.superseded_by != null) return 'superseded by #' + r.superseded_by;
     if (!a) return 'pending: the ledger applies it shortly';
+    if (!a.applied) return 'accepted; applies when the ledger reaches ' + LL.shortUtc(a.effective_ms);
     const e = a.effect || {};
     const parts = [];
     if (a.effective_ms !== r.finding_ms) parts.push('entered late: applied ' + LL.shortUtc(a.effective_ms) + ', increment since the finding kept');
