@@ -42,7 +42,7 @@ fn esc(s: &str) -> String {
 fn hours(h: Option<f64>) -> String {
     match h {
         None => "not reached".into(),
-        Some(h) if h == 0.0 => "reached".into(),
+        Some(0.0) => "reached".into(),
         Some(h) if h > 1.0e7 => "> 10 000 000".into(),
         Some(h) => format!("{} ({:.1} y)", group(h), h / 8766.0),
     }

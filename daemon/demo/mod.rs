@@ -212,7 +212,9 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
                 inspected = true;
                 let finding_ms = start_ms + (sim::SHUTDOWN_DAY * 86_400_000.0) as i64 + 3_600_000;
                 match inspections::enter(&ledger_path, finding_ms, now_ms()) {
-                    Ok(n) if n > 0 => println!("  outage inspection: {n} findings entered for {}", inspections::COMPONENT),
+                    Ok(n) if n > 0 => {
+                        println!("  outage inspection: {n} findings entered for {}", inspections::COMPONENT)
+                    }
                     Ok(_) => {}
                     Err(e) => tracing::warn!("demo inspection records not entered: {e}"),
                 }

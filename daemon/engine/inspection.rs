@@ -327,8 +327,7 @@ pub fn derive(plan: &mut ComponentPlan, scratch: &mut Scratch, state: &mut Compo
         .events
         .iter()
         .filter(live)
-        .filter(|e| matches!(e.finding, Finding::Replica { .. }))
-        .next_back()
+        .rfind(|e| matches!(e.finding, Finding::Replica { .. }))
         .map(|e| (e.effect.bounds, e.effect.outside.unwrap_or(false)));
     if let Some((b, o)) = replica {
         state.inspection.replica_bounds = b;
