@@ -116,6 +116,15 @@ fn records_over_http_and_the_command_line_apply_survive_a_crash_and_replay_repea
     let c = snap["components"].as_array().unwrap().iter().find(|c| c["component"] == "SH-TUBE").unwrap();
     assert!(c["creep_strain"].as_f64().unwrap() >= 0.0025, "re-based strain: {}", c["creep_strain"]);
 
+    // The component's assessment report, linked from its page.
+    let r = http::get(http_port, "/report/SH-TUBE").unwrap();
+    assert_eq!(r.status, 200);
+    let html = r.text();
+    assert!(html.contains("SH-TUBE") && html.contains("Caution.") && html.contains("K. Metallurgist"), "{html}");
+    let r = http::get(http_port, "/report/SH-TUBE?format=csv").unwrap();
+    assert!(r.text().starts_with("component,section,item,value,unit,source"), "{}", r.text());
+    assert_eq!(http::get(http_port, "/report/NO-SUCH").unwrap().status, 404);
+
     // A crash, then a restart: the records and their effect are still there.
     let before = tube(&ok(&["ledger", "--config", cfg_s, "--format", "json"]));
     svc.kill9();

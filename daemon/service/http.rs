@@ -28,6 +28,8 @@ pub struct HttpState {
     pub journal: crate::store::JournalReader,
     /// The ledger's component trends, for `/api/components/{name}/trend`.
     pub trend: crate::store::TrendReader,
+    /// The configuration the service started with, for `/report/{name}`.
+    pub config: Option<Arc<crate::settings::LoadedConfig>>,
 }
 
 /// Events `/api/components/{name}/alarms` returns without `limit`.

@@ -22,6 +22,53 @@ pub fn routes() -> Router<HttpState> {
     Router::new()
         .route("/api/components/:name/inspections", get(list).post(add))
         .route("/api/components/:name/history", get(history))
+        .route("/report/:name", get(report))
+}
+
+/// Query of `/report/{name}`.
+#[derive(Debug, serde::Deserialize)]
+struct ReportQuery {
+    /// `html` (default), `csv` or `json`.
+    format: Option<String>,
+    /// Temperature shift of the what-if profiles, K (default 10).
+    shift_k: Option<f64>,
+}
+
+/// The assessment report of one component (`lifeledger report`), built
+/// from the ledger file and the configuration the service started with.
+async fn report(
+    State(s): State<HttpState>,
+    Path(name): Path<String>,
+    axum::extract::Query(q): axum::extract::Query<ReportQuery>,
+) -> Response {
+    let Some(cfg) = s.config.clone() else {
+        return (StatusCode::NOT_FOUND, "no configuration to build a report from\n").into_response();
+    };
+    if !known(&s, name.as_str()) {
+        return (StatusCode::NOT_FOUND, format!("no component {name:?}\n")).into_response();
+    }
+    let path = s.trend.path().to_path_buf();
+    let shift = q.shift_k.filter(|k| k.is_finite()).unwrap_or(10.0);
+    let scope = crate::assessment::Scope::Component(name);
+    let built = tokio::task::spawn_blocking(move || {
+        crate::assessment::build(&cfg, &path, &scope, shift, crate::store::wall_clock_ms())
+    })
+    .await;
+    let a = match built {
+        Ok(Ok(a)) => a,
+        Ok(Err(e)) => return (StatusCode::INTERNAL_SERVER_ERROR, format!("{e:#}\n")).into_response(),
+        Err(e) => {
+            return (StatusCode::INTERNAL_SERVER_ERROR, format!("building the report failed: {e}\n")).into_response()
+        }
+    };
+    match q.format.as_deref().unwrap_or("html") {
+        "csv" => ([(header::CONTENT_TYPE, "text/csv; charset=utf-8")], crate::assessment::csv(&a)).into_response(),
+        "json" => Json(a).into_response(),
+        "html" => {
+            ([(header::CONTENT_TYPE, "text/html; charset=utf-8")], crate::assessment::html::render(&a)).into_response()
+        }
+        other => (StatusCode::BAD_REQUEST, format!("format {other:?}: use html, csv or json\n")).into_response(),
+    }
 }
 
 /// The body of a POST.

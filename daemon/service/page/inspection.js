@@ -8,6 +8,8 @@
   const base = '/api/components/' + encodeURIComponent(name);
   $('inspections-link').href = base + '/inspections';
   $('daily-link').href = base + '/history';
+  $('report-link').href = '/report/' + encodeURIComponent(name);
+  $('report-top-link').href = '/report/' + encodeURIComponent(name);
 
   function value(r) {
     if (r.kind === 'replica') return 'class ' + esc((r.detail && r.detail.class) || '?') + (r.detail && r.detail.rebase ? ' (re-base asked)' : '');
@@ -35,6 +37,39 @@
     return parts.length ? parts.map(esc).join('; ') : 'applied';
   }
 
+  // The daily history: life fraction against time, with the alarm levels,
+  // the level crossings and the inspection findings listed under it.
+  async function loadHistory(records) {
+    let h, snap;
+    try {
+      h = await LL.api(base + '/history');
+      snap = await LL.api('/api/components');
+    } catch (e) {
+      $('history-chart').innerHTML = '<p class="muted">The daily history could not be read: ' + esc(e.message) + '</p>';
+      return;
+    }
+    const pts = (h.points || []).map((p) => [p.t_ms, p.life_fraction]);
+    if (pts.length < 2) {
+      $('history-chart').innerHTML = '<p class="muted">The daily history holds ' + pts.length + ' day(s) so far.</p>';
+      $('history-marks').textContent = '';
+      return;
+    }
+    const comp = (snap.components || []).find((c) => c.component === name) || {};
+    const lv = (comp.thresholds && comp.thresholds.life_fraction) || {};
+    const levels = ['advisory', 'warning', 'critical'].filter((k) => LL.num(lv[k]) !== null).map((k) => ({ value: lv[k], label: k, cls: k }));
+    const width = Math.max(320, ($('history-chart').clientWidth || 800) - 8);
+    $('history-chart').innerHTML = LL.lineChart({ id: 'history-life', label: 'Life fraction, one point a day', points: pts, t0: pts[0][0], t1: pts[pts.length - 1][0], fmt: LL.frac, levels, width, height: 220, cls: 's-life' });
+    LL.attachHover('history-life');
+    const marks = [];
+    for (const l of levels) {
+      for (let i = 1; i < pts.length; i++) {
+        if (pts[i - 1][1] < l.value && pts[i][1] >= l.value) marks.push(l.label + ' level ' + l.value + ' crossed on ' + LL.shortUtc(pts[i][0]));
+      }
+    }
+    for (const r of records) marks.push('finding #' + r.id + ' (' + LL.kindLabel(r.kind) + ') on ' + LL.shortUtc(r.finding_ms));
+    $('history-marks').textContent = marks.length ? 'Marks: ' + marks.join('; ') + '.' : '';
+  }
+
   async function load() {
     let data;
     try {
@@ -44,6 +79,7 @@
       return;
     }
     const rows = data.records || [];
+    loadHistory(rows);
     if (!rows.length) {
       $('inspections').innerHTML = '<p class="muted">No inspection records for this component.</p>';
       return;
