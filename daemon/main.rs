@@ -462,7 +462,7 @@ fn cmd_report(
     let (cfg, service) = lifeledger::service::load_service(config)?;
     let path = ledger.unwrap_or(service.store.path);
     let now = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).unwrap_or_default().as_millis() as i64;
-    let a = lifeledger::assessment::build(&cfg, &path, scope, shift_k, now)?;
+    let a = lifeledger::assessment::build(&cfg, &path, scope, shift_k, now, false)?;
     for p in lifeledger::assessment::write(&a, out)? {
         println!("wrote {}", p.display());
     }

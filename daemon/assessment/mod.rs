@@ -554,15 +554,20 @@ pub fn csv(a: &Assessment) -> String {
 }
 
 /// Reads what the report needs from the ledger at `path` and the
-/// configuration's plan, and builds it.
+/// configuration's plan, and builds it. `beside_the_service`: called in
+/// the process that holds the ledger open (the HTTP API).
 pub fn build(
     cfg: &crate::settings::LoadedConfig,
     path: &Path,
     scope: &Scope,
     shift_k: f64,
     generated_ms: i64,
+    beside_the_service: bool,
 ) -> Result<Assessment> {
-    let loaded = crate::store::read_ledger(path)?;
+    // Inside the running service, never a plain file descriptor on the
+    // ledger (see `store::read_ledger_beside`).
+    let loaded =
+        if beside_the_service { crate::store::read_ledger_beside(path)? } else { crate::store::read_ledger(path)? };
     let stored = crate::service::ledger::StoredLedger::parse(&loaded, path)?;
     let mut engine = Engine::new(cfg.plan.clone());
     engine.import_state(stored.engine);

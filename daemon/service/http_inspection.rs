@@ -51,7 +51,7 @@ async fn report(
     let shift = q.shift_k.filter(|k| k.is_finite()).unwrap_or(10.0);
     let scope = crate::assessment::Scope::Component(name);
     let built = tokio::task::spawn_blocking(move || {
-        crate::assessment::build(&cfg, &path, &scope, shift, crate::store::wall_clock_ms())
+        crate::assessment::build(&cfg, &path, &scope, shift, crate::store::wall_clock_ms(), true)
     })
     .await;
     let a = match built {
@@ -116,7 +116,7 @@ async fn list(State(s): State<HttpState>, Path(name): Path<String>) -> Response 
     let read = move || -> Result<_, crate::store::StoreError> {
         let rows = read_inspections(&path, Some(&c))?;
         // The records as the ledger applied them live in the component's state.
-        let events: Vec<crate::engine::inspection::Event> = crate::store::read_ledger(&path)?
+        let events: Vec<crate::engine::inspection::Event> = crate::store::read_ledger_beside(&path)?
             .components
             .into_iter()
             .find(|(n, _)| *n == c)

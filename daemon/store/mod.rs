@@ -421,6 +421,15 @@ pub fn read_ledger(path: &Path) -> Result<Loaded, StoreError> {
     load_from(&conn, path)
 }
 
+/// [`read_ledger`] for a reader inside the process that holds the ledger
+/// open (the HTTP handlers of the running service): it looks at the file
+/// through SQLite only, never with a plain file descriptor, whose closing
+/// would drop the ledger thread's POSIX locks (see [`Store::attach`]).
+pub fn read_ledger_beside(path: &Path) -> Result<Loaded, StoreError> {
+    let conn = read_only(path).map_err(|e| StoreError::sqlite(path, "opening the ledger for reading", e))?;
+    load_from(&conn, path)
+}
+
 /// Every component state, tag cursor, alarm record and meta entry from one
 /// read transaction on `conn`.
 fn load_from(conn: &Connection, path: &Path) -> Result<Loaded, StoreError> {
