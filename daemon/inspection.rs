@@ -42,6 +42,10 @@ pub struct Detail {
     /// Oxide: hours of service the scale grew in.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub service_h: Option<f64>,
+    /// Oxide: heat flux through the tube wall, kW/m², for the report's
+    /// projection of scale growth and its insulating effect.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub heat_flux_kw_m2: Option<f64>,
 }
 
 /// A length in `unit` as mm.
@@ -104,6 +108,11 @@ pub fn finding_of(kind: &str, value: Option<f64>, unit: &str, detail: &str) -> R
             }
             if !(oxide_mm > 0.0) {
                 return Err("an oxide thickness must be above 0".into());
+            }
+            if let Some(q) = d.heat_flux_kw_m2 {
+                if !(q >= 0.0 && q < 2000.0) {
+                    return Err(format!("heat flux {q} kW/m² is not plausible (0 to 2000)"));
+                }
             }
             Ok(Finding::OxideThickness { oxide_mm, service_h })
         }

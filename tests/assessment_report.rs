@@ -69,7 +69,7 @@ fn demo_ledger(dir: &Path) -> (PathBuf, PathBuf) {
                 "oxide_thickness",
                 "2026-10-12",
                 0.28,
-                "{\"service_h\":60000}",
+                "{\"service_h\":60000,\"heat_flux_kw_m2\":120}",
                 "UT oxide",
                 "bend 4",
             ))
@@ -195,5 +195,6 @@ fn the_demo_plants_report_prints_on_a4_and_letter_with_its_key_figures() {
         assert!(flat.contains("wall re-based to 5.60 mm"), "{size}: the wall survey is printed");
         assert!(flat.contains("P. Surveyor"), "{size}: who entered the records is printed");
         assert!(flat.contains("design conditions +10 K"), "{size}: the what-if profile is printed");
+        assert!(flat.contains("with scale growth (120 kW/m²)"), "{size}: the scale-growth projection is printed");
     }
 }

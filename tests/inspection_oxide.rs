@@ -82,3 +82,28 @@ print(json.dumps({"t_c": T_c.tolist(), "hours": hours.tolist(), "x_mm": (x_mils 
         }
     }
 }
+
+/// The scale-growth projection: without heat flux the metal temperature
+/// stays put, so the hours to a level are the straight line
+/// (level − D)/rate; with heat flux the scale insulates, the metal heats
+/// and every level comes sooner.
+#[test]
+fn scale_growth_brings_the_levels_forward_and_without_heat_flux_is_the_straight_line() {
+    let mut e = Engine::new(plan_settings("test", toml::from_str(CONFIG).unwrap()).unwrap().plan);
+    let (tt, pt) = (e.tag_id("TT").unwrap(), e.tag_id("PT").unwrap());
+    for k in 0..=120 {
+        let time_ms = k * 600_000;
+        e.ingest(&Sample { tag: tt, time_ms, value: 590.0, quality: Quality::Good }).unwrap();
+        e.ingest(&Sample { tag: pt, time_ms, value: 180.0, quality: Quality::Good }).unwrap();
+    }
+    let plan = &e.plan().components[0];
+    let st = &e.components()[0];
+    let flat = lifeledger::assessment::scale_growth_projection(plan, st, 0.3, 0.0).unwrap();
+    let hot = lifeledger::assessment::scale_growth_projection(plan, st, 0.3, 150.0).unwrap();
+    for (f, h) in flat.hours_to.iter().zip(&hot.hours_to) {
+        let want = (f.1 - st.life_fraction) / flat.life_fraction_rate_per_h;
+        let got = f.2.unwrap();
+        assert!((got / want - 1.0).abs() < 1e-9, "{}: {got} h, straight line {want} h", f.0);
+        assert!(h.2.unwrap() < got, "{}: with scale growth {:?} h, without {got} h", f.0, h.2);
+    }
+}

@@ -229,6 +229,61 @@ pub fn projections(plan: &ComponentPlan, st: &ComponentState, shift_k: f64) -> V
     out
 }
 
+/// Hours to each life-fraction level at the measured mean metal
+/// temperature in the creep range (which carries the oxide correction in
+/// force) and design pressure, with the steam-side scale growing by the
+/// grade's oxide law and insulating the tube: every `STEP_H`, the scale
+/// grows at the present metal temperature (`OxideLaw::grow_mm`) and the
+/// metal temperature rises by `q·Δx/k` (`scale_temperature_rise_k`). `None`
+/// without an oxide law for the grade or measured hours in the creep range.
+pub fn scale_growth_projection(
+    plan: &ComponentPlan,
+    st: &ComponentState,
+    oxide_mm: f64,
+    heat_flux_kw_m2: f64,
+) -> Option<ProfileProjection> {
+    use crate::physics::inspection::{oxide_law_for, scale_temperature_rise_k};
+    const STEP_H: f64 = 250.0;
+    const HORIZON_H: f64 = 500_000.0;
+    let law = oxide_law_for(&plan.material.grade)?;
+    let t0 = crate::engine::inspection::mean_creep_range_temperature_k(plan, st)?;
+    let p = if plan.pressure.is_some() { plan.design_pressure_mpa } else { None };
+    let mut levels: Vec<(String, f64, Option<f64>)> = hours_to(plan, st.life_fraction, 0.0)
+        .into_iter()
+        .map(|(n, l, _)| (n, l, if st.life_fraction >= l { Some(0.0) } else { None }))
+        .collect();
+    let (mut d, mut x, mut t, mut h) = (st.life_fraction, oxide_mm, t0, 0.0);
+    let first_rate = rate_at(plan, st, t, p);
+    while h < HORIZON_H && levels.iter().any(|l| l.2.is_none()) {
+        let r = rate_at(plan, st, t, p);
+        let d1 = d + r * STEP_H;
+        for l in levels.iter_mut().filter(|l| l.2.is_none()) {
+            if d1 >= l.1 && r > 0.0 {
+                l.2 = Some(h + (l.1 - d) / r);
+            }
+        }
+        let x1 = law.grow_mm(x, t, STEP_H);
+        t += scale_temperature_rise_k(heat_flux_kw_m2, x1 - x);
+        x = x1;
+        d = d1;
+        h += STEP_H;
+    }
+    Some(ProfileProjection {
+        profile: format!("measured mean temperature with scale growth ({heat_flux_kw_m2:.0} kW/m²)"),
+        basis: format!(
+            "starts at {:.1} °C (mean in the creep range, oxide correction included) and {:.2} mm of scale; \
+             after {h:.0} h the scale is {x:.2} mm and the metal {:.1} °C ({}; scale conductivity {} W/(m·K), from memory)",
+            kelvin_to_celsius(t0),
+            oxide_mm,
+            kelvin_to_celsius(t),
+            law.source,
+            crate::physics::inspection::SCALE_CONDUCTIVITY_W_PER_M_K
+        ),
+        life_fraction_rate_per_h: first_rate,
+        hours_to: levels,
+    })
+}
+
 fn geometry(plan: &ComponentPlan, st: &ComponentState) -> Geometry {
     match plan.stress {
         StressPlan::Hoop {
@@ -437,6 +492,28 @@ pub fn component(
         "life fraction by Robinson's time-fraction rule; hoop stress by the configured formula".into(),
         "inspection findings re-base the ledger at their dates (see the records below); built-in correlations are screening values".into(),
     ];
+    let projections = {
+        let mut p = projections(plan, st, shift_k);
+        // The newest applied, unsuperseded oxide finding with a heat flux.
+        let scale = inspections
+            .iter()
+            .rev()
+            .filter(|r| r.kind == "oxide_thickness" && !inspections.iter().any(|o| o.supersedes == Some(r.id)))
+            .filter(|r| st.inspection.events.iter().any(|e| e.id == r.id && e.applied))
+            .find_map(|r| {
+                let d: crate::inspection::Detail = serde_json::from_str(&r.detail).ok()?;
+                let x =
+                    crate::inspection::finding_of(&r.kind, r.value, &r.unit, &r.detail).ok().and_then(|f| match f {
+                        crate::engine::inspection::Finding::OxideThickness { oxide_mm, .. } => Some(oxide_mm),
+                        _ => None,
+                    })?;
+                Some((x, d.heat_flux_kw_m2?))
+            });
+        if let Some((x, q)) = scale {
+            p.extend(scale_growth_projection(plan, st, x, q));
+        }
+        p
+    };
     ComponentAssessment {
         material: material(plan),
         material_description: plan.material.description.clone(),
@@ -448,7 +525,7 @@ pub fn component(
         confidence,
         temperature_correction_k: st.inspection.temperature_correction_k,
         replica_bounds: st.inspection.replica_bounds,
-        projections: projections(plan, st, shift_k),
+        projections,
         assumptions,
         figures,
     }

@@ -2,7 +2,7 @@
 //! shutdown of day [`super::sim::SHUTDOWN_DAY`] the outage team surveys
 //! outlet leg A. A wall thickness (ultrasonic, 5.50 mm where the
 //! configuration carries 8.0 − 2.2 = 5.8 mm) and a steam-side oxide
-//! thickness (0.30 mm after 62 000 service hours) are entered into the
+//! thickness (0.30 mm after 62 000 service hours, at a heat flux of 120 kW/m²) are entered into the
 //! running service's ledger the way the command line does it, so the
 //! status page and `lifeledger report` show them.
 
@@ -41,7 +41,7 @@ pub fn findings(finding_ms: i64, now_ms: i64) -> Vec<NewInspection> {
         base(
             "oxide_thickness",
             0.30,
-            "{\"service_h\":62000}",
+            "{\"service_h\":62000,\"heat_flux_kw_m2\":120}",
             "ultrasonic oxide measurement",
             "internal steam-side scale (demo data)",
         ),

@@ -49,6 +49,10 @@ pub struct FindingArgs {
     /// Oxide: service hours the scale grew in.
     #[arg(long, value_name = "HOURS")]
     pub service_hours: Option<f64>,
+    /// Oxide: heat flux through the tube wall, kW/m² (the report then
+    /// projects the scale's growth and its insulating effect).
+    #[arg(long, value_name = "KW_PER_M2")]
+    pub heat_flux_kw_m2: Option<f64>,
     /// Method (for example "UT, 5 MHz dual element").
     #[arg(long, default_value = "")]
     pub method: String,
@@ -94,7 +98,12 @@ pub enum InspectionCommand {
 
 /// The detail JSON of the arguments.
 fn detail_of(a: &FindingArgs) -> String {
-    let d = super::Detail { class: a.class.clone(), rebase: a.rebase, service_h: a.service_hours };
+    let d = super::Detail {
+        class: a.class.clone(),
+        rebase: a.rebase,
+        service_h: a.service_hours,
+        heat_flux_kw_m2: a.heat_flux_kw_m2,
+    };
     serde_json::to_string(&d).unwrap_or_else(|_| "{}".into())
 }
 

@@ -131,6 +131,34 @@ impl OxideLaw {
     }
 }
 
+impl OxideLaw {
+    /// The hours of steady service at `t_k` that grow `oxide_mm`: the law
+    /// inverted for time, `log10 t = (log10 x − b)/(a·T_R) − c`.
+    pub fn hours_to_grow(&self, t_k: f64, oxide_mm: f64) -> f64 {
+        let x_mils = (oxide_mm / MM_PER_MIL).max(f64::MIN_POSITIVE);
+        10f64.powf((x_mils.log10() - self.b) / (self.a * t_k * 1.8) - self.c)
+    }
+
+    /// The scale `oxide_mm` thick after `dt_h` more hours at `t_k`: grown
+    /// on from the equivalent time at that temperature (the usual
+    /// time-equivalence step for a law of the Larson-Miller kind).
+    pub fn grow_mm(&self, oxide_mm: f64, t_k: f64, dt_h: f64) -> f64 {
+        self.thickness_mm(t_k, self.hours_to_grow(t_k, oxide_mm) + dt_h)
+    }
+}
+
+/// Thermal conductivity of steam-side magnetite scale, W/(m·K): 0.5, the
+/// low end of the values commonly used for it (about 0.5–0.6; from memory),
+/// so the temperature rise across the scale is on the high side.
+pub const SCALE_CONDUCTIVITY_W_PER_M_K: f64 = 0.5;
+
+/// Temperature rise across a scale of `oxide_mm` carrying `heat_flux_kw_m2`
+/// (flat-wall Fourier conduction, `ΔT = q·x/k`; with q in kW/m² and x in
+/// mm the factors of 1000 cancel), K.
+pub fn scale_temperature_rise_k(heat_flux_kw_m2: f64, oxide_mm: f64) -> f64 {
+    heat_flux_kw_m2 * oxide_mm / SCALE_CONDUCTIVITY_W_PER_M_K
+}
+
 /// Creep-cavitation class of a replica after Neubauer and Wedel (1983).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -232,6 +260,20 @@ mod tests {
         let t = law.effective_temperature_k(x, 1.0e5).unwrap();
         assert!((t - 813.15).abs() < 1e-9, "{t}");
         assert!(law.effective_temperature_k(0.0, 1.0e5).is_none());
+    }
+
+    /// Hand-worked: 100 kW/m² across 0.30 mm of scale with k = 0.5 W/(m·K):
+    /// ΔT = 1e5 W/m² · 3e-4 m / 0.5 W/(m·K) = 60 K. Growing on: the time to
+    /// grow a scale at T inverts the law, so growing by 0 h changes nothing
+    /// and growing is monotonic.
+    #[test]
+    fn the_scale_insulates_and_grows_by_the_law() {
+        assert!((scale_temperature_rise_k(100.0, 0.30) - 60.0).abs() < 1e-12);
+        let law = OXIDE_LAW_2_25CR_1MO;
+        let t = law.hours_to_grow(813.15, 0.16033);
+        assert!((t / 1.0e5 - 1.0).abs() < 2e-3, "{t}");
+        assert!((law.grow_mm(0.2, 830.0, 0.0) - 0.2).abs() < 1e-12);
+        assert!(law.grow_mm(0.2, 830.0, 1000.0) > 0.2);
     }
 
     #[test]

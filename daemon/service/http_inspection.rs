@@ -96,6 +96,8 @@ struct AddBody {
     #[serde(default)]
     service_h: Option<f64>,
     #[serde(default)]
+    heat_flux_kw_m2: Option<f64>,
+    #[serde(default)]
     supersedes: Option<i64>,
 }
 
@@ -193,7 +195,12 @@ async fn add(
     let Some(finding_ms) = crate::settings::validate::parse_date_ms(b.date.trim()) else {
         return (StatusCode::BAD_REQUEST, format!("date {:?}: give 2026-04-15 or RFC 3339\n", b.date)).into_response();
     };
-    let detail = crate::inspection::Detail { class: b.class, rebase: b.rebase, service_h: b.service_h };
+    let detail = crate::inspection::Detail {
+        class: b.class,
+        rebase: b.rebase,
+        service_h: b.service_h,
+        heat_flux_kw_m2: b.heat_flux_kw_m2,
+    };
     let n = NewInspection {
         component: name.clone(),
         finding_ms,
