@@ -110,7 +110,7 @@ pub fn finding_of(kind: &str, value: Option<f64>, unit: &str, detail: &str) -> R
                 return Err("an oxide thickness must be above 0".into());
             }
             if let Some(q) = d.heat_flux_kw_m2 {
-                if !(q >= 0.0 && q < 2000.0) {
+                if !(0.0..2000.0).contains(&q) {
                     return Err(format!("heat flux {q} kW/m² is not plausible (0 to 2000)"));
                 }
             }
