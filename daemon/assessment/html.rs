@@ -262,6 +262,39 @@ fn component(c: &ComponentAssessment, first: bool) -> String {
         }
         s.push_str("</table>");
     }
+    // Hours by temperature and pressure class together (rows with hours).
+    let tp = &f.histograms.temperature_pressure;
+    if tp.hours.iter().flatten().any(|&h| h > 0.0) {
+        let label = |edges: &[f64], i: usize, d: usize| {
+            let lo = i.checked_sub(1).and_then(|j| edges.get(j));
+            match (lo, edges.get(i)) {
+                (Some(a), Some(b)) => format!("{a:.d$}–{b:.d$}"),
+                (None, Some(b)) => format!("< {b:.d$}"),
+                (Some(a), None) => format!("≥ {a:.d$}"),
+                (None, None) => "all".into(),
+            }
+        };
+        let cols: Vec<usize> = (0..=tp.pressure_edges_mpa.len())
+            .filter(|&j| tp.hours.iter().any(|r| r.get(j).is_some_and(|&h| h > 0.0)))
+            .collect();
+        s.push_str("<h3>Hours by temperature and pressure class</h3><table class=\"small\"><tr><th>°C \\ MPa</th>");
+        for &j in &cols {
+            s.push_str(&format!("<th>{}</th>", esc(&label(&tp.pressure_edges_mpa, j, 1))));
+        }
+        s.push_str("</tr>");
+        for (i, row) in tp.hours.iter().enumerate() {
+            if !row.iter().any(|&h| h > 0.0) {
+                continue;
+            }
+            s.push_str(&format!("<tr><td>{}</td>", esc(&label(&tp.temperature_edges_c, i, 0))));
+            for &j in &cols {
+                let h = row.get(j).copied().unwrap_or(0.0);
+                s.push_str(&format!("<td class=\"n\">{}</td>", if h > 0.0 { format!("{h:.1}") } else { "·".into() }));
+            }
+            s.push_str("</tr>");
+        }
+        s.push_str("</table>");
+    }
     s.push_str("<h3>Inspection records</h3>");
     if c.inspections.is_empty() {
         s.push_str("<p class=\"muted\">None recorded.</p>");
