@@ -15,20 +15,24 @@
 //!   database sink.
 //! * [`fit`]: material constants from creep test data.
 //! * [`report`]: human and JSON renderings of ledgers and derived checks.
+//! * [`assessment`]: the assessment report (HTML, CSV, JSON) of `lifeledger report`.
 //! * [`store`]: the durable ledger (SQLite, one transaction per batch).
 //! * [`recovery`]: checkpoints, rollback and backfill of a poisoned ledger.
 //! * [`sink`]: delivery of line protocol to the time-series database.
 //! * [`alarm`]: threshold alarms with ISA-18.2 states.
+//! * [`inspection`]: inspection records between people, the ledger file and the engine.
 
 // Validation writes `!(x > 0.0)` on purpose: it is also true for NaN, which
 // must be refused too.
 #![allow(clippy::neg_cmp_op_on_partial_ord)]
 
 pub mod alarm;
+pub mod assessment;
 pub mod demo;
 pub mod engine;
 pub mod fit;
 pub mod ingest;
+pub mod inspection;
 pub mod lineproto;
 pub mod physics;
 pub mod recovery;

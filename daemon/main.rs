@@ -68,6 +68,11 @@ enum Command {
         /// Never show a progress bar (it is shown only on a terminal anyway).
         #[arg(long)]
         no_progress: bool,
+        /// Inspection records to apply at their dates: the JSON of
+        /// `lifeledger inspection list --json` (records a service accepted keep
+        /// their effective instants, so the replay gives the live ledger).
+        #[arg(long, value_name = "FILE")]
+        inspections: Option<PathBuf>,
     },
     /// Validate a configuration and print the values an engineer should sanity-check.
     ///
@@ -298,6 +303,41 @@ enum Command {
         #[command(subcommand)]
         cmd: lifeledger::fit::FitCommand,
     },
+    /// Write the assessment report of a component, a unit or the plant (HTML, CSV, JSON).
+    ///
+    /// Reads the service's ledger read-only (safe while it runs) and writes
+    /// report.html (prints on A4 and US letter), report.csv and report.json
+    /// into --out. Projections under design conditions, design + --shift-k,
+    /// the measured profile and the measured profile + --shift-k stand
+    /// beside the recent-rate projection.
+    #[command(after_help = CAUTION_HELP)]
+    Report {
+        #[arg(long, short)]
+        config: PathBuf,
+        /// Ledger file [default: the [store] path of the configuration].
+        #[arg(long)]
+        ledger: Option<PathBuf>,
+        /// One component.
+        #[arg(long, value_name = "NAME", conflicts_with = "unit")]
+        component: Option<String>,
+        /// Every component of one unit.
+        #[arg(long, value_name = "UNIT")]
+        unit: Option<String>,
+        /// Directory the three files go into.
+        #[arg(long, value_name = "DIR")]
+        out: PathBuf,
+        /// Temperature shift of the "what if" profiles, K.
+        #[arg(long, default_value_t = 10.0)]
+        shift_k: f64,
+    },
+    /// Inspection findings in the ledger: add, correct (supersede), list.
+    ///
+    /// Works on a stopped service's ledger and, safely, on a running one's.
+    #[command(after_help = CAUTION_HELP)]
+    Inspection {
+        #[command(subcommand)]
+        cmd: lifeledger::inspection::cli::InspectionCommand,
+    },
 }
 
 #[derive(Clone, Copy, ValueEnum, PartialEq)]
@@ -390,8 +430,8 @@ fn main() {
                 .and_then(|rt| rt.block_on(lifeledger::demo::run(opts)))
                 .map(|_| 0)
         }
-        Command::Replay { config, input, format, write_lp, lp_interval_s, no_progress } => {
-            cmd_replay(config, input, format, write_lp, lp_interval_s, no_progress)
+        Command::Replay { config, input, format, write_lp, lp_interval_s, no_progress, inspections } => {
+            cmd_replay(config, input, format, write_lp, lp_interval_s, no_progress, inspections)
         }
         Command::CheckConfig { config, config_flag, format, file_only } => {
             // clap requires exactly one of the two.
@@ -409,6 +449,15 @@ fn main() {
         }
         Command::Materials { action } => cmd_materials(action),
         Command::Fit { cmd } => lifeledger::fit::run(&cmd).map(|_| 0),
+        Command::Inspection { cmd } => lifeledger::inspection::cli::run(&cmd),
+        Command::Report { config, ledger, component, unit, out, shift_k } => {
+            let scope = match (component, unit) {
+                (Some(c), _) => lifeledger::assessment::Scope::Component(c),
+                (None, Some(u)) => lifeledger::assessment::Scope::Unit(u),
+                (None, None) => lifeledger::assessment::Scope::Plant,
+            };
+            cmd_report(&config, ledger, &scope, &out, shift_k)
+        }
     };
     match result {
         Ok(code) => std::process::exit(code),
@@ -440,6 +489,24 @@ fn rows_heading(label: &str, total: u64, listed: usize) -> String {
     }
 }
 
+fn cmd_report(
+    config: &std::path::Path,
+    ledger: Option<PathBuf>,
+    scope: &lifeledger::assessment::Scope,
+    out: &std::path::Path,
+    shift_k: f64,
+) -> Result<i32> {
+    anyhow::ensure!(shift_k.is_finite(), "--shift-k {shift_k} is not a number of kelvin");
+    let (cfg, service) = lifeledger::service::load_service(config)?;
+    let path = ledger.unwrap_or(service.store.path);
+    let now = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).unwrap_or_default().as_millis() as i64;
+    let a = lifeledger::assessment::build(&cfg, &path, scope, shift_k, now, false)?;
+    for p in lifeledger::assessment::write(&a, out)? {
+        println!("wrote {}", p.display());
+    }
+    Ok(0)
+}
+
 fn load(config: &std::path::Path) -> Result<lifeledger::settings::LoadedConfig> {
     load_plan(config).map_err(|e| anyhow::anyhow!("{e}"))
 }
@@ -451,12 +518,17 @@ fn cmd_replay(
     write_lp: Option<PathBuf>,
     lp_interval_s: i64,
     no_progress: bool,
+    inspections: Option<PathBuf>,
 ) -> Result<i32> {
     let cfg = load(&config)?;
     for w in &cfg.warnings {
         eprintln!("warning: {w}");
     }
     let mut engine = Engine::new(cfg.plan.clone());
+    if let Some(p) = &inspections {
+        let rows = lifeledger::inspection::load_records_file(p)?;
+        lifeledger::inspection::offer_rows_for_replay(&mut engine, &rows).map_err(|e| anyhow::anyhow!("{e}"))?;
+    }
     let counter = std::sync::Arc::new(std::sync::atomic::AtomicU64::new(0));
     let total = std::fs::metadata(&input).map(|m| m.len()).unwrap_or(0);
     let reader = lifeledger::replay::open_input(&input, Some(counter.clone()))

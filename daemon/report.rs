@@ -241,6 +241,15 @@ impl ComponentReport {
         if st.flags.wall_exhausted {
             flags.push("wall_exhausted".into());
         }
+        // Inspection findings (engine::inspection): a replica class whose
+        // life-fraction bounds the ledger lay outside, and a metal
+        // temperature corrected from an oxide measurement.
+        if st.inspection.replica_outside {
+            flags.push("outside_replica_bounds".into());
+        }
+        if st.inspection.temperature_correction_k != 0.0 {
+            flags.push("temperature_corrected".into());
+        }
         // Robinson's rule: a life fraction of 1 is predicted rupture.
         let life_exhausted = has_creep && st.life_fraction >= 1.0;
         if life_exhausted {

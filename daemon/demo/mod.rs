@@ -10,6 +10,7 @@
 //! started where they are set never writes into that service's ledger or
 //! database.
 
+pub mod inspections;
 pub mod sim;
 
 use crate::ingest::now_ms;
@@ -185,10 +186,14 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
     let speed = opts.speed.max(1.0);
     let period_ms = opts.sample_period_s.max(1) * 1000;
     let http = opts.http.clone();
+    let ledger_path = dir.join("ledger.sqlite");
     let publisher = tokio::spawn(async move {
         let began = Instant::now();
         let mut next_ms = start_ms;
         let mut last_print = Instant::now();
+        // The outage inspection: entered half a day into the shutdown.
+        let inspection_ms = start_ms + ((sim::SHUTDOWN_DAY + 0.5) * 86_400_000.0) as i64;
+        let mut inspected = false;
         loop {
             // The simulated clock stops at the present: the service rejects
             // samples stamped ahead of the wall clock.
@@ -202,6 +207,17 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
                     }
                 }
                 next_ms += period_ms;
+            }
+            if !inspected && sim_now >= inspection_ms && ledger_path.exists() {
+                inspected = true;
+                let finding_ms = start_ms + (sim::SHUTDOWN_DAY * 86_400_000.0) as i64 + 3_600_000;
+                match inspections::enter(&ledger_path, finding_ms, now_ms()) {
+                    Ok(n) if n > 0 => {
+                        println!("  outage inspection: {n} findings entered for {}", inspections::COMPONENT)
+                    }
+                    Ok(_) => {}
+                    Err(e) => tracing::warn!("demo inspection records not entered: {e}"),
+                }
             }
             if last_print.elapsed() >= Duration::from_secs(5) {
                 last_print = Instant::now();

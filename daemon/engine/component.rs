@@ -124,6 +124,9 @@ pub struct ComponentState {
     pub flags: LedgerFlags,
     pub now: Conditions,
     pub histogram: TimeAtCondition,
+    /// Inspection findings and what they set (`engine::inspection`).
+    #[serde(default, skip_serializing_if = "super::inspection::InspectionState::is_empty")]
+    pub inspection: super::inspection::InspectionState,
 }
 
 impl ComponentState {
@@ -149,6 +152,7 @@ impl ComponentState {
             flags: LedgerFlags::default(),
             now: Conditions::default(),
             histogram: TimeAtCondition::new(plan.temperature_edges_k.clone(), plan.pressure_edges_mpa.clone()),
+            inspection: Default::default(),
         }
     }
 
@@ -442,7 +446,12 @@ fn integrate_piece(
         }
     };
     let hold = |last: Option<f64>| last.unwrap_or(0.0);
-    let (lt, gt) = line_of(plan.metal_temperature, tags, tag_plans, a, b, pick(design_t));
+    let (mut lt, gt) = line_of(plan.metal_temperature, tags, tag_plans, a, b, pick(design_t));
+    if plan.temperature_correction_k != 0.0 {
+        // An inspection's correction (engine::inspection), measured and gap values alike.
+        lt.v0 += plan.temperature_correction_k;
+        lt.v1 += plan.temperature_correction_k;
+    }
     let (lp, gp) = line_of(plan.pressure, tags, tag_plans, a, b, pick(design_p));
     let (mut ll, mut ls, mut lsl, mut lf) = (Line::default(), Line::default(), Line::default(), Line::default());
     let mut gw = false;

@@ -23,6 +23,7 @@
 //!   counted as unmonitored hours.
 
 pub mod component;
+pub mod inspection;
 pub mod plan;
 pub mod signal;
 
@@ -630,8 +631,8 @@ impl Engine {
                     st.integrated_to_ms = Some(to_ms);
                     st.first_sample_ms = Some(to_ms);
                 }
-                Some(x) if x < to_ms => component::advance(
-                    &self.plan.components[ci],
+                Some(x) if x < to_ms => inspection::advance(
+                    &mut self.plan.components[ci],
                     &[],
                     &mut self.scratch[ci],
                     st,
@@ -660,8 +661,8 @@ impl Engine {
             for &ci in self.consumers.of(tid) {
                 let ci = ci as usize;
                 if self.components[ci].integrated_to_ms.is_some_and(|x| x < last_t) {
-                    component::advance(
-                        &self.plan.components[ci],
+                    inspection::advance(
+                        &mut self.plan.components[ci],
                         self.inputs.of(ci),
                         &mut self.scratch[ci],
                         &mut self.components[ci],
@@ -701,8 +702,8 @@ impl Engine {
                 w = t;
             }
             if st.integrated_to_ms.is_some_and(|x| x < w) {
-                component::advance(
-                    &self.plan.components[ci],
+                inspection::advance(
+                    &mut self.plan.components[ci],
                     self.inputs.of(ci),
                     &mut self.scratch[ci],
                     st,
@@ -817,6 +818,7 @@ impl Engine {
         let newest_held = self.held.back().map(|(_, h)| h.time_ms);
         self.frontier_ms = newest_cursor.max(newest_held);
         self.clock_ms = self.clockless.iter().filter_map(|&ci| self.components[ci as usize].integrated_to_ms).max();
+        self.derive_inspections();
         left
     }
 }

@@ -132,6 +132,13 @@ pub struct ComponentPlan {
     pub initial_life_fraction: f64,
     pub initial_creep_strain: f64,
     pub initial_wear_depth_mm: f64,
+    /// When the initial values were established (`[component.initial]
+    /// as_of`): a history starting before it is re-based there
+    /// (`engine::inspection`).
+    pub initial_as_of_ms: Option<i64>,
+    /// Added to the measured metal temperature, K: the correction an
+    /// oxide finding sets (`engine::inspection`); 0 from the configuration.
+    pub temperature_correction_k: f64,
     pub thresholds: Thresholds,
     /// Operating hours the recent-rate window must hold before projections
     /// use the recent rates alone (the engine-wide setting).

@@ -6,6 +6,7 @@
 //! [`units`] and happen at the edges.
 
 pub mod histogram;
+pub mod inspection;
 pub mod larson_miller;
 pub mod material;
 pub mod norton;

@@ -77,6 +77,10 @@ pub fn backfill(
     let mut engine = Engine::new(cfg.plan.clone());
     // Ledgers of components no longer configured stay in the file as they are.
     engine.import_state(stored.engine);
+    // Inspection records: accepted ones the states lack, and pending ones
+    // (applied at their dates when the backfill reaches them).
+    crate::inspection::offer_accepted(&mut engine, &store.inspections(None)?);
+    let accepted = crate::inspection::accept_pending(&mut engine, &store, &[], &mut vec![])?;
     // The samples the service left in the reorder window: the replay's
     // final flush integrates them, so their rows go in the same commit.
     let held_in_file = engine.held_seqs();
@@ -114,6 +118,8 @@ pub fn backfill(
             meta: &meta,
             checkpoints: &checkpoints,
             held_released: &held_in_file,
+            inspections_accepted: &accepted,
+            history: &crate::inspection::history_points(&engine, &changed),
             ..Default::default()
         })
         .with_context(|| format!("backfill of {}: nothing was written", path.display()))?;

@@ -28,6 +28,8 @@ pub struct HttpState {
     pub journal: crate::store::JournalReader,
     /// The ledger's component trends, for `/api/components/{name}/trend`.
     pub trend: crate::store::TrendReader,
+    /// The configuration the service started with, for `/report/{name}`.
+    pub config: Option<Arc<crate::settings::LoadedConfig>>,
 }
 
 /// Events `/api/components/{name}/alarms` returns without `limit`.
@@ -46,6 +48,7 @@ pub fn router(state: HttpState) -> Router {
         .route("/api/components/:name/alarms", get(alarm_history))
         .route("/api/materials/:grade", get(material))
         .route("/api/alarms/command", axum::routing::post(alarm_command))
+        .merge(super::http_inspection::routes())
         .merge(super::page::routes())
         .with_state(state)
 }

@@ -165,6 +165,8 @@ pub struct Ledger {
     /// HTTP commands carried out but not yet committed: the component
     /// addressed and where the outcome goes once the commit succeeded.
     command_replies: Vec<(String, tokio::sync::oneshot::Sender<CommandOutcome>)>,
+    /// Inspection records accepted into the engine, written with the next commit.
+    inspections_accepted: Vec<(i64, String)>,
     /// Subscriptions in force and what the last reloads left undone.
     reloads: Reloads,
 }
@@ -392,8 +394,10 @@ impl Ledger {
             database_link: None,
             database_refused: false,
             command_replies: vec![],
+            inspections_accepted: vec![],
             service,
         };
+        l.offer_stored_inspections()?;
         // Thresholds go to the database at start-up, at the newest event time.
         let t = l.newest_ms.unwrap_or_else(now_ms);
         l.queue_thresholds(t);
@@ -550,6 +554,7 @@ impl Ledger {
     }
 
     fn periodic(&mut self) {
+        self.take_inspections();
         let now = now_ms();
         // Held samples whose window of wall time has passed (a feed that
         // stopped), and parts without tag inputs, move with the wall clock.
@@ -1063,6 +1068,8 @@ impl Ledger {
             alarm_events: &journal,
             trend_points: &trend_points,
             checkpoints: &checkpoints,
+            inspections_accepted: &self.inspections_accepted,
+            history: &crate::inspection::history_points(&self.engine, &changed),
         };
         match self.store.commit(&commit) {
             Ok(stats) => {
@@ -1092,6 +1099,7 @@ impl Ledger {
                 self.dirty_tags.clear();
                 self.held_added.clear();
                 self.held_released.clear();
+                self.inspections_accepted.clear();
                 self.dirty_alarms.clear();
                 let events = std::mem::take(&mut self.events);
                 self.publish_alarms(&events);
@@ -1391,6 +1399,8 @@ impl Ledger {
         let _ = self.snapshot_tx.send(Arc::new(snap));
     }
 }
+
+mod inspection;
 
 #[cfg(test)]
 mod tests {

@@ -19,6 +19,7 @@
 
 pub mod commit_retry;
 pub mod http;
+pub mod http_inspection;
 pub mod ledger;
 pub mod outbox;
 pub mod page;
@@ -120,6 +121,7 @@ pub async fn run_until_with(
         },
         None => None,
     };
+    let report_config = Arc::new(cfg.clone());
     let mut ledger = Ledger::open(cfg, svc.clone(), client.clone(), snap_tx)
         .with_context(|| format!("opening the ledger {}", svc.store.path.display()))?;
     ledger.set_command_token(token.clone());
@@ -143,6 +145,7 @@ pub async fn run_until_with(
         library,
         journal: crate::store::JournalReader::new(&svc.store.path),
         trend: crate::store::TrendReader::new(&svc.store.path),
+        config: Some(report_config),
     };
     let mut http_shutdown = shutdown_tx.subscribe();
     let http_task = tokio::spawn(async move {

@@ -222,6 +222,13 @@ pub fn parse_date_ms(s: &str) -> Option<i64> {
         .map(|d| d.and_utc().timestamp_millis())
 }
 
+/// The date a free text begins with (`2026-09-30 (spring outage)`), for
+/// `[component.initial] as_of`; `None` when it begins with no date.
+fn leading_date_ms(s: &str) -> Option<i64> {
+    let first = s.split_whitespace().next()?;
+    parse_date_ms(first)
+}
+
 /// The event-time rules of `[engine]`, in ms.
 struct Timing {
     future_margin_ms: i64,
@@ -754,6 +761,8 @@ impl Validator {
             initial_life_fraction: c.initial.life_fraction,
             initial_creep_strain: c.initial.creep_strain,
             initial_wear_depth_mm: c.initial.wear_depth_mm,
+            initial_as_of_ms: c.initial.as_of.as_deref().and_then(leading_date_ms),
+            temperature_correction_k: 0.0,
             thresholds,
             recent_rate_settling_h: s.engine.recent_rate_settling_h,
             temperature_edges_k,

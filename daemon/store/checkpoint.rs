@@ -197,10 +197,14 @@ impl Store {
                 tx.prepare_cached("DELETE FROM checkpoint WHERE component = ?1 AND at_ms > ?2").map_err(fail)?;
             let mut trend =
                 tx.prepare_cached("DELETE FROM trend_point WHERE component = ?1 AND t_ms > ?2").map_err(fail)?;
+            // The daily history past the restored instant goes too.
+            let mut history =
+                tx.prepare_cached("DELETE FROM history_day WHERE component = ?1 AND t_ms > ?2").map_err(fail)?;
             for (name, json, at_ms) in r.components {
                 state.execute((name, json)).map_err(fail)?;
                 later.execute((name, at_ms)).map_err(fail)?;
                 trend.execute((name, at_ms)).map_err(fail)?;
+                history.execute((name, at_ms)).map_err(fail)?;
             }
         }
         super::upsert(

@@ -46,6 +46,7 @@
 pub mod checkpoint;
 pub mod error;
 pub mod held;
+pub mod inspection;
 pub mod journal;
 pub mod outbox;
 pub mod schema;
@@ -121,6 +122,11 @@ pub struct Commit<'a> {
     /// Checkpoints offered for this batch; only those due are written (see
     /// [`checkpoint`]), and old ones of the components written are pruned.
     pub checkpoints: &'a [CheckpointRow],
+    /// (record id, JSON): inspection records the ledger accepted in this
+    /// batch (see [`inspection`]).
+    pub inspections_accepted: &'a [(i64, String)],
+    /// (component name, point): the daily history (see [`inspection`]).
+    pub history: &'a [(String, inspection::HistoryPoint)],
 }
 
 /// Everything but the outbox, the alarm journal and the trends, as [`Store::load`]
@@ -364,6 +370,8 @@ impl Store {
         let days = i64::try_from(self.checkpoint_days).unwrap_or(i64::MAX);
         let cutoff = now.saturating_sub(days.saturating_mul(86_400_000));
         let checkpoints = checkpoint::write(&tx, c.checkpoints, &self.checkpoint_newest, now, cutoff).map_err(fail)?;
+        inspection::accept(&tx, c.inspections_accepted).map_err(fail)?;
+        inspection::upsert_history(&tx, c.history).map_err(fail)?;
         outbox::append(&tx, c.outbox).map_err(fail)?;
         let stats = outbox::totals(&tx).map_err(fail)?;
         tx.commit().map_err(fail)?;
@@ -409,6 +417,15 @@ pub fn read_ledger(path: &Path) -> Result<Loaded, StoreError> {
             })
         }
     }
+    let conn = read_only(path).map_err(|e| StoreError::sqlite(path, "opening the ledger for reading", e))?;
+    load_from(&conn, path)
+}
+
+/// [`read_ledger`] for a reader inside the process that holds the ledger
+/// open (the HTTP handlers of the running service): it looks at the file
+/// through SQLite only, never with a plain file descriptor, whose closing
+/// would drop the ledger thread's POSIX locks (see [`Store::attach`]).
+pub fn read_ledger_beside(path: &Path) -> Result<Loaded, StoreError> {
     let conn = read_only(path).map_err(|e| StoreError::sqlite(path, "opening the ledger for reading", e))?;
     load_from(&conn, path)
 }
@@ -684,6 +701,7 @@ mod tests {
                 ],
                 held_released: &[4],
                 checkpoints: &[],
+                ..Default::default()
             };
             store.commit(&batch).unwrap();
         }

@@ -51,6 +51,14 @@ pub const MIGRATIONS: &[Migration] = &[
         summary: "parked lines: outbox batches the database refused as malformed, kept instead of dropped",
         apply: v6_parked_line,
     },
+    Migration {
+        summary: "inspection records: findings per component, append-only, corrections supersede",
+        apply: super::inspection::v7_inspection_record,
+    },
+    Migration {
+        summary: "daily history: one point a day per component, kept for the life of the part",
+        apply: super::inspection::v8_history_day,
+    },
 ];
 
 /// The newest schema version this build knows: the number of migrations.

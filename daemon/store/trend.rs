@@ -195,6 +195,11 @@ pub struct TrendReader {
 }
 
 impl TrendReader {
+    /// The ledger file it reads.
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
     /// A reader of the ledger at `path`, which the ledger thread has
     /// already opened (and so created and brought up to date).
     pub fn new(path: &Path) -> TrendReader {

@@ -24,6 +24,7 @@ const APP_JS: &str = include_str!("app.js");
 const OVERVIEW_JS: &str = include_str!("overview.js");
 const COMPONENT_JS: &str = include_str!("component.js");
 const ICON_SVG: &str = include_str!("icon.svg");
+const INSPECTION_JS: &str = include_str!("inspection.js");
 
 /// The page routes, merged into the service router.
 pub fn routes() -> Router<HttpState> {
@@ -34,6 +35,7 @@ pub fn routes() -> Router<HttpState> {
         .route("/page/app.js", get(|| async { asset("text/javascript; charset=utf-8", APP_JS) }))
         .route("/page/overview.js", get(|| async { asset("text/javascript; charset=utf-8", OVERVIEW_JS) }))
         .route("/page/component.js", get(|| async { asset("text/javascript; charset=utf-8", COMPONENT_JS) }))
+        .route("/page/inspection.js", get(|| async { asset("text/javascript; charset=utf-8", INSPECTION_JS) }))
         .route("/page/icon.svg", get(|| async { asset("image/svg+xml", ICON_SVG) }))
 }
 
@@ -87,7 +89,7 @@ mod tests {
             assert!(t.starts_with("{{FRAME}}"));
             assert!(t.contains("/page/app.js"));
         }
-        for a in [APP_CSS, APP_JS, OVERVIEW_JS, COMPONENT_JS, ICON_SVG] {
+        for a in [APP_CSS, APP_JS, OVERVIEW_JS, COMPONENT_JS, ICON_SVG, INSPECTION_JS] {
             // The SVG namespace is a name, not a download.
             let a = a.replace("http://www.w3.org/2000/svg", "");
             assert!(!a.contains("http://") && !a.contains("https://"), "assets must not load from the internet");
