@@ -35,14 +35,28 @@ fn demo_moves_ledgers_and_raises_a_warning_and_a_stale_tag_alarm() {
     };
     // Bounded by count (the harness's poll); the scenario reaches both
     // alarms by simulated day 6, about six seconds at the default speed.
-    let s = poll_until("a warning and a stale-tag alarm", || {
+    // Exactly what the banner promises: day 3, over-temperature on outlet
+    // leg A at warning; day 4 to 6, leg B's thermocouple out of range,
+    // then stale.
+    let names_leg_b = |e: &serde_json::Value| {
+        let text = format!("{} {} {}", e["component"], e["message"], e["detail"]);
+        text.contains("TE-311B") || text.contains("OUTLET-LEG-B")
+    };
+    let s = poll_until("the promised warning, out-of-range and stale-tag alarms", || {
         snapshot().filter(|s| {
-            s["recent_events"]
-                .as_array()
-                .is_some_and(|ev| ev.iter().any(|e| e["severity"] == "warning" && e["index"] != "sensor_stale"))
-                && active(s, "sensor_stale", None)
+            let ev = s["recent_events"].as_array().cloned().unwrap_or_default();
+            ev.iter().any(|e| {
+                e["index"] == "metal_temperature_over_design"
+                    && e["severity"] == "warning"
+                    && e["transition"] == "activated"
+                    && e["component"] == "U2-SH3-OUTLET-LEG-A"
+            }) && ev
+                .iter()
+                .any(|e| e["index"] == "sensor_out_of_range" && e["transition"] == "activated" && names_leg_b(e))
+                && ev.iter().any(|e| e["index"] == "sensor_stale" && e["transition"] == "activated" && names_leg_b(e))
         })
     });
+    assert!(active(&s, "sensor_stale", None));
     let moved = s["components"]
         .as_array()
         .unwrap()
@@ -114,4 +128,58 @@ fn demo_ignores_the_production_environment() {
     assert_eq!(queued, 0, "points queued for a database the demo was not given");
     // And it says so.
     assert!(stdout.contains("LIFELEDGER__") && stdout.contains("ignored"), "{stdout}");
+}
+
+/// Ctrl-C (SIGINT) stops the demo cleanly; alarm events are printed on the
+/// terminal as they happen; without `--state-dir` the temporary state
+/// directory is removed on the way out.
+#[test]
+fn demo_prints_alarms_stops_on_ctrl_c_and_cleans_up() {
+    let port = free_port();
+    let dir = tempfile::tempdir().unwrap();
+    let out_path = dir.path().join("stdout");
+    let mut child = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+        .args(["demo", "--http", &format!("127.0.0.1:{port}")])
+        .stdout(std::fs::File::create(&out_path).unwrap())
+        .stderr(Stdio::null())
+        .spawn()
+        .unwrap();
+    let stdout = || std::fs::read_to_string(&out_path).unwrap_or_default();
+    // The scenario's thermocouple failure (day 4 to 6 at a day a second).
+    let text = poll_until("an alarm line on the terminal", || {
+        let t = stdout();
+        t.lines().any(|l| l.trim_start().starts_with("alarm ")).then_some(t)
+    });
+    let state = text
+        .lines()
+        .find_map(|l| l.trim_start().strip_prefix("ledger").map(|p| std::path::PathBuf::from(p.trim())))
+        .and_then(|p| p.parent().map(|d| d.to_path_buf()))
+        .unwrap_or_else(|| panic!("the banner names the ledger:\n{text}"));
+    assert!(state.exists(), "the temporary state directory exists while the demo runs");
+    Command::new("kill").args(["-INT", &child.id().to_string()]).status().unwrap();
+    let status = poll_until("the demo to stop after SIGINT", || child.try_wait().unwrap());
+    assert!(status.success(), "Ctrl-C is a clean stop: {status}\n{}", stdout());
+    assert!(!state.exists(), "the temporary state directory {} is removed on exit", state.display());
+    assert!(stdout().contains("removed"), "{}", stdout());
+}
+
+/// An HTTP port that is taken is reported before the banner promises a
+/// status page there.
+#[test]
+fn demo_refuses_a_taken_http_port_before_its_banner() {
+    let taken = std::net::TcpListener::bind("127.0.0.1:0").unwrap();
+    let addr = taken.local_addr().unwrap().to_string();
+    let o = common::output_within_budget(
+        {
+            let mut c = Command::new(env!("CARGO_BIN_EXE_lifeledger"));
+            c.args(["demo", "--duration", "30", "--http", &addr]);
+            c
+        },
+        "lifeledger demo on a taken port",
+    );
+    let out = String::from_utf8_lossy(&o.stdout);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(!o.status.success(), "{out}{err}");
+    assert!(err.contains(&addr), "the error names the address: {err}");
+    assert!(!out.contains("status page"), "no banner for a page that cannot be served:\n{out}");
 }

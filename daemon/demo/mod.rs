@@ -72,6 +72,13 @@ dynamic_filters = true
 
 /// Run the demo until the duration ends or Ctrl-C.
 pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
+    // The status page's address first: a banner must not promise a page
+    // that cannot be served. (The listener is released for the service,
+    // which binds it a moment later.)
+    drop(
+        std::net::TcpListener::bind(&opts.http)
+            .with_context(|| format!("--http {}: cannot listen there (in use?); give another address", opts.http))?,
+    );
     let broker_port = free_port()?;
     let mut broker = rumqttd::Broker::new(broker_config(broker_port)?);
     std::thread::Builder::new().name("demo-broker".into()).spawn(move || {
@@ -125,7 +132,7 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
     // (LIFELEDGER__STORE__PATH, LIFELEDGER__DATABASE__URL, …, as the
     // container files set them) must not send invented data to production.
     let overrides = crate::settings::Overrides::FileOnly;
-    let (cfg, _) = crate::service::load_service_with(&config_path, &overrides)?;
+    let (cfg, svc) = crate::service::load_service_with(&config_path, &overrides)?;
     let plan = cfg.plan.clone();
 
     // The simulated clock ends near the present: it starts as far in the
@@ -176,10 +183,23 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
     mo.set_keep_alive(Duration::from_secs(30));
     mo.set_inflight(500);
     let (client, mut eventloop) = AsyncClient::new(mo, 10_000);
+    // Alarm events on the terminal as they happen (the service publishes
+    // them on the alarm event topic).
+    let events = svc.mqtt.alarm_event_topic();
+    let client_for_events = client.clone();
+    client.subscribe(events.clone(), QoS::AtLeastOnce).await.context("subscribing to the alarm events")?;
     let sim_loop = tokio::spawn(async move {
         loop {
-            if eventloop.poll().await.is_err() {
-                tokio::time::sleep(Duration::from_millis(200)).await;
+            match eventloop.poll().await {
+                Ok(rumqttc::Event::Incoming(rumqttc::Packet::Publish(p))) if p.topic == events => {
+                    println!("{}", alarm_line(&p.payload, start_ms));
+                }
+                Ok(rumqttc::Event::Incoming(rumqttc::Packet::ConnAck(_))) => {
+                    // A new session after a broker hiccup: subscribe again.
+                    let _ = client_for_events.subscribe(events.clone(), QoS::AtLeastOnce).await;
+                }
+                Ok(_) => {}
+                Err(_) => tokio::time::sleep(Duration::from_millis(200)).await,
             }
         }
     });
@@ -231,8 +251,28 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
     let result = crate::service::run_until_with(&config_path, overrides, true, stop).await;
     publisher.abort();
     sim_loop.abort();
-    println!("lifeledger demo stopped; the ledger is in {}", dir.display());
+    if opts.state_dir.is_some() {
+        println!("lifeledger demo stopped; the ledger is in {}", dir.display());
+    } else {
+        match std::fs::remove_dir_all(&dir) {
+            Ok(()) => println!(
+                "lifeledger demo stopped; its temporary state {} was removed (--state-dir DIR keeps it)",
+                dir.display()
+            ),
+            Err(e) => println!("lifeledger demo stopped; could not remove its temporary state {}: {e}", dir.display()),
+        }
+    }
     result
+}
+
+/// One alarm event as a terminal line: simulated day, severity, message.
+fn alarm_line(payload: &[u8], start_ms: i64) -> String {
+    let v: serde_json::Value = serde_json::from_slice(payload).unwrap_or_default();
+    let day =
+        v["time_ms"].as_i64().map_or(String::new(), |t| format!("day {:.1}", (t - start_ms) as f64 / 86_400_000.0));
+    let severity = v["severity"].as_str().unwrap_or("-");
+    let message = v["message"].as_str().map_or_else(|| String::from_utf8_lossy(payload).into_owned(), str::to_string);
+    format!("  alarm  {day:>8}  {severity:<8} {message}")
 }
 
 fn tempfile_dir() -> anyhow::Result<PathBuf> {

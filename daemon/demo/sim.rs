@@ -153,7 +153,7 @@ impl Simulator {
                 _ => (t.cold + (t.full - t.cold) * load * (1.0 + 0.01 * j)).max(t.cold),
             };
             if t.excursion && (EXCURSION_DAY..EXCURSION_DAY + EXCURSION_HOURS / 24.0).contains(&d) {
-                v += 32.0;
+                v += 45.0;
             }
             let mut spike = false;
             if t.failing {
