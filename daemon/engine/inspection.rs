@@ -177,6 +177,7 @@ impl InspectionState {
         *self == InspectionState::default()
     }
 
+    #[inline(always)]
     fn idle(&self, plan: &ComponentPlan) -> bool {
         (plan.initial_as_of_ms.is_none() || self.initial_rebased) && self.events.iter().all(|e| e.applied)
     }
@@ -356,7 +357,10 @@ fn apply_due(plan: &mut ComponentPlan, scratch: &mut Scratch, state: &mut Compon
 
 /// [`component::advance`] with the component's inspection events (and
 /// `[component.initial] as_of`) applied at their instants.
+/// Inlined into the engine's intake: with no finding pending (the common
+/// case) it is one check and the plain advance.
 #[allow(clippy::too_many_arguments)]
+#[inline(always)]
 pub fn advance(
     plan: &mut ComponentPlan,
     comp_tags: &[TagId],
@@ -370,8 +374,25 @@ pub fn advance(
 ) {
     if state.inspection.idle(plan) {
         component::advance(plan, comp_tags, scratch, state, tags, tag_plans, to_ms, policy, tau_h);
-        return;
+    } else {
+        advance_through_findings(plan, comp_tags, scratch, state, tags, tag_plans, to_ms, policy, tau_h);
     }
+}
+
+/// [`advance`] with findings (or an `as_of` re-base) still to apply.
+#[allow(clippy::too_many_arguments)]
+#[inline(never)]
+fn advance_through_findings(
+    plan: &mut ComponentPlan,
+    comp_tags: &[TagId],
+    scratch: &mut Scratch,
+    state: &mut ComponentState,
+    tags: &[TagState],
+    tag_plans: &[TagPlan],
+    to_ms: i64,
+    policy: GapPolicy,
+    tau_h: f64,
+) {
     loop {
         let Some(from) = state.integrated_to_ms else {
             component::advance(plan, comp_tags, scratch, state, tags, tag_plans, to_ms, policy, tau_h);
