@@ -124,6 +124,10 @@ pub struct ComponentState {
     pub flags: LedgerFlags,
     pub now: Conditions,
     pub histogram: TimeAtCondition,
+    /// Fatigue ledger of the assessed location (`engine::fatigue`); absent
+    /// without `[component.fatigue]` and in ledgers stored before it.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fatigue: Option<super::fatigue::FatigueState>,
 }
 
 impl ComponentState {
@@ -149,6 +153,7 @@ impl ComponentState {
             flags: LedgerFlags::default(),
             now: Conditions::default(),
             histogram: TimeAtCondition::new(plan.temperature_edges_k.clone(), plan.pressure_edges_mpa.clone()),
+            fatigue: plan.fatigue.as_ref().map(|_| super::fatigue::FatigueState::default()),
         }
     }
 
@@ -550,6 +555,9 @@ fn integrate_piece(
         }),
         unmonitored,
     };
+    if let Some(f) = &plan.fatigue {
+        super::fatigue::on_piece(plan, f, state, tags, tag_plans, a_ms, b_ms, unmonitored);
+    }
 }
 
 /// The six input lines of one piece.

@@ -23,6 +23,7 @@
 //!   counted as unmonitored hours.
 
 pub mod component;
+pub mod fatigue;
 pub mod plan;
 pub mod signal;
 
@@ -824,3 +825,5 @@ impl Engine {
 pub(crate) mod tests;
 #[cfg(test)]
 mod tests_intake;
+#[cfg(test)]
+mod tests_fatigue;

@@ -14,6 +14,9 @@ use std::collections::HashMap;
 use std::fmt;
 use std::path::{Path, PathBuf};
 
+mod fatigue;
+pub use fatigue::{DEFAULT_CREEP_FATIGUE, DEFAULT_FATIGUE_USAGE};
+
 /// One problem found in a configuration.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ConfigProblem {
@@ -703,6 +706,9 @@ impl Validator {
                 .map(|l| Levels { advisory: l.advisory, warning: l.warning, critical: l.critical })
                 .unwrap_or(DEFAULT_HOURS_TO_CRITICAL),
         };
+        let fatigue = c.fatigue.as_ref().and_then(|f| {
+            self.fatigue(place, f, material.as_ref(), stress.as_ref(), metal_temperature.is_some(), tags, index)
+        });
         let material = material?;
         let stress = stress?;
         let t_ref = design_t.unwrap_or(material.larson_miller.temperature_range_k[1]);
@@ -745,6 +751,7 @@ impl Validator {
             recent_rate_settling_h: s.engine.recent_rate_settling_h,
             temperature_edges_k,
             pressure_edges_mpa,
+            fatigue,
         })
     }
 
