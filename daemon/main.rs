@@ -992,6 +992,9 @@ fn cmd_check(config: PathBuf, format: Format, file_only: bool) -> Result<i32> {
         for (k, h) in &c.hours_to_levels_at_design {
             writeln!(out, "  hours at design to {k:<22} {h:.0} h")?;
         }
+        if let Some(f) = &c.fatigue {
+            write!(out, "{}", report::fatigue::design_check_text(f))?;
+        }
         writeln!(out, "  advances with                    {}", c.advances_with)?;
         for w in &c.warnings {
             writeln!(out, "  warning: {w}")?;

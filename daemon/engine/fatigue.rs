@@ -73,6 +73,8 @@ pub struct FatiguePlan {
     /// Alarm levels of fatigue usage and of the combined damage index.
     pub usage_levels: Levels,
     pub combined_levels: Levels,
+    /// Fluid temperature rate of a design start-up, K/min (`check-config`).
+    pub design_ramp_k_per_min: f64,
 }
 
 impl FatiguePlan {

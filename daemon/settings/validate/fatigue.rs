@@ -252,6 +252,7 @@ impl Validator {
             mean_class_mpa: f.mean_class_mpa,
             usage_levels,
             combined_levels,
+            design_ramp_k_per_min: f.design_ramp_k_per_min,
         })
     }
 }
