@@ -481,6 +481,7 @@ pub fn summary_table(reports: &[ComponentReport]) -> String {
     for (note, grades) in strain_notes {
         s.push_str(&format!("note on strain % ({}): {note}\n", grades.join(", ")));
     }
+    s.push_str(&fatigue::summary_lines(reports));
     s
 }
 

@@ -84,6 +84,13 @@ fn schema() -> Vec<Measurement> {
                 "remaining_life_h",
                 "unmonitored_h",
                 "exhausted",
+                "fatigue_stress_mpa",
+                "fatigue_thermal_stress_mpa",
+                "fatigue_usage",
+                "creep_fatigue_index",
+                "fatigue_cycles",
+                "fatigue_cycles_last_day",
+                "fatigue_cycles_last_month",
             ]),
         },
         Measurement {

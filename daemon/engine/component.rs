@@ -153,7 +153,7 @@ impl ComponentState {
             flags: LedgerFlags::default(),
             now: Conditions::default(),
             histogram: TimeAtCondition::new(plan.temperature_edges_k.clone(), plan.pressure_edges_mpa.clone()),
-            fatigue: plan.fatigue.as_ref().map(|_| super::fatigue::FatigueState::default()),
+            fatigue: plan.fatigue.as_ref().map(super::fatigue::FatigueState::new),
         }
     }
 

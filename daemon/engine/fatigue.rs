@@ -75,6 +75,11 @@ pub struct FatiguePlan {
     pub combined_levels: Levels,
     /// Fluid temperature rate of a design start-up, K/min (`check-config`).
     pub design_ramp_k_per_min: f64,
+    /// Usage before the ledger started (an earlier assessment).
+    pub initial_usage: f64,
+    /// Outside diameter and wall at the location, mm, when known (the
+    /// design start-stop's thermal stress needs them).
+    pub geometry_mm: Option<(f64, f64)>,
 }
 
 impl FatiguePlan {
@@ -118,7 +123,8 @@ pub struct HourBucket {
 #[serde(default)]
 pub struct FatigueState {
     pub counter: RainflowCounter,
-    /// Miner's usage of the closed cycles (the residue not included).
+    /// Miner's usage of the closed cycles (the residue not included),
+    /// including the plan's initial usage.
     pub usage: f64,
     /// Closed cycles (full = 1, half = 0.5).
     pub cycles: f64,
@@ -139,6 +145,13 @@ pub struct FatigueState {
     pub delta_t_k: f64,
     /// Event time of the newest sample fed to the counter, ms.
     pub fed_to_ms: Option<i64>,
+}
+
+impl FatigueState {
+    /// A fresh fatigue ledger at the plan's initial usage.
+    pub fn new(f: &FatiguePlan) -> FatigueState {
+        FatigueState { usage: f.initial_usage, ..FatigueState::default() }
+    }
 }
 
 /// Value of an input at the end of a piece, `None` in a gap.
@@ -201,7 +214,7 @@ pub fn on_piece(
     );
     let sigma_p = f.pressure_stress_factor * state.now.hoop_stress_mpa / plan.stress_factor;
     let sigma = sigma_p + sigma_t;
-    let fs = state.fatigue.get_or_insert_with(FatigueState::default);
+    let fs = state.fatigue.get_or_insert_with(|| FatigueState::new(f));
     fs.stress_mpa = sigma;
     fs.thermal_stress_mpa = sigma_t;
     fs.delta_t_k = delta_t_k;
@@ -314,7 +327,7 @@ fn ser_hours<S: serde::Serializer>(v: &[(&'static str, f64, f64)], s: S) -> Resu
 /// The fatigue figures of a component with a fatigue plan; `None` without.
 pub fn figures(plan: &ComponentPlan, state: &ComponentState) -> Option<FatigueFigures> {
     let f = plan.fatigue.as_ref()?;
-    let empty = FatigueState::default();
+    let empty = FatigueState::new(f);
     let fs = state.fatigue.as_ref().unwrap_or(&empty);
     let mut residue_usage = 0.0;
     let mut residue_half = 0.0;

@@ -70,9 +70,9 @@ pub struct FatigueDesignCheck {
     pub design_curve: &'static str,
     /// Pressure stress at the location at design pressure, MPa.
     pub pressure_stress_at_design_mpa: f64,
-    /// Thermal stress magnitude of the design ramp at design temperature,
-    /// MPa (0 without a ramp-derived difference: a measured difference has
-    /// no design value).
+    /// Thermal stress magnitude of the design ramp at design temperature
+    /// by the quasi-steady hollow cylinder, MPa (0 without thermal stress
+    /// or without the location's geometry).
     pub thermal_stress_of_design_ramp_mpa: f64,
     /// Range of the design start-stop: heating at no pressure to cooling
     /// at full pressure, `k_p·σ_hoop + 2·|σ_t|` (conservative).
@@ -104,8 +104,15 @@ pub fn design_check(plan: &ComponentPlan) -> Option<FatigueDesignCheck> {
     };
     let sigma_p = f.pressure_stress_factor * hoop;
     let e = &f.elastic;
-    let sigma_t = match f.thermal {
-        ThermalPlan::Ramp { outside_diameter_mm, wall_mm, .. } => {
+    let geometry = match f.thermal {
+        ThermalPlan::None => None,
+        _ => f.geometry_mm,
+    };
+    if geometry.is_none() && f.thermal != ThermalPlan::None {
+        warnings.push("no geometry at the location: the design ramp's thermal stress is not shown".into());
+    }
+    let sigma_t = match geometry {
+        Some((outside_diameter_mm, wall_mm)) => {
             let dt = ramp_delta_t_k(
                 f.design_ramp_k_per_min / 60.0,
                 outside_diameter_mm,
@@ -165,6 +172,38 @@ pub fn design_check_text(f: &FatigueDesignCheck) -> String {
     );
     for w in &f.warnings {
         s.push_str(&format!("    warning: {w}\n"));
+    }
+    s
+}
+
+/// Lines under the summary table for the components with fatigue: usage
+/// (closed plus residue), cycles, the creep-fatigue index, and the caution.
+pub fn summary_lines(reports: &[super::ComponentReport]) -> String {
+    let mut s = String::new();
+    for r in reports {
+        if let Some(f) = &r.fatigue {
+            let g = &f.figures;
+            s.push_str(&format!(
+                "fatigue {} at {}: usage {:.5} ({:.5} closed + {:.5} residue), {} cycles ({} last day, {} last \
+                 month), largest range {:.0} MPa, creep-fatigue index {:.4} (envelope ({}, {})), curve {}\n",
+                r.component,
+                g.location,
+                g.fatigue_usage,
+                g.closed_usage,
+                g.residue_usage,
+                g.cycles,
+                g.cycles_last_day,
+                g.cycles_last_month,
+                g.largest_range_mpa,
+                g.creep_fatigue_index,
+                g.envelope.fatigue,
+                g.envelope.creep,
+                g.design_curve
+            ));
+        }
+    }
+    if !s.is_empty() {
+        s.push_str(&format!("note on fatigue: {CAUTION}\n"));
     }
     s
 }

@@ -448,6 +448,9 @@ pub struct FatigueSettings {
     /// (`check-config` shows the allowable cycles of such a start-stop).
     #[serde(default = "default_design_ramp")]
     pub design_ramp_k_per_min: f64,
+    /// Fatigue usage before the ledger started (an earlier assessment).
+    #[serde(default)]
+    pub initial_usage: f64,
     /// Alarm levels of fatigue usage and of the creep-fatigue index.
     #[serde(default)]
     pub fatigue_usage: Option<LevelSettings>,

@@ -53,6 +53,9 @@ impl Validator {
                 self.err(place, &k(key), format!("{v} is not a positive number"), "give a positive number");
             }
         }
+        if !(f.initial_usage.is_finite() && f.initial_usage >= 0.0) {
+            self.err(place, &k("initial_usage"), "must be zero or positive", "the usage of an earlier assessment, or 0");
+        }
         if !(f.hysteresis_gate_mpa.is_finite() && f.hysteresis_gate_mpa >= 0.0) {
             self.err(place, &k("hysteresis_gate_mpa"), "must be zero or positive (MPa)", "for example 10");
         }
@@ -253,6 +256,11 @@ impl Validator {
             usage_levels,
             combined_levels,
             design_ramp_k_per_min: f.design_ramp_k_per_min,
+            initial_usage: f.initial_usage,
+            geometry_mm: match (od, wall) {
+                (Some(od), Some(w)) if w > 0.0 && od > 2.0 * w => Some((od, w)),
+                _ => None,
+            },
         })
     }
 }
