@@ -389,6 +389,7 @@
     renderClassTable();
     renderAlarms();
     renderEvents();
+    if (typeof LLFatigue !== 'undefined') LLFatigue.render(comp);
   }
 
   $('windows').addEventListener('click', (ev) => {

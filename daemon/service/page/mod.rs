@@ -23,6 +23,7 @@ const APP_CSS: &str = include_str!("app.css");
 const APP_JS: &str = include_str!("app.js");
 const OVERVIEW_JS: &str = include_str!("overview.js");
 const COMPONENT_JS: &str = include_str!("component.js");
+const FATIGUE_JS: &str = include_str!("fatigue.js");
 const ICON_SVG: &str = include_str!("icon.svg");
 
 /// The page routes, merged into the service router.
@@ -34,6 +35,7 @@ pub fn routes() -> Router<HttpState> {
         .route("/page/app.js", get(|| async { asset("text/javascript; charset=utf-8", APP_JS) }))
         .route("/page/overview.js", get(|| async { asset("text/javascript; charset=utf-8", OVERVIEW_JS) }))
         .route("/page/component.js", get(|| async { asset("text/javascript; charset=utf-8", COMPONENT_JS) }))
+        .route("/page/fatigue.js", get(|| async { asset("text/javascript; charset=utf-8", FATIGUE_JS) }))
         .route("/page/icon.svg", get(|| async { asset("image/svg+xml", ICON_SVG) }))
 }
 
