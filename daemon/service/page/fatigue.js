@@ -11,7 +11,7 @@ const LLFatigue = (() => {
 
   // One square diagram of D_f (x) against D_c (y) from 0 to `span`.
   function diagram(f, span, id, title) {
-    const S = 220, m = { l: 42, r: 12, t: 22, b: 34 };
+    const S = 220, m = { l: 56, r: 14, t: 22, b: 36 };
     const W = S + m.l + m.r, H = S + m.t + m.b;
     const X = (v) => m.l + (v / span) * S;
     const Y = (v) => m.t + S - (v / span) * S;
@@ -33,7 +33,7 @@ const LLFatigue = (() => {
       s += '<text class="tick" x="' + (m.l - 6) + '" y="' + Y(v) + '" dy="0.35em" text-anchor="end">' + esc(LL.sig(v, 2)) + '</text>';
     }
     s += '<text class="cf-axis" x="' + (m.l + S / 2) + '" y="' + (H - 4) + '" text-anchor="middle">fatigue damage D_f</text>';
-    s += '<text class="cf-axis" transform="translate(11 ' + (m.t + S / 2) + ') rotate(-90)" text-anchor="middle">creep damage D_c</text>';
+    s += '<text class="cf-axis" transform="translate(12 ' + (m.t + S / 2) + ') rotate(-90)" text-anchor="middle">creep damage D_c</text>';
     s += '<g clip-path="url(#' + esc(id) + '-clip)">';
     // The allowable region under the envelope, the envelope and the linear sum.
     s += '<path class="cf-region" d="M' + X(0) + ' ' + Y(0) + 'L' + X(0) + ' ' + Y(1) + 'L' + X(e.fatigue) + ' ' + Y(e.creep) +
@@ -67,7 +67,7 @@ const LLFatigue = (() => {
       h += '<tr><th>' + esc(r) + ' – ' + esc(r + step(cells[0])) + '</th>';
       for (const mn of means) {
         const c = at.get(r + '/' + mn);
-        h += '<td class="num' + (c ? '' : ' zero') + '">' + (c ? esc(LL.sig(c.cycles, 4)) : '·') + '</td>';
+        h += '<td class="num' + (c ? '' : ' zero') + '">' + (c ? esc(Number.isInteger(c.cycles * 2) ? String(c.cycles) : LL.sig(c.cycles, 4)) : '·') + '</td>';
       }
       h += '</tr>';
     }
@@ -103,8 +103,8 @@ const LLFatigue = (() => {
       'like the last 30 days, to a usage of 1');
     $('fatigue-figures').innerHTML = t;
     const df = LL.num(f.fatigue_usage) || 0, dc = LL.num(f.creep_damage) || 0;
-    let near = 0.02;
-    while (near < 2 * Math.max(df, dc) && near < 1) near *= 2.5;
+    // A round span holding twice the larger damage, when that is under 1.
+    const near = [0.01, 0.02, 0.05, 0.1, 0.2, 0.5, 1].find((v) => v >= 2 * Math.max(df, dc));
     $('fatigue-diagram').innerHTML = diagram(f, 1, 'cf-full', 'creep-fatigue diagram') +
       (near < 1 ? diagram(f, near, 'cf-near', 'near the origin (to ' + LL.sig(near, 2) + ')') : '');
     $('fatigue-source').textContent = 'Envelope: ' + f.envelope_source + '. ' + f.caution;
