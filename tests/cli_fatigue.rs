@@ -133,3 +133,22 @@ fn replay_json_carries_fatigue_and_counts_every_start_stop() {
     assert!(comp["hours_to_threshold"].get("fatigue_usage.critical").is_some());
     assert_eq!(run()["components"], v["components"], "two replays of the same history differ");
 }
+
+#[test]
+fn a_grade_without_elastic_data_is_refused_with_the_fix() {
+    // HP-Nb (cast reformer tube alloy) ships without [elastic] data.
+    let dir = tempfile::tempdir().unwrap();
+    let text = PLANT.replace("material = \"2.25Cr-1Mo\"", "material = \"HP-Nb\"");
+    let cfg = write(dir.path(), "plant.toml", &text);
+    let o = bin().args(["check-config", &cfg]).output().unwrap();
+    assert!(!o.status.success());
+    let err = String::from_utf8_lossy(&o.stderr).to_string() + &String::from_utf8_lossy(&o.stdout);
+    assert!(err.contains("OUTLET-HEADER") && err.contains("[elastic]"), "{err}");
+    // A constant fluid temperature has no rate: refused, with the reason.
+    let text = PLANT.replace("fluid_temperature = \"TF\"", "fluid_temperature = { value = 500, unit = \"degC\" }");
+    let cfg = write(dir.path(), "plant2.toml", &text);
+    let o = bin().args(["check-config", &cfg]).output().unwrap();
+    assert!(!o.status.success());
+    let err = String::from_utf8_lossy(&o.stderr).to_string() + &String::from_utf8_lossy(&o.stdout);
+    assert!(err.contains("fatigue.fluid_temperature") && err.contains("rate of change"), "{err}");
+}
