@@ -1104,6 +1104,7 @@ fn cmd_materials(action: MaterialsAction) -> Result<i32> {
                     writeln!(out, "  NOTE               {note}")?;
                 }
             }
+            write!(out, "{}", report::fatigue::material_text(m))?;
             if !m.reference_rupture_strengths.is_empty() {
                 writeln!(out, "\nreference rupture strengths against the master curve:")?;
                 writeln!(

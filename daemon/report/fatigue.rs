@@ -207,3 +207,42 @@ pub fn summary_lines(reports: &[super::ComponentReport]) -> String {
     }
     s
 }
+
+/// A grade's elastic and fatigue data as `materials show` prints them
+/// (empty for a grade without them).
+pub fn material_text(m: &crate::physics::material::Material) -> String {
+    let mut s = String::new();
+    if let Some(e) = &m.elastic {
+        s.push_str("\nelastic and thermal (fatigue)\n");
+        for (name, t, scale, unit) in [
+            ("E", &e.youngs_modulus_mpa, 1e-3, "GPa"),
+            ("alpha", &e.thermal_expansion_per_k, 1e6, "1e-6/K"),
+            ("diffusivity", &e.thermal_diffusivity_mm2_per_s, 1.0, "mm²/s"),
+        ] {
+            let row: Vec<String> =
+                t.temperature_c.iter().zip(&t.values).map(|(c, v)| format!("{c:.0} °C {}", (v * scale * 1000.0).round() / 1000.0)).collect();
+            s.push_str(&format!("  {name:<17}  {unit}: {}\n  {:<17}  source: {}\n", row.join(", "), "", t.source));
+        }
+        s.push_str(&format!("  {:<17}  {}   source: {}\n", "Poisson ratio", e.poisson_ratio.value, e.poisson_ratio.source));
+    }
+    if let Some(f) = &m.fatigue {
+        s.push_str(&format!(
+            "  {:<17}  {}\n  {:<17}  source: {}\n",
+            "design curve",
+            f.design_curve.map_or("none built in", |c| c.name()),
+            "",
+            f.curve_source
+        ));
+        match &f.creep_fatigue_envelope {
+            Some(p) => s.push_str(&format!(
+                "  {:<17}  ({}, {})   source: {}\n",
+                "c-f envelope", p.fatigue, p.creep, p.source
+            )),
+            None => s.push_str(&format!(
+                "  {:<17}  none from a code: the innermost built-in (0.1, 0.01) is used (conservative)\n",
+                "c-f envelope"
+            )),
+        }
+    }
+    s
+}
