@@ -22,7 +22,7 @@
 use super::component::ComponentState;
 use super::plan::{ComponentPlan, Input, Levels, TagId, TagPlan};
 use super::signal::{Segment, TagState};
-use crate::physics::fatigue::curve::{cycle_usage, DesignCurve};
+use crate::physics::fatigue::curve::{corrected_alternating_stress_mpa, plasticity_factor, DesignCurve};
 use crate::physics::fatigue::interaction::Envelope;
 use crate::physics::fatigue::rainflow::{Cycle, RainflowCounter};
 use crate::physics::fatigue::thermal::{ramp_delta_t_k, thermal_stress_mpa};
@@ -80,6 +80,9 @@ pub struct FatiguePlan {
     /// Outside diameter and wall at the location, mm, when known (the
     /// design start-stop's thermal stress needs them).
     pub geometry_mm: Option<(f64, f64)>,
+    /// S_PS, MPa: with it, ranges above it are raised by the simplified
+    /// elastic-plastic factor K_e (`physics::fatigue::curve::plasticity_factor`).
+    pub plasticity_limit_mpa: Option<f64>,
 }
 
 impl FatiguePlan {
@@ -224,9 +227,17 @@ pub fn on_piece(
     fs.counter = counter;
 }
 
-/// Usage of one cycle on the plan's curve, with E at the cycle's temperature.
+/// Alternating stress (MPa, at the curve's modulus) of a range at a
+/// temperature: `K_e · (Δσ/2) · E_curve/E_T`, K_e = 1 without S_PS.
+pub fn alternating_stress_mpa(f: &FatiguePlan, range_mpa: f64, temperature_k: f64) -> f64 {
+    let ke = f.plasticity_limit_mpa.map_or(1.0, |s| plasticity_factor(f.curve, range_mpa, s));
+    ke * corrected_alternating_stress_mpa(f.curve, range_mpa, f.elastic.youngs_modulus_mpa.at_k(temperature_k))
+}
+
+/// Usage of one cycle on the plan's curve, with E at the cycle's
+/// temperature: `count / N(S_a)` (Miner's rule term).
 pub fn usage_of(f: &FatiguePlan, c: &Cycle) -> f64 {
-    cycle_usage(f.curve, c.range, f.elastic.youngs_modulus_mpa.at_k(c.temperature_k), c.count)
+    c.count / f.curve.allowable_cycles(alternating_stress_mpa(f, c.range, c.temperature_k))
 }
 
 /// Book a closed cycle.

@@ -197,3 +197,21 @@ proptest! {
         );
     }
 }
+
+#[test]
+fn plasticity_limit_raises_usage_of_large_ranges_only() {
+    // The same history with S_PS configured: ranges above it cost more,
+    // never less (K_e ≥ 1).
+    let with = FATIGUE_CONFIG.replace("hysteresis_gate_mpa = 5", "hysteresis_gate_mpa = 5\nplasticity_limit_mpa = 150");
+    let cfg = plan_settings("fatigue-test", toml::from_str(&with).unwrap()).unwrap();
+    let mut a = Engine::new(cfg.plan);
+    let mut b = engine();
+    let (mut ma, mut mb) = (0, 0);
+    for _ in 0..3 {
+        ma = start_stop(&mut a, ma);
+        mb = start_stop(&mut b, mb);
+    }
+    let (ua, ub) = (fatigue_of(&a).usage, fatigue_of(&b).usage);
+    assert!(fatigue_of(&b).largest_range_mpa > 150.0);
+    assert!(ua > ub, "K_e raised nothing: {ua} vs {ub}");
+}

@@ -5,7 +5,6 @@
 use crate::engine::component::ComponentState;
 use crate::engine::fatigue::{figures, FatigueFigures, ThermalPlan};
 use crate::engine::plan::{ComponentPlan, StressPlan};
-use crate::physics::fatigue::curve::corrected_alternating_stress_mpa;
 use crate::physics::fatigue::thermal::{ramp_delta_t_k, thermal_stress_mpa};
 use crate::physics::stress::hoop_stress_mpa;
 use crate::physics::units::kelvin_to_celsius;
@@ -36,8 +35,9 @@ pub struct FatigueReport {
 
 /// The caution that goes with every fatigue figure.
 pub const CAUTION: &str = "Fatigue usage from built-in design curves recalled from ASME VIII-2 Annex 3-F, without \
-    plasticity (K_e), weld or environmental factors, and a creep-fatigue envelope recalled from ASME III-5: \
-    screening figures, not an assessment. Use the governing code's curves and a licensed engineer's judgement.";
+    weld or environmental factors (and without the plasticity factor K_e unless S_PS is configured), and a \
+    creep-fatigue envelope recalled from ASME III-5: screening figures, not an assessment. Use the governing \
+    code's curves and a licensed engineer's judgement.";
 
 /// The fatigue report of a component with a fatigue plan.
 pub fn report(plan: &ComponentPlan, st: &ComponentState) -> Option<FatigueReport> {
@@ -131,8 +131,10 @@ pub fn design_check(plan: &ComponentPlan) -> Option<FatigueDesignCheck> {
         _ => 0.0,
     };
     let range = sigma_p + 2.0 * sigma_t;
-    let modulus = e.youngs_modulus_mpa.at_k(t);
-    let sa = corrected_alternating_stress_mpa(f.curve, range, modulus);
+    let sa = crate::engine::fatigue::alternating_stress_mpa(f, range, t);
+    if f.plasticity_limit_mpa.is_some_and(|s| range > s) {
+        warnings.push("the design range exceeds S_PS: the simplified elastic-plastic factor K_e is applied".into());
+    }
     if t > f.curve.data().max_temperature_k {
         warnings.push(format!(
             "design temperature {:.0} °C is above the curve's limit of {:.0} °C: the governing code's \

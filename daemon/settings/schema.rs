@@ -451,6 +451,11 @@ pub struct FatigueSettings {
     /// Fatigue usage before the ledger started (an earlier assessment).
     #[serde(default)]
     pub initial_usage: f64,
+    /// Limit of the primary-plus-secondary stress range S_PS at the
+    /// location, MPa: ranges above it get the simplified elastic-plastic
+    /// factor K_e. Absent: no correction (the README's caution says so).
+    #[serde(default)]
+    pub plasticity_limit_mpa: Option<f64>,
     /// Alarm levels of fatigue usage and of the creep-fatigue index.
     #[serde(default)]
     pub fatigue_usage: Option<LevelSettings>,

@@ -20,10 +20,11 @@
 //!   3-F.1.2, from memory). Beyond the last tabulated point the last
 //!   segment is extended (finite life where a code may allow an endurance
 //!   limit: conservative); above the first, the first segment is extended.
-//! * Not included: the simplified elastic-plastic correction K_e for
-//!   stress ranges above the primary-plus-secondary limit S_PS, weld and
-//!   notch factors beyond the configured stress factors, and environmental
-//!   factors. Each would raise the damage; see README's cautions.
+//! * The simplified elastic-plastic correction K_e ([`plasticity_factor`])
+//!   applies only where the limit S_PS is configured. Not included: weld
+//!   and notch factors beyond the configured stress factors, and
+//!   environmental factors. Each would raise the damage; see README's
+//!   cautions.
 
 use serde::{Deserialize, Serialize};
 
@@ -180,6 +181,32 @@ pub fn corrected_alternating_stress_mpa(curve: DesignCurve, range_mpa: f64, modu
     0.5 * range_mpa * curve.data().reference_modulus_mpa / modulus_t_mpa
 }
 
+/// Simplified elastic-plastic correction K_e of ASME VIII-2 5.5.3 (from
+/// memory) for a stress range `range_mpa` against the limit of the
+/// primary-plus-secondary stress range `s_ps_mpa` (S_PS, the larger of
+/// 3·S_m and 2·S_y at the cycle's temperature):
+/// `K_e = 1` for `ΔS ≤ S_PS`; `1 + (1 − n)/(n·(m − 1)) · (ΔS/S_PS − 1)` up
+/// to `ΔS = m·S_PS`; `1/n` beyond. Material constants (VIII-2 Table 5.13,
+/// from memory): low-alloy steels m = 2.0, n = 0.2 (taken for the whole
+/// ferritic curve: it rises faster than carbon steel's m = 3.0, the
+/// conservative choice); austenitic steels m = 1.7, n = 0.3. The code
+/// applies it to the primary-plus-secondary range; applied here to the
+/// location's range, which includes the stress factors (conservative).
+pub fn plasticity_factor(curve: DesignCurve, range_mpa: f64, s_ps_mpa: f64) -> f64 {
+    let (m, n) = match curve {
+        DesignCurve::AsmeCarbonLowAlloy => (2.0, 0.2),
+        DesignCurve::AsmeAustenitic => (1.7, 0.3),
+    };
+    let x = range_mpa / s_ps_mpa;
+    if x <= 1.0 {
+        1.0
+    } else if x < m {
+        1.0 + (1.0 - n) / (n * (m - 1.0)) * (x - 1.0)
+    } else {
+        1.0 / n
+    }
+}
+
 /// Usage of `count` cycles (1 or 0.5) of range `range_mpa`: `count / N`
 /// (Miner's rule term; Palmgren-Miner, common practice).
 pub fn cycle_usage(curve: DesignCurve, range_mpa: f64, modulus_t_mpa: f64, count: f64) -> f64 {
@@ -221,6 +248,19 @@ mod tests {
             }
         }
         assert_eq!(DesignCurve::AsmeAustenitic.allowable_cycles(0.0), f64::INFINITY);
+    }
+
+    #[test]
+    fn plasticity_factor_by_hand() {
+        // Low alloy (m = 2, n = 0.2) at ΔS = 1.5·S_PS: 1 + 0.8/(0.2·1)·0.5 = 3;
+        // at and beyond m·S_PS: 1/n = 5; continuous at m (hand-worked).
+        let c = DesignCurve::AsmeCarbonLowAlloy;
+        assert_eq!(plasticity_factor(c, 100.0, 200.0), 1.0);
+        assert!((plasticity_factor(c, 300.0, 200.0) - 3.0).abs() < 1e-12);
+        assert!((plasticity_factor(c, 399.999_999, 200.0) - 5.0).abs() < 1e-6);
+        assert_eq!(plasticity_factor(c, 900.0, 200.0), 5.0);
+        let a = DesignCurve::AsmeAustenitic;
+        assert!((plasticity_factor(a, 1.7 * 200.0 - 1e-9, 200.0) - 1.0 / 0.3).abs() < 1e-6);
     }
 
     #[test]
