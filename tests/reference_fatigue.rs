@@ -182,9 +182,11 @@ fn miner_sum_equals_numpy() {
         .collect();
     let cycles = count(&history, 0.0);
     let modulus = 180_000.0;
-    let ours = miner_sum(cycles.iter().map(|c| {
-        (c.count, curve.allowable_cycles(corrected_alternating_stress_mpa(curve, c.range, modulus)))
-    }));
+    let ours = miner_sum(
+        cycles
+            .iter()
+            .map(|c| (c.count, curve.allowable_cycles(corrected_alternating_stress_mpa(curve, c.range, modulus)))),
+    );
     let pts: Vec<[f64; 2]> = curve.data().points_ksi.iter().map(|&(n, s)| [n, s]).collect();
     let cyc: Vec<[f64; 2]> = cycles.iter().map(|c| [c.range, c.count]).collect();
     let script = format!(

@@ -311,7 +311,12 @@ impl AlarmBook {
             ),
             (AlarmIndex::DamageRate, has_creep, &damage_rate, state.recent_life_fraction_rate_per_h),
             (AlarmIndex::HoursToCritical, has_creep && critical_lf.is_some(), &th.hours_to_critical, hours),
-            (AlarmIndex::FatigueUsage, fatigue.is_some(), usage_levels, fatigue.as_ref().map_or(0.0, |f| f.fatigue_usage)),
+            (
+                AlarmIndex::FatigueUsage,
+                fatigue.is_some(),
+                usage_levels,
+                fatigue.as_ref().map_or(0.0, |f| f.fatigue_usage),
+            ),
             (
                 AlarmIndex::CreepFatigueIndex,
                 fatigue.is_some(),

@@ -354,8 +354,8 @@ pub fn figures(plan: &ComponentPlan, state: &ComponentState) -> Option<FatigueFi
     let usage = fs.usage + residue_usage;
     let span_h = state.integrated_h.min(MONTH_H as f64);
     let usage_rate = if span_h > 0.0 { usage_last_month / span_h } else { 0.0 };
-    let remaining_cycles =
-        (cycles_last_month > 0.0 && usage_last_month > 0.0).then(|| (1.0 - usage).max(0.0) * cycles_last_month / usage_last_month);
+    let remaining_cycles = (cycles_last_month > 0.0 && usage_last_month > 0.0)
+        .then(|| (1.0 - usage).max(0.0) * cycles_last_month / usage_last_month);
     let creep = state.life_fraction;
     let creep_rate = super::component::projection(plan, state).life_fraction_rate_per_h;
     let index = f.envelope.index(usage, creep);

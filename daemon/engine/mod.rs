@@ -824,6 +824,6 @@ impl Engine {
 #[cfg(test)]
 pub(crate) mod tests;
 #[cfg(test)]
-mod tests_intake;
-#[cfg(test)]
 mod tests_fatigue;
+#[cfg(test)]
+mod tests_intake;

@@ -199,7 +199,9 @@ impl Tabulated {
         if self.temperature_c.windows(2).any(|w| !(w[0] < w[1])) {
             return Some("temperatures must rise".into());
         }
-        if self.values.iter().chain(&self.temperature_c).any(|v| !v.is_finite()) || self.values.iter().any(|v| *v <= 0.0) {
+        if self.values.iter().chain(&self.temperature_c).any(|v| !v.is_finite())
+            || self.values.iter().any(|v| *v <= 0.0)
+        {
             return Some("values must be finite and positive".into());
         }
         None

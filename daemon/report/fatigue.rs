@@ -221,11 +221,18 @@ pub fn material_text(m: &crate::physics::material::Material) -> String {
             ("alpha", &e.thermal_expansion_per_k, 1e6, "1e-6/K"),
             ("diffusivity", &e.thermal_diffusivity_mm2_per_s, 1.0, "mm²/s"),
         ] {
-            let row: Vec<String> =
-                t.temperature_c.iter().zip(&t.values).map(|(c, v)| format!("{c:.0} °C {}", (v * scale * 1000.0).round() / 1000.0)).collect();
+            let row: Vec<String> = t
+                .temperature_c
+                .iter()
+                .zip(&t.values)
+                .map(|(c, v)| format!("{c:.0} °C {}", (v * scale * 1000.0).round() / 1000.0))
+                .collect();
             s.push_str(&format!("  {name:<17}  {unit}: {}\n  {:<17}  source: {}\n", row.join(", "), "", t.source));
         }
-        s.push_str(&format!("  {:<17}  {}   source: {}\n", "Poisson ratio", e.poisson_ratio.value, e.poisson_ratio.source));
+        s.push_str(&format!(
+            "  {:<17}  {}   source: {}\n",
+            "Poisson ratio", e.poisson_ratio.value, e.poisson_ratio.source
+        ));
     }
     if let Some(f) = &m.fatigue {
         s.push_str(&format!(
@@ -236,10 +243,9 @@ pub fn material_text(m: &crate::physics::material::Material) -> String {
             f.curve_source
         ));
         match &f.creep_fatigue_envelope {
-            Some(p) => s.push_str(&format!(
-                "  {:<17}  ({}, {})   source: {}\n",
-                "c-f envelope", p.fatigue, p.creep, p.source
-            )),
+            Some(p) => {
+                s.push_str(&format!("  {:<17}  ({}, {})   source: {}\n", "c-f envelope", p.fatigue, p.creep, p.source))
+            }
             None => s.push_str(&format!(
                 "  {:<17}  none from a code: the innermost built-in (0.1, 0.01) is used (conservative)\n",
                 "c-f envelope"

@@ -54,10 +54,20 @@ impl Validator {
             }
         }
         if !(f.initial_usage.is_finite() && f.initial_usage >= 0.0) {
-            self.err(place, &k("initial_usage"), "must be zero or positive", "the usage of an earlier assessment, or 0");
+            self.err(
+                place,
+                &k("initial_usage"),
+                "must be zero or positive",
+                "the usage of an earlier assessment, or 0",
+            );
         }
         if f.plasticity_limit_mpa.is_some_and(|v| !(v.is_finite() && v > 0.0)) {
-            self.err(place, &k("plasticity_limit_mpa"), "must be a positive stress in MPa", "S_PS: the larger of 3·S_m and 2·S_y");
+            self.err(
+                place,
+                &k("plasticity_limit_mpa"),
+                "must be a positive stress in MPa",
+                "S_PS: the larger of 3·S_m and 2·S_y",
+            );
         }
         if !(f.hysteresis_gate_mpa.is_finite() && f.hysteresis_gate_mpa >= 0.0) {
             self.err(place, &k("hysteresis_gate_mpa"), "must be zero or positive (MPa)", "for example 10");
