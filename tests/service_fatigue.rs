@@ -118,5 +118,12 @@ fn kill_9_neither_loses_nor_double_counts_a_reversal() {
     assert!(rf["cycles"].as_f64().unwrap() >= 5.0, "the stream makes cycles: {rf}");
     assert!(rf["fatigue_usage"].as_f64().unwrap() > 0.0);
     assert_eq!(lf, rf, "live fatigue ledger after {kills} kills differs from the replay");
+    // The component's trend carries the stress at the location and the
+    // usage for the status page; the other parts carry null.
+    let trend = svc.get_json("/api/components/FATIGUE-HEADER/trend").expect("trend of the fatigue header");
+    let points = trend["points"].as_array().unwrap();
+    assert!(points.iter().any(|p| p["fatigue_stress_mpa"].is_number() && p["fatigue_usage"].is_number()), "{trend}");
+    let tube = svc.get_json("/api/components/SH-TUBE/trend").unwrap();
+    assert!(tube["points"].as_array().unwrap().iter().all(|p| p["fatigue_usage"].is_null()));
     drop(svc);
 }

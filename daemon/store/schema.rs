@@ -51,6 +51,10 @@ pub const MIGRATIONS: &[Migration] = &[
         summary: "parked lines: outbox batches the database refused as malformed, kept instead of dropped",
         apply: v6_parked_line,
     },
+    Migration {
+        summary: "fatigue in the component trends: stress at the fatigue location and fatigue usage",
+        apply: v7_trend_fatigue,
+    },
 ];
 
 /// The newest schema version this build knows: the number of migrations.
@@ -177,6 +181,16 @@ fn v6_parked_line(tx: &Transaction<'_>) -> rusqlite::Result<()> {
              reason TEXT NOT NULL
          );
          ALTER TABLE outbox_total ADD COLUMN parked_lines INTEGER NOT NULL DEFAULT 0;",
+    )
+}
+
+/// Version 7: the trend's fatigue figures (stress at the fatigue location,
+/// fatigue usage), `NULL` for parts without `[component.fatigue]` and for
+/// rows written before.
+fn v7_trend_fatigue(tx: &Transaction<'_>) -> rusqlite::Result<()> {
+    tx.execute_batch(
+        "ALTER TABLE trend_point ADD COLUMN fatigue_stress_mpa REAL;
+         ALTER TABLE trend_point ADD COLUMN fatigue_usage REAL;",
     )
 }
 
