@@ -83,6 +83,15 @@ pub struct FatiguePlan {
     /// S_PS, MPa: with it, ranges above it are raised by the simplified
     /// elastic-plastic factor K_e (`physics::fatigue::curve::plasticity_factor`).
     pub plasticity_limit_mpa: Option<f64>,
+    /// Fatigue strength reduction factor of a fretting contact at the
+    /// location (≥ 1): multiplies the alternating stress of cycles closed
+    /// while the component's fretting contact slips (partial or gross
+    /// slip). Only with a fretting wear model. Fretting lowers plain
+    /// fatigue strength by factors of about 2-3 and more (Waterhouse,
+    /// Fretting Fatigue, 1981, from memory); the shortest lives lie in
+    /// partial and mixed slip (Vingsbo & Söderberg, Wear 1988, fretting
+    /// maps, from memory), hence both regimes (conservative). No default.
+    pub fretting_knockdown: Option<f64>,
 }
 
 impl FatiguePlan {
@@ -217,13 +226,14 @@ pub fn on_piece(
     );
     let sigma_p = f.pressure_stress_factor * state.now.hoop_stress_mpa / plan.stress_factor;
     let sigma = sigma_p + sigma_t;
+    let knockdown = f.fretting_knockdown.filter(|_| fretting_slips(&state.now)).unwrap_or(1.0);
     let fs = state.fatigue.get_or_insert_with(|| FatigueState::new(f));
     fs.stress_mpa = sigma;
     fs.thermal_stress_mpa = sigma_t;
     fs.delta_t_k = delta_t_k;
     fs.fed_to_ms = Some(b_ms);
     let mut counter = std::mem::take(&mut fs.counter);
-    counter.push(sigma, t_k, f.gate_mpa, &mut |c| book(f, fs, &c, b_ms));
+    counter.push(sigma, t_k, f.gate_mpa, &mut |c| book(f, fs, &c, b_ms, knockdown));
     fs.counter = counter;
 }
 
@@ -240,9 +250,20 @@ pub fn usage_of(f: &FatiguePlan, c: &Cycle) -> f64 {
     c.count / f.curve.allowable_cycles(alternating_stress_mpa(f, c.range, c.temperature_k))
 }
 
-/// Book a closed cycle.
-fn book(f: &FatiguePlan, fs: &mut FatigueState, c: &Cycle, at_ms: i64) {
-    let u = usage_of(f, c);
+/// Whether the component's fretting contact slips now (partial or gross
+/// slip), so the fretting knock-down applies to cycles closing now.
+fn fretting_slips(state_now: &super::component::Conditions) -> bool {
+    use crate::physics::wear::FrettingRegime;
+    matches!(state_now.fretting_regime, Some(FrettingRegime::PartialSlip | FrettingRegime::GrossSlip))
+}
+
+/// Book a closed cycle; `knockdown` multiplies its alternating stress.
+fn book(f: &FatiguePlan, fs: &mut FatigueState, c: &Cycle, at_ms: i64, knockdown: f64) {
+    let u = if knockdown == 1.0 {
+        usage_of(f, c)
+    } else {
+        c.count / f.curve.allowable_cycles(knockdown * alternating_stress_mpa(f, c.range, c.temperature_k))
+    };
     fs.usage += u;
     fs.cycles += c.count;
     fs.largest_range_mpa = fs.largest_range_mpa.max(c.range);

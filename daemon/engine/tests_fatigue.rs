@@ -215,3 +215,30 @@ fn plasticity_limit_raises_usage_of_large_ranges_only() {
     assert!(fatigue_of(&b).largest_range_mpa > 150.0);
     assert!(ua > ub, "K_e raised nothing: {ua} vs {ub}");
 }
+
+#[test]
+fn fretting_knockdown_raises_usage_while_the_contact_slips() {
+    // The header also has a fretting contact (constant load, slip 50 µm:
+    // gross slip by the default bounds). With a knock-down of 2 the same
+    // history costs more fatigue usage; a knock-down without a fretting
+    // contact is refused.
+    let wear = "[component.wear]\nmodel = \"fretting\"\nnormal_load = { value = 100, unit = \"N\" }\n\
+                slip_amplitude = { value = 50, unit = \"um\" }\nfrequency = { value = 10, unit = \"Hz\" }\n\
+                wear_coefficient = 1.0e-9\ncontact_area_mm2 = 30.0\nallowable_depth = { value = 0.5, unit = \"mm\" }\n\
+                [component.fatigue]";
+    let base = FATIGUE_CONFIG.replace("[component.fatigue]", wear);
+    let with = base.replace("hysteresis_gate_mpa = 5", "hysteresis_gate_mpa = 5\nfretting_knockdown = 2.0");
+    let mut a = Engine::new(plan_settings("f", toml::from_str(&with).unwrap()).unwrap().plan);
+    let mut b = Engine::new(plan_settings("f", toml::from_str(&base).unwrap()).unwrap().plan);
+    let (mut ma, mut mb) = (0, 0);
+    for _ in 0..3 {
+        ma = start_stop(&mut a, ma);
+        mb = start_stop(&mut b, mb);
+    }
+    assert_eq!(a.components()[0].now.fretting_regime, Some(crate::physics::wear::FrettingRegime::GrossSlip));
+    assert!(fatigue_of(&a).usage > 1.5 * fatigue_of(&b).usage, "{} vs {}", fatigue_of(&a).usage, fatigue_of(&b).usage);
+    let refused =
+        FATIGUE_CONFIG.replace("hysteresis_gate_mpa = 5", "hysteresis_gate_mpa = 5\nfretting_knockdown = 2.0");
+    let err = plan_settings("f", toml::from_str(&refused).unwrap()).unwrap_err();
+    assert!(err.to_string().contains("fatigue.fretting_knockdown"), "{err}");
+}

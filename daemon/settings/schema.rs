@@ -456,6 +456,12 @@ pub struct FatigueSettings {
     /// factor K_e. Absent: no correction (the README's caution says so).
     #[serde(default)]
     pub plasticity_limit_mpa: Option<f64>,
+    /// Fatigue strength reduction factor (≥ 1) of a fretting contact at the
+    /// location: multiplies the alternating stress of cycles that close
+    /// while the component's fretting contact is in partial or gross slip.
+    /// Needs a fretting `[component.wear]`.
+    #[serde(default)]
+    pub fretting_knockdown: Option<f64>,
     /// Alarm levels of fatigue usage and of the creep-fatigue index.
     #[serde(default)]
     pub fatigue_usage: Option<LevelSettings>,

@@ -707,7 +707,17 @@ impl Validator {
                 .unwrap_or(DEFAULT_HOURS_TO_CRITICAL),
         };
         let fatigue = c.fatigue.as_ref().and_then(|f| {
-            self.fatigue(place, f, material.as_ref(), stress.as_ref(), metal_temperature.is_some(), tags, index)
+            let fretting = c.wear.as_ref().is_some_and(|w| w.model == WearModel::Fretting);
+            self.fatigue(
+                place,
+                f,
+                material.as_ref(),
+                stress.as_ref(),
+                fretting,
+                metal_temperature.is_some(),
+                tags,
+                index,
+            )
         });
         let material = material?;
         let stress = stress?;

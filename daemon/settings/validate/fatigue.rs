@@ -26,6 +26,10 @@ pub const DEFAULT_FATIGUE_USAGE: Levels = Levels { advisory: Some(0.2), warning:
 /// index reduces to the life fraction without cycles. Defaults only.
 pub const DEFAULT_CREEP_FATIGUE: Levels = Levels { advisory: Some(0.3), warning: Some(0.5), critical: Some(0.7) };
 
+fn k_fretting() -> String {
+    "fatigue.fretting_knockdown".into()
+}
+
 impl Validator {
     #[allow(clippy::too_many_arguments)]
     pub(super) fn fatigue(
@@ -34,6 +38,7 @@ impl Validator {
         f: &FatigueSettings,
         material: Option<&Material>,
         stress: Option<&StressPlan>,
+        fretting: bool,
         has_metal_temperature: bool,
         tags: &[TagPlan],
         index: &HashMap<&str, usize>,
@@ -68,6 +73,23 @@ impl Validator {
                 "must be a positive stress in MPa",
                 "S_PS: the larger of 3·S_m and 2·S_y",
             );
+        }
+        if let Some(k) = f.fretting_knockdown {
+            if !(k.is_finite() && k >= 1.0) {
+                self.err(
+                    place,
+                    &k_fretting(),
+                    "must be 1 or more (a reduction of fatigue strength)",
+                    "for example 2.0",
+                );
+            } else if !fretting {
+                self.err(
+                    place,
+                    &k_fretting(),
+                    "the component has no fretting contact ([component.wear] with model = \"fretting\")",
+                    "add the fretting contact, or leave fretting_knockdown out",
+                );
+            }
         }
         if !(f.hysteresis_gate_mpa.is_finite() && f.hysteresis_gate_mpa >= 0.0) {
             self.err(place, &k("hysteresis_gate_mpa"), "must be zero or positive (MPa)", "for example 10");
@@ -271,6 +293,7 @@ impl Validator {
             design_ramp_k_per_min: f.design_ramp_k_per_min,
             initial_usage: f.initial_usage,
             plasticity_limit_mpa: f.plasticity_limit_mpa,
+            fretting_knockdown: f.fretting_knockdown,
             geometry_mm: match (od, wall) {
                 (Some(od), Some(w)) if w > 0.0 && od > 2.0 * w => Some((od, w)),
                 _ => None,
