@@ -2,6 +2,11 @@
 //! pressure parts fed by one temperature and one pressure tag each, sampled
 //! together once a minute with slowly varying values (the common case).
 //!
+//! `ingest_ramping_fatigue_1min` is the ramping case with fatigue on
+//! every part (`[component.fatigue]`, thermal stress from the temperature
+//! tag's rate by the quasi-steady hollow cylinder): what the rainflow
+//! counter and the stress at the location add per piece.
+//!
 //! Run: `cargo bench --bench engine`
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
@@ -17,6 +22,20 @@ fn config(n: usize) -> String {
              design_temperature = {{ value = 570, unit = \"degC\" }}\ndesign_pressure = {{ value = 180, unit = \"bar\" }}\n\
              metal_temperature = \"TE{i}\"\npressure = \"PT{i}\"\n\
              [component.geometry]\noutside_diameter = {{ value = 44.5, unit = \"mm\" }}\nwall = {{ value = 6.3, unit = \"mm\" }}\n"
+        ));
+    }
+    s
+}
+
+/// [`config`] with fatigue at a nozzle bore of every part.
+fn config_fatigue(n: usize) -> String {
+    let mut s = String::new();
+    for (i, part) in config(n).split("[[tag]]\nname = \"TE").skip(1).enumerate() {
+        s.push_str("[[tag]]\nname = \"TE");
+        s.push_str(part);
+        s.push_str(&format!(
+            "[component.fatigue]\nlocation = \"nozzle bore\"\npressure_stress_factor = 2.5\n\
+             thermal_stress_factor = 1.3\nfluid_temperature = \"TE{i}\"\nhysteresis_gate_mpa = 5\n"
         ));
     }
     s
@@ -45,6 +64,20 @@ fn bench(c: &mut Criterion) {
     g.bench_function("ingest_ramping_1min", |b| {
         b.iter_batched(
             || Engine::new(plan.clone()),
+            |mut e| {
+                for s in &data {
+                    let _ = e.ingest(s);
+                }
+                e
+            },
+            criterion::BatchSize::LargeInput,
+        )
+    });
+    let plan_fatigue = plan_settings("bench", toml::from_str(&config_fatigue(n_comp)).unwrap()).unwrap().plan;
+    assert!(plan_fatigue.components.iter().all(|c| c.fatigue.is_some()));
+    g.bench_function("ingest_ramping_fatigue_1min", |b| {
+        b.iter_batched(
+            || Engine::new(plan_fatigue.clone()),
             |mut e| {
                 for s in &data {
                     let _ = e.ingest(s);

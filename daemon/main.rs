@@ -1110,6 +1110,9 @@ fn cmd_check(config: PathBuf, format: Format, file_only: bool) -> Result<i32> {
         for (k, h) in &c.hours_to_levels_at_design {
             writeln!(out, "  hours at design to {k:<22} {h:.0} h")?;
         }
+        if let Some(f) = &c.fatigue {
+            write!(out, "{}", report::fatigue::design_check_text(f))?;
+        }
         writeln!(out, "  advances with                    {}", c.advances_with)?;
         for w in &c.warnings {
             writeln!(out, "  warning: {w}")?;
@@ -1219,6 +1222,7 @@ fn cmd_materials(action: MaterialsAction) -> Result<i32> {
                     writeln!(out, "  NOTE               {note}")?;
                 }
             }
+            write!(out, "{}", report::fatigue::material_text(m))?;
             if !m.reference_rupture_strengths.is_empty() {
                 writeln!(out, "\nreference rupture strengths against the master curve:")?;
                 writeln!(

@@ -2,6 +2,8 @@
 //! by `replay`, the status API and the database points, plus the derived
 //! design-condition checks of `check-config`.
 
+pub mod fatigue;
+
 use crate::engine::component::{projection, Projection};
 use crate::engine::plan::{ComponentPlan, Levels, StressPlan};
 use crate::engine::{ComponentState, Counters};
@@ -120,6 +122,10 @@ pub struct ComponentReport {
     pub thresholds: crate::engine::plan::Thresholds,
     /// Design metal temperature, °C.
     pub design_temperature_c: Option<f64>,
+    /// Fatigue at the assessed location (`[component.fatigue]`); absent
+    /// without one.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub fatigue: Option<fatigue::FatigueReport>,
 }
 
 fn classes(edges: &[f64], hours: &[f64], conv: impl Fn(f64) -> f64) -> Vec<ClassHours> {
@@ -231,7 +237,25 @@ impl ComponentReport {
                 reached.insert(name.to_string(), sev.to_string());
             }
         }
+        let fatigue = fatigue::report(plan, st);
+        if let (Some(fr), Some(fp)) = (&fatigue, &plan.fatigue) {
+            let fg = &fr.figures;
+            for (name, levels, value, hours) in [
+                ("fatigue_usage", &fp.usage_levels, fg.fatigue_usage, &fg.hours_to_usage),
+                ("creep_fatigue_index", &fp.combined_levels, fg.creep_fatigue_index, &fg.hours_to_combined),
+            ] {
+                for (sev, _, h) in hours {
+                    hours_to.insert(format!("{name}.{sev}"), h.is_finite().then_some(*h));
+                }
+                if let Some(sev) = level_reached(levels, value) {
+                    reached.insert(name.to_string(), sev.to_string());
+                }
+            }
+        }
         let mut flags: Vec<String> = range_flag_names(&st.flags.extrapolated).into_iter().map(String::from).collect();
+        if fatigue.as_ref().is_some_and(|f| f.figures.cycles_over_curve_temperature > 0.0) {
+            flags.push("fatigue_curve_temperature_exceeded".into());
+        }
         if st.flags.unmonitored {
             flags.push("unmonitored_hours".into());
         }
@@ -315,6 +339,7 @@ impl ComponentReport {
             },
             thresholds: plan.thresholds.clone(),
             design_temperature_c: plan.design_temperature_k.map(kelvin_to_celsius),
+            fatigue,
         }
     }
 }
@@ -357,6 +382,17 @@ pub fn component_point(plant: &str, plan: &ComponentPlan, st: &ComponentState, t
     if plan.wear.is_some() {
         p = p.float("wear_depth_mm", r.wear_depth_mm).float("wear_index", r.wear_index);
     }
+    if let Some(f) = &r.fatigue {
+        let g = &f.figures;
+        p = p
+            .float("fatigue_stress_mpa", g.stress_mpa)
+            .float("fatigue_thermal_stress_mpa", g.thermal_stress_mpa)
+            .float("fatigue_usage", g.fatigue_usage)
+            .float("creep_fatigue_index", g.creep_fatigue_index)
+            .float("fatigue_cycles", g.cycles)
+            .float("fatigue_cycles_last_day", g.cycles_last_day)
+            .float("fatigue_cycles_last_month", g.cycles_last_month);
+    }
     p = p.boolean("exhausted", r.exhausted);
     if let Some(h) = r.remaining_life_h {
         p = p.float("remaining_life_h", h);
@@ -390,6 +426,10 @@ pub fn threshold_points(plant: &str, plan: &ComponentPlan, time_ms: i64) -> Vec<
     }
     if plan.wear.is_some() {
         push("wear_index", &th.wear_index);
+    }
+    if let Some(f) = &plan.fatigue {
+        push("fatigue_usage", &f.usage_levels);
+        push("creep_fatigue_index", &f.combined_levels);
     }
     out
 }
@@ -450,6 +490,7 @@ pub fn summary_table(reports: &[ComponentReport]) -> String {
     for (note, grades) in strain_notes {
         s.push_str(&format!("note on strain % ({}): {note}\n", grades.join(", ")));
     }
+    s.push_str(&fatigue::summary_lines(reports));
     s
 }
 
@@ -539,6 +580,9 @@ pub struct DesignCheck {
     pub warnings: Vec<String>,
     /// What moves this part's ledger on (see [`advance_rule`]).
     pub advances_with: String,
+    /// Allowable cycles of a design start-stop at the fatigue location.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub fatigue: Option<fatigue::FatigueDesignCheck>,
 }
 
 /// How a component's ledger advances: with the samples of its tags, or,
@@ -626,6 +670,7 @@ pub fn design_check(plan: &ComponentPlan) -> DesignCheck {
         hours_to_levels_at_design: hours_to,
         warnings,
         advances_with: String::new(),
+        fatigue: fatigue::design_check(plan),
     }
 }
 

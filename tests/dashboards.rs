@@ -35,7 +35,7 @@ const DEMO_PLANT: &str = "Brackenmoor Demo Station";
 const DEMO_UNIT: &str = "U2";
 /// A creep component that crosses an alarm level in the demo month, and a
 /// wear contact: between them every component-detail panel has data.
-const DEMO_COMPONENTS: [&str; 2] = ["U2-SH3-OUTLET-LEG-A", "U2-SH1-SUPPORT-R07"];
+const DEMO_COMPONENTS: [&str; 3] = ["U2-SH3-OUTLET-LEG-A", "U2-SH1-SUPPORT-R07", "U2-SH2-OUTLET-HEADER"];
 /// Lines per InfluxDB v2 write request.
 const CHUNK_LINES: usize = 5000;
 
@@ -86,6 +86,13 @@ fn schema() -> Vec<Measurement> {
                 "remaining_life_h",
                 "unmonitored_h",
                 "exhausted",
+                "fatigue_stress_mpa",
+                "fatigue_thermal_stress_mpa",
+                "fatigue_usage",
+                "creep_fatigue_index",
+                "fatigue_cycles",
+                "fatigue_cycles_last_day",
+                "fatigue_cycles_last_month",
             ]),
         },
         Measurement {

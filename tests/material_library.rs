@@ -525,3 +525,35 @@ fn every_norton_law_states_its_basis() {
         }
     }
 }
+
+/// Elastic and thermal data of the grades that carry them are within the
+/// ranges every steel handbook gives (common practice): E at 20 °C 190-220
+/// GPa, falling with temperature; instantaneous α 10-20e-6 /K, rising;
+/// ν = 0.3; thermal diffusivity 3-15 mm²/s. Each table has a source; a grade
+/// with a fatigue block names a curve or says why not.
+#[test]
+fn elastic_and_fatigue_data_are_sane_and_sourced() {
+    let grades = grades();
+    let with: Vec<&Material> = grades.iter().filter(|m| m.elastic.is_some()).collect();
+    assert!(with.len() >= 6, "most shipped steels carry elastic data");
+    for m in with {
+        let e = m.elastic.as_ref().unwrap();
+        for t in [&e.youngs_modulus_mpa, &e.thermal_expansion_per_k, &e.thermal_diffusivity_mm2_per_s] {
+            assert!(t.problem().is_none(), "{}: {:?}", m.grade, t.problem());
+            assert!(t.source.len() > 20, "{}: source missing", m.grade);
+        }
+        let e20 = e.youngs_modulus_mpa.at_k(293.15);
+        assert!((190_000.0..=220_000.0).contains(&e20), "{}: E(20 °C) = {e20}", m.grade);
+        assert!(e.youngs_modulus_mpa.values.windows(2).all(|w| w[1] < w[0]), "{}: E must fall", m.grade);
+        assert!(e.thermal_expansion_per_k.values.iter().all(|a| (10e-6..=20e-6).contains(a)), "{}", m.grade);
+        assert!(e.thermal_expansion_per_k.values.windows(2).all(|w| w[1] > w[0]), "{}: α must rise", m.grade);
+        assert_eq!(e.poisson_ratio.value, 0.3, "{}", m.grade);
+        assert!(e.thermal_diffusivity_mm2_per_s.values.iter().all(|a| (3.0..=15.0).contains(a)), "{}", m.grade);
+        let f = m.fatigue.as_ref().unwrap_or_else(|| panic!("{}: elastic data but no [fatigue] block", m.grade));
+        assert!(!f.curve_source.is_empty());
+        if let Some(p) = &f.creep_fatigue_envelope {
+            assert!(p.fatigue > 0.0 && p.fatigue < 1.0 && p.creep > 0.0 && p.creep < 1.0, "{}", m.grade);
+            assert!(p.source.contains("from memory") || p.source.contains("ASME"), "{}", m.grade);
+        }
+    }
+}

@@ -99,6 +99,8 @@ fn trend_point(k: u64) -> TrendPoint {
         creep_life_fraction: k as f64,
         creep_strain: 0.0,
         wear_index: 0.0,
+        fatigue_stress_mpa: 0.0,
+        fatigue_usage: 0.0,
     }
 }
 

@@ -23,6 +23,15 @@ Scenario (hours from 2026-10-01T00:00Z; see README.md):
     pressure);
   * shutdown Oct 10 21:00, two and a half days cooling to ambient, cold
     start-up 2 Oct 13 04:00;
+  * two-shift operation from Oct 26: the fire goes off every night at
+    23:00 (load ramps down from 21:30) and the unit hot-starts at 05:00
+    with a one-hour ramp; at each fire-off the SH2 outlet header's steam is
+    quenched by the attemperator spray (about 80 K in 10 minutes), and its
+    mid-wall thermocouple lags the steam by about 5 minutes, so the header's
+    nozzle bore sees a stress cycle every day (U2.SH2.TE-231 steam,
+    U2.SH2.TE-232 mid-wall; their noise comes from a random stream of their
+    own, so every other tag's values are as before wherever the unit runs as
+    before);
   * over-temperature excursion on SH3 outlet leg A (TE-311A): Oct 16
     09:00-15:00, about 25-35 K above normal;
   * failing thermocouple TE-311B (outlet leg B): drifting upwards and
@@ -59,6 +68,15 @@ AMBIENT_C = 24.0
 # Events, in hours from START.
 FIRE_ON = [4.0, 12 * 24 + 4.0]          # Oct 1 04:00, Oct 13 04:00
 FIRE_OFF = [9 * 24 + 21.0]               # Oct 10 21:00 (load ramps down first)
+TWO_SHIFT_DAYS = range(25, 31)            # Oct 26 - Oct 31: fire off 23:00, hot start 05:00
+FIRE_OFF += [d * 24 + 23.0 for d in TWO_SHIFT_DAYS]
+FIRE_ON += [(d + 1) * 24 + 5.0 for d in TWO_SHIFT_DAYS if d + 1 < 31]
+HOT_STARTUP_RAMP_H = 1.0                 # firing to minimum load, hot start
+HOT_WARMTH = 0.2                         # warmer than this at firing: a hot start
+QUENCH_K = 80.0                          # SH2 header steam drop at fire-off (spray)
+QUENCH_MIN = 10.0                        # ... reached in this many minutes
+QUENCH_RECOVER_MIN = 60.0                # ... then recovering to the warmth model
+HDR_LAG_MIN = 5.0                        # mid-wall thermocouple lag behind the steam
 STARTUP_RAMP_H = 5.0                     # firing to minimum-load conditions
 MIN_LOAD = 0.35
 LOAD_UP_H = 2.5                          # minimum load to demand after the ramp
@@ -129,6 +147,8 @@ class Unit:
         self.load_off = MIN_LOAD
         self.last_load = MIN_LOAD
         self.load_start = MIN_LOAD
+        self.w_on = 0.0       # warmth and pressure at firing (0: a cold start)
+        self.p_on = 0.0
         self.fire_on = {round(t * 60) for t in FIRE_ON}
         self.stop = {round((t - SHUTDOWN_RAMP_H) * 60) for t in FIRE_OFF}
 
@@ -136,6 +156,12 @@ class Unit:
         """Returns (load, warmth, pressure factor, load seen by the metal)."""
         h = m / 60.0
         if m in self.fire_on:
+            u = h - self.since
+            w0 = self.w_off * math.exp(-u / COOL_TAU_H) if self.state == "off" else 0.0
+            p0 = self.p_off * math.exp(-u / DEPRESS_TAU_H) if self.state == "off" else 0.0
+            # A cold start ramps from cold (the small warmth left after days
+            # off is ignored, as it always was); a hot start from where it is.
+            self.w_on, self.p_on = (w0, p0) if w0 > HOT_WARMTH else (0.0, 0.0)
             self.state, self.since = "starting", h
         if m in self.stop:
             self.state, self.since = "stopping", h
@@ -148,11 +174,14 @@ class Unit:
             return 0.0, w, p, self.load_off
         if self.state == "starting":
             u = h - self.since
-            if u < STARTUP_RAMP_H:
-                x = u / STARTUP_RAMP_H
+            ramp = HOT_STARTUP_RAMP_H if self.w_on > 0.0 else STARTUP_RAMP_H
+            if u < ramp:
+                x = u / ramp
                 # Temperatures lead pressure on a cold start.
-                return MIN_LOAD * x, smoothstep(x) ** 0.8, smoothstep(x) ** 1.6, MIN_LOAD
-            v = u - STARTUP_RAMP_H
+                w = self.w_on + (1.0 - self.w_on) * smoothstep(x) ** 0.8
+                p = self.p_on + (1.0 - self.p_on) * smoothstep(x) ** 1.6
+                return MIN_LOAD * x, w, p, MIN_LOAD
+            v = u - ramp
             load = min(d, MIN_LOAD + (1.0 - MIN_LOAD) * v / LOAD_UP_H)
             if load >= d:
                 self.state = "running"
@@ -201,6 +230,9 @@ def main():
     gas = AR1(rng, 1.5, 40.0)        # common fireside disturbance, SH temps
     exc_wander = AR1(rng, 2.5, 20.0)  # wander of the excursion
     casing = None                     # HP casing lags main steam
+    hdr_rng = random.Random(SEED + 2)  # the SH2 header's own noise stream
+    hdr_wall = None                   # SH2 header mid-wall temperature
+    fire_off_min = None               # minute of the newest fire-off
     prev_load = 0.0
     out = io.StringIO()
     out.write("timestamp,tag,value,quality\n")
@@ -230,6 +262,17 @@ def main():
         target_cas = metal(528.0, 20.0, lx, w)
         casing = target_cas if casing is None else casing + (target_cas - casing) / 90.0
         t_cas = casing
+
+        # SH2 outlet header (thick-walled, two-shift): steam temperature with
+        # the spray quench at each fire-off, and the mid-wall lagging it.
+        if unit.state == "off" and prev_load > 0.0:
+            fire_off_min = m
+        t_steam = metal(505.0, 20.0, lx, w)
+        if fire_off_min is not None and unit.state == "off":
+            k = m - fire_off_min
+            dip = min(k / QUENCH_MIN, 1.0) * (1.0 if k < QUENCH_MIN else math.exp(-(k - QUENCH_MIN) / QUENCH_RECOVER_MIN))
+            t_steam -= QUENCH_K * dip
+        hdr_wall = t_steam if hdr_wall is None else hdr_wall + (t_steam - hdr_wall) * (1.0 - math.exp(-1.0 / HDR_LAG_MIN))
 
         # Over-temperature excursion on leg A: 15-minute rise, 20-minute fall.
         e0, e1 = EXCURSION
@@ -290,6 +333,8 @@ def main():
             ("U2.SH1.WT-171", f"{f_n:.1f}", "good"),
             ("U2.SH1.ZT-172", f"{slip:.1f}", "good"),
             ("U2.HPCV1.ST-511", f"{stem:.3f}", "good"),
+            ("U2.SH2.TE-231", f"{t_steam + hdr_rng.gauss(0.0, 0.3):.1f}", "good"),
+            ("U2.SH2.TE-232", f"{hdr_wall + hdr_rng.gauss(0.0, 0.2):.1f}", "good"),
         ]
         for tag, v, q in values:
             out.write(f"{ts},{tag},{v},{q}\n")

@@ -290,7 +290,11 @@ impl AlarmBook {
             .filter(|_| state.integrated_to_ms.is_some() && !state.now.unmonitored)
             .map(|d| state.now.metal_temperature_k - d);
         let damage_rate = self.config.damage_rate;
-        let checks: [(AlarmIndex, bool, &Levels, f64); 6] = [
+        let fatigue = crate::engine::fatigue::figures(plan, state);
+        let no_levels = Levels::default();
+        let (usage_levels, combined_levels) =
+            plan.fatigue.as_ref().map_or((&no_levels, &no_levels), |f| (&f.usage_levels, &f.combined_levels));
+        let checks: [(AlarmIndex, bool, &Levels, f64); 8] = [
             (AlarmIndex::CreepLifeFraction, has_creep, &th.life_fraction, state.life_fraction),
             (
                 AlarmIndex::CreepStrain,
@@ -307,6 +311,18 @@ impl AlarmBook {
             ),
             (AlarmIndex::DamageRate, has_creep, &damage_rate, state.recent_life_fraction_rate_per_h),
             (AlarmIndex::HoursToCritical, has_creep && critical_lf.is_some(), &th.hours_to_critical, hours),
+            (
+                AlarmIndex::FatigueUsage,
+                fatigue.is_some(),
+                usage_levels,
+                fatigue.as_ref().map_or(0.0, |f| f.fatigue_usage),
+            ),
+            (
+                AlarmIndex::CreepFatigueIndex,
+                fatigue.is_some(),
+                combined_levels,
+                fatigue.as_ref().map_or(0.0, |f| f.creep_fatigue_index),
+            ),
         ];
         let mut events = vec![];
         for (index, applies, levels, value) in checks {

@@ -81,11 +81,17 @@ pub enum AlarmIndex {
     SensorBadQuality,
     /// The service itself is unhealthy (for example the outbox is over quota).
     ServiceHealth,
+    /// Miner's fatigue usage at the assessed location, the residue counted
+    /// as half cycles (dimensionless, 1 = the design curve's life).
+    FatigueUsage,
+    /// Combined creep-fatigue damage index on the material's bilinear
+    /// envelope (dimensionless, 1 = on the envelope).
+    CreepFatigueIndex,
 }
 
 impl AlarmIndex {
     /// Every index, in a fixed order.
-    pub const ALL: [AlarmIndex; 10] = [
+    pub const ALL: [AlarmIndex; 12] = [
         AlarmIndex::CreepLifeFraction,
         AlarmIndex::CreepStrain,
         AlarmIndex::WearIndex,
@@ -96,6 +102,8 @@ impl AlarmIndex {
         AlarmIndex::SensorOutOfRange,
         AlarmIndex::SensorBadQuality,
         AlarmIndex::ServiceHealth,
+        AlarmIndex::FatigueUsage,
+        AlarmIndex::CreepFatigueIndex,
     ];
 
     /// Stable snake_case name (same as the serde name).
@@ -111,6 +119,8 @@ impl AlarmIndex {
             AlarmIndex::SensorOutOfRange => "sensor_out_of_range",
             AlarmIndex::SensorBadQuality => "sensor_bad_quality",
             AlarmIndex::ServiceHealth => "service_health",
+            AlarmIndex::FatigueUsage => "fatigue_usage",
+            AlarmIndex::CreepFatigueIndex => "creep_fatigue_index",
         }
     }
 
@@ -132,6 +142,8 @@ impl AlarmIndex {
             AlarmIndex::SensorOutOfRange => "sensor out of range",
             AlarmIndex::SensorBadQuality => "sensor bad quality",
             AlarmIndex::ServiceHealth => "service health",
+            AlarmIndex::FatigueUsage => "fatigue usage",
+            AlarmIndex::CreepFatigueIndex => "creep-fatigue damage index",
         }
     }
 

@@ -148,7 +148,12 @@ impl Simulator {
                     // cold below 30 % load (start-up and coast-down).
                     let hot = |l: f64| t.full - 50.0 * (1.0 - l);
                     let v = if load >= 0.3 { hot(load) } else { t.cold + (hot(0.3) - t.cold) * load / 0.3 };
-                    v.max(t.cold) + 1.5 * j
+                    // Mostly a disturbance common to every temperature (the
+                    // fire), a little of each sensor's own: two thermocouples
+                    // of one fatigue location then differ by sensor noise
+                    // only, below the rainflow gate.
+                    let common = jitter((time_ms as u64).wrapping_mul(31).wrapping_add(1_000_003));
+                    v.max(t.cold) + 1.3 * common + 0.2 * j
                 }
                 _ => (t.cold + (t.full - t.cold) * load * (1.0 + 0.01 * j)).max(t.cold),
             };

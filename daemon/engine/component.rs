@@ -127,6 +127,10 @@ pub struct ComponentState {
     /// Inspection findings and what they set (`engine::inspection`).
     #[serde(default, skip_serializing_if = "super::inspection::InspectionState::is_empty")]
     pub inspection: super::inspection::InspectionState,
+    /// Fatigue ledger of the assessed location (`engine::fatigue`); absent
+    /// without `[component.fatigue]` and in ledgers stored before it.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fatigue: Option<super::fatigue::FatigueState>,
 }
 
 impl ComponentState {
@@ -153,6 +157,7 @@ impl ComponentState {
             now: Conditions::default(),
             histogram: TimeAtCondition::new(plan.temperature_edges_k.clone(), plan.pressure_edges_mpa.clone()),
             inspection: Default::default(),
+            fatigue: plan.fatigue.as_ref().map(super::fatigue::FatigueState::new),
         }
     }
 
@@ -560,6 +565,9 @@ fn integrate_piece(
         }),
         unmonitored,
     };
+    if let Some(f) = &plan.fatigue {
+        super::fatigue::on_piece(plan, f, state, tags, tag_plans, a_ms, b_ms, unmonitored);
+    }
 }
 
 /// The six input lines of one piece.

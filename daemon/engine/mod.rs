@@ -24,6 +24,7 @@
 
 pub mod component;
 pub mod inspection;
+pub mod fatigue;
 pub mod plan;
 pub mod signal;
 
@@ -825,5 +826,7 @@ impl Engine {
 
 #[cfg(test)]
 pub(crate) mod tests;
+#[cfg(test)]
+mod tests_fatigue;
 #[cfg(test)]
 mod tests_intake;

@@ -147,6 +147,8 @@ pub struct ComponentPlan {
     pub temperature_edges_k: Vec<f64>,
     /// Pressure class edges of the histogram, MPa.
     pub pressure_edges_mpa: Vec<f64>,
+    /// Fatigue at an assessed location (`[component.fatigue]`).
+    pub fatigue: Option<super::fatigue::FatiguePlan>,
 }
 
 impl ComponentPlan {
@@ -172,6 +174,7 @@ impl ComponentPlan {
             Input::Constant(_) => None,
         })
         .collect();
+        v.extend(self.fatigue.iter().flat_map(|f| f.tags()));
         v.sort_unstable();
         v.dedup();
         v

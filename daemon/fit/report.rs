@@ -58,6 +58,8 @@ pub fn larson_miller_toml(
                 norton: None,
                 hardness_hv: None,
                 reference_rupture_strengths: Vec::new(),
+                elastic: None,
+                fatigue: None,
             };
             Ok(toml_header(
                 "larson-miller",

@@ -154,6 +154,98 @@ pub struct Material {
     /// Published rupture strengths used to check the master curve.
     #[serde(default)]
     pub reference_rupture_strengths: Vec<ReferenceRuptureStrength>,
+    /// Elastic and thermal properties by temperature (fatigue needs them;
+    /// a grade without them still serves creep and wear).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub elastic: Option<ThermoElastic>,
+    /// Fatigue curve and creep-fatigue envelope of the grade.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fatigue: Option<MaterialFatigue>,
+}
+
+/// A property tabulated against temperature, with its source.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Tabulated {
+    /// Temperatures, °C, rising.
+    pub temperature_c: Vec<f64>,
+    /// Values at those temperatures, in the unit the key names.
+    pub values: Vec<f64>,
+    pub source: String,
+}
+
+impl Tabulated {
+    /// The value at `t_k` (K): straight-line interpolation between
+    /// tabulated temperatures, the end segments extended beyond the table
+    /// (common practice for smooth property tables). Needs two or more
+    /// points (checked when the library loads).
+    pub fn at_k(&self, t_k: f64) -> f64 {
+        let t = t_k - 273.15;
+        let ts = &self.temperature_c;
+        let n = ts.len();
+        if n == 1 {
+            return self.values[0];
+        }
+        let i = ts.windows(2).position(|w| t <= w[1]).unwrap_or(n - 2);
+        let (t0, t1, v0, v1) = (ts[i], ts[i + 1], self.values[i], self.values[i + 1]);
+        v0 + (v1 - v0) * (t - t0) / (t1 - t0)
+    }
+
+    /// What is wrong with the table, if anything (for validation).
+    pub fn problem(&self) -> Option<String> {
+        if self.temperature_c.len() < 2 || self.temperature_c.len() != self.values.len() {
+            return Some("needs two or more temperatures and as many values".into());
+        }
+        if self.temperature_c.windows(2).any(|w| !(w[0] < w[1])) {
+            return Some("temperatures must rise".into());
+        }
+        if self.values.iter().chain(&self.temperature_c).any(|v| !v.is_finite())
+            || self.values.iter().any(|v| *v <= 0.0)
+        {
+            return Some("values must be finite and positive".into());
+        }
+        None
+    }
+}
+
+/// Elastic and thermal properties the thermal stress needs.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ThermoElastic {
+    /// Young's modulus E, MPa.
+    pub youngs_modulus_mpa: Tabulated,
+    /// Instantaneous (differential) coefficient of thermal expansion α, 1/K.
+    pub thermal_expansion_per_k: Tabulated,
+    /// Poisson's ratio ν.
+    pub poisson_ratio: Sourced,
+    /// Thermal diffusivity a = λ/(ρ·c), mm²/s (the ramp-derived
+    /// through-wall difference needs it).
+    pub thermal_diffusivity_mm2_per_s: Tabulated,
+}
+
+/// A grade's fatigue data.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct MaterialFatigue {
+    /// Built-in design fatigue curve for the grade (see
+    /// `physics::fatigue::curve`), absent when none of them applies.
+    #[serde(default)]
+    pub design_curve: Option<super::fatigue::curve::DesignCurve>,
+    /// Why this curve (or why none).
+    pub curve_source: String,
+    /// Intersection point of the creep-fatigue envelope, when a code gives
+    /// one for the grade.
+    #[serde(default)]
+    pub creep_fatigue_envelope: Option<EnvelopePoint>,
+}
+
+/// The (fatigue, creep) damage intersection of a bilinear envelope.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct EnvelopePoint {
+    pub fatigue: f64,
+    pub creep: f64,
+    pub source: String,
 }
 
 impl Material {

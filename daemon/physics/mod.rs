@@ -5,6 +5,7 @@
 //! Conversions from the units in configuration and payloads live in
 //! [`units`] and happen at the edges.
 
+pub mod fatigue;
 pub mod histogram;
 pub mod inspection;
 pub mod larson_miller;

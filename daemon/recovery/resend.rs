@@ -104,5 +104,8 @@ pub fn point(plant: &str, plan: &ComponentPlan, p: &TrendPoint) -> Point {
     if plan.wear.is_some() {
         point = point.float("wear_index", p.wear_index);
     }
+    if plan.fatigue.is_some() && p.fatigue_usage.is_finite() {
+        point = point.float("fatigue_stress_mpa", p.fatigue_stress_mpa).float("fatigue_usage", p.fatigue_usage);
+    }
     point
 }

@@ -942,6 +942,12 @@ impl Ledger {
                     creep_life_fraction: capped(st.life_fraction, DISPLAY_CEILING),
                     creep_strain: capped(st.creep_strain, CREEP_STRAIN_CEILING),
                     wear_index: capped(st.wear_index(plan), DISPLAY_CEILING),
+                    fatigue_stress_mpa: st
+                        .fatigue
+                        .as_ref()
+                        .filter(|_| plan.fatigue.is_some())
+                        .map_or(f64::NAN, |f| f.stress_mpa),
+                    fatigue_usage: crate::engine::fatigue::figures(plan, st).map_or(f64::NAN, |f| f.fatigue_usage),
                 },
             ));
             // Threshold lines beside the series at most once an hour of

@@ -394,4 +394,99 @@ pub struct ComponentSettings {
     pub initial: InitialSettings,
     #[serde(default)]
     pub thresholds: ThresholdSettings,
+    /// Fatigue at an assessed location.
+    #[serde(default)]
+    pub fatigue: Option<FatigueSettings>,
+}
+
+/// Fatigue at an assessed location of a component (`[component.fatigue]`).
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct FatigueSettings {
+    /// The location assessed, in words (for example "bore of the largest
+    /// nozzle").
+    pub location: String,
+    /// Stress factor k_p on the pressure hoop stress at the location
+    /// (replaces the component's `stress_factor` there).
+    #[serde(default = "one")]
+    pub pressure_stress_factor: f64,
+    /// Thermal stress factor f_t of the location (1 for a plain bore).
+    #[serde(default = "one")]
+    pub thermal_stress_factor: f64,
+    /// Fluid or inner-surface temperature (tag or constant). With
+    /// `wall_temperature` the difference is measured; alone, it is derived
+    /// from its rate of change (quasi-steady hollow cylinder).
+    #[serde(default)]
+    pub fluid_temperature: Option<InputSetting>,
+    /// Metal temperature in the wall (tag or constant), at `wall_position`.
+    #[serde(default)]
+    pub wall_temperature: Option<InputSetting>,
+    /// Where `wall_temperature` is measured: `mid_wall` (taken as the mean
+    /// wall temperature) or `outer_surface`.
+    #[serde(default)]
+    pub wall_position: WallPosition,
+    /// Outside diameter and wall at the location for the ramp-derived
+    /// difference; default: the component's geometry.
+    #[serde(default)]
+    pub outside_diameter: Option<QuantitySetting>,
+    #[serde(default)]
+    pub wall: Option<QuantitySetting>,
+    /// Hysteresis gate of the rainflow counter, MPa: reversals smaller than
+    /// this make no cycles.
+    #[serde(default = "default_gate_mpa")]
+    pub hysteresis_gate_mpa: f64,
+    /// Design fatigue curve (`asme_carbon_low_alloy`, `asme_austenitic`);
+    /// default: the material's.
+    #[serde(default)]
+    pub design_curve: Option<String>,
+    /// Class widths of the cycle table, MPa.
+    #[serde(default = "default_range_class_mpa")]
+    pub range_class_mpa: f64,
+    #[serde(default = "default_mean_class_mpa")]
+    pub mean_class_mpa: f64,
+    /// Rate of change of the fluid temperature in a design start-up, K/min
+    /// (`check-config` shows the allowable cycles of such a start-stop).
+    #[serde(default = "default_design_ramp")]
+    pub design_ramp_k_per_min: f64,
+    /// Fatigue usage before the ledger started (an earlier assessment).
+    #[serde(default)]
+    pub initial_usage: f64,
+    /// Limit of the primary-plus-secondary stress range S_PS at the
+    /// location, MPa: ranges above it get the simplified elastic-plastic
+    /// factor K_e. Absent: no correction (the README's caution says so).
+    #[serde(default)]
+    pub plasticity_limit_mpa: Option<f64>,
+    /// Fatigue strength reduction factor (≥ 1) of a fretting contact at the
+    /// location: multiplies the alternating stress of cycles that close
+    /// while the component's fretting contact is in partial or gross slip.
+    /// Needs a fretting `[component.wear]`.
+    #[serde(default)]
+    pub fretting_knockdown: Option<f64>,
+    /// Alarm levels of fatigue usage and of the creep-fatigue index.
+    #[serde(default)]
+    pub fatigue_usage: Option<LevelSettings>,
+    #[serde(default)]
+    pub creep_fatigue: Option<LevelSettings>,
+}
+
+/// Where a wall thermocouple sits.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Deserialize, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum WallPosition {
+    #[default]
+    MidWall,
+    OuterSurface,
+}
+
+fn default_gate_mpa() -> f64 {
+    10.0
+}
+fn default_range_class_mpa() -> f64 {
+    20.0
+}
+fn default_mean_class_mpa() -> f64 {
+    50.0
+}
+fn default_design_ramp() -> f64 {
+    5.0
 }

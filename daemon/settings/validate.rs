@@ -14,6 +14,9 @@ use std::collections::HashMap;
 use std::fmt;
 use std::path::{Path, PathBuf};
 
+mod fatigue;
+pub use fatigue::{DEFAULT_CREEP_FATIGUE, DEFAULT_FATIGUE_USAGE};
+
 /// One problem found in a configuration.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ConfigProblem {
@@ -723,6 +726,19 @@ impl Validator {
                 .map(|l| Levels { advisory: l.advisory, warning: l.warning, critical: l.critical })
                 .unwrap_or(DEFAULT_HOURS_TO_CRITICAL),
         };
+        let fatigue = c.fatigue.as_ref().and_then(|f| {
+            let fretting = c.wear.as_ref().is_some_and(|w| w.model == WearModel::Fretting);
+            self.fatigue(
+                place,
+                f,
+                material.as_ref(),
+                stress.as_ref(),
+                fretting,
+                metal_temperature.is_some(),
+                tags,
+                index,
+            )
+        });
         let material = material?;
         let stress = stress?;
         let t_ref = design_t.unwrap_or(material.larson_miller.temperature_range_k[1]);
@@ -767,6 +783,7 @@ impl Validator {
             recent_rate_settling_h: s.engine.recent_rate_settling_h,
             temperature_edges_k,
             pressure_edges_mpa,
+            fatigue,
         })
     }
 

@@ -341,6 +341,8 @@ mod tests {
             creep_life_fraction: 0.1,
             creep_strain: 0.0,
             wear_index: 0.0,
+            fatigue_stress_mpa: 0.0,
+            fatigue_usage: 0.0,
         };
         for day in 0..3 {
             let t = OCT_1 + day * MS_PER_DAY;

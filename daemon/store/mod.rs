@@ -683,6 +683,8 @@ mod tests {
             creep_life_fraction: 0.125,
             creep_strain: 2.5e-4,
             wear_index: 0.0,
+            fatigue_stress_mpa: 120.5,
+            fatigue_usage: 0.001,
         };
         let trend_points = vec![("sh-1".to_string(), point)];
         {

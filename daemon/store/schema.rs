@@ -59,6 +59,10 @@ pub const MIGRATIONS: &[Migration] = &[
         summary: "daily history: one point a day per component, kept for the life of the part",
         apply: super::inspection::v8_history_day,
     },
+    Migration {
+        summary: "fatigue in the component trends: stress at the fatigue location and fatigue usage",
+        apply: v9_trend_fatigue,
+    },
 ];
 
 /// The newest schema version this build knows: the number of migrations.
@@ -185,6 +189,16 @@ fn v6_parked_line(tx: &Transaction<'_>) -> rusqlite::Result<()> {
              reason TEXT NOT NULL
          );
          ALTER TABLE outbox_total ADD COLUMN parked_lines INTEGER NOT NULL DEFAULT 0;",
+    )
+}
+
+/// Version 7: the trend's fatigue figures (stress at the fatigue location,
+/// fatigue usage), `NULL` for parts without `[component.fatigue]` and for
+/// rows written before.
+fn v9_trend_fatigue(tx: &Transaction<'_>) -> rusqlite::Result<()> {
+    tx.execute_batch(
+        "ALTER TABLE trend_point ADD COLUMN fatigue_stress_mpa REAL;
+         ALTER TABLE trend_point ADD COLUMN fatigue_usage REAL;",
     )
 }
 

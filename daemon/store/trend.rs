@@ -51,6 +51,11 @@ pub struct TrendPoint {
     pub creep_life_fraction: f64,
     pub creep_strain: f64,
     pub wear_index: f64,
+    /// Stress at the fatigue location, MPa, and fatigue usage (the open
+    /// residue as half cycles); NaN (`null`) for parts without
+    /// `[component.fatigue]` and for points written before schema v9.
+    pub fatigue_stress_mpa: f64,
+    pub fatigue_usage: f64,
 }
 
 /// Which points of one component a read returns: the newest `limit` of
@@ -89,15 +94,17 @@ pub(super) fn upsert(
     }
     let mut insert = conn.prepare_cached(
         "INSERT INTO trend_point (component, t_ms, metal_temperature_c, pressure_mpa, hoop_stress_mpa,
-                                  creep_life_fraction, creep_strain, wear_index)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)
+                                  creep_life_fraction, creep_strain, wear_index, fatigue_stress_mpa, fatigue_usage)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)
          ON CONFLICT (component, t_ms) DO UPDATE SET
              metal_temperature_c = excluded.metal_temperature_c,
              pressure_mpa = excluded.pressure_mpa,
              hoop_stress_mpa = excluded.hoop_stress_mpa,
              creep_life_fraction = excluded.creep_life_fraction,
              creep_strain = excluded.creep_strain,
-             wear_index = excluded.wear_index",
+             wear_index = excluded.wear_index,
+             fatigue_stress_mpa = excluded.fatigue_stress_mpa,
+             fatigue_usage = excluded.fatigue_usage",
     )?;
     let mut written: BTreeMap<&str, u64> = BTreeMap::new();
     for (component, p) in points {
@@ -110,6 +117,8 @@ pub(super) fn upsert(
             p.creep_life_fraction,
             p.creep_strain,
             p.wear_index,
+            p.fatigue_stress_mpa,
+            p.fatigue_usage,
         ))?;
         *written.entry(component).or_default() += 1;
     }
@@ -154,7 +163,8 @@ fn points(conn: &Connection, component: &str, window: TrendWindow) -> rusqlite::
     let value =
         |r: &Row<'_>, i: usize| -> rusqlite::Result<f64> { Ok(r.get::<_, Option<f64>>(i)?.unwrap_or(f64::NAN)) };
     let mut stmt = conn.prepare_cached(
-        "SELECT t_ms, metal_temperature_c, pressure_mpa, hoop_stress_mpa, creep_life_fraction, creep_strain, wear_index
+        "SELECT t_ms, metal_temperature_c, pressure_mpa, hoop_stress_mpa, creep_life_fraction, creep_strain, wear_index,
+                fatigue_stress_mpa, fatigue_usage
          FROM trend_point WHERE component = ?1 AND t_ms >= ?2 ORDER BY t_ms DESC LIMIT ?3",
     )?;
     let rows = stmt.query_map((component, since, limit), |r| {
@@ -166,6 +176,8 @@ fn points(conn: &Connection, component: &str, window: TrendWindow) -> rusqlite::
             creep_life_fraction: value(r, 4)?,
             creep_strain: value(r, 5)?,
             wear_index: value(r, 6)?,
+            fatigue_stress_mpa: value(r, 7)?,
+            fatigue_usage: value(r, 8)?,
         })
     })?;
     let mut newest_first = rows.collect::<rusqlite::Result<Vec<_>>>()?;
@@ -236,6 +248,8 @@ mod tests {
             creep_life_fraction: n as f64 / 1000.0,
             creep_strain: 1.0e-5 * n as f64,
             wear_index: 0.0,
+            fatigue_stress_mpa: 100.0 + n as f64,
+            fatigue_usage: 1.0e-6 * n as f64,
         }
     }
 

@@ -23,6 +23,8 @@ const LL = (() => {
     sensor_out_of_range: 'Sensor out of range',
     sensor_bad_quality: 'Sensor bad quality',
     service_health: 'Service health',
+    fatigue_usage: 'Fatigue usage',
+    creep_fatigue_index: 'Creep-fatigue index',
   };
   const CONDITION_INDEX = new Set(['sensor_stale', 'sensor_out_of_range', 'sensor_bad_quality', 'service_health']);
   const FLAG_LABEL = {
@@ -35,6 +37,7 @@ const LL = (() => {
     wall_exhausted: 'wall exhausted',
     life_exhausted: 'life exhausted',
     wear_allowance_exhausted: 'wear allowance exhausted',
+    fatigue_curve_temperature_exceeded: 'fatigue curve used above its temperature',
   };
   const STATE_LABEL = {
     normal: 'normal',

@@ -161,13 +161,18 @@
       }
     }
     if (wear) defs.push({ key: 'wear_index', title: 'Wear index', unit: '', fmt: LL.frac, levels: levelLines('wear_index'), floor0: all, cls: 's-wear' });
+    if (comp.fatigue) {
+      // Points stored before the ledger had fatigue figures carry null.
+      defs.push({ key: 'fatigue_stress_mpa', title: 'Stress at the fatigue location', unit: 'MPa', fmt: (v) => LL.sig(v, 4), cls: 's-stress', fatigue: true });
+    }
     const n = pts.filter((p) => p.t >= t0).length;
     let html = '';
     for (const d of defs) {
       const s = d.scale || 1;
       // A point at 0 K is the ledger before its first interval: no
       // temperature, pressure or stress yet.
-      const src = d.state ? pts.filter((p) => p.metal_temperature_c > -273) : pts;
+      let src = d.state ? pts.filter((p) => p.metal_temperature_c > -273) : pts;
+      if (d.fatigue) src = src.filter((p) => LL.num(p[d.key]) !== null);
       const series = src.map((p) => [p.t, p[d.key] * s]);
       if (!series.length) continue;
       const last = series[series.length - 1][1];
@@ -389,6 +394,7 @@
     renderClassTable();
     renderAlarms();
     renderEvents();
+    if (typeof LLFatigue !== 'undefined') LLFatigue.render(comp);
   }
 
   $('windows').addEventListener('click', (ev) => {

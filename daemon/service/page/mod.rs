@@ -23,6 +23,7 @@ const APP_CSS: &str = include_str!("app.css");
 const APP_JS: &str = include_str!("app.js");
 const OVERVIEW_JS: &str = include_str!("overview.js");
 const COMPONENT_JS: &str = include_str!("component.js");
+const FATIGUE_JS: &str = include_str!("fatigue.js");
 const ICON_SVG: &str = include_str!("icon.svg");
 const INSPECTION_JS: &str = include_str!("inspection.js");
 
@@ -36,6 +37,7 @@ pub fn routes() -> Router<HttpState> {
         .route("/page/overview.js", get(|| async { asset("text/javascript; charset=utf-8", OVERVIEW_JS) }))
         .route("/page/component.js", get(|| async { asset("text/javascript; charset=utf-8", COMPONENT_JS) }))
         .route("/page/inspection.js", get(|| async { asset("text/javascript; charset=utf-8", INSPECTION_JS) }))
+        .route("/page/fatigue.js", get(|| async { asset("text/javascript; charset=utf-8", FATIGUE_JS) }))
         .route("/page/icon.svg", get(|| async { asset("image/svg+xml", ICON_SVG) }))
 }
 
