@@ -23,8 +23,8 @@
 //!   counted as unmonitored hours.
 
 pub mod component;
-pub mod inspection;
 pub mod fatigue;
+pub mod inspection;
 pub mod plan;
 pub mod signal;
 

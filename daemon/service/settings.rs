@@ -140,9 +140,24 @@ pub struct ServiceSettings {
 }
 
 fn section<T: DeserializeOwned>(name: &str, t: &Option<toml::Table>) -> Result<Option<T>, String> {
-    match t {
-        None => Ok(None),
-        Some(t) => T::deserialize(toml::Value::Table(t.clone())).map(Some).map_err(|e| format!("[{name}]: {e}")),
+    let Some(t) = t else { return Ok(None) };
+    match T::deserialize(toml::Value::Table(t.clone())) {
+        Ok(v) => Ok(Some(v)),
+        Err(first) => {
+            // Environment overrides arrive as text ("8883" for a port):
+            // read the section again through the configuration reader,
+            // which takes text for numbers and booleans where the setting
+            // is one, and keeps text as text where it is a string.
+            let lenient = toml::to_string(&toml::Value::Table(t.clone())).ok().and_then(|text| {
+                config::Config::builder()
+                    .add_source(config::File::from_str(&text, config::FileFormat::Toml))
+                    .build()
+                    .ok()?
+                    .try_deserialize::<T>()
+                    .ok()
+            });
+            lenient.map(Some).ok_or_else(|| format!("[{name}]: {first}"))
+        }
     }
 }
 
@@ -517,6 +532,20 @@ fn alarm_problems(a: &AlarmConfig) -> Vec<String> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Environment overrides reach the service sections as text: a port
+    /// given as "8883" is read as the number, a client id "007" stays
+    /// "007" (common practice: MQTT client ids are strings).
+    #[test]
+    fn overrides_given_as_text_are_read_by_the_setting_s_type() {
+        let s: Settings = toml::from_str("[mqtt]\nport = \"8883\"\nclient_id = \"007\"\n").unwrap();
+        let svc = ServiceSettings::from_settings(&s).unwrap();
+        assert_eq!(svc.mqtt.port, 8883);
+        assert_eq!(svc.mqtt.client_id, "007");
+        let s: Settings = toml::from_str("[mqtt]\nport = \"soon\"\n").unwrap();
+        let e = ServiceSettings::from_settings(&s).unwrap_err();
+        assert!(e[0].contains("[mqtt]") && e[0].contains("port"), "{e:?}");
+    }
 
     fn store_section(text: &str) -> Result<ServiceSettings, Vec<String>> {
         let s: Settings = toml::from_str(&format!("[store]\n{text}")).unwrap();
