@@ -33,7 +33,7 @@
 //!
 //! Time is the caller's: every call takes event time in milliseconds.
 
-use super::command::AlarmCommand;
+use super::command::{AlarmCommand, AlarmTarget, Scope};
 use super::deadband::{next_severity, Deadband};
 use super::event::{AlarmEvent, Transition};
 use super::index::{AlarmIndex, Direction, Severity};
@@ -254,6 +254,39 @@ impl AlarmBook {
         events
     }
 
+    /// Judge a tag's sensor fault (`index` one of the sensor indices): one
+    /// record per tag and fault, keyed `tag/index`, listing the components
+    /// whose ledgers read the tag (`affects`) and, as its unit, their
+    /// plant units joined by commas. One fault of a transmitter shared by
+    /// many parts is one alarm, not one per part.
+    #[allow(clippy::too_many_arguments)]
+    pub fn evaluate_sensor(
+        &mut self,
+        tag: &str,
+        unit: &str,
+        affects: &[String],
+        index: AlarmIndex,
+        active: bool,
+        detail: &str,
+        time_ms: i64,
+    ) -> Vec<AlarmEvent> {
+        let mut events = vec![];
+        let rec = self.entry(tag, unit, index, time_ms, &mut events);
+        if rec.affects != affects {
+            rec.affects = affects.to_vec();
+        }
+        events.extend(self.evaluate_condition(tag, unit, index, active, detail, time_ms));
+        events
+    }
+
+    /// Drop records (keys) that no longer describe anything, for example
+    /// sensor alarms kept per component by an older version. Returns the
+    /// records dropped.
+    pub fn retire(&mut self, keep: impl Fn(&AlarmRecord) -> bool) -> Vec<AlarmRecord> {
+        let gone: Vec<String> = self.records.iter().filter(|(_, r)| !keep(r)).map(|(k, _)| k.clone()).collect();
+        gone.iter().filter_map(|k| self.records.remove(k)).collect()
+    }
+
     /// Judge every index that applies to one component from its thresholds:
     ///
     /// * creep life fraction and hours to critical: with a metal
@@ -329,6 +362,10 @@ impl AlarmBook {
         time_ms: i64,
     ) -> Result<Vec<AlarmEvent>, AlarmError> {
         let keys = self.targets(key_or_component, index)?;
+        Ok(self.acknowledge_keys(keys, by, time_ms))
+    }
+
+    fn acknowledge_keys(&mut self, keys: Vec<String>, by: &str, time_ms: i64) -> Vec<AlarmEvent> {
         let mut events = self.expire_keys(&keys, time_ms);
         for k in keys {
             let rec = self.records.get_mut(&k).expect("target exists");
@@ -359,7 +396,7 @@ impl AlarmBook {
             e.by = Some(by.to_string());
             events.push(e);
         }
-        Ok(events)
+        events
     }
 
     /// Shelve one alarm or every alarm of a component until `until_ms`
@@ -376,6 +413,13 @@ impl AlarmBook {
         reason: &str,
         time_ms: i64,
     ) -> Result<Vec<AlarmEvent>, AlarmError> {
+        self.check_shelve(key_or_component, until_ms, time_ms)?;
+        let keys = self.targets(key_or_component, index)?;
+        Ok(self.shelve_keys(keys, until_ms, by, reason, time_ms))
+    }
+
+    /// A shelve end must be ahead and within the longest shelve.
+    fn check_shelve(&self, key_or_component: &str, until_ms: i64, time_ms: i64) -> Result<(), AlarmError> {
         if until_ms <= time_ms {
             return Err(AlarmError::ShelveNotAhead {
                 target: key_or_component.to_string(),
@@ -393,7 +437,17 @@ impl AlarmBook {
                 max_h,
             });
         }
-        let keys = self.targets(key_or_component, index)?;
+        Ok(())
+    }
+
+    fn shelve_keys(
+        &mut self,
+        keys: Vec<String>,
+        until_ms: i64,
+        by: &str,
+        reason: &str,
+        time_ms: i64,
+    ) -> Vec<AlarmEvent> {
         let mut events = vec![];
         for k in keys {
             let rec = self.records.get_mut(&k).expect("target exists");
@@ -420,7 +474,7 @@ impl AlarmBook {
             e.shelved_until = Some(until);
             events.push(e);
         }
-        Ok(events)
+        events
     }
 
     /// Lift the shelve of one alarm or of every alarm of a component;
@@ -433,6 +487,10 @@ impl AlarmBook {
         time_ms: i64,
     ) -> Result<Vec<AlarmEvent>, AlarmError> {
         let keys = self.targets(key_or_component, index)?;
+        Ok(self.unshelve_keys(keys, by, time_ms))
+    }
+
+    fn unshelve_keys(&mut self, keys: Vec<String>, by: &str, time_ms: i64) -> Vec<AlarmEvent> {
         let mut events = vec![];
         for k in keys {
             let rec = self.records.get_mut(&k).expect("target exists");
@@ -442,7 +500,7 @@ impl AlarmBook {
                 events.push(e);
             }
         }
-        Ok(events)
+        events
     }
 
     /// Lift every shelve that has ended by `now_ms`.
@@ -453,13 +511,42 @@ impl AlarmBook {
 
     /// Carry out an operator command received at `time_ms`.
     pub fn apply(&mut self, command: &AlarmCommand, time_ms: i64) -> Result<Vec<AlarmEvent>, AlarmError> {
+        let target = command.target();
         match command {
-            AlarmCommand::Acknowledge { target, by } => self.acknowledge(&target.component, target.index, by, time_ms),
-            AlarmCommand::Shelve { target, duration_h, by, reason } => {
-                let until_ms = time_ms.saturating_add((duration_h * MS_PER_H).round() as i64);
-                self.shelve(&target.component, target.index, until_ms, by, reason, time_ms)
+            AlarmCommand::Acknowledge { by, .. } => {
+                let keys = self.targets_of(target)?;
+                Ok(self.acknowledge_keys(keys, by, time_ms))
             }
-            AlarmCommand::Unshelve { target, by } => self.unshelve(&target.component, target.index, by, time_ms),
+            AlarmCommand::Shelve { duration_h, by, reason, .. } => {
+                let until_ms = time_ms.saturating_add((duration_h * MS_PER_H).round() as i64);
+                self.check_shelve(&target.component, until_ms, time_ms)?;
+                let keys = self.targets_of(target)?;
+                Ok(self.shelve_keys(keys, until_ms, by, reason, time_ms))
+            }
+            AlarmCommand::Unshelve { by, .. } => {
+                let keys = self.targets_of(target)?;
+                Ok(self.unshelve_keys(keys, by, time_ms))
+            }
+        }
+    }
+
+    /// The alarms a command target addresses, as a summary (what an HTTP
+    /// command answers with): a component's summary for
+    /// [`Scope::Component`] and [`Scope::Tag`], else one over the unit or
+    /// the plant (named `unit U2` or `all`).
+    pub fn summary_of(&self, target: &AlarmTarget) -> ComponentAlarmSummary {
+        match target.scope {
+            Scope::Component => {
+                let c = self.record(&target.component).map_or(target.component.as_str(), |r| r.component.as_str());
+                self.current(c)
+            }
+            Scope::Tag => self.current(&target.component),
+            Scope::Unit => summarise(
+                &format!("unit {}", target.component),
+                &target.component,
+                self.records.values().filter(|r| r.in_unit(&target.component)).cloned().collect(),
+            ),
+            Scope::All => summarise("all", "", self.records.values().cloned().collect()),
         }
     }
 
@@ -469,7 +556,7 @@ impl AlarmBook {
         // contiguous range of the map (the equality test keeps a component
         // named `A/B` out of `A`'s summary).
         let prefix = format!("{component}/");
-        let alarms: Vec<AlarmRecord> = self
+        let mut alarms: Vec<AlarmRecord> = self
             .records
             .range(prefix.clone()..)
             .take_while(|(k, _)| k.starts_with(&prefix))
@@ -477,19 +564,16 @@ impl AlarmBook {
             .filter(|r| r.component == component)
             .cloned()
             .collect();
-        let active: Vec<&AlarmRecord> =
-            alarms.iter().filter(|r| r.is_active() && r.state != AlarmState::Shelved).collect();
-        ComponentAlarmSummary {
-            component: component.to_string(),
-            unit: alarms.first().map(|r| r.unit.clone()).unwrap_or_default(),
-            worst_severity: active.iter().filter_map(|r| r.condition).max(),
-            active: active.len(),
-            unacknowledged: alarms.iter().filter(|r| r.state.needs_acknowledge()).count(),
-            shelved: alarms.iter().filter(|r| r.state == AlarmState::Shelved).count(),
-            updated: alarms.iter().map(|r| r.updated_ms).max().map(rfc3339_ms),
-            alarms,
-            caution: crate::CAUTION,
-        }
+        let unit = alarms.iter().find(|r| r.affects.is_empty()).map(|r| r.unit.clone());
+        // The sensor alarms of the tags it reads (after its own).
+        alarms.extend(
+            self.records
+                .values()
+                .filter(|r| r.component != component && r.affects.iter().any(|c| c == component))
+                .cloned(),
+        );
+        let unit = unit.or_else(|| alarms.first().map(|r| r.unit.clone())).unwrap_or_default();
+        summarise(component, &unit, alarms)
     }
 
     /// The record of `component/index`, created in `normal` if new; a
@@ -519,8 +603,40 @@ impl AlarmBook {
         keys.iter().filter_map(|k| self.records.get_mut(k).and_then(|r| expire(r, now_ms))).collect()
     }
 
+    /// Keys a command target addresses (see [`Scope`]).
+    fn targets_of(&self, target: &AlarmTarget) -> Result<Vec<String>, AlarmError> {
+        let pick = |f: &dyn Fn(&AlarmRecord) -> bool| -> Vec<String> {
+            self.records
+                .iter()
+                .filter(|(_, r)| f(r) && target.index.is_none_or(|i| r.index == i))
+                .map(|(k, _)| k.clone())
+                .collect()
+        };
+        let name = target.component.as_str();
+        match target.scope {
+            Scope::Component => self.targets(name, target.index),
+            Scope::Tag => {
+                let keys = pick(&|r| r.component == name && r.index.is_sensor());
+                if keys.is_empty() {
+                    Err(AlarmError::UnknownTag { tag: name.to_string() })
+                } else {
+                    Ok(keys)
+                }
+            }
+            Scope::Unit => {
+                let keys = pick(&|r| r.in_unit(name));
+                if keys.is_empty() {
+                    Err(AlarmError::UnknownUnit { unit: name.to_string() })
+                } else {
+                    Ok(keys)
+                }
+            }
+            Scope::All => Ok(pick(&|_| true)),
+        }
+    }
+
     /// Keys addressed by a command: an exact key, a component and index, or
-    /// all of a component's alarms.
+    /// all of a component's alarms (its own and those of the tags it reads).
     fn targets(&self, key_or_component: &str, index: Option<AlarmIndex>) -> Result<Vec<String>, AlarmError> {
         if let Some(rec) = self.records.get(key_or_component) {
             return match index {
@@ -531,12 +647,21 @@ impl AlarmBook {
             };
         }
         let of_component: Vec<String> =
-            self.records.iter().filter(|(_, r)| r.component == key_or_component).map(|(k, _)| k.clone()).collect();
+            self.records.iter().filter(|(_, r)| r.concerns(key_or_component)).map(|(k, _)| k.clone()).collect();
         match index {
             Some(i) => {
                 let k = key(key_or_component, i);
                 if self.records.contains_key(&k) {
-                    Ok(vec![k])
+                    return Ok(vec![k]);
+                }
+                // A sensor index of a component: the alarms of the tags it reads.
+                let of_tags: Vec<String> = of_component
+                    .iter()
+                    .filter(|k| self.records.get(*k).is_some_and(|r| r.index == i && r.component != key_or_component))
+                    .cloned()
+                    .collect();
+                if !of_tags.is_empty() {
+                    Ok(of_tags)
                 } else {
                     Err(AlarmError::UnknownAlarm { key: k, known: of_component })
                 }
@@ -546,6 +671,22 @@ impl AlarmBook {
             }
             None => Ok(of_component),
         }
+    }
+}
+
+/// A summary over some records.
+fn summarise(name: &str, unit: &str, alarms: Vec<AlarmRecord>) -> ComponentAlarmSummary {
+    let active: Vec<&AlarmRecord> = alarms.iter().filter(|r| r.is_active() && r.state != AlarmState::Shelved).collect();
+    ComponentAlarmSummary {
+        component: name.to_string(),
+        unit: unit.to_string(),
+        worst_severity: active.iter().filter_map(|r| r.condition).max(),
+        active: active.len(),
+        unacknowledged: alarms.iter().filter(|r| r.state.needs_acknowledge()).count(),
+        shelved: alarms.iter().filter(|r| r.state == AlarmState::Shelved).count(),
+        updated: alarms.iter().map(|r| r.updated_ms).max().map(rfc3339_ms),
+        alarms,
+        caution: crate::CAUTION,
     }
 }
 

@@ -81,6 +81,10 @@ pub struct AlarmEvent {
     pub shelved_until: Option<String>,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub detail: Option<String>,
+    /// For a sensor alarm (`component` is then the tag): the components
+    /// whose ledgers read the tag.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub affects: Vec<String>,
     /// Always this build's [`crate::CAUTION`], also for an event read back
     /// from the journal.
     #[serde(skip_deserializing, default = "caution")]
@@ -117,6 +121,7 @@ impl AlarmEvent {
             reason: None,
             shelved_until: None,
             detail: rec.detail.clone(),
+            affects: rec.affects.clone(),
             caution: crate::CAUTION,
         }
     }
@@ -132,7 +137,8 @@ impl AlarmEvent {
     }
 
     /// The `alarm_event` database point: tags plant, unit, component,
-    /// index, severity, state; fields value, threshold, message, transition.
+    /// index, severity, state; fields value, threshold, message, transition
+    /// and, for a sensor alarm, `affects` (component names, comma-separated).
     pub fn to_point(&self, plant: &str) -> Point {
         let mut p = Point::new("alarm_event", self.time_ms.saturating_mul(1_000_000))
             .tag("plant", plant)
@@ -146,6 +152,9 @@ impl AlarmEvent {
         }
         if let Some(t) = self.threshold {
             p = p.float("threshold", t);
+        }
+        if !self.affects.is_empty() {
+            p = p.string("affects", &self.affects.join(","));
         }
         p.string("message", &self.message).string("transition", self.transition.name())
     }

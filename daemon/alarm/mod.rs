@@ -30,7 +30,7 @@ pub mod record;
 mod tests;
 
 pub use book::{AlarmBook, AlarmConfig, ComponentAlarmSummary, MAX_SHELVE_H};
-pub use command::{carries_token, parse_command, tokens_match, AlarmCommand, AlarmTarget};
+pub use command::{carries_token, parse_command, tokens_match, AlarmCommand, AlarmTarget, Scope};
 pub use deadband::Deadband;
 pub use event::{AlarmEvent, Transition};
 pub use index::{AlarmIndex, Direction, Severity};
@@ -44,6 +44,10 @@ pub enum AlarmError {
     UnknownAlarm { key: String, known: Vec<String> },
     #[error("no alarms recorded for component \"{component}\" (check the component name, or give a full key component/index)")]
     UnknownComponent { component: String },
+    #[error("no sensor alarms recorded for tag \"{tag}\" (check the tag name; a tag has sensor alarms once it is read by a component)")]
+    UnknownTag { tag: String },
+    #[error("no alarms recorded for plant unit \"{unit}\" (check the unit name)")]
+    UnknownUnit { unit: String },
     #[error("cannot shelve \"{target}\" until {until}: that is not after the command time {now}")]
     ShelveNotAhead { target: String, until: String, now: String },
     #[error("cannot shelve \"{target}\" for {hours:.1} h: at most {max_h} h is allowed")]

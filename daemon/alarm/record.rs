@@ -1,4 +1,5 @@
-//! One alarm's durable record: its ISA-18.2 state, what its condition
+//! One alarm's durable record (a component's index, or a tag's sensor
+//! fault): its ISA-18.2 state, what its condition
 //! implies now, and who acknowledged or shelved it.
 //!
 //! The record keeps two things apart: `condition`, what the latest value
@@ -85,6 +86,11 @@ pub struct AlarmRecord {
     pub acknowledged_ms: Option<i64>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub shelve: Option<Shelve>,
+    /// For a sensor alarm (one per tag: `component` is then the tag's
+    /// name): the components whose ledgers read the tag, sorted. Empty for
+    /// a component's own alarms.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub affects: Vec<String>,
 }
 
 impl AlarmRecord {
@@ -105,6 +111,7 @@ impl AlarmRecord {
             acknowledged_by: None,
             acknowledged_ms: None,
             shelve: None,
+            affects: vec![],
         }
     }
 
@@ -116,6 +123,18 @@ impl AlarmRecord {
     /// Whether the condition is active.
     pub fn is_active(&self) -> bool {
         self.condition.is_some()
+    }
+
+    /// Whether this record concerns `component`: its own alarm, or a
+    /// sensor alarm of a tag the component reads.
+    pub fn concerns(&self, component: &str) -> bool {
+        self.component == component || self.affects.iter().any(|c| c == component)
+    }
+
+    /// Whether this record belongs to plant unit `unit` (a sensor alarm
+    /// belongs to every unit of the components it affects).
+    pub fn in_unit(&self, unit: &str) -> bool {
+        self.unit.split(',').any(|u| u == unit)
     }
 }
 

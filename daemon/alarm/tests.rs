@@ -557,3 +557,41 @@ fn a_configured_shelve_limit_is_enforced_and_never_above_the_ceiling() {
     lf(&mut b, 0.4, 0);
     assert!(b.shelve(C, Some(LF), 721 * H, "op", "r", 0).is_err());
 }
+
+#[test]
+fn sensor_alarms_are_per_tag_and_acknowledged_by_tag_component_unit_or_all() {
+    let mut b = AlarmBook::new();
+    let affects = vec!["A".to_string(), "B".to_string(), "C".to_string()];
+    let ev = b.evaluate_sensor("PT-1", "U1,U2", &affects, AlarmIndex::SensorStale, true, "tag PT-1 silent", 0);
+    assert_eq!(one(ev).component, "PT-1");
+    b.evaluate("A", "U1", LF, 0.55, &DEFAULT_LIFE_FRACTION, 0);
+    b.evaluate("D", "U3", LF, 0.55, &DEFAULT_LIFE_FRACTION, 0);
+    // Every component it affects shows it; one record only.
+    for c in ["A", "B", "C"] {
+        assert!(b.current(c).alarms.iter().any(|r| r.component == "PT-1"), "{c}");
+    }
+    assert_eq!(b.records().filter(|r| r.index == AlarmIndex::SensorStale).count(), 1);
+    let cmd = |json: &str| parse_command(json.as_bytes()).unwrap();
+    // By component: its own alarms and those of the tags it reads.
+    let ev = b.apply(&cmd(r#"{"action":"acknowledge","component":"B","by":"op 7"}"#), H).unwrap();
+    assert_eq!(one(ev).component, "PT-1");
+    assert_eq!(b.record("PT-1/sensor_stale").unwrap().acknowledged_by.as_deref(), Some("op 7"));
+    // By unit: the tag's alarm belongs to both units of its components.
+    let ev = b.apply(&cmd(r#"{"action":"acknowledge","unit":"U1","by":"op 7"}"#), H).unwrap();
+    assert_eq!(one(ev).key(), "A/creep_life_fraction");
+    assert!(matches!(
+        b.apply(&cmd(r#"{"action":"acknowledge","unit":"U9","by":"op"}"#), H),
+        Err(AlarmError::UnknownUnit { .. })
+    ));
+    assert!(matches!(
+        b.apply(&cmd(r#"{"action":"acknowledge","tag":"A","by":"op"}"#), H),
+        Err(AlarmError::UnknownTag { .. })
+    ));
+    // All: what is left.
+    let ev = b.apply(&cmd(r#"{"action":"acknowledge","all":true,"by":"op 8"}"#), 2 * H).unwrap();
+    assert_eq!(one(ev).key(), "D/creep_life_fraction");
+    assert_eq!(b.summary_of(cmd(r#"{"action":"acknowledge","all":true,"by":"op"}"#).target()).unacknowledged, 0);
+    // By tag, shelving.
+    let ev = b.apply(&cmd(r#"{"action":"shelve","tag":"PT-1","by":"op","reason":"TX swap","duration_h":4}"#), 3 * H);
+    assert_eq!(one(ev.unwrap()).state, AlarmState::Shelved);
+}

@@ -364,6 +364,11 @@ impl Engine {
         self.inputs.of(ci)
     }
 
+    /// Components that read a tag (computed once, when the engine is built).
+    pub fn consumers(&self, ti: usize) -> &[u32] {
+        self.consumers.of(ti)
+    }
+
     /// Tag states, in plan order.
     pub fn tags(&self) -> &[TagState] {
         &self.tags

@@ -108,6 +108,9 @@ pub struct Ledger {
     sensor: Vec<(bool, bool)>,
     /// Per tag: the same faults seen since the last sensor check.
     sensor_latched: Vec<(bool, bool)>,
+    /// Per tag: the first-out tag of the common-cause group whose one
+    /// stale alarm stands for this tag's silence too (see `sensors`).
+    stale_leader: Vec<Option<usize>>,
     retired: Vec<(String, ComponentState)>,
     retired_tags: Vec<(String, TagState)>,
     counters: ServiceCounters,
@@ -315,7 +318,16 @@ impl Ledger {
             );
         }
         let records = stored.alarms;
-        let book = AlarmBook::from_records(records).with_config(service.alarms.clone());
+        let mut book = AlarmBook::from_records(records).with_config(service.alarms.clone());
+        // Sensor alarms are kept per tag; records an older version kept per
+        // component would stand for ever.
+        for r in book.retire(|r| !(r.index.is_sensor() && r.affects.is_empty())) {
+            tracing::info!(
+                "alarm {} retired: sensor alarms are now kept per tag (state was {})",
+                r.key(),
+                r.state.name()
+            );
+        }
         let templates = service.mqtt.templates().map_err(|e| anyhow::anyhow!(e))?;
         let index = tag_index(&engine);
         let ntags = engine.plan().tags.len();
@@ -348,6 +360,7 @@ impl Ledger {
             newest_ms,
             sensor: vec![(false, false); ntags],
             sensor_latched: vec![(false, false); ntags],
+            stale_leader: vec![None; ntags],
             retired: left.components,
             retired_tags: left.tags,
             counters: svc,
@@ -699,9 +712,10 @@ impl Ledger {
                 self.refuse_command("refused");
                 tracing::warn!("alarm command rejected (refused by the alarm book): {e}");
                 Err(match e {
-                    AlarmError::UnknownAlarm { .. } | AlarmError::UnknownComponent { .. } => {
-                        CommandOutcome::Unknown(e.to_string())
-                    }
+                    AlarmError::UnknownAlarm { .. }
+                    | AlarmError::UnknownComponent { .. }
+                    | AlarmError::UnknownTag { .. }
+                    | AlarmError::UnknownUnit { .. } => CommandOutcome::Unknown(e.to_string()),
                     _ => CommandOutcome::Invalid(e.to_string()),
                 })
             }
@@ -775,86 +789,6 @@ impl Ledger {
                     _ => {}
                 }
             }
-        }
-    }
-
-    /// Sensor-fault alarms per component: a component's stale, out-of-range
-    /// or bad-quality alarm is active while any tag it reads is in that
-    /// fault; the detail names the tags. A tag is stale when, by the wall
-    /// clock, no sample of it was accepted for its hold time plus
-    /// `[alarms] stale_grace_s` (a tag that never reported counts from the
-    /// service's start), or when, in event time, the newest sample of any
-    /// tag is more than the tag's hold time ahead of its own newest sample.
-    /// No accepted sample from any tag for `[alarms] no_data_alarm_s`
-    /// raises the plant-level service-health alarm.
-    fn sensor_check(&mut self) {
-        // At most every 500 ms of wall time: it visits every component.
-        if self.last_sensor_check.elapsed() < Duration::from_millis(500) {
-            return;
-        }
-        self.last_sensor_check = Instant::now();
-        let newest = self.newest_ms;
-        let t = newest.unwrap_or_else(now_ms);
-        let now = now_ms();
-        let grace_ms = (self.service.alarms.stale_grace_s * 1000.0) as i64;
-        let silent_ms = now - self.last_any_arrival.unwrap_or(self.started_ms);
-        let no_data =
-            !self.engine.plan().tags.is_empty() && silent_ms > (self.service.alarms.no_data_alarm_s * 1000.0) as i64;
-        if no_data != self.no_plant_data {
-            self.no_plant_data = no_data;
-            let detail = if no_data {
-                format!("no sample accepted from any tag for {} s", silent_ms / 1000)
-            } else {
-                "plant data arriving again".to_string()
-            };
-            if no_data {
-                tracing::error!("{detail}: the ledgers are not moving");
-            } else {
-                tracing::info!("{detail}");
-            }
-            let ev = self.book.evaluate_condition(PLANT_DATA_ALARM, "", AlarmIndex::ServiceHealth, no_data, &detail, t);
-            self.note_events(ev);
-        }
-        let plan = self.engine.plan();
-        let mut evaluations = vec![];
-        for (ci, c) in plan.components.iter().enumerate() {
-            let (mut stale, mut oor, mut badq) = (vec![], vec![], vec![]);
-            for &ti in self.engine.inputs(ci) {
-                let ti = ti as usize;
-                let tp = &plan.tags[ti];
-                let event_stale = match (newest, self.engine.tags()[ti].cursor_ms) {
-                    (Some(n), Some(last)) => n - last > tp.max_hold_ms,
-                    _ => false,
-                };
-                let wall_stale =
-                    now - self.last_arrival[ti].unwrap_or(self.started_ms) > tp.max_hold_ms.saturating_add(grace_ms);
-                if event_stale || wall_stale {
-                    stale.push(tp.name.as_str());
-                }
-                // A fault seen since the last check counts even if a good
-                // sample has cleared it since, so a short fault still alarms.
-                if self.sensor[ti].0 || self.sensor_latched[ti].0 {
-                    oor.push(tp.name.as_str());
-                }
-                if self.sensor[ti].1 || self.sensor_latched[ti].1 {
-                    badq.push(tp.name.as_str());
-                }
-            }
-            for (index, tags) in [
-                (AlarmIndex::SensorStale, stale),
-                (AlarmIndex::SensorOutOfRange, oor),
-                (AlarmIndex::SensorBadQuality, badq),
-            ] {
-                let detail = if tags.is_empty() { String::new() } else { format!("tag {}", tags.join(", ")) };
-                evaluations.push((c.name.clone(), c.unit.clone(), index, !tags.is_empty(), detail));
-            }
-        }
-        for l in &mut self.sensor_latched {
-            *l = (false, false);
-        }
-        for (name, unit, index, active, detail) in evaluations {
-            let ev = self.book.evaluate_condition(&name, &unit, index, active, &detail, t);
-            self.note_events(ev);
         }
     }
 
@@ -1180,6 +1114,8 @@ impl Ledger {
             let _ =
                 self.client.try_publish(self.service.mqtt.alarm_event_topic(), QoS::AtLeastOnce, false, e.to_json());
             comps.insert(e.component.clone());
+            // A tag's sensor alarm shows in the state of every part it feeds.
+            comps.extend(e.affects.iter().cloned());
         }
         for c in comps {
             let s = self.book.current(&c);
@@ -1246,6 +1182,7 @@ impl Ledger {
         self.next_threshold_ms = vec![i64::MIN; cfg.plan.components.len()];
         self.sensor = vec![(false, false); cfg.plan.tags.len()];
         self.sensor_latched = vec![(false, false); cfg.plan.tags.len()];
+        self.stale_leader = vec![None; cfg.plan.tags.len()];
         self.cfg = Arc::new(cfg);
         self.service = service;
         let t = self.newest_ms.unwrap_or_else(now_ms);
@@ -1343,6 +1280,13 @@ impl Ledger {
         let _ = self.snapshot_tx.send(Arc::new(snap));
     }
 }
+
+#[path = "ledger_sensors.rs"]
+mod sensors;
+
+#[cfg(test)]
+#[path = "ledger_alarm_tests.rs"]
+mod alarm_tests;
 
 #[cfg(test)]
 mod tests {

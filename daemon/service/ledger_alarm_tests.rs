@@ -1,0 +1,207 @@
+//! The ledger's sensor alarms judged as an alarm-management review would
+//! (issue 11): one fault, one alarm. Runs the real ledger thread's code on
+//! the demo plant without a broker (samples go in as decoded MQTT
+//! messages; nothing is published). The targets are the usual
+//! alarm-management performance figures (common practice: ISA-18.2 /
+//! IEC 62682 and EEMUA 191): no more than about one alarm per operator per
+//! 10 minutes, no floods from one common cause, no chattering.
+
+use super::*;
+use crate::alarm::{AlarmEvent, Transition};
+
+/// Wall clock of the test: samples are stamped a day before it.
+fn t0() -> i64 {
+    now_ms() - 86_400_000
+}
+
+/// A ledger on the demo plant with tags on `p/{tag}` (JSON payloads) and
+/// `extra` appended to its service settings.
+pub(super) fn ledger_with(dir: &std::path::Path, extra: &str) -> Ledger {
+    let cfg = crate::settings::load_plan(std::path::Path::new("config/demo/plant.toml")).unwrap();
+    let text = format!(
+        "[store]\npath = {:?}\n[mqtt]\n[[mqtt.subscription]]\ntopic = \"p/{{tag}}\"\n{extra}",
+        dir.join("ledger.db")
+    );
+    let mut service = ServiceSettings::from_settings(&toml::from_str(&text).unwrap()).unwrap();
+    service.store.create_if_missing = true;
+    let (client, _eventloop) = AsyncClient::new(rumqttc::MqttOptions::new("unit", "127.0.0.1", 9), 100);
+    let (snap_tx, _snap_rx) = watch::channel(Arc::new(Snapshot::default()));
+    Ledger::open(cfg, service, client, snap_tx).unwrap()
+}
+
+/// The middle of a tag's valid range (engineering units): always accepted.
+pub(super) fn good_value(l: &Ledger, tag: &str) -> f64 {
+    let tp = l.engine.plan().tags.iter().find(|t| t.name == tag).unwrap();
+    tp.valid_range.map_or(10.0, |[lo, hi]| 0.5 * (lo + hi))
+}
+
+/// One sample of `tag` as the intake task hands it over.
+pub(super) fn feed(l: &mut Ledger, tag: &str, t_ms: i64, value: f64, quality: &str) {
+    let payload = format!(r#"{{"value":{value},"timestamp":{t_ms},"quality":"{quality}"}}"#);
+    l.sample(&format!("p/{tag}"), payload.as_bytes(), now_ms());
+}
+
+/// Every tag of the plant except `skip`, good, at `t_ms`.
+pub(super) fn feed_all(l: &mut Ledger, t_ms: i64, skip: &[&str]) {
+    let names: Vec<String> = l.engine.plan().tags.iter().map(|t| t.name.clone()).collect();
+    for n in names.iter().filter(|n| !skip.contains(&n.as_str())) {
+        let v = good_value(l, n);
+        feed(l, n, t_ms, v, "good");
+    }
+}
+
+/// Run the sensor check now (it is rate-limited to every 500 ms of wall
+/// time) and commit; the events it raised.
+pub(super) fn check(l: &mut Ledger) -> Vec<AlarmEvent> {
+    l.last_sensor_check = Instant::now() - Duration::from_secs(1);
+    let before = l.events.len();
+    l.sensor_check();
+    let ev: Vec<AlarmEvent> = l.events[before..].to_vec();
+    l.commit();
+    ev
+}
+
+fn activated(ev: &[AlarmEvent]) -> Vec<&AlarmEvent> {
+    ev.iter().filter(|e| e.transition == Transition::Activated).collect()
+}
+
+#[test]
+fn a_shared_transmitter_going_silent_is_one_alarm() {
+    // U2.SH3.PT-301 is the pressure input of three demo components.
+    let dir = tempfile::tempdir().unwrap();
+    let mut l = ledger_with(dir.path(), "");
+    let start = t0();
+    for m in 0..=5 {
+        feed_all(&mut l, start + m * 60_000, &[]);
+    }
+    assert!(activated(&check(&mut l)).is_empty(), "all tags fresh: no alarm");
+    // PT-301 silent for 10 minutes of event time (its hold is 300 s).
+    for m in 6..=15 {
+        feed_all(&mut l, start + m * 60_000, &["U2.SH3.PT-301"]);
+    }
+    let ev = check(&mut l);
+    let act: Vec<AlarmEvent> = activated(&ev).into_iter().cloned().collect();
+    assert_eq!(act.len(), 1, "one silent transmitter, one alarm: {act:#?}");
+    let e = &act[0];
+    assert_eq!((e.index, e.component.as_str()), (AlarmIndex::SensorStale, "U2.SH3.PT-301"));
+    let affects = l.book.record("U2.SH3.PT-301/sensor_stale").map(|r| r.affects.clone()).unwrap_or_default();
+    assert_eq!(affects.len(), 3, "the alarm lists the components the tag feeds: {affects:?}");
+    assert!(e.message.contains("3 components"), "{}", e.message);
+    // Each affected component's summary shows it.
+    let stale_of = |l: &Ledger, c: &str| {
+        l.book.current(c).alarms.into_iter().filter(|r| r.index == AlarmIndex::SensorStale).collect::<Vec<_>>()
+    };
+    for c in &affects {
+        let s = stale_of(&l, c);
+        assert!(s.len() == 1 && s[0].is_active(), "{c}: {s:#?}");
+    }
+    // One acknowledge by tag clears it from every component.
+    let cmd = br#"{"action":"acknowledge","tag":"U2.SH3.PT-301","by":"operator 7"}"#;
+    assert!(l.command(cmd).is_ok());
+    for c in &affects {
+        assert_eq!(stale_of(&l, c)[0].state, crate::alarm::AlarmState::Acknowledged, "{c}");
+    }
+}
+
+#[test]
+fn an_out_of_range_spike_is_one_alarm_not_also_stale() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut l = ledger_with(dir.path(), "");
+    let start = t0();
+    let tag = "U2.SH3.TE-311B";
+    for m in 0..=5 {
+        feed_all(&mut l, start + m * 60_000, &[]);
+    }
+    check(&mut l);
+    // The thermocouple reads its burnout value for 6 minutes: more than
+    // its hold time without an accepted sample.
+    for m in 6..=11 {
+        feed_all(&mut l, start + m * 60_000, &[tag]);
+        feed(&mut l, tag, start + m * 60_000, 1372.0, "good");
+    }
+    let act: Vec<AlarmEvent> = activated(&check(&mut l)).into_iter().cloned().collect();
+    let indices: Vec<AlarmIndex> = act.iter().map(|e| e.index).collect();
+    assert_eq!(indices, vec![AlarmIndex::SensorOutOfRange], "one fault, one alarm: {act:#?}");
+    // Bad quality on top of it: the source's own verdict, the one alarm.
+    feed(&mut l, tag, start + 12 * 60_000, 0.0, "bad");
+    let act: Vec<AlarmEvent> = activated(&check(&mut l)).into_iter().cloned().collect();
+    assert!(act.iter().all(|e| e.index != AlarmIndex::SensorStale), "{act:#?}");
+}
+
+#[test]
+fn a_redelivered_old_out_of_range_sample_raises_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut l = ledger_with(dir.path(), "");
+    let start = t0();
+    let tag = "U2.SH3.TE-311B";
+    for m in 0..=5 {
+        feed_all(&mut l, start + m * 60_000, &[]);
+    }
+    check(&mut l);
+    // A broker redelivers an old burnout reading of minute 2.
+    feed(&mut l, tag, start + 2 * 60_000 + 1, 1372.0, "good");
+    feed(&mut l, tag, start + 3 * 60_000, 0.0, "bad");
+    let act: Vec<AlarmEvent> = activated(&check(&mut l)).into_iter().cloned().collect();
+    assert!(act.is_empty(), "{act:#?}");
+}
+
+#[test]
+fn tags_going_silent_together_are_one_first_out_alarm() {
+    // A gateway carrying four tags drops out: one cause, one alarm.
+    let dir = tempfile::tempdir().unwrap();
+    let mut l = ledger_with(dir.path(), "");
+    let start = t0();
+    let gone = ["U2.SH3.TE-311A", "U2.SH3.TE-311B", "U2.SH3.TE-321", "U2.SH3.PT-301"];
+    for m in 0..=5 {
+        feed_all(&mut l, start + m * 60_000, &[]);
+    }
+    // TE-321 stopped a minute before the others: it is the first out.
+    feed_all(&mut l, start + 6 * 60_000, &gone);
+    for t in &gone[..3] {
+        if *t != "U2.SH3.TE-321" {
+            let v = good_value(&l, t);
+            feed(&mut l, t, start + 6 * 60_000, v, "good");
+        }
+    }
+    let v = good_value(&l, "U2.SH3.PT-301");
+    feed(&mut l, "U2.SH3.PT-301", start + 6 * 60_000, v, "good");
+    for m in 7..=16 {
+        feed_all(&mut l, start + m * 60_000, &gone);
+    }
+    let ev = check(&mut l);
+    let act: Vec<AlarmEvent> = activated(&ev).into_iter().cloned().collect();
+    assert_eq!(act.len(), 1, "{ev:#?} {:?}", l.stale_leader);
+    assert_eq!(act[0].component, "U2.SH3.TE-321");
+    let d = act[0].detail.clone().unwrap_or_default();
+    assert!(d.contains("first out of 4 tags silent together"), "{d}");
+    // It stays one alarm while they stay silent.
+    assert!(activated(&check(&mut l)).is_empty());
+    // They come back: the alarm clears; nothing else was raised to clear.
+    // (past the reorder window, so the cursors have moved)
+    for m in 17..=25 {
+        feed_all(&mut l, start + m * 60_000, &[]);
+    }
+    let ev = check(&mut l);
+    assert_eq!(ev.len(), 1, "{ev:#?}");
+    assert_eq!(ev[0].transition, Transition::Cleared);
+}
+
+#[test]
+fn sensor_alarms_kept_per_component_by_an_older_version_are_retired() {
+    let dir = tempfile::tempdir().unwrap();
+    {
+        let mut l = ledger_with(dir.path(), "");
+        let ev = l.book.evaluate_condition(
+            "U2-SH3-OUTLET-LEG-A",
+            "U2",
+            AlarmIndex::SensorStale,
+            true,
+            "tag U2.SH3.TE-311A",
+            t0(),
+        );
+        l.note_events(ev);
+        l.commit();
+    }
+    let l = ledger_with(dir.path(), "");
+    assert!(l.book.record("U2-SH3-OUTLET-LEG-A/sensor_stale").is_none(), "the per-component record is gone");
+}
