@@ -35,6 +35,7 @@
 
 use super::command::{AlarmCommand, AlarmTarget, Scope};
 use super::deadband::{next_severity, Deadband};
+use super::delay::{self, Delay};
 use super::event::{AlarmEvent, Transition};
 use super::index::{AlarmIndex, Direction, Severity};
 use super::record::{key, AlarmRecord, AlarmState, Shelve};
@@ -80,6 +81,10 @@ pub struct AlarmConfig {
     /// Longest shelve, hours (default and ceiling [`MAX_SHELVE_H`]).
     #[serde(default = "default_max_shelve")]
     pub max_shelve_h: f64,
+    /// On- and off-delays by index, seconds of event time; an index not
+    /// listed uses [`Delay::default_for`].
+    #[serde(default)]
+    pub delays: BTreeMap<AlarmIndex, Delay>,
 }
 
 fn default_max_shelve() -> f64 {
@@ -101,6 +106,7 @@ impl Default for AlarmConfig {
             deadbands: BTreeMap::new(),
             damage_rate: Levels::default(),
             max_shelve_h: default_max_shelve(),
+            delays: BTreeMap::new(),
         }
     }
 }
@@ -109,6 +115,11 @@ impl AlarmConfig {
     /// The deadband of an index.
     pub fn deadband(&self, index: AlarmIndex) -> Deadband {
         self.deadbands.get(&index).copied().unwrap_or_else(|| Deadband::default_for(index))
+    }
+
+    /// The on- and off-delay of an index.
+    pub fn delay(&self, index: AlarmIndex) -> Delay {
+        self.delays.get(&index).copied().unwrap_or_else(|| Delay::default_for(index))
     }
 }
 
@@ -222,11 +233,13 @@ impl AlarmBook {
             return vec![];
         }
         let deadband = self.config.deadband(index);
+        let delay = self.config.delay(index);
         let mut events = vec![];
         let rec = self.entry(component, unit, index, time_ms, &mut events);
         // The severity held for the deadband is what the condition implied
         // last time (shelved or not).
-        let new = next_severity(index.direction(), levels, &deadband, rec.condition, value);
+        let implied = next_severity(index.direction(), levels, &deadband, rec.condition, value);
+        let new = delay::filter(&delay, rec.condition, implied, &mut rec.pending, time_ms);
         rec.value = value;
         events.extend(update(rec, new, Judge::Levels { levels, deadband }, time_ms));
         events
@@ -244,13 +257,15 @@ impl AlarmBook {
         detail: &str,
         time_ms: i64,
     ) -> Vec<AlarmEvent> {
+        let delay = self.config.delay(index);
         let mut events = vec![];
         let rec = self.entry(component, unit, index, time_ms, &mut events);
         rec.value = if active { 1.0 } else { 0.0 };
         if !detail.trim().is_empty() {
             rec.detail = Some(detail.trim().to_string());
         }
-        events.extend(update(rec, active.then_some(Severity::Warning), Judge::Condition, time_ms));
+        let new = delay::filter(&delay, rec.condition, active.then_some(Severity::Warning), &mut rec.pending, time_ms);
+        events.extend(update(rec, new, Judge::Condition, time_ms));
         events
     }
 

@@ -11,6 +11,7 @@
 //!
 //! * [`index`]: what is alarmed, which way is worse, the severities;
 //! * [`deadband`]: levels with hysteresis;
+//! * [`delay`]: on-delay and off-delay in event time;
 //! * [`record`]: one alarm's durable record and the ISA-18.2 states;
 //! * [`book`]: the state machine over all records;
 //! * [`event`]: events as JSON and as line-protocol points;
@@ -22,6 +23,7 @@
 pub mod book;
 pub mod command;
 pub mod deadband;
+pub mod delay;
 pub mod event;
 pub mod index;
 pub mod record;
@@ -32,6 +34,7 @@ mod tests;
 pub use book::{AlarmBook, AlarmConfig, ComponentAlarmSummary, MAX_SHELVE_H};
 pub use command::{carries_token, parse_command, tokens_match, AlarmCommand, AlarmTarget, Scope};
 pub use deadband::Deadband;
+pub use delay::Delay;
 pub use event::{AlarmEvent, Transition};
 pub use index::{AlarmIndex, Direction, Severity};
 pub use record::{AlarmRecord, AlarmState, Shelve};

@@ -91,6 +91,9 @@ pub struct AlarmRecord {
     /// a component's own alarms.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub affects: Vec<String>,
+    /// A change of condition waiting for its on- or off-delay.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pending: Option<super::delay::Pending>,
 }
 
 impl AlarmRecord {
@@ -112,6 +115,7 @@ impl AlarmRecord {
             acknowledged_ms: None,
             shelve: None,
             affects: vec![],
+            pending: None,
         }
     }
 

@@ -12,6 +12,15 @@ const U: &str = "U2";
 const LF: AlarmIndex = AlarmIndex::CreepLifeFraction;
 const H: i64 = 3_600_000;
 
+/// A book without on- or off-delays: the tests that specify the state
+/// machine step by step (delays have their own tests).
+fn undelayed() -> AlarmBook {
+    AlarmBook::new().with_config(AlarmConfig {
+        delays: AlarmIndex::ALL.into_iter().map(|i| (i, Delay::NONE)).collect(),
+        ..AlarmConfig::default()
+    })
+}
+
 fn lf(book: &mut AlarmBook, value: f64, t: i64) -> Vec<AlarmEvent> {
     book.evaluate(C, U, LF, value, &DEFAULT_LIFE_FRACTION, t)
 }
@@ -153,7 +162,7 @@ fn deadband_stops_chattering() {
 
 #[test]
 fn hours_to_critical_is_lower_is_worse() {
-    let mut b = AlarmBook::new();
+    let mut b = undelayed();
     let idx = AlarmIndex::HoursToCritical;
     let mut ev = |v: f64, t: i64| b.evaluate(C, U, idx, v, &DEFAULT_HOURS_TO_CRITICAL, t);
     assert!(ev(30_000.0, 0).is_empty());
@@ -438,7 +447,7 @@ fn component_evaluation_runs_the_indices_that_apply() {
     let plan = plan_settings("test", toml::from_str(CONFIG).unwrap()).unwrap().plan;
     let tube = plan.components.iter().find(|c| c.name == "TUBE").unwrap();
     let support = plan.components.iter().find(|c| c.name == "SUPPORT").unwrap();
-    let mut b = AlarmBook::new();
+    let mut b = undelayed();
 
     let mut st = ComponentState::new(tube);
     st.integrated_to_ms = Some(0);
@@ -487,7 +496,7 @@ fn component_evaluation_runs_the_indices_that_apply() {
     // Book-wide damage-rate levels switch that index on.
     let mut b = AlarmBook::new().with_config(AlarmConfig {
         damage_rate: Levels { advisory: None, warning: Some(1e-5), critical: None },
-        ..AlarmConfig::default()
+        ..undelayed().config().clone()
     });
     let mut st = ComponentState::new(tube);
     st.recent_life_fraction_rate_per_h = 2e-5;
@@ -594,4 +603,52 @@ fn sensor_alarms_are_per_tag_and_acknowledged_by_tag_component_unit_or_all() {
     // By tag, shelving.
     let ev = b.apply(&cmd(r#"{"action":"shelve","tag":"PT-1","by":"op","reason":"TX swap","duration_h":4}"#), 3 * H);
     assert_eq!(one(ev.unwrap()).state, AlarmState::Shelved);
+}
+
+/// Uniform noise in [-1, 1] from a fixed linear congruential sequence
+/// (Numerical Recipes' 32-bit constants, from memory), so the test is
+/// repeatable.
+fn noise(n: usize) -> Vec<f64> {
+    let mut x: u32 = 12_345;
+    (0..n)
+        .map(|_| {
+            x = x.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
+            (x as f64 / u32::MAX as f64) * 2.0 - 1.0
+        })
+        .collect()
+}
+
+/// Activations of the over-design alarm for a metal temperature at
+/// `mean_k` from design with ±`amp_k` noise, one sample a second.
+fn over_design_activations(book: &mut AlarmBook, mean_k: f64, amp_k: f64, seconds: usize) -> usize {
+    let levels = Levels { advisory: None, warning: Some(0.0), critical: None };
+    noise(seconds)
+        .into_iter()
+        .enumerate()
+        .map(|(s, n)| {
+            book.evaluate(C, U, AlarmIndex::MetalTemperatureOverDesign, mean_k + amp_k * n, &levels, s as i64 * 1000)
+                .into_iter()
+                .filter(|e| e.transition == Transition::Activated)
+                .count()
+        })
+        .sum()
+}
+
+#[test]
+fn noise_around_the_design_temperature_does_not_chatter_with_the_defaults() {
+    // The scenario measured in issue 11: a tube at design + 0.3 K with
+    // ±1.5 K of thermocouple noise activated 5 times in 180 s. An alarm
+    // that comes and goes with noise is a chattering alarm (common
+    // practice: ISA-18.2 / EEMUA 191 count it as bad performance).
+    let mut b = AlarmBook::new();
+    let n = over_design_activations(&mut b, 0.3, 1.5, 180);
+    assert!(n <= 1, "design + 0.3 K: {n} activations in 180 s");
+    // Just below design, noise alone crossing the level is not an
+    // exceedance held for the on-delay: no alarm at all.
+    let mut b = AlarmBook::new();
+    let n = over_design_activations(&mut b, -0.3, 1.5, 600);
+    assert_eq!(n, 0, "design - 0.3 K: {n} activations in 600 s");
+    // A real, lasting exceedance still alarms, once.
+    let mut b = AlarmBook::new();
+    assert_eq!(over_design_activations(&mut b, 5.0, 1.5, 600), 1);
 }

@@ -502,6 +502,16 @@ fn alarm_problems(a: &AlarmConfig) -> Vec<String> {
             ));
         }
     }
+    for (index, d) in &a.delays {
+        for (key, v) in [("on_delay_s", d.on_delay_s), ("off_delay_s", d.off_delay_s)] {
+            if !(v.is_finite() && (0.0..=86_400.0).contains(&v)) {
+                p.push(format!(
+                    "[alarms] delays.{}.{key} = {v:?}: use seconds of event time from 0 to 86400",
+                    index.name()
+                ));
+            }
+        }
+    }
     let levels: Vec<(&str, f64)> = a.damage_rate.iter().collect();
     if levels.iter().any(|(_, v)| !(v.is_finite() && *v >= 0.0)) || levels.windows(2).any(|w| w[0].1 >= w[1].1) {
         let given: Vec<String> = levels.iter().map(|(n, v)| format!("{n} = {v:?}")).collect();
@@ -554,6 +564,8 @@ mod tests {
             ("[alarms.deadbands.wear_index]\nfraction = 0.1\nminimum = -1", "deadbands.wear_index.minimum"),
             ("[alarms.damage_rate]\nwarning = 1e-5\ncritical = 1e-6", "damage_rate"),
             ("[alarms]\nmax_shelve_h = 0", "max_shelve_h"),
+            ("[alarms.delays.wear_index]\non_delay_s = -1", "delays.wear_index.on_delay_s"),
+            ("[alarms.delays.damage_rate]\noff_delay_s = 1e9", "delays.damage_rate.off_delay_s"),
             ("[alarms]\nmax_shelve_h = 721", "max_shelve_h"),
             ("[alarms]\nmax_shelve_h = nan", "max_shelve_h"),
         ] {
