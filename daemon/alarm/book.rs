@@ -38,6 +38,7 @@ use super::deadband::{next_severity, Deadband};
 use super::delay::{self, Delay};
 use super::event::{AlarmEvent, Transition};
 use super::index::{AlarmIndex, Direction, Severity};
+use super::rational::{AlarmClass, Rationale, RationaleSettings};
 use super::record::{key, AlarmRecord, AlarmState, Shelve};
 use super::AlarmError;
 use crate::engine::component::projection;
@@ -85,6 +86,13 @@ pub struct AlarmConfig {
     /// listed uses [`Delay::default_for`].
     #[serde(default)]
     pub delays: BTreeMap<AlarmIndex, Delay>,
+    /// Class, consequence, corrective action and time to respond by index
+    /// (any field; the rest from [`Rationale::default_for`]).
+    #[serde(default)]
+    pub rationale: BTreeMap<AlarmIndex, RationaleSettings>,
+    /// The same per component or tag name, over the per-index settings.
+    #[serde(default)]
+    pub component_rationale: BTreeMap<String, BTreeMap<AlarmIndex, RationaleSettings>>,
 }
 
 fn default_max_shelve() -> f64 {
@@ -107,6 +115,8 @@ impl Default for AlarmConfig {
             damage_rate: Levels::default(),
             max_shelve_h: default_max_shelve(),
             delays: BTreeMap::new(),
+            rationale: BTreeMap::new(),
+            component_rationale: BTreeMap::new(),
         }
     }
 }
@@ -115,6 +125,19 @@ impl AlarmConfig {
     /// The deadband of an index.
     pub fn deadband(&self, index: AlarmIndex) -> Deadband {
         self.deadbands.get(&index).copied().unwrap_or_else(|| Deadband::default_for(index))
+    }
+
+    /// The rationalisation of `component`'s (or tag's) `index`: the
+    /// default, then the index's settings, then the component's.
+    pub fn rationale(&self, component: &str, index: AlarmIndex) -> Rationale {
+        let mut r = Rationale::default_for(index);
+        if let Some(s) = self.rationale.get(&index) {
+            r = r.with(s);
+        }
+        if let Some(s) = self.component_rationale.get(component).and_then(|m| m.get(&index)) {
+            r = r.with(s);
+        }
+        r
     }
 
     /// The on- and off-delay of an index.
@@ -136,10 +159,15 @@ pub struct AlarmBook {
 pub struct ComponentAlarmSummary {
     pub component: String,
     pub unit: String,
-    /// Worst severity of the active alarms that are not shelved.
+    /// Worst severity of the active operator alarms that are not shelved.
     pub worst_severity: Option<Severity>,
-    /// Active alarms (condition active, not shelved).
+    /// Active operator alarms (condition active, not shelved).
     pub active: usize,
+    /// Worst severity of the active engineering alerts (not shelved): for
+    /// the integrity engineer, not the operator's console.
+    pub worst_alert_severity: Option<Severity>,
+    /// Active engineering alerts (not shelved).
+    pub alerts: usize,
     /// Alarms waiting for an acknowledge (active or returned to normal).
     pub unacknowledged: usize,
     pub shelved: usize,
@@ -181,7 +209,7 @@ impl AlarmBook {
 
     /// This book with another configuration.
     pub fn with_config(mut self, config: AlarmConfig) -> AlarmBook {
-        self.config = config;
+        self.set_config(config);
         self
     }
 
@@ -189,14 +217,32 @@ impl AlarmBook {
         &self.config
     }
 
+    /// Take a new configuration: every record gets its rationalisation
+    /// again, and a record whose class changed takes the state of its new
+    /// class (an engineering alert asks no acknowledge; an operator alarm
+    /// active without one does). No events: nothing happened in the plant.
     pub fn set_config(&mut self, config: AlarmConfig) {
         self.config = config;
+        for rec in self.records.values_mut() {
+            let r = self.config.rationale(&rec.component, rec.index);
+            let engineering = r.class == AlarmClass::Engineering;
+            if rec.rationale.as_ref() != Some(&r) {
+                rec.rationale = Some(r);
+            }
+            rec.state = match (rec.state, engineering) {
+                (AlarmState::Unacknowledged | AlarmState::Acknowledged, true) => AlarmState::Alert,
+                (AlarmState::RtnUnacknowledged, true) => AlarmState::Normal,
+                (AlarmState::Alert, false) => AlarmState::Unacknowledged,
+                (s, _) => s,
+            };
+        }
     }
 
     /// A book from stored records (default configuration; chain
     /// [`AlarmBook::with_config`]).
     pub fn from_records(records: impl IntoIterator<Item = AlarmRecord>) -> AlarmBook {
-        AlarmBook { config: AlarmConfig::default(), records: records.into_iter().map(|r| (r.key(), r)).collect() }
+        let records = records.into_iter().map(|r| (r.key(), r)).collect();
+        AlarmBook { config: AlarmConfig::default(), records }.with_config(AlarmConfig::default())
     }
 
     /// Every record, in key order.
@@ -602,10 +648,12 @@ impl AlarmBook {
         time_ms: i64,
         events: &mut Vec<AlarmEvent>,
     ) -> &mut AlarmRecord {
-        let rec = self
-            .records
-            .entry(key(component, index))
-            .or_insert_with(|| AlarmRecord::new(component, unit, index, time_ms));
+        let config = &self.config;
+        let rec = self.records.entry(key(component, index)).or_insert_with(|| {
+            let mut r = AlarmRecord::new(component, unit, index, time_ms);
+            r.rationale = Some(config.rationale(component, index));
+            r
+        });
         rec.unit = unit.to_string();
         rec.updated_ms = time_ms;
         if let Some(e) = expire(rec, time_ms) {
@@ -691,12 +739,15 @@ impl AlarmBook {
 
 /// A summary over some records.
 fn summarise(name: &str, unit: &str, alarms: Vec<AlarmRecord>) -> ComponentAlarmSummary {
-    let active: Vec<&AlarmRecord> = alarms.iter().filter(|r| r.is_active() && r.state != AlarmState::Shelved).collect();
+    let (alerts, active): (Vec<&AlarmRecord>, Vec<&AlarmRecord>) =
+        alarms.iter().filter(|r| r.is_active() && r.state != AlarmState::Shelved).partition(|r| r.is_engineering());
     ComponentAlarmSummary {
         component: name.to_string(),
         unit: unit.to_string(),
         worst_severity: active.iter().filter_map(|r| r.condition).max(),
         active: active.len(),
+        worst_alert_severity: alerts.iter().filter_map(|r| r.condition).max(),
+        alerts: alerts.len(),
         unacknowledged: alarms.iter().filter(|r| r.state.needs_acknowledge()).count(),
         shelved: alarms.iter().filter(|r| r.state == AlarmState::Shelved).count(),
         updated: alarms.iter().map(|r| r.updated_ms).max().map(rfc3339_ms),
@@ -718,6 +769,10 @@ fn lift_shelve(rec: &mut AlarmRecord, transition: Transition, how: &str, time_ms
     rec.since_ms = time_ms;
     rec.updated_ms = time_ms;
     let tail = match rec.condition {
+        Some(s) if rec.is_engineering() => {
+            rec.state = AlarmState::Alert;
+            format!("the condition is active at {s} (engineering alert)")
+        }
         Some(s) => {
             rec.state = AlarmState::Unacknowledged;
             rec.acknowledged_by = None;
@@ -742,7 +797,8 @@ fn update(rec: &mut AlarmRecord, new: Option<Severity>, judge: Judge<'_>, time_m
         rec.threshold = new.and_then(|s| judge.level(s));
         return None;
     }
-    let shown = matches!(rec.state, AlarmState::Unacknowledged | AlarmState::Acknowledged);
+    let shown = matches!(rec.state, AlarmState::Unacknowledged | AlarmState::Acknowledged | AlarmState::Alert);
+    let engineering = rec.is_engineering();
     let old = rec.severity.filter(|_| shown);
     let transition = match (old, new) {
         (None, None) => return None,
@@ -754,6 +810,9 @@ fn update(rec: &mut AlarmRecord, new: Option<Severity>, judge: Judge<'_>, time_m
     };
     let was = rec.state;
     rec.state = match (transition, was) {
+        // An engineering alert is delivered and recorded, never asks for
+        // an acknowledge, and is gone from view once clear.
+        (Transition::Activated | Transition::Escalated, _) if engineering => AlarmState::Alert,
         (Transition::Activated | Transition::Escalated, _) => AlarmState::Unacknowledged,
         (Transition::Cleared, AlarmState::Unacknowledged) => AlarmState::RtnUnacknowledged,
         (Transition::Cleared, _) => AlarmState::Normal,

@@ -85,6 +85,10 @@ pub struct AlarmEvent {
     /// whose ledgers read the tag.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub affects: Vec<String>,
+    /// Class, consequence, corrective action, time to respond and
+    /// priority of the alarm (absent in events recorded before them).
+    #[serde(default, skip_serializing_if = "Option::is_none", flatten)]
+    pub rationale: Option<super::rational::Rationale>,
     /// Always this build's [`crate::CAUTION`], also for an event read back
     /// from the journal.
     #[serde(skip_deserializing, default = "caution")]
@@ -122,6 +126,7 @@ impl AlarmEvent {
             shelved_until: None,
             detail: rec.detail.clone(),
             affects: rec.affects.clone(),
+            rationale: rec.rationale.clone(),
             caution: crate::CAUTION,
         }
     }
@@ -137,8 +142,10 @@ impl AlarmEvent {
     }
 
     /// The `alarm_event` database point: tags plant, unit, component,
-    /// index, severity, state; fields value, threshold, message, transition
-    /// and, for a sensor alarm, `affects` (component names, comma-separated).
+    /// index, severity, state, class, priority; fields value, threshold,
+    /// message, transition, consequence, corrective_action,
+    /// time_to_respond_min and, for a sensor alarm, `affects` (component
+    /// names, comma-separated).
     pub fn to_point(&self, plant: &str) -> Point {
         let mut p = Point::new("alarm_event", self.time_ms.saturating_mul(1_000_000))
             .tag("plant", plant)
@@ -153,9 +160,28 @@ impl AlarmEvent {
         if let Some(t) = self.threshold {
             p = p.float("threshold", t);
         }
+        p = p.string("message", &self.message).string("transition", self.transition.name());
+        if let Some(r) = &self.rationale {
+            p = p
+                .tag("class", r.class.name())
+                .tag("priority", r.priority.name())
+                .string("consequence", consequence_name(r.consequence))
+                .string("corrective_action", &r.corrective_action)
+                .float("time_to_respond_min", r.time_to_respond_min);
+        }
         if !self.affects.is_empty() {
             p = p.string("affects", &self.affects.join(","));
         }
-        p.string("message", &self.message).string("transition", self.transition.name())
+        p
+    }
+}
+
+fn consequence_name(c: super::rational::Consequence) -> &'static str {
+    use super::rational::Consequence::*;
+    match c {
+        Minor => "minor",
+        Moderate => "moderate",
+        Major => "major",
+        Severe => "severe",
     }
 }

@@ -12,6 +12,8 @@
 //! * [`index`]: what is alarmed, which way is worse, the severities;
 //! * [`deadband`]: levels with hysteresis;
 //! * [`delay`]: on-delay and off-delay in event time;
+//! * [`rational`]: classes (operator alarm, engineering alert),
+//!   consequence, corrective action, time to respond and priority;
 //! * [`record`]: one alarm's durable record and the ISA-18.2 states;
 //! * [`book`]: the state machine over all records;
 //! * [`event`]: events as JSON and as line-protocol points;
@@ -26,6 +28,7 @@ pub mod deadband;
 pub mod delay;
 pub mod event;
 pub mod index;
+pub mod rational;
 pub mod record;
 
 #[cfg(test)]
@@ -37,6 +40,7 @@ pub use deadband::Deadband;
 pub use delay::Delay;
 pub use event::{AlarmEvent, Transition};
 pub use index::{AlarmIndex, Direction, Severity};
+pub use rational::{AlarmClass, Consequence, Priority, Rationale, RationaleSettings};
 pub use record::{AlarmRecord, AlarmState, Shelve};
 
 /// Errors of alarm commands and look-ups, worded for the operator who sent

@@ -25,6 +25,9 @@ pub enum AlarmState {
     RtnUnacknowledged,
     /// Suppressed by an operator until a time or until unshelved.
     Shelved,
+    /// Condition active on an engineering alert: delivered and recorded,
+    /// no acknowledge asked, not on the operator's console.
+    Alert,
 }
 
 impl AlarmState {
@@ -36,6 +39,7 @@ impl AlarmState {
             AlarmState::Acknowledged => "acknowledged",
             AlarmState::RtnUnacknowledged => "rtn_unacknowledged",
             AlarmState::Shelved => "shelved",
+            AlarmState::Alert => "alert",
         }
     }
 
@@ -94,6 +98,9 @@ pub struct AlarmRecord {
     /// A change of condition waiting for its on- or off-delay.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub pending: Option<super::delay::Pending>,
+    /// Class, consequence, corrective action, time to respond, priority.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub rationale: Option<super::rational::Rationale>,
 }
 
 impl AlarmRecord {
@@ -116,6 +123,7 @@ impl AlarmRecord {
             shelve: None,
             affects: vec![],
             pending: None,
+            rationale: None,
         }
     }
 
@@ -127,6 +135,11 @@ impl AlarmRecord {
     /// Whether the condition is active.
     pub fn is_active(&self) -> bool {
         self.condition.is_some()
+    }
+
+    /// Whether the record is an engineering alert (no acknowledge asked).
+    pub fn is_engineering(&self) -> bool {
+        self.rationale.as_ref().is_some_and(|r| r.class == super::rational::AlarmClass::Engineering)
     }
 
     /// Whether this record concerns `component`: its own alarm, or a

@@ -502,6 +502,23 @@ fn alarm_problems(a: &AlarmConfig) -> Vec<String> {
             ));
         }
     }
+    let per_component = a.component_rationale.iter().flat_map(|(c, m)| m.iter().map(move |(i, r)| (Some(c), i, r)));
+    for (component, index, r) in a.rationale.iter().map(|(i, r)| (None, i, r)).chain(per_component) {
+        let at = match component {
+            None => format!("[alarms] rationale.{}", index.name()),
+            Some(c) => format!("[alarms] component_rationale.\"{c}\".{}", index.name()),
+        };
+        if let Some(m) = r.time_to_respond_min {
+            if !(m.is_finite() && m > 0.0) {
+                p.push(format!("{at}.time_to_respond_min = {m:?}: use minutes above 0"));
+            }
+        }
+        if let Some(t) = &r.corrective_action {
+            if t.trim().is_empty() || t.chars().any(|c| c.is_control()) {
+                p.push(format!("{at}.corrective_action: give the action in words, without control characters"));
+            }
+        }
+    }
     for (index, d) in &a.delays {
         for (key, v) in [("on_delay_s", d.on_delay_s), ("off_delay_s", d.off_delay_s)] {
             if !(v.is_finite() && (0.0..=86_400.0).contains(&v)) {
@@ -565,6 +582,9 @@ mod tests {
             ("[alarms.damage_rate]\nwarning = 1e-5\ncritical = 1e-6", "damage_rate"),
             ("[alarms]\nmax_shelve_h = 0", "max_shelve_h"),
             ("[alarms.delays.wear_index]\non_delay_s = -1", "delays.wear_index.on_delay_s"),
+            ("[alarms.rationale.wear_index]\ntime_to_respond_min = 0", "rationale.wear_index.time_to_respond_min"),
+            ("[alarms.rationale.wear_index]\nclass = \"sometimes\"", "class"),
+            ("[alarms.component_rationale.\"A\".wear_index]\ncorrective_action = \"\"", "component_rationale"),
             ("[alarms.delays.damage_rate]\noff_delay_s = 1e9", "delays.damage_rate.off_delay_s"),
             ("[alarms]\nmax_shelve_h = 721", "max_shelve_h"),
             ("[alarms]\nmax_shelve_h = nan", "max_shelve_h"),

@@ -93,7 +93,8 @@
         const rem = c.remaining_life_h;
         const alarmCell = LL.sevBadge(sev) +
           (a.unacknowledged ? '<span class="pill unack" title="alarms waiting for an acknowledge">' + a.unacknowledged + ' unack</span>' : '') +
-          (a.shelved ? '<span class="pill" title="shelved alarms">' + a.shelved + ' shelved</span>' : '');
+          (a.shelved ? '<span class="pill" title="shelved alarms">' + a.shelved + ' shelved</span>' : '') +
+          (a.alerts ? '<span class="pill alert sev-' + esc(a.worst_alert_severity || 'none') + '" title="engineering alerts (for the integrity engineer; no acknowledge asked)">' + a.alerts + ' alert' + (a.alerts > 1 ? 's' : '') + ' (' + esc(a.worst_alert_severity || '') + ')</span>' : '');
         return '<tr class="row sev-' + esc(sev || 'none') + '" data-component="' + esc(c.component) + '">' +
           '<td class="alarm">' + alarmCell + '</td>' +
           '<td class="name"><a href="' + href + '">' + esc(c.component) + '</a><span class="sub">' + esc(c.unit) + ' · ' + esc(LL.kindLabel(c.kind)) + ' · ' + esc(c.material) + '</span></td>' +
