@@ -10,8 +10,18 @@
 //! | acknowledged | escalation (e.g. warning → critical) | unacknowledged |
 //! | rtn_unacknowledged | acknowledge | normal |
 //! | rtn_unacknowledged | condition active again | unacknowledged |
-//! | any | shelve | shelved |
-//! | shelved | unshelve, or shelve end reached | unacknowledged if active, else normal |
+//! | acknowledged (latching) | condition clears | rtn_unacknowledged |
+//! | normal, unacknowledged, acknowledged (engineering alert) | condition active | alert |
+//! | alert | condition clears | normal |
+//! | any but out_of_service | shelve | shelved |
+//! | shelved | unshelve, or shelve end reached | unacknowledged (alert) if active, else normal |
+//! | any | remove from service | out_of_service |
+//! | out_of_service | return to service, or its end reached | as after a shelve |
+//! | not held | plant state suppresses | suppressed (changes recorded, not annunciated) |
+//! | suppressed | plant state ends | unacknowledged (alert) if active, else normal |
+//!
+//! Out of service outranks a shelve, and a shelve a suppression: an alarm
+//! released from one returns to the next still in force.
 //!
 //! * A value is turned into a severity by [`super::deadband::next_severity`]
 //!   (levels plus hysteresis), a boolean condition into warning or clear.
@@ -48,6 +58,11 @@ use crate::physics::remaining::hours_to_threshold;
 use crate::report::rfc3339_ms;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
+
+#[path = "service_states.rs"]
+mod service_states;
+/// Longest out-of-service period a command may ask for, hours (a year).
+pub use service_states::MAX_OUT_OF_SERVICE_H;
 
 /// Longest shelve accepted, hours (30 days). ISA-18.2 wants shelving
 /// time-limited so that a suppressed alarm comes back to someone's
@@ -152,6 +167,28 @@ pub struct AlarmBook {
     #[serde(default)]
     config: AlarmConfig,
     records: BTreeMap<String, AlarmRecord>,
+    /// Plant states in force that suppress alarms (the caller sets them
+    /// with [`AlarmBook::set_suppression`]; not stored: recomputed).
+    #[serde(skip)]
+    suppression: Vec<SuppressionRule>,
+}
+
+/// A plant state in force and the alarms it suppresses.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SuppressionRule {
+    /// The plant state's name, recorded on each alarm it suppresses.
+    pub name: String,
+    /// Plant units concerned (an alarm in any of them).
+    pub units: Vec<String>,
+    /// Indices suppressed (empty: every index).
+    pub indices: Vec<AlarmIndex>,
+}
+
+impl SuppressionRule {
+    /// Whether the rule suppresses a record.
+    pub fn matches(&self, rec: &AlarmRecord) -> bool {
+        (self.indices.is_empty() || self.indices.contains(&rec.index)) && self.units.iter().any(|u| rec.in_unit(u))
+    }
 }
 
 /// What a component's alarms look like now, for its retained state topic.
@@ -171,6 +208,10 @@ pub struct ComponentAlarmSummary {
     /// Alarms waiting for an acknowledge (active or returned to normal).
     pub unacknowledged: usize,
     pub shelved: usize,
+    /// Alarms out of service (maintenance, repair).
+    pub out_of_service: usize,
+    /// Alarms suppressed by a plant state.
+    pub suppressed: usize,
     /// Event time of the latest change, RFC 3339.
     pub updated: Option<String>,
     /// Every record of the component, in index order.
@@ -242,7 +283,7 @@ impl AlarmBook {
     /// [`AlarmBook::with_config`]).
     pub fn from_records(records: impl IntoIterator<Item = AlarmRecord>) -> AlarmBook {
         let records = records.into_iter().map(|r| (r.key(), r)).collect();
-        AlarmBook { config: AlarmConfig::default(), records }.with_config(AlarmConfig::default())
+        AlarmBook { config: AlarmConfig::default(), records, suppression: vec![] }.with_config(AlarmConfig::default())
     }
 
     /// Every record, in key order.
@@ -512,6 +553,10 @@ impl AlarmBook {
         let mut events = vec![];
         for k in keys {
             let rec = self.records.get_mut(&k).expect("target exists");
+            if rec.state == AlarmState::OutOfService {
+                // Out of service outranks a shelve: nothing to do.
+                continue;
+            }
             if rec.state != AlarmState::Shelved {
                 rec.state = AlarmState::Shelved;
                 rec.since_ms = time_ms;
@@ -588,6 +633,15 @@ impl AlarmBook {
                 let keys = self.targets_of(target)?;
                 Ok(self.unshelve_keys(keys, by, time_ms))
             }
+            AlarmCommand::RemoveFromService { duration_h, by, reason, .. } => {
+                let until_ms = time_ms.saturating_add((duration_h * MS_PER_H).round() as i64);
+                let keys = self.targets_of(target)?;
+                Ok(self.remove_from_service_keys(keys, until_ms, by, reason, time_ms))
+            }
+            AlarmCommand::ReturnToService { by, .. } => {
+                let keys = self.targets_of(target)?;
+                Ok(self.return_to_service_keys(keys, by, time_ms))
+            }
         }
     }
 
@@ -649,9 +703,14 @@ impl AlarmBook {
         events: &mut Vec<AlarmEvent>,
     ) -> &mut AlarmRecord {
         let config = &self.config;
+        let rules = &self.suppression;
         let rec = self.records.entry(key(component, index)).or_insert_with(|| {
             let mut r = AlarmRecord::new(component, unit, index, time_ms);
             r.rationale = Some(config.rationale(component, index));
+            if let Some(rule) = rules.iter().find(|x| x.matches(&r)) {
+                r.suppressed_by = Some(rule.name.clone());
+                r.state = AlarmState::Suppressed;
+            }
             r
         });
         rec.unit = unit.to_string();
@@ -740,7 +799,7 @@ impl AlarmBook {
 /// A summary over some records.
 fn summarise(name: &str, unit: &str, alarms: Vec<AlarmRecord>) -> ComponentAlarmSummary {
     let (alerts, active): (Vec<&AlarmRecord>, Vec<&AlarmRecord>) =
-        alarms.iter().filter(|r| r.is_active() && r.state != AlarmState::Shelved).partition(|r| r.is_engineering());
+        alarms.iter().filter(|r| r.is_active() && !r.state.is_held()).partition(|r| r.is_engineering());
     ComponentAlarmSummary {
         component: name.to_string(),
         unit: unit.to_string(),
@@ -750,6 +809,8 @@ fn summarise(name: &str, unit: &str, alarms: Vec<AlarmRecord>) -> ComponentAlarm
         alerts: alerts.len(),
         unacknowledged: alarms.iter().filter(|r| r.state.needs_acknowledge()).count(),
         shelved: alarms.iter().filter(|r| r.state == AlarmState::Shelved).count(),
+        out_of_service: alarms.iter().filter(|r| r.state == AlarmState::OutOfService).count(),
+        suppressed: alarms.iter().filter(|r| r.state == AlarmState::Suppressed).count(),
         updated: alarms.iter().map(|r| r.updated_ms).max().map(rfc3339_ms),
         alarms,
         caution: crate::CAUTION,
@@ -758,6 +819,13 @@ fn summarise(name: &str, unit: &str, alarms: Vec<AlarmRecord>) -> ComponentAlarm
 
 /// Lift a shelve that has ended by `now_ms`.
 fn expire(rec: &mut AlarmRecord, now_ms: i64) -> Option<AlarmEvent> {
+    if rec.state == AlarmState::OutOfService {
+        let until = rec.out_of_service.as_ref()?.until_ms;
+        return (now_ms >= until).then(|| {
+            let how = format!("out of service ended at {}", rfc3339_ms(until));
+            lift_shelve(rec, Transition::ReturnedToService, &how, now_ms)
+        });
+    }
     let until = rec.shelve.as_ref().filter(|_| rec.state == AlarmState::Shelved)?.until_ms;
     (now_ms >= until)
         .then(|| lift_shelve(rec, Transition::ShelveExpired, &format!("shelve ended at {}", rfc3339_ms(until)), now_ms))
@@ -765,10 +833,18 @@ fn expire(rec: &mut AlarmRecord, now_ms: i64) -> Option<AlarmEvent> {
 
 /// Return a shelved record to the state its condition implies.
 fn lift_shelve(rec: &mut AlarmRecord, transition: Transition, how: &str, time_ms: i64) -> AlarmEvent {
-    rec.shelve = None;
+    if transition == Transition::ReturnedToService {
+        rec.out_of_service = None;
+    } else {
+        rec.shelve = None;
+    }
     rec.since_ms = time_ms;
     rec.updated_ms = time_ms;
     let tail = match rec.condition {
+        _ if rec.suppressed_by.is_some() => {
+            rec.state = AlarmState::Suppressed;
+            format!("still suppressed ({})", rec.suppressed_by.as_deref().unwrap_or_default())
+        }
         Some(s) if rec.is_engineering() => {
             rec.state = AlarmState::Alert;
             format!("the condition is active at {s} (engineering alert)")
@@ -790,12 +866,34 @@ fn lift_shelve(rec: &mut AlarmRecord, transition: Transition, how: &str, time_ms
 
 /// Move a record to the severity `new` now implied (value already set).
 fn update(rec: &mut AlarmRecord, new: Option<Severity>, judge: Judge<'_>, time_ms: i64) -> Option<AlarmEvent> {
+    let before = rec.condition;
     rec.condition = new;
-    if rec.state == AlarmState::Shelved {
+    if rec.state.is_held() {
         // Followed silently; the severity shown is the condition's.
         rec.severity = new;
         rec.threshold = new.and_then(|s| judge.level(s));
-        return None;
+        if rec.state != AlarmState::Suppressed {
+            return None;
+        }
+        // Suppressed by a plant state: recorded, not annunciated.
+        let transition = match (before, new) {
+            (None, Some(_)) => Transition::Activated,
+            (Some(o), Some(n)) if n > o => Transition::Escalated,
+            (Some(_), None) => Transition::Cleared,
+            _ => return None,
+        };
+        let sev = new.or(before).expect("a change has a severity");
+        let by = rec.suppressed_by.clone().unwrap_or_default();
+        let what = match transition {
+            Transition::Cleared => "cleared".to_string(),
+            t => format!("{} at {sev}", t.name()),
+        };
+        let msg = format!(
+            "{} {} {what} while suppressed ({by}): recorded, not annunciated",
+            rec.component,
+            rec.index.label()
+        );
+        return Some(AlarmEvent::of(rec, transition, Some(sev), judge.level(sev), time_ms, msg));
     }
     let shown = matches!(rec.state, AlarmState::Unacknowledged | AlarmState::Acknowledged | AlarmState::Alert);
     let engineering = rec.is_engineering();
@@ -815,6 +913,8 @@ fn update(rec: &mut AlarmRecord, new: Option<Severity>, judge: Judge<'_>, time_m
         (Transition::Activated | Transition::Escalated, _) if engineering => AlarmState::Alert,
         (Transition::Activated | Transition::Escalated, _) => AlarmState::Unacknowledged,
         (Transition::Cleared, AlarmState::Unacknowledged) => AlarmState::RtnUnacknowledged,
+        // A latching alarm asks for an acknowledge after it clears.
+        (Transition::Cleared, AlarmState::Acknowledged) if rec.is_latching() => AlarmState::RtnUnacknowledged,
         (Transition::Cleared, _) => AlarmState::Normal,
         _ => was,
     };

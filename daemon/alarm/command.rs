@@ -4,6 +4,8 @@
 //! {"action":"acknowledge","component":"U2-SH3-OUTLET-LEG-A","index":"creep_life_fraction","by":"operator 7"}
 //! {"action":"shelve","component":"U2-SH3-OUTLET-LEG-A","index":"creep_life_fraction","duration_h":8,"by":"operator 7","reason":"thermocouple replacement"}
 //! {"action":"unshelve","component":"U2-SH3-OUTLET-LEG-A","by":"operator 7"}
+//! {"action":"remove_from_service","tag":"U2.SH3.TE-311B","duration_h":1000,"by":"I&C","reason":"thermocouple replaced at the outage"}
+//! {"action":"return_to_service","tag":"U2.SH3.TE-311B","by":"I&C"}
 //! ```
 //!
 //! Over MQTT a command must also carry the operator token in a `token`
@@ -74,9 +76,31 @@ pub struct AlarmTarget {
 /// One operator command.
 #[derive(Debug, Clone, PartialEq)]
 pub enum AlarmCommand {
-    Acknowledge { target: AlarmTarget, by: String },
-    Shelve { target: AlarmTarget, duration_h: f64, by: String, reason: String },
-    Unshelve { target: AlarmTarget, by: String },
+    Acknowledge {
+        target: AlarmTarget,
+        by: String,
+    },
+    Shelve {
+        target: AlarmTarget,
+        duration_h: f64,
+        by: String,
+        reason: String,
+    },
+    Unshelve {
+        target: AlarmTarget,
+        by: String,
+    },
+    /// Out of service for a repair, with who, why and until when.
+    RemoveFromService {
+        target: AlarmTarget,
+        duration_h: f64,
+        by: String,
+        reason: String,
+    },
+    ReturnToService {
+        target: AlarmTarget,
+        by: String,
+    },
 }
 
 impl AlarmCommand {
@@ -85,7 +109,9 @@ impl AlarmCommand {
         match self {
             AlarmCommand::Acknowledge { by, .. }
             | AlarmCommand::Shelve { by, .. }
-            | AlarmCommand::Unshelve { by, .. } => by,
+            | AlarmCommand::Unshelve { by, .. }
+            | AlarmCommand::RemoveFromService { by, .. }
+            | AlarmCommand::ReturnToService { by, .. } => by,
         }
     }
 
@@ -94,7 +120,9 @@ impl AlarmCommand {
         match self {
             AlarmCommand::Acknowledge { target, .. }
             | AlarmCommand::Shelve { target, .. }
-            | AlarmCommand::Unshelve { target, .. } => target,
+            | AlarmCommand::Unshelve { target, .. }
+            | AlarmCommand::RemoveFromService { target, .. }
+            | AlarmCommand::ReturnToService { target, .. } => target,
         }
     }
 }
@@ -161,10 +189,20 @@ pub fn parse_command(json: &[u8]) -> Result<AlarmCommand, AlarmError> {
     };
     let action = text(&o, "action")?;
     let allowed: &[&str] = match action.as_str() {
-        "acknowledge" | "unshelve" => &["action", "component", "tag", "unit", "all", "index", "by", "token"],
-        "shelve" => &["action", "component", "tag", "unit", "all", "index", "by", "duration_h", "reason", "token"],
+        "acknowledge" | "unshelve" | "return_to_service" => {
+            &["action", "component", "tag", "unit", "all", "index", "by", "token"]
+        }
+        "shelve" | "remove_from_service" => {
+            &["action", "component", "tag", "unit", "all", "index", "by", "duration_h", "reason", "token"]
+        }
         other => {
-            return Err(bad("action", format!("unknown action \"{other}\"; expected acknowledge, shelve or unshelve")))
+            return Err(bad(
+                "action",
+                format!(
+                    "unknown action \"{other}\"; expected acknowledge, shelve, unshelve, remove_from_service or \
+                     return_to_service"
+                ),
+            ))
         }
     };
     if let Some(k) = o.keys().find(|k| !allowed.contains(&k.as_str())) {
@@ -203,22 +241,32 @@ pub fn parse_command(json: &[u8]) -> Result<AlarmCommand, AlarmError> {
     Ok(match action.as_str() {
         "acknowledge" => AlarmCommand::Acknowledge { target, by },
         "unshelve" => AlarmCommand::Unshelve { target, by },
+        "return_to_service" => AlarmCommand::ReturnToService { target, by },
         _ => {
+            let (what, max_h) = if action == "shelve" {
+                ("a shelve", MAX_SHELVE_H)
+            } else {
+                ("removing from service", super::book::MAX_OUT_OF_SERVICE_H)
+            };
             let duration_h = match o.get("duration_h") {
                 None | Some(Value::Null) => {
-                    return Err(bad("duration_h", "is missing: a shelve needs a duration in hours"))
+                    return Err(bad("duration_h", format!("is missing: {what} needs a duration in hours")))
                 }
                 Some(Value::Number(n)) => n.as_f64().unwrap_or(f64::NAN),
                 Some(v) => return Err(bad("duration_h", format!("must be a number of hours, got {}", kind(v)))),
             };
-            if !(duration_h > 0.0 && duration_h <= MAX_SHELVE_H) {
+            if !(duration_h > 0.0 && duration_h <= max_h) {
                 return Err(bad(
                     "duration_h",
-                    format!("must be more than 0 and at most {MAX_SHELVE_H} hours, got {duration_h}"),
+                    format!("must be more than 0 and at most {max_h} hours, got {duration_h}"),
                 ));
             }
             let reason = text(&o, "reason")?;
-            AlarmCommand::Shelve { target, duration_h, by, reason }
+            if action == "shelve" {
+                AlarmCommand::Shelve { target, duration_h, by, reason }
+            } else {
+                AlarmCommand::RemoveFromService { target, duration_h, by, reason }
+            }
         }
     })
 }

@@ -33,6 +33,16 @@ pub enum Transition {
     Unshelved,
     /// The shelve time ran out.
     ShelveExpired,
+    /// A person removed the alarm from service.
+    RemovedFromService,
+    /// Back in service, by command or because its end was reached.
+    ReturnedToService,
+    /// A plant state began to suppress the alarm (emitted for an alarm that
+    /// was not normal; a normal one is suppressed silently).
+    Suppressed,
+    /// The plant state ended; emitted when the condition is active (the
+    /// alarm is annunciated now) or the alarm was not normal.
+    Unsuppressed,
 }
 
 impl Transition {
@@ -47,6 +57,10 @@ impl Transition {
             Transition::Shelved => "shelved",
             Transition::Unshelved => "unshelved",
             Transition::ShelveExpired => "shelve_expired",
+            Transition::RemovedFromService => "removed_from_service",
+            Transition::ReturnedToService => "returned_to_service",
+            Transition::Suppressed => "suppressed",
+            Transition::Unsuppressed => "unsuppressed",
         }
     }
 }

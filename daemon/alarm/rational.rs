@@ -135,6 +135,9 @@ pub struct RationaleSettings {
     pub consequence: Option<Consequence>,
     pub corrective_action: Option<String>,
     pub time_to_respond_min: Option<f64>,
+    /// Latch: once active, ask for an acknowledge after clearing even if
+    /// acknowledged while active (default off).
+    pub latching: Option<bool>,
 }
 
 /// The rationalisation an alarm carries: in its record, every event, the
@@ -148,6 +151,9 @@ pub struct Rationale {
     pub time_to_respond_min: f64,
     /// From consequence and time to respond ([`Priority::from`]).
     pub priority: Priority,
+    /// See [`RationaleSettings::latching`].
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub latching: bool,
 }
 
 impl Rationale {
@@ -193,6 +199,7 @@ impl Rationale {
             corrective_action: action.to_string(),
             time_to_respond_min: minutes,
             priority: Priority::from(consequence, minutes),
+            latching: false,
         }
     }
 
@@ -209,6 +216,9 @@ impl Rationale {
         }
         if let Some(m) = s.time_to_respond_min {
             self.time_to_respond_min = m;
+        }
+        if let Some(l) = s.latching {
+            self.latching = l;
         }
         self.priority = Priority::from(self.consequence, self.time_to_respond_min);
         self

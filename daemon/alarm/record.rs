@@ -28,6 +28,12 @@ pub enum AlarmState {
     /// Condition active on an engineering alert: delivered and recorded,
     /// no acknowledge asked, not on the operator's console.
     Alert,
+    /// Removed from service (maintenance, repair) by a person, with a
+    /// reason and an end: followed silently.
+    OutOfService,
+    /// Suppressed by design while a plant state holds (for example the
+    /// unit offline): followed, its changes recorded, not annunciated.
+    Suppressed,
 }
 
 impl AlarmState {
@@ -40,7 +46,15 @@ impl AlarmState {
             AlarmState::RtnUnacknowledged => "rtn_unacknowledged",
             AlarmState::Shelved => "shelved",
             AlarmState::Alert => "alert",
+            AlarmState::OutOfService => "out_of_service",
+            AlarmState::Suppressed => "suppressed",
         }
+    }
+
+    /// Whether the alarm is held silent (shelved, out of service or
+    /// suppressed): its condition is followed, nothing is annunciated.
+    pub fn is_held(self) -> bool {
+        matches!(self, AlarmState::Shelved | AlarmState::OutOfService | AlarmState::Suppressed)
     }
 
     /// Whether an operator still has to acknowledge.
@@ -101,6 +115,12 @@ pub struct AlarmRecord {
     /// Class, consequence, corrective action, time to respond, priority.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub rationale: Option<super::rational::Rationale>,
+    /// Who removed it from service, why and until when.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub out_of_service: Option<Shelve>,
+    /// The plant state suppressing it.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub suppressed_by: Option<String>,
 }
 
 impl AlarmRecord {
@@ -124,6 +144,8 @@ impl AlarmRecord {
             affects: vec![],
             pending: None,
             rationale: None,
+            out_of_service: None,
+            suppressed_by: None,
         }
     }
 
@@ -135,6 +157,12 @@ impl AlarmRecord {
     /// Whether the condition is active.
     pub fn is_active(&self) -> bool {
         self.condition.is_some()
+    }
+
+    /// Whether the alarm latches: once active it asks for an acknowledge
+    /// after it clears, even if acknowledged while active.
+    pub fn is_latching(&self) -> bool {
+        self.rationale.as_ref().is_some_and(|r| r.latching)
     }
 
     /// Whether the record is an engineering alert (no acknowledge asked).

@@ -111,6 +111,9 @@ pub struct Ledger {
     /// Per tag: the first-out tag of the common-cause group whose one
     /// stale alarm stands for this tag's silence too (see `sensors`).
     stale_leader: Vec<Option<usize>>,
+    /// Per tag: (event time, arrival) of the newest sample rejected as a
+    /// sensor fault; a fault that old no longer hides the tag's silence.
+    last_fault: Vec<Option<(i64, i64)>>,
     retired: Vec<(String, ComponentState)>,
     retired_tags: Vec<(String, TagState)>,
     counters: ServiceCounters,
@@ -361,6 +364,7 @@ impl Ledger {
             sensor: vec![(false, false); ntags],
             sensor_latched: vec![(false, false); ntags],
             stale_leader: vec![None; ntags],
+            last_fault: vec![None; ntags],
             retired: left.components,
             retired_tags: left.tags,
             counters: svc,
@@ -781,10 +785,12 @@ impl Ledger {
                     Rejection::OutOfRange | Rejection::NotFinite | Rejection::ImplausibleTime => {
                         self.sensor[ti].0 = true;
                         self.sensor_latched[ti].0 = true;
+                        self.last_fault[ti] = Some((d.time_ms, received_ms));
                     }
                     Rejection::BadQuality => {
                         self.sensor[ti].1 = true;
                         self.sensor_latched[ti].1 = true;
+                        self.last_fault[ti] = Some((d.time_ms, received_ms));
                     }
                     _ => {}
                 }
@@ -1183,6 +1189,7 @@ impl Ledger {
         self.sensor = vec![(false, false); cfg.plan.tags.len()];
         self.sensor_latched = vec![(false, false); cfg.plan.tags.len()];
         self.stale_leader = vec![None; cfg.plan.tags.len()];
+        self.last_fault = vec![None; cfg.plan.tags.len()];
         self.cfg = Arc::new(cfg);
         self.service = service;
         let t = self.newest_ms.unwrap_or_else(now_ms);

@@ -205,3 +205,25 @@ fn sensor_alarms_kept_per_component_by_an_older_version_are_retired() {
     let l = ledger_with(dir.path(), "");
     assert!(l.book.record("U2-SH3-OUTLET-LEG-A/sensor_stale").is_none(), "the per-component record is gone");
 }
+
+#[test]
+fn a_tag_that_falls_silent_after_a_fault_becomes_stale() {
+    // The demo's failing thermocouple: burn-out spikes, then silence.
+    let dir = tempfile::tempdir().unwrap();
+    let mut l = ledger_with(dir.path(), "");
+    let start = t0();
+    let tag = "U2.SH3.TE-311B";
+    for m in 0..=5 {
+        feed_all(&mut l, start + m * 60_000, &[]);
+    }
+    feed_all(&mut l, start + 6 * 60_000, &[tag]);
+    feed(&mut l, tag, start + 6 * 60_000, 5000.0, "good");
+    let act: Vec<AlarmIndex> = activated(&check(&mut l)).iter().map(|e| e.index).collect();
+    assert_eq!(act, vec![AlarmIndex::SensorOutOfRange]);
+    for m in 7..=20 {
+        feed_all(&mut l, start + m * 60_000, &[tag]);
+    }
+    let ev = check(&mut l);
+    let act: Vec<AlarmIndex> = activated(&ev).iter().map(|e| e.index).collect();
+    assert_eq!(act, vec![AlarmIndex::SensorStale], "{ev:#?}");
+}

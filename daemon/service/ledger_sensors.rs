@@ -8,8 +8,9 @@
 //!   time, the newest sample of any tag is more than the tag's hold time
 //!   ahead of its own newest sample. It is **out of range** (or stamped at
 //!   an implausible time) or of **bad quality** when such a sample was
-//!   rejected since the last check and no good one has been accepted after
-//!   it.
+//!   rejected since the last check, or is the tag's newest sample and not
+//!   older than its hold time (a tag that falls silent after a fault is
+//!   stale once the fault is that old).
 //! * **One fault, one alarm**: bad quality (the source's own verdict)
 //!   hides out of range, and either hides stale: a transmitter at its rail
 //!   delivers no accepted sample, and saying so twice adds nothing.
@@ -78,9 +79,15 @@ impl Ledger {
             let wall_stale =
                 now - self.last_arrival[ti].unwrap_or(self.started_ms) > tp.max_hold_ms.saturating_add(grace_ms);
             // A fault seen since the last check counts even if a good
-            // sample has cleared it since, so a short fault still alarms.
-            let oor = self.sensor[ti].0 || self.sensor_latched[ti].0;
-            let badq = self.sensor[ti].1 || self.sensor_latched[ti].1;
+            // sample has cleared it since, so a short fault still alarms;
+            // one standing with no sample since ends once the tag has been
+            // silent for its hold time (then the tag is stale instead).
+            let fault_fresh = self.last_fault[ti].is_some_and(|(t_ev, arrival)| {
+                newest.is_none_or(|n| n - t_ev <= tp.max_hold_ms)
+                    && now - arrival <= tp.max_hold_ms.saturating_add(grace_ms)
+            });
+            let oor = (self.sensor[ti].0 && fault_fresh) || self.sensor_latched[ti].0;
+            let badq = (self.sensor[ti].1 && fault_fresh) || self.sensor_latched[ti].1;
             faults.push((event_stale || wall_stale, oor && !badq, badq));
         }
         for l in &mut self.sensor_latched {
