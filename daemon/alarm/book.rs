@@ -108,6 +108,56 @@ pub struct AlarmConfig {
     /// The same per component or tag name, over the per-index settings.
     #[serde(default)]
     pub component_rationale: BTreeMap<String, BTreeMap<AlarmIndex, RationaleSettings>>,
+    /// Plant states that suppress alarms while they hold
+    /// (`[[alarms.plant_state]]`).
+    #[serde(default, rename = "plant_state")]
+    pub plant_states: Vec<PlantState>,
+}
+
+/// A plant state defined from a tag: in force while the tag's newest
+/// accepted value (in the tag's own unit) is below `below` (or above
+/// `above`); it suppresses the listed indices of the alarms of `units`.
+/// A tag with no value yet puts nothing in force: alarms stay annunciated
+/// (the conservative side).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PlantState {
+    /// Recorded on every alarm it suppresses, e.g. "unit U2 offline".
+    pub name: String,
+    /// Plant units whose alarms it suppresses.
+    pub units: Vec<String>,
+    pub tag: String,
+    #[serde(default)]
+    pub below: Option<f64>,
+    #[serde(default)]
+    pub above: Option<f64>,
+    /// Indices suppressed; default the sensor faults and metal temperature
+    /// over design, which a unit that is shut down raises for no reason
+    /// (transmitters at their rails, cold metal); never the accumulated
+    /// indices or service health.
+    #[serde(default = "default_suppressed")]
+    pub suppress: Vec<AlarmIndex>,
+}
+
+fn default_suppressed() -> Vec<AlarmIndex> {
+    vec![
+        AlarmIndex::SensorStale,
+        AlarmIndex::SensorOutOfRange,
+        AlarmIndex::SensorBadQuality,
+        AlarmIndex::MetalTemperatureOverDesign,
+    ]
+}
+
+impl PlantState {
+    /// Whether the state holds at this value of its tag (own unit).
+    pub fn holds(&self, value: f64) -> bool {
+        value.is_finite() && (self.below.is_some_and(|b| value < b) || self.above.is_some_and(|a| value > a))
+    }
+
+    /// The suppression it makes while in force.
+    pub fn rule(&self) -> SuppressionRule {
+        SuppressionRule { name: self.name.clone(), units: self.units.clone(), indices: self.suppress.clone() }
+    }
 }
 
 fn default_max_shelve() -> f64 {
@@ -132,6 +182,7 @@ impl Default for AlarmConfig {
             delays: BTreeMap::new(),
             rationale: BTreeMap::new(),
             component_rationale: BTreeMap::new(),
+            plant_states: vec![],
         }
     }
 }

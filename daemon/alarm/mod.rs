@@ -36,7 +36,9 @@ mod tests;
 #[cfg(test)]
 mod tests_isa;
 
-pub use book::{AlarmBook, AlarmConfig, ComponentAlarmSummary, SuppressionRule, MAX_OUT_OF_SERVICE_H, MAX_SHELVE_H};
+pub use book::{
+    AlarmBook, AlarmConfig, ComponentAlarmSummary, PlantState, SuppressionRule, MAX_OUT_OF_SERVICE_H, MAX_SHELVE_H,
+};
 pub use command::{carries_token, parse_command, tokens_match, AlarmCommand, AlarmTarget, Scope};
 pub use deadband::Deadband;
 pub use delay::Delay;

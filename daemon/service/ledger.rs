@@ -320,6 +320,15 @@ impl Ledger {
                 service.store.path.display()
             );
         }
+        for ps in &service.alarms.plant_states {
+            if !cfg.plan.tags.iter().any(|t| t.name == ps.tag) {
+                anyhow::bail!(
+                    "[[alarms.plant_state]] {:?}: tag {:?} is not a configured tag; name one of the [[tag]] entries",
+                    ps.name,
+                    ps.tag
+                );
+            }
+        }
         let records = stored.alarms;
         let mut book = AlarmBook::from_records(records).with_config(service.alarms.clone());
         // Sensor alarms are kept per tag; records an older version kept per

@@ -227,3 +227,49 @@ fn a_tag_that_falls_silent_after_a_fault_becomes_stale() {
     let act: Vec<AlarmIndex> = activated(&ev).iter().map(|e| e.index).collect();
     assert_eq!(act, vec![AlarmIndex::SensorStale], "{ev:#?}");
 }
+
+#[test]
+fn bad_quality_at_shutdown_is_suppressed_by_the_plant_state_and_recorded() {
+    // Issue 11: reporting bad quality during a shutdown raised 62 alarms in
+    // 8 s. With "unit U2 offline" defined from the main steam pressure,
+    // none is annunciated and each is recorded as suppressed.
+    let dir = tempfile::tempdir().unwrap();
+    let state =
+        "[[alarms.plant_state]]\nname = \"unit U2 offline\"\nunits = [\"U2\"]\ntag = \"U2.MS.PT-401\"\nbelow = 5.0\n";
+    let mut l = ledger_with(dir.path(), state);
+    let start = t0();
+    for m in 0..=5 {
+        feed_all(&mut l, start + m * 60_000, &[]);
+    }
+    assert!(activated(&check(&mut l)).is_empty());
+    // Shutdown: pressure falls to 0 bar; then every other tag reports bad
+    // quality (transmitters de-energised).
+    let others: Vec<String> =
+        l.engine.plan().tags.iter().map(|t| t.name.clone()).filter(|n| n != "U2.MS.PT-401").collect();
+    for m in 6..=9 {
+        feed_all(&mut l, start + m * 60_000, &["U2.MS.PT-401"]);
+        feed(&mut l, "U2.MS.PT-401", start + m * 60_000, 0.0, "good");
+    }
+    check(&mut l);
+    let mut ev = vec![];
+    for m in 10..=20 {
+        feed(&mut l, "U2.MS.PT-401", start + m * 60_000, 0.0, "good");
+        for n in &others {
+            feed(&mut l, n, start + m * 60_000, 0.0, "bad");
+        }
+        ev.extend(check(&mut l));
+    }
+    let annunciated: Vec<&AlarmEvent> = ev
+        .iter()
+        .filter(|e| e.transition == Transition::Activated && e.state != crate::alarm::AlarmState::Suppressed)
+        .collect();
+    assert!(annunciated.is_empty(), "nothing annunciated while offline: {annunciated:#?}");
+    let recorded = ev
+        .iter()
+        .filter(|e| e.index == AlarmIndex::SensorBadQuality && e.state == crate::alarm::AlarmState::Suppressed)
+        .count();
+    assert_eq!(recorded, others.len(), "each tag's bad quality recorded as suppressed");
+    assert!(ev
+        .iter()
+        .all(|e| e.message.contains("unit U2 offline") || e.state != crate::alarm::AlarmState::Suppressed));
+}

@@ -67,6 +67,10 @@ impl Ledger {
             let ev = self.book.evaluate_condition(PLANT_DATA_ALARM, "", AlarmIndex::ServiceHealth, no_data, &detail, t);
             self.note_events(ev);
         }
+        // Plant states first, so alarms raised in this check already see them.
+        let rules = self.plant_state_rules();
+        let ev = self.book.set_suppression(rules, t);
+        self.note_events(ev);
         let plan = self.engine.plan();
         let ntags = plan.tags.len();
         // Per tag: (stale, out of range, bad quality) before grouping.
@@ -188,5 +192,23 @@ impl Ledger {
             let ev = self.book.evaluate_sensor(&name, &unit, &affects, index, active, &detail, t);
             self.note_events(ev);
         }
+    }
+
+    /// The plant states in force now, from their tags' newest accepted
+    /// values (in the tag's own unit).
+    fn plant_state_rules(&self) -> Vec<crate::alarm::SuppressionRule> {
+        let plan = self.engine.plan();
+        self.service
+            .alarms
+            .plant_states
+            .iter()
+            .filter(|ps| {
+                plan.tags.iter().position(|t| t.name == ps.tag).is_some_and(|ti| {
+                    let tp = &plan.tags[ti];
+                    self.engine.tags()[ti].last.is_some_and(|(_, v)| ps.holds(tp.unit.from_internal(v)))
+                })
+            })
+            .map(|ps| ps.rule())
+            .collect()
     }
 }

@@ -519,6 +519,19 @@ fn alarm_problems(a: &AlarmConfig) -> Vec<String> {
             }
         }
     }
+    for (i, ps) in a.plant_states.iter().enumerate() {
+        let at = format!("[[alarms.plant_state]] #{} ({:?})", i + 1, ps.name);
+        if ps.name.trim().is_empty() || ps.name.chars().any(|c| c.is_control()) {
+            p.push(format!("{at}: give the state a name in words, e.g. \"unit U2 offline\""));
+        }
+        if ps.units.is_empty() || ps.units.iter().any(|u| u.trim().is_empty()) {
+            p.push(format!("{at}: units: list the plant units whose alarms it suppresses"));
+        }
+        let finite = |v: Option<f64>| v.is_none_or(f64::is_finite);
+        if (ps.below.is_none() && ps.above.is_none()) || !finite(ps.below) || !finite(ps.above) {
+            p.push(format!("{at}: give a finite `below` or `above` level in the tag's own unit"));
+        }
+    }
     for (index, d) in &a.delays {
         for (key, v) in [("on_delay_s", d.on_delay_s), ("off_delay_s", d.off_delay_s)] {
             if !(v.is_finite() && (0.0..=86_400.0).contains(&v)) {
@@ -582,6 +595,8 @@ mod tests {
             ("[alarms.damage_rate]\nwarning = 1e-5\ncritical = 1e-6", "damage_rate"),
             ("[alarms]\nmax_shelve_h = 0", "max_shelve_h"),
             ("[alarms.delays.wear_index]\non_delay_s = -1", "delays.wear_index.on_delay_s"),
+            ("[[alarms.plant_state]]\nname = \"off\"\nunits = [\"U2\"]\ntag = \"PT\"", "below` or `above"),
+            ("[[alarms.plant_state]]\nname = \"off\"\nunits = []\ntag = \"PT\"\nbelow = 5", "units"),
             ("[alarms.rationale.wear_index]\ntime_to_respond_min = 0", "rationale.wear_index.time_to_respond_min"),
             ("[alarms.rationale.wear_index]\nclass = \"sometimes\"", "class"),
             ("[alarms.component_rationale.\"A\".wear_index]\ncorrective_action = \"\"", "component_rationale"),
