@@ -330,11 +330,13 @@ impl AlarmBook {
         }
     }
 
-    /// A book from stored records (default configuration; chain
-    /// [`AlarmBook::with_config`]).
+    /// A book from stored records, as stored (chain
+    /// [`AlarmBook::with_config`] to apply a configuration).
     pub fn from_records(records: impl IntoIterator<Item = AlarmRecord>) -> AlarmBook {
+        // As stored: classes and rationalisation follow the configuration
+        // given with `with_config` (which may move a record's state).
         let records = records.into_iter().map(|r| (r.key(), r)).collect();
-        AlarmBook { config: AlarmConfig::default(), records, suppression: vec![] }.with_config(AlarmConfig::default())
+        AlarmBook { config: AlarmConfig::default(), records, suppression: vec![] }
     }
 
     /// Every record, in key order.

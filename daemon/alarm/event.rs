@@ -68,6 +68,11 @@ impl Transition {
 /// One alarm event.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct AlarmEvent {
+    /// Durable sequence number, one more than the event before it (given
+    /// by the service when the event is committed; consumers detect a
+    /// missed event by a gap).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub seq: Option<u64>,
     pub component: String,
     pub unit: String,
     pub index: AlarmIndex,
@@ -124,6 +129,7 @@ impl AlarmEvent {
         message: String,
     ) -> AlarmEvent {
         AlarmEvent {
+            seq: None,
             component: rec.component.clone(),
             unit: rec.unit.clone(),
             index: rec.index,
@@ -175,6 +181,9 @@ impl AlarmEvent {
             p = p.float("threshold", t);
         }
         p = p.string("message", &self.message).string("transition", self.transition.name());
+        if let Some(n) = self.seq {
+            p = p.int("seq", n as i64);
+        }
         if let Some(r) = &self.rationale {
             p = p
                 .tag("class", r.class.name())

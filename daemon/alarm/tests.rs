@@ -696,7 +696,7 @@ fn life_fraction_is_an_engineering_alert_that_never_stands_on_the_console() {
     assert_eq!(state(&b), AlarmState::Unacknowledged);
     // A record stored unacknowledged by an older version becomes an alert.
     let stored: Vec<AlarmRecord> = b.records().cloned().collect();
-    let b = AlarmBook::from_records(stored);
+    let b = AlarmBook::from_records(stored).with_config(AlarmConfig::default());
     assert_eq!(state(&b), AlarmState::Alert);
 }
 

@@ -114,6 +114,11 @@ pub struct Ledger {
     /// Per tag: (event time, arrival) of the newest sample rejected as a
     /// sensor fault; a fault that old no longer hides the tag's silence.
     last_fault: Vec<Option<(i64, i64)>>,
+    /// Sequence number the next committed alarm event gets (durable, in
+    /// the store's meta with the journal).
+    next_event_seq: u64,
+    /// The alarm clock's latest reading (see [`Ledger::alarm_now`]).
+    alarm_clock_ms: i64,
     retired: Vec<(String, ComponentState)>,
     retired_tags: Vec<(String, TagState)>,
     counters: ServiceCounters,
@@ -168,7 +173,7 @@ pub struct Ledger {
     database_reachable: Option<watch::Receiver<Option<bool>>>,
     /// HTTP commands carried out but not yet committed: the component
     /// addressed and where the outcome goes once the commit succeeded.
-    command_replies: Vec<(String, tokio::sync::oneshot::Sender<CommandOutcome>)>,
+    command_replies: Vec<(crate::alarm::AlarmTarget, tokio::sync::oneshot::Sender<CommandOutcome>)>,
     /// Subscriptions in force and what the last reloads left undone.
     reloads: Reloads,
 }
@@ -204,6 +209,8 @@ pub struct StoredLedger {
     pub alarms: Vec<AlarmRecord>,
     /// Alarm records that do not parse: (key, why). They start afresh.
     pub unreadable_alarms: Vec<(String, String)>,
+    /// Sequence number the next alarm event gets.
+    pub next_event_seq: u64,
 }
 
 impl StoredLedger {
@@ -226,8 +233,10 @@ impl StoredLedger {
         }
         let mut counters = crate::engine::Counters::default();
         let mut decode_rejected = Default::default();
+        let mut next_event_seq = 1;
         for (k, json) in &loaded.meta {
             match k.as_str() {
+                "alarm_event_seq" => next_event_seq = serde_json::from_str(json).unwrap_or(1),
                 "engine_counters" => counters = serde_json::from_str(json).unwrap_or_default(),
                 "decode_rejected" => decode_rejected = serde_json::from_str(json).unwrap_or_default(),
                 _ => {}
@@ -260,6 +269,7 @@ impl StoredLedger {
             decode_rejected,
             alarms,
             unreadable_alarms,
+            next_event_seq,
         })
     }
 }
@@ -374,6 +384,8 @@ impl Ledger {
             sensor_latched: vec![(false, false); ntags],
             stale_leader: vec![None; ntags],
             last_fault: vec![None; ntags],
+            next_event_seq: stored.next_event_seq,
+            alarm_clock_ms: i64::MIN,
             retired: left.components,
             retired_tags: left.tags,
             counters: svc,
@@ -587,7 +599,8 @@ impl Ledger {
         if let Ok(s) = self.store.outbox_stats() {
             self.outbox = s;
         }
-        let ev = self.book.tick(now);
+        let alarm_now = self.alarm_now();
+        let ev = self.book.tick(alarm_now);
         if !ev.is_empty() {
             for e in &ev {
                 self.dirty_alarms.insert(e.key());
@@ -699,8 +712,9 @@ impl Ledger {
 
     /// Carry out an authorised command: the name of the component it
     /// addressed, or what was wrong (counted and logged).
-    fn command(&mut self, payload: &[u8]) -> Result<String, CommandOutcome> {
-        let now = now_ms();
+    fn command(&mut self, payload: &[u8]) -> Result<crate::alarm::AlarmTarget, CommandOutcome> {
+        // Stamped on the alarm clock, the journal's one time base.
+        let now = self.alarm_now();
         let cmd = match parse_command(payload) {
             Ok(c) => c,
             Err(e) => {
@@ -717,9 +731,7 @@ impl Ledger {
                     self.dirty_alarms.insert(e.key());
                 }
                 self.events.extend(ev);
-                // A full key `component/index` names its record's component.
-                let target = &cmd.target().component;
-                Ok(self.book.record(target).map_or_else(|| target.clone(), |r| r.component.clone()))
+                Ok(cmd.target().clone())
             }
             Err(e) => {
                 self.refuse_command("refused");
@@ -735,6 +747,22 @@ impl Ledger {
         }
     }
 
+    /// The alarm clock, the one time base of the alarm journal: the newest
+    /// event time seen, advanced by the wall time since the newest accepted
+    /// sample arrived (so it moves on while data stops, and stays with the
+    /// data during a backfill), never backwards. Commands and shelve ends
+    /// use it; evaluations use the event time of their data, which it never
+    /// lags.
+    fn alarm_now(&mut self) -> i64 {
+        let now = now_ms();
+        let t = match (self.newest_ms, self.last_any_arrival) {
+            (Some(n), Some(a)) => n.saturating_add((now - a).max(0)),
+            _ => now,
+        };
+        self.alarm_clock_ms = self.alarm_clock_ms.max(t);
+        self.alarm_clock_ms
+    }
+
     /// Answer the HTTP commands of a batch now durable, after publishing
     /// the snapshot, so that what the caller reads next agrees.
     fn answer_commands(&mut self) {
@@ -742,8 +770,8 @@ impl Ledger {
             return;
         }
         self.publish_snapshot(true);
-        for (component, reply) in self.command_replies.drain(..) {
-            let _ = reply.send(CommandOutcome::Applied(self.book.current(&component).to_json()));
+        for (target, reply) in self.command_replies.drain(..) {
+            let _ = reply.send(CommandOutcome::Applied(self.book.summary_of(&target).to_json()));
         }
     }
 
@@ -922,6 +950,13 @@ impl Ledger {
         // The events' lines are made afresh by each attempt: a failed one
         // keeps everything before them, not them (no duplicates on retries).
         let before_events = outbox.len();
+        // Sequence numbers, given afresh by each attempt (the count moves
+        // only when one succeeds), so consumers can see a gap.
+        let seq_base = self.next_event_seq;
+        for (i, e) in self.events.iter_mut().enumerate() {
+            e.seq = Some(seq_base + i as u64);
+        }
+        let seq_next = seq_base + self.events.len() as u64;
         for e in &self.events {
             if let Some(l) = e.to_point(&plant).to_line() {
                 outbox.push(l);
@@ -934,6 +969,7 @@ impl Ledger {
         let meta = vec![
             ("engine_counters".to_string(), serde_json::to_string(self.engine.counters()).unwrap_or_default()),
             ("decode_rejected".to_string(), serde_json::to_string(&self.counters.decode_rejected).unwrap_or_default()),
+            ("alarm_event_seq".to_string(), seq_next.to_string()),
         ];
         let journal: Vec<JournalEntry> = self
             .events
@@ -1000,6 +1036,7 @@ impl Ledger {
                 self.held_added.clear();
                 self.held_released.clear();
                 self.dirty_alarms.clear();
+                self.next_event_seq = seq_next;
                 let events = std::mem::take(&mut self.events);
                 self.publish_alarms(&events);
                 for e in events {
