@@ -119,6 +119,8 @@ pub struct Ledger {
     next_event_seq: u64,
     /// The alarm clock's latest reading (see [`Ledger::alarm_now`]).
     alarm_clock_ms: i64,
+    /// Alarm-system performance figures, fed with committed events.
+    kpi: super::alarm_kpi::AlarmKpi,
     retired: Vec<(String, ComponentState)>,
     retired_tags: Vec<(String, TagState)>,
     counters: ServiceCounters,
@@ -126,6 +128,8 @@ pub struct Ledger {
     snapshot_tx: watch::Sender<Arc<Snapshot>>,
     last_snapshot: Instant,
     last_health: Instant,
+    /// When the retained alarm states were last all published again.
+    last_state_republish: Instant,
     started: String,
     mqtt_connected: bool,
     outbox: crate::store::OutboxStats,
@@ -191,6 +195,10 @@ struct Reloads {
 /// Threshold lines go out with a component's series at most this often in
 /// event time (1 h), besides start-up and reloads.
 const THRESHOLD_REFRESH_MS: i64 = 3_600_000;
+
+/// Seconds of wall time between two publications of every retained alarm
+/// state (besides every connection and every change).
+const STATE_REPUBLISH_S: u64 = 60;
 
 /// The plant-level alarm raised when no tag delivers data.
 pub const PLANT_DATA_ALARM: &str = "lifeledger:plant-data";
@@ -386,6 +394,12 @@ impl Ledger {
             last_fault: vec![None; ntags],
             next_event_seq: stored.next_event_seq,
             alarm_clock_ms: i64::MIN,
+            kpi: {
+                // The recent journal seeds the figures across a restart.
+                let mut k = super::alarm_kpi::AlarmKpi::default();
+                k.record(&recent_events.iter().cloned().collect::<Vec<_>>());
+                k
+            },
             retired: left.components,
             retired_tags: left.tags,
             counters: svc,
@@ -394,6 +408,7 @@ impl Ledger {
             last_snapshot: Instant::now() - Duration::from_secs(60),
             // The first health point goes out at the first idle moment.
             last_health: Instant::now() - Duration::from_secs(3600),
+            last_state_republish: Instant::now(),
             started: rfc3339_ms(now_ms()),
             mqtt_connected: false,
             outbox: stats,
@@ -429,6 +444,16 @@ impl Ledger {
         // Thresholds go to the database at start-up, at the newest event time.
         let t = l.newest_ms.unwrap_or_else(now_ms);
         l.queue_thresholds(t);
+        // Every record judged against the ledger as loaded, so the values
+        // the retained states carry from the first connection are current
+        // (a record is stored only when its state changes).
+        for ci in 0..l.engine.plan().components.len() {
+            let (plan, st) = (&l.engine.plan().components[ci], &l.engine.components()[ci]);
+            if let Some(ti) = st.integrated_to_ms {
+                let ev = l.book.evaluate_component(plan, st, ti);
+                l.note_events(ev);
+            }
+        }
         l.publish_snapshot(true);
         Ok(l)
     }
@@ -608,6 +633,12 @@ impl Ledger {
             self.events.extend(ev);
             self.commit();
         }
+        // Retained states carry values that move without an event (a wear
+        // index past its last level): all published again once a minute.
+        if self.mqtt_connected && self.last_state_republish.elapsed() >= Duration::from_secs(STATE_REPUBLISH_S) {
+            self.last_state_republish = Instant::now();
+            self.publish_all_states();
+        }
         if self.last_health.elapsed() >= Duration::from_secs(self.service.store.health_interval_s.max(1)) {
             self.last_health = Instant::now();
             let p = self.health_point(now);
@@ -757,7 +788,9 @@ impl Ledger {
         let now = now_ms();
         let t = match (self.newest_ms, self.last_any_arrival) {
             (Some(n), Some(a)) => n.saturating_add((now - a).max(0)),
-            _ => now,
+            (Some(n), None) => n.saturating_add((now - self.started_ms).max(0)),
+            // No data yet: the wall clock, not kept (data may be older).
+            (None, _) => return self.alarm_clock_ms.max(now),
         };
         self.alarm_clock_ms = self.alarm_clock_ms.max(t);
         self.alarm_clock_ms
@@ -1038,6 +1071,7 @@ impl Ledger {
                 self.dirty_alarms.clear();
                 self.next_event_seq = seq_next;
                 let events = std::mem::take(&mut self.events);
+                self.kpi.record(&events);
                 self.publish_alarms(&events);
                 for e in events {
                     self.recent_events.push_back(e);
@@ -1321,6 +1355,10 @@ impl Ledger {
             service: self.counters.clone(),
             components,
             alarms,
+            alarm_kpi: {
+                let now = self.alarm_now();
+                self.kpi.report(now, &self.book)
+            },
             retired_components: self.retired.iter().map(|(n, _)| n.clone()).collect(),
             recent_events: self.recent_events.iter().cloned().collect(),
             no_plant_data: self.no_plant_data,
