@@ -8,6 +8,9 @@
 //! {"action":"return_to_service","tag":"U2.SH3.TE-311B","by":"I&C"}
 //! ```
 //!
+//! An optional `id` (a string) is echoed in the reply on the MQTT reply
+//! topic (see `service::command_reply`).
+//!
 //! Over MQTT a command must also carry the operator token in a `token`
 //! field (see [`carries_token`]); the field is allowed in every action and
 //! never part of the parsed command. Over HTTP the token goes in the
@@ -190,10 +193,10 @@ pub fn parse_command(json: &[u8]) -> Result<AlarmCommand, AlarmError> {
     let action = text(&o, "action")?;
     let allowed: &[&str] = match action.as_str() {
         "acknowledge" | "unshelve" | "return_to_service" => {
-            &["action", "component", "tag", "unit", "all", "index", "by", "token"]
+            &["action", "component", "tag", "unit", "all", "index", "by", "token", "id"]
         }
         "shelve" | "remove_from_service" => {
-            &["action", "component", "tag", "unit", "all", "index", "by", "duration_h", "reason", "token"]
+            &["action", "component", "tag", "unit", "all", "index", "by", "duration_h", "reason", "token", "id"]
         }
         other => {
             return Err(bad(

@@ -20,6 +20,7 @@
 //! and its tags' states are copied into the store's checkpoints in the same
 //! transaction too (`crate::recovery::checkpoint_rows`), for rollback.
 
+use super::command_reply::{command_action, command_id, CommandReply};
 use super::commit_retry::{AfterFailure, CommitRetry};
 use super::reload::SharedFilters;
 use super::settings::ServiceSettings;
@@ -119,6 +120,9 @@ pub struct Ledger {
     next_event_seq: u64,
     /// The alarm clock's latest reading (see [`Ledger::alarm_now`]).
     alarm_clock_ms: i64,
+    /// MQTT commands carried out, answered on the reply topic once
+    /// committed: (id, action, by, target).
+    mqtt_replies: Vec<(Option<String>, Option<String>, String, crate::alarm::AlarmTarget)>,
     /// Alarm-system performance figures, fed with committed events.
     kpi: super::alarm_kpi::AlarmKpi,
     retired: Vec<(String, ComponentState)>,
@@ -394,6 +398,7 @@ impl Ledger {
             last_fault: vec![None; ntags],
             next_event_seq: stored.next_event_seq,
             alarm_clock_ms: i64::MIN,
+            mqtt_replies: vec![],
             kpi: {
                 // The recent journal seeds the figures across a restart.
                 let mut k = super::alarm_kpi::AlarmKpi::default();
@@ -719,6 +724,7 @@ impl Ledger {
                     publish.topic
                 )
             });
+            self.reply(CommandReply::refused(None, "retained", "a retained command is refused: commands act once"));
             return;
         }
         let authorised = self.command_token.as_deref().is_some_and(|t| carries_token(&publish.payload, t));
@@ -732,9 +738,28 @@ impl Ledger {
             self.log.warn("command_unauthorised", || {
                 format!("alarm command on {} refused (unauthorised): {why}", publish.topic)
             });
+            self.reply(CommandReply::refused(None, "unauthorised", why));
             return;
         }
-        let _ = self.command(&publish.payload);
+        let id = command_id(&publish.payload);
+        match self.command(&publish.payload) {
+            Ok(target) => {
+                let by = parse_command(&publish.payload).map(|c| c.by().to_string()).unwrap_or_default();
+                self.mqtt_replies.push((id, command_action(&publish.payload), by, target));
+                self.force_commit = true;
+            }
+            Err(CommandOutcome::Unknown(e)) => self.reply(CommandReply::refused(id, "unknown", e)),
+            Err(CommandOutcome::Invalid(e)) => self.reply(CommandReply::refused(id, "invalid", e)),
+            Err(CommandOutcome::Applied(_)) => {}
+        }
+    }
+
+    /// Publish one reply on the command reply topic.
+    fn reply(&mut self, r: CommandReply) {
+        let topic = self.service.mqtt.command_reply_topic();
+        if self.client.try_publish(topic, QoS::AtLeastOnce, false, r.to_json()).is_err() {
+            self.log.warn("reply_failed", || "command reply not published (client queue full)".to_string());
+        }
     }
 
     fn refuse_command(&mut self, reason: &str) {
@@ -799,6 +824,10 @@ impl Ledger {
     /// Answer the HTTP commands of a batch now durable, after publishing
     /// the snapshot, so that what the caller reads next agrees.
     fn answer_commands(&mut self) {
+        for (id, action, by, target) in std::mem::take(&mut self.mqtt_replies) {
+            let summary = serde_json::to_value(self.book.summary_of(&target)).ok();
+            self.reply(CommandReply { id, outcome: "applied", action, by: Some(by), error: None, summary });
+        }
         if self.command_replies.is_empty() {
             return;
         }

@@ -18,6 +18,7 @@
 //! ([`reload`] says what a reload may change).
 
 pub mod alarm_kpi;
+pub mod command_reply;
 pub mod commit_retry;
 pub mod http;
 pub mod ledger;
