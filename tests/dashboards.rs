@@ -240,6 +240,9 @@ fn alarm_event(component: &str, index: AlarmIndex, value: f64, threshold: f64, t
         reason: None,
         shelved_until: None,
         detail: None,
+        seq: None,
+        affects: vec![],
+        rationale: None,
         caution: lifeledger::CAUTION,
     }
 }
