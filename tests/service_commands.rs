@@ -306,3 +306,53 @@ fn mqtt_commands_are_answered_on_the_reply_topic_and_events_are_numbered() {
     let _ = listener.disconnect();
     assert!(svc.sigterm().success());
 }
+
+/// The retained state of `topic` as a fresh subscriber receives it (the
+/// broker hands the retained message over at subscription), if any.
+fn retained_now(port: u16, topic: &str, id: &str) -> Option<serde_json::Value> {
+    let (client, rx) = listen(port, topic, id);
+    let got = rx.recv_timeout(Duration::from_secs(2)).ok().and_then(|(_, p)| serde_json::from_slice(&p).ok());
+    let _ = client.disconnect();
+    got
+}
+
+#[test]
+fn an_acknowledge_made_while_the_broker_was_down_reaches_the_retained_state() {
+    // Issue 11: an acknowledge made while the broker was down left the
+    // retained topic at "unacknowledged" for good.
+    let mut broker = Mosquitto::start_persistent();
+    let dir = tempfile::tempdir().unwrap();
+    let svc = plant_with_an_alarm(dir.path(), &broker, "");
+    let topic = "lifeledger/alarms/state/SH-TUBE";
+    let creep_state = |v: &serde_json::Value| {
+        v["alarms"].as_array()?.iter().find(|r| r["index"] == "creep_life_fraction")?["state"]
+            .as_str()
+            .map(String::from)
+    };
+    poll_until("the retained unacknowledged state", || {
+        retained_now(broker.port, topic, "retained-before")
+            .filter(|v| creep_state(v).as_deref() == Some("unacknowledged"))
+    });
+    broker.stop();
+    poll_until("the service to notice the broker is gone", || svc.snapshot().filter(|v| v["mqtt_connected"] == false));
+    let r = http::request(
+        svc.http_port,
+        "POST",
+        "/api/alarms/command",
+        &[("Authorization", &format!("Bearer {TOKEN}"))],
+        br#"{"action":"acknowledge","component":"SH-TUBE","by":"shift engineer"}"#,
+    )
+    .unwrap();
+    assert_eq!(r.status, 200, "{}", r.text());
+    // The broker comes back with its old retained message.
+    broker.restart();
+    svc.wait_connected();
+    let state = poll_until("the retained state to show the acknowledge", || {
+        retained_now(broker.port, topic, "retained-after").filter(|v| creep_state(v).as_deref() == Some("acknowledged"))
+    });
+    // Equal to the ledger's: the snapshot's record of the same alarm.
+    let snap = svc.snapshot().unwrap();
+    let tube = snap["alarms"].as_array().unwrap().iter().find(|a| a["component"] == "SH-TUBE").unwrap().clone();
+    assert_eq!(creep_state(&tube), creep_state(&state));
+    assert!(svc.sigterm().success());
+}
