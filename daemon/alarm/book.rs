@@ -349,9 +349,14 @@ impl AlarmBook {
         self.records.get(key)
     }
 
-    /// Names of the components that have records, sorted.
+    /// Names of the components (and tags) that have records or are
+    /// affected by a tag's sensor record, sorted.
     pub fn components(&self) -> Vec<&str> {
-        let mut v: Vec<&str> = self.records.values().map(|r| r.component.as_str()).collect();
+        let mut v: Vec<&str> = self
+            .records
+            .values()
+            .flat_map(|r| std::iter::once(r.component.as_str()).chain(r.affects.iter().map(String::as_str)))
+            .collect();
         v.sort_unstable();
         v.dedup();
         v
@@ -720,6 +725,31 @@ impl AlarmBook {
 
     /// A component's alarms now.
     pub fn current(&self, component: &str) -> ComponentAlarmSummary {
+        let sensors: Vec<&AlarmRecord> = self
+            .records
+            .values()
+            .filter(|r| r.component != component && r.affects.iter().any(|c| c == component))
+            .collect();
+        self.current_with(component, sensors)
+    }
+
+    /// The summaries of many components at once: the sensor records are
+    /// visited once, not once per component (a plant of thousands of parts
+    /// publishes them every few seconds).
+    pub fn summaries<'a>(&self, components: impl IntoIterator<Item = &'a str>) -> Vec<ComponentAlarmSummary> {
+        let mut by_component: std::collections::HashMap<&str, Vec<&AlarmRecord>> = Default::default();
+        for r in self.records.values().filter(|r| !r.affects.is_empty()) {
+            for c in &r.affects {
+                if *c != r.component {
+                    by_component.entry(c.as_str()).or_default().push(r);
+                }
+            }
+        }
+        components.into_iter().map(|c| self.current_with(c, by_component.get(c).cloned().unwrap_or_default())).collect()
+    }
+
+    /// A component's summary given the sensor records that affect it.
+    fn current_with(&self, component: &str, sensors: Vec<&AlarmRecord>) -> ComponentAlarmSummary {
         // Keys are `component/index`, so one component's records are a
         // contiguous range of the map (the equality test keeps a component
         // named `A/B` out of `A`'s summary).
@@ -734,12 +764,7 @@ impl AlarmBook {
             .collect();
         let unit = alarms.iter().find(|r| r.affects.is_empty()).map(|r| r.unit.clone());
         // The sensor alarms of the tags it reads (after its own).
-        alarms.extend(
-            self.records
-                .values()
-                .filter(|r| r.component != component && r.affects.iter().any(|c| c == component))
-                .cloned(),
-        );
+        alarms.extend(sensors.into_iter().cloned());
         let unit = unit.or_else(|| alarms.first().map(|r| r.unit.clone())).unwrap_or_default();
         summarise(component, &unit, alarms)
     }

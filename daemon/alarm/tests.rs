@@ -726,3 +726,16 @@ fn rationalisation_is_per_index_then_per_component() {
     let e = one(b.evaluate_sensor("TE-2", U, &[C.to_string()], AlarmIndex::SensorStale, true, "silent", 0));
     assert_eq!(e.rationale.unwrap().priority, Priority::Medium, "moderate within 15 min");
 }
+
+#[test]
+fn summaries_at_once_equal_one_by_one() {
+    let mut b = book();
+    let affects = vec!["A".to_string(), "B".to_string()];
+    b.evaluate_sensor("PT-1", "U1", &affects, AlarmIndex::SensorStale, true, "silent", 0);
+    b.evaluate("A", "U1", LF, 0.55, &DEFAULT_LIFE_FRACTION, 0);
+    assert_eq!(b.components(), ["A", "B", "PT-1"], "B is listed: its state shows the tag's alarm");
+    let names = b.components();
+    let together = b.summaries(names.iter().copied());
+    let one_by_one: Vec<ComponentAlarmSummary> = names.iter().map(|c| b.current(c)).collect();
+    assert_eq!(together, one_by_one);
+}

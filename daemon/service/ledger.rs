@@ -1206,9 +1206,8 @@ impl Ledger {
     fn publish_all_states(&mut self) {
         let components: Vec<String> = self.book.components().into_iter().map(String::from).collect();
         let mut failed = 0usize;
-        for c in &components {
-            let s = self.book.current(c);
-            let topic = self.service.mqtt.alarm_state_topic(c);
+        for s in self.book.summaries(components.iter().map(String::as_str)) {
+            let topic = self.service.mqtt.alarm_state_topic(&s.component);
             if self.client.try_publish(topic, QoS::AtLeastOnce, true, s.to_json()).is_err() {
                 failed += 1;
             }
@@ -1366,7 +1365,7 @@ impl Ledger {
             .zip(self.engine.components())
             .map(|(p, s)| ComponentReport::new(p, s))
             .collect();
-        let alarms = self.engine.plan().components.iter().map(|c| self.book.current(&c.name)).collect();
+        let alarms = self.book.summaries(self.engine.plan().components.iter().map(|c| c.name.as_str()));
         let snap = Snapshot {
             plant: self.cfg.plan.plant.clone(),
             started: self.started.clone(),

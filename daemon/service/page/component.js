@@ -284,7 +284,7 @@
 
   function renderEvents() {
     const evs = history ? history.events
-      : (snap.recent_events || []).filter((e) => e.component === name).slice(-HISTORY_LIMIT).reverse();
+      : (snap.recent_events || []).filter((e) => e.component === name || (e.affects || []).includes(name)).slice(-HISTORY_LIMIT).reverse();
     $('events').innerHTML = evs.length ? evs.map((e) => LL.eventItem(e, false)).join('') : '<li class="muted">No alarm events recorded for this component.</li>';
   }
 
