@@ -174,6 +174,19 @@ fn tags_going_silent_together_are_one_first_out_alarm() {
     assert_eq!(act[0].component, "U2.SH3.TE-321");
     let d = act[0].detail.clone().unwrap_or_default();
     assert!(d.contains("first out of 4 tags silent together"), "{d}");
+    // Every component of every silent tag shows that one alarm.
+    let plan = l.engine.plan().clone();
+    for (ti, tp) in plan.tags.iter().enumerate().filter(|(_, t)| gone.contains(&t.name.as_str())) {
+        for &ci in l.engine.consumers(ti) {
+            let c = &plan.components[ci as usize].name;
+            let s = l.book.current(c);
+            assert!(
+                s.alarms.iter().any(|r| r.index == AlarmIndex::SensorStale && r.is_active()),
+                "{c} (reads {}) shows the group's alarm",
+                tp.name
+            );
+        }
+    }
     // It stays one alarm while they stay silent.
     assert!(activated(&check(&mut l)).is_empty());
     // They come back: the alarm clears; nothing else was raised to clear.

@@ -129,28 +129,23 @@ impl Ledger {
                 }
             }
         }
-        let mut followers: Vec<Vec<&str>> = vec![vec![]; ntags];
+        let mut followers: Vec<Vec<usize>> = vec![vec![]; ntags];
         for ti in 0..ntags {
             if let Some(lead) = self.stale_leader[ti] {
-                followers[lead].push(plan.tags[ti].name.as_str());
+                followers[lead].push(ti);
             }
         }
-        let mut evaluations = vec![];
-        for (ti, tp) in plan.tags.iter().enumerate() {
-            let consumers = self.engine.consumers(ti);
-            if consumers.is_empty() {
-                continue;
-            }
-            let affects: Vec<String> = {
-                let mut v: Vec<String> =
-                    consumers.iter().map(|&ci| plan.components[ci as usize].name.clone()).collect();
-                v.sort();
-                v
-            };
-            let mut units: Vec<&str> = consumers.iter().map(|&ci| plan.components[ci as usize].unit.as_str()).collect();
+        // The components some tags feed: sorted names, their units joined,
+        // and words for the detail.
+        let describe = |tags: &[usize]| -> (Vec<String>, String, String) {
+            let mut cis: Vec<u32> = tags.iter().flat_map(|&t| self.engine.consumers(t).iter().copied()).collect();
+            cis.sort_unstable();
+            cis.dedup();
+            let mut affects: Vec<String> = cis.iter().map(|&ci| plan.components[ci as usize].name.clone()).collect();
+            affects.sort();
+            let mut units: Vec<&str> = cis.iter().map(|&ci| plan.components[ci as usize].unit.as_str()).collect();
             units.sort_unstable();
             units.dedup();
-            let unit = units.join(",");
             let parts = match affects.len() {
                 1 => format!("affects {}", affects[0]),
                 n => format!(
@@ -158,20 +153,45 @@ impl Ledger {
                     listed(&affects.iter().map(String::as_str).collect::<Vec<_>>())
                 ),
             };
+            (affects, units.join(","), parts)
+        };
+        let mut evaluations = vec![];
+        for (ti, tp) in plan.tags.iter().enumerate() {
+            if self.engine.consumers(ti).is_empty() {
+                continue;
+            }
+            let (affects, unit, parts) = describe(&[ti]);
             let (_, oor, badq) = faults[ti];
-            let stale_alarm = stale[ti] && self.stale_leader[ti].is_none() && !no_data;
+            // With no data from any tag the plant-level alarm stands for
+            // every silence that begins: no new stale alarm, but one
+            // already standing stays (no fleeting clear and re-raise).
+            let stale_alarm = stale[ti] && self.stale_leader[ti].is_none() && (!no_data || was_alarmed(ti));
+            // A first-out alarm lists every component of its group.
+            let group: Vec<usize> = std::iter::once(ti).chain(followers[ti].iter().copied()).collect();
+            let (group_affects, group_unit, group_parts) = describe(&group);
             let stale_detail = if followers[ti].is_empty() {
                 format!("tag {} silent; {parts}", tp.name)
             } else {
+                let names: Vec<&str> = followers[ti].iter().map(|&f| plan.tags[f].name.as_str()).collect();
                 format!(
-                    "tag {} silent, first out of {} tags silent together ({}): one cause likely; {parts}",
+                    "tag {} silent, first out of {} tags silent together ({}): one cause likely; {group_parts}",
                     tp.name,
-                    followers[ti].len() + 1,
-                    listed(&followers[ti])
+                    names.len() + 1,
+                    listed(&names)
                 )
             };
+            let key = crate::alarm::record::key(&tp.name, AlarmIndex::SensorStale);
+            if stale_alarm || self.book.record(&key).is_some() {
+                evaluations.push((
+                    tp.name.clone(),
+                    group_unit,
+                    group_affects,
+                    AlarmIndex::SensorStale,
+                    stale_alarm,
+                    stale_detail,
+                ));
+            }
             for (index, active, detail) in [
-                (AlarmIndex::SensorStale, stale_alarm, stale_detail),
                 (
                     AlarmIndex::SensorOutOfRange,
                     oor,
