@@ -739,3 +739,16 @@ fn summaries_at_once_equal_one_by_one() {
     let one_by_one: Vec<ComponentAlarmSummary> = names.iter().map(|c| b.current(c)).collect();
     assert_eq!(together, one_by_one);
 }
+
+#[test]
+fn journal_events_written_before_rationalisation_still_read() {
+    let old = r#"{"component":"C","unit":"U2","index":"creep_life_fraction","transition":"activated","severity":"warning","state":"unacknowledged","value":0.51,"threshold":0.5,"time":"1970-01-01T00:00:00.000Z","time_ms":0,"message":"m","caution":"x"}"#;
+    let e: AlarmEvent = serde_json::from_str(old).unwrap();
+    assert_eq!((e.seq, e.rationale.is_none(), e.affects.is_empty()), (None, true, true));
+    // And a new one round-trips with everything.
+    let mut b = AlarmBook::new();
+    let mut e = one(b.evaluate_sensor("T", "U", &["C".into()], AlarmIndex::SensorStale, true, "silent", 0));
+    e.seq = Some(7);
+    let back: AlarmEvent = serde_json::from_str(&e.to_json()).unwrap();
+    assert_eq!(back, e);
+}
