@@ -19,8 +19,10 @@
 //! * metal temperature over design: 60 s on, 60 s off;
 //! * damage rate and projected hours to critical (rates that move with the
 //!   load): 600 s on and off;
-//! * sensor out of range and bad quality: alarm at once, 60 s off, so a
-//!   flickering transmitter gives one alarm;
+//! * sensor out of range and bad quality: alarm at once, off only after an
+//!   hour of good data (3600 s), so an intermittent transmitter (burn-out
+//!   spikes every half hour) is one alarm, not one per spike; a choice of
+//!   this program (keeping a sensor alarm longer is the conservative side);
 //! * accumulated indices (life fraction, strain, wear), sensor stale (its
 //!   hold time plus `stale_grace_s` is already a delay) and service health:
 //!   none.
@@ -50,7 +52,9 @@ impl Delay {
         match index {
             AlarmIndex::MetalTemperatureOverDesign => Delay { on_delay_s: 60.0, off_delay_s: 60.0 },
             AlarmIndex::DamageRate | AlarmIndex::HoursToCritical => Delay { on_delay_s: 600.0, off_delay_s: 600.0 },
-            AlarmIndex::SensorOutOfRange | AlarmIndex::SensorBadQuality => Delay { on_delay_s: 0.0, off_delay_s: 60.0 },
+            AlarmIndex::SensorOutOfRange | AlarmIndex::SensorBadQuality => {
+                Delay { on_delay_s: 0.0, off_delay_s: 3600.0 }
+            }
             _ => Delay::NONE,
         }
     }

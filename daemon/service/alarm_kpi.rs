@@ -177,9 +177,17 @@ mod tests {
         ev
     }
 
+    /// A book whose bad-quality alarm clears 60 s after the fault.
+    fn book_60s() -> AlarmBook {
+        AlarmBook::new().with_config(crate::alarm::AlarmConfig {
+            delays: [(AlarmIndex::SensorBadQuality, crate::alarm::Delay { on_delay_s: 0.0, off_delay_s: 60.0 })].into(),
+            ..Default::default()
+        })
+    }
+
     #[test]
     fn floods_chatter_and_rates_by_their_definitions() {
-        let mut book = AlarmBook::new();
+        let mut book = book_60s();
         let mut k = AlarmKpi::default();
         let t0 = 1_800_000_000_000 - 1_800_000_000_000 % TEN_MIN_MS; // on a 10-minute boundary
                                                                      // 12 different tags each annunciate once inside one 10-minute

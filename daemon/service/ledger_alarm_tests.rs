@@ -233,12 +233,25 @@ fn a_tag_that_falls_silent_after_a_fault_becomes_stale() {
     feed(&mut l, tag, start + 6 * 60_000, 5000.0, "good");
     let act: Vec<AlarmIndex> = activated(&check(&mut l)).iter().map(|e| e.index).collect();
     assert_eq!(act, vec![AlarmIndex::SensorOutOfRange]);
-    for m in 7..=20 {
+    // Silent: the out-of-range alarm stands for its off-delay (an hour
+    // without a fault), and the silence shows as stale only after it.
+    let mut ev = vec![];
+    for m in 7..=40 {
         feed_all(&mut l, start + m * 60_000, &[tag]);
+        ev.extend(check(&mut l));
     }
-    let ev = check(&mut l);
-    let act: Vec<AlarmIndex> = activated(&ev).iter().map(|e| e.index).collect();
-    assert_eq!(act, vec![AlarmIndex::SensorStale], "{ev:#?}");
+    assert!(activated(&ev).is_empty(), "still the one out-of-range alarm: {ev:#?}");
+    let mut ev = vec![];
+    for m in 41..=80 {
+        feed_all(&mut l, start + m * 60_000, &[tag]);
+        ev.extend(check(&mut l));
+    }
+    let seen: Vec<(AlarmIndex, Transition)> = ev.iter().map(|e| (e.index, e.transition)).collect();
+    assert_eq!(
+        seen,
+        vec![(AlarmIndex::SensorOutOfRange, Transition::Cleared), (AlarmIndex::SensorStale, Transition::Activated)],
+        "{ev:#?}"
+    );
 }
 
 #[test]

@@ -98,10 +98,17 @@ impl Ledger {
             *l = (false, false);
         }
         // Stale, for alarming: not explained by a value or quality fault,
-        // and read by some component.
+        // whether fresh or still held by its alarm's off-delay, and read
+        // by some component.
         let read = |ti: usize| !self.engine.consumers(ti).is_empty();
-        let stale: Vec<bool> =
-            (0..ntags).map(|ti| faults[ti].0 && !faults[ti].1 && !faults[ti].2 && read(ti)).collect();
+        let fault_alarm = |ti: usize| {
+            [AlarmIndex::SensorOutOfRange, AlarmIndex::SensorBadQuality].into_iter().any(|i| {
+                self.book.record(&crate::alarm::record::key(&plan.tags[ti].name, i)).is_some_and(|r| r.is_active())
+            })
+        };
+        let stale: Vec<bool> = (0..ntags)
+            .map(|ti| faults[ti].0 && !faults[ti].1 && !faults[ti].2 && !fault_alarm(ti) && read(ti))
+            .collect();
         // First-out grouping: a group holds while its leader is stale.
         for ti in 0..ntags {
             if let Some(lead) = self.stale_leader[ti] {
