@@ -22,7 +22,9 @@
 //! * sensor out of range and bad quality: alarm at once, off only after an
 //!   hour of good data (3600 s), so an intermittent transmitter (burn-out
 //!   spikes every half hour) is one alarm, not one per spike; a choice of
-//!   this program (keeping a sensor alarm longer is the conservative side);
+//!   this program (keeping a sensor alarm longer is the conservative side;
+//!   a silence that follows is alarmed as stale meanwhile, the fault having
+//!   changed);
 //! * accumulated indices (life fraction, strain, wear), sensor stale (its
 //!   hold time plus `stale_grace_s` is already a delay) and service health:
 //!   none.

@@ -97,18 +97,13 @@ impl Ledger {
         for l in &mut self.sensor_latched {
             *l = (false, false);
         }
-        // Stale, for alarming: not explained by a value or quality fault,
-        // whether fresh or still held by its alarm's off-delay, and read
-        // by some component.
+        // Stale, for alarming: not explained by a fresh value or quality
+        // fault, and read by some component. (An out-of-range alarm held
+        // by its off-delay does not hide a silence that follows it: the
+        // fault has changed, no data at all now.)
         let read = |ti: usize| !self.engine.consumers(ti).is_empty();
-        let fault_alarm = |ti: usize| {
-            [AlarmIndex::SensorOutOfRange, AlarmIndex::SensorBadQuality].into_iter().any(|i| {
-                self.book.record(&crate::alarm::record::key(&plan.tags[ti].name, i)).is_some_and(|r| r.is_active())
-            })
-        };
-        let stale: Vec<bool> = (0..ntags)
-            .map(|ti| faults[ti].0 && !faults[ti].1 && !faults[ti].2 && !fault_alarm(ti) && read(ti))
-            .collect();
+        let stale: Vec<bool> =
+            (0..ntags).map(|ti| faults[ti].0 && !faults[ti].1 && !faults[ti].2 && read(ti)).collect();
         // First-out grouping: a group holds while its leader is stale.
         for ti in 0..ntags {
             if let Some(lead) = self.stale_leader[ti] {
