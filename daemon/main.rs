@@ -650,7 +650,7 @@ fn cmd_ledger(config: &std::path::Path, format: Format) -> Result<i32> {
     let retired = engine.import_state(stored.engine);
     let reports = component_reports(&engine);
     let retired: Vec<&str> = retired.components.iter().map(|(n, _)| n.as_str()).collect();
-    let book = lifeledger::alarm::AlarmBook::from_records(stored.alarms);
+    let book = lifeledger::alarm::AlarmBook::from_records(stored.alarms).with_config(service.alarms.clone());
     let alarms: Vec<_> = engine.plan().components.iter().map(|c| book.current(&c.name)).collect();
     let mut out = std::io::stdout().lock();
     match format {

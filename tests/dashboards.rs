@@ -102,8 +102,18 @@ fn schema() -> Vec<Measurement> {
         },
         Measurement {
             name: "alarm_event",
-            tags: &["plant", "unit", "component", "index", "severity", "state"],
-            fields: strs(&["value", "threshold", "message", "transition"]),
+            tags: &["plant", "unit", "component", "index", "severity", "state", "class", "priority"],
+            // (`affects` too, on sensor alarms only.)
+            fields: strs(&[
+                "value",
+                "threshold",
+                "message",
+                "transition",
+                "seq",
+                "consequence",
+                "corrective_action",
+                "time_to_respond_min",
+            ]),
         },
         Measurement { name: "service_health", tags: &["plant"], fields: health },
     ]
@@ -249,6 +259,9 @@ fn alarm_event(component: &str, index: AlarmIndex, value: f64, threshold: f64, t
         reason: None,
         shelved_until: None,
         detail: None,
+        seq: Some(1),
+        affects: vec![],
+        rationale: Some(lifeledger::alarm::Rationale::default_for(index)),
         caution: lifeledger::CAUTION,
     }
 }

@@ -8,7 +8,9 @@
 //! * the database's reachability reaches the snapshot and `/metrics`;
 //! * the retained alarm state of every component is published again at
 //!   each connection, so a state message lost in a crash after the commit
-//!   comes back with the next start.
+//!   comes back with the next start;
+//! * MQTT commands are answered on the reply topic with their outcome, and
+//!   alarm events carry gapless sequence numbers.
 
 mod common;
 
@@ -247,5 +249,110 @@ fn the_retained_alarm_state_is_published_again_at_each_connection() {
     let creep = state["alarms"].as_array().unwrap().iter().find(|r| r["index"] == "creep_life_fraction");
     assert_eq!(creep.map(|r| r["state"].clone()), Some("unacknowledged".into()), "{state}");
     let _ = second.disconnect();
+    assert!(svc.sigterm().success());
+}
+
+#[test]
+fn mqtt_commands_are_answered_on_the_reply_topic_and_events_are_numbered() {
+    let broker = Mosquitto::start();
+    let dir = tempfile::tempdir().unwrap();
+    let svc = plant_with_an_alarm(dir.path(), &broker, "");
+    let (listener, rx) = listen(broker.port, "lifeledger/#", "reply-listener");
+    // Subscribed once the broker hands over a retained state.
+    poll_until("the listener's subscription", || rx.try_recv().ok().filter(|(t, _)| t.contains("/alarms/state/")));
+    let ack = serde_json::json!({"action": "acknowledge", "component": "SH-TUBE", "index": "creep_life_fraction",
+                                 "by": "shift engineer", "token": TOKEN, "id": "c-1"});
+    let unknown = serde_json::json!({"action": "acknowledge", "tag": "NO-SUCH-TAG", "by": "shift engineer",
+                                     "token": TOKEN, "id": "c-2"});
+    let anonymous = serde_json::json!({"action": "acknowledge", "all": true, "by": "anyone", "id": "c-3"});
+    publish_messages(
+        broker.port,
+        vec![
+            ("lifeledger/commands", ack.to_string().into_bytes()),
+            ("lifeledger/commands", unknown.to_string().into_bytes()),
+            ("lifeledger/commands", anonymous.to_string().into_bytes()),
+        ],
+        "console",
+    );
+    let mut replies: Vec<serde_json::Value> = vec![];
+    let mut events: Vec<serde_json::Value> = vec![];
+    poll_until("three replies on lifeledger/commands/replies", || {
+        while let Ok((t, p)) = rx.try_recv() {
+            let v: serde_json::Value = serde_json::from_slice(&p).unwrap_or_default();
+            match t.as_str() {
+                "lifeledger/commands/replies" => replies.push(v),
+                "lifeledger/alarms/events" => events.push(v),
+                _ => {}
+            }
+        }
+        (replies.len() >= 3).then_some(())
+    });
+    let by_id = |id: &str| replies.iter().find(|r| r["id"] == id).cloned();
+    let applied = by_id("c-1").expect("the acknowledge is answered");
+    assert_eq!(applied["outcome"], "applied", "{applied}");
+    let creep = applied["summary"]["alarms"].as_array().unwrap().iter().find(|r| r["index"] == "creep_life_fraction");
+    assert_eq!(creep.map(|r| r["state"].clone()), Some("acknowledged".into()), "{applied}");
+    let refused = by_id("c-2").expect("the unknown tag is answered");
+    assert_eq!(refused["outcome"], "unknown", "{refused}");
+    assert!(refused["error"].as_str().unwrap().contains("NO-SUCH-TAG"), "{refused}");
+    let unauthorised = replies.iter().find(|r| r["outcome"] == "unauthorised").expect("the anonymous command");
+    assert!(unauthorised.get("id").is_none(), "nothing of an unauthorised command is echoed: {unauthorised}");
+    assert!(replies.iter().all(|r| !r.to_string().contains(TOKEN)), "no reply carries the token");
+    // The acknowledge's event carries the sequence number after the last
+    // one the service had recorded: no gap.
+    let snap = svc.snapshot().unwrap();
+    let seqs: Vec<u64> = snap["recent_events"].as_array().unwrap().iter().filter_map(|e| e["seq"].as_u64()).collect();
+    assert!(!seqs.is_empty() && seqs.windows(2).all(|w| w[1] == w[0] + 1), "gapless: {seqs:?}");
+    let _ = listener.disconnect();
+    assert!(svc.sigterm().success());
+}
+
+/// The retained state of `topic` as a fresh subscriber receives it (the
+/// broker hands the retained message over at subscription), if any.
+fn retained_now(port: u16, topic: &str, id: &str) -> Option<serde_json::Value> {
+    let (client, rx) = listen(port, topic, id);
+    let got = rx.recv_timeout(Duration::from_secs(2)).ok().and_then(|(_, p)| serde_json::from_slice(&p).ok());
+    let _ = client.disconnect();
+    got
+}
+
+#[test]
+fn an_acknowledge_made_while_the_broker_was_down_reaches_the_retained_state() {
+    // Issue 11: an acknowledge made while the broker was down left the
+    // retained topic at "unacknowledged" for good.
+    let mut broker = Mosquitto::start_persistent();
+    let dir = tempfile::tempdir().unwrap();
+    let svc = plant_with_an_alarm(dir.path(), &broker, "");
+    let topic = "lifeledger/alarms/state/SH-TUBE";
+    let creep_state = |v: &serde_json::Value| {
+        v["alarms"].as_array()?.iter().find(|r| r["index"] == "creep_life_fraction")?["state"]
+            .as_str()
+            .map(String::from)
+    };
+    poll_until("the retained unacknowledged state", || {
+        retained_now(broker.port, topic, "retained-before")
+            .filter(|v| creep_state(v).as_deref() == Some("unacknowledged"))
+    });
+    broker.stop();
+    poll_until("the service to notice the broker is gone", || svc.snapshot().filter(|v| v["mqtt_connected"] == false));
+    let r = http::request(
+        svc.http_port,
+        "POST",
+        "/api/alarms/command",
+        &[("Authorization", &format!("Bearer {TOKEN}"))],
+        br#"{"action":"acknowledge","component":"SH-TUBE","by":"shift engineer"}"#,
+    )
+    .unwrap();
+    assert_eq!(r.status, 200, "{}", r.text());
+    // The broker comes back with its old retained message.
+    broker.restart();
+    svc.wait_connected();
+    let state = poll_until("the retained state to show the acknowledge", || {
+        retained_now(broker.port, topic, "retained-after").filter(|v| creep_state(v).as_deref() == Some("acknowledged"))
+    });
+    // Equal to the ledger's: the snapshot's record of the same alarm.
+    let snap = svc.snapshot().unwrap();
+    let tube = snap["alarms"].as_array().unwrap().iter().find(|a| a["component"] == "SH-TUBE").unwrap().clone();
+    assert_eq!(creep_state(&tube), creep_state(&state));
     assert!(svc.sigterm().success());
 }

@@ -4,15 +4,29 @@
 //! {"action":"acknowledge","component":"U2-SH3-OUTLET-LEG-A","index":"creep_life_fraction","by":"operator 7"}
 //! {"action":"shelve","component":"U2-SH3-OUTLET-LEG-A","index":"creep_life_fraction","duration_h":8,"by":"operator 7","reason":"thermocouple replacement"}
 //! {"action":"unshelve","component":"U2-SH3-OUTLET-LEG-A","by":"operator 7"}
+//! {"action":"remove_from_service","tag":"U2.SH3.TE-311B","duration_h":1000,"by":"I&C","reason":"thermocouple replaced at the outage"}
+//! {"action":"return_to_service","tag":"U2.SH3.TE-311B","by":"I&C"}
 //! ```
+//!
+//! An optional `id` (a string) is echoed in the reply on the MQTT reply
+//! topic (see `service::command_reply`).
 //!
 //! Over MQTT a command must also carry the operator token in a `token`
 //! field (see [`carries_token`]); the field is allowed in every action and
 //! never part of the parsed command. Over HTTP the token goes in the
 //! `Authorization` header instead.
 //!
-//! `component` may also be a full key (`component/index`); leaving out
-//! `index` (or giving null) addresses every alarm of the component. `by` is
+//! ```json
+//! {"action":"acknowledge","tag":"U2.SH3.PT-301","by":"operator 7"}
+//! {"action":"acknowledge","unit":"U2","by":"operator 7"}
+//! {"action":"acknowledge","all":true,"by":"operator 7"}
+//! ```
+//!
+//! A command names exactly one target: `component` (its own alarms and the
+//! sensor alarms of the tags it reads; also a full key `component/index`),
+//! `tag` (that tag's sensor alarms), `unit` (every alarm of a plant unit)
+//! or `"all": true`. Leaving out `index` (or giving null) addresses every
+//! alarm of the target. `by` is
 //! required (ISA-18.2 asks who acknowledged or shelved), and a shelve needs
 //! a `reason` and a `duration_h` of at most [`MAX_SHELVE_H`]. Unknown
 //! fields are rejected rather than ignored: a misspelt `duration_h` must not
@@ -23,21 +37,73 @@ use super::index::AlarmIndex;
 use super::AlarmError;
 use serde_json::{Map, Value};
 
+/// How a command's target names its alarms.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Scope {
+    /// A component (its own alarms and the sensor alarms of the tags it
+    /// reads), or a full `component/index` key.
+    #[default]
+    Component,
+    /// A tag's sensor alarms.
+    Tag,
+    /// Every alarm of a plant unit.
+    Unit,
+    /// Every alarm of the plant.
+    All,
+}
+
+impl Scope {
+    /// The command field that names this scope.
+    pub fn field(self) -> &'static str {
+        match self {
+            Scope::Component => "component",
+            Scope::Tag => "tag",
+            Scope::Unit => "unit",
+            Scope::All => "all",
+        }
+    }
+}
+
 /// Which alarms a command addresses.
 #[derive(Debug, Clone, PartialEq)]
 pub struct AlarmTarget {
-    /// A component name, or a full `component/index` key.
+    /// The name addressed: a component name or a full `component/index`
+    /// key ([`Scope::Component`]), a tag name, a unit name; empty for
+    /// [`Scope::All`].
     pub component: String,
-    /// `None`: every alarm of the component.
+    /// `None`: every alarm of the target.
     pub index: Option<AlarmIndex>,
+    pub scope: Scope,
 }
 
 /// One operator command.
 #[derive(Debug, Clone, PartialEq)]
 pub enum AlarmCommand {
-    Acknowledge { target: AlarmTarget, by: String },
-    Shelve { target: AlarmTarget, duration_h: f64, by: String, reason: String },
-    Unshelve { target: AlarmTarget, by: String },
+    Acknowledge {
+        target: AlarmTarget,
+        by: String,
+    },
+    Shelve {
+        target: AlarmTarget,
+        duration_h: f64,
+        by: String,
+        reason: String,
+    },
+    Unshelve {
+        target: AlarmTarget,
+        by: String,
+    },
+    /// Out of service for a repair, with who, why and until when.
+    RemoveFromService {
+        target: AlarmTarget,
+        duration_h: f64,
+        by: String,
+        reason: String,
+    },
+    ReturnToService {
+        target: AlarmTarget,
+        by: String,
+    },
 }
 
 impl AlarmCommand {
@@ -46,7 +112,9 @@ impl AlarmCommand {
         match self {
             AlarmCommand::Acknowledge { by, .. }
             | AlarmCommand::Shelve { by, .. }
-            | AlarmCommand::Unshelve { by, .. } => by,
+            | AlarmCommand::Unshelve { by, .. }
+            | AlarmCommand::RemoveFromService { by, .. }
+            | AlarmCommand::ReturnToService { by, .. } => by,
         }
     }
 
@@ -55,7 +123,9 @@ impl AlarmCommand {
         match self {
             AlarmCommand::Acknowledge { target, .. }
             | AlarmCommand::Shelve { target, .. }
-            | AlarmCommand::Unshelve { target, .. } => target,
+            | AlarmCommand::Unshelve { target, .. }
+            | AlarmCommand::RemoveFromService { target, .. }
+            | AlarmCommand::ReturnToService { target, .. } => target,
         }
     }
 }
@@ -122,16 +192,45 @@ pub fn parse_command(json: &[u8]) -> Result<AlarmCommand, AlarmError> {
     };
     let action = text(&o, "action")?;
     let allowed: &[&str] = match action.as_str() {
-        "acknowledge" | "unshelve" => &["action", "component", "index", "by", "token"],
-        "shelve" => &["action", "component", "index", "by", "duration_h", "reason", "token"],
+        "acknowledge" | "unshelve" | "return_to_service" => {
+            &["action", "component", "tag", "unit", "all", "index", "by", "token", "id"]
+        }
+        "shelve" | "remove_from_service" => {
+            &["action", "component", "tag", "unit", "all", "index", "by", "duration_h", "reason", "token", "id"]
+        }
         other => {
-            return Err(bad("action", format!("unknown action \"{other}\"; expected acknowledge, shelve or unshelve")))
+            return Err(bad(
+                "action",
+                format!(
+                    "unknown action \"{other}\"; expected acknowledge, shelve, unshelve, remove_from_service or \
+                     return_to_service"
+                ),
+            ))
         }
     };
     if let Some(k) = o.keys().find(|k| !allowed.contains(&k.as_str())) {
         return Err(bad(k, format!("is not a field of {action}; its fields are {}", allowed.join(", "))));
     }
-    let component = text(&o, "component")?;
+    let named: Vec<Scope> = [Scope::Component, Scope::Tag, Scope::Unit, Scope::All]
+        .into_iter()
+        .filter(|sc| !matches!(o.get(sc.field()), None | Some(Value::Null)))
+        .collect();
+    let scope = match named.as_slice() {
+        [one] => *one,
+        [] => return Err(bad("component", "is missing: name a component, a tag, a unit, or give \"all\": true")),
+        _ => {
+            let f: Vec<&str> = named.iter().map(|s| s.field()).collect();
+            return Err(bad(f[1], format!("goes with none of {}: a command names one target", f.join(", "))));
+        }
+    };
+    let component = match scope {
+        Scope::All => match o.get("all") {
+            Some(Value::Bool(true)) => String::new(),
+            Some(v) => return Err(bad("all", format!("must be true to address every alarm, got {v}"))),
+            None => unreachable!("scope from a present field"),
+        },
+        _ => text(&o, scope.field())?,
+    };
     let index = match o.get("index") {
         None | Some(Value::Null) => None,
         Some(Value::String(s)) => Some(AlarmIndex::from_name(s.trim()).ok_or_else(|| {
@@ -141,26 +240,36 @@ pub fn parse_command(json: &[u8]) -> Result<AlarmCommand, AlarmError> {
         Some(v) => return Err(bad("index", format!("must be a string, got {}", kind(v)))),
     };
     let by = text(&o, "by")?;
-    let target = AlarmTarget { component, index };
+    let target = AlarmTarget { component, index, scope };
     Ok(match action.as_str() {
         "acknowledge" => AlarmCommand::Acknowledge { target, by },
         "unshelve" => AlarmCommand::Unshelve { target, by },
+        "return_to_service" => AlarmCommand::ReturnToService { target, by },
         _ => {
+            let (what, max_h) = if action == "shelve" {
+                ("a shelve", MAX_SHELVE_H)
+            } else {
+                ("removing from service", super::book::MAX_OUT_OF_SERVICE_H)
+            };
             let duration_h = match o.get("duration_h") {
                 None | Some(Value::Null) => {
-                    return Err(bad("duration_h", "is missing: a shelve needs a duration in hours"))
+                    return Err(bad("duration_h", format!("is missing: {what} needs a duration in hours")))
                 }
                 Some(Value::Number(n)) => n.as_f64().unwrap_or(f64::NAN),
                 Some(v) => return Err(bad("duration_h", format!("must be a number of hours, got {}", kind(v)))),
             };
-            if !(duration_h > 0.0 && duration_h <= MAX_SHELVE_H) {
+            if !(duration_h > 0.0 && duration_h <= max_h) {
                 return Err(bad(
                     "duration_h",
-                    format!("must be more than 0 and at most {MAX_SHELVE_H} hours, got {duration_h}"),
+                    format!("must be more than 0 and at most {max_h} hours, got {duration_h}"),
                 ));
             }
             let reason = text(&o, "reason")?;
-            AlarmCommand::Shelve { target, duration_h, by, reason }
+            if action == "shelve" {
+                AlarmCommand::Shelve { target, duration_h, by, reason }
+            } else {
+                AlarmCommand::RemoveFromService { target, duration_h, by, reason }
+            }
         }
     })
 }
@@ -181,7 +290,8 @@ mod tests {
             AlarmCommand::Acknowledge {
                 target: AlarmTarget {
                     component: "U2-SH3-OUTLET-LEG-A".into(),
-                    index: Some(AlarmIndex::CreepLifeFraction)
+                    index: Some(AlarmIndex::CreepLifeFraction),
+                    scope: Scope::Component,
                 },
                 by: "operator 7".into()
             }
@@ -190,7 +300,11 @@ mod tests {
         assert_eq!(
             s,
             AlarmCommand::Shelve {
-                target: AlarmTarget { component: "C".into(), index: Some(AlarmIndex::SensorStale) },
+                target: AlarmTarget {
+                    component: "C".into(),
+                    index: Some(AlarmIndex::SensorStale),
+                    scope: Scope::Component
+                },
                 duration_h: 8.0,
                 by: "op".into(),
                 reason: "TC swap".into()
@@ -215,6 +329,21 @@ mod tests {
         assert!(!carries_token(cmd("\"\"").as_bytes(), ""), "an empty configured token authorises nothing");
         assert!(tokens_match(b"abc", b"abc") && !tokens_match(b"abc", b"abd") && !tokens_match(b"", b"a"));
         assert!(!tokens_match(b"abcd", b"abc") && !tokens_match(b"ab", b"abc"));
+    }
+
+    #[test]
+    fn a_command_names_a_component_a_tag_a_unit_or_all() {
+        let t = |json: &str| parse_command(json.as_bytes()).unwrap().target().clone();
+        let tag = t(r#"{"action":"acknowledge","tag":"PT-301","by":"op"}"#);
+        assert_eq!((tag.scope, tag.component.as_str(), tag.index), (Scope::Tag, "PT-301", None));
+        let unit = t(r#"{"action":"shelve","unit":"U2","by":"op","reason":"outage","duration_h":8}"#);
+        assert_eq!((unit.scope, unit.component.as_str()), (Scope::Unit, "U2"));
+        let all = t(r#"{"action":"acknowledge","all":true,"by":"op"}"#);
+        assert_eq!((all.scope, all.component.as_str()), (Scope::All, ""));
+        assert!(err(r#"{"action":"acknowledge","all":false,"by":"op"}"#).contains("\"all\": must be true"));
+        let e = err(r#"{"action":"acknowledge","component":"C","tag":"T","by":"op"}"#);
+        assert!(e.contains("a command names one target"), "{e}");
+        assert!(err(r#"{"action":"acknowledge","tag":"","by":"op"}"#).contains("\"tag\": is empty"));
     }
 
     #[test]

@@ -15,8 +15,12 @@
 //! the instantaneous ones (rates, projections). A pure percentage gives no
 //! band at a level of zero, which is the default over-design level (any
 //! exceedance of the design temperature), so that index has a floor of
-//! 1 K, the order of thermocouple noise. Both are choices of this program,
-//! not of any code; the book's configuration may change them per index.
+//! 5 K, a few times typical thermocouple noise (±1.5 K), so noise around
+//! the design temperature cannot clear and re-raise the alarm. A wider band
+//! keeps the alarm standing longer, never shorter: the conservative side.
+//! Both are choices of this program, not of any code; the book's
+//! configuration may change them per index, and [`super::delay`] adds on-
+//! and off-delays.
 
 use super::index::{AlarmIndex, Direction, Severity};
 use crate::engine::plan::Levels;
@@ -24,8 +28,12 @@ use serde::{Deserialize, Serialize};
 
 /// Default deadband as a fraction of the level.
 pub const DEFAULT_DEADBAND_FRACTION: f64 = 0.02;
-/// Default smallest deadband of the over-design temperature index, K.
-pub const DEFAULT_OVER_DESIGN_DEADBAND_K: f64 = 1.0;
+/// Default smallest deadband of the over-design temperature index, K:
+/// about three times a thermocouple's typical noise of ±1.5 K (common
+/// practice: a deadband of a few times the signal's noise; also the order
+/// of 1 % of a temperature span, the usual starting point for temperature
+/// alarms, ISA-TR18.2.2 / EEMUA 191 from memory).
+pub const DEFAULT_OVER_DESIGN_DEADBAND_K: f64 = 5.0;
 
 /// Deadband of one index.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
@@ -139,9 +147,9 @@ mod tests {
         let od = Levels { advisory: None, warning: Some(0.0), critical: None };
         let db = Deadband::default_for(AlarmIndex::MetalTemperatureOverDesign);
         let up = Direction::HigherIsWorse;
-        assert_eq!(db.width(0.0), 1.0);
+        assert_eq!(db.width(0.0), 5.0);
         assert_eq!(next_severity(up, &od, &db, None, -0.1), None);
-        assert_eq!(next_severity(up, &od, &db, Some(Severity::Warning), -0.9), Some(Severity::Warning));
-        assert_eq!(next_severity(up, &od, &db, Some(Severity::Warning), -1.1), None);
+        assert_eq!(next_severity(up, &od, &db, Some(Severity::Warning), -4.9), Some(Severity::Warning));
+        assert_eq!(next_severity(up, &od, &db, Some(Severity::Warning), -5.1), None);
     }
 }

@@ -33,6 +33,16 @@ pub enum Transition {
     Unshelved,
     /// The shelve time ran out.
     ShelveExpired,
+    /// A person removed the alarm from service.
+    RemovedFromService,
+    /// Back in service, by command or because its end was reached.
+    ReturnedToService,
+    /// A plant state began to suppress the alarm (emitted for an alarm that
+    /// was not normal; a normal one is suppressed silently).
+    Suppressed,
+    /// The plant state ended; emitted when the condition is active (the
+    /// alarm is annunciated now) or the alarm was not normal.
+    Unsuppressed,
 }
 
 impl Transition {
@@ -47,6 +57,10 @@ impl Transition {
             Transition::Shelved => "shelved",
             Transition::Unshelved => "unshelved",
             Transition::ShelveExpired => "shelve_expired",
+            Transition::RemovedFromService => "removed_from_service",
+            Transition::ReturnedToService => "returned_to_service",
+            Transition::Suppressed => "suppressed",
+            Transition::Unsuppressed => "unsuppressed",
         }
     }
 }
@@ -54,6 +68,11 @@ impl Transition {
 /// One alarm event.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct AlarmEvent {
+    /// Durable sequence number, one more than the event before it (given
+    /// by the service when the event is committed; consumers detect a
+    /// missed event by a gap).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub seq: Option<u64>,
     pub component: String,
     pub unit: String,
     pub index: AlarmIndex,
@@ -81,6 +100,14 @@ pub struct AlarmEvent {
     pub shelved_until: Option<String>,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub detail: Option<String>,
+    /// For a sensor alarm (`component` is then the tag): the components
+    /// whose ledgers read the tag.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub affects: Vec<String>,
+    /// Class, consequence, corrective action, time to respond and
+    /// priority of the alarm (absent in events recorded before them).
+    #[serde(default, skip_serializing_if = "Option::is_none", flatten)]
+    pub rationale: Option<super::rational::Rationale>,
     /// Always this build's [`crate::CAUTION`], also for an event read back
     /// from the journal.
     #[serde(skip_deserializing, default = "caution")]
@@ -102,6 +129,7 @@ impl AlarmEvent {
         message: String,
     ) -> AlarmEvent {
         AlarmEvent {
+            seq: None,
             component: rec.component.clone(),
             unit: rec.unit.clone(),
             index: rec.index,
@@ -117,6 +145,8 @@ impl AlarmEvent {
             reason: None,
             shelved_until: None,
             detail: rec.detail.clone(),
+            affects: rec.affects.clone(),
+            rationale: rec.rationale.clone(),
             caution: crate::CAUTION,
         }
     }
@@ -132,7 +162,10 @@ impl AlarmEvent {
     }
 
     /// The `alarm_event` database point: tags plant, unit, component,
-    /// index, severity, state; fields value, threshold, message, transition.
+    /// index, severity, state, class, priority; fields value, threshold,
+    /// message, transition, consequence, corrective_action,
+    /// time_to_respond_min and, for a sensor alarm, `affects` (component
+    /// names, comma-separated).
     pub fn to_point(&self, plant: &str) -> Point {
         let mut p = Point::new("alarm_event", self.time_ms.saturating_mul(1_000_000))
             .tag("plant", plant)
@@ -147,6 +180,31 @@ impl AlarmEvent {
         if let Some(t) = self.threshold {
             p = p.float("threshold", t);
         }
-        p.string("message", &self.message).string("transition", self.transition.name())
+        p = p.string("message", &self.message).string("transition", self.transition.name());
+        if let Some(n) = self.seq {
+            p = p.int("seq", n as i64);
+        }
+        if let Some(r) = &self.rationale {
+            p = p
+                .tag("class", r.class.name())
+                .tag("priority", r.priority.name())
+                .string("consequence", consequence_name(r.consequence))
+                .string("corrective_action", &r.corrective_action)
+                .float("time_to_respond_min", r.time_to_respond_min);
+        }
+        if !self.affects.is_empty() {
+            p = p.string("affects", &self.affects.join(","));
+        }
+        p
+    }
+}
+
+fn consequence_name(c: super::rational::Consequence) -> &'static str {
+    use super::rational::Consequence::*;
+    match c {
+        Minor => "minor",
+        Moderate => "moderate",
+        Major => "major",
+        Severe => "severe",
     }
 }

@@ -167,6 +167,12 @@ impl AlarmIndex {
         )
     }
 
+    /// Whether the index is a sensor fault, alarmed once per tag (not per
+    /// component reading the tag).
+    pub fn is_sensor(self) -> bool {
+        matches!(self, AlarmIndex::SensorStale | AlarmIndex::SensorOutOfRange | AlarmIndex::SensorBadQuality)
+    }
+
     /// A value of this index as people read it: strain in percent,
     /// temperatures in K, rates per hour, projections in hours.
     pub fn display(self, value: f64) -> String {

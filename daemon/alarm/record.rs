@@ -1,4 +1,5 @@
-//! One alarm's durable record: its ISA-18.2 state, what its condition
+//! One alarm's durable record (a component's index, or a tag's sensor
+//! fault): its ISA-18.2 state, what its condition
 //! implies now, and who acknowledged or shelved it.
 //!
 //! The record keeps two things apart: `condition`, what the latest value
@@ -24,6 +25,15 @@ pub enum AlarmState {
     RtnUnacknowledged,
     /// Suppressed by an operator until a time or until unshelved.
     Shelved,
+    /// Condition active on an engineering alert: delivered and recorded,
+    /// no acknowledge asked, not on the operator's console.
+    Alert,
+    /// Removed from service (maintenance, repair) by a person, with a
+    /// reason and an end: followed silently.
+    OutOfService,
+    /// Suppressed by design while a plant state holds (for example the
+    /// unit offline): followed, its changes recorded, not annunciated.
+    Suppressed,
 }
 
 impl AlarmState {
@@ -35,7 +45,16 @@ impl AlarmState {
             AlarmState::Acknowledged => "acknowledged",
             AlarmState::RtnUnacknowledged => "rtn_unacknowledged",
             AlarmState::Shelved => "shelved",
+            AlarmState::Alert => "alert",
+            AlarmState::OutOfService => "out_of_service",
+            AlarmState::Suppressed => "suppressed",
         }
+    }
+
+    /// Whether the alarm is held silent (shelved, out of service or
+    /// suppressed): its condition is followed, nothing is annunciated.
+    pub fn is_held(self) -> bool {
+        matches!(self, AlarmState::Shelved | AlarmState::OutOfService | AlarmState::Suppressed)
     }
 
     /// Whether an operator still has to acknowledge.
@@ -85,6 +104,23 @@ pub struct AlarmRecord {
     pub acknowledged_ms: Option<i64>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub shelve: Option<Shelve>,
+    /// For a sensor alarm (one per tag: `component` is then the tag's
+    /// name): the components whose ledgers read the tag, sorted. Empty for
+    /// a component's own alarms.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub affects: Vec<String>,
+    /// A change of condition waiting for its on- or off-delay.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pending: Option<super::delay::Pending>,
+    /// Class, consequence, corrective action, time to respond, priority.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub rationale: Option<super::rational::Rationale>,
+    /// Who removed it from service, why and until when.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub out_of_service: Option<Shelve>,
+    /// The plant state suppressing it.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub suppressed_by: Option<String>,
 }
 
 impl AlarmRecord {
@@ -105,6 +141,11 @@ impl AlarmRecord {
             acknowledged_by: None,
             acknowledged_ms: None,
             shelve: None,
+            affects: vec![],
+            pending: None,
+            rationale: None,
+            out_of_service: None,
+            suppressed_by: None,
         }
     }
 
@@ -116,6 +157,29 @@ impl AlarmRecord {
     /// Whether the condition is active.
     pub fn is_active(&self) -> bool {
         self.condition.is_some()
+    }
+
+    /// Whether the alarm latches: once active it asks for an acknowledge
+    /// after it clears, even if acknowledged while active.
+    pub fn is_latching(&self) -> bool {
+        self.rationale.as_ref().is_some_and(|r| r.latching)
+    }
+
+    /// Whether the record is an engineering alert (no acknowledge asked).
+    pub fn is_engineering(&self) -> bool {
+        self.rationale.as_ref().is_some_and(|r| r.class == super::rational::AlarmClass::Engineering)
+    }
+
+    /// Whether this record concerns `component`: its own alarm, or a
+    /// sensor alarm of a tag the component reads.
+    pub fn concerns(&self, component: &str) -> bool {
+        self.component == component || self.affects.iter().any(|c| c == component)
+    }
+
+    /// Whether this record belongs to plant unit `unit` (a sensor alarm
+    /// belongs to every unit of the components it affects).
+    pub fn in_unit(&self, unit: &str) -> bool {
+        self.unit.split(',').any(|u| u == unit)
     }
 }
 

@@ -12,6 +12,30 @@ const U: &str = "U2";
 const LF: AlarmIndex = AlarmIndex::CreepLifeFraction;
 const H: i64 = 3_600_000;
 
+/// Every index an operator alarm: the ISA-18.2 state machine as the
+/// tests specify it (engineering alerts have their own tests).
+fn operator_classes() -> std::collections::BTreeMap<AlarmIndex, RationaleSettings> {
+    AlarmIndex::ALL
+        .into_iter()
+        .map(|i| (i, RationaleSettings { class: Some(AlarmClass::Operator), ..Default::default() }))
+        .collect()
+}
+
+/// A book of operator alarms with the default delays.
+fn book() -> AlarmBook {
+    AlarmBook::new().with_config(AlarmConfig { rationale: operator_classes(), ..AlarmConfig::default() })
+}
+
+/// The same without on- or off-delays: the tests that specify the state
+/// machine step by step (delays have their own tests).
+fn undelayed() -> AlarmBook {
+    AlarmBook::new().with_config(AlarmConfig {
+        delays: AlarmIndex::ALL.into_iter().map(|i| (i, Delay::NONE)).collect(),
+        rationale: operator_classes(),
+        ..AlarmConfig::default()
+    })
+}
+
 fn lf(book: &mut AlarmBook, value: f64, t: i64) -> Vec<AlarmEvent> {
     book.evaluate(C, U, LF, value, &DEFAULT_LIFE_FRACTION, t)
 }
@@ -27,7 +51,7 @@ fn one(events: Vec<AlarmEvent>) -> AlarmEvent {
 
 #[test]
 fn normal_to_unacknowledged_when_the_condition_becomes_active() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     assert!(lf(&mut b, 0.2, 0).is_empty());
     assert_eq!(state(&b), AlarmState::Normal);
     let e = one(lf(&mut b, 0.35, H));
@@ -35,7 +59,7 @@ fn normal_to_unacknowledged_when_the_condition_becomes_active() {
         (e.transition, e.severity, e.state),
         (Transition::Activated, Some(Severity::Advisory), AlarmState::Unacknowledged)
     );
-    let mut b = AlarmBook::new();
+    let mut b = book();
     let e = one(lf(&mut b, 0.512, H));
     assert_eq!(e.message, "U2-SH3-OUTLET-LEG-A creep life fraction 0.512 reached the warning level 0.5");
     assert_eq!((e.value, e.threshold), (Some(0.512), Some(0.5)));
@@ -47,7 +71,7 @@ fn normal_to_unacknowledged_when_the_condition_becomes_active() {
 
 #[test]
 fn acknowledge_then_clear_goes_back_to_normal() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     lf(&mut b, 0.55, 0);
     let e = one(b.acknowledge(C, Some(LF), "operator 7", H).unwrap());
     assert_eq!(
@@ -70,7 +94,7 @@ fn acknowledge_then_clear_goes_back_to_normal() {
 
 #[test]
 fn clearing_unacknowledged_waits_for_an_acknowledge() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     lf(&mut b, 0.55, 0);
     let e = one(lf(&mut b, 0.1, H));
     assert_eq!((e.transition, e.state), (Transition::Cleared, AlarmState::RtnUnacknowledged));
@@ -86,7 +110,7 @@ fn clearing_unacknowledged_waits_for_an_acknowledge() {
 
 #[test]
 fn returned_to_normal_reactivates_to_unacknowledged() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     lf(&mut b, 0.35, 0);
     lf(&mut b, 0.1, H);
     assert_eq!(state(&b), AlarmState::RtnUnacknowledged);
@@ -96,7 +120,7 @@ fn returned_to_normal_reactivates_to_unacknowledged() {
 
 #[test]
 fn escalation_reenters_unacknowledged() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     lf(&mut b, 0.51, 0);
     b.acknowledge(C, Some(LF), "op", H).unwrap();
     let e = one(lf(&mut b, 0.71, 2 * H));
@@ -108,7 +132,7 @@ fn escalation_reenters_unacknowledged() {
     let r = b.record(&format!("{C}/creep_life_fraction")).unwrap();
     assert_eq!(r.acknowledged_by, None);
     // Straight from unacknowledged too, skipping a level.
-    let mut b = AlarmBook::new();
+    let mut b = book();
     lf(&mut b, 0.31, 0);
     let e = one(lf(&mut b, 0.8, H));
     assert_eq!((e.transition, e.severity), (Transition::Escalated, Some(Severity::Critical)));
@@ -116,7 +140,7 @@ fn escalation_reenters_unacknowledged() {
 
 #[test]
 fn stepping_down_keeps_the_acknowledge() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     lf(&mut b, 0.75, 0);
     b.acknowledge(C, Some(LF), "op", H).unwrap();
     let e = one(lf(&mut b, 0.6, 2 * H));
@@ -133,7 +157,7 @@ fn stepping_down_keeps_the_acknowledge() {
 
 #[test]
 fn deadband_stops_chattering() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     // Around the warning level 0.5, inside its 0.01 band once reached.
     let seq = [0.49, 0.501, 0.497, 0.502, 0.4915, 0.5, 0.495, 0.503, 0.492, 0.499];
     let n: usize = seq.iter().enumerate().map(|(k, &v)| lf(&mut b, v, k as i64 * H).len()).sum();
@@ -143,9 +167,9 @@ fn deadband_stops_chattering() {
     assert_eq!(one(lf(&mut b, 0.489, 20 * H)).transition, Transition::SteppedDown);
     assert_eq!(one(lf(&mut b, 0.5, 21 * H)).transition, Transition::Escalated);
     // Without a band every crossing would be an event.
-    let mut b = AlarmBook::new().with_config(AlarmConfig {
+    let mut b = book().with_config(AlarmConfig {
         deadbands: [(LF, Deadband { fraction: 0.0, minimum: 0.0 })].into(),
-        ..AlarmConfig::default()
+        ..book().config().clone()
     });
     let n: usize = seq.iter().enumerate().map(|(k, &v)| lf(&mut b, v, k as i64 * H).len()).sum();
     assert_eq!(n, 9);
@@ -153,7 +177,7 @@ fn deadband_stops_chattering() {
 
 #[test]
 fn hours_to_critical_is_lower_is_worse() {
-    let mut b = AlarmBook::new();
+    let mut b = undelayed();
     let idx = AlarmIndex::HoursToCritical;
     let mut ev = |v: f64, t: i64| b.evaluate(C, U, idx, v, &DEFAULT_HOURS_TO_CRITICAL, t);
     assert!(ev(30_000.0, 0).is_empty());
@@ -179,7 +203,7 @@ fn hours_to_critical_is_lower_is_worse() {
 
 #[test]
 fn shelving_suppresses_and_expiry_restores() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     lf(&mut b, 0.51, 0);
     b.acknowledge(C, Some(LF), "op", H).unwrap();
     let e = one(b.shelve(C, Some(LF), 9 * H, "op", "thermocouple swap", H).unwrap());
@@ -207,7 +231,7 @@ fn shelving_suppresses_and_expiry_restores() {
 
 #[test]
 fn shelve_expiry_of_a_clear_alarm_is_normal_and_evaluation_expires_too() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     lf(&mut b, 0.51, 0);
     b.shelve(C, None, 2 * H, "op", "r", 0).unwrap();
     assert!(lf(&mut b, 0.1, H).is_empty());
@@ -220,7 +244,7 @@ fn shelve_expiry_of_a_clear_alarm_is_normal_and_evaluation_expires_too() {
 
 #[test]
 fn unshelve_by_command() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     lf(&mut b, 0.31, 0);
     b.shelve(&format!("{C}/creep_life_fraction"), None, 5 * H, "op", "r", 0).unwrap();
     let e = one(b.unshelve(C, Some(LF), "op 2", H).unwrap());
@@ -242,7 +266,7 @@ fn unshelve_by_command() {
 
 #[test]
 fn shelve_window_is_checked() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     lf(&mut b, 0.31, 0);
     let e = b.shelve(C, Some(LF), H, "op", "r", H).unwrap_err();
     assert!(matches!(e, AlarmError::ShelveNotAhead { .. }), "{e}");
@@ -252,7 +276,7 @@ fn shelve_window_is_checked() {
 
 #[test]
 fn unknown_alarms_are_errors_that_name_them() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     lf(&mut b, 0.1, 0);
     let e = b.acknowledge(C, Some(AlarmIndex::WearIndex), "op", 0).unwrap_err().to_string();
     assert!(
@@ -269,7 +293,7 @@ fn unknown_alarms_are_errors_that_name_them() {
 
 #[test]
 fn nan_changes_nothing() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     lf(&mut b, 0.51, 0);
     assert!(lf(&mut b, f64::NAN, H).is_empty());
     assert_eq!(b.record(&format!("{C}/creep_life_fraction")).unwrap().value, 0.51);
@@ -277,7 +301,7 @@ fn nan_changes_nothing() {
 
 #[test]
 fn conditions_follow_the_same_states() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     let idx = AlarmIndex::SensorStale;
     assert!(b.evaluate_condition(C, U, idx, false, "", 0).is_empty());
     let e = one(b.evaluate_condition(C, U, idx, true, "tag TT-301 has had no sample for 20 min", H));
@@ -297,7 +321,7 @@ fn book_round_trips_through_json_and_records() {
         deadbands: [(AlarmIndex::HoursToCritical, Deadband { fraction: 0.05, minimum: 24.0 })].into(),
         ..AlarmConfig::default()
     };
-    let mut b = AlarmBook::new().with_config(config.clone());
+    let mut b = book().with_config(config.clone());
     lf(&mut b, 0.75, 0);
     b.acknowledge(C, Some(LF), "op", H).unwrap();
     b.evaluate(C, U, AlarmIndex::HoursToCritical, f64::INFINITY, &DEFAULT_HOURS_TO_CRITICAL, H);
@@ -322,7 +346,7 @@ fn book_round_trips_through_json_and_records() {
 
 #[test]
 fn summary_of_a_component() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     lf(&mut b, 0.55, 0);
     b.evaluate_condition(C, U, AlarmIndex::SensorStale, true, "TT", 0);
     b.evaluate(
@@ -348,7 +372,7 @@ fn summary_of_a_component() {
 
 #[test]
 fn commands_drive_the_book() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     lf(&mut b, 0.55, 0);
     let cmd = parse_command(br#"{"action":"shelve","component":"U2-SH3-OUTLET-LEG-A","index":"creep_life_fraction","duration_h":8,"by":"operator 7","reason":"probe swap"}"#).unwrap();
     let e = one(b.apply(&cmd, H).unwrap());
@@ -369,7 +393,7 @@ fn commands_drive_the_book() {
 
 /// Events of all eight transitions, from one alarm's life.
 fn every_kind_of_event() -> Vec<AlarmEvent> {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     let mut all = vec![];
     all.extend(lf(&mut b, 0.35, 0));
     all.extend(lf(&mut b, 0.75, H));
@@ -409,7 +433,7 @@ fn events_read_back_from_their_json_are_the_same_events() {
 
 #[test]
 fn event_as_a_database_point() {
-    let mut b = AlarmBook::new();
+    let mut b = book();
     let e = one(lf(&mut b, 0.512, 1_700_000_000_000));
     let p = e.to_point("North Works");
     assert_eq!(p.measurement, "alarm_event");
@@ -423,7 +447,11 @@ fn event_as_a_database_point() {
             ("component", C),
             ("index", "creep_life_fraction"),
             ("severity", "warning"),
-            ("state", "unacknowledged")
+            ("state", "unacknowledged"),
+            // Life fraction made an operator alarm by `book()`; consequence
+            // major, a week to respond: medium by the matrix.
+            ("class", "operator"),
+            ("priority", "medium")
         ]
     );
     let line = p.to_line().unwrap();
@@ -438,7 +466,7 @@ fn component_evaluation_runs_the_indices_that_apply() {
     let plan = plan_settings("test", toml::from_str(CONFIG).unwrap()).unwrap().plan;
     let tube = plan.components.iter().find(|c| c.name == "TUBE").unwrap();
     let support = plan.components.iter().find(|c| c.name == "SUPPORT").unwrap();
-    let mut b = AlarmBook::new();
+    let mut b = undelayed();
 
     let mut st = ComponentState::new(tube);
     st.integrated_to_ms = Some(0);
@@ -485,9 +513,9 @@ fn component_evaluation_runs_the_indices_that_apply() {
     assert!(b.record("SUPPORT/creep_life_fraction").is_none());
 
     // Book-wide damage-rate levels switch that index on.
-    let mut b = AlarmBook::new().with_config(AlarmConfig {
+    let mut b = book().with_config(AlarmConfig {
         damage_rate: Levels { advisory: None, warning: Some(1e-5), critical: None },
-        ..AlarmConfig::default()
+        ..undelayed().config().clone()
     });
     let mut st = ComponentState::new(tube);
     st.recent_life_fraction_rate_per_h = 2e-5;
@@ -521,7 +549,7 @@ fn hours_to_critical_while_settling_uses_the_larger_design_rate() {
     st.recent_life_fraction_rate_per_h = 1e-9;
     st.recent_weight = 1.0 - (-10.0f64 / 720.0).exp();
     st.recent_window_h = 10.0;
-    let mut b = AlarmBook::new();
+    let mut b = book();
     b.evaluate_component(tube, &st, H);
     let hours = b.record("TUBE/hours_to_critical").unwrap().value;
     let want = (0.7 - 0.55) * life_h;
@@ -540,7 +568,7 @@ fn hours_to_critical_while_settling_uses_the_larger_design_rate() {
 #[test]
 fn a_configured_shelve_limit_is_enforced_and_never_above_the_ceiling() {
     assert_eq!(AlarmConfig::default().max_shelve_h, MAX_SHELVE_H, "default: the ceiling, 720 h");
-    let mut b = AlarmBook::new().with_config(AlarmConfig { max_shelve_h: 24.0, ..AlarmConfig::default() });
+    let mut b = book().with_config(AlarmConfig { max_shelve_h: 24.0, ..book().config().clone() });
     lf(&mut b, 0.4, 0);
     let e = b.shelve(C, Some(LF), 25 * H, "op", "r", 0).unwrap_err();
     assert!(matches!(e, AlarmError::ShelveTooLong { max_h, .. } if max_h == 24.0), "{e}");
@@ -553,7 +581,174 @@ fn a_configured_shelve_limit_is_enforced_and_never_above_the_ceiling() {
     b.shelve(C, Some(LF), 24 * H, "op", "r", 0).unwrap();
     assert_eq!(b.current(C).shelved, 1);
     // A configured value above the ceiling does not lengthen it.
-    let mut b = AlarmBook::new().with_config(AlarmConfig { max_shelve_h: 10_000.0, ..AlarmConfig::default() });
+    let mut b = book().with_config(AlarmConfig { max_shelve_h: 10_000.0, ..book().config().clone() });
     lf(&mut b, 0.4, 0);
     assert!(b.shelve(C, Some(LF), 721 * H, "op", "r", 0).is_err());
+}
+
+#[test]
+fn sensor_alarms_are_per_tag_and_acknowledged_by_tag_component_unit_or_all() {
+    let mut b = book();
+    let affects = vec!["A".to_string(), "B".to_string(), "C".to_string()];
+    let ev = b.evaluate_sensor("PT-1", "U1,U2", &affects, AlarmIndex::SensorStale, true, "tag PT-1 silent", 0);
+    assert_eq!(one(ev).component, "PT-1");
+    b.evaluate("A", "U1", LF, 0.55, &DEFAULT_LIFE_FRACTION, 0);
+    b.evaluate("D", "U3", LF, 0.55, &DEFAULT_LIFE_FRACTION, 0);
+    // Every component it affects shows it; one record only.
+    for c in ["A", "B", "C"] {
+        assert!(b.current(c).alarms.iter().any(|r| r.component == "PT-1"), "{c}");
+    }
+    assert_eq!(b.records().filter(|r| r.index == AlarmIndex::SensorStale).count(), 1);
+    let cmd = |json: &str| parse_command(json.as_bytes()).unwrap();
+    // By component: its own alarms and those of the tags it reads.
+    let ev = b.apply(&cmd(r#"{"action":"acknowledge","component":"B","by":"op 7"}"#), H).unwrap();
+    assert_eq!(one(ev).component, "PT-1");
+    assert_eq!(b.record("PT-1/sensor_stale").unwrap().acknowledged_by.as_deref(), Some("op 7"));
+    // By unit: the tag's alarm belongs to both units of its components.
+    let ev = b.apply(&cmd(r#"{"action":"acknowledge","unit":"U1","by":"op 7"}"#), H).unwrap();
+    assert_eq!(one(ev).key(), "A/creep_life_fraction");
+    assert!(matches!(
+        b.apply(&cmd(r#"{"action":"acknowledge","unit":"U9","by":"op"}"#), H),
+        Err(AlarmError::UnknownUnit { .. })
+    ));
+    assert!(matches!(
+        b.apply(&cmd(r#"{"action":"acknowledge","tag":"A","by":"op"}"#), H),
+        Err(AlarmError::UnknownTag { .. })
+    ));
+    // All: what is left.
+    let ev = b.apply(&cmd(r#"{"action":"acknowledge","all":true,"by":"op 8"}"#), 2 * H).unwrap();
+    assert_eq!(one(ev).key(), "D/creep_life_fraction");
+    assert_eq!(b.summary_of(cmd(r#"{"action":"acknowledge","all":true,"by":"op"}"#).target()).unacknowledged, 0);
+    // By tag, shelving.
+    let ev = b.apply(&cmd(r#"{"action":"shelve","tag":"PT-1","by":"op","reason":"TX swap","duration_h":4}"#), 3 * H);
+    assert_eq!(one(ev.unwrap()).state, AlarmState::Shelved);
+}
+
+/// Uniform noise in [-1, 1] from a fixed linear congruential sequence
+/// (Numerical Recipes' 32-bit constants, from memory), so the test is
+/// repeatable.
+fn noise(n: usize) -> Vec<f64> {
+    let mut x: u32 = 12_345;
+    (0..n)
+        .map(|_| {
+            x = x.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
+            (x as f64 / u32::MAX as f64) * 2.0 - 1.0
+        })
+        .collect()
+}
+
+/// Activations of the over-design alarm for a metal temperature at
+/// `mean_k` from design with ±`amp_k` noise, one sample a second.
+fn over_design_activations(book: &mut AlarmBook, mean_k: f64, amp_k: f64, seconds: usize) -> usize {
+    let levels = Levels { advisory: None, warning: Some(0.0), critical: None };
+    noise(seconds)
+        .into_iter()
+        .enumerate()
+        .map(|(s, n)| {
+            book.evaluate(C, U, AlarmIndex::MetalTemperatureOverDesign, mean_k + amp_k * n, &levels, s as i64 * 1000)
+                .into_iter()
+                .filter(|e| e.transition == Transition::Activated)
+                .count()
+        })
+        .sum()
+}
+
+#[test]
+fn noise_around_the_design_temperature_does_not_chatter_with_the_defaults() {
+    // The scenario measured in issue 11: a tube at design + 0.3 K with
+    // ±1.5 K of thermocouple noise activated 5 times in 180 s. An alarm
+    // that comes and goes with noise is a chattering alarm (common
+    // practice: ISA-18.2 / EEMUA 191 count it as bad performance).
+    let mut b = book();
+    let n = over_design_activations(&mut b, 0.3, 1.5, 180);
+    assert!(n <= 1, "design + 0.3 K: {n} activations in 180 s");
+    // Just below design, noise alone crossing the level is not an
+    // exceedance held for the on-delay: no alarm at all.
+    let mut b = book();
+    let n = over_design_activations(&mut b, -0.3, 1.5, 600);
+    assert_eq!(n, 0, "design - 0.3 K: {n} activations in 600 s");
+    // A real, lasting exceedance still alarms, once.
+    let mut b = book();
+    assert_eq!(over_design_activations(&mut b, 5.0, 1.5, 600), 1);
+}
+
+#[test]
+fn life_fraction_is_an_engineering_alert_that_never_stands_on_the_console() {
+    // Issue 11: life fraction and wear levels can never clear, so as
+    // operator alarms they stood unacknowledged or acknowledged for ever.
+    let mut b = AlarmBook::new();
+    let e = one(b.evaluate(C, U, LF, 0.55, &DEFAULT_LIFE_FRACTION, 0));
+    assert_eq!((e.transition, e.state), (Transition::Activated, AlarmState::Alert));
+    let r = e.rationale.clone().expect("events carry their rationalisation");
+    assert_eq!(r.class, AlarmClass::Engineering);
+    assert!(e.to_json().contains("\"class\":\"engineering\"") && e.to_json().contains("\"priority\":"));
+    let s = b.current(C);
+    assert_eq!((s.active, s.unacknowledged, s.worst_severity), (0, 0, None), "not on the operator's console");
+    assert_eq!((s.alerts, s.worst_alert_severity), (1, Some(Severity::Warning)), "but delivered and recorded");
+    // Nothing to acknowledge; escalation is a new alert, still no acknowledge.
+    assert!(b.acknowledge(C, Some(LF), "op", H).unwrap().is_empty());
+    let e = one(b.evaluate(C, U, LF, 0.75, &DEFAULT_LIFE_FRACTION, 2 * H));
+    assert_eq!((e.transition, e.state), (Transition::Escalated, AlarmState::Alert));
+    // Made an operator alarm by configuration, the record asks for an
+    // acknowledge again (without an event: nothing happened in the plant).
+    let cfg = AlarmConfig { rationale: operator_classes(), ..AlarmConfig::default() };
+    b.set_config(cfg);
+    assert_eq!(state(&b), AlarmState::Unacknowledged);
+    // A record stored unacknowledged by an older version becomes an alert.
+    let stored: Vec<AlarmRecord> = b.records().cloned().collect();
+    let b = AlarmBook::from_records(stored).with_config(AlarmConfig::default());
+    assert_eq!(state(&b), AlarmState::Alert);
+}
+
+#[test]
+fn rationalisation_is_per_index_then_per_component() {
+    let mut cfg = AlarmConfig::default();
+    cfg.rationale
+        .insert(AlarmIndex::SensorStale, RationaleSettings { time_to_respond_min: Some(10.0), ..Default::default() });
+    cfg.component_rationale.insert(
+        "TE-1".into(),
+        [(
+            AlarmIndex::SensorStale,
+            RationaleSettings {
+                consequence: Some(Consequence::Severe),
+                corrective_action: Some("switch to the spare element".into()),
+                ..Default::default()
+            },
+        )]
+        .into(),
+    );
+    let mut b = AlarmBook::new().with_config(cfg);
+    let e = one(b.evaluate_sensor("TE-1", U, &[C.to_string()], AlarmIndex::SensorStale, true, "silent", 0));
+    let r = e.rationale.unwrap();
+    assert_eq!((r.class, r.consequence, r.time_to_respond_min), (AlarmClass::Operator, Consequence::Severe, 10.0));
+    assert_eq!(r.corrective_action, "switch to the spare element");
+    assert_eq!(r.priority, Priority::Urgent, "severe within 15 min, by the matrix");
+    let e = one(b.evaluate_sensor("TE-2", U, &[C.to_string()], AlarmIndex::SensorStale, true, "silent", 0));
+    assert_eq!(e.rationale.unwrap().priority, Priority::Medium, "moderate within 15 min");
+}
+
+#[test]
+fn summaries_at_once_equal_one_by_one() {
+    let mut b = book();
+    let affects = vec!["A".to_string(), "B".to_string()];
+    b.evaluate_sensor("PT-1", "U1", &affects, AlarmIndex::SensorStale, true, "silent", 0);
+    b.evaluate("A", "U1", LF, 0.55, &DEFAULT_LIFE_FRACTION, 0);
+    assert_eq!(b.components(), ["A", "B", "PT-1"], "B is listed: its state shows the tag's alarm");
+    let names = b.components();
+    let together = b.summaries(names.iter().copied());
+    let one_by_one: Vec<ComponentAlarmSummary> = names.iter().map(|c| b.current(c)).collect();
+    assert_eq!(together, one_by_one);
+}
+
+#[test]
+fn journal_events_written_before_rationalisation_still_read() {
+    let old = r#"{"component":"C","unit":"U2","index":"creep_life_fraction","transition":"activated","severity":"warning","state":"unacknowledged","value":0.51,"threshold":0.5,"time":"1970-01-01T00:00:00.000Z","time_ms":0,"message":"m","caution":"x"}"#;
+    let e: AlarmEvent = serde_json::from_str(old).unwrap();
+    assert_eq!((e.seq, e.rationale.is_none(), e.affects.is_empty()), (None, true, true));
+    // And a new one round-trips with everything.
+    let mut b = AlarmBook::new();
+    let mut e = one(b.evaluate_sensor("T", "U", &["C".into()], AlarmIndex::SensorStale, true, "silent", 0));
+    e.seq = Some(7);
+    let back: AlarmEvent = serde_json::from_str(&e.to_json()).unwrap();
+    assert_eq!(back, e);
 }

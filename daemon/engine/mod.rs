@@ -4,7 +4,9 @@
 //!
 //! Rules it keeps (each has a test):
 //! * each tag has a cursor; a sample at or before it is a duplicate or a
-//!   late arrival and is dropped and counted, never integrated;
+//!   late arrival and is dropped and counted, never integrated, and is
+//!   judged so before its value or quality (a redelivered old out-of-range
+//!   sample is late, not a new sensor fault);
 //! * non-finite, out-of-range and bad-quality samples are rejected and
 //!   counted; nothing already accepted changes;
 //! * a sample stamped further ahead of the wall clock than the plan's
@@ -364,6 +366,11 @@ impl Engine {
         self.inputs.of(ci)
     }
 
+    /// Components that read a tag (computed once, when the engine is built).
+    pub fn consumers(&self, ti: usize) -> &[u32] {
+        self.consumers.of(ti)
+    }
+
     /// Tag states, in plan order.
     pub fn tags(&self) -> &[TagState] {
         &self.tags
@@ -426,7 +433,10 @@ impl Engine {
     /// Check a sample against its tag's cursor (duplicate or late).
     #[inline]
     fn screen_cursor(&self, s: &Sample) -> Result<(), Rejection> {
-        match self.tags[s.tag as usize].cursor_ms {
+        let Some(tag) = self.tags.get(s.tag as usize) else {
+            return Err(Rejection::UnknownTag);
+        };
+        match tag.cursor_ms {
             Some(c) if s.time_ms == c => Err(Rejection::Duplicate),
             Some(c) if s.time_ms < c => Err(Rejection::Late),
             _ => Ok(()),
@@ -437,9 +447,10 @@ impl Engine {
     /// clock or the reorder window).
     #[inline]
     pub fn screen(&self, s: &Sample) -> Result<f64, Rejection> {
-        let v = self.screen_value(s)?;
+        // Late or duplicate first: an old sample says nothing new about
+        // the sensor, whatever its value or quality.
         self.screen_cursor(s)?;
-        Ok(v)
+        self.screen_value(s)
     }
 
     /// Whether an event time is plausible at wall-clock time `now_ms`.
@@ -472,21 +483,25 @@ impl Engine {
     /// it; then it is integrated in event-time order. Returns the rejection
     /// reason if it was not taken.
     pub fn offer(&mut self, s: &Sample, now_ms: i64) -> Result<(), Rejection> {
-        let value = match self.screen_value(s) {
+        // Order matters: an implausible time is a clock fault whatever the
+        // cursor says; a late or duplicate sample (a redelivery) is only
+        // that, so it is checked before the value and quality, which would
+        // otherwise report an old sensor fault as a new one.
+        if s.tag as usize >= self.tags.len() {
+            self.counters.count(Rejection::UnknownTag);
+            return Err(Rejection::UnknownTag);
+        }
+        if !self.plausible_time(s.time_ms, now_ms) {
+            self.counters.count(Rejection::ImplausibleTime);
+            return Err(Rejection::ImplausibleTime);
+        }
+        let value = match self.screen_cursor(s).and_then(|()| self.screen_held(s)).and_then(|()| self.screen_value(s)) {
             Ok(v) => v,
             Err(r) => {
                 self.counters.count(r);
                 return Err(r);
             }
         };
-        if !self.plausible_time(s.time_ms, now_ms) {
-            self.counters.count(Rejection::ImplausibleTime);
-            return Err(Rejection::ImplausibleTime);
-        }
-        if let Err(r) = self.screen_cursor(s).and_then(|()| self.screen_held(s)) {
-            self.counters.count(r);
-            return Err(r);
-        }
         self.count_accepted(s.quality);
         let window = self.plan.reorder_window_ms;
         let frontier = self.frontier_ms.map_or(s.time_ms, |f| f.max(s.time_ms));

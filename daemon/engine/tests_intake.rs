@@ -135,6 +135,31 @@ fn beyond_the_window_late_samples_are_counted_not_integrated() {
 }
 
 #[test]
+fn a_redelivered_old_sample_is_late_whatever_its_value() {
+    // Issue 11: range screening ran before the late check, so a broker
+    // redelivering an old out-of-range or bad-quality sample was counted
+    // (and alarmed) as a sensor fault again. A sample at or before the
+    // tag's cursor is late or a duplicate first of all: it says nothing
+    // new about the sensor.
+    let mut e = engine_with("reorder_window_s = 0");
+    for i in 0..=10 {
+        offer(&mut e, "TT", T0 + i * 60_000, 560.0).unwrap();
+    }
+    // 2000 degC is outside TT's valid range [-50, 900].
+    assert_eq!(offer(&mut e, "TT", T0 + 5 * 60_000 + 1, 2000.0), Err(Rejection::Late));
+    assert_eq!(offer(&mut e, "TT", T0 + 10 * 60_000, 2000.0), Err(Rejection::Duplicate));
+    assert_eq!(offer(&mut e, "TT", T0 + 3 * 60_000, f64::NAN), Err(Rejection::Late));
+    let bad = Sample { quality: Quality::Bad, ..sample(&e, "TT", T0 + 4 * 60_000, 560.0) };
+    assert_eq!(e.offer(&bad, NOW), Err(Rejection::Late));
+    assert_eq!(e.ingest(&Sample { value: 2000.0, ..sample(&e, "TT", T0, 0.0) }), Err(Rejection::Late));
+    assert_eq!((e.counters().out_of_range, e.counters().not_finite, e.counters().bad_quality), (0, 0, 0));
+    // A new out-of-range sample is still out of range.
+    assert_eq!(offer(&mut e, "TT", T0 + 11 * 60_000, 2000.0), Err(Rejection::OutOfRange));
+    // A clock reset to 1970 is still an implausible time, not a late sample.
+    assert_eq!(offer(&mut e, "TT", 5_000, 560.0), Err(Rejection::ImplausibleTime));
+}
+
+#[test]
 fn held_samples_survive_export_and_import() {
     // What the ledger store does across a crash: the window is state.
     let n = 300;

@@ -145,6 +145,10 @@ impl MqttSettings {
     pub fn command_topic(&self) -> String {
         format!("{}/commands", self.topic_prefix)
     }
+    /// Replies to MQTT commands (not retained).
+    pub fn command_reply_topic(&self) -> String {
+        format!("{}/commands/replies", self.topic_prefix)
+    }
 
     /// The password, from the environment or a file; never logged.
     pub fn password(&self) -> Result<Option<String>, String> {

@@ -20,6 +20,7 @@
 //! and its tags' states are copied into the store's checkpoints in the same
 //! transaction too (`crate::recovery::checkpoint_rows`), for rollback.
 
+use super::command_reply::{command_action, command_id, CommandReply};
 use super::commit_retry::{AfterFailure, CommitRetry};
 use super::reload::SharedFilters;
 use super::settings::ServiceSettings;
@@ -108,6 +109,22 @@ pub struct Ledger {
     sensor: Vec<(bool, bool)>,
     /// Per tag: the same faults seen since the last sensor check.
     sensor_latched: Vec<(bool, bool)>,
+    /// Per tag: the first-out tag of the common-cause group whose one
+    /// stale alarm stands for this tag's silence too (see `sensors`).
+    stale_leader: Vec<Option<usize>>,
+    /// Per tag: (event time, arrival) of the newest sample rejected as a
+    /// sensor fault; a fault that old no longer hides the tag's silence.
+    last_fault: Vec<Option<(i64, i64)>>,
+    /// Sequence number the next committed alarm event gets (durable, in
+    /// the store's meta with the journal).
+    next_event_seq: u64,
+    /// The alarm clock's latest reading (see [`Ledger::alarm_now`]).
+    alarm_clock_ms: i64,
+    /// MQTT commands carried out, answered on the reply topic once
+    /// committed: (id, action, by, target).
+    mqtt_replies: Vec<(Option<String>, Option<String>, String, crate::alarm::AlarmTarget)>,
+    /// Alarm-system performance figures, fed with committed events.
+    kpi: super::alarm_kpi::AlarmKpi,
     retired: Vec<(String, ComponentState)>,
     retired_tags: Vec<(String, TagState)>,
     counters: ServiceCounters,
@@ -115,6 +132,8 @@ pub struct Ledger {
     snapshot_tx: watch::Sender<Arc<Snapshot>>,
     last_snapshot: Instant,
     last_health: Instant,
+    /// When the retained alarm states were last all published again.
+    last_state_republish: Instant,
     started: String,
     mqtt_connected: bool,
     outbox: crate::store::OutboxStats,
@@ -164,7 +183,7 @@ pub struct Ledger {
     database_refused: bool,
     /// HTTP commands carried out but not yet committed: the component
     /// addressed and where the outcome goes once the commit succeeded.
-    command_replies: Vec<(String, tokio::sync::oneshot::Sender<CommandOutcome>)>,
+    command_replies: Vec<(crate::alarm::AlarmTarget, tokio::sync::oneshot::Sender<CommandOutcome>)>,
     /// Inspection records accepted into the engine, written with the next commit.
     inspections_accepted: Vec<(i64, String)>,
     /// Subscriptions in force and what the last reloads left undone.
@@ -184,6 +203,10 @@ struct Reloads {
 /// Threshold lines go out with a component's series at most this often in
 /// event time (1 h), besides start-up and reloads.
 const THRESHOLD_REFRESH_MS: i64 = 3_600_000;
+
+/// Seconds of wall time between two publications of every retained alarm
+/// state (besides every connection and every change).
+const STATE_REPUBLISH_S: u64 = 60;
 
 /// The plant-level alarm raised when no tag delivers data.
 pub const PLANT_DATA_ALARM: &str = "lifeledger:plant-data";
@@ -205,6 +228,8 @@ pub struct StoredLedger {
     pub alarms: Vec<AlarmRecord>,
     /// Alarm records that do not parse: (key, why). They start afresh.
     pub unreadable_alarms: Vec<(String, String)>,
+    /// Sequence number the next alarm event gets.
+    pub next_event_seq: u64,
 }
 
 impl StoredLedger {
@@ -227,8 +252,10 @@ impl StoredLedger {
         }
         let mut counters = crate::engine::Counters::default();
         let mut decode_rejected = Default::default();
+        let mut next_event_seq = 1;
         for (k, json) in &loaded.meta {
             match k.as_str() {
+                "alarm_event_seq" => next_event_seq = serde_json::from_str(json).unwrap_or(1),
                 "engine_counters" => counters = serde_json::from_str(json).unwrap_or_default(),
                 "decode_rejected" => decode_rejected = serde_json::from_str(json).unwrap_or_default(),
                 _ => {}
@@ -261,6 +288,7 @@ impl StoredLedger {
             decode_rejected,
             alarms,
             unreadable_alarms,
+            next_event_seq,
         })
     }
 }
@@ -321,8 +349,26 @@ impl Ledger {
                 service.store.path.display()
             );
         }
+        for ps in &service.alarms.plant_states {
+            if !cfg.plan.tags.iter().any(|t| t.name == ps.tag) {
+                anyhow::bail!(
+                    "[[alarms.plant_state]] {:?}: tag {:?} is not a configured tag; name one of the [[tag]] entries",
+                    ps.name,
+                    ps.tag
+                );
+            }
+        }
         let records = stored.alarms;
-        let book = AlarmBook::from_records(records).with_config(service.alarms.clone());
+        let mut book = AlarmBook::from_records(records).with_config(service.alarms.clone());
+        // Sensor alarms are kept per tag; records an older version kept per
+        // component would stand for ever.
+        for r in book.retire(|r| !(r.index.is_sensor() && r.affects.is_empty())) {
+            tracing::info!(
+                "alarm {} retired: sensor alarms are now kept per tag (state was {})",
+                r.key(),
+                r.state.name()
+            );
+        }
         let templates = service.mqtt.templates().map_err(|e| anyhow::anyhow!(e))?;
         let index = tag_index(&engine);
         let ntags = engine.plan().tags.len();
@@ -355,6 +401,17 @@ impl Ledger {
             newest_ms,
             sensor: vec![(false, false); ntags],
             sensor_latched: vec![(false, false); ntags],
+            stale_leader: vec![None; ntags],
+            last_fault: vec![None; ntags],
+            next_event_seq: stored.next_event_seq,
+            alarm_clock_ms: i64::MIN,
+            mqtt_replies: vec![],
+            kpi: {
+                // The recent journal seeds the figures across a restart.
+                let mut k = super::alarm_kpi::AlarmKpi::default();
+                k.record(&recent_events.iter().cloned().collect::<Vec<_>>());
+                k
+            },
             retired: left.components,
             retired_tags: left.tags,
             counters: svc,
@@ -363,6 +420,7 @@ impl Ledger {
             last_snapshot: Instant::now() - Duration::from_secs(60),
             // The first health point goes out at the first idle moment.
             last_health: Instant::now() - Duration::from_secs(3600),
+            last_state_republish: Instant::now(),
             started: rfc3339_ms(now_ms()),
             mqtt_connected: false,
             outbox: stats,
@@ -401,6 +459,16 @@ impl Ledger {
         // Thresholds go to the database at start-up, at the newest event time.
         let t = l.newest_ms.unwrap_or_else(now_ms);
         l.queue_thresholds(t);
+        // Every record judged against the ledger as loaded, so the values
+        // the retained states carry from the first connection are current
+        // (a record is stored only when its state changes).
+        for ci in 0..l.engine.plan().components.len() {
+            let (plan, st) = (&l.engine.plan().components[ci], &l.engine.components()[ci]);
+            if let Some(ti) = st.integrated_to_ms {
+                let ev = l.book.evaluate_component(plan, st, ti);
+                l.note_events(ev);
+            }
+        }
         l.publish_snapshot(true);
         Ok(l)
     }
@@ -573,13 +641,20 @@ impl Ledger {
         if let Ok(s) = self.store.outbox_stats() {
             self.outbox = s;
         }
-        let ev = self.book.tick(now);
+        let alarm_now = self.alarm_now();
+        let ev = self.book.tick(alarm_now);
         if !ev.is_empty() {
             for e in &ev {
                 self.dirty_alarms.insert(e.key());
             }
             self.events.extend(ev);
             self.commit();
+        }
+        // Retained states carry values that move without an event (a wear
+        // index past its last level): all published again once a minute.
+        if self.mqtt_connected && self.last_state_republish.elapsed() >= Duration::from_secs(STATE_REPUBLISH_S) {
+            self.last_state_republish = Instant::now();
+            self.publish_all_states();
         }
         if self.last_health.elapsed() >= Duration::from_secs(self.service.store.health_interval_s.max(1)) {
             self.last_health = Instant::now();
@@ -661,6 +736,7 @@ impl Ledger {
                     publish.topic
                 )
             });
+            self.reply(CommandReply::refused(None, "retained", "a retained command is refused: commands act once"));
             return;
         }
         let authorised = self.command_token.as_deref().is_some_and(|t| carries_token(&publish.payload, t));
@@ -674,9 +750,28 @@ impl Ledger {
             self.log.warn("command_unauthorised", || {
                 format!("alarm command on {} refused (unauthorised): {why}", publish.topic)
             });
+            self.reply(CommandReply::refused(None, "unauthorised", why));
             return;
         }
-        let _ = self.command(&publish.payload);
+        let id = command_id(&publish.payload);
+        match self.command(&publish.payload) {
+            Ok(target) => {
+                let by = parse_command(&publish.payload).map(|c| c.by().to_string()).unwrap_or_default();
+                self.mqtt_replies.push((id, command_action(&publish.payload), by, target));
+                self.force_commit = true;
+            }
+            Err(CommandOutcome::Unknown(e)) => self.reply(CommandReply::refused(id, "unknown", e)),
+            Err(CommandOutcome::Invalid(e)) => self.reply(CommandReply::refused(id, "invalid", e)),
+            Err(CommandOutcome::Applied(_)) => {}
+        }
+    }
+
+    /// Publish one reply on the command reply topic.
+    fn reply(&mut self, r: CommandReply) {
+        let topic = self.service.mqtt.command_reply_topic();
+        if self.client.try_publish(topic, QoS::AtLeastOnce, false, r.to_json()).is_err() {
+            self.log.warn("reply_failed", || "command reply not published (client queue full)".to_string());
+        }
     }
 
     fn refuse_command(&mut self, reason: &str) {
@@ -685,8 +780,9 @@ impl Ledger {
 
     /// Carry out an authorised command: the name of the component it
     /// addressed, or what was wrong (counted and logged).
-    fn command(&mut self, payload: &[u8]) -> Result<String, CommandOutcome> {
-        let now = now_ms();
+    fn command(&mut self, payload: &[u8]) -> Result<crate::alarm::AlarmTarget, CommandOutcome> {
+        // Stamped on the alarm clock, the journal's one time base.
+        let now = self.alarm_now();
         let cmd = match parse_command(payload) {
             Ok(c) => c,
             Err(e) => {
@@ -703,32 +799,53 @@ impl Ledger {
                     self.dirty_alarms.insert(e.key());
                 }
                 self.events.extend(ev);
-                // A full key `component/index` names its record's component.
-                let target = &cmd.target().component;
-                Ok(self.book.record(target).map_or_else(|| target.clone(), |r| r.component.clone()))
+                Ok(cmd.target().clone())
             }
             Err(e) => {
                 self.refuse_command("refused");
                 tracing::warn!("alarm command rejected (refused by the alarm book): {e}");
                 Err(match e {
-                    AlarmError::UnknownAlarm { .. } | AlarmError::UnknownComponent { .. } => {
-                        CommandOutcome::Unknown(e.to_string())
-                    }
+                    AlarmError::UnknownAlarm { .. }
+                    | AlarmError::UnknownComponent { .. }
+                    | AlarmError::UnknownTag { .. }
+                    | AlarmError::UnknownUnit { .. } => CommandOutcome::Unknown(e.to_string()),
                     _ => CommandOutcome::Invalid(e.to_string()),
                 })
             }
         }
     }
 
+    /// The alarm clock, the one time base of the alarm journal: the newest
+    /// event time seen, advanced by the wall time since the newest accepted
+    /// sample arrived (so it moves on while data stops, and stays with the
+    /// data during a backfill), never backwards. Commands and shelve ends
+    /// use it; evaluations use the event time of their data, which it never
+    /// lags.
+    fn alarm_now(&mut self) -> i64 {
+        let now = now_ms();
+        let t = match (self.newest_ms, self.last_any_arrival) {
+            (Some(n), Some(a)) => n.saturating_add((now - a).max(0)),
+            (Some(n), None) => n.saturating_add((now - self.started_ms).max(0)),
+            // No data yet: the wall clock, not kept (data may be older).
+            (None, _) => return self.alarm_clock_ms.max(now),
+        };
+        self.alarm_clock_ms = self.alarm_clock_ms.max(t);
+        self.alarm_clock_ms
+    }
+
     /// Answer the HTTP commands of a batch now durable, after publishing
     /// the snapshot, so that what the caller reads next agrees.
     fn answer_commands(&mut self) {
+        for (id, action, by, target) in std::mem::take(&mut self.mqtt_replies) {
+            let summary = serde_json::to_value(self.book.summary_of(&target)).ok();
+            self.reply(CommandReply { id, outcome: "applied", action, by: Some(by), error: None, summary });
+        }
         if self.command_replies.is_empty() {
             return;
         }
         self.publish_snapshot(true);
-        for (component, reply) in self.command_replies.drain(..) {
-            let _ = reply.send(CommandOutcome::Applied(self.book.current(&component).to_json()));
+        for (target, reply) in self.command_replies.drain(..) {
+            let _ = reply.send(CommandOutcome::Applied(self.book.summary_of(&target).to_json()));
         }
     }
 
@@ -779,10 +896,12 @@ impl Ledger {
                     Rejection::OutOfRange | Rejection::NotFinite | Rejection::ImplausibleTime => {
                         self.sensor[ti].0 = true;
                         self.sensor_latched[ti].0 = true;
+                        self.last_fault[ti] = Some((d.time_ms, received_ms));
                     }
                     Rejection::BadQuality => {
                         self.sensor[ti].1 = true;
                         self.sensor_latched[ti].1 = true;
+                        self.last_fault[ti] = Some((d.time_ms, received_ms));
                     }
                     _ => {}
                 }
@@ -790,15 +909,6 @@ impl Ledger {
         }
     }
 
-    /// Sensor-fault alarms per component: a component's stale, out-of-range
-    /// or bad-quality alarm is active while any tag it reads is in that
-    /// fault; the detail names the tags. A tag is stale when, by the wall
-    /// clock, no sample of it was accepted for its hold time plus
-    /// `[alarms] stale_grace_s` (a tag that never reported counts from the
-    /// service's start), or when, in event time, the newest sample of any
-    /// tag is more than the tag's hold time ahead of its own newest sample.
-    /// No accepted sample from any tag for `[alarms] no_data_alarm_s`
-    /// raises the plant-level service-health alarm.
     /// Raises the `lifeledger:database` service-health alarm while the
     /// database refuses the service (a wrong token, organisation or
     /// bucket), and returns it to normal once it takes points again.
@@ -831,77 +941,6 @@ impl Ledger {
             t,
         );
         self.note_events(ev);
-    }
-
-    fn sensor_check(&mut self) {
-        // At most every 500 ms of wall time: it visits every component.
-        if self.last_sensor_check.elapsed() < Duration::from_millis(500) {
-            return;
-        }
-        self.last_sensor_check = Instant::now();
-        let newest = self.newest_ms;
-        let t = newest.unwrap_or_else(now_ms);
-        let now = now_ms();
-        let grace_ms = (self.service.alarms.stale_grace_s * 1000.0) as i64;
-        let silent_ms = now - self.last_any_arrival.unwrap_or(self.started_ms);
-        let no_data =
-            !self.engine.plan().tags.is_empty() && silent_ms > (self.service.alarms.no_data_alarm_s * 1000.0) as i64;
-        if no_data != self.no_plant_data {
-            self.no_plant_data = no_data;
-            let detail = if no_data {
-                format!("no sample accepted from any tag for {} s", silent_ms / 1000)
-            } else {
-                "plant data arriving again".to_string()
-            };
-            if no_data {
-                tracing::error!("{detail}: the ledgers are not moving");
-            } else {
-                tracing::info!("{detail}");
-            }
-            let ev = self.book.evaluate_condition(PLANT_DATA_ALARM, "", AlarmIndex::ServiceHealth, no_data, &detail, t);
-            self.note_events(ev);
-        }
-        let plan = self.engine.plan();
-        let mut evaluations = vec![];
-        for (ci, c) in plan.components.iter().enumerate() {
-            let (mut stale, mut oor, mut badq) = (vec![], vec![], vec![]);
-            for &ti in self.engine.inputs(ci) {
-                let ti = ti as usize;
-                let tp = &plan.tags[ti];
-                let event_stale = match (newest, self.engine.tags()[ti].cursor_ms) {
-                    (Some(n), Some(last)) => n - last > tp.max_hold_ms,
-                    _ => false,
-                };
-                let wall_stale =
-                    now - self.last_arrival[ti].unwrap_or(self.started_ms) > tp.max_hold_ms.saturating_add(grace_ms);
-                if event_stale || wall_stale {
-                    stale.push(tp.name.as_str());
-                }
-                // A fault seen since the last check counts even if a good
-                // sample has cleared it since, so a short fault still alarms.
-                if self.sensor[ti].0 || self.sensor_latched[ti].0 {
-                    oor.push(tp.name.as_str());
-                }
-                if self.sensor[ti].1 || self.sensor_latched[ti].1 {
-                    badq.push(tp.name.as_str());
-                }
-            }
-            for (index, tags) in [
-                (AlarmIndex::SensorStale, stale),
-                (AlarmIndex::SensorOutOfRange, oor),
-                (AlarmIndex::SensorBadQuality, badq),
-            ] {
-                let detail = if tags.is_empty() { String::new() } else { format!("tag {}", tags.join(", ")) };
-                evaluations.push((c.name.clone(), c.unit.clone(), index, !tags.is_empty(), detail));
-            }
-        }
-        for l in &mut self.sensor_latched {
-            *l = (false, false);
-        }
-        for (name, unit, index, active, detail) in evaluations {
-            let ev = self.book.evaluate_condition(&name, &unit, index, active, &detail, t);
-            self.note_events(ev);
-        }
     }
 
     /// Series points at `series_interval_s` spacing of event time: called
@@ -1026,6 +1065,13 @@ impl Ledger {
         // The events' lines are made afresh by each attempt: a failed one
         // keeps everything before them, not them (no duplicates on retries).
         let before_events = outbox.len();
+        // Sequence numbers, given afresh by each attempt (the count moves
+        // only when one succeeds), so consumers can see a gap.
+        let seq_base = self.next_event_seq;
+        for (i, e) in self.events.iter_mut().enumerate() {
+            e.seq = Some(seq_base + i as u64);
+        }
+        let seq_next = seq_base + self.events.len() as u64;
         for e in &self.events {
             if let Some(l) = e.to_point(&plant).to_line() {
                 outbox.push(l);
@@ -1038,6 +1084,7 @@ impl Ledger {
         let meta = vec![
             ("engine_counters".to_string(), serde_json::to_string(self.engine.counters()).unwrap_or_default()),
             ("decode_rejected".to_string(), serde_json::to_string(&self.counters.decode_rejected).unwrap_or_default()),
+            ("alarm_event_seq".to_string(), seq_next.to_string()),
         ];
         let journal: Vec<JournalEntry> = self
             .events
@@ -1107,7 +1154,9 @@ impl Ledger {
                 self.held_released.clear();
                 self.inspections_accepted.clear();
                 self.dirty_alarms.clear();
+                self.next_event_seq = seq_next;
                 let events = std::mem::take(&mut self.events);
+                self.kpi.record(&events);
                 self.publish_alarms(&events);
                 for e in events {
                     self.recent_events.push_back(e);
@@ -1213,9 +1262,8 @@ impl Ledger {
     fn publish_all_states(&mut self) {
         let components: Vec<String> = self.book.components().into_iter().map(String::from).collect();
         let mut failed = 0usize;
-        for c in &components {
-            let s = self.book.current(c);
-            let topic = self.service.mqtt.alarm_state_topic(c);
+        for s in self.book.summaries(components.iter().map(String::as_str)) {
+            let topic = self.service.mqtt.alarm_state_topic(&s.component);
             if self.client.try_publish(topic, QoS::AtLeastOnce, true, s.to_json()).is_err() {
                 failed += 1;
             }
@@ -1236,6 +1284,8 @@ impl Ledger {
             let _ =
                 self.client.try_publish(self.service.mqtt.alarm_event_topic(), QoS::AtLeastOnce, false, e.to_json());
             comps.insert(e.component.clone());
+            // A tag's sensor alarm shows in the state of every part it feeds.
+            comps.extend(e.affects.iter().cloned());
         }
         for c in comps {
             let s = self.book.current(&c);
@@ -1302,6 +1352,8 @@ impl Ledger {
         self.next_threshold_ms = vec![i64::MIN; cfg.plan.components.len()];
         self.sensor = vec![(false, false); cfg.plan.tags.len()];
         self.sensor_latched = vec![(false, false); cfg.plan.tags.len()];
+        self.stale_leader = vec![None; cfg.plan.tags.len()];
+        self.last_fault = vec![None; cfg.plan.tags.len()];
         self.cfg = Arc::new(cfg);
         self.service = service;
         let t = self.newest_ms.unwrap_or_else(now_ms);
@@ -1369,12 +1421,12 @@ impl Ledger {
             .zip(self.engine.components())
             .map(|(p, s)| ComponentReport::new(p, s))
             .collect();
-        let mut alarms: Vec<_> = self.engine.plan().components.iter().map(|c| self.book.current(&c.name)).collect();
+        let mut alarms = self.book.summaries(self.engine.plan().components.iter().map(|c| c.name.as_str()));
         // The service's own alarms (service health, plant data, database)
         // after the components', so every standing alarm is in the snapshot.
-        let service: BTreeSet<&str> =
-            self.book.records().map(|r| r.component.as_str()).filter(|c| c.starts_with("lifeledger")).collect();
-        alarms.extend(service.into_iter().map(|c| self.book.current(c)));
+        let service: BTreeSet<String> =
+            self.book.records().map(|r| r.component.clone()).filter(|c| c.starts_with("lifeledger")).collect();
+        alarms.extend(service.iter().map(|c| self.book.current(c)));
         let snap = Snapshot {
             plant: self.cfg.plan.plant.clone(),
             started: self.started.clone(),
@@ -1393,6 +1445,10 @@ impl Ledger {
             service: self.counters.clone(),
             components,
             alarms,
+            alarm_kpi: {
+                let now = self.alarm_now();
+                self.kpi.report(now, &self.book)
+            },
             retired_components: self.retired.iter().map(|(n, _)| n.clone()).collect(),
             recent_events: self.recent_events.iter().cloned().collect(),
             no_plant_data: self.no_plant_data,
@@ -1407,6 +1463,12 @@ impl Ledger {
 }
 
 mod inspection;
+#[path = "ledger_sensors.rs"]
+mod sensors;
+
+#[cfg(test)]
+#[path = "ledger_alarm_tests.rs"]
+mod alarm_tests;
 
 #[cfg(test)]
 mod tests {

@@ -17,6 +17,8 @@
 //! disconnects. SIGHUP reloads the configuration and keeps every ledger
 //! ([`reload`] says what a reload may change).
 
+pub mod alarm_kpi;
+pub mod command_reply;
 pub mod commit_retry;
 pub mod http;
 pub mod http_inspection;

@@ -517,6 +517,46 @@ fn alarm_problems(a: &AlarmConfig) -> Vec<String> {
             ));
         }
     }
+    let per_component = a.component_rationale.iter().flat_map(|(c, m)| m.iter().map(move |(i, r)| (Some(c), i, r)));
+    for (component, index, r) in a.rationale.iter().map(|(i, r)| (None, i, r)).chain(per_component) {
+        let at = match component {
+            None => format!("[alarms] rationale.{}", index.name()),
+            Some(c) => format!("[alarms] component_rationale.\"{c}\".{}", index.name()),
+        };
+        if let Some(m) = r.time_to_respond_min {
+            if !(m.is_finite() && m > 0.0) {
+                p.push(format!("{at}.time_to_respond_min = {m:?}: use minutes above 0"));
+            }
+        }
+        if let Some(t) = &r.corrective_action {
+            if t.trim().is_empty() || t.chars().any(|c| c.is_control()) {
+                p.push(format!("{at}.corrective_action: give the action in words, without control characters"));
+            }
+        }
+    }
+    for (i, ps) in a.plant_states.iter().enumerate() {
+        let at = format!("[[alarms.plant_state]] #{} ({:?})", i + 1, ps.name);
+        if ps.name.trim().is_empty() || ps.name.chars().any(|c| c.is_control()) {
+            p.push(format!("{at}: give the state a name in words, e.g. \"unit U2 offline\""));
+        }
+        if ps.units.is_empty() || ps.units.iter().any(|u| u.trim().is_empty()) {
+            p.push(format!("{at}: units: list the plant units whose alarms it suppresses"));
+        }
+        let finite = |v: Option<f64>| v.is_none_or(f64::is_finite);
+        if (ps.below.is_none() && ps.above.is_none()) || !finite(ps.below) || !finite(ps.above) {
+            p.push(format!("{at}: give a finite `below` or `above` level in the tag's own unit"));
+        }
+    }
+    for (index, d) in &a.delays {
+        for (key, v) in [("on_delay_s", d.on_delay_s), ("off_delay_s", d.off_delay_s)] {
+            if !(v.is_finite() && (0.0..=86_400.0).contains(&v)) {
+                p.push(format!(
+                    "[alarms] delays.{}.{key} = {v:?}: use seconds of event time from 0 to 86400",
+                    index.name()
+                ));
+            }
+        }
+    }
     let levels: Vec<(&str, f64)> = a.damage_rate.iter().collect();
     if levels.iter().any(|(_, v)| !(v.is_finite() && *v >= 0.0)) || levels.windows(2).any(|w| w[0].1 >= w[1].1) {
         let given: Vec<String> = levels.iter().map(|(n, v)| format!("{n} = {v:?}")).collect();
@@ -583,6 +623,13 @@ mod tests {
             ("[alarms.deadbands.wear_index]\nfraction = 0.1\nminimum = -1", "deadbands.wear_index.minimum"),
             ("[alarms.damage_rate]\nwarning = 1e-5\ncritical = 1e-6", "damage_rate"),
             ("[alarms]\nmax_shelve_h = 0", "max_shelve_h"),
+            ("[alarms.delays.wear_index]\non_delay_s = -1", "delays.wear_index.on_delay_s"),
+            ("[[alarms.plant_state]]\nname = \"off\"\nunits = [\"U2\"]\ntag = \"PT\"", "below` or `above"),
+            ("[[alarms.plant_state]]\nname = \"off\"\nunits = []\ntag = \"PT\"\nbelow = 5", "units"),
+            ("[alarms.rationale.wear_index]\ntime_to_respond_min = 0", "rationale.wear_index.time_to_respond_min"),
+            ("[alarms.rationale.wear_index]\nclass = \"sometimes\"", "class"),
+            ("[alarms.component_rationale.\"A\".wear_index]\ncorrective_action = \"\"", "component_rationale"),
+            ("[alarms.delays.damage_rate]\noff_delay_s = 1e9", "delays.damage_rate.off_delay_s"),
             ("[alarms]\nmax_shelve_h = 721", "max_shelve_h"),
             ("[alarms]\nmax_shelve_h = nan", "max_shelve_h"),
         ] {

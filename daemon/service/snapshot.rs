@@ -64,6 +64,8 @@ pub struct Snapshot {
     /// The most recent alarm events (newest last, at most 200); at start-up
     /// read back from the store's alarm journal, so they span restarts.
     pub recent_events: Vec<crate::alarm::AlarmEvent>,
+    /// Alarm-system performance (see `service::alarm_kpi`).
+    pub alarm_kpi: super::alarm_kpi::AlarmKpiReport,
     /// Components kept in the ledger but no longer configured.
     pub retired_components: Vec<String>,
     /// No accepted sample from any tag for `[alarms] no_data_alarm_s`:
@@ -335,6 +337,67 @@ pub fn metrics_text(s: &Snapshot) -> String {
         "1 when intake is paused (outbox over quota).",
         "gauge",
         vec![(String::new(), s.holding as u8 as f64)],
+    );
+    let k = &s.alarm_kpi;
+    for (name, help, v) in [
+        (
+            "lifeledger_alarms_last_10_min",
+            "Alarms annunciated in the last 10 minutes of alarm time (target: about 1 per operator).",
+            k.alarms_last_10_min as f64,
+        ),
+        (
+            "lifeledger_alarms_last_hour",
+            "Alarms annunciated in the last hour of alarm time.",
+            k.alarms_last_hour as f64,
+        ),
+        ("lifeledger_alarms_last_24h", "Alarms annunciated in the last 24 h of alarm time.", k.alarms_last_24_h as f64),
+        (
+            "lifeledger_alarms_peak_per_10_min_24h",
+            "Most alarms in one 10-minute period of the last 24 h.",
+            k.peak_per_10_min_24_h as f64,
+        ),
+        (
+            "lifeledger_alarm_floods_24h",
+            "10-minute periods of the last 24 h with more than 10 alarms.",
+            k.floods_24_h as f64,
+        ),
+        (
+            "lifeledger_alarm_time_in_flood_percent_24h",
+            "Share of the last 24 h in flood, percent (target under 1).",
+            k.time_in_flood_percent_24_h,
+        ),
+        (
+            "lifeledger_alarms_standing",
+            "Operator alarms active for more than 24 h (target under 5).",
+            k.standing as f64,
+        ),
+        (
+            "lifeledger_alarms_chattering",
+            "Alarms with 3 or more activations within 60 s in the last hour (target 0).",
+            k.chattering.len() as f64,
+        ),
+        (
+            "lifeledger_alarms_active",
+            "Operator alarms active, not shelved, out of service or suppressed.",
+            k.active as f64,
+        ),
+        ("lifeledger_alarms_unacknowledged", "Alarms waiting for an acknowledge.", k.unacknowledged as f64),
+        ("lifeledger_alarms_shelved", "Alarms shelved.", k.shelved as f64),
+        ("lifeledger_alarms_out_of_service", "Alarms out of service.", k.out_of_service as f64),
+        ("lifeledger_alarms_suppressed", "Alarms suppressed by a plant state.", k.suppressed as f64),
+        (
+            "lifeledger_engineering_alerts_active",
+            "Engineering alerts active (not operator alarms).",
+            k.engineering_alerts as f64,
+        ),
+    ] {
+        metric(name, help, "gauge", vec![(String::new(), v)]);
+    }
+    metric(
+        "lifeledger_alarm_most_frequent_24h",
+        "Annunciations of the ten most frequent alarms in the last 24 h.",
+        "gauge",
+        k.most_frequent_24_h.iter().map(|(a, n)| (label("alarm", a), *n as f64)).collect(),
     );
     let lf: Vec<(String, f64)> = s
         .components

@@ -126,6 +126,11 @@ health_interval_s = 1
 [http]
 listen = "127.0.0.1:{http_port}"
 {tail}
+# The test plant's alarm philosophy makes creep life fraction an operator
+# alarm (its default class is an engineering alert), so the acknowledge and
+# shelve flows are exercised on it.
+[alarms.rationale.creep_life_fraction]
+class = "operator"
 "#,
             store = dir.join("ledger.sqlite").display()
         );

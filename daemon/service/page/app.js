@@ -45,6 +45,7 @@ const LL = (() => {
     acknowledged: 'acknowledged',
     rtn_unacknowledged: 'cleared, unacknowledged',
     shelved: 'shelved',
+    alert: 'engineering alert',
   };
 
   // ---------- text and numbers ----------
@@ -559,6 +560,8 @@ const LL = (() => {
       (e.severity ? sevBadge(e.severity) : '<span class="badge ok">—</span>') +
       (withComponent ? '<a class="ev-comp" href="/component/' + encodeURIComponent(e.component) + '">' + esc(e.component) + '</a>' : '') +
       '<span class="ev-what">' + esc(what) + '</span>' +
+      (e.priority ? '<span class="pill prio-' + esc(e.priority) + '" title="' + esc((e.corrective_action || '') + (e.time_to_respond_min ? ' (respond within ' + e.time_to_respond_min + ' min)' : '')) + '">' +
+        esc(e.class === 'engineering' ? 'engineering alert' : e.priority + ' priority') + '</span>' : '') +
       '<span class="ev-msg">' + esc(e.message) + '</span></li>';
   }
 

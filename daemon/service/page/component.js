@@ -259,6 +259,8 @@
       const key = r.component + '/' + r.index;
       const notes = [];
       if (r.detail) notes.push(r.detail);
+      const ra = r.rationale;
+      if (ra && r.state !== 'normal') notes.push((ra.class === 'engineering' ? 'engineering alert' : ra.priority + ' priority, respond within ' + ra.time_to_respond_min + ' min') + ': ' + ra.corrective_action);
       if (r.acknowledged_by) notes.push('acknowledged by ' + r.acknowledged_by + (r.acknowledged_ms ? ' at ' + LL.shortUtc(r.acknowledged_ms) : ''));
       if (r.shelve) notes.push('shelved by ' + r.shelve.by + ' until ' + LL.shortUtc(r.shelve.until_ms) + (r.shelve.reason ? ': ' + r.shelve.reason : ''));
       let actions = '';
@@ -287,7 +289,7 @@
 
   function renderEvents() {
     const evs = history ? history.events
-      : (snap.recent_events || []).filter((e) => e.component === name).slice(-HISTORY_LIMIT).reverse();
+      : (snap.recent_events || []).filter((e) => e.component === name || (e.affects || []).includes(name)).slice(-HISTORY_LIMIT).reverse();
     $('events').innerHTML = evs.length ? evs.map((e) => LL.eventItem(e, false)).join('') : '<li class="muted">No alarm events recorded for this component.</li>';
   }
 

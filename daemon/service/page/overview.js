@@ -51,6 +51,16 @@
     sel.value = units.includes(want) ? want : '';
   }
 
+  // Alarm-system performance (whole plant): alarms per 10 minutes, with
+  // standing, chattering, floods and what is held out of view.
+  function kpiTile(k) {
+    if (!k) return '';
+    const bad = k.alarms_last_10_min > 1 || k.standing >= 5 || (k.chattering || []).length || k.floods_24_h;
+    const sub = 'last hour ' + k.alarms_last_hour + ' · standing ' + k.standing + ' · chattering ' + (k.chattering || []).length +
+      ' · floods (24 h) ' + k.floods_24_h + ' · shelved ' + k.shelved + ' · out of service ' + k.out_of_service + ' · suppressed ' + k.suppressed;
+    return tile('Alarms / 10 min', String(k.alarms_last_10_min), bad ? 'unack' : 'quiet', sub);
+  }
+
   function tile(label, value, cls, sub) {
     return '<div class="tile ' + (cls || '') + '"><span class="tile-label">' + esc(label) + '</span><span class="tile-value">' + esc(value) + '</span>' +
       (sub ? '<span class="tile-sub">' + esc(sub) + '</span>' : '') + '</div>';
@@ -76,7 +86,8 @@
       tile('Warning', String(warn), warn ? 'warning' : 'quiet') +
       tile('Advisory', String(adv), adv ? 'advisory' : 'quiet') +
       tile('Unacknowledged', String(unack), unack ? 'unack' : 'quiet', shelved ? shelved + ' shelved' : 'alarms') +
-      tile('Unmonitored', LL.hours(unmon) + ' h', unmon > 0 ? 'data' : 'quiet', 'summed over components');
+      tile('Unmonitored', LL.hours(unmon) + ' h', unmon > 0 ? 'data' : 'quiet', 'summed over components') +
+      kpiTile(snap.alarm_kpi);
 
     if (!list.length) {
       $('component-rows').innerHTML = '<tr><td colspan="9" class="muted">' + (all.length ? 'No component in this unit.' : 'No component in the ledger yet.') + '</td></tr>';
@@ -93,7 +104,8 @@
         const rem = c.remaining_life_h;
         const alarmCell = LL.sevBadge(sev) +
           (a.unacknowledged ? '<span class="pill unack" title="alarms waiting for an acknowledge">' + a.unacknowledged + ' unack</span>' : '') +
-          (a.shelved ? '<span class="pill" title="shelved alarms">' + a.shelved + ' shelved</span>' : '');
+          (a.shelved ? '<span class="pill" title="shelved alarms">' + a.shelved + ' shelved</span>' : '') +
+          (a.alerts ? '<span class="pill alert sev-' + esc(a.worst_alert_severity || 'none') + '" title="engineering alerts (for the integrity engineer; no acknowledge asked)">' + a.alerts + ' alert' + (a.alerts > 1 ? 's' : '') + ' (' + esc(a.worst_alert_severity || '') + ')</span>' : '');
         return '<tr class="row sev-' + esc(sev || 'none') + '" data-component="' + esc(c.component) + '">' +
           '<td class="alarm">' + alarmCell + '</td>' +
           '<td class="name"><a href="' + href + '">' + esc(c.component) + '</a><span class="sub">' + esc(c.unit) + ' · ' + esc(LL.kindLabel(c.kind)) + ' · ' + esc(c.material) + '</span></td>' +

@@ -1,0 +1,236 @@
+//! Sensor-fault alarms of the ledger thread: one alarm per tag and fault,
+//! listing the components whose ledgers read the tag, with one fault one
+//! alarm and first-out grouping of common causes.
+//!
+//! * A tag is **stale** when, by the wall clock, no sample of it was
+//!   accepted for its hold time plus `[alarms] stale_grace_s` (a tag that
+//!   never reported counts from the service's start), or when, in event
+//!   time, the newest sample of any tag is more than the tag's hold time
+//!   ahead of its own newest sample. It is **out of range** (or stamped at
+//!   an implausible time) or of **bad quality** when such a sample was
+//!   rejected since the last check, or is the tag's newest sample and not
+//!   older than its hold time (a tag that falls silent after a fault is
+//!   stale once the fault is that old).
+//! * **One fault, one alarm**: bad quality (the source's own verdict)
+//!   hides out of range, and either hides stale: a transmitter at its rail
+//!   delivers no accepted sample, and saying so twice adds nothing.
+//! * **First-out grouping**: tags that go stale in the same check (a
+//!   gateway, a broker link, a field bus) raise one alarm, on the first-out
+//!   tag (the one silent longest), whose detail names the others; the
+//!   others stay silent while it stands. With no sample from any tag for
+//!   `[alarms] no_data_alarm_s` the plant-level service-health alarm stands
+//!   for all of them.
+//! * A tag read by no component raises nothing (nothing depends on it).
+//!
+//! Judged in event time for the records (the newest event time seen), the
+//! silence by the wall clock; see README "Alarms".
+
+use super::*;
+
+/// Most tag names listed in one alarm's detail.
+const LIST_MAX: usize = 8;
+
+fn listed(names: &[&str]) -> String {
+    if names.len() <= LIST_MAX {
+        names.join(", ")
+    } else {
+        format!("{} and {} more", names[..LIST_MAX].join(", "), names.len() - LIST_MAX)
+    }
+}
+
+impl Ledger {
+    /// The sensor and plant-data alarms, at most every 500 ms of wall time.
+    pub(super) fn sensor_check(&mut self) {
+        if self.last_sensor_check.elapsed() < Duration::from_millis(500) {
+            return;
+        }
+        self.last_sensor_check = Instant::now();
+        let newest = self.newest_ms;
+        let t = newest.unwrap_or_else(now_ms);
+        let now = now_ms();
+        let grace_ms = (self.service.alarms.stale_grace_s * 1000.0) as i64;
+        let silent_ms = now - self.last_any_arrival.unwrap_or(self.started_ms);
+        let no_data =
+            !self.engine.plan().tags.is_empty() && silent_ms > (self.service.alarms.no_data_alarm_s * 1000.0) as i64;
+        if no_data != self.no_plant_data {
+            self.no_plant_data = no_data;
+            let detail = if no_data {
+                format!("no sample accepted from any tag for {} s", silent_ms / 1000)
+            } else {
+                "plant data arriving again".to_string()
+            };
+            if no_data {
+                tracing::error!("{detail}: the ledgers are not moving");
+            } else {
+                tracing::info!("{detail}");
+            }
+            let ev = self.book.evaluate_condition(PLANT_DATA_ALARM, "", AlarmIndex::ServiceHealth, no_data, &detail, t);
+            self.note_events(ev);
+        }
+        // Plant states first, so alarms raised in this check already see them.
+        let rules = self.plant_state_rules();
+        let ev = self.book.set_suppression(rules, t);
+        self.note_events(ev);
+        let plan = self.engine.plan();
+        let ntags = plan.tags.len();
+        // Per tag: (stale, out of range, bad quality) before grouping.
+        let mut faults = Vec::with_capacity(ntags);
+        for (ti, tp) in plan.tags.iter().enumerate() {
+            let event_stale = match (newest, self.engine.tags()[ti].cursor_ms) {
+                (Some(n), Some(last)) => n - last > tp.max_hold_ms,
+                _ => false,
+            };
+            let wall_stale =
+                now - self.last_arrival[ti].unwrap_or(self.started_ms) > tp.max_hold_ms.saturating_add(grace_ms);
+            // A fault seen since the last check counts even if a good
+            // sample has cleared it since, so a short fault still alarms;
+            // one standing with no sample since ends once the tag has been
+            // silent for its hold time (then the tag is stale instead).
+            let fault_fresh = self.last_fault[ti].is_some_and(|(t_ev, arrival)| {
+                newest.is_none_or(|n| n - t_ev <= tp.max_hold_ms)
+                    && now - arrival <= tp.max_hold_ms.saturating_add(grace_ms)
+            });
+            let oor = (self.sensor[ti].0 && fault_fresh) || self.sensor_latched[ti].0;
+            let badq = (self.sensor[ti].1 && fault_fresh) || self.sensor_latched[ti].1;
+            faults.push((event_stale || wall_stale, oor && !badq, badq));
+        }
+        for l in &mut self.sensor_latched {
+            *l = (false, false);
+        }
+        // Stale, for alarming: not explained by a fresh value or quality
+        // fault, and read by some component. (An out-of-range alarm held
+        // by its off-delay does not hide a silence that follows it: the
+        // fault has changed, no data at all now.)
+        let read = |ti: usize| !self.engine.consumers(ti).is_empty();
+        let stale: Vec<bool> =
+            (0..ntags).map(|ti| faults[ti].0 && !faults[ti].1 && !faults[ti].2 && read(ti)).collect();
+        // First-out grouping: a group holds while its leader is stale.
+        for ti in 0..ntags {
+            if let Some(lead) = self.stale_leader[ti] {
+                if !stale[ti] || !stale[lead] {
+                    self.stale_leader[ti] = None;
+                }
+            }
+        }
+        let was_alarmed = |ti: usize| {
+            self.book
+                .record(&crate::alarm::record::key(&plan.tags[ti].name, AlarmIndex::SensorStale))
+                .is_some_and(|r| r.is_active())
+        };
+        let newly: Vec<usize> =
+            (0..ntags).filter(|&ti| stale[ti] && self.stale_leader[ti].is_none() && !was_alarmed(ti)).collect();
+        if newly.len() > 1 {
+            // The one silent longest is the first out.
+            let lead = *newly
+                .iter()
+                .min_by_key(|&&ti| (self.last_arrival[ti].unwrap_or(i64::MIN), self.engine.tags()[ti].cursor_ms))
+                .expect("two or more");
+            for &ti in &newly {
+                if ti != lead {
+                    self.stale_leader[ti] = Some(lead);
+                }
+            }
+        }
+        let mut followers: Vec<Vec<usize>> = vec![vec![]; ntags];
+        for ti in 0..ntags {
+            if let Some(lead) = self.stale_leader[ti] {
+                followers[lead].push(ti);
+            }
+        }
+        // The components some tags feed: sorted names, their units joined,
+        // and words for the detail.
+        let describe = |tags: &[usize]| -> (Vec<String>, String, String) {
+            let mut cis: Vec<u32> = tags.iter().flat_map(|&t| self.engine.consumers(t).iter().copied()).collect();
+            cis.sort_unstable();
+            cis.dedup();
+            let mut affects: Vec<String> = cis.iter().map(|&ci| plan.components[ci as usize].name.clone()).collect();
+            affects.sort();
+            let mut units: Vec<&str> = cis.iter().map(|&ci| plan.components[ci as usize].unit.as_str()).collect();
+            units.sort_unstable();
+            units.dedup();
+            let parts = match affects.len() {
+                1 => format!("affects {}", affects[0]),
+                n => format!(
+                    "affects {n} components: {}",
+                    listed(&affects.iter().map(String::as_str).collect::<Vec<_>>())
+                ),
+            };
+            (affects, units.join(","), parts)
+        };
+        let mut evaluations = vec![];
+        for (ti, tp) in plan.tags.iter().enumerate() {
+            if self.engine.consumers(ti).is_empty() {
+                continue;
+            }
+            let (affects, unit, parts) = describe(&[ti]);
+            let (_, oor, badq) = faults[ti];
+            // With no data from any tag the plant-level alarm stands for
+            // every silence that begins: no new stale alarm, but one
+            // already standing stays (no fleeting clear and re-raise).
+            let stale_alarm = stale[ti] && self.stale_leader[ti].is_none() && (!no_data || was_alarmed(ti));
+            // A first-out alarm lists every component of its group.
+            let group: Vec<usize> = std::iter::once(ti).chain(followers[ti].iter().copied()).collect();
+            let (group_affects, group_unit, group_parts) = describe(&group);
+            let stale_detail = if followers[ti].is_empty() {
+                format!("tag {} silent; {parts}", tp.name)
+            } else {
+                let names: Vec<&str> = followers[ti].iter().map(|&f| plan.tags[f].name.as_str()).collect();
+                format!(
+                    "tag {} silent, first out of {} tags silent together ({}): one cause likely; {group_parts}",
+                    tp.name,
+                    names.len() + 1,
+                    listed(&names)
+                )
+            };
+            let key = crate::alarm::record::key(&tp.name, AlarmIndex::SensorStale);
+            if stale_alarm || self.book.record(&key).is_some() {
+                evaluations.push((
+                    tp.name.clone(),
+                    group_unit,
+                    group_affects,
+                    AlarmIndex::SensorStale,
+                    stale_alarm,
+                    stale_detail,
+                ));
+            }
+            for (index, active, detail) in [
+                (
+                    AlarmIndex::SensorOutOfRange,
+                    oor,
+                    format!("tag {} out of range or at an implausible time; {parts}", tp.name),
+                ),
+                (AlarmIndex::SensorBadQuality, badq, format!("tag {} reports bad quality; {parts}", tp.name)),
+            ] {
+                // No record until the fault first happens.
+                let key = crate::alarm::record::key(&tp.name, index);
+                if !active && self.book.record(&key).is_none() {
+                    continue;
+                }
+                evaluations.push((tp.name.clone(), unit.clone(), affects.clone(), index, active, detail));
+            }
+        }
+        for (name, unit, affects, index, active, detail) in evaluations {
+            let detail = if active { detail } else { String::new() };
+            let ev = self.book.evaluate_sensor(&name, &unit, &affects, index, active, &detail, t);
+            self.note_events(ev);
+        }
+    }
+
+    /// The plant states in force now, from their tags' newest accepted
+    /// values (in the tag's own unit).
+    fn plant_state_rules(&self) -> Vec<crate::alarm::SuppressionRule> {
+        let plan = self.engine.plan();
+        self.service
+            .alarms
+            .plant_states
+            .iter()
+            .filter(|ps| {
+                plan.tags.iter().position(|t| t.name == ps.tag).is_some_and(|ti| {
+                    let tp = &plan.tags[ti];
+                    self.engine.tags()[ti].last.is_some_and(|(_, v)| ps.holds(tp.unit.from_internal(v)))
+                })
+            })
+            .map(|ps| ps.rule())
+            .collect()
+    }
+}
