@@ -13,6 +13,7 @@
 //! * `lsq`: the linear least-squares solver both fits share.
 //! * `report`, `svg`: terminal and JSON reports, the TOML block in the
 //!   material format, and SVG plots of data and curves.
+//! * [`units`]: the input file's units, shown beside SI in reports and plots.
 //!
 //! The fitting functions are pure ([`fit_larson_miller`], [`fit_norton`]);
 //! [`run`] is the thin shell that reads files, prints and writes.
@@ -28,6 +29,7 @@ mod lsq;
 pub mod norton;
 mod report;
 mod svg;
+pub mod units;
 
 pub use error::FitError;
 pub use input::{parse_rate_tests, parse_rupture_tests, RateTest, RuptureTest, TestFile};
@@ -196,6 +198,8 @@ struct JsonReport<'a, F: serde::Serialize> {
     input: &'a str,
     caution: &'a str,
     notes: &'a [String],
+    /// The units of the input file's columns (results are in SI).
+    input_units: units::InputUnits,
     fit: &'a F,
     toml: &'a str,
 }
@@ -206,6 +210,7 @@ struct Report<'a, F: serde::Serialize> {
     command: &'static str,
     shown: &'a str,
     notes: &'a [String],
+    units: units::InputUnits,
     fit: &'a F,
     /// The terminal report.
     text: String,
@@ -252,6 +257,7 @@ impl<F: serde::Serialize> Report<'_, F> {
                     input: self.shown,
                     caution: crate::CAUTION,
                     notes: self.notes,
+                    input_units: self.units,
                     fit: self.fit,
                     toml: self.block,
                 };
@@ -307,12 +313,19 @@ fn run_larson_miller(args: &LarsonMillerArgs, out: &mut dyn Write) -> anyhow::Re
         command: "fit larson-miller",
         shown: &shown,
         notes: &file.notes,
+        units: file.units,
         fit: &fit,
-        text: larson_miller_text(&fit, &shown, &file.notes),
+        text: larson_miller_text(&fit, &shown, &file.notes, file.units),
         block: &block,
         block_name: "material block",
     };
-    report.emit(args.format, args.output.as_deref(), args.plot.as_deref(), || larson_miller_svg(&fit, &name), out)
+    report.emit(
+        args.format,
+        args.output.as_deref(),
+        args.plot.as_deref(),
+        || larson_miller_svg(&fit, &name, file.units),
+        out,
+    )
 }
 
 fn run_norton(args: &NortonArgs, out: &mut dyn Write) -> anyhow::Result<()> {
@@ -328,10 +341,11 @@ fn run_norton(args: &NortonArgs, out: &mut dyn Write) -> anyhow::Result<()> {
         command: "fit norton",
         shown: &shown,
         notes: &file.notes,
+        units: file.units,
         fit: &fit,
-        text: norton_text(&fit, &shown, &file.notes),
+        text: norton_text(&fit, &shown, &file.notes, file.units),
         block: &block,
         block_name: "[norton] block",
     };
-    report.emit(args.format, args.output.as_deref(), args.plot.as_deref(), || norton_svg(&fit, &name), out)
+    report.emit(args.format, args.output.as_deref(), args.plot.as_deref(), || norton_svg(&fit, &name, file.units), out)
 }

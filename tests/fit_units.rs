@@ -1,0 +1,110 @@
+//! `lifeledger fit` on data in US customary units shows the input units
+//! beside SI (report, JSON, plot), and a fitted grade file can be included
+//! from a configuration directly (`[[material_file]]`), resolved relative
+//! to the configuration file and checked by `check-config`.
+//!
+//! Real `lifeledger` runs on the shipped example files in
+//! config/fit-examples. Conversions: NIST SP 811 (2008), appendix B.8:
+//! 1 ksi = 6.894 757 MPa; T/K = (t/°F + 459.67)/1.8; T/°R = 1.8·T/K.
+
+mod common;
+
+use common::BoundedOutput;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+fn example(name: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("config/fit-examples").join(name)
+}
+
+fn run(args: &[&str]) -> (i32, String, String) {
+    let o = Command::new(env!("CARGO_BIN_EXE_lifeledger")).args(args).bounded_output().unwrap();
+    (
+        o.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&o.stdout).into(),
+        String::from_utf8_lossy(&o.stderr).into(),
+    )
+}
+
+#[test]
+fn fit_from_fahrenheit_and_ksi_reports_and_plots_the_input_units_too() {
+    let dir = tempfile::tempdir().unwrap();
+    let svg = dir.path().join("lm.svg");
+    let input = example("rupture-tests-us-units.csv");
+    let (code, out, err) = run(&[
+        "fit",
+        "larson-miller",
+        "--input",
+        input.to_str().unwrap(),
+        "--constant",
+        "20",
+        "--order",
+        "2",
+        "--plot",
+        svg.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    // The data range in the input units: the file spans 1000–1150 °F and
+    // 10–42 ksi.
+    let data = out.lines().find(|l| l.starts_with("Data")).unwrap_or_else(|| panic!("no Data line:\n{out}"));
+    assert!(data.contains("1000–1150 °F"), "{data}");
+    assert!(data.contains("10–42 ksi"), "{data}");
+    assert!(data.contains("MPa") && data.contains(" K"), "SI stays: {data}");
+    // Residual table: a column in each input unit, with the file's values
+    // (first test: 1000 °F, 26 ksi).
+    let head = out.lines().find(|l| l.contains("heat/specimen")).unwrap();
+    assert!(head.contains("T, °F") && head.contains("σ, ksi") && head.contains("T, K"), "{head}");
+    let first = out.lines().find(|l| l.contains("US-1")).unwrap();
+    assert!(first.contains(" 1000.0 ") && first.contains(" 26.00 "), "{first}");
+    // The plot: stress axis in ksi beside MPa, legend temperatures in °F.
+    let s = std::fs::read_to_string(&svg).unwrap();
+    assert!(s.contains("stress, MPa") && s.contains("stress, ksi"), "no ksi axis");
+    assert!(s.contains("1000 °F"), "no °F in the legend");
+    // P with T in °R beside P with T in K (the US form of the parameter).
+    assert!(s.contains("°R"), "no P(°R) axis");
+
+    // JSON names the input units.
+    let (code, out, err) =
+        run(&["fit", "larson-miller", "--input", input.to_str().unwrap(), "--constant", "20", "--format", "json"]);
+    assert_eq!(code, 0, "{err}");
+    let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+    assert_eq!(v["input_units"]["temperature"], "degF");
+    assert_eq!(v["input_units"]["stress"], "ksi");
+}
+
+#[test]
+fn fit_in_si_units_adds_no_second_unit() {
+    let (code, out, err) =
+        run(&["fit", "larson-miller", "--input", example("rupture-tests.csv").to_str().unwrap(), "--constant", "20"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(!out.contains("ksi") && !out.contains("°F"), "{out}");
+}
+
+#[test]
+fn norton_fit_plot_shows_input_units() {
+    // A rate file in °F and ksi, written from the SI example (same tests).
+    let dir = tempfile::tempdir().unwrap();
+    let si = std::fs::read_to_string(example("creep-rate-tests.csv")).unwrap();
+    let mut lines = si.lines().filter(|l| !l.starts_with('#') && !l.trim().is_empty());
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let ti = header.iter().position(|h| *h == "temperature_c").expect("temperature_c column");
+    let si_col = header.iter().position(|h| *h == "stress_mpa").expect("stress_mpa column");
+    let mut us = header.iter().map(|h| h.replace("temperature_c", "temperature_f").replace("stress_mpa", "stress_ksi"));
+    let mut text = us.by_ref().collect::<Vec<_>>().join(",") + "\n";
+    for l in lines {
+        let mut f: Vec<String> = l.split(',').map(String::from).collect();
+        let c: f64 = f[ti].parse().unwrap();
+        let mpa: f64 = f[si_col].parse().unwrap();
+        f[ti] = format!("{}", c * 1.8 + 32.0);
+        f[si_col] = format!("{}", mpa / 6.894757);
+        text += &(f.join(",") + "\n");
+    }
+    let input = dir.path().join("rates-us.csv");
+    std::fs::write(&input, text).unwrap();
+    let svg = dir.path().join("n.svg");
+    let (code, out, err) = run(&["fit", "norton", "--input", input.to_str().unwrap(), "--plot", svg.to_str().unwrap()]);
+    assert_eq!(code, 0, "{err}");
+    assert!(out.lines().any(|l| l.starts_with("Data") && l.contains("°F") && l.contains("ksi")), "{out}");
+    let s = std::fs::read_to_string(&svg).unwrap();
+    assert!(s.contains("stress, ksi") && s.contains("°F"), "{s}");
+}
