@@ -108,3 +108,125 @@ fn norton_fit_plot_shows_input_units() {
     let s = std::fs::read_to_string(&svg).unwrap();
     assert!(s.contains("stress, ksi") && s.contains("°F"), "{s}");
 }
+
+/// A plant whose casing uses a grade from an included file.
+fn plant_with_material_file(path: &str) -> String {
+    format!(
+        r#"
+[plant]
+name = "Include Test Plant"
+
+[[tag]]
+name = "TE"
+unit = "degC"
+valid_range = [0.0, 700.0]
+
+[[material_file]]
+path = "{path}"
+
+[[component]]
+name = "CASING"
+unit = "U1"
+kind = "casing"
+material = "MY-HEAT"
+design_temperature = {{ value = 580.0, unit = "degC" }}
+metal_temperature = "TE"
+fixed_stress = {{ value = 120.0, unit = "MPa" }}
+"#
+    )
+}
+
+#[test]
+fn a_fitted_grade_file_is_included_from_the_configuration() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::create_dir(dir.path().join("grades")).unwrap();
+    let grade = dir.path().join("grades/my-heat.toml");
+    let (code, _, err) = run(&[
+        "fit",
+        "larson-miller",
+        "--input",
+        example("rupture-tests.csv").to_str().unwrap(),
+        "--melting-point-c",
+        "1450",
+        "--grade",
+        "MY-HEAT",
+        "--output",
+        grade.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    // Relative to the configuration file, not to the working directory.
+    let cfg = dir.path().join("plant.toml");
+    std::fs::write(&cfg, plant_with_material_file("grades/my-heat.toml")).unwrap();
+    let (code, out, err) = run(&["check-config", cfg.to_str().unwrap()]);
+    assert_eq!(code, 0, "check-config refused the include:\n{out}\n{err}");
+    // The grade in use is the file's, constants unchanged.
+    let (code, out, err) =
+        run(&["materials", "show", "MY-HEAT", "--config", cfg.to_str().unwrap(), "--format", "json"]);
+    assert_eq!(code, 0, "{err}");
+    let shown: serde_json::Value = serde_json::from_str(&out).unwrap();
+    let file: toml::Value = toml::from_str(&std::fs::read_to_string(&grade).unwrap()).unwrap();
+    let coeffs: Vec<f64> =
+        file["larson_miller"]["coefficients"].as_array().unwrap().iter().map(|v| v.as_float().unwrap()).collect();
+    let shown_coeffs: Vec<f64> = shown
+        .pointer("/material/larson_miller/coefficients")
+        .or_else(|| shown.pointer("/larson_miller/coefficients"))
+        .unwrap_or_else(|| panic!("no coefficients in {shown:#}"))
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .collect();
+    assert_eq!(coeffs, shown_coeffs);
+}
+
+#[test]
+fn include_problems_name_the_file_and_the_key() {
+    let dir = tempfile::tempdir().unwrap();
+    // A missing file.
+    let cfg = dir.path().join("plant.toml");
+    std::fs::write(&cfg, plant_with_material_file("grades/absent.toml")).unwrap();
+    let (code, out, err) = run(&["check-config", cfg.to_str().unwrap()]);
+    let all = format!("{out}{err}");
+    assert_ne!(code, 0, "{all}");
+    assert!(all.contains("absent.toml") && all.contains("path"), "{all}");
+    // A misspelt key inside the included file: file, line and key named.
+    let (code, _, e) = run(&[
+        "fit",
+        "larson-miller",
+        "--input",
+        example("rupture-tests.csv").to_str().unwrap(),
+        "--melting-point-c",
+        "1450",
+        "--grade",
+        "MY-HEAT",
+        "--output",
+        dir.path().join("my-heat.toml").to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{e}");
+    let text = std::fs::read_to_string(dir.path().join("my-heat.toml")).unwrap().replace("constant_c", "costant_c");
+    std::fs::write(dir.path().join("my-heat.toml"), &text).unwrap();
+    let line = text.lines().position(|l| l.starts_with("costant_c")).unwrap() + 1;
+    std::fs::write(&cfg, plant_with_material_file("my-heat.toml")).unwrap();
+    let (code, out, err) = run(&["check-config", cfg.to_str().unwrap()]);
+    let all = format!("{out}{err}");
+    assert_ne!(code, 0, "{all}");
+    assert!(all.contains("my-heat.toml"), "{all}");
+    assert!(all.contains(&format!("line {line}")), "{all}");
+    assert!(all.contains("costant_c") && all.contains("constant_c"), "did you mean: {all}");
+    // A fragment (no grade) is not a grade file: say how to make one.
+    let frag = dir.path().join("frag.toml");
+    let (code, _, e) = run(&[
+        "fit",
+        "larson-miller",
+        "--input",
+        example("rupture-tests.csv").to_str().unwrap(),
+        "--output",
+        frag.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{e}");
+    std::fs::write(&cfg, plant_with_material_file("frag.toml")).unwrap();
+    let (code, out, err) = run(&["check-config", cfg.to_str().unwrap()]);
+    let all = format!("{out}{err}");
+    assert_ne!(code, 0, "{all}");
+    assert!(all.contains("frag.toml") && all.contains("--melting-point"), "{all}");
+}

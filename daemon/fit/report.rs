@@ -63,7 +63,8 @@ pub fn larson_miller_toml(
             Ok(toml_header(
                 "larson-miller",
                 input_name,
-                "A complete grade file of the material library (creep threshold defaults to 0.4·Tm).",
+                "A complete grade file of the material library (creep threshold defaults to 0.4·Tm);\n\
+                 # use it from a configuration with [[material_file]] path = \"THIS FILE\".",
             ) + &toml::to_string(&material)?)
         }
         None => Ok(toml_header(
