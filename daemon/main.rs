@@ -1123,6 +1123,8 @@ fn cmd_check(config: PathBuf, format: Format, file_only: bool) -> Result<i32> {
     }
     let service_summary = serde_json::json!({
         "mqtt": format!("{}:{}", service.mqtt.host, service.mqtt.port),
+        "topic_prefix": service.mqtt.topic_prefix,
+        "client_id": service.mqtt.client_id,
         "store": service.store.path.display().to_string(),
         "database": service.database.as_ref().map(|d| lifeledger::sink::redacted_url(&d.url)),
         "http": service.http.listen,
@@ -1154,6 +1156,12 @@ fn cmd_check(config: PathBuf, format: Format, file_only: bool) -> Result<i32> {
         service.store.path.display(),
         service.database.as_ref().map_or("none".to_string(), |d| lifeledger::sink::redacted_url(&d.url)),
         service.http.listen
+    )?;
+    writeln!(
+        out,
+        "MQTT topics: status, alarms and commands under \"{}/\", client id \"{}\": \
+         every instance on one broker needs its own [mqtt] topic_prefix and client_id",
+        service.mqtt.topic_prefix, service.mqtt.client_id
     )?;
     for w in &warnings {
         writeln!(out, "warning: {w}")?;
