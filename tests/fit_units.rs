@@ -230,3 +230,35 @@ fn include_problems_name_the_file_and_the_key() {
     assert_ne!(code, 0, "{all}");
     assert!(all.contains("frag.toml") && all.contains("--melting-point"), "{all}");
 }
+
+#[test]
+fn show_units_chooses_the_second_unit() {
+    // SI data shown in US units too: the example spans 550–625 °C
+    // (1022–1157 °F) and 80–300 MPa (11.6–43.5 ksi).
+    let (code, out, err) = run(&[
+        "fit",
+        "larson-miller",
+        "--input",
+        example("rupture-tests.csv").to_str().unwrap(),
+        "--constant",
+        "20",
+        "--show-units",
+        "us",
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let data = out.lines().find(|l| l.starts_with("Data")).unwrap();
+    assert!(data.contains("1022–1157 °F") && data.contains("ksi"), "{data}");
+    // US data shown in SI only.
+    let (code, out, err) = run(&[
+        "fit",
+        "larson-miller",
+        "--input",
+        example("rupture-tests-us-units.csv").to_str().unwrap(),
+        "--constant",
+        "20",
+        "--show-units",
+        "si",
+    ]);
+    assert_eq!(code, 0, "{err}");
+    assert!(!out.contains("ksi") && !out.contains("°F"), "{out}");
+}

@@ -58,6 +58,28 @@ const INPUT_HELP: &str = "Columns are named by quantity and unit: temperature_c 
 temperature_f, stress_mpa | stress_ksi | stress_psi, and optional heat, specimen. Lines starting \
 with '#' are comments; other columns are ignored.";
 
+/// Which units reports and plots show beside K and MPa.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, clap::ValueEnum)]
+pub enum ShowUnits {
+    /// The input file's units (°F, ksi, psi), when they are not SI.
+    #[default]
+    Input,
+    /// °F and ksi, whatever the input.
+    Us,
+    /// K, °C and MPa only.
+    Si,
+}
+
+impl ShowUnits {
+    fn pick(self, file: units::InputUnits) -> units::InputUnits {
+        match self {
+            ShowUnits::Input => file,
+            ShowUnits::Us => units::InputUnits { temperature: "degF", stress: "ksi" },
+            ShowUnits::Si => units::InputUnits::default(),
+        }
+    }
+}
+
 /// Fit material constants to creep test data (screening fits).
 #[derive(Debug, Clone, PartialEq, clap::Subcommand)]
 pub enum FitCommand {
@@ -139,6 +161,9 @@ pub struct LarsonMillerArgs {
     /// Write an SVG plot of stress against the Larson-Miller parameter to this file.
     #[arg(long, value_name = "FILE.svg")]
     pub plot: Option<PathBuf>,
+    /// Units shown beside K and MPa in the report and the plot.
+    #[arg(long, value_enum, default_value_t = ShowUnits::Input)]
+    pub show_units: ShowUnits,
 }
 
 /// Arguments of `lifeledger fit norton`.
@@ -163,6 +188,9 @@ pub struct NortonArgs {
     /// Write an SVG plot of creep rate against stress (log-log) to this file.
     #[arg(long, value_name = "FILE.svg")]
     pub plot: Option<PathBuf>,
+    /// Units shown beside K and MPa in the report and the plot.
+    #[arg(long, value_enum, default_value_t = ShowUnits::Input)]
+    pub show_units: ShowUnits,
 }
 
 /// Run a `lifeledger fit` command, printing the report to standard output.
@@ -315,7 +343,7 @@ fn run_larson_miller(args: &LarsonMillerArgs, out: &mut dyn Write) -> anyhow::Re
         notes: &file.notes,
         units: file.units,
         fit: &fit,
-        text: larson_miller_text(&fit, &shown, &file.notes, file.units),
+        text: larson_miller_text(&fit, &shown, &file.notes, args.show_units.pick(file.units)),
         block: &block,
         block_name: "material block",
     };
@@ -323,7 +351,7 @@ fn run_larson_miller(args: &LarsonMillerArgs, out: &mut dyn Write) -> anyhow::Re
         args.format,
         args.output.as_deref(),
         args.plot.as_deref(),
-        || larson_miller_svg(&fit, &name, file.units),
+        || larson_miller_svg(&fit, &name, args.show_units.pick(file.units)),
         out,
     )
 }
@@ -343,9 +371,15 @@ fn run_norton(args: &NortonArgs, out: &mut dyn Write) -> anyhow::Result<()> {
         notes: &file.notes,
         units: file.units,
         fit: &fit,
-        text: norton_text(&fit, &shown, &file.notes, file.units),
+        text: norton_text(&fit, &shown, &file.notes, args.show_units.pick(file.units)),
         block: &block,
         block_name: "[norton] block",
     };
-    report.emit(args.format, args.output.as_deref(), args.plot.as_deref(), || norton_svg(&fit, &name, file.units), out)
+    report.emit(
+        args.format,
+        args.output.as_deref(),
+        args.plot.as_deref(),
+        || norton_svg(&fit, &name, args.show_units.pick(file.units)),
+        out,
+    )
 }

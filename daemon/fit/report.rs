@@ -112,15 +112,17 @@ fn data_range(o: &mut String, [s0, s1]: [f64; 2], [t0, t1]: [f64; 2], temperatur
         plural(temperatures, "temperature", "temperatures")
     );
     if units.fahrenheit() || units.stress_alt().is_some() {
+        let mut also = vec![];
+        if units.fahrenheit() {
+            also.push("°F");
+        }
+        if let Some((u, _)) = units.stress_alt() {
+            also.push(u);
+        }
         let _ = writeln!(
             o,
-            "Input     temperature in {}, stress in {}; fitted in K and MPa (NIST SP 811 conversions)",
-            match units.temperature {
-                "degF" => "°F",
-                "K" => "K",
-                _ => "°C",
-            },
-            units.stress
+            "Units     fitted in K and MPa; also shown in {} (NIST SP 811 conversions)",
+            also.join(" and ")
         );
     }
 }
