@@ -12,7 +12,9 @@
 //! Life fraction, strain and wear grow monotonically between two observed
 //! instants, and at constant conditions they grow linearly, so their
 //! crossing time is interpolated linearly within the step (`interpolated`);
-//! the others are judged at the integrated instants (`step`). A level
+//! the others are judged at the integrated instants (`step`), projected
+//! hours at most every ten minutes of event time (their levels are
+//! hundreds to thousands of hours). A level
 //! already reached by the initial values (`[component.initial]`, an
 //! inspection) is listed at the first instant with basis `initial`.
 //! Only the first crossing is kept: a timeline, not an alarm journal.
@@ -52,6 +54,9 @@ pub struct Crossing {
 }
 
 const N: usize = 5;
+
+/// Spacing of event time at which projected hours are judged.
+pub const HOURS_EVERY_MS: i64 = 600_000;
 const INDICES: [AlarmIndex; N] = [
     AlarmIndex::CreepLifeFraction,
     AlarmIndex::CreepStrain,
@@ -66,6 +71,10 @@ struct Track {
     last: Option<(i64, [f64; N])>,
     /// Which (index, severity) were crossed already.
     done: [[bool; 3]; N],
+    /// When the projected hours were last worked out (at most once per
+    /// [`HOURS_EVERY_MS`] of event time: the projection costs a rupture
+    /// life at design conditions).
+    hours_at_ms: Option<i64>,
     crossings: Vec<Crossing>,
 }
 
@@ -75,31 +84,41 @@ pub struct Timeline {
     tracks: Vec<Track>,
 }
 
-/// The levels and the present value of each timeline index; NaN where the
-/// index does not apply or has no value now.
-fn values(plan: &ComponentPlan, st: &ComponentState) -> [(Levels, f64); N] {
+/// The levels of each timeline index.
+fn levels(plan: &ComponentPlan) -> [Levels; N] {
+    let th = &plan.thresholds;
+    [th.life_fraction, th.creep_strain, th.wear_index, th.over_design_temperature_k, th.hours_to_critical]
+}
+
+/// The present value of each timeline index that is `wanted`; NaN where
+/// the index does not apply, has no value now or is not wanted (every
+/// level crossed already: the projection is not worked out for nothing).
+fn values(plan: &ComponentPlan, st: &ComponentState, wanted: [bool; N]) -> [f64; N] {
     let th = &plan.thresholds;
     let has_creep = plan.metal_temperature.is_some();
     let nan = f64::NAN;
-    let over_design = plan
-        .design_temperature_k
-        .filter(|_| has_creep && st.integrated_to_ms.is_some() && !st.now.unmonitored)
-        .map_or(nan, |d| st.now.metal_temperature_k - d);
-    let critical = th.life_fraction.top();
-    let hours = if has_creep && critical.is_some() && th.hours_to_critical.iter().next().is_some() {
-        critical
-            .and_then(|l| hours_to_threshold(st.life_fraction, l, projection(plan, st).life_fraction_rate_per_h))
-            .unwrap_or(f64::INFINITY)
-    } else {
-        nan
-    };
-    [
-        (th.life_fraction, if has_creep { st.life_fraction } else { nan }),
-        (th.creep_strain, if has_creep && plan.material.norton.is_some() { st.creep_strain } else { nan }),
-        (th.wear_index, if plan.wear.is_some() { st.wear_index(plan) } else { nan }),
-        (th.over_design_temperature_k, over_design),
-        (th.hours_to_critical, hours),
-    ]
+    let mut v = [nan; N];
+    if wanted[0] && has_creep {
+        v[0] = st.life_fraction;
+    }
+    if wanted[1] && has_creep && plan.material.norton.is_some() {
+        v[1] = st.creep_strain;
+    }
+    if wanted[2] && plan.wear.is_some() {
+        v[2] = st.wear_index(plan);
+    }
+    if wanted[3] && has_creep && st.integrated_to_ms.is_some() && !st.now.unmonitored {
+        if let Some(d) = plan.design_temperature_k {
+            v[3] = st.now.metal_temperature_k - d;
+        }
+    }
+    if wanted[4] && has_creep {
+        if let Some(critical) = th.life_fraction.top() {
+            v[4] = hours_to_threshold(st.life_fraction, critical, projection(plan, st).life_fraction_rate_per_h)
+                .unwrap_or(f64::INFINITY);
+        }
+    }
+    v
 }
 
 impl Timeline {
@@ -112,10 +131,24 @@ impl Timeline {
     pub fn observe(&mut self, ci: usize, plan: &ComponentPlan, st: &ComponentState) {
         let Some(t) = st.integrated_to_ms else { return };
         let Some(track) = self.tracks.get_mut(ci) else { return };
-        let now = values(plan, st);
-        let mut current = [f64::NAN; N];
-        for (k, (levels, v)) in now.iter().enumerate() {
-            current[k] = *v;
+        let levels = levels(plan);
+        let mut wanted = [false; N];
+        for (k, l) in levels.iter().enumerate() {
+            let sets = [l.advisory, l.warning, l.critical];
+            wanted[k] = (0..3).any(|s| sets[s].is_some() && !track.done[k][s]);
+        }
+        if wanted[4] {
+            if track.hours_at_ms.is_some_and(|h| t - h < HOURS_EVERY_MS) {
+                wanted[4] = false;
+            } else {
+                track.hours_at_ms = Some(t);
+            }
+        }
+        if !wanted.iter().any(|w| *w) {
+            return;
+        }
+        let current = values(plan, st, wanted);
+        for (k, (levels, v)) in levels.iter().zip(current.iter()).enumerate() {
             if v.is_nan() {
                 continue;
             }
