@@ -243,3 +243,32 @@ fn replay_writes_the_component_series_as_csv_with_the_database_fields() {
     let lp_states = lp.lines().filter(|l| l.starts_with("component_state,")).count();
     assert_eq!(lp_states, rows.len());
 }
+
+#[test]
+fn a_level_the_initial_value_reaches_is_listed_at_the_start() {
+    let dir = tempfile::tempdir().unwrap();
+    // From the last inspection: a quarter of the life used already.
+    let text =
+        config().replace("[component.thresholds]", "[component.initial]\nlife_fraction = 0.25\n[component.thresholds]");
+    let cfg = write(dir.path(), "plant.toml", &text);
+    let csv = write(dir.path(), "h.csv", &history());
+    let (out, _) =
+        run(&["replay", "--config", cfg.to_str().unwrap(), "--input", csv.to_str().unwrap(), "--format", "json"]);
+    let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+    let timeline = v["components"][0]["timeline"].as_array().unwrap().clone();
+    let find = |sev: &str| {
+        timeline
+            .iter()
+            .find(|e| e["index"] == "creep_life_fraction" && e["severity"] == sev)
+            .unwrap_or_else(|| panic!("no {sev}: {timeline:#?}"))
+            .clone()
+    };
+    let adv = find("advisory");
+    assert_eq!(adv["basis"], "initial");
+    assert_eq!(ms(adv["time"].as_str().unwrap()), T0_MS);
+    // Warning 0.5: (0.5 − 0.25) · t_r after the start (Robinson, linear sum).
+    let warn = find("warning");
+    assert_eq!(warn["basis"], "interpolated");
+    let h = hours_after_start(warn["time"].as_str().unwrap());
+    assert!((h - 0.25 * rupture_h()).abs() < 1.0 / 3600.0, "{h} h vs {} h", 0.25 * rupture_h());
+}
