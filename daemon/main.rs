@@ -62,8 +62,13 @@ enum Command {
         /// Also write the component time series as InfluxDB line protocol.
         #[arg(long, value_name = "FILE")]
         write_lp: Option<PathBuf>,
-        /// Event-time spacing of the line-protocol series, seconds.
-        #[arg(long, default_value_t = 600)]
+        /// Also write the component time series as CSV: one row per
+        /// component per series interval, the fields of the database's
+        /// `component_state` points.
+        #[arg(long, value_name = "FILE")]
+        write_csv: Option<PathBuf>,
+        /// Event-time spacing of the series (line protocol and CSV), seconds.
+        #[arg(long, visible_alias = "series-interval-s", default_value_t = 600)]
         lp_interval_s: i64,
         /// Never show a progress bar (it is shown only on a terminal anyway).
         #[arg(long)]
@@ -430,8 +435,8 @@ fn main() {
                 .and_then(|rt| rt.block_on(lifeledger::demo::run(opts)))
                 .map(|_| 0)
         }
-        Command::Replay { config, input, format, write_lp, lp_interval_s, no_progress, inspections } => {
-            cmd_replay(config, input, format, write_lp, lp_interval_s, no_progress, inspections)
+        Command::Replay { config, input, format, write_lp, write_csv, lp_interval_s, no_progress, inspections } => {
+            cmd_replay(config, input, format, write_lp, write_csv, lp_interval_s, no_progress, inspections)
         }
         Command::CheckConfig { config, config_flag, format, file_only } => {
             // clap requires exactly one of the two.
@@ -511,11 +516,75 @@ fn load(config: &std::path::Path) -> Result<lifeledger::settings::LoadedConfig> 
     load_plan(config).map_err(|e| anyhow::anyhow!("{e}"))
 }
 
+/// The component reports as JSON, each with its `timeline`: the first
+/// crossing of each alarm level, in event time.
+fn timeline_json(
+    reports: &[report::ComponentReport],
+    crossings: &[Vec<lifeledger::replay::timeline::Crossing>],
+) -> Result<serde_json::Value> {
+    let mut list = Vec::with_capacity(reports.len());
+    for (r, cs) in reports.iter().zip(crossings) {
+        let mut v = serde_json::to_value(r)?;
+        let tl: Vec<serde_json::Value> = cs
+            .iter()
+            .map(|c| {
+                serde_json::json!({
+                    "index": c.index,
+                    "severity": c.severity,
+                    "threshold": c.threshold,
+                    "time": report::rfc3339_ms(c.time_ms),
+                    "basis": c.basis,
+                })
+            })
+            .collect();
+        if let Some(o) = v.as_object_mut() {
+            o.insert("timeline".into(), serde_json::Value::Array(tl));
+        }
+        list.push(v);
+    }
+    Ok(serde_json::Value::Array(list))
+}
+
+/// The timeline as text: one line per first crossing, per component.
+fn timeline_text(
+    reports: &[report::ComponentReport],
+    crossings: &[Vec<lifeledger::replay::timeline::Crossing>],
+) -> String {
+    use lifeledger::replay::timeline::CrossingBasis;
+    let mut s = String::from("\nLevels first crossed (event time):\n");
+    if crossings.iter().all(|c| c.is_empty()) {
+        s.push_str("  none\n");
+        return s;
+    }
+    for (r, cs) in reports.iter().zip(crossings) {
+        for c in cs {
+            let how = match c.basis {
+                CrossingBasis::Interpolated => "",
+                CrossingBasis::Step => " (at an integrated instant)",
+                CrossingBasis::Initial => " (initial value, before the history)",
+            };
+            s.push_str(&format!(
+                "  {:<24} {:<30} {:<8} {:>10}  {}{}\n",
+                r.component,
+                c.index,
+                c.severity,
+                lifeledger::alarm::AlarmIndex::from_name(c.index)
+                    .map_or(c.threshold.to_string(), |i| i.display(c.threshold)),
+                report::rfc3339_ms(c.time_ms),
+                how
+            ));
+        }
+    }
+    s
+}
+
+#[allow(clippy::too_many_arguments)]
 fn cmd_replay(
     config: PathBuf,
     input: String,
     format: Format,
     write_lp: Option<PathBuf>,
+    write_csv: Option<PathBuf>,
     lp_interval_s: i64,
     no_progress: bool,
     inspections: Option<PathBuf>,
@@ -549,27 +618,43 @@ fn cmd_replay(
         )),
         None => None,
     };
+    let mut csv_file = match &write_csv {
+        Some(p) => Some(std::io::BufWriter::new(
+            std::fs::File::create(p).with_context(|| format!("cannot create {}", p.display()))?,
+        )),
+        None => None,
+    };
     let opts = lifeledger::replay::ReplayOptions {
         lp_interval_ms: lp_interval_s.max(1) * 1000,
         ..lifeledger::replay::ReplayOptions::default()
     };
+    let mut timeline = lifeledger::replay::timeline::Timeline::new(engine.components().len());
     let started = std::time::Instant::now();
-    let outcome =
-        lifeledger::replay::replay(&mut engine, reader, lp_file.as_mut().map(|w| w as &mut dyn Write), &opts, |rows| {
-            if let Some(b) = &bar {
-                b.set_position(counter.load(std::sync::atomic::Ordering::Relaxed));
-                b.set_message(format!("{rows} rows"));
-            }
-        })
-        .with_context(|| format!("reading {input}"))?;
+    let outputs = lifeledger::replay::Outputs {
+        lp: lp_file.as_mut().map(|w| w as &mut dyn Write),
+        csv: csv_file.as_mut().map(|w| w as &mut dyn Write),
+        timeline: Some(&mut timeline),
+    };
+    let outcome = lifeledger::replay::replay_to(&mut engine, reader, outputs, &opts, |rows| {
+        if let Some(b) = &bar {
+            b.set_position(counter.load(std::sync::atomic::Ordering::Relaxed));
+            b.set_message(format!("{rows} rows"));
+        }
+    })
+    .with_context(|| format!("reading {input}"))?;
     if let Some(b) = bar {
         b.finish_and_clear();
     }
     if let Some(mut f) = lp_file {
         f.flush()?;
     }
+    if let Some(mut f) = csv_file {
+        f.flush()?;
+    }
     let elapsed = started.elapsed().as_secs_f64();
     let reports = component_reports(&engine);
+    let crossings: Vec<Vec<lifeledger::replay::timeline::Crossing>> =
+        (0..engine.components().len()).map(|ci| timeline.crossings(ci)).collect();
     let mut out = std::io::stdout().lock();
     match format {
         Format::Json => {
@@ -586,7 +671,8 @@ fn cmd_replay(
                 "last_sample": outcome.last_time_ms.map(report::rfc3339_ms),
                 "counters": engine.counters(),
                 "line_protocol_points": outcome.points_written,
-                "components": reports,
+                "csv_rows": outcome.csv_rows,
+                "components": timeline_json(&reports, &crossings)?,
                 "caution": lifeledger::CAUTION,
             });
             serde_json::to_writer_pretty(&mut out, &j)?;
@@ -623,8 +709,12 @@ fn cmd_replay(
             }
             writeln!(out)?;
             write!(out, "{}", report::summary_table(&reports))?;
+            write!(out, "{}", timeline_text(&reports, &crossings))?;
             if let Some(p) = &write_lp {
                 writeln!(out, "\nwrote {} line-protocol points to {}", outcome.points_written, p.display())?;
+            }
+            if let Some(p) = &write_csv {
+                writeln!(out, "wrote {} CSV rows to {}", outcome.csv_rows, p.display())?;
             }
             writeln!(out, "\n{}", lifeledger::CAUTION)?;
         }
@@ -1033,6 +1123,8 @@ fn cmd_check(config: PathBuf, format: Format, file_only: bool) -> Result<i32> {
     }
     let service_summary = serde_json::json!({
         "mqtt": format!("{}:{}", service.mqtt.host, service.mqtt.port),
+        "topic_prefix": service.mqtt.topic_prefix,
+        "client_id": service.mqtt.client_id,
         "store": service.store.path.display().to_string(),
         "database": service.database.as_ref().map(|d| lifeledger::sink::redacted_url(&d.url)),
         "http": service.http.listen,
@@ -1064,6 +1156,12 @@ fn cmd_check(config: PathBuf, format: Format, file_only: bool) -> Result<i32> {
         service.store.path.display(),
         service.database.as_ref().map_or("none".to_string(), |d| lifeledger::sink::redacted_url(&d.url)),
         service.http.listen
+    )?;
+    writeln!(
+        out,
+        "MQTT topics: status, alarms and commands under \"{}/\", client id \"{}\": \
+         every instance on one broker needs its own [mqtt] topic_prefix and client_id",
+        service.mqtt.topic_prefix, service.mqtt.client_id
     )?;
     for w in &warnings {
         writeln!(out, "warning: {w}")?;

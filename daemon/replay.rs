@@ -6,6 +6,13 @@
 //! their magic bytes). A malformed row is counted and reported with its
 //! line number; it never stops the replay. Rows for tags that are not in
 //! the configuration are counted per tag.
+//!
+//! Beside the end state a replay can give the component series (line
+//! protocol, and CSV through [`series_csv`]) at a fixed spacing of event
+//! time, and the [`timeline`] of when each alarm level was first crossed.
+
+pub mod series_csv;
+pub mod timeline;
 
 use crate::engine::{Engine, Quality, Sample, TagId};
 use crate::report::component_point;
@@ -59,6 +66,8 @@ pub struct ReplayOutcome {
     pub first_time_ms: Option<i64>,
     pub last_time_ms: Option<i64>,
     pub points_written: u64,
+    /// Rows written to the CSV series.
+    pub csv_rows: u64,
     /// The first rows rejected for an implausible event time.
     pub implausible_examples: Vec<MalformedRow>,
 }
@@ -283,11 +292,36 @@ impl Read for CountingReader {
 /// `tick` is called every 65 536 rows (for progress display).
 pub fn replay(
     engine: &mut Engine,
+    input: impl BufRead,
+    lp: Option<&mut dyn Write>,
+    opts: &ReplayOptions,
+    tick: impl FnMut(u64),
+) -> io::Result<ReplayOutcome> {
+    replay_to(engine, input, Outputs { lp, ..Outputs::default() }, opts, tick)
+}
+
+/// What a replay writes besides its outcome.
+#[derive(Default)]
+pub struct Outputs<'a> {
+    /// Component series as line protocol.
+    pub lp: Option<&'a mut dyn Write>,
+    /// The same series as CSV ([`series_csv`]).
+    pub csv: Option<&'a mut dyn Write>,
+    /// First level crossings, observed after every step of the engine.
+    pub timeline: Option<&'a mut timeline::Timeline>,
+}
+
+/// [`replay`] with every output: line protocol, CSV and the timeline.
+pub fn replay_to(
+    engine: &mut Engine,
     mut input: impl BufRead,
-    mut lp: Option<&mut dyn Write>,
+    outputs: Outputs<'_>,
     opts: &ReplayOptions,
     mut tick: impl FnMut(u64),
 ) -> io::Result<ReplayOutcome> {
+    let Outputs { lp, csv, timeline } = outputs;
+    let mut csv = csv.map(series_csv::CsvSeries::new);
+    let mut series = Series { lp, csv: csv.as_mut(), timeline };
     let index = tag_index(engine);
     let mut out = ReplayOutcome::default();
     let mut line = String::with_capacity(128);
@@ -361,56 +395,87 @@ pub fn replay(
                 ),
             });
         }
-        if let Some(w) = lp.as_deref_mut() {
-            write_series(engine, w, &plant, &mut next_lp, interval, &mut touched, &mut out)?;
+        if series.wanted() {
+            series.write(engine, &plant, &mut next_lp, interval, &mut touched, &mut out)?;
         }
     }
     // The end of the input: integrate what the reorder window still holds.
     engine.flush();
-    if let Some(w) = lp {
-        write_series(engine, w, &plant, &mut next_lp, interval, &mut touched, &mut out)?;
+    if series.wanted() {
+        series.write(engine, &plant, &mut next_lp, interval, &mut touched, &mut out)?;
+    }
+    if let Some(c) = series.csv.as_mut() {
+        c.finish()?;
     }
     tick(out.rows);
     Ok(out)
 }
 
-/// Write a `component_state` point (and its threshold lines) for every
-/// component advanced since the last call whose integration passed its
-/// next series instant.
-fn write_series(
-    engine: &mut Engine,
-    w: &mut dyn Write,
-    plant: &str,
-    next_lp: &mut [i64],
-    interval: i64,
-    touched: &mut Vec<u32>,
-    out: &mut ReplayOutcome,
-) -> io::Result<()> {
-    engine.drain_touched(touched);
-    for &ci in touched.iter() {
-        let ci = ci as usize;
-        let next = &mut next_lp[ci];
-        let st = &engine.components()[ci];
-        let Some(t) = st.integrated_to_ms else { continue };
-        // No point before anything is known (the first sample alone gives
-        // no conditions: 0 K, 0 MPa); the live service keeps the same rule.
-        if t >= *next && crate::report::conditions_known(&engine.plan().components[ci], st) {
-            let plan = &engine.plan().components[ci];
-            let p = component_point(plant, plan, st, t);
-            if let Some(line) = p.to_line() {
-                writeln!(w, "{line}")?;
-                out.points_written += 1;
-            }
-            // Threshold lines beside the series, as the live service writes them.
-            for tp in crate::report::threshold_points(plant, plan, t) {
-                if let Some(line) = tp.to_line() {
-                    writeln!(w, "{line}")?;
-                }
-            }
-            *next = (t.div_euclid(interval) + 1) * interval;
-        }
+/// The per-step outputs of a replay.
+struct Series<'a, 'b> {
+    lp: Option<&'a mut dyn Write>,
+    csv: Option<&'b mut series_csv::CsvSeries<'a>>,
+    timeline: Option<&'a mut timeline::Timeline>,
+}
+
+impl Series<'_, '_> {
+    fn wanted(&self) -> bool {
+        self.lp.is_some() || self.csv.is_some() || self.timeline.is_some()
     }
-    Ok(())
+
+    /// Write a `component_state` point (line protocol with its threshold
+    /// lines, and a CSV row) for every component advanced since the last
+    /// call whose integration passed its next series instant, and show
+    /// each advanced component to the timeline.
+    fn write(
+        &mut self,
+        engine: &mut Engine,
+        plant: &str,
+        next_lp: &mut [i64],
+        interval: i64,
+        touched: &mut Vec<u32>,
+        out: &mut ReplayOutcome,
+    ) -> io::Result<()> {
+        engine.drain_touched(touched);
+        for &ci in touched.iter() {
+            let ci = ci as usize;
+            let st = &engine.components()[ci];
+            let plan = &engine.plan().components[ci];
+            if let Some(tl) = self.timeline.as_deref_mut() {
+                tl.observe(ci, plan, st);
+            }
+            if self.lp.is_none() && self.csv.is_none() {
+                continue;
+            }
+            let next = &mut next_lp[ci];
+            let Some(t) = st.integrated_to_ms else { continue };
+            // No point before anything is known (the first sample alone gives
+            // no conditions: 0 K, 0 MPa); the live service keeps the same rule.
+            if t >= *next && crate::report::conditions_known(plan, st) {
+                let p = component_point(plant, plan, st, t);
+                if let Some(w) = self.lp.as_deref_mut() {
+                    if let Some(line) = p.to_line() {
+                        writeln!(w, "{line}")?;
+                        out.points_written += 1;
+                    }
+                    // Threshold lines beside the series, as the live service writes them.
+                    for tp in crate::report::threshold_points(plant, plan, t) {
+                        if let Some(line) = tp.to_line() {
+                            writeln!(w, "{line}")?;
+                        }
+                    }
+                }
+                if let Some(c) = self.csv.as_deref_mut() {
+                    if !p.fields.is_empty() {
+                        c.write(&p)?;
+                        out.csv_rows += 1;
+                    }
+                }
+                *next = (t.div_euclid(interval) + 1) * interval;
+            }
+        }
+        Ok(())
+    }
 }
 
 #[cfg(test)]

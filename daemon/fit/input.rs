@@ -67,6 +67,8 @@ pub struct TestFile<T> {
     pub columns: Vec<String>,
     /// Things worth telling the user that are not errors (ignored columns).
     pub notes: Vec<String>,
+    /// The temperature and stress units of the columns.
+    pub units: super::units::InputUnits,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -416,7 +418,8 @@ pub fn parse_rupture_tests(text: &str, file: &str) -> Result<TestFile<RuptureTes
             specimen: r.specimen,
         })
         .collect();
-    Ok(TestFile { tests, columns, notes })
+    let units = super::units::InputUnits::from_columns(&columns);
+    Ok(TestFile { tests, columns, notes, units })
 }
 
 /// Read a minimum-creep-rate test file (`temperature_*`, `stress_*`,
@@ -435,7 +438,8 @@ pub fn parse_rate_tests(text: &str, file: &str) -> Result<TestFile<RateTest>, Fi
             specimen: r.specimen,
         })
         .collect();
-    Ok(TestFile { tests, columns, notes })
+    let units = super::units::InputUnits::from_columns(&columns);
+    Ok(TestFile { tests, columns, notes, units })
 }
 
 #[cfg(test)]

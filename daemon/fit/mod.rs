@@ -13,6 +13,7 @@
 //! * `lsq`: the linear least-squares solver both fits share.
 //! * `report`, `svg`: terminal and JSON reports, the TOML block in the
 //!   material format, and SVG plots of data and curves.
+//! * [`units`]: the input file's units, shown beside SI in reports and plots.
 //!
 //! The fitting functions are pure ([`fit_larson_miller`], [`fit_norton`]);
 //! [`run`] is the thin shell that reads files, prints and writes.
@@ -28,6 +29,7 @@ mod lsq;
 pub mod norton;
 mod report;
 mod svg;
+pub mod units;
 
 pub use error::FitError;
 pub use input::{parse_rate_tests, parse_rupture_tests, RateTest, RuptureTest, TestFile};
@@ -55,6 +57,28 @@ pub enum Format {
 const INPUT_HELP: &str = "Columns are named by quantity and unit: temperature_c | temperature_k | \
 temperature_f, stress_mpa | stress_ksi | stress_psi, and optional heat, specimen. Lines starting \
 with '#' are comments; other columns are ignored.";
+
+/// Which units reports and plots show beside K and MPa.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, clap::ValueEnum)]
+pub enum ShowUnits {
+    /// The input file's units (°F, ksi, psi), when they are not SI.
+    #[default]
+    Input,
+    /// °F and ksi, whatever the input.
+    Us,
+    /// K, °C and MPa only.
+    Si,
+}
+
+impl ShowUnits {
+    fn pick(self, file: units::InputUnits) -> units::InputUnits {
+        match self {
+            ShowUnits::Input => file,
+            ShowUnits::Us => units::InputUnits { temperature: "degF", stress: "ksi" },
+            ShowUnits::Si => units::InputUnits::default(),
+        }
+    }
+}
 
 /// Fit material constants to creep test data (screening fits).
 #[derive(Debug, Clone, PartialEq, clap::Subcommand)]
@@ -137,6 +161,9 @@ pub struct LarsonMillerArgs {
     /// Write an SVG plot of stress against the Larson-Miller parameter to this file.
     #[arg(long, value_name = "FILE.svg")]
     pub plot: Option<PathBuf>,
+    /// Units shown beside K and MPa in the report and the plot.
+    #[arg(long, value_enum, default_value_t = ShowUnits::Input)]
+    pub show_units: ShowUnits,
 }
 
 /// Arguments of `lifeledger fit norton`.
@@ -161,6 +188,9 @@ pub struct NortonArgs {
     /// Write an SVG plot of creep rate against stress (log-log) to this file.
     #[arg(long, value_name = "FILE.svg")]
     pub plot: Option<PathBuf>,
+    /// Units shown beside K and MPa in the report and the plot.
+    #[arg(long, value_enum, default_value_t = ShowUnits::Input)]
+    pub show_units: ShowUnits,
 }
 
 /// Run a `lifeledger fit` command, printing the report to standard output.
@@ -196,6 +226,8 @@ struct JsonReport<'a, F: serde::Serialize> {
     input: &'a str,
     caution: &'a str,
     notes: &'a [String],
+    /// The units of the input file's columns (results are in SI).
+    input_units: units::InputUnits,
     fit: &'a F,
     toml: &'a str,
 }
@@ -206,6 +238,7 @@ struct Report<'a, F: serde::Serialize> {
     command: &'static str,
     shown: &'a str,
     notes: &'a [String],
+    units: units::InputUnits,
     fit: &'a F,
     /// The terminal report.
     text: String,
@@ -252,6 +285,7 @@ impl<F: serde::Serialize> Report<'_, F> {
                     input: self.shown,
                     caution: crate::CAUTION,
                     notes: self.notes,
+                    input_units: self.units,
                     fit: self.fit,
                     toml: self.block,
                 };
@@ -307,12 +341,19 @@ fn run_larson_miller(args: &LarsonMillerArgs, out: &mut dyn Write) -> anyhow::Re
         command: "fit larson-miller",
         shown: &shown,
         notes: &file.notes,
+        units: file.units,
         fit: &fit,
-        text: larson_miller_text(&fit, &shown, &file.notes),
+        text: larson_miller_text(&fit, &shown, &file.notes, args.show_units.pick(file.units)),
         block: &block,
         block_name: "material block",
     };
-    report.emit(args.format, args.output.as_deref(), args.plot.as_deref(), || larson_miller_svg(&fit, &name), out)
+    report.emit(
+        args.format,
+        args.output.as_deref(),
+        args.plot.as_deref(),
+        || larson_miller_svg(&fit, &name, args.show_units.pick(file.units)),
+        out,
+    )
 }
 
 fn run_norton(args: &NortonArgs, out: &mut dyn Write) -> anyhow::Result<()> {
@@ -328,10 +369,17 @@ fn run_norton(args: &NortonArgs, out: &mut dyn Write) -> anyhow::Result<()> {
         command: "fit norton",
         shown: &shown,
         notes: &file.notes,
+        units: file.units,
         fit: &fit,
-        text: norton_text(&fit, &shown, &file.notes),
+        text: norton_text(&fit, &shown, &file.notes, args.show_units.pick(file.units)),
         block: &block,
         block_name: "[norton] block",
     };
-    report.emit(args.format, args.output.as_deref(), args.plot.as_deref(), || norton_svg(&fit, &name), out)
+    report.emit(
+        args.format,
+        args.output.as_deref(),
+        args.plot.as_deref(),
+        || norton_svg(&fit, &name, args.show_units.pick(file.units)),
+        out,
+    )
 }

@@ -4,6 +4,7 @@
 
 use super::larson_miller::{LmFit, OrderChoice};
 use super::norton::NortonFit;
+use super::units::{kelvin_to_fahrenheit, trimmed, InputUnits};
 use crate::physics::material::{LarsonMillerCurve, Material, NortonLaw, Sourced};
 use serde::{Deserialize, Serialize};
 use std::fmt::Write as _;
@@ -64,7 +65,8 @@ pub fn larson_miller_toml(
             Ok(toml_header(
                 "larson-miller",
                 input_name,
-                "A complete grade file of the material library (creep threshold defaults to 0.4·Tm).",
+                "A complete grade file of the material library (creep threshold defaults to 0.4·Tm);\n\
+                 # use it from a configuration with [[material_file]] path = \"THIS FILE\".",
             ) + &toml::to_string(&material)?)
         }
         None => Ok(toml_header(
@@ -90,17 +92,70 @@ fn mpa(v: f64) -> String {
     }
 }
 
-/// The "Data" line: the stress and temperature range the fit rests on.
-fn data_range(o: &mut String, [s0, s1]: [f64; 2], [t0, t1]: [f64; 2], temperatures: usize) {
+/// The "Data" line: the stress and temperature range the fit rests on,
+/// also in the input file's units when they are not SI.
+fn data_range(o: &mut String, [s0, s1]: [f64; 2], [t0, t1]: [f64; 2], temperatures: usize, units: InputUnits) {
+    let stress_alt = units
+        .stress_alt()
+        .map(|(u, f)| format!(" ({}–{} {u})", trimmed(s0 / f, 2), trimmed(s1 / f, 2)))
+        .unwrap_or_default();
+    let fahrenheit = if units.fahrenheit() {
+        format!("; {}–{} °F", trimmed(kelvin_to_fahrenheit(t0), 1), trimmed(kelvin_to_fahrenheit(t1), 1))
+    } else {
+        String::new()
+    };
     let _ = writeln!(
         o,
-        "Data      stress {}–{} MPa; temperature {t0:.2}–{t1:.2} K ({:.2}–{:.2} °C), {}",
+        "Data      stress {}–{} MPa{stress_alt}; temperature {t0:.2}–{t1:.2} K ({:.2}–{:.2} °C{fahrenheit}), {}",
         mpa(s0),
         mpa(s1),
         t0 - 273.15,
         t1 - 273.15,
         plural(temperatures, "temperature", "temperatures")
     );
+    if units.fahrenheit() || units.stress_alt().is_some() {
+        let mut also = vec![];
+        if units.fahrenheit() {
+            also.push("°F");
+        }
+        if let Some((u, _)) = units.stress_alt() {
+            also.push(u);
+        }
+        let _ = writeln!(
+            o,
+            "Units     fitted in K and MPa; also shown in {} (NIST SP 811 conversions)",
+            also.join(" and ")
+        );
+    }
+}
+
+/// Extra residual-table columns in the input units (temperature in °F,
+/// stress in ksi or psi): header cells and the cells of one test.
+fn alt_columns(units: InputUnits) -> String {
+    let mut h = String::new();
+    if units.fahrenheit() {
+        h.push_str(&format!(" {:>8}", "T, °F"));
+    }
+    if let Some((u, _)) = units.stress_alt() {
+        h.push_str(&format!(" {:>8}", format!("σ, {u}")));
+    }
+    h
+}
+
+fn alt_cells(units: InputUnits, temperature_k: f64, stress_mpa: f64) -> String {
+    let mut c = String::new();
+    if units.fahrenheit() {
+        c.push_str(&format!(" {:>8.1}", kelvin_to_fahrenheit(temperature_k)));
+    }
+    if let Some((u, f)) = units.stress_alt() {
+        let v = stress_mpa / f;
+        if u == "psi" {
+            c.push_str(&format!(" {v:>8.0}"));
+        } else {
+            c.push_str(&format!(" {v:>8.2}"));
+        }
+    }
+    c
 }
 
 fn plural(n: usize, one: &str, many: &str) -> String {
@@ -129,7 +184,8 @@ fn caution(out: &mut String) {
 }
 
 /// The terminal report of a Larson-Miller fit.
-pub fn larson_miller_text(fit: &LmFit, input_name: &str, notes: &[String]) -> String {
+/// Temperatures and stresses are also shown in the input's `units`.
+pub fn larson_miller_text(fit: &LmFit, input_name: &str, notes: &[String], units: InputUnits) -> String {
     let mut o = String::new();
     let _ = writeln!(o, "lifeledger fit larson-miller: {input_name}, {} tests", fit.n_tests);
     caution(&mut o);
@@ -196,7 +252,7 @@ pub fn larson_miller_text(fit: &LmFit, input_name: &str, notes: &[String]) -> St
         fit.minimum_offset_log10_h,
         10f64.powf(fit.minimum_offset_log10_h)
     );
-    data_range(&mut o, fit.stress_range_mpa, fit.temperature_range_k, fit.temperatures_k.len());
+    data_range(&mut o, fit.stress_range_mpa, fit.temperature_range_k, fit.temperatures_k.len(), units);
     let _ = writeln!(o);
     let _ = writeln!(
         o,
@@ -205,17 +261,28 @@ pub fn larson_miller_text(fit: &LmFit, input_name: &str, notes: &[String]) -> St
     );
     let _ = writeln!(
         o,
-        "  {:>5} {:<14} {:>8} {:>10} {:>11} {:>10} {:>8} {:>8} {:>8} {:>8}",
-        "line", "heat/specimen", "T, K", "σ, MPa", "t_r, h", "P", "obs", "fit", "resid", "std"
+        "  {:>5} {:<14} {:>8} {:>10}{} {:>11} {:>10} {:>8} {:>8} {:>8} {:>8}",
+        "line",
+        "heat/specimen",
+        "T, K",
+        "σ, MPa",
+        alt_columns(units),
+        "t_r, h",
+        "P",
+        "obs",
+        "fit",
+        "resid",
+        "std"
     );
     for r in &fit.residuals {
         let _ = writeln!(
             o,
-            "  {:>5} {:<14} {:>8.2} {:>10.3} {:>11.4e} {:>10.1} {:>8.4} {:>8.4} {:>+8.4} {:>8}{}",
+            "  {:>5} {:<14} {:>8.2} {:>10.3}{} {:>11.4e} {:>10.1} {:>8.4} {:>8.4} {:>+8.4} {:>8}{}",
             r.line,
             id(&r.heat, &r.specimen),
             r.temperature_k,
             r.stress_mpa,
+            alt_cells(units, r.temperature_k, r.stress_mpa),
             r.rupture_h,
             r.parameter,
             r.log10_observed_h,
@@ -247,7 +314,8 @@ fn warnings_and_notes(o: &mut String, warnings: &[String], notes: &[String]) {
 }
 
 /// The terminal report of a Norton fit.
-pub fn norton_text(fit: &NortonFit, input_name: &str, notes: &[String]) -> String {
+/// Temperatures and stresses are also shown in the input's `units`.
+pub fn norton_text(fit: &NortonFit, input_name: &str, notes: &[String], units: InputUnits) -> String {
     let mut o = String::new();
     let _ = writeln!(o, "lifeledger fit norton: {input_name}, {} tests", fit.n_tests);
     caution(&mut o);
@@ -283,22 +351,32 @@ pub fn norton_text(fit: &NortonFit, input_name: &str, notes: &[String]) -> Strin
     if let Some(r2) = fit.r_squared {
         let _ = writeln!(o, "R²        {r2:.5} (of ln ε̇)");
     }
-    data_range(&mut o, fit.stress_range_mpa, fit.temperature_range_k, fit.temperatures_k.len());
+    data_range(&mut o, fit.stress_range_mpa, fit.temperature_range_k, fit.temperatures_k.len(), units);
     let _ = writeln!(o);
     let _ = writeln!(o, "Residuals by test (ln 1/h; * marks |standardized| > {})", fit.outlier_threshold);
     let _ = writeln!(
         o,
-        "  {:>5} {:<14} {:>8} {:>10} {:>11} {:>9} {:>9} {:>8} {:>8}",
-        "line", "heat/specimen", "T, K", "σ, MPa", "rate, 1/h", "obs", "fit", "resid", "std"
+        "  {:>5} {:<14} {:>8} {:>10}{} {:>11} {:>9} {:>9} {:>8} {:>8}",
+        "line",
+        "heat/specimen",
+        "T, K",
+        "σ, MPa",
+        alt_columns(units),
+        "rate, 1/h",
+        "obs",
+        "fit",
+        "resid",
+        "std"
     );
     for r in &fit.residuals {
         let _ = writeln!(
             o,
-            "  {:>5} {:<14} {:>8.2} {:>10.3} {:>11.4e} {:>9.4} {:>9.4} {:>+8.4} {:>8}{}",
+            "  {:>5} {:<14} {:>8.2} {:>10.3}{} {:>11.4e} {:>9.4} {:>9.4} {:>+8.4} {:>8}{}",
             r.line,
             id(&r.heat, &r.specimen),
             r.temperature_k,
             r.stress_mpa,
+            alt_cells(units, r.temperature_k, r.stress_mpa),
             r.rate_per_h,
             r.ln_observed,
             r.ln_fitted,

@@ -13,6 +13,7 @@
 
 use super::larson_miller::{poly, LmFit};
 use super::norton::NortonFit;
+use super::units::{kelvin_to_fahrenheit, InputUnits};
 use std::fmt::Write as _;
 
 const WIDTH: f64 = 860.0;
@@ -34,6 +35,9 @@ struct Axis {
     label: String,
     /// Tick labels show value / divisor.
     divisor: f64,
+    /// The same axis in the input file's unit: its label, the factor
+    /// (value in that unit = SI value × factor) and its tick divisor.
+    alt: Option<(String, f64, f64)>,
 }
 
 impl Axis {
@@ -52,7 +56,26 @@ impl Axis {
             lo -= pad;
             hi += pad;
         }
-        Axis { lo, hi, log, label: label.to_string(), divisor }
+        Axis { lo, hi, log, label: label.to_string(), divisor, alt: None }
+    }
+
+    /// Also label the axis in another unit (`factor`: value there per SI value).
+    fn with_alt(mut self, label: String, factor: f64, divisor: f64) -> Axis {
+        self.alt = Some((label, factor, divisor));
+        self
+    }
+
+    /// The axis in its other unit, with its own round ticks; a value `v`
+    /// there sits where `v / factor` sits on this axis.
+    fn alt_axis(&self) -> Option<Axis> {
+        self.alt.as_ref().map(|(label, f, d)| Axis {
+            lo: self.lo * f,
+            hi: self.hi * f,
+            log: self.log,
+            label: label.clone(),
+            divisor: *d,
+            alt: None,
+        })
     }
 
     /// Position 0…1 along the axis.
@@ -117,6 +140,8 @@ impl Axis {
 }
 
 struct Chart {
+    /// Right margin: room for the legend, and for the second stress axis.
+    right: f64,
     x: Axis,
     y: Axis,
     body: String,
@@ -125,7 +150,7 @@ struct Chart {
 
 impl Chart {
     fn px(&self, x: f64) -> f64 {
-        LEFT + self.x.frac(x) * (WIDTH - LEFT - RIGHT)
+        LEFT + self.x.frac(x) * (WIDTH - LEFT - self.right)
     }
     fn py(&self, y: f64) -> f64 {
         HEIGHT - BOTTOM - self.y.frac(y) * (HEIGHT - TOP - BOTTOM)
@@ -166,7 +191,7 @@ impl Chart {
     }
 
     fn finish(self, title: &str, subtitle: &str) -> String {
-        let (x0, x1, y0, y1) = (LEFT, WIDTH - RIGHT, TOP, HEIGHT - BOTTOM);
+        let (x0, x1, y0, y1) = (LEFT, WIDTH - self.right, TOP, HEIGHT - BOTTOM);
         let mut s = String::new();
         let _ = writeln!(
             s,
@@ -211,12 +236,17 @@ impl Chart {
             x1 - x0,
             y1 - y0
         );
+        // With a second row of x labels (grey), the axis title names both.
+        let x_title = match self.x.alt_axis() {
+            Some(ax) => format!("{}; grey: {}", self.x.label, ax.label),
+            None => self.x.label.clone(),
+        };
         let _ = writeln!(
             s,
             r#"<text x="{:.1}" y="{:.1}" text-anchor="middle">{}</text>"#,
             (x0 + x1) / 2.0,
-            HEIGHT - 18.0,
-            esc(&self.x.label)
+            if self.x.alt.is_some() { HEIGHT - 8.0 } else { HEIGHT - 18.0 },
+            esc(&x_title)
         );
         let _ = writeln!(
             s,
@@ -224,9 +254,45 @@ impl Chart {
             (y0 + y1) / 2.0,
             esc(&self.y.label)
         );
+        // The axes again in the input file's units: x as a second row of
+        // labels under the first, y on the right-hand side.
+        if let Some(ax) = self.x.alt_axis() {
+            for (v, major) in ax.ticks() {
+                if major {
+                    let _ = writeln!(
+                        s,
+                        r##"<text x="{:.1}" y="{:.1}" text-anchor="middle" fill="#666">{}</text>"##,
+                        LEFT + ax.frac(v) * (x1 - x0),
+                        y1 + 31.0,
+                        esc(&ax.tick_label(v))
+                    );
+                }
+            }
+        }
+        if let Some(ay) = self.y.alt_axis() {
+            for (v, _) in ay.ticks() {
+                let py = HEIGHT - BOTTOM - ay.frac(v) * (y1 - y0);
+                let _ =
+                    writeln!(s, r##"<line x1="{x1}" y1="{py:.1}" x2="{:.1}" y2="{py:.1}" stroke="#333"/>"##, x1 + 4.0);
+                let _ = writeln!(
+                    s,
+                    r##"<text x="{:.1}" y="{:.1}" fill="#555">{}</text>"##,
+                    x1 + 6.0,
+                    py + 4.0,
+                    esc(&ay.tick_label(v))
+                );
+            }
+            let _ = writeln!(
+                s,
+                r##"<text transform="translate({:.1},{:.1}) rotate(90)" text-anchor="middle" fill="#555">{}</text>"##,
+                x1 + 44.0,
+                (y0 + y1) / 2.0,
+                esc(&ay.label)
+            );
+        }
         s.push_str(&self.body);
         // Legend.
-        let lx = x1 + 16.0;
+        let lx = x1 + if self.y.alt.is_some() { 56.0 } else { 16.0 };
         for (i, (label, colour, is_line, dashed)) in self.legend.iter().enumerate() {
             let ly = y0 + 14.0 + 20.0 * i as f64;
             if *is_line {
@@ -246,8 +312,21 @@ impl Chart {
     }
 }
 
-fn temperature_label(t_k: f64) -> String {
-    format!("{:.0} K ({:.0} °C)", t_k, t_k - 273.15)
+fn temperature_label(t_k: f64, units: InputUnits) -> String {
+    if units.fahrenheit() {
+        format!("{:.0} K ({:.0} °C, {:.0} °F)", t_k, t_k - 273.15, kelvin_to_fahrenheit(t_k))
+    } else {
+        format!("{:.0} K ({:.0} °C)", t_k, t_k - 273.15)
+    }
+}
+
+/// A stress axis, with its second unit when the input was not in MPa.
+fn stress_axis(values: impl Iterator<Item = f64>, units: InputUnits) -> Axis {
+    let a = Axis::new(values, true, "stress, MPa", 1.0);
+    match units.stress_alt() {
+        Some((u, mpa_per_unit)) => a.with_alt(format!("stress, {u}"), 1.0 / mpa_per_unit, 1.0),
+        None => a,
+    }
 }
 
 fn colour_of(temperatures: &[f64], t: f64) -> &'static str {
@@ -256,7 +335,9 @@ fn colour_of(temperatures: &[f64], t: f64) -> &'static str {
 }
 
 /// Larson-Miller plot: stress (log) against P, with mean and minimum curves.
-pub fn larson_miller_svg(fit: &LmFit, input_name: &str) -> String {
+/// Data in °F gets a second P axis with T in °R, data in ksi or psi a
+/// second stress axis.
+pub fn larson_miller_svg(fit: &LmFit, input_name: &str, units: InputUnits) -> String {
     let (x0, x1) = (fit.stress_range_mpa[0].log10(), fit.stress_range_mpa[1].log10());
     let xs: Vec<f64> = (0..=120).map(|i| x0 + (x1 - x0) * i as f64 / 120.0).collect();
     let mean: Vec<(f64, f64)> = xs.iter().map(|&x| (poly(&fit.coefficients, x), 10f64.powf(x))).collect();
@@ -272,8 +353,11 @@ pub fn larson_miller_svg(fit: &LmFit, input_name: &str) -> String {
         &format!("P = T·(C + log10 t_r) / 1000, T in K, t_r in h, C = {:.3}", fit.constant_c),
         1000.0,
     );
-    let y = Axis::new(fit.residuals.iter().map(|r| r.stress_mpa), true, "stress, MPa", 1.0);
-    let mut chart = Chart { x, y, body: String::new(), legend: Vec::new() };
+    let x =
+        if units.fahrenheit() { x.with_alt("P with T in °R (1.8 × P) / 1000".to_string(), 1.8, 1000.0) } else { x };
+    let y = stress_axis(fit.residuals.iter().map(|r| r.stress_mpa), units);
+    let right = if y.alt.is_some() { RIGHT + 40.0 } else { RIGHT };
+    let mut chart = Chart { right, x, y, body: String::new(), legend: Vec::new() };
     for &t in &fit.temperatures_k {
         let pts: Vec<(f64, f64, bool)> = fit
             .residuals
@@ -281,7 +365,7 @@ pub fn larson_miller_svg(fit: &LmFit, input_name: &str) -> String {
             .filter(|r| (r.temperature_k - t).abs() <= 1e-9 * t)
             .map(|r| (r.parameter, r.stress_mpa, r.outlier))
             .collect();
-        chart.points(&pts, colour_of(&fit.temperatures_k, t), &temperature_label(t));
+        chart.points(&pts, colour_of(&fit.temperatures_k, t), &temperature_label(t, units));
     }
     chart.line(&mean, "#000", false, Some("mean curve"));
     let k = fit.k;
@@ -298,13 +382,14 @@ pub fn larson_miller_svg(fit: &LmFit, input_name: &str) -> String {
     )
 }
 
-/// Norton plot: creep rate against stress (log-log) at each temperature.
-pub fn norton_svg(fit: &NortonFit, input_name: &str) -> String {
+/// Norton plot: creep rate against stress (log-log) at each temperature;
+/// stress also in ksi or psi, temperatures also in °F, as the input was.
+pub fn norton_svg(fit: &NortonFit, input_name: &str, units: InputUnits) -> String {
     let [s0, s1] = fit.stress_range_mpa;
     let ss: Vec<f64> = (0..=60).map(|i| s0 * (s1 / s0).powf(i as f64 / 60.0)).collect();
-    let x = Axis::new(fit.residuals.iter().map(|r| r.stress_mpa), true, "stress, MPa", 1.0);
+    let x = stress_axis(fit.residuals.iter().map(|r| r.stress_mpa), units);
     let y = Axis::new(fit.residuals.iter().map(|r| r.rate_per_h), true, "minimum creep rate, 1/h", 1.0);
-    let mut chart = Chart { x, y, body: String::new(), legend: Vec::new() };
+    let mut chart = Chart { right: RIGHT, x, y, body: String::new(), legend: Vec::new() };
     for &t in &fit.temperatures_k {
         let colour = colour_of(&fit.temperatures_k, t);
         let pts: Vec<(f64, f64, bool)> = fit
@@ -313,7 +398,7 @@ pub fn norton_svg(fit: &NortonFit, input_name: &str) -> String {
             .filter(|r| (r.temperature_k - t).abs() <= 1e-9 * t)
             .map(|r| (r.stress_mpa, r.rate_per_h, r.outlier))
             .collect();
-        chart.points(&pts, colour, &temperature_label(t));
+        chart.points(&pts, colour, &temperature_label(t, units));
         let curve: Vec<(f64, f64)> = ss.iter().map(|&s| (s, fit.rate_per_h(s, t))).collect();
         chart.line(&curve, colour, false, None);
     }

@@ -8,6 +8,7 @@
 //! fills, this task stops reading, and the broker keeps the backlog.
 
 pub mod decode;
+pub mod status;
 
 use decode::{PayloadSettings, TopicTemplate};
 use rumqttc::{
@@ -178,8 +179,14 @@ impl MqttSettings {
             .collect()
     }
 
-    /// rumqttc options: persistent session, manual acks, last will.
-    pub fn options(&self) -> Result<MqttOptions, String> {
+    /// This instance's identity on the status topic.
+    pub fn identity(&self, plant: &str) -> status::StatusIdentity {
+        status::StatusIdentity { plant: plant.to_string(), client_id: self.client_id.clone() }
+    }
+
+    /// rumqttc options: persistent session, manual acks, last will (the
+    /// offline status naming this instance of `plant`).
+    pub fn options(&self, plant: &str) -> Result<MqttOptions, String> {
         let mut o = MqttOptions::new(&self.client_id, &self.host, self.port);
         o.set_keep_alive(Duration::from_secs(self.keep_alive_s.max(5)));
         o.set_clean_session(false);
@@ -187,7 +194,12 @@ impl MqttSettings {
         o.set_request_channel_capacity(4096);
         o.set_inflight(1000);
         o.set_max_packet_size(self.max_message_bytes, self.max_message_bytes);
-        o.set_last_will(LastWill::new(self.status_topic(), offline_payload(), QoS::AtLeastOnce, true));
+        o.set_last_will(LastWill::new(
+            self.status_topic(),
+            status::payload("offline", &self.identity(plant)),
+            QoS::AtLeastOnce,
+            true,
+        ));
         if let Some(user) = &self.username {
             o.set_credentials(user, self.password()?.unwrap_or_default());
         }
@@ -206,13 +218,12 @@ impl MqttSettings {
     }
 }
 
-/// Retained status payloads.
-pub fn online_payload() -> Vec<u8> {
-    br#"{"status":"online"}"#.to_vec()
-}
-/// Last-will payload.
-pub fn offline_payload() -> Vec<u8> {
-    br#"{"status":"offline"}"#.to_vec()
+/// This instance's identity on its status topic, and where the ingest task
+/// reports other instances found there (`ingest::status`).
+#[derive(Debug)]
+pub struct InstanceWatch {
+    pub identity: status::StatusIdentity,
+    pub warnings: tokio::sync::watch::Sender<Vec<String>>,
 }
 
 /// What the ingest task hands to the ledger.
@@ -256,7 +267,10 @@ pub async fn run_event_loop(
     filters: std::sync::Arc<std::sync::Mutex<Vec<String>>>,
     to_ledger: mpsc::Sender<Inbound>,
     mut shutdown: broadcast::Receiver<()>,
+    instance: InstanceWatch,
 ) {
+    let status_topic = settings.status_topic();
+    let mut others: Vec<String> = vec![];
     let mut delay = settings.reconnect_min_s;
     // When the current connection was acknowledged by the broker.
     let mut connected_at: Option<std::time::Instant> = None;
@@ -311,8 +325,29 @@ pub async fn run_event_loop(
                         tracing::error!("subscribe {f}: {e}");
                     }
                 }
-                let _ = client.try_publish(settings.status_topic(), QoS::AtLeastOnce, true, online_payload());
+                // Whoever's status is retained under the prefix arrives on
+                // this subscription (QoS 0: nothing to acknowledge).
+                if let Err(e) = client.try_subscribe(&status_topic, QoS::AtMostOnce) {
+                    tracing::error!("subscribe {status_topic}: {e}");
+                }
+                let online = status::payload("online", &instance.identity);
+                let _ = client.try_publish(&status_topic, QoS::AtLeastOnce, true, online);
                 waiting.push_back(Inbound::Connection { connected: true });
+            }
+            // A status under our prefix: ours, or another instance's.
+            Ok(Event::Incoming(Packet::Publish(p))) if p.topic == status_topic => {
+                // Also matched by a QoS 1 tag subscription (`#`): acknowledged
+                // here, it is no tag message.
+                if p.qos != QoS::AtMostOnce {
+                    let _ = client.try_ack(&p);
+                }
+                if let Some(w) = status::other_instance(&status_topic, &p.payload, &instance.identity) {
+                    if !others.contains(&w) {
+                        tracing::warn!("{w}");
+                        others.push(w);
+                        let _ = instance.warnings.send(others.clone());
+                    }
+                }
             }
             Ok(Event::Incoming(Packet::Publish(p))) => {
                 waiting.push_back(Inbound::Message { publish: p, received_ms: now_ms() });
@@ -409,6 +444,6 @@ mod tests {
         // MQTT 3.1.1 (OASIS), section 2.2.3: the remaining length is at most
         // 268 435 455 bytes (from memory).
         assert_eq!(s.max_message_bytes, 268_435_455);
-        assert_eq!(s.options().unwrap().max_packet_size(), 268_435_455);
+        assert_eq!(s.options("P").unwrap().max_packet_size(), 268_435_455);
     }
 }

@@ -1456,6 +1456,8 @@ impl Ledger {
             held_samples: self.engine.held_len() as u64,
             restart_required: self.reloads.restart_required.clone(),
             reload_refused: self.reloads.refused.clone(),
+            // Filled in by the service from the ingest task (service::run).
+            warnings: Vec::new(),
             caution: crate::CAUTION,
         };
         let _ = self.snapshot_tx.send(Arc::new(snap));

@@ -30,7 +30,7 @@ pub mod settings;
 pub mod snapshot;
 pub mod systemd;
 
-use crate::ingest::{offline_payload, run_event_loop, Inbound};
+use crate::ingest::{run_event_loop, Inbound, InstanceWatch};
 use crate::settings::{load_plan_with, Overrides};
 use anyhow::Context;
 use ledger::{Control, Ledger};
@@ -109,9 +109,15 @@ pub async fn run_until_with(
     }
     tracing::info!("{}", crate::CAUTION);
     let (shutdown_tx, _) = broadcast::channel::<()>(4);
-    let options = svc.mqtt.options().map_err(|e| anyhow::anyhow!(e))?;
+    let identity = svc.mqtt.identity(&cfg.plan.plant);
+    let options = svc.mqtt.options(&cfg.plan.plant).map_err(|e| anyhow::anyhow!(e))?;
     let (client, eventloop) = rumqttc::AsyncClient::new(options, 4096);
-    let (snap_tx, snap_rx) = watch::channel(Arc::new(snapshot::Snapshot::default()));
+    // The ledger thread publishes its snapshots on `ledger_snap`; HTTP reads
+    // `snap_rx`: the same snapshots with the ingest task's warnings added.
+    let (snap_tx, ledger_snap) = watch::channel(Arc::new(snapshot::Snapshot::default()));
+    let (warn_tx, warn_rx) = watch::channel(Vec::<String>::new());
+    let (merged_tx, snap_rx) = watch::channel(Arc::new(snapshot::Snapshot::default()));
+    tokio::spawn(merge_warnings(ledger_snap.clone(), warn_rx, merged_tx));
     let library = Arc::new(cfg.library.clone());
     // The operator token: HTTP commands carry it as a bearer token, MQTT
     // commands in their `token` field. Without it both are refused.
@@ -172,6 +178,7 @@ pub async fn run_until_with(
         filters,
         in_tx,
         loop_stop_tx.subscribe(),
+        InstanceWatch { identity: identity.clone(), warnings: warn_tx },
     ));
 
     // systemd (Type=notify): ready once intake runs; the watchdog is fed
@@ -179,7 +186,7 @@ pub async fn run_until_with(
     let notifier = Arc::new(systemd::Notifier::from_env());
     notifier.ready(&format!("intake running; status on http://{}/", svc.http.listen));
     let watchdog_task = notifier.watchdog.map(|interval| {
-        tokio::spawn(feed_watchdog(notifier.clone(), snap_rx.clone(), interval / 2, shutdown_tx.subscribe()))
+        tokio::spawn(feed_watchdog(notifier.clone(), ledger_snap.clone(), interval / 2, shutdown_tx.subscribe()))
     });
 
     let mut sender_task = svc
@@ -259,7 +266,8 @@ pub async fn run_until_with(
     if ledger_done.is_none() {
         let _ = ledger_task.await;
     }
-    let _ = client.try_publish(svc.mqtt.status_topic(), rumqttc::QoS::AtLeastOnce, true, offline_payload());
+    let offline = crate::ingest::status::payload("offline", &identity);
+    let _ = client.try_publish(svc.mqtt.status_topic(), rumqttc::QoS::AtLeastOnce, true, offline);
     // Let the event loop carry the last acknowledgements and the status out.
     tokio::time::sleep(Duration::from_millis(300)).await;
     let _ = client.try_disconnect();
@@ -287,6 +295,34 @@ pub async fn run_until_with(
 /// (it published a snapshot since the last look) and its commits succeed;
 /// otherwise sends only a status line saying why, so that systemd restarts
 /// a wedged service after `WatchdogSec`.
+/// Forward the ledger's snapshots with the ingest task's warnings added
+/// (another instance on the status topic), until the ledger's channel closes.
+async fn merge_warnings(
+    mut ledger: watch::Receiver<Arc<snapshot::Snapshot>>,
+    mut warnings: watch::Receiver<Vec<String>>,
+    out: watch::Sender<Arc<snapshot::Snapshot>>,
+) {
+    let mut warnings_open = true;
+    loop {
+        let snap = ledger.borrow_and_update().clone();
+        let w = warnings.borrow_and_update().clone();
+        let merged = if w.is_empty() {
+            snap
+        } else {
+            let mut s = (*snap).clone();
+            s.warnings.extend(w);
+            Arc::new(s)
+        };
+        if out.send(merged).is_err() {
+            return;
+        }
+        tokio::select! {
+            r = ledger.changed() => if r.is_err() { return },
+            r = warnings.changed(), if warnings_open => if r.is_err() { warnings_open = false },
+        }
+    }
+}
+
 async fn feed_watchdog(
     notifier: Arc<systemd::Notifier>,
     mut snapshots: watch::Receiver<Arc<snapshot::Snapshot>>,

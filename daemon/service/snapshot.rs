@@ -82,6 +82,9 @@ pub struct Snapshot {
     /// Why the last SIGHUP reload was refused (the running configuration
     /// stays); `None` once a reload is applied.
     pub reload_refused: Option<String>,
+    /// Things an operator should know that are no alarm: another instance
+    /// found on this instance's MQTT status topic (`ingest::status`).
+    pub warnings: Vec<String>,
     pub caution: &'static str,
 }
 

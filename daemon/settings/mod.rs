@@ -7,9 +7,12 @@
 //! by [`validate`], which collects every problem at once and names the
 //! file, the component, the key and the fix.
 //!
+//! Grade files can be included whole ([`material_file`]).
+//!
 //! [`Plan`]: crate::engine::Plan
 
 pub mod library;
+pub mod material_file;
 pub mod schema;
 pub mod schema_check;
 pub mod validate;

@@ -30,6 +30,10 @@ pub struct Settings {
     /// User material grades, in the same format as the library files.
     #[serde(default, rename = "material")]
     pub materials: Vec<Material>,
+    /// Grade files included whole (`[[material_file]] path = "…"`),
+    /// relative to the configuration file: `settings::material_file`.
+    #[serde(default, rename = "material_file")]
+    pub material_files: Vec<super::material_file::MaterialFileSettings>,
     /// Sections used by the live service (MQTT, store, database, alarms,
     /// HTTP); kept as free-form tables here and typed by the service.
     #[serde(default)]

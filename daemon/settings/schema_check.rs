@@ -13,10 +13,15 @@ const MAX_PROBLEMS: usize = 50;
 
 /// The schema problems of `text` (empty when it reads as [`Settings`]).
 pub fn schema_problems(text: &str) -> Vec<ConfigProblem> {
+    schema_problems_of::<Settings>(text)
+}
+
+/// The schema problems of `text` read as a `T` (an included grade file).
+pub fn schema_problems_of<T: serde::de::DeserializeOwned>(text: &str) -> Vec<ConfigProblem> {
     let mut text = text.to_string();
     let mut problems: Vec<ConfigProblem> = vec![];
     while problems.len() < MAX_PROBLEMS {
-        let Err(e) = toml::from_str::<Settings>(&text) else { break };
+        let Err(e) = toml::from_str::<T>(&text) else { break };
         let line = e.span().map(|s| line_of(&text, s.start));
         let message = e.message().trim().to_string();
         let place = line.map_or_else(|| "file".to_string(), |l| format!("line {l}"));

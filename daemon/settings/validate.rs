@@ -150,6 +150,26 @@ pub fn plan_settings(file: &str, settings: Settings) -> Result<LoadedConfig, Con
         v.material(m);
         library.insert(m.clone());
     }
+    let (included, problems) = super::material_file::read_all(file, &settings.material_files);
+    v.problems.extend(problems);
+    let mut user_grades: Vec<String> = settings.materials.iter().map(|m| m.grade.clone()).collect();
+    for (shown, m) in included {
+        let before = v.problems.len();
+        v.material(&m);
+        if user_grades.contains(&m.grade) {
+            v.err(
+                &format!("material \"{}\"", m.grade),
+                "grade",
+                "defined twice (a [[material]] block or another [[material_file]] has it too)",
+                "keep one definition, or give the fitted grade its own name (--grade)",
+            );
+        }
+        for p in &mut v.problems[before..] {
+            p.place = format!("{} (from [[material_file]] {shown})", p.place);
+        }
+        user_grades.push(m.grade.clone());
+        library.insert(m);
+    }
     v.engine(&settings.engine);
     if let Some(p) = name_problem(&settings.plant.name) {
         v.err("[plant]", "name", p, "use printable characters only (it is the plant tag of every database point)");
