@@ -369,8 +369,8 @@ pub fn figures(plan: &ComponentPlan, state: &ComponentState) -> Option<FatigueFi
     });
     let now_h = state.integrated_to_ms.unwrap_or(0).div_euclid(MS_PER_H);
     let in_last = |h: i64| fs.recent.iter().filter(move |x| x.hour > now_h - h);
-    let cycles_last_day = in_last(24).map(|x| x.cycles).sum();
-    let cycles_last_month: f64 = in_last(MONTH_H).map(|x| x.cycles).sum();
+    let cycles_last_day = in_last(24).map(|x| x.cycles).sum::<f64>() + 0.0; // an empty sum is -0.0; show 0
+    let cycles_last_month = in_last(MONTH_H).map(|x| x.cycles).sum::<f64>() + 0.0;
     let usage_last_month: f64 = in_last(MONTH_H).map(|x| x.usage).sum();
     let usage = fs.usage + residue_usage;
     let span_h = state.integrated_h.min(MONTH_H as f64);

@@ -18,7 +18,7 @@ use std::io::{self, Write};
 pub const TAGS: [&str; 4] = ["plant", "unit", "component", "material"];
 
 /// Field columns: every field `report::component_point` writes.
-pub const FIELDS: [&str; 13] = [
+pub const FIELDS: [&str; 20] = [
     "metal_temperature_k",
     "pressure_mpa",
     "hoop_stress_mpa",
@@ -27,6 +27,13 @@ pub const FIELDS: [&str; 13] = [
     "creep_rate_per_h",
     "creep_strain",
     "hours_in_creep_range",
+    "fatigue_stress_mpa",
+    "fatigue_thermal_stress_mpa",
+    "fatigue_usage",
+    "creep_fatigue_index",
+    "fatigue_cycles",
+    "fatigue_cycles_last_day",
+    "fatigue_cycles_last_month",
     "wear_depth_mm",
     "wear_index",
     "exhausted",
