@@ -151,6 +151,11 @@ fn the_demo_plants_report_prints_on_a4_and_letter_with_its_key_figures() {
     let json: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(out.join("report.json")).unwrap()).unwrap();
     let comps = json["components"].as_array().unwrap();
+    // Alarm-system performance of the scope (issue 11's figures), by the
+    // definitions checked in assessment::alarm_performance's unit tests.
+    let perf = &json["alarm_performance"];
+    assert!(perf["annunciations"].as_u64().is_some(), "alarm performance in the JSON: {perf}");
+    assert!(perf["time_in_flood_percent"].as_f64().is_some(), "{perf}");
     assert!(comps.len() >= 5, "unit U2 of the demo has its components");
     let csv = std::fs::read_to_string(out.join("report.csv")).unwrap();
 
@@ -196,5 +201,6 @@ fn the_demo_plants_report_prints_on_a4_and_letter_with_its_key_figures() {
         assert!(flat.contains("P. Surveyor"), "{size}: who entered the records is printed");
         assert!(flat.contains("design conditions +10 K"), "{size}: the what-if profile is printed");
         assert!(flat.contains("with scale growth (120 kW/m²)"), "{size}: the scale-growth projection is printed");
+        assert!(flat.contains("Alarm-system performance"), "{size}: the alarm-system figures are printed");
     }
 }

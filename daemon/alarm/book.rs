@@ -524,6 +524,30 @@ impl AlarmBook {
                 events.extend(self.evaluate(&plan.name, &plan.unit, index, value, levels, time_ms));
             }
         }
+        // A replica finding whose class bounds the ledger's life fraction
+        // lay outside: standing until a later finding agrees or re-bases.
+        // The ledger's value now, against the class bounds of the finding:
+        // once re-based to a bound it agrees and the alarm clears.
+        let outside = state.inspection.replica_outside
+            && state
+                .inspection
+                .replica_bounds
+                .is_some_and(|[lo, hi]| state.life_fraction < lo || state.life_fraction > hi);
+        if outside || self.records.contains_key(&key(&plan.name, AlarmIndex::ReplicaBounds)) {
+            let detail = if outside {
+                "the ledger's life fraction lay outside the bounds of the replica class found; review, and re-base if the finding is trusted"
+            } else {
+                "the ledger agrees with the replica class found"
+            };
+            events.extend(self.evaluate_condition(
+                &plan.name,
+                &plan.unit,
+                AlarmIndex::ReplicaBounds,
+                outside,
+                detail,
+                time_ms,
+            ));
+        }
         events
     }
 

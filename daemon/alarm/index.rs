@@ -87,11 +87,15 @@ pub enum AlarmIndex {
     /// Combined creep-fatigue damage index on the material's bilinear
     /// envelope (dimensionless, 1 = on the envelope).
     CreepFatigueIndex,
+    /// An inspection's microstructure (replica) class bounds the life
+    /// fraction, and the ledger's value lay outside those bounds at the
+    /// finding: the engineer decides whether to re-base (a condition).
+    ReplicaBounds,
 }
 
 impl AlarmIndex {
     /// Every index, in a fixed order.
-    pub const ALL: [AlarmIndex; 12] = [
+    pub const ALL: [AlarmIndex; 13] = [
         AlarmIndex::CreepLifeFraction,
         AlarmIndex::CreepStrain,
         AlarmIndex::WearIndex,
@@ -104,6 +108,7 @@ impl AlarmIndex {
         AlarmIndex::ServiceHealth,
         AlarmIndex::FatigueUsage,
         AlarmIndex::CreepFatigueIndex,
+        AlarmIndex::ReplicaBounds,
     ];
 
     /// Stable snake_case name (same as the serde name).
@@ -121,6 +126,7 @@ impl AlarmIndex {
             AlarmIndex::ServiceHealth => "service_health",
             AlarmIndex::FatigueUsage => "fatigue_usage",
             AlarmIndex::CreepFatigueIndex => "creep_fatigue_index",
+            AlarmIndex::ReplicaBounds => "replica_bounds",
         }
     }
 
@@ -144,6 +150,7 @@ impl AlarmIndex {
             AlarmIndex::ServiceHealth => "service health",
             AlarmIndex::FatigueUsage => "fatigue usage",
             AlarmIndex::CreepFatigueIndex => "creep-fatigue damage index",
+            AlarmIndex::ReplicaBounds => "life fraction outside the replica class bounds",
         }
     }
 
@@ -164,6 +171,7 @@ impl AlarmIndex {
                 | AlarmIndex::SensorOutOfRange
                 | AlarmIndex::SensorBadQuality
                 | AlarmIndex::ServiceHealth
+                | AlarmIndex::ReplicaBounds
         )
     }
 

@@ -64,7 +64,8 @@ impl AlarmClass {
             | AlarmIndex::DamageRate
             | AlarmIndex::HoursToCritical
             | AlarmIndex::FatigueUsage
-            | AlarmIndex::CreepFatigueIndex => AlarmClass::Engineering,
+            | AlarmIndex::CreepFatigueIndex
+            | AlarmIndex::ReplicaBounds => AlarmClass::Engineering,
             _ => AlarmClass::Operator,
         }
     }
@@ -190,6 +191,12 @@ impl Rationale {
                 "integrity engineer: review the cycles counted at the assessed location and plan a surface \
                  crack inspection (magnetic particle, dye penetrant or ultrasonic) by the plant's code",
             ),
+            AlarmIndex::ReplicaBounds => (
+                Major,
+                7.0 * 24.0 * 60.0,
+                "integrity engineer: the replica class and the ledger disagree; review the finding and the \
+                 ledger's inputs, and decide whether to re-base the life fraction (lifeledger inspection ... --rebase)",
+            ),
             AlarmIndex::WearIndex => (
                 Major,
                 7.0 * 24.0 * 60.0,
@@ -271,6 +278,7 @@ mod tests {
                     | AlarmIndex::HoursToCritical
                     | AlarmIndex::FatigueUsage
                     | AlarmIndex::CreepFatigueIndex
+                    | AlarmIndex::ReplicaBounds
             );
             assert_eq!(Rationale::default_for(i).class == AlarmClass::Engineering, eng, "{i}");
         }

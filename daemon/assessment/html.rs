@@ -419,6 +419,7 @@ pub fn render(a: &Assessment) -> String {
     for (i, c) in a.components.iter().enumerate() {
         s.push_str(&component(c, i == 0));
     }
+    s.push_str(&alarm_performance(&a.alarm_performance));
     s.push_str(&format!(
         "<footer>{} · {} · generated {} · {}</footer></body></html>",
         esc(&a.plant),
@@ -426,5 +427,41 @@ pub fn render(a: &Assessment) -> String {
         esc(&a.generated),
         esc(&a.caution)
     ));
+    s
+}
+
+/// The alarm-system performance section (see `alarm_performance`).
+fn alarm_performance(p: &super::alarm_performance::AlarmPerformance) -> String {
+    let mut s = String::from("<h2>Alarm-system performance of this scope</h2>");
+    let (Some(from), Some(to)) = (&p.from, &p.to) else {
+        s.push_str("<p class=\"muted\">No alarm events recorded for this scope.</p>");
+        return s;
+    };
+    s.push_str(&format!(
+        "<p class=\"small\">Operator alarms annunciated between {} and {} (event time), by the definitions of \
+         alarm-management practice (ISA-18.2 / IEC 62682): a flood is more than 10 in a 10-minute period; \
+         chattering is 3 or more activations of one alarm within 60 s. Usual targets (common practice, from \
+         memory): about 1 alarm per 10 minutes per operator, under 1 % of the time in flood, no chattering.</p>",
+        esc(from),
+        esc(to)
+    ));
+    s.push_str(&format!(
+        "<table><tr><th>Annunciations</th><th>Mean per 10 min</th><th>Peak per 10 min</th><th>Flood periods</th>\
+         <th>Time in flood</th><th>Chattering alarms</th></tr><tr><td>{}</td><td>{:.2}</td><td>{}</td><td>{}</td>\
+         <td>{:.1} %</td><td>{}</td></tr></table>",
+        p.annunciations,
+        p.mean_per_10_min,
+        p.peak_per_10_min,
+        p.flood_periods,
+        p.time_in_flood_percent,
+        p.chattering.len()
+    ));
+    if !p.most_frequent.is_empty() {
+        s.push_str("<table><tr><th>Most frequent alarm</th><th>Annunciations</th></tr>");
+        for (k, n) in &p.most_frequent {
+            s.push_str(&format!("<tr><td>{}</td><td>{n}</td></tr>", esc(k)));
+        }
+        s.push_str("</table>");
+    }
     s
 }

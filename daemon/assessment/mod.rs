@@ -23,8 +23,10 @@
 //! profiles. CAUTION: a screening document; limits, material data and
 //! acceptance come from the governing code and a responsible engineer.
 
+pub mod alarm_performance;
 pub mod html;
 
+use crate::alarm::AlarmEvent;
 use std::path::{Path, PathBuf};
 
 use anyhow::{Context, Result};
@@ -124,6 +126,8 @@ pub struct Assessment {
     pub caution: String,
     pub profile_shift_k: f64,
     pub components: Vec<ComponentAssessment>,
+    /// Alarm-system performance of the scope over its journal's period.
+    pub alarm_performance: alarm_performance::AlarmPerformance,
 }
 
 /// A clone of `plan` whose design conditions are (t_k, p_mpa): the rates
@@ -627,6 +631,15 @@ pub fn csv(a: &Assessment) -> String {
             row(n, "assumption", "", s.clone(), "", "");
         }
     }
+    let p = &a.alarm_performance;
+    let src = "alarm journal (ISA-18.2 / IEC 62682 definitions)";
+    let scope = a.scope.clone();
+    row(&scope, "alarm performance", "annunciations", p.annunciations.to_string(), "", src);
+    row(&scope, "alarm performance", "mean per 10 min", format!("{:.3}", p.mean_per_10_min), "", src);
+    row(&scope, "alarm performance", "peak per 10 min", p.peak_per_10_min.to_string(), "", src);
+    row(&scope, "alarm performance", "flood periods", p.flood_periods.to_string(), "", src);
+    row(&scope, "alarm performance", "time in flood", format!("{:.2}", p.time_in_flood_percent), "%", src);
+    row(&scope, "alarm performance", "chattering alarms", p.chattering.len().to_string(), "", src);
     out
 }
 
@@ -650,6 +663,7 @@ pub fn build(
     engine.import_state(stored.engine);
     let journal = crate::store::JournalReader::new(path);
     let mut components = vec![];
+    let mut scope_events: Vec<AlarmEvent> = vec![];
     for (ci, plan) in engine.plan().components.iter().enumerate() {
         let take = match scope {
             Scope::Component(n) => &plan.name == n,
@@ -661,8 +675,9 @@ pub fn build(
         }
         let history = crate::store::inspection::read_history(path, &plan.name)?;
         let inspections = crate::store::inspection::read_inspections(path, Some(&plan.name))?;
-        let alarms = journal
-            .component(&plan.name, 500)?
+        let entries = journal.component(&plan.name, 500)?;
+        scope_events.extend(entries.iter().filter_map(|(_, e)| serde_json::from_str::<AlarmEvent>(&e.event).ok()));
+        let alarms = entries
             .into_iter()
             .map(|(_, e)| {
                 let v: serde_json::Value = serde_json::from_str(&e.event).unwrap_or_default();
@@ -698,6 +713,7 @@ pub fn build(
         ledger: path.display().to_string(),
         caution: crate::CAUTION.to_string(),
         profile_shift_k: shift_k,
+        alarm_performance: alarm_performance::from_events(&scope_events),
         components,
     })
 }

@@ -154,6 +154,17 @@ fn a_replica_class_bounds_the_life_fraction_and_re_bases_only_when_asked() {
         assert!(c.inspection.replica_outside);
         let want = if rebase { 0.27 + r * 10.0 } else { 0.2 + r * 20.0 };
         assert!(rel(c.life_fraction, want) < 1e-9, "rebase {rebase}: {} vs {want}", c.life_fraction);
+        // The disagreement is an alarm (an engineering alert) until the
+        // engineer re-bases to the class.
+        let plan = &e.plan().components[tube(&e)];
+        let events = crate::alarm::AlarmBook::new().evaluate_component(plan, c, 20 * H);
+        let replica = events.iter().find(|ev| ev.index == crate::alarm::AlarmIndex::ReplicaBounds);
+        if rebase {
+            assert!(replica.is_none(), "re-based: the ledger agrees with the class: {replica:?}");
+        } else {
+            let ev = replica.expect("the ledger outside the replica class bounds raises an alarm");
+            assert_eq!(ev.state, crate::alarm::AlarmState::Alert, "an engineering alert");
+        }
     }
 }
 

@@ -24,9 +24,10 @@ const LL = (() => {
     sensor_bad_quality: 'Sensor bad quality',
     service_health: 'Service health',
     fatigue_usage: 'Fatigue usage',
+    replica_bounds: 'Replica class bounds',
     creep_fatigue_index: 'Creep-fatigue index',
   };
-  const CONDITION_INDEX = new Set(['sensor_stale', 'sensor_out_of_range', 'sensor_bad_quality', 'service_health']);
+  const CONDITION_INDEX = new Set(['sensor_stale', 'sensor_out_of_range', 'sensor_bad_quality', 'service_health', 'replica_bounds']);
   const FLAG_LABEL = {
     stress_below_data_range: 'stress below data range',
     stress_above_data_range: 'stress above data range',
