@@ -404,6 +404,13 @@ pub fn replay_to(
     if series.wanted() {
         series.write(engine, &plant, &mut next_lp, interval, &mut touched, &mut out)?;
     }
+    // The timeline sees every part's final state (observations in between
+    // are spaced in event time).
+    if let Some(tl) = series.timeline.as_deref_mut() {
+        for (ci, (plan, st)) in engine.plan().components.iter().zip(engine.components()).enumerate() {
+            tl.observe(ci, plan, st, true);
+        }
+    }
     if let Some(c) = series.csv.as_mut() {
         c.finish()?;
     }
@@ -442,7 +449,7 @@ impl Series<'_, '_> {
             let st = &engine.components()[ci];
             let plan = &engine.plan().components[ci];
             if let Some(tl) = self.timeline.as_deref_mut() {
-                tl.observe(ci, plan, st);
+                tl.observe(ci, plan, st, false);
             }
             if self.lp.is_none() && self.csv.is_none() {
                 continue;

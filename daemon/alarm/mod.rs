@@ -28,6 +28,7 @@ pub mod deadband;
 pub mod delay;
 pub mod event;
 pub mod index;
+pub mod kpi;
 pub mod rational;
 pub mod record;
 

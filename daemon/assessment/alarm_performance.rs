@@ -2,14 +2,14 @@
 //! alarm journal covers: the figures an alarm-management review asks for
 //! (ISA-18.2 / IEC 62682, EEMUA 191; common practice, the targets from
 //! memory), by the same definitions as the live service's
-//! [`crate::service::alarm_kpi`]: annunciations (events after which an
+//! [`crate::alarm::kpi`]: annunciations (events after which an
 //! operator alarm waits for an acknowledge), the mean and the peak per
 //! 10-minute period, floods (more than 10 in a 10-minute period) and the
 //! share of time in flood, chattering alarms (3 or more activations of one
 //! alarm within 60 s) and the most frequent alarms. Pure: it takes events.
 
+use crate::alarm::kpi::{annunciates, CHATTER_ACTIVATIONS, FLOOD_PER_10_MIN};
 use crate::alarm::{AlarmEvent, Transition};
-use crate::service::alarm_kpi::{annunciates, CHATTER_ACTIVATIONS, FLOOD_PER_10_MIN};
 use serde::Serialize;
 use std::collections::BTreeMap;
 

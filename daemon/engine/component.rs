@@ -23,6 +23,7 @@
 //!   use, conservative while the window settles.
 
 use super::plan::{ComponentPlan, Input, StressPlan, TagPlan, WearPlan};
+use super::plan::{GapPolicy, WearModel};
 use super::signal::{Breaks, Segment, TagState};
 use crate::physics::histogram::TimeAtCondition;
 use crate::physics::larson_miller::RangeFlags;
@@ -30,7 +31,6 @@ use crate::physics::norton::creep_rate_per_h_ln;
 use crate::physics::remaining::{interval_weight, next_weight, projection_rate};
 use crate::physics::stress::{hoop_stress_mpa, hoop_stress_per_mpa, remaining_wall_mm};
 use crate::physics::wear::{fretting_regime, fretting_sliding_speed_mm_s, FrettingRegime};
-use crate::settings::schema::{GapPolicy, WearModel};
 use serde::{Deserialize, Serialize};
 
 const MS_PER_H: f64 = 3_600_000.0;

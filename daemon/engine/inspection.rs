@@ -57,11 +57,11 @@
 use serde::{Deserialize, Serialize};
 
 use super::component::{self, ComponentState, Scratch};
+use super::plan::GapPolicy;
 use super::plan::{ComponentPlan, StressPlan, TagId, TagPlan};
 use super::signal::TagState;
 use super::Engine;
 use crate::physics::inspection::{fit_wall_line, oxide_law_for, LineFit, ReplicaClass};
-use crate::settings::schema::GapPolicy;
 
 /// What was found.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]

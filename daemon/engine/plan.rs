@@ -7,7 +7,6 @@ use crate::physics::material::Material;
 use crate::physics::stress::StressBasis;
 use crate::physics::units::Unit;
 use crate::physics::wear::RegimeBounds;
-use crate::settings::schema::{ComponentKind, GapPolicy, Interpolation, WearModel};
 use serde::{Deserialize, Serialize};
 
 /// Index of a tag in the plan.
@@ -195,4 +194,52 @@ pub struct Plan {
     pub reorder_window_ms: i64,
     pub tags: Vec<TagPlan>,
     pub components: Vec<ComponentPlan>,
+}
+
+/// What to do over intervals without trustworthy data.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Deserialize, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum GapPolicy {
+    /// Integrate at the worse of design conditions and the last good value
+    /// (the default: over-estimates damage rather than under-estimates).
+    #[default]
+    Conservative,
+    /// Integrate at the last good value.
+    HoldLast,
+    /// Integrate nothing; the hours are only counted as unmonitored.
+    Exclude,
+}
+
+/// Sample-and-hold or straight-line reconstruction between samples.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Deserialize, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Interpolation {
+    /// Straight line between consecutive samples (analog process values).
+    #[default]
+    Linear,
+    /// The value holds until the next sample (report-on-change signals).
+    Step,
+}
+
+/// The kind of part (reporting and defaults only).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ComponentKind {
+    Tube,
+    Header,
+    Pipe,
+    Casing,
+    FurnaceTube,
+    WearContact,
+    Other,
+}
+
+/// Wear model of a contact.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum WearModel {
+    /// Archard sliding wear: V̇ = K·F·v/H.
+    Archard,
+    /// Fretting work-rate: V̇ = K_w·F·4δf.
+    Fretting,
 }

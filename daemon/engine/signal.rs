@@ -7,8 +7,8 @@
 //! sample the newest value holds for up to the hold time. Anywhere else the
 //! tag is in a *gap*: its value is unknown and the gap policy decides.
 
+use super::plan::Interpolation;
 use super::plan::TagPlan;
-use crate::settings::schema::Interpolation;
 use serde::{Deserialize, Serialize};
 
 /// Cursor and recent samples of one tag, internal units.

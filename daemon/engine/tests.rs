@@ -108,7 +108,7 @@ fn piecewise_constant_is_exact() {
     let mut e_step = {
         let mut s: crate::settings::Settings = toml::from_str(TEST_CONFIG).unwrap();
         for t in &mut s.tags {
-            t.interpolation = crate::settings::schema::Interpolation::Step;
+            t.interpolation = super::plan::Interpolation::Step;
         }
         Engine::new(plan_settings("test", s).unwrap().plan)
     };

@@ -57,6 +57,10 @@ const N: usize = 5;
 
 /// Spacing of event time at which projected hours are judged.
 pub const HOURS_EVERY_MS: i64 = 600_000;
+
+/// Spacing of observations in event time (a replay's rows touch a part at
+/// every sample of every tag it reads; the crossing is interpolated).
+pub const OBSERVE_EVERY_MS: i64 = 600_000;
 const INDICES: [AlarmIndex; N] = [
     AlarmIndex::CreepLifeFraction,
     AlarmIndex::CreepStrain,
@@ -128,9 +132,16 @@ impl Timeline {
     }
 
     /// Look at component `ci` after the engine advanced it.
-    pub fn observe(&mut self, ci: usize, plan: &ComponentPlan, st: &ComponentState) {
+    ///
+    /// Observations are at most one per [`OBSERVE_EVERY_MS`] of event time
+    /// per component (crossings are interpolated between them, exact for
+    /// steady conditions), unless `force` (the end of the input).
+    pub fn observe(&mut self, ci: usize, plan: &ComponentPlan, st: &ComponentState, force: bool) {
         let Some(t) = st.integrated_to_ms else { return };
         let Some(track) = self.tracks.get_mut(ci) else { return };
+        if !force && track.last.is_some_and(|(t0, _)| t - t0 < OBSERVE_EVERY_MS) {
+            return;
+        }
         let levels = levels(plan);
         let mut wanted = [false; N];
         for (k, l) in levels.iter().enumerate() {

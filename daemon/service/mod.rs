@@ -17,7 +17,8 @@
 //! disconnects. SIGHUP reloads the configuration and keeps every ledger
 //! ([`reload`] says what a reload may change).
 
-pub mod alarm_kpi;
+/// The alarm-system figures (pure; kept in the alarm core).
+pub use crate::alarm::kpi as alarm_kpi;
 pub mod command_reply;
 pub mod commit_retry;
 pub mod http;

@@ -11,6 +11,9 @@ use crate::physics::stress::StressBasis;
 use crate::physics::wear::RegimeBounds;
 use serde::{Deserialize, Serialize};
 
+// The engine's plan vocabulary, which the configuration names.
+pub use crate::engine::plan::{ComponentKind, GapPolicy, Interpolation, WearModel};
+
 /// The whole configuration file.
 #[derive(Debug, Clone, Default, Deserialize, Serialize)]
 #[serde(deny_unknown_fields)]
@@ -69,20 +72,6 @@ impl Default for PlantSettings {
 
 fn default_plant() -> String {
     "plant".into()
-}
-
-/// What to do over intervals without trustworthy data.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Deserialize, Serialize)]
-#[serde(rename_all = "snake_case")]
-pub enum GapPolicy {
-    /// Integrate at the worse of design conditions and the last good value
-    /// (the default: over-estimates damage rather than under-estimates).
-    #[default]
-    Conservative,
-    /// Integrate at the last good value.
-    HoldLast,
-    /// Integrate nothing; the hours are only counted as unmonitored.
-    Exclude,
 }
 
 /// Engine-wide settings.
@@ -181,17 +170,6 @@ fn default_reorder() -> f64 {
     120.0
 }
 
-/// Sample-and-hold or straight-line reconstruction between samples.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Deserialize, Serialize)]
-#[serde(rename_all = "snake_case")]
-pub enum Interpolation {
-    /// Straight line between consecutive samples (analog process values).
-    #[default]
-    Linear,
-    /// The value holds until the next sample (report-on-change signals).
-    Step,
-}
-
 /// One plant signal.
 #[derive(Debug, Clone, Deserialize, Serialize)]
 #[serde(deny_unknown_fields)]
@@ -235,19 +213,6 @@ pub enum InputSetting {
     Constant(QuantitySetting),
 }
 
-/// The kind of part (reporting and defaults only).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Serialize)]
-#[serde(rename_all = "snake_case")]
-pub enum ComponentKind {
-    Tube,
-    Header,
-    Pipe,
-    Casing,
-    FurnaceTube,
-    WearContact,
-    Other,
-}
-
 /// Wall and diameter of a pressure part.
 #[derive(Debug, Clone, Deserialize, Serialize)]
 #[serde(deny_unknown_fields)]
@@ -268,16 +233,6 @@ pub struct GeometrySettings {
     /// counts from here. Default: the first sample.
     #[serde(default)]
     pub wall_reference_date: Option<String>,
-}
-
-/// Wear model of a contact.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize, Serialize)]
-#[serde(rename_all = "snake_case")]
-pub enum WearModel {
-    /// Archard sliding wear: V̇ = K·F·v/H.
-    Archard,
-    /// Fretting work-rate: V̇ = K_w·F·4δf.
-    Fretting,
 }
 
 /// Inputs and constants of a wear contact.
