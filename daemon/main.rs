@@ -634,6 +634,7 @@ fn cmd_replay(
         lp: lp_file.as_mut().map(|w| w as &mut dyn Write),
         csv: csv_file.as_mut().map(|w| w as &mut dyn Write),
         timeline: Some(&mut timeline),
+        history: None,
     };
     let outcome = lifeledger::replay::replay_to(&mut engine, reader, outputs, &opts, |rows| {
         if let Some(b) = &bar {

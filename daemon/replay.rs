@@ -309,6 +309,10 @@ pub struct Outputs<'a> {
     pub csv: Option<&'a mut dyn Write>,
     /// First level crossings, observed after every step of the engine.
     pub timeline: Option<&'a mut timeline::Timeline>,
+    /// Daily history points (`history_day`): one for each part at the
+    /// first step of each UTC day of event time it reaches (a backfill's
+    /// years of history); the caller adds the final state.
+    pub history: Option<&'a mut Vec<(String, crate::store::inspection::HistoryPoint)>>,
 }
 
 /// [`replay`] with every output: line protocol, CSV and the timeline.
@@ -319,9 +323,11 @@ pub fn replay_to(
     opts: &ReplayOptions,
     mut tick: impl FnMut(u64),
 ) -> io::Result<ReplayOutcome> {
-    let Outputs { lp, csv, timeline } = outputs;
+    let Outputs { lp, csv, timeline, history } = outputs;
     let mut csv = csv.map(series_csv::CsvSeries::new);
-    let mut series = Series { lp, csv: csv.as_mut(), timeline };
+    let history_day =
+        engine.components().iter().map(|s| s.integrated_to_ms.map(crate::store::inspection::day_of)).collect();
+    let mut series = Series { lp, csv: csv.as_mut(), timeline, history, history_day };
     let index = tag_index(engine);
     let mut out = ReplayOutcome::default();
     let mut line = String::with_capacity(128);
@@ -423,11 +429,14 @@ struct Series<'a, 'b> {
     lp: Option<&'a mut dyn Write>,
     csv: Option<&'b mut series_csv::CsvSeries<'a>>,
     timeline: Option<&'a mut timeline::Timeline>,
+    history: Option<&'a mut Vec<(String, crate::store::inspection::HistoryPoint)>>,
+    /// UTC day of each part's last history point.
+    history_day: Vec<Option<i64>>,
 }
 
 impl Series<'_, '_> {
     fn wanted(&self) -> bool {
-        self.lp.is_some() || self.csv.is_some() || self.timeline.is_some()
+        self.lp.is_some() || self.csv.is_some() || self.timeline.is_some() || self.history.is_some()
     }
 
     /// Write a `component_state` point (line protocol with its threshold
@@ -450,6 +459,13 @@ impl Series<'_, '_> {
             let plan = &engine.plan().components[ci];
             if let Some(tl) = self.timeline.as_deref_mut() {
                 tl.observe(ci, plan, st, false);
+            }
+            if let (Some(h), Some(t)) = (self.history.as_deref_mut(), st.integrated_to_ms) {
+                let day = crate::store::inspection::day_of(t);
+                if self.history_day[ci] != Some(day) {
+                    self.history_day[ci] = Some(day);
+                    h.extend(crate::inspection::history_points(engine, &[ci]));
+                }
             }
             if self.lp.is_none() && self.csv.is_none() {
                 continue;

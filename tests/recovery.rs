@@ -214,6 +214,19 @@ fn a_poisoned_ledger_rolled_back_and_backfilled_equals_an_unpoisoned_replay() {
         plant.backfill(&plant.ledger, &part);
     }
     assert_matches(&plant.components(&plant.ledger), &clean);
+    // The backfills left a daily history (issue 13's years of history for
+    // a new installation): a point for every day of October, in order,
+    // life fraction never falling.
+    let days = lifeledger::store::inspection::read_history(&plant.ledger, LEG_A).unwrap();
+    assert!(days.len() >= 30, "one history point a day of the backfilled month, got {}", days.len());
+    for w in days.windows(2) {
+        assert!(
+            w[1].t_ms > w[0].t_ms && w[1].life_fraction >= w[0].life_fraction,
+            "{:?} then {:?}",
+            w[0].t_ms,
+            w[1].t_ms
+        );
+    }
 
     plant.poison(&plant.ledger);
     let poisoned = plant.components(&plant.ledger);

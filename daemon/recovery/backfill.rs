@@ -28,7 +28,7 @@ use serde::Serialize;
 use super::checkpoint::checkpoint_rows;
 use super::rollback::Figures;
 use crate::engine::{Counters, Engine};
-use crate::replay::{open_input, replay, ReplayOptions, ReplayOutcome};
+use crate::replay::{open_input, ReplayOptions, ReplayOutcome};
 use crate::service::ledger::StoredLedger;
 use crate::service::ServiceSettings;
 use crate::settings::LoadedConfig;
@@ -90,8 +90,12 @@ pub fn backfill(
     let reader = open_input(input, None).with_context(|| format!("backfill: cannot open input {input}"))?;
     let opts =
         ReplayOptions { lp_interval_ms: service.store.series_interval_s.max(1) * 1000, ..ReplayOptions::default() };
-    let outcome =
-        replay(&mut engine, reader, None, &opts, |_| {}).with_context(|| format!("backfill: reading {input}"))?;
+    // A daily history point for each day the backfill crosses (the years
+    // of history a new installation starts with), then the final states.
+    let mut history = vec![];
+    let outputs = crate::replay::Outputs { history: Some(&mut history), ..Default::default() };
+    let outcome = crate::replay::replay_to(&mut engine, reader, outputs, &opts, |_| {})
+        .with_context(|| format!("backfill: reading {input}"))?;
 
     let changed = engine.take_changed();
     // The replay integrated every held sample the service left in the
@@ -119,7 +123,10 @@ pub fn backfill(
             checkpoints: &checkpoints,
             held_released: &held_in_file,
             inspections_accepted: &accepted,
-            history: &crate::inspection::history_points(&engine, &changed),
+            history: &{
+                history.extend(crate::inspection::history_points(&engine, &changed));
+                history
+            },
             ..Default::default()
         })
         .with_context(|| format!("backfill of {}: nothing was written", path.display()))?;
