@@ -218,6 +218,14 @@ fn fixture() -> Fixture {
 fn overview_shows_every_component_worst_first_with_the_caution() {
     let f = fixture();
     let port = f.svc.http_port;
+    // A component the plant does not have is a 404 that says so, not a
+    // page of empty panels; a configured one answers 200.
+    let missing = common::http::get(port, "/component/NO-SUCH-PART").unwrap();
+    assert_eq!(missing.status, 404, "{}", missing.text());
+    assert!(missing.text().contains("NO-SUCH-PART") && missing.text().contains("no component"), "{}", missing.text());
+    let first = f.snap["components"][0]["component"].as_str().unwrap().to_string();
+    let found = common::http::get(port, &format!("/component/{}", common::http::encode(&first))).unwrap();
+    assert_eq!(found.status, 200, "{first}");
     let dom = dump_dom(port, "/");
     assert!(dom.contains(&text_node(CAUTION)), "caution missing from the overview");
     assert!(dom.contains("Status Page Test Station"), "plant name missing");

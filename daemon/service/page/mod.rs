@@ -9,8 +9,8 @@
 //! without) the script; the script then shows the text the API returns.
 
 use super::http::HttpState;
-use axum::extract::State;
-use axum::http::{header, HeaderValue};
+use axum::extract::{Path, State};
+use axum::http::{header, HeaderValue, StatusCode};
 use axum::response::{IntoResponse, Response};
 use axum::routing::get;
 use axum::Router;
@@ -45,7 +45,26 @@ async fn index(State(s): State<HttpState>) -> Response {
     page(&s, "", "overview", INDEX_HTML)
 }
 
-async fn component(State(s): State<HttpState>) -> Response {
+async fn component(State(s): State<HttpState>, Path(name): Path<String>) -> Response {
+    let name = name.trim_start_matches('/').to_string();
+    let known = {
+        let snap = s.snapshot.borrow();
+        // Before the ledger's first snapshot (no plant yet) every name is
+        // let through; after it, only configured or retired components.
+        snap.plant.is_empty()
+            || snap.components.iter().any(|c| c.component == name)
+            || snap.retired_components.contains(&name)
+    };
+    if !known {
+        let body = format!(
+            "<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\"><title>Not found</title></head><body>\
+             <h1>Not found</h1><p>This plant has no component named <code>{}</code>.</p>\
+             <p><a href=\"/\">All components</a></p><p>{}</p></body></html>",
+            html(&name),
+            html(crate::CAUTION)
+        );
+        return (StatusCode::NOT_FOUND, [(header::CONTENT_TYPE, "text/html; charset=utf-8")], body).into_response();
+    }
     page(&s, "Component · ", "component", COMPONENT_HTML)
 }
 
