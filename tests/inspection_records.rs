@@ -10,11 +10,10 @@
 
 mod common;
 
-use std::io::{BufRead, BufReader, Read};
+use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
 
-use flate2::read::GzDecoder;
 use lifeledger::store::inspection::{read_inspections, NewInspection};
 use lifeledger::store::Store;
 
@@ -42,21 +41,6 @@ fn ok(args: &[&str]) -> String {
     String::from_utf8_lossy(&o.stdout).into()
 }
 
-/// The demo history's rows in [`from`, `to`) (RFC 3339 UTC sorts by text).
-fn demo_rows(from: &str, to: &str) -> String {
-    let mut text = String::new();
-    GzDecoder::new(std::fs::File::open("config/demo/history.csv.gz").unwrap()).read_to_string(&mut text).unwrap();
-    let mut out = String::from("timestamp,tag,value,quality\n");
-    for line in text.lines().skip(1) {
-        let t = line.get(..20).unwrap_or("");
-        if t >= from && t < to {
-            out.push_str(line);
-            out.push('\n');
-        }
-    }
-    out
-}
-
 fn by_name(json: &str) -> serde_json::Map<String, serde_json::Value> {
     let v: serde_json::Value = serde_json::from_str(json).unwrap();
     v["components"]
@@ -76,7 +60,7 @@ fn records_entered_on_a_stopped_ledger_apply_at_their_dates_and_replay_repeats_t
     std::fs::write(&config, format!("{demo}\n[store]\npath = {:?}\n", ledger.to_str().unwrap())).unwrap();
     let (cfg, l) = (config.to_str().unwrap(), ledger.to_str().unwrap());
     let first = dir.path().join("first.csv");
-    std::fs::write(&first, demo_rows("2026-10-01", "2026-10-15")).unwrap();
+    std::fs::write(&first, common::demo_rows("2026-10-01", "2026-10-15")).unwrap();
     ok(&["backfill", "--config", cfg, "--ledger", l, "--input", first.to_str().unwrap()]);
 
     // A wall survey dated inside the history still to come, and a strain
@@ -143,7 +127,7 @@ fn records_entered_on_a_stopped_ledger_apply_at_their_dates_and_replay_repeats_t
     assert!(String::from_utf8_lossy(&o.stderr).contains("--id 99"), "{}", String::from_utf8_lossy(&o.stderr));
 
     let second = dir.path().join("second.csv");
-    std::fs::write(&second, demo_rows("2026-10-15", "2026-11-01")).unwrap();
+    std::fs::write(&second, common::demo_rows("2026-10-15", "2026-11-01")).unwrap();
     ok(&["backfill", "--config", cfg, "--ledger", l, "--input", second.to_str().unwrap()]);
     let rows = read_inspections(&ledger, None).unwrap();
     assert!(rows.iter().all(|r| r.accepted.is_some()), "the backfill accepts pending records: {rows:?}");
@@ -155,7 +139,7 @@ fn records_entered_on_a_stopped_ledger_apply_at_their_dates_and_replay_repeats_t
     let records = dir.path().join("records.json");
     std::fs::write(&records, ok(&["inspection", "list", "--config", cfg, "--ledger", l, "--json"])).unwrap();
     let whole = dir.path().join("whole.csv");
-    std::fs::write(&whole, demo_rows("2026-10-01", "2026-11-01")).unwrap();
+    std::fs::write(&whole, common::demo_rows("2026-10-01", "2026-11-01")).unwrap();
     let replayed = by_name(&ok(&[
         "replay",
         "--config",

@@ -29,8 +29,6 @@ use std::process::Command;
 
 use common::service::{publish_all, samples, Service, ServiceConfig, T0};
 use common::{free_port, Mosquitto};
-use flate2::read::GzDecoder;
-use std::io::Read;
 
 /// Outlet leg A: the poisoned component. It reads U2.SH3.TE-311A (its own)
 /// and U2.SH3.PT-301, which leg B and the outlet header read too.
@@ -70,22 +68,6 @@ fn run(args: &[&str]) -> (i32, String, String) {
 fn ok(args: &[&str]) -> String {
     let (code, out, err) = run(args);
     assert_eq!(code, 0, "lifeledger {args:?} failed:\n{err}\n{out}");
-    out
-}
-
-/// The demo history's rows (header left out) whose timestamps fall in
-/// [`from`, `to`) as string prefixes compare (RFC 3339 UTC sorts by text).
-fn demo_rows(from: &str, to: &str) -> String {
-    let mut text = String::new();
-    GzDecoder::new(std::fs::File::open("config/demo/history.csv.gz").unwrap()).read_to_string(&mut text).unwrap();
-    let mut out = String::from("timestamp,tag,value,quality\n");
-    for line in text.lines().skip(1) {
-        let t = line.get(..20).unwrap_or("");
-        if t >= from && t < to {
-            out.push_str(line);
-            out.push('\n');
-        }
-    }
     out
 }
 
@@ -200,7 +182,7 @@ fn rollbacks(ledger: &Path, component: &str) -> Vec<serde_json::Value> {
 #[test]
 fn a_poisoned_ledger_rolled_back_and_backfilled_equals_an_unpoisoned_replay() {
     let plant = Plant::new();
-    let whole = demo_rows("2026-10-01", "2026-11");
+    let whole = common::demo_rows("2026-10-01", "2026-11");
     let history = plant.file("history.csv", &whole);
     let clean =
         by_name(&ok(&["replay", "--config", plant.config(), "--input", history.to_str().unwrap(), "--format", "json"]));
@@ -210,7 +192,7 @@ fn a_poisoned_ledger_rolled_back_and_backfilled_equals_an_unpoisoned_replay() {
     for (i, (from, to)) in
         [("2026-10-01", "2026-10-11"), ("2026-10-11", "2026-10-21"), ("2026-10-21", "2026-11")].into_iter().enumerate()
     {
-        let part = plant.file(&format!("part{i}.csv"), &demo_rows(from, to));
+        let part = plant.file(&format!("part{i}.csv"), &common::demo_rows(from, to));
         plant.backfill(&plant.ledger, &part);
     }
     assert_matches(&plant.components(&plant.ledger), &clean);
@@ -241,7 +223,7 @@ fn a_poisoned_ledger_rolled_back_and_backfilled_equals_an_unpoisoned_replay() {
     assert!(num(leg_a, "creep_life_fraction") > 10.0 * num(&clean[LEG_A], "creep_life_fraction"));
     let copy = plant.dir.path().join("whole.sqlite");
     std::fs::copy(&plant.ledger, &copy).unwrap();
-    let since_20th = plant.file("since-20th.csv", &demo_rows("2026-10-20", "2026-11"));
+    let since_20th = plant.file("since-20th.csv", &common::demo_rows("2026-10-20", "2026-11"));
 
     // One component: leg A, with its own tag and the pressure tag it
     // shares with leg B and the header, which must count nothing twice.
@@ -316,7 +298,7 @@ fn rollback_refuses_without_who_and_why_before_the_oldest_checkpoint_and_while_i
     let plant = Plant::new();
     // Two days, kept by two backfills: checkpoints at the end of each day.
     for (i, (from, to)) in [("2026-10-01", "2026-10-02"), ("2026-10-02", "2026-10-03")].into_iter().enumerate() {
-        let part = plant.file(&format!("day{i}.csv"), &demo_rows(from, to));
+        let part = plant.file(&format!("day{i}.csv"), &common::demo_rows(from, to));
         plant.backfill(&plant.ledger, &part);
     }
     let before = plant.components(&plant.ledger);
@@ -365,7 +347,7 @@ fn rollback_refuses_without_who_and_why_before_the_oldest_checkpoint_and_while_i
     let (code, _, err) = run(&with(&["--by", "A. Engineer", "--reason", "test"]));
     assert_eq!(code, 2, "{err}");
     assert!(err.contains("in use") && err.contains("Stop the service"), "{err}");
-    let day = plant.file("day3.csv", &demo_rows("2026-10-03", "2026-10-04"));
+    let day = plant.file("day3.csv", &common::demo_rows("2026-10-03", "2026-10-04"));
     let (code, _, err) = run(&["backfill", "--config", plant.config(), "--input", day.to_str().unwrap()]);
     assert_eq!(code, 2, "{err}");
     assert!(err.contains("in use"), "{err}");

@@ -127,3 +127,22 @@ fn run_within_budget(cmd: &mut std::process::Command, what: &str) -> std::proces
         stderr: std::fs::read(&err_path).unwrap_or_default(),
     }
 }
+
+/// The shipped demo history's rows with timestamps in [`from`, `to`)
+/// (RFC 3339 UTC sorts by text), with the CSV header.
+pub fn demo_rows(from: &str, to: &str) -> String {
+    use std::io::Read;
+    let mut text = String::new();
+    flate2::read::GzDecoder::new(std::fs::File::open("config/demo/history.csv.gz").unwrap())
+        .read_to_string(&mut text)
+        .unwrap();
+    let mut out = String::from("timestamp,tag,value,quality\n");
+    for line in text.lines().skip(1) {
+        let t = line.get(..20).unwrap_or("");
+        if t >= from && t < to {
+            out.push_str(line);
+            out.push('\n');
+        }
+    }
+    out
+}
