@@ -30,6 +30,7 @@ pub mod alarm;
 pub mod assessment;
 pub mod demo;
 pub mod engine;
+pub mod event_time;
 pub mod fit;
 pub mod ingest;
 pub mod inspection;

@@ -532,7 +532,7 @@ fn timeline_json(
                     "index": c.index,
                     "severity": c.severity,
                     "threshold": c.threshold,
-                    "time": report::rfc3339_ms(c.time_ms),
+                    "time": lifeledger::event_time::rfc3339_ms(c.time_ms),
                     "basis": c.basis,
                 })
             })
@@ -570,7 +570,7 @@ fn timeline_text(
                 c.severity,
                 lifeledger::alarm::AlarmIndex::from_name(c.index)
                     .map_or(c.threshold.to_string(), |i| i.display(c.threshold)),
-                report::rfc3339_ms(c.time_ms),
+                lifeledger::event_time::rfc3339_ms(c.time_ms),
                 how
             ));
         }
@@ -668,8 +668,8 @@ fn cmd_replay(
                 "malformed_examples": outcome.malformed_examples,
                 "implausible_time_examples": outcome.implausible_examples,
                 "unknown_tags": outcome.unknown_tags,
-                "first_sample": outcome.first_time_ms.map(report::rfc3339_ms),
-                "last_sample": outcome.last_time_ms.map(report::rfc3339_ms),
+                "first_sample": outcome.first_time_ms.map(lifeledger::event_time::rfc3339_ms),
+                "last_sample": outcome.last_time_ms.map(lifeledger::event_time::rfc3339_ms),
                 "counters": engine.counters(),
                 "line_protocol_points": outcome.points_written,
                 "csv_rows": outcome.csv_rows,
@@ -682,7 +682,12 @@ fn cmd_replay(
         Format::Table => {
             writeln!(out, "lifeledger replay: {} ({} rows in {:.1} s)", engine.plant_name(), outcome.rows, elapsed)?;
             if let (Some(a), Some(b)) = (outcome.first_time_ms, outcome.last_time_ms) {
-                writeln!(out, "event time {} to {}", report::rfc3339_ms(a), report::rfc3339_ms(b))?;
+                writeln!(
+                    out,
+                    "event time {} to {}",
+                    lifeledger::event_time::rfc3339_ms(a),
+                    lifeledger::event_time::rfc3339_ms(b)
+                )?;
             }
             writeln!(out, "{}", report::counters_line(engine.counters()))?;
             if outcome.malformed > 0 {
@@ -795,7 +800,7 @@ fn cmd_ledger(config: &std::path::Path, format: Format) -> Result<i32> {
                         r.severity.map(|s| name(serde_json::to_value(s))).unwrap_or_else(|| "-".into()),
                         name(serde_json::to_value(r.state)),
                         r.threshold.map_or("-".to_string(), |t| t.to_string()),
-                        report::rfc3339_ms(r.since_ms)
+                        lifeledger::event_time::rfc3339_ms(r.since_ms)
                     )?;
                 }
             }
@@ -810,7 +815,7 @@ fn cmd_ledger(config: &std::path::Path, format: Format) -> Result<i32> {
 
 /// An event time for people, or `-`.
 fn time_or_dash(t: Option<i64>) -> String {
-    t.map_or("-".to_string(), report::rfc3339_ms)
+    t.map_or("-".to_string(), lifeledger::event_time::rfc3339_ms)
 }
 
 fn cmd_resend(
@@ -822,7 +827,7 @@ fn cmd_resend(
     dry_run: bool,
 ) -> Result<i32> {
     let time = |flag: &str, v: &str| {
-        lifeledger::replay::parse_timestamp_ms(v.trim())
+        lifeledger::event_time::parse_timestamp_ms(v.trim())
             .with_context(|| format!("{flag} {v:?} is not a time; give RFC 3339, for example 2026-10-20T00:00:00Z"))
     };
     let (from_ms, to_ms) = (time("--from", from)?, time("--to", to)?);
@@ -867,7 +872,7 @@ fn cmd_rollback(
     format: Format,
 ) -> Result<i32> {
     use lifeledger::alarm::index::short;
-    let to_ms = lifeledger::replay::parse_timestamp_ms(to.trim())
+    let to_ms = lifeledger::event_time::parse_timestamp_ms(to.trim())
         .with_context(|| format!("--to {to:?} is not a time; give RFC 3339, for example 2026-10-20T00:00:00Z"))?;
     let (cfg, service) = lifeledger::service::load_service(config)?;
     let req = lifeledger::recovery::RollbackRequest {
@@ -884,7 +889,7 @@ fn cmd_rollback(
         let j = serde_json::json!({
             "plant": cfg.plan.plant,
             "ledger": o.ledger.display().to_string(),
-            "to": report::rfc3339_ms(to_ms),
+            "to": lifeledger::event_time::rfc3339_ms(to_ms),
             "by": req.by,
             "reason": req.reason,
             "dry_run": dry_run,
@@ -903,7 +908,7 @@ fn cmd_rollback(
     writeln!(
         out,
         "to the newest checkpoint at or before {}, by {}: {}",
-        report::rfc3339_ms(to_ms),
+        lifeledger::event_time::rfc3339_ms(to_ms),
         req.by,
         req.reason
     )?;
@@ -922,7 +927,7 @@ fn cmd_rollback(
                 c.component,
                 time_or_dash(c.integrated_to_ms_before),
                 short(c.before.life_fraction),
-                report::rfc3339_ms(c.checkpoint_ms),
+                lifeledger::event_time::rfc3339_ms(c.checkpoint_ms),
                 short(c.after.life_fraction)
             )?;
         }
@@ -951,7 +956,7 @@ fn cmd_rollback(
         writeln!(
             out,
             "warning: {name} is integrated to {}, later than the wall clock: probably poisoned too; roll it back as well",
-            report::rfc3339_ms(*t)
+            lifeledger::event_time::rfc3339_ms(*t)
         )?;
     }
     if dry_run {
@@ -1005,8 +1010,8 @@ fn cmd_backfill(config: &std::path::Path, ledger: Option<PathBuf>, input: &str, 
             "malformed_rows": o.input.malformed,
             "malformed_examples": o.input.malformed_examples,
             "unknown_tags": o.input.unknown_tags,
-            "first_sample": o.input.first_time_ms.map(report::rfc3339_ms),
-            "last_sample": o.input.last_time_ms.map(report::rfc3339_ms),
+            "first_sample": o.input.first_time_ms.map(lifeledger::event_time::rfc3339_ms),
+            "last_sample": o.input.last_time_ms.map(lifeledger::event_time::rfc3339_ms),
             "samples": delta,
             "components": o.components,
             "checkpoints_written": o.checkpoints_written,
@@ -1018,7 +1023,13 @@ fn cmd_backfill(config: &std::path::Path, ledger: Option<PathBuf>, input: &str, 
     }
     writeln!(out, "lifeledger backfill: {} ({}) from {input}", cfg.plan.plant, o.ledger.display())?;
     if let (Some(a), Some(b)) = (o.input.first_time_ms, o.input.last_time_ms) {
-        writeln!(out, "{} rows, event time {} to {}", o.input.rows, report::rfc3339_ms(a), report::rfc3339_ms(b))?;
+        writeln!(
+            out,
+            "{} rows, event time {} to {}",
+            o.input.rows,
+            lifeledger::event_time::rfc3339_ms(a),
+            lifeledger::event_time::rfc3339_ms(b)
+        )?;
     }
     let words: Vec<String> = delta.iter().map(|(k, v)| format!("{} {v}", k.replace('_', " "))).collect();
     writeln!(out, "samples: {}", if words.is_empty() { "none".to_string() } else { words.join(", ") })?;

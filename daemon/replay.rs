@@ -14,40 +14,15 @@
 pub mod series_csv;
 pub mod timeline;
 
-use crate::engine::{Engine, Quality, Sample, TagId};
+use crate::engine::tags::{parse_quality, tag_index};
+use crate::engine::{Engine, Quality, Sample};
+use crate::event_time::parse_timestamp_ms;
 use crate::report::component_point;
-use std::collections::{BTreeMap, HashMap};
-use std::hash::{BuildHasherDefault, Hasher};
+use std::collections::BTreeMap;
 use std::io::{self, BufRead, BufReader, Read, Write};
 
 /// How many malformed rows are kept as examples in the outcome.
 pub const MALFORMED_EXAMPLES: usize = 20;
-
-/// A small, fast hasher for tag names (FNV-1a).
-#[derive(Default)]
-pub struct Fnv(u64);
-
-impl Hasher for Fnv {
-    fn finish(&self) -> u64 {
-        self.0
-    }
-    fn write(&mut self, bytes: &[u8]) {
-        let mut h = if self.0 == 0 { 0xcbf2_9ce4_8422_2325 } else { self.0 };
-        for b in bytes {
-            h ^= *b as u64;
-            h = h.wrapping_mul(0x0100_0000_01b3);
-        }
-        self.0 = h;
-    }
-}
-
-/// Tag name to id map used by decoders.
-pub type TagIndex = HashMap<String, TagId, BuildHasherDefault<Fnv>>;
-
-/// Build the tag index of an engine.
-pub fn tag_index(engine: &Engine) -> TagIndex {
-    engine.plan().tags.iter().enumerate().map(|(i, t)| (t.name.clone(), i as TagId)).collect()
-}
 
 /// A row that could not be read.
 #[derive(Debug, Clone, PartialEq, serde::Serialize)]
@@ -85,116 +60,6 @@ pub struct ReplayOptions {
 impl Default for ReplayOptions {
     fn default() -> Self {
         ReplayOptions { lp_interval_ms: 600_000, now_ms: chrono::Utc::now().timestamp_millis() }
-    }
-}
-
-/// Days from 1970-01-01 to a civil date (proleptic Gregorian), after
-/// H. Hinnant's `days_from_civil`.
-fn days_from_civil(y: i64, m: i64, d: i64) -> i64 {
-    let y = if m <= 2 { y - 1 } else { y };
-    let era = if y >= 0 { y } else { y - 399 } / 400;
-    let yoe = y - era * 400;
-    let mp = (m + 9) % 12;
-    let doy = (153 * mp + 2) / 5 + d - 1;
-    let doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
-    era * 146_097 + doe - 719_468
-}
-
-fn digits(b: &[u8]) -> Option<i64> {
-    let mut v = 0i64;
-    for &c in b {
-        if !c.is_ascii_digit() {
-            return None;
-        }
-        v = v * 10 + (c - b'0') as i64;
-    }
-    Some(v)
-}
-
-/// Epoch numbers at or above this are milliseconds, below it seconds
-/// (1e11 s is the year 5138; 1e11 ms is 1973), as the MQTT decoder reads
-/// numeric timestamps by magnitude.
-pub const EPOCH_MS_FROM: f64 = 1e11;
-
-/// Epoch milliseconds at or above this (the year 33658) are no time at all.
-pub const EPOCH_MS_BEYOND: f64 = 1e15;
-
-/// Parse an RFC 3339 timestamp or an epoch number (seconds, or
-/// milliseconds by magnitude: see [`EPOCH_MS_FROM`]) to milliseconds.
-pub fn parse_timestamp_ms(s: &str) -> Option<i64> {
-    let b = s.as_bytes();
-    if b.len() >= 20
-        && b[4] == b'-'
-        && b[7] == b'-'
-        && (b[10] == b'T' || b[10] == b' ' || b[10] == b't')
-        && b[13] == b':'
-        && b[16] == b':'
-    {
-        let y = digits(&b[0..4])?;
-        let mo = digits(&b[5..7])?;
-        let d = digits(&b[8..10])?;
-        let h = digits(&b[11..13])?;
-        let mi = digits(&b[14..16])?;
-        let se = digits(&b[17..19])?;
-        if !(1..=12).contains(&mo) || !(1..=31).contains(&d) || h > 23 || mi > 59 || se > 60 {
-            return None;
-        }
-        let mut i = 19;
-        let mut frac_ms = 0i64;
-        if b[i] == b'.' {
-            i += 1;
-            let start = i;
-            while i < b.len() && b[i].is_ascii_digit() {
-                i += 1;
-            }
-            if i == start {
-                return None;
-            }
-            let f = &b[start..i.min(start + 3)];
-            let mut v = digits(f)?;
-            for _ in f.len()..3 {
-                v *= 10;
-            }
-            frac_ms = v;
-        }
-        let offset_min = match b.get(i)? {
-            b'Z' | b'z' if i + 1 == b.len() => 0,
-            c @ (b'+' | b'-') if i + 6 == b.len() && b[i + 3] == b':' => {
-                let oh = digits(&b[i + 1..i + 3])?;
-                let om = digits(&b[i + 4..i + 6])?;
-                let o = oh * 60 + om;
-                if *c == b'+' {
-                    o
-                } else {
-                    -o
-                }
-            }
-            _ => return None,
-        };
-        let days = days_from_civil(y, mo, d);
-        let secs = days * 86_400 + h * 3600 + mi * 60 + se - offset_min * 60;
-        return Some(secs * 1000 + frac_ms);
-    }
-    // Epoch seconds or milliseconds (integer or decimal).
-    if !b.is_empty() && b.iter().all(|c| c.is_ascii_digit() || *c == b'.' || *c == b'-') {
-        let v: f64 = s.parse().ok()?;
-        if v.is_finite() && v.abs() < EPOCH_MS_FROM {
-            return Some((v * 1000.0).round() as i64);
-        }
-        if v.is_finite() && v.abs() < EPOCH_MS_BEYOND {
-            return Some(v.round() as i64);
-        }
-    }
-    None
-}
-
-/// Parse a quality word.
-pub fn parse_quality(s: &str) -> Option<Quality> {
-    match s.trim() {
-        "" | "good" | "Good" | "GOOD" | "g" | "192" => Some(Quality::Good),
-        "uncertain" | "Uncertain" | "UNCERTAIN" | "u" | "64" => Some(Quality::Uncertain),
-        "bad" | "Bad" | "BAD" | "b" | "0" => Some(Quality::Bad),
-        _ => None,
     }
 }
 
@@ -325,8 +190,7 @@ pub fn replay_to(
 ) -> io::Result<ReplayOutcome> {
     let Outputs { lp, csv, timeline, history } = outputs;
     let mut csv = csv.map(series_csv::CsvSeries::new);
-    let history_day =
-        engine.components().iter().map(|s| s.integrated_to_ms.map(crate::store::inspection::day_of)).collect();
+    let history_day = engine.components().iter().map(|s| s.integrated_to_ms.map(crate::event_time::utc_day)).collect();
     let mut series = Series { lp, csv: csv.as_mut(), timeline, history, history_day };
     let index = tag_index(engine);
     let mut out = ReplayOutcome::default();
@@ -395,8 +259,8 @@ pub fn replay_to(
                 problem: format!(
                     "{} stamped {}: outside the plausible event times (earliest {}, at most {} s ahead of the clock)",
                     row.tag,
-                    crate::report::rfc3339_ms(row.time_ms),
-                    crate::report::rfc3339_ms(engine.plan().earliest_plausible_ms),
+                    crate::event_time::rfc3339_ms(row.time_ms),
+                    crate::event_time::rfc3339_ms(engine.plan().earliest_plausible_ms),
                     engine.plan().future_margin_ms / 1000
                 ),
             });
@@ -461,7 +325,7 @@ impl Series<'_, '_> {
                 tl.observe(ci, plan, st, false);
             }
             if let (Some(h), Some(t)) = (self.history.as_deref_mut(), st.integrated_to_ms) {
-                let day = crate::store::inspection::day_of(t);
+                let day = crate::event_time::utc_day(t);
                 if self.history_day[ci] != Some(day) {
                     self.history_day[ci] = Some(day);
                     h.extend(crate::inspection::history_points(engine, &[ci]));
@@ -504,29 +368,6 @@ impl Series<'_, '_> {
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn timestamps() {
-        // 2026-10-01T00:00:00Z is 1 790 812 800 s after the epoch
-        // (checked with Python: datetime(2026,10,1,tzinfo=timezone.utc).timestamp()).
-        assert_eq!(parse_timestamp_ms("2026-10-01T00:00:00Z"), Some(1_790_812_800_000));
-        assert_eq!(parse_timestamp_ms("2026-10-01T02:00:00+02:00"), Some(1_790_812_800_000));
-        assert_eq!(parse_timestamp_ms("2026-10-01T00:00:00.25Z"), Some(1_790_812_800_250));
-        assert_eq!(parse_timestamp_ms("1790812800"), Some(1_790_812_800_000));
-        assert_eq!(parse_timestamp_ms("1790812800.5"), Some(1_790_812_800_500));
-        assert_eq!(parse_timestamp_ms("2026-13-01T00:00:00Z"), None);
-        assert_eq!(parse_timestamp_ms("yesterday"), None);
-        assert_eq!(parse_timestamp_ms("1970-01-01T00:00:00Z"), Some(0));
-        assert_eq!(parse_timestamp_ms("2000-02-29T12:00:00Z"), Some(951_825_600_000));
-    }
-
-    #[test]
-    fn timestamps_agree_with_chrono() {
-        for s in ["1999-12-31T23:59:59Z", "2024-02-29T06:30:00.123Z", "2030-07-04T10:00:00-05:30"] {
-            let c = chrono::DateTime::parse_from_rfc3339(s).unwrap().timestamp_millis();
-            assert_eq!(parse_timestamp_ms(s), Some(c), "{s}");
-        }
-    }
 
     #[test]
     fn rows() {

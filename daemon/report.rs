@@ -7,6 +7,7 @@ pub mod fatigue;
 use crate::engine::component::{projection, Projection};
 use crate::engine::plan::{ComponentPlan, Levels, StressPlan};
 use crate::engine::{ComponentState, Counters};
+use crate::event_time::rfc3339_ms;
 use crate::lineproto::Point;
 use crate::physics::larson_miller::{rupture_life_h, CurveBasis, RangeFlags};
 use crate::physics::material::NortonBasis;
@@ -181,13 +182,6 @@ pub fn range_flag_names(f: &RangeFlags) -> Vec<&'static str> {
         v.push("temperature_above_data_range");
     }
     v
-}
-
-/// RFC 3339 text for an event time in ms.
-pub fn rfc3339_ms(ms: i64) -> String {
-    chrono::DateTime::from_timestamp_millis(ms)
-        .map(|t| t.format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string())
-        .unwrap_or_else(|| ms.to_string())
 }
 
 /// The highest severity whose level `value` has reached.

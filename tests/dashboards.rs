@@ -252,7 +252,7 @@ fn alarm_event(component: &str, index: AlarmIndex, value: f64, threshold: f64, t
         state: AlarmState::Unacknowledged,
         value: Some(value),
         threshold: Some(threshold),
-        time: lifeledger::report::rfc3339_ms(time_ms),
+        time: lifeledger::event_time::rfc3339_ms(time_ms),
         time_ms,
         message: format!("{component}: {} reached the advisory level {threshold}", index.name()),
         by: None,

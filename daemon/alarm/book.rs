@@ -54,8 +54,8 @@ use super::AlarmError;
 use crate::engine::component::projection;
 use crate::engine::plan::{ComponentPlan, Levels};
 use crate::engine::ComponentState;
+use crate::event_time::rfc3339_ms;
 use crate::physics::remaining::hours_to_threshold;
-use crate::report::rfc3339_ms;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 

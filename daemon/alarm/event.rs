@@ -8,8 +8,8 @@
 
 use super::index::{AlarmIndex, Severity};
 use super::record::{AlarmRecord, AlarmState};
+use crate::event_time::rfc3339_ms;
 use crate::lineproto::Point;
-use crate::report::rfc3339_ms;
 use serde::{Deserialize, Serialize};
 
 /// What happened to an alarm.

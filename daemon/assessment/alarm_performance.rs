@@ -45,8 +45,8 @@ pub fn from_events(events: &[AlarmEvent]) -> AlarmPerformance {
     else {
         return out;
     };
-    out.from = Some(crate::report::rfc3339_ms(first));
-    out.to = Some(crate::report::rfc3339_ms(last));
+    out.from = Some(crate::event_time::rfc3339_ms(first));
+    out.to = Some(crate::event_time::rfc3339_ms(last));
     let mut ann: Vec<(i64, String)> = events.iter().filter(|e| annunciates(e)).map(|e| (e.time_ms, e.key())).collect();
     ann.sort();
     out.annunciations = ann.len();

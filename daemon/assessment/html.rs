@@ -5,7 +5,7 @@
 //! assets.
 
 use super::{Assessment, ComponentAssessment};
-use crate::report::rfc3339_ms;
+use crate::event_time::rfc3339_ms;
 
 const CSS: &str = r#"
 @page { margin: 14mm 12mm 16mm 12mm; }

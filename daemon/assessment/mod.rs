@@ -35,10 +35,11 @@ use serde::Serialize;
 use crate::engine::component::design_rates;
 use crate::engine::plan::StressPlan;
 use crate::engine::{ComponentPlan, ComponentState, Engine};
+use crate::event_time::rfc3339_ms;
 use crate::physics::remaining::hours_to_threshold;
 use crate::physics::stress::remaining_wall_mm;
 use crate::physics::units::kelvin_to_celsius;
-use crate::report::{rfc3339_ms, ComponentReport};
+use crate::report::ComponentReport;
 use crate::store::inspection::{HistoryPoint, InspectionRow};
 
 /// What the report covers.

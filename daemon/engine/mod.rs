@@ -29,6 +29,7 @@ pub mod fatigue;
 pub mod inspection;
 pub mod plan;
 pub mod signal;
+pub mod tags;
 
 /// Serde for floats that may be infinite (JSON has no infinity): finite
 /// values as numbers (shortest exact form), others as "inf", "-inf", "nan".

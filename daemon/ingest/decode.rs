@@ -10,8 +10,9 @@
 //! not: a quoted epoch is read exactly as the same number; when a payload
 //! has none, the receive time is used and the sample is flagged.
 
+use crate::engine::tags::parse_quality;
 use crate::engine::Quality;
-use crate::replay::{parse_quality, parse_timestamp_ms};
+use crate::event_time::parse_timestamp_ms;
 use serde::Deserialize;
 
 /// How a payload is laid out.
@@ -150,10 +151,10 @@ fn numeric_time(x: f64, unit: TimestampUnit) -> Option<i64> {
     let ms = match unit {
         TimestampUnit::S => x * 1000.0,
         TimestampUnit::Ms => x,
-        TimestampUnit::Auto if x >= crate::replay::EPOCH_MS_FROM => x,
+        TimestampUnit::Auto if x >= crate::event_time::EPOCH_MS_FROM => x,
         TimestampUnit::Auto => x * 1000.0,
     };
-    (ms < crate::replay::EPOCH_MS_BEYOND).then(|| ms.round() as i64)
+    (ms < crate::event_time::EPOCH_MS_BEYOND).then(|| ms.round() as i64)
 }
 
 /// Decode a payload received at `receive_ms`.

@@ -161,7 +161,7 @@ pub fn line(r: &InspectionRow, all: &[InspectionRow]) -> String {
     format!(
         "#{} {} {} {} = {} by {}; {} {};{} {}",
         r.id,
-        crate::report::rfc3339_ms(r.finding_ms),
+        crate::event_time::rfc3339_ms(r.finding_ms),
         r.component,
         r.kind,
         value,

@@ -67,7 +67,7 @@ impl Checkpoint {
                 "ledger {}: checkpoint of component {} at {}",
                 ledger.display(),
                 r.component,
-                crate::report::rfc3339_ms(r.at_ms)
+                crate::event_time::rfc3339_ms(r.at_ms)
             )
         };
         let state =

@@ -45,7 +45,7 @@ use serde::Serialize;
 
 use super::checkpoint::Checkpoint;
 use crate::engine::{ComponentState, Engine, TagState};
-use crate::report::rfc3339_ms;
+use crate::event_time::rfc3339_ms;
 use crate::service::ledger::StoredLedger;
 use crate::service::ServiceSettings;
 use crate::settings::LoadedConfig;

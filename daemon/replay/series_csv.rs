@@ -68,7 +68,7 @@ pub fn row(p: &Point) -> io::Result<String> {
             format!("component_state field {k:?} has no CSV column (series_csv::FIELDS)"),
         ));
     }
-    let mut out = crate::report::rfc3339_ms(p.time_ns.div_euclid(1_000_000));
+    let mut out = crate::event_time::rfc3339_ms(p.time_ns.div_euclid(1_000_000));
     for t in TAGS {
         out.push(',');
         if let Some((_, v)) = p.tags.iter().find(|(k, _)| k == t) {

@@ -139,7 +139,7 @@ async fn list(State(s): State<HttpState>, Path(name): Path<String>) -> Response 
                         o.insert("detail".into(), serde_json::from_str(&r.detail).unwrap_or_default());
                         let by = rows.iter().find(|o| o.supersedes == Some(r.id)).map(|o| o.id);
                         o.insert("superseded_by".into(), by.into());
-                        o.insert("finding_date".into(), crate::report::rfc3339_ms(r.finding_ms).into());
+                        o.insert("finding_date".into(), crate::event_time::rfc3339_ms(r.finding_ms).into());
                         let ledger = events.iter().find(|e| e.id == r.id).and_then(|e| serde_json::to_value(e).ok());
                         o.insert("ledger".into(), ledger.unwrap_or(serde_json::Value::Null));
                     }

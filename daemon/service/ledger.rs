@@ -26,12 +26,13 @@ use super::reload::SharedFilters;
 use super::settings::ServiceSettings;
 use super::snapshot::{ComponentFreshness, Freshness, ServiceCounters, Snapshot, TagFreshness};
 use crate::alarm::{carries_token, parse_command, AlarmBook, AlarmError, AlarmEvent, AlarmIndex, AlarmRecord};
+use crate::engine::tags::{tag_index, TagIndex};
 use crate::engine::{ComponentState, Engine, EngineState, Rejection, Sample, TagState};
+use crate::event_time::rfc3339_ms;
 use crate::ingest::decode::{decode_payload, PayloadSettings, TopicTemplate};
 use crate::ingest::{now_ms, CommandOutcome, Inbound};
-use crate::replay::{tag_index, TagIndex};
 use crate::report::{
-    capped, component_point, rfc3339_ms, threshold_points, ComponentReport, CREEP_STRAIN_CEILING, DISPLAY_CEILING,
+    capped, component_point, threshold_points, ComponentReport, CREEP_STRAIN_CEILING, DISPLAY_CEILING,
 };
 use crate::settings::LoadedConfig;
 use crate::store::{Commit, JournalEntry, Store, TrendPoint};

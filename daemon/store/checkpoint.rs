@@ -37,7 +37,7 @@ use super::{Store, StoreError};
 /// holiday shutdown and still find a checkpoint from before.
 pub const DEFAULT_DAYS: u64 = 90;
 
-const MS_PER_DAY: i64 = 86_400_000;
+use crate::event_time::utc_day;
 
 /// One checkpoint of one component.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -60,11 +60,6 @@ pub struct StoredCheckpoint {
     pub row: CheckpointRow,
     /// Wall-clock time the checkpoint was written, ms since the epoch.
     pub written_ms: i64,
-}
-
-/// The UTC day (days since the epoch) of an event time.
-pub fn utc_day(t_ms: i64) -> i64 {
-    t_ms.div_euclid(MS_PER_DAY)
 }
 
 /// Whether a checkpoint at `at_ms` is due for a component whose newest
@@ -226,6 +221,7 @@ impl Store {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::event_time::MS_PER_DAY;
     use crate::store::tests::{assert_upgraded_with_v1_rows, earlier_ledger, fresh};
     use crate::store::{Commit, JournalEntry, TrendPoint, TrendWindow};
 

@@ -179,11 +179,6 @@ pub(super) fn accept(conn: &Connection, accepted: &[(i64, String)]) -> rusqlite:
     Ok(())
 }
 
-/// The UTC day number of an event time.
-pub fn day_of(t_ms: i64) -> i64 {
-    t_ms.div_euclid(86_400_000)
-}
-
 /// Upserts history points (inside the caller's transaction): one row per
 /// component and UTC day, the newest point of the day.
 pub(super) fn upsert_history(conn: &Connection, points: &[(String, HistoryPoint)]) -> rusqlite::Result<()> {
@@ -197,7 +192,7 @@ pub(super) fn upsert_history(conn: &Connection, points: &[(String, HistoryPoint)
     )?;
     for (c, p) in points {
         let json = serde_json::to_string(p).unwrap_or_default();
-        stmt.execute((c, day_of(p.t_ms), p.t_ms, json))?;
+        stmt.execute((c, crate::event_time::utc_day(p.t_ms), p.t_ms, json))?;
     }
     Ok(())
 }
