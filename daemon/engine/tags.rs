@@ -32,6 +32,15 @@ pub fn tag_index(engine: &Engine) -> TagIndex {
     engine.plan().tags.iter().enumerate().map(|(i, t)| (t.name.clone(), i as TagId)).collect()
 }
 
+/// Tag name (as bytes) to id: the historian CSV reader looks tags up
+/// before it checks their text, since a known name is valid UTF-8.
+pub type TagBytesIndex = HashMap<Box<[u8]>, TagId, BuildHasherDefault<Fnv>>;
+
+/// Build the byte-keyed tag index of an engine.
+pub fn tag_bytes_index(engine: &Engine) -> TagBytesIndex {
+    engine.plan().tags.iter().enumerate().map(|(i, t)| (t.name.as_bytes().into(), i as TagId)).collect()
+}
+
 /// Parse a quality word.
 pub fn parse_quality(s: &str) -> Option<Quality> {
     match s.trim() {
