@@ -503,3 +503,64 @@ impl Drop for TlsBroker {
         }
     }
 }
+
+/// The maintainer scripts act on the running system only when dpkg acts on
+/// it: run as dpkg runs them for another root (`DPKG_ROOT` set, dpkg(1)),
+/// with a `systemctl` on PATH that records each call, they call nothing.
+#[test]
+fn maintainer_scripts_leave_the_machine_alone_for_another_root() {
+    let dir = tempfile::tempdir().unwrap();
+    let bin = dir.path().join("bin");
+    std::fs::create_dir(&bin).unwrap();
+    let calls = dir.path().join("calls");
+    let stub = bin.join("systemctl");
+    std::fs::write(&stub, format!("#!/bin/sh\necho \"$*\" >> '{}'\n", calls.display())).unwrap();
+    use std::os::unix::fs::PermissionsExt;
+    std::fs::set_permissions(&stub, std::fs::Permissions::from_mode(0o755)).unwrap();
+    let mut ran = 0;
+    for (script, args) in [
+        ("postinst", &["configure", ""][..]),
+        ("postinst", &["configure", "0.1.0-1"][..]),
+        ("prerm", &["remove"][..]),
+        ("prerm", &["upgrade", "0.1.0-2"][..]),
+        ("postrm", &["remove"][..]),
+        ("postrm", &["purge"][..]),
+    ] {
+        let path = repo().join("deploy/debian").join(script);
+        let out = run_bounded(
+            Command::new("/bin/sh")
+                .arg(&path)
+                .args(args)
+                .env("PATH", format!("{}:/usr/bin:/bin", bin.display()))
+                .env("DPKG_ROOT", dir.path()),
+            script,
+            1200,
+        );
+        ok(&out, &format!("{script} {args:?}"));
+        ran += 1;
+    }
+    assert_eq!(ran, 6);
+    // Where systemd does not run here the scripts would call nothing
+    // anyway: also read them. Every systemctl call sits under an `if` that
+    // requires an empty DPKG_ROOT.
+    for script in ["postinst", "prerm", "postrm"] {
+        let text = std::fs::read_to_string(repo().join("deploy/debian").join(script)).unwrap();
+        let mut condition = "";
+        for line in text.lines().map(str::trim).filter(|l| !l.starts_with('#')) {
+            if line.starts_with("if ") {
+                condition = line;
+            }
+            if line.contains("systemctl") {
+                assert!(
+                    condition.contains("-z \"${DPKG_ROOT:-}\""),
+                    "deploy/debian/{script}: {line:?} is not guarded by an empty DPKG_ROOT"
+                );
+            }
+        }
+    }
+    assert!(
+        !calls.exists(),
+        "a maintainer script called systemctl for another root: {:?}",
+        std::fs::read_to_string(&calls)
+    );
+}
