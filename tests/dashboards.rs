@@ -579,6 +579,7 @@ fn prometheus_dashboards_answer_on_the_demo_data() {
     let vm = VictoriaMetrics::start();
     write_lines(&vm, &lines);
     check_prometheus_dashboards(&vm, first_ms / 1000, last_ms / 1000);
+    demo_parts_are_coloured_by_their_own_levels(&vm, first_ms, last_ms);
 }
 
 /// The issue's own check: a short `lifeledger demo` run writes to the real
@@ -1331,11 +1332,9 @@ fn single_value_panels_colour_by_each_parts_own_levels() {
 /// writes equals the count of the part's own published levels
 /// (`alarm_threshold`) that its value has reached, for every component and
 /// index (value >= level: the rule of the alarm book without its deadband).
-#[test]
-fn demo_parts_are_coloured_by_their_own_levels() {
-    let (lines, first_ms, last_ms) = demo_points();
-    let vm = VictoriaMetrics::start();
-    write_lines(&vm, &lines);
+/// (Run by `prometheus_dashboards_answer_on_the_demo_data`, on its
+/// database: loading the demo month once saves CI a minute.)
+fn demo_parts_are_coloured_by_their_own_levels(vm: &VictoriaMetrics, first_ms: i64, last_ms: i64) {
     let (start, end) = (first_ms / 1000, last_ms / 1000);
     let range = format!("{}s", end - start + 1);
     let instant = |q: &str| -> Vec<(String, f64)> {
