@@ -1278,6 +1278,21 @@ fn single_value_panels_colour_by_each_parts_own_levels() {
                     continue;
                 }
                 let raw = raw_indices(p);
+                let relative = p["targets"].as_array().into_iter().flatten().any(|t| {
+                    let q = target_query(t);
+                    q.contains("alarm_threshold") && INDICES.iter().any(|i| names_word(q, i))
+                });
+                if relative {
+                    // A share of one of the part's levels cannot say which
+                    // of its other levels is reached: below the level it is
+                    // not "all clear" (green).
+                    let base = &p["fieldConfig"]["defaults"]["thresholds"]["steps"][0]["color"];
+                    assert!(
+                        !base.as_str().is_some_and(is_green),
+                        "{file}: panel {:?} shows green below the part's level, where its advisory may be reached",
+                        title(p)
+                    );
+                }
                 if raw.is_empty() {
                     continue;
                 }
