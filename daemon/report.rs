@@ -3,6 +3,7 @@
 //! design-condition checks of `check-config`.
 
 pub mod fatigue;
+pub mod levels;
 
 use crate::engine::component::{projection, Projection};
 use crate::engine::plan::{ComponentPlan, Levels, StressPlan};
@@ -387,6 +388,7 @@ pub fn component_point(plant: &str, plan: &ComponentPlan, st: &ComponentState, t
             .float("fatigue_cycles_last_day", g.cycles_last_day)
             .float("fatigue_cycles_last_month", g.cycles_last_month);
     }
+    p = levels::with_level_fields(p, plan, &r);
     p = p.boolean("exhausted", r.exhausted);
     if let Some(h) = r.remaining_life_h {
         p = p.float("remaining_life_h", h);
@@ -394,11 +396,31 @@ pub fn component_point(plant: &str, plan: &ComponentPlan, st: &ComponentState, t
     p.float("unmonitored_h", st.unmonitored_h)
 }
 
-/// `alarm_threshold` points: one per index and severity, for dashboards.
-pub fn threshold_points(plant: &str, plan: &ComponentPlan, time_ms: i64) -> Vec<Point> {
+/// The alarm indices a part has levels for, with those levels: the
+/// indices of its `alarm_threshold` points and `<index>_level` fields.
+pub fn indexed_levels(plan: &ComponentPlan) -> Vec<(&'static str, &Levels)> {
     let th = &plan.thresholds;
     let mut out = vec![];
-    let mut push = |index: &str, l: &Levels| {
+    if plan.metal_temperature.is_some() {
+        out.push(("creep_life_fraction", &th.life_fraction));
+        if plan.material.norton.is_some() {
+            out.push(("creep_strain", &th.creep_strain));
+        }
+    }
+    if plan.wear.is_some() {
+        out.push(("wear_index", &th.wear_index));
+    }
+    if let Some(f) = &plan.fatigue {
+        out.push(("fatigue_usage", &f.usage_levels));
+        out.push(("creep_fatigue_index", &f.combined_levels));
+    }
+    out
+}
+
+/// `alarm_threshold` points: one per index and severity, for dashboards.
+pub fn threshold_points(plant: &str, plan: &ComponentPlan, time_ms: i64) -> Vec<Point> {
+    let mut out = vec![];
+    for (index, l) in indexed_levels(plan) {
         for (sev, v) in l.iter() {
             out.push(
                 Point::new("alarm_threshold", time_ms * 1_000_000)
@@ -411,19 +433,6 @@ pub fn threshold_points(plant: &str, plan: &ComponentPlan, time_ms: i64) -> Vec<
                     .float("value", v),
             );
         }
-    };
-    if plan.metal_temperature.is_some() {
-        push("creep_life_fraction", &th.life_fraction);
-        if plan.material.norton.is_some() {
-            push("creep_strain", &th.creep_strain);
-        }
-    }
-    if plan.wear.is_some() {
-        push("wear_index", &th.wear_index);
-    }
-    if let Some(f) = &plan.fatigue {
-        push("fatigue_usage", &f.usage_levels);
-        push("creep_fatigue_index", &f.combined_levels);
     }
     out
 }

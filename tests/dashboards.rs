@@ -38,6 +38,15 @@ const DEMO_UNIT: &str = "U2";
 const DEMO_COMPONENTS: [&str; 3] = ["U2-SH3-OUTLET-LEG-A", "U2-SH1-SUPPORT-R07", "U2-SH2-OUTLET-HEADER"];
 /// Lines per InfluxDB v2 write request.
 const CHUNK_LINES: usize = 5000;
+/// `component_state` fields the dashboards already use that the ranking
+/// work of issue 14 adds on another branch (`attention_score`: higher
+/// needs attention first). Until it is merged, a query of them may answer
+/// empty and their names are not in the schema; nothing else is excused.
+const AWAITED_FIELDS: [&str; 1] = ["attention_score"];
+
+fn awaited_metric(name: &str) -> bool {
+    AWAITED_FIELDS.iter().any(|f| name == format!("component_state_{f}"))
+}
 
 fn repo() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
@@ -93,6 +102,12 @@ fn schema() -> Vec<Measurement> {
                 "fatigue_cycles",
                 "fatigue_cycles_last_day",
                 "fatigue_cycles_last_month",
+                // Where the part stands against its own levels (0 to 3).
+                "creep_life_fraction_level",
+                "creep_strain_level",
+                "wear_index_level",
+                "fatigue_usage_level",
+                "creep_fatigue_index_level",
             ]),
         },
         Measurement {
@@ -538,7 +553,10 @@ fn prometheus_dashboard_metrics_are_in_the_schema() {
         }
         for (panel, expr) in exprs {
             for m in promql_metrics(&expr) {
-                assert!(names.contains(&m), "{file}: panel {panel:?} uses {m}, which lifeledger does not write");
+                assert!(
+                    names.contains(&m) || awaited_metric(&m),
+                    "{file}: panel {panel:?} uses {m}, which lifeledger does not write"
+                );
             }
         }
     }
@@ -561,6 +579,7 @@ fn prometheus_dashboards_answer_on_the_demo_data() {
     let vm = VictoriaMetrics::start();
     write_lines(&vm, &lines);
     check_prometheus_dashboards(&vm, first_ms / 1000, last_ms / 1000);
+    demo_parts_are_coloured_by_their_own_levels(&vm, first_ms, last_ms);
 }
 
 /// The issue's own check: a short `lifeledger demo` run writes to the real
@@ -681,7 +700,7 @@ fn check_prometheus_dashboards(vm: &VictoriaMetrics, start: i64, end: i64) {
                 n > 0
             });
             assert!(
-                found,
+                found || promql_metrics(expr).iter().any(|m| awaited_metric(m)),
                 "{file}: panel {panel:?} query {ref_id} returns no series on the demo data:\n  {}",
                 answers.join("\n  ")
             );
@@ -862,7 +881,11 @@ fn influxdb_dashboards_use_only_names_the_product_writes() {
             let fields: BTreeSet<&str> = used.iter().flat_map(|m| m.fields.iter().map(String::as_str)).collect();
             let tags: BTreeSet<&str> = used.iter().flat_map(|m| m.tags.iter().copied()).collect();
             for f in &names.fields {
-                assert!(fields.contains(f.as_str()), "{file}: {what}: unknown field {f:?} of {:?}", names.measurements);
+                assert!(
+                    fields.contains(f.as_str()) || AWAITED_FIELDS.contains(&f.as_str()),
+                    "{file}: {what}: unknown field {f:?} of {:?}",
+                    names.measurements
+                );
             }
             for p in &names.field_prefixes {
                 assert!(fields.iter().any(|f| f.starts_with(p.as_str())), "{file}: {what}: no field starts with {p:?}");
@@ -870,7 +893,7 @@ fn influxdb_dashboards_use_only_names_the_product_writes() {
             for c in &names.columns {
                 // After a pivot, fields are columns too.
                 assert!(
-                    tags.contains(c.as_str()) || fields.contains(c.as_str()),
+                    tags.contains(c.as_str()) || fields.contains(c.as_str()) || AWAITED_FIELDS.contains(&c.as_str()),
                     "{file}: {what}: unknown tag or column {c:?} of {:?}",
                     names.measurements
                 );
@@ -1174,4 +1197,387 @@ fn readmes_carry_the_caution() {
     }
     let d = std::fs::read_to_string(repo().join("dashboards/README.md")).unwrap();
     assert!(d.contains("-dedup.minScrapeInterval=1ms"), "dashboards/README.md must name the dedup flag");
+}
+
+// ------------------------------------------------- colours, links, units
+
+/// The alarm indices with levels per part (`alarm_threshold` `index` tag).
+const INDICES: [&str; 5] =
+    ["creep_life_fraction", "creep_strain", "wear_index", "fatigue_usage", "creep_fatigue_index"];
+
+/// Whether `q` names `word` as a whole name (not as the start of a longer
+/// one such as `creep_life_fraction_level`).
+fn names_word(q: &str, word: &str) -> bool {
+    q.match_indices(word).any(|(i, _)| {
+        let next = q[i + word.len()..].chars().next();
+        !next.is_some_and(|c| c.is_ascii_alphanumeric() || c == '_')
+    })
+}
+
+/// Query text of a target, PromQL or Flux.
+fn target_query(t: &Value) -> &str {
+    t["expr"].as_str().or(t["query"].as_str()).unwrap_or("")
+}
+
+/// The indices a panel shows as raw values (a target naming the index
+/// field without dividing it by the part's own `alarm_threshold`).
+fn raw_indices(p: &Value) -> Vec<&'static str> {
+    let mut out = vec![];
+    for t in p["targets"].as_array().into_iter().flatten() {
+        let q = target_query(t);
+        if q.contains("alarm_threshold") {
+            continue;
+        }
+        out.extend(INDICES.iter().filter(|i| names_word(q, i)));
+    }
+    out.sort();
+    out.dedup();
+    out
+}
+
+/// Every value-mapping list of a panel (defaults and overrides).
+fn mapping_lists(p: &Value) -> Vec<&Value> {
+    let fc = &p["fieldConfig"];
+    let mut out: Vec<&Value> = fc["defaults"]["mappings"].as_array().into_iter().flatten().collect();
+    for o in fc["overrides"].as_array().into_iter().flatten() {
+        for prop in o["properties"].as_array().into_iter().flatten() {
+            if prop["id"] == "mappings" {
+                out.extend(prop["value"].as_array().into_iter().flatten());
+            }
+        }
+    }
+    out
+}
+
+/// The colour and text a panel's value mappings give a level number.
+fn level_colour(p: &Value, level: i64) -> Option<(String, String)> {
+    mapping_lists(p).into_iter().filter(|m| m["type"] == "value").find_map(|m| {
+        let o = &m["options"][level.to_string()];
+        Some((o["color"].as_str()?.to_string(), o["text"].as_str()?.to_string()))
+    })
+}
+
+/// Whether a Grafana colour name is a green (the colour of "no level
+/// reached" on every dashboard).
+fn is_green(c: &str) -> bool {
+    c.contains("green")
+}
+
+/// Single-value panels (stat, gauge, bar gauge, table) never colour a damage
+/// index by one fixed scale for all parts: each part has its own levels
+/// (`alarm_threshold`). A stat or table showing an index also shows the
+/// part's `<index>_level` with value mappings: 0 green, advisory, warning
+/// and critical each in its own colour, none green.
+#[test]
+fn single_value_panels_colour_by_each_parts_own_levels() {
+    for kind in ["prometheus", "influxdb2"] {
+        for (file, d) in dashboards(kind) {
+            for p in panels(&d) {
+                let ty = p["type"].as_str().unwrap_or("");
+                if !["stat", "gauge", "bargauge", "table"].contains(&ty) {
+                    continue;
+                }
+                let raw = raw_indices(p);
+                let relative = p["targets"].as_array().into_iter().flatten().any(|t| {
+                    let q = target_query(t);
+                    q.contains("alarm_threshold") && INDICES.iter().any(|i| names_word(q, i))
+                });
+                if relative {
+                    // A share of one of the part's levels cannot say which
+                    // of its other levels is reached: below the level it is
+                    // not "all clear" (green).
+                    let base = &p["fieldConfig"]["defaults"]["thresholds"]["steps"][0]["color"];
+                    assert!(
+                        !base.as_str().is_some_and(is_green),
+                        "{file}: panel {:?} shows green below the part's level, where its advisory may be reached",
+                        title(p)
+                    );
+                }
+                if raw.is_empty() {
+                    continue;
+                }
+                let defaults = &p["fieldConfig"]["defaults"];
+                let steps = defaults["thresholds"]["steps"].as_array().map_or(0, Vec::len);
+                let by_thresholds = defaults["color"]["mode"] == "thresholds" || defaults["color"].is_null();
+                assert!(
+                    !(by_thresholds && steps > 1),
+                    "{file}: panel {:?} colours {raw:?} by one fixed scale for every part ({} steps)",
+                    title(p),
+                    steps
+                );
+                if ty == "bargauge" {
+                    continue;
+                }
+                let queries: Vec<&str> = p["targets"].as_array().into_iter().flatten().map(target_query).collect();
+                for i in &raw {
+                    let level = format!("{i}_level");
+                    assert!(
+                        queries.iter().any(|q| names_word(q, &level)),
+                        "{file}: panel {:?} shows {i} without the part's own level ({level})",
+                        title(p)
+                    );
+                }
+                let colours: Vec<(String, String)> = (0..4)
+                    .map(|l| {
+                        level_colour(p, l)
+                            .unwrap_or_else(|| panic!("{file}: panel {:?}: no value mapping for level {l}", title(p)))
+                    })
+                    .collect();
+                assert!(is_green(&colours[0].0), "{file}: panel {:?}: level 0 is {:?}", title(p), colours[0]);
+                for (l, want) in [(1, "advisory"), (2, "warning"), (3, "critical")] {
+                    let (c, text) = &colours[l];
+                    assert!(!is_green(c), "{file}: panel {:?}: level {l} is green", title(p));
+                    assert!(
+                        text.to_lowercase().contains(want),
+                        "{file}: panel {:?}: level {l} reads {text:?}",
+                        title(p)
+                    );
+                }
+                let distinct: BTreeSet<&str> = colours.iter().map(|(c, _)| c.as_str()).collect();
+                assert_eq!(distinct.len(), 4, "{file}: panel {:?}: level colours {colours:?}", title(p));
+            }
+        }
+    }
+}
+
+/// On the demo month, outlet leg A ends at a life fraction of about 0.249,
+/// above its own advisory level (0.245 in config/demo/plant.toml) and below
+/// the old fixed yellow at 0.3: the component-detail stat must colour it as
+/// an advisory, and a part below its levels green. The level the product
+/// writes equals the count of the part's own published levels
+/// (`alarm_threshold`) that its value has reached, for every component and
+/// index (value >= level: the rule of the alarm book without its deadband).
+/// (Run by `prometheus_dashboards_answer_on_the_demo_data`, on its
+/// database: loading the demo month once saves CI a minute.)
+fn demo_parts_are_coloured_by_their_own_levels(vm: &VictoriaMetrics, first_ms: i64, last_ms: i64) {
+    let (start, end) = (first_ms / 1000, last_ms / 1000);
+    let range = format!("{}s", end - start + 1);
+    let instant = |q: &str| -> Vec<(String, f64)> {
+        let ans = vm.query(q, end as f64);
+        assert_eq!(ans["status"], "success", "{q}: {ans}");
+        ans["data"]["result"]
+            .as_array()
+            .into_iter()
+            .flatten()
+            .map(|r| {
+                let c = r["metric"]["component"].as_str().unwrap_or("").to_string();
+                (c, r["value"][1].as_str().unwrap().parse::<f64>().unwrap())
+            })
+            .collect()
+    };
+    // The product's level against the published levels, every part and index.
+    let mut compared = 0;
+    for index in INDICES {
+        let values = instant(&format!("max by (component) (last_over_time(component_state_{index}[{range}]))"));
+        let levels: BTreeMap<String, f64> =
+            instant(&format!("max by (component) (last_over_time(component_state_{index}_level[{range}]))"))
+                .into_iter()
+                .collect();
+        for (component, v) in values {
+            let published = instant(&format!(
+                "max by (component, severity) (last_over_time(alarm_threshold_value{{component=\"{component}\",index=\"{index}\"}}[{range}]))"
+            ));
+            let want = published.iter().filter(|(_, l)| v >= *l).count() as f64;
+            let got = levels.get(&component).unwrap_or_else(|| panic!("no {index}_level for {component}"));
+            assert_eq!(*got, want, "{component}: {index} = {v}, levels {published:?}");
+            compared += 1;
+        }
+    }
+    assert!(compared >= 10, "only {compared} component indices compared");
+
+    let leg_a = instant(&format!(
+        "last_over_time(component_state_creep_life_fraction{{component=\"{}\"}}[{range}])",
+        DEMO_COMPONENTS[0]
+    ));
+    let lf = leg_a[0].1;
+    assert!((0.245..0.3).contains(&lf), "the demo's leg A ends between its advisory level and 0.3: {lf}");
+
+    let (file, d) =
+        dashboards("prometheus").into_iter().find(|(f, _)| f.ends_with("component-detail.json")).expect("detail");
+    let stat = panels(&d)
+        .into_iter()
+        .find(|p| p["type"] == "stat" && raw_indices(p) == ["creep_life_fraction"])
+        .unwrap_or_else(|| panic!("{file}: no stat of the creep life fraction"));
+    let level_expr = stat["targets"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(target_query)
+        .find(|q| names_word(q, "creep_life_fraction_level"))
+        .expect("the stat queries the level");
+    let colour_of = |component: &str| {
+        let values = BTreeMap::from([
+            ("plant", DEMO_PLANT.to_string()),
+            ("unit", DEMO_UNIT.to_string()),
+            ("component", component.to_string()),
+            ("__range", range.clone()),
+        ]);
+        let got = instant(&substitute(level_expr, &values));
+        assert_eq!(got.len(), 1, "{file}: the level query answers one value for {component}: {got:?}");
+        level_colour(stat, got[0].1 as i64).expect("a mapping for the level")
+    };
+    let (colour, text) = colour_of(DEMO_COMPONENTS[0]);
+    assert!(!is_green(&colour) && text.contains("advisory"), "{file}: leg A at {lf} shows {text:?} in {colour}");
+    let (colour, _) = colour_of("U2-SH1-PRIMARY-BANK");
+    assert!(is_green(&colour), "{file}: a part below its levels shows {colour}");
+}
+
+/// Every dashboard-level link, panel link and data link of a dashboard.
+fn all_links(d: &Value) -> Vec<(String, &Value)> {
+    let mut out: Vec<(String, &Value)> =
+        d["links"].as_array().into_iter().flatten().map(|l| ("dashboard".to_string(), l)).collect();
+    for p in panels(d) {
+        let mut lists = vec![&p["links"], &p["fieldConfig"]["defaults"]["links"]];
+        for o in p["fieldConfig"]["overrides"].as_array().into_iter().flatten() {
+            for prop in o["properties"].as_array().into_iter().flatten() {
+                if prop["id"] == "links" {
+                    lists.push(&prop["value"]);
+                }
+            }
+        }
+        for l in lists.into_iter().filter_map(Value::as_array).flatten() {
+            out.push((format!("panel {:?}", title(p)), l));
+        }
+    }
+    out
+}
+
+/// Grafana's own variables a link may use (data links and dashboard links).
+const LINK_BUILTINS: [&str; 5] = ["__value", "__field", "__data", "__url_time_range", "__series"];
+
+/// The overview links each part to its component-detail dashboard (same
+/// data source kind, the component in the variable) and to its page on the
+/// status page; the detail links back to the overview and to the part's
+/// status page; the status page's address is one variable per dashboard.
+/// The status page serves `/component/NAME` (daemon/service/page).
+#[test]
+fn dashboards_link_to_each_other_and_to_the_status_page() {
+    let page_routes = std::fs::read_to_string(repo().join("daemon/service/page/mod.rs")).unwrap();
+    assert!(page_routes.contains(".route(\"/component/"), "the status page serves /component/NAME");
+    for kind in ["prometheus", "influxdb2"] {
+        let all = dashboards(kind);
+        let uid_of = |suffix: &str| {
+            all.iter().find(|(f, _)| f.ends_with(suffix)).map(|(_, d)| d["uid"].as_str().unwrap().to_string()).unwrap()
+        };
+        let (overview, detail) = (uid_of("plant-overview.json"), uid_of("component-detail.json"));
+        for (file, d) in &all {
+            let page_var = d["templating"]["list"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .find(|v| v["name"] == "status_page")
+                .unwrap_or_else(|| panic!("{file}: no status_page variable (the status page's base address)"));
+            let default = page_var["query"].as_str().unwrap_or("");
+            assert!(
+                default.starts_with("http://") || default.starts_with("https://"),
+                "{file}: status_page {page_var}"
+            );
+            let links = all_links(d);
+            let vars = variables(d);
+            for (place, l) in &links {
+                let url = l["url"].as_str().unwrap_or("");
+                for v in used_variables(url) {
+                    assert!(
+                        vars.contains(&v) || LINK_BUILTINS.contains(&v.as_str()),
+                        "{file}: {place}: link {url:?} uses ${v}, no variable of the dashboard"
+                    );
+                }
+            }
+            let urls: Vec<&str> = links.iter().filter_map(|(_, l)| l["url"].as_str()).collect();
+            let is_overview = file.ends_with("plant-overview.json");
+            let (to_uid, to_page) =
+                if is_overview { (&detail, "${status_page}/component/") } else { (&overview, "${status_page}") };
+            let target = format!("/d/{to_uid}");
+            let cross = urls.iter().find(|u| u.starts_with(&target)).unwrap_or_else(|| {
+                panic!("{file}: no link to {target} (the other dashboard of the same data source): {urls:?}")
+            });
+            for keep in ["${plant:queryparam}", "${unit:queryparam}", "${datasource:queryparam}"] {
+                assert!(cross.contains(keep), "{file}: the link {cross:?} does not carry {keep}");
+            }
+            if kind == "influxdb2" {
+                assert!(cross.contains("${bucket:queryparam}"), "{file}: the link {cross:?} does not carry the bucket");
+            }
+            if is_overview {
+                assert!(cross.contains("var-component="), "{file}: the link to the detail names no component: {cross}");
+                assert!(cross.contains("${__url_time_range}"), "{file}: the link to the detail keeps no time range");
+            }
+            assert!(
+                urls.iter().any(|u| u.starts_with(to_page)),
+                "{file}: no link to the status page ({to_page}...): {urls:?}"
+            );
+            if !is_overview {
+                assert!(
+                    urls.contains(&"${status_page}/component/${component}"),
+                    "{file}: no link to the part's own status page: {urls:?}"
+                );
+            }
+        }
+    }
+}
+
+/// Grafana's unit ids for counts per second (Throughput category; from
+/// memory of Grafana's unit list).
+const PER_SECOND_UNITS: [&str; 10] = ["cps", "ops", "reqps", "rps", "wps", "iops", "eps", "mps", "recps", "rowsps"];
+
+/// Counters of `service_health` (counts since start).
+const COUNTERS: [&str; 3] = ["samples_accepted", "duplicates", "rejected_"];
+
+/// A panel whose queries are per-second rates of counted things (PromQL
+/// `rate`, Flux `derivative(unit: 1s)` of a `service_health` counter)
+/// carries a per-second unit, and the sample-rate panel counts samples
+/// ("cps", counts per second), not requests. (A rate of hours per hour,
+/// such as the share of time unmonitored, is a ratio, not a rate.)
+#[test]
+fn rate_panels_carry_a_per_second_unit() {
+    let mut samples = 0;
+    for kind in ["prometheus", "influxdb2"] {
+        for (file, d) in dashboards(kind) {
+            for p in panels(&d) {
+                let qs: Vec<&str> = p["targets"].as_array().into_iter().flatten().map(target_query).collect();
+                let per_second = !qs.is_empty()
+                    && qs.iter().all(|q| {
+                        (q.contains("rate(") || q.contains("derivative(unit: 1s"))
+                            && COUNTERS.iter().any(|c| q.contains(c))
+                    });
+                let unit = p["fieldConfig"]["defaults"]["unit"].as_str().unwrap_or("");
+                if per_second {
+                    assert!(PER_SECOND_UNITS.contains(&unit), "{file}: panel {:?}: unit {unit:?} for a rate", title(p));
+                }
+                if title(p).to_lowercase().contains("samples per second") {
+                    assert!(per_second, "{file}: panel {:?} is not a per-second rate", title(p));
+                    assert_eq!(unit, "cps", "{file}: panel {:?} counts samples", title(p));
+                    samples += 1;
+                }
+            }
+        }
+    }
+    assert_eq!(samples, 2, "one samples-per-second panel per overview");
+}
+
+/// The overview's component table lists the parts most needing attention
+/// first: sorted by `attention_score` (higher first), a column the ranking
+/// adds to `component_state` (AWAITED_FIELDS until that work is merged).
+#[test]
+fn overview_table_sorts_by_attention_score() {
+    for kind in ["prometheus", "influxdb2"] {
+        let (file, d) =
+            dashboards(kind).into_iter().find(|(f, _)| f.ends_with("plant-overview.json")).expect("overview");
+        let table = panels(&d)
+            .into_iter()
+            .find(|p| p["type"] == "table" && !raw_indices(p).is_empty())
+            .unwrap_or_else(|| panic!("{file}: no component table"));
+        let queries: Vec<&str> = table["targets"].as_array().unwrap().iter().map(target_query).collect();
+        assert!(queries.iter().any(|q| names_word(q, "attention_score")), "{file}: the table has no attention_score");
+        let sort = &table["options"]["sortBy"][0];
+        assert_eq!(sort["desc"], true, "{file}: the table sorts descending: {sort}");
+        let column = sort["displayName"].as_str().unwrap_or("");
+        assert!(column.to_lowercase().contains("attention"), "{file}: the table sorts by {column:?}");
+        // The column it sorts by is the attention_score one, by its display name.
+        let renamed = table["transformations"]
+            .as_array()
+            .into_iter()
+            .flatten()
+            .any(|t| t["options"]["renameByName"].as_object().is_some_and(|m| m.values().any(|v| v == column)));
+        assert!(renamed || column == "attention_score", "{file}: no column is shown as {column:?}");
+    }
 }

@@ -18,7 +18,7 @@ use std::io::{self, Write};
 pub const TAGS: [&str; 4] = ["plant", "unit", "component", "material"];
 
 /// Field columns: every field `report::component_point` writes.
-pub const FIELDS: [&str; 20] = [
+pub const FIELDS: [&str; 25] = [
     "metal_temperature_k",
     "pressure_mpa",
     "hoop_stress_mpa",
@@ -36,6 +36,12 @@ pub const FIELDS: [&str; 20] = [
     "fatigue_cycles_last_month",
     "wear_depth_mm",
     "wear_index",
+    // The part's own level reached per index (report::levels).
+    "creep_life_fraction_level",
+    "creep_strain_level",
+    "wear_index_level",
+    "fatigue_usage_level",
+    "creep_fatigue_index_level",
     "exhausted",
     "remaining_life_h",
     "unmonitored_h",
