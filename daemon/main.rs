@@ -1333,6 +1333,9 @@ fn cmd_materials(action: MaterialsAction) -> Result<i32> {
                 }
             }
             write!(out, "{}", report::fatigue::material_text(m))?;
+            if let Some(why) = &m.unchecked_curve {
+                writeln!(out, "\nNOT CHECKED against a second published source: {why}")?;
+            }
             if !m.reference_rupture_strengths.is_empty() {
                 writeln!(out, "\nreference rupture strengths against the master curve:")?;
                 writeln!(

@@ -557,3 +557,41 @@ fn elastic_and_fatigue_data_are_sane_and_sourced() {
         }
     }
 }
+
+/// A grade without a second-source check says so to its users: the grade
+/// file carries the reason (`unchecked_curve`), `materials show` prints it
+/// and check-config warns for a creep part that uses the grade. Common
+/// practice: a curve nobody has checked independently is not used for a
+/// life figure without the supplier's own data.
+#[test]
+fn a_grade_without_a_second_source_is_flagged_where_it_is_used() {
+    for m in grades() {
+        let listed = NO_SECOND_SOURCE.iter().any(|(g, _)| *g == m.grade);
+        assert_eq!(
+            listed,
+            m.unchecked_curve.as_deref().is_some_and(|w| !w.trim().is_empty()),
+            "{}: listed without a second source here ({listed}) but its file's unchecked_curve says otherwise",
+            m.grade
+        );
+    }
+    let bin = env!("CARGO_BIN_EXE_lifeledger");
+    let show = std::process::Command::new(bin).args(["materials", "show", "HP-Nb"]).output().unwrap();
+    let text = String::from_utf8_lossy(&show.stdout);
+    assert!(text.contains("NOT CHECKED against a second published source"), "materials show HP-Nb:\n{text}");
+    let dir = tempfile::tempdir().unwrap();
+    let cfg = dir.path().join("plant.toml");
+    std::fs::write(
+        &cfg,
+        "[plant]\nname = \"Eastmoor reformer\"\n\
+         [[tag]]\nname = \"R1.TE-1\"\nunit = \"degC\"\nvalid_range = [0, 1200]\n\
+         [[component]]\nname = \"R1-TUBE-07\"\nkind = \"furnace_tube\"\nmaterial = \"HP-Nb\"\n\
+         metal_temperature = \"R1.TE-1\"\npressure = { value = 30, unit = \"bar\" }\n\
+         design_temperature = { value = 900, unit = \"degC\" }\ndesign_pressure = { value = 30, unit = \"bar\" }\n\
+         [component.geometry]\noutside_diameter = { value = 114, unit = \"mm\" }\nwall = { value = 12, unit = \"mm\" }\n",
+    )
+    .unwrap();
+    let out = std::process::Command::new(bin).args(["check-config", "--file-only"]).arg(&cfg).output().unwrap();
+    let all = format!("{}{}", String::from_utf8_lossy(&out.stdout), String::from_utf8_lossy(&out.stderr));
+    assert!(out.status.success(), "check-config failed:\n{all}");
+    assert!(all.contains("not checked against a second source") && all.contains("R1-TUBE-07"), "check-config:\n{all}");
+}

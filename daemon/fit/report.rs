@@ -58,6 +58,7 @@ pub fn larson_miller_toml(
                 larson_miller: curve,
                 norton: None,
                 hardness_hv: None,
+                unchecked_curve: None,
                 reference_rupture_strengths: Vec::new(),
                 elastic: None,
                 fatigue: None,

@@ -151,6 +151,12 @@ pub struct Material {
     /// Vickers hardness HV (kgf/mm²) at service temperature, for wear.
     #[serde(default)]
     pub hardness_hv: Option<Sourced>,
+    /// Why the mean rupture curve has not been checked against a second
+    /// published source (absent: it has been, see tests/material_library.rs).
+    /// `materials show` prints it and check-config warns for every creep
+    /// part that uses the grade.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub unchecked_curve: Option<String>,
     /// Published rupture strengths used to check the master curve.
     #[serde(default)]
     pub reference_rupture_strengths: Vec<ReferenceRuptureStrength>,

@@ -571,6 +571,16 @@ impl Validator {
                 None
             }
         };
+        if let Some(why) = material.as_ref().and_then(|m| m.unchecked_curve.as_ref()) {
+            if c.kind != ComponentKind::WearContact {
+                self.warn(
+                    place,
+                    "material",
+                    format!("the rupture curve of {} is not checked against a second source: {why}", c.material),
+                    "give the supplier's curve as a [[material]] block (or [[material_file]]) for this part",
+                );
+            }
+        }
         let design_t = c
             .design_temperature
             .as_ref()
