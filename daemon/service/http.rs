@@ -48,6 +48,7 @@ pub fn router(state: HttpState) -> Router {
         .route("/api/components/:name/alarms", get(alarm_history))
         .route("/api/materials/:grade", get(material))
         .route("/api/alarms/command", axum::routing::post(alarm_command))
+        .route("/api/operator/check", get(operator_check))
         .merge(super::http_inspection::routes())
         .merge(super::page::routes())
         .with_state(state)
@@ -192,6 +193,23 @@ async fn material(State(s): State<HttpState>, axum::extract::Path(grade): axum::
     match s.library.get(&grade) {
         Some(m) => Json(serde_json::json!({"material": m, "caution": crate::CAUTION})).into_response(),
         None => (StatusCode::NOT_FOUND, format!("unknown grade {grade:?}\n")).into_response(),
+    }
+}
+
+/// Whether a bearer token would be taken for alarm commands, without
+/// doing anything: 204 it would, 401 missing or wrong, 403 no token
+/// configured (read-only). The page asks when a token is entered, so a
+/// wrong one is told at once rather than at the first command.
+async fn operator_check(State(s): State<HttpState>, headers: axum::http::HeaderMap) -> Response {
+    let Some(token) = &s.token else {
+        return (StatusCode::FORBIDDEN, "read-only: no [http] token_env configured\n").into_response();
+    };
+    let given =
+        headers.get(header::AUTHORIZATION).and_then(|v| v.to_str().ok()).and_then(|v| v.strip_prefix("Bearer "));
+    if given.is_some_and(|g| crate::alarm::tokens_match(g.as_bytes(), token.as_bytes())) {
+        StatusCode::NO_CONTENT.into_response()
+    } else {
+        (StatusCode::UNAUTHORIZED, "missing or wrong bearer token\n").into_response()
     }
 }
 
