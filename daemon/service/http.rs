@@ -134,7 +134,9 @@ struct TrendQuery {
 
 /// A component's trend from the store, newest last:
 /// `{"component", "points": [{"t", "metal_temperature_c", "pressure_mpa",
-/// "hoop_stress_mpa", "creep_life_fraction", "creep_strain", "wear_index"}]}`.
+/// "hoop_stress_mpa", "creep_life_fraction", "creep_strain", "wear_index",
+/// "fatigue_stress_mpa", "fatigue_usage", "wear_load_n",
+/// "wear_sliding_speed_mm_s", "wear_slip_mm", "wear_frequency_hz"}]}`.
 /// A known component without points has an empty list; 404 for a name that
 /// is neither a component (configured or retired) nor in the trend table.
 async fn trend(

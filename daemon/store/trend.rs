@@ -1,7 +1,8 @@
 //! The component trends: per component, the figures of each
 //! `component_state` point (metal temperature, pressure, hoop stress, life
-//! fraction, creep strain, wear index) by event time, so the status page
-//! can draw a component's recent past, also after a restart.
+//! fraction, creep strain, wear index, the fatigue figures and a wear
+//! contact's inputs) by event time, so the status page can draw a
+//! component's recent past, also after a restart.
 //!
 //! Points are upserted by [`Store::commit`] in the transaction of the batch
 //! that produced them, keyed by (component, event time): a batch that rolls

@@ -3,6 +3,10 @@
 //! polls the JSON API (`/api/components`, `/api/components/{name}/trend`,
 //! `/api/components/{name}/alarms`, `/api/materials/{grade}`). Charts are inline SVG drawn by that script.
 //!
+//! `print.css` (loaded with `media="print"`) lays the pages out for A4 and
+//! US letter paper. Operator actions ask `/api/operator/check` whether a
+//! token is right when it is entered.
+//!
 //! Every asset is compiled into the binary (`include_str!`): the page works
 //! on an isolated plant network with no internet access. The caution is put
 //! into the HTML on the server as well, so it shows even before (or
