@@ -470,6 +470,14 @@ fn wear_contact_page_shows_wear_and_charts_its_own_inputs() {
         assert!(dom.contains(creep), "the creep part's page lost {creep:?}");
     }
     assert!(!dom.contains("id=\"trend-wear_load_n\""), "the creep part charts wear inputs");
+    // For people reviewing the layout.
+    let png = artifacts().join("component-SUPPORT.png");
+    chromium_run(
+        &format!("http://127.0.0.1:{port}/component/SUPPORT"),
+        5000,
+        &[&format!("--screenshot={}", png.display()), "--window-size=1600,2200"],
+    );
+    eprintln!("wear contact screenshot: {}", png.display());
 }
 
 // ---------------------------------------------------------------------
