@@ -532,8 +532,51 @@ fn component_page_prints_legibly_on_a4_and_letter() {
         for gone in ["operator token", "Enable commands", "Fit data", "Show levels", "1 week", "Enter a finding"] {
             assert!(!flat.contains(gone), "{paper}: {gone:?} printed ({})", pdf.display());
         }
+        // Legible: no word smaller than about 6 pt (a word's box is about
+        // 1.2 times its font size; 6 pt as the smallest print people read
+        // without effort is common practice). Charts drawn for the screen
+        // and shrunk onto paper would put their labels far below it.
+        let small = small_words(&pdf, 7.0);
+        assert!(small.is_empty(), "{paper}: words printed below 6 pt: {small:?} ({})", pdf.display());
         eprintln!("{paper}: {pages} pages, {}", pdf.display());
     }
+    // The overview prints by the same rules.
+    let pdf = artifacts().join("overview-letter.pdf");
+    let _ = std::fs::remove_file(&pdf);
+    chromium_run(
+        &format!("http://127.0.0.1:{}/", proxy.port),
+        5000,
+        &[&format!("--print-to-pdf={}", pdf.display()), "--no-pdf-header-footer"],
+    );
+    let (pages, _) = pdfinfo(&pdf);
+    assert!((1..=4).contains(&pages), "overview: {pages} pages ({})", pdf.display());
+    let flat = pdftext(&pdf).split_whitespace().collect::<Vec<_>>().join(" ");
+    for want in [PLANT, "plant overview", "Printed", CAUTION, "SH-TUBE", "SUPPORT"] {
+        assert!(flat.contains(want), "overview: {want:?} not printed ({})", pdf.display());
+    }
+    for gone in ["operator token", "Enable commands"] {
+        assert!(!flat.contains(gone), "overview: {gone:?} printed ({})", pdf.display());
+    }
+}
+
+/// Words of `pdf` whose box (`pdftotext -bbox`) is lower than `min_pt`.
+fn small_words(pdf: &Path, min_pt: f64) -> Vec<(String, f64)> {
+    let out =
+        Command::new("pdftotext").args(["-bbox", pdf.to_str().unwrap(), "-"]).bounded_output().expect("pdftotext");
+    assert!(out.status.success());
+    let text = String::from_utf8_lossy(&out.stdout).into_owned();
+    let attr = |w: &str, k: &str| -> f64 {
+        let at = w.find(&format!("{k}=\"")).unwrap() + k.len() + 2;
+        w[at..at + w[at..].find('"').unwrap()].parse().unwrap()
+    };
+    text.split("<word ")
+        .skip(1)
+        .filter_map(|w| {
+            let h = attr(w, "yMax") - attr(w, "yMin");
+            let word = w[w.find('>').unwrap() + 1..w.find("</word>").unwrap()].to_string();
+            (h < min_pt).then_some((word, h))
+        })
+        .collect()
 }
 
 // ---------------------------------------------------------------------
