@@ -101,6 +101,12 @@ fn trend_point(k: u64) -> TrendPoint {
         wear_index: 0.0,
         fatigue_stress_mpa: 0.0,
         fatigue_usage: 0.0,
+        wear: lifeledger::store::WearInputs {
+            load_n: 80.0,
+            sliding_speed_mm_s: 0.0,
+            slip_mm: 0.04,
+            frequency_hz: 25.0,
+        },
     }
 }
 

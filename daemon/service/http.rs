@@ -48,6 +48,7 @@ pub fn router(state: HttpState) -> Router {
         .route("/api/components/:name/alarms", get(alarm_history))
         .route("/api/materials/:grade", get(material))
         .route("/api/alarms/command", axum::routing::post(alarm_command))
+        .route("/api/operator/check", get(operator_check))
         .merge(super::http_inspection::routes())
         .merge(super::page::routes())
         .with_state(state)
@@ -133,7 +134,9 @@ struct TrendQuery {
 
 /// A component's trend from the store, newest last:
 /// `{"component", "points": [{"t", "metal_temperature_c", "pressure_mpa",
-/// "hoop_stress_mpa", "creep_life_fraction", "creep_strain", "wear_index"}]}`.
+/// "hoop_stress_mpa", "creep_life_fraction", "creep_strain", "wear_index",
+/// "fatigue_stress_mpa", "fatigue_usage", "wear_load_n",
+/// "wear_sliding_speed_mm_s", "wear_slip_mm", "wear_frequency_hz"}]}`.
 /// A known component without points has an empty list; 404 for a name that
 /// is neither a component (configured or retired) nor in the trend table.
 async fn trend(
@@ -192,6 +195,23 @@ async fn material(State(s): State<HttpState>, axum::extract::Path(grade): axum::
     match s.library.get(&grade) {
         Some(m) => Json(serde_json::json!({"material": m, "caution": crate::CAUTION})).into_response(),
         None => (StatusCode::NOT_FOUND, format!("unknown grade {grade:?}\n")).into_response(),
+    }
+}
+
+/// Whether a bearer token would be taken for alarm commands, without
+/// doing anything: 204 it would, 401 missing or wrong, 403 no token
+/// configured (read-only). The page asks when a token is entered, so a
+/// wrong one is told at once rather than at the first command.
+async fn operator_check(State(s): State<HttpState>, headers: axum::http::HeaderMap) -> Response {
+    let Some(token) = &s.token else {
+        return (StatusCode::FORBIDDEN, "read-only: no [http] token_env configured\n").into_response();
+    };
+    let given =
+        headers.get(header::AUTHORIZATION).and_then(|v| v.to_str().ok()).and_then(|v| v.strip_prefix("Bearer "));
+    if given.is_some_and(|g| crate::alarm::tokens_match(g.as_bytes(), token.as_bytes())) {
+        StatusCode::NO_CONTENT.into_response()
+    } else {
+        (StatusCode::UNAUTHORIZED, "missing or wrong bearer token\n").into_response()
     }
 }
 

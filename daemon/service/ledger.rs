@@ -988,6 +988,7 @@ impl Ledger {
                         .filter(|_| plan.fatigue.is_some())
                         .map_or(f64::NAN, |f| f.stress_mpa),
                     fatigue_usage: crate::engine::fatigue::figures(plan, st).map_or(f64::NAN, |f| f.fatigue_usage),
+                    wear: wear_inputs::at(plan, self.engine.tags(), t),
                 },
             ));
             // Threshold lines beside the series at most once an hour of
@@ -1457,8 +1458,17 @@ impl Ledger {
             held_samples: self.engine.held_len() as u64,
             restart_required: self.reloads.restart_required.clone(),
             reload_refused: self.reloads.refused.clone(),
-            // Filled in by the service from the ingest task (service::run).
-            warnings: Vec::new(),
+            // The configuration's warnings; the service adds the ingest
+            // task's (service::run).
+            warnings: self.cfg.warnings.iter().map(|w| format!("configuration: {w}")).collect(),
+            max_shelve_h: {
+                let max = self.book.config().max_shelve_h;
+                if max > 0.0 {
+                    max.min(crate::alarm::MAX_SHELVE_H)
+                } else {
+                    crate::alarm::MAX_SHELVE_H
+                }
+            },
             caution: crate::CAUTION,
         };
         let _ = self.snapshot_tx.send(Arc::new(snap));
@@ -1468,6 +1478,7 @@ impl Ledger {
 mod inspection;
 #[path = "ledger_sensors.rs"]
 mod sensors;
+mod wear_inputs;
 
 #[cfg(test)]
 #[path = "ledger_alarm_tests.rs"]

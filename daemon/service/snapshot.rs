@@ -82,9 +82,15 @@ pub struct Snapshot {
     /// Why the last SIGHUP reload was refused (the running configuration
     /// stays); `None` once a reload is applied.
     pub reload_refused: Option<String>,
-    /// Things an operator should know that are no alarm: another instance
-    /// found on this instance's MQTT status topic (`ingest::status`).
+    /// Things an operator should know that are no alarm: the
+    /// configuration's warnings (each starting "configuration: ") and
+    /// another instance found on this instance's MQTT status topic
+    /// (`ingest::status`).
     pub warnings: Vec<String>,
+    /// The longest shelve the alarm commands take, hours (`[alarms]
+    /// max_shelve_h`, at most `alarm::MAX_SHELVE_H`), for the page's
+    /// choice of durations.
+    pub max_shelve_h: f64,
     pub caution: &'static str,
 }
 

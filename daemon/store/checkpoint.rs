@@ -339,6 +339,7 @@ mod tests {
             wear_index: 0.0,
             fatigue_stress_mpa: 0.0,
             fatigue_usage: 0.0,
+            wear: crate::store::WearInputs { load_n: 0.0, sliding_speed_mm_s: 0.0, slip_mm: 0.0, frequency_hz: 0.0 },
         };
         for day in 0..3 {
             let t = OCT_1 + day * MS_PER_DAY;

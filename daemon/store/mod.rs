@@ -63,7 +63,7 @@ pub use error::StoreError;
 pub use journal::{JournalEntry, JournalReader};
 pub use outbox::OutboxStats;
 pub use schema::{APPLICATION_ID, SCHEMA_VERSION};
-pub use trend::{TrendPoint, TrendReader, TrendWindow};
+pub use trend::{TrendPoint, TrendReader, TrendWindow, WearInputs};
 
 /// How long a write waits for a lock held by another connection (an
 /// operator's `sqlite3`, a backup) before it fails with "busy".
@@ -685,6 +685,7 @@ mod tests {
             wear_index: 0.0,
             fatigue_stress_mpa: 120.5,
             fatigue_usage: 0.001,
+            wear: trend::WearInputs { load_n: 80.5, sliding_speed_mm_s: 1.25, slip_mm: 0.04, frequency_hz: 25.0 },
         };
         let trend_points = vec![("sh-1".to_string(), point)];
         {

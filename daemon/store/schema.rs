@@ -63,6 +63,10 @@ pub const MIGRATIONS: &[Migration] = &[
         summary: "fatigue in the component trends: stress at the fatigue location and fatigue usage",
         apply: v9_trend_fatigue,
     },
+    Migration {
+        summary: "wear inputs in the component trends: normal load, sliding speed, slip amplitude, frequency",
+        apply: super::trend::v10_trend_wear_inputs,
+    },
 ];
 
 /// The newest schema version this build knows: the number of migrations.

@@ -1,7 +1,8 @@
 //! The component trends: per component, the figures of each
 //! `component_state` point (metal temperature, pressure, hoop stress, life
-//! fraction, creep strain, wear index) by event time, so the status page
-//! can draw a component's recent past, also after a restart.
+//! fraction, creep strain, wear index, the fatigue figures and a wear
+//! contact's inputs) by event time, so the status page can draw a
+//! component's recent past, also after a restart.
 //!
 //! Points are upserted by [`Store::commit`] in the transaction of the batch
 //! that produced them, keyed by (component, event time): a batch that rolls
@@ -56,6 +57,46 @@ pub struct TrendPoint {
     /// `[component.fatigue]` and for points written before schema v9.
     pub fatigue_stress_mpa: f64,
     pub fatigue_usage: f64,
+    /// The inputs of a wear contact (`wear_load_n`, `wear_sliding_speed_mm_s`,
+    /// `wear_slip_mm`, `wear_frequency_hz`); NaN (`null`) for other parts,
+    /// for inputs the contact's model does not use and for older points.
+    #[serde(flatten)]
+    pub wear: WearInputs,
+}
+
+/// A wear contact's inputs at a trend point, internal units; NaN where
+/// there is none.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct WearInputs {
+    /// Normal load, N.
+    #[serde(rename = "wear_load_n")]
+    pub load_n: f64,
+    /// Archard sliding speed, mm/s.
+    #[serde(rename = "wear_sliding_speed_mm_s")]
+    pub sliding_speed_mm_s: f64,
+    /// Fretting slip amplitude, mm.
+    #[serde(rename = "wear_slip_mm")]
+    pub slip_mm: f64,
+    /// Fretting frequency, Hz.
+    #[serde(rename = "wear_frequency_hz")]
+    pub frequency_hz: f64,
+}
+
+impl WearInputs {
+    /// No wear inputs (a part that is no wear contact).
+    pub const NONE: WearInputs =
+        WearInputs { load_n: f64::NAN, sliding_speed_mm_s: f64::NAN, slip_mm: f64::NAN, frequency_hz: f64::NAN };
+}
+
+/// Schema step: the wear inputs beside each trend point, `NULL` for parts
+/// that are no wear contact and for rows written before.
+pub(super) fn v10_trend_wear_inputs(tx: &rusqlite::Transaction<'_>) -> rusqlite::Result<()> {
+    tx.execute_batch(
+        "ALTER TABLE trend_point ADD COLUMN wear_load_n REAL;
+         ALTER TABLE trend_point ADD COLUMN wear_sliding_speed_mm_s REAL;
+         ALTER TABLE trend_point ADD COLUMN wear_slip_mm REAL;
+         ALTER TABLE trend_point ADD COLUMN wear_frequency_hz REAL;",
+    )
 }
 
 /// Which points of one component a read returns: the newest `limit` of
@@ -94,8 +135,9 @@ pub(super) fn upsert(
     }
     let mut insert = conn.prepare_cached(
         "INSERT INTO trend_point (component, t_ms, metal_temperature_c, pressure_mpa, hoop_stress_mpa,
-                                  creep_life_fraction, creep_strain, wear_index, fatigue_stress_mpa, fatigue_usage)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)
+                                  creep_life_fraction, creep_strain, wear_index, fatigue_stress_mpa, fatigue_usage,
+                                  wear_load_n, wear_sliding_speed_mm_s, wear_slip_mm, wear_frequency_hz)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14)
          ON CONFLICT (component, t_ms) DO UPDATE SET
              metal_temperature_c = excluded.metal_temperature_c,
              pressure_mpa = excluded.pressure_mpa,
@@ -104,7 +146,11 @@ pub(super) fn upsert(
              creep_strain = excluded.creep_strain,
              wear_index = excluded.wear_index,
              fatigue_stress_mpa = excluded.fatigue_stress_mpa,
-             fatigue_usage = excluded.fatigue_usage",
+             fatigue_usage = excluded.fatigue_usage,
+             wear_load_n = excluded.wear_load_n,
+             wear_sliding_speed_mm_s = excluded.wear_sliding_speed_mm_s,
+             wear_slip_mm = excluded.wear_slip_mm,
+             wear_frequency_hz = excluded.wear_frequency_hz",
     )?;
     let mut written: BTreeMap<&str, u64> = BTreeMap::new();
     for (component, p) in points {
@@ -119,6 +165,10 @@ pub(super) fn upsert(
             p.wear_index,
             p.fatigue_stress_mpa,
             p.fatigue_usage,
+            p.wear.load_n,
+            p.wear.sliding_speed_mm_s,
+            p.wear.slip_mm,
+            p.wear.frequency_hz,
         ))?;
         *written.entry(component).or_default() += 1;
     }
@@ -164,7 +214,7 @@ fn points(conn: &Connection, component: &str, window: TrendWindow) -> rusqlite::
         |r: &Row<'_>, i: usize| -> rusqlite::Result<f64> { Ok(r.get::<_, Option<f64>>(i)?.unwrap_or(f64::NAN)) };
     let mut stmt = conn.prepare_cached(
         "SELECT t_ms, metal_temperature_c, pressure_mpa, hoop_stress_mpa, creep_life_fraction, creep_strain, wear_index,
-                fatigue_stress_mpa, fatigue_usage
+                fatigue_stress_mpa, fatigue_usage, wear_load_n, wear_sliding_speed_mm_s, wear_slip_mm, wear_frequency_hz
          FROM trend_point WHERE component = ?1 AND t_ms >= ?2 ORDER BY t_ms DESC LIMIT ?3",
     )?;
     let rows = stmt.query_map((component, since, limit), |r| {
@@ -178,6 +228,12 @@ fn points(conn: &Connection, component: &str, window: TrendWindow) -> rusqlite::
             wear_index: value(r, 6)?,
             fatigue_stress_mpa: value(r, 7)?,
             fatigue_usage: value(r, 8)?,
+            wear: WearInputs {
+                load_n: value(r, 9)?,
+                sliding_speed_mm_s: value(r, 10)?,
+                slip_mm: value(r, 11)?,
+                frequency_hz: value(r, 12)?,
+            },
         })
     })?;
     let mut newest_first = rows.collect::<rusqlite::Result<Vec<_>>>()?;
@@ -250,6 +306,7 @@ mod tests {
             wear_index: 0.0,
             fatigue_stress_mpa: 100.0 + n as f64,
             fatigue_usage: 1.0e-6 * n as f64,
+            wear: WearInputs { load_n: 80.0 + n as f64, sliding_speed_mm_s: 0.0, slip_mm: 0.04, frequency_hz: 25.0 },
         }
     }
 

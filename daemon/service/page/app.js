@@ -212,8 +212,36 @@ const LL = (() => {
       parts.push(chip(reach === false ? 'bad' : reach ? 'good' : 'plain', 'Database', reach === false ? 'unreachable' : reach ? 'reachable' : 'unknown'));
     }
     $('service-status').innerHTML = parts.join('');
+    if (num(snap.max_shelve_h) !== null && snap.max_shelve_h > 0) maxShelveH = snap.max_shelve_h;
+    renderWarnings(snap);
+    printHead();
     updated();
   }
+  // The snapshot's warnings (configuration, another instance on the status
+  // topic) and a refused reload, under the caution: no alarm, but an
+  // operator or engineer should know.
+  function renderWarnings(snap) {
+    const el = $('service-warnings');
+    if (!el) return;
+    const list = (snap.warnings || []).slice();
+    if (snap.reload_refused) list.unshift('configuration reload refused (the running configuration stays): ' + snap.reload_refused);
+    el.hidden = !list.length;
+    const html = list.length
+      ? '<details' + (el.querySelector('details[open]') ? ' open' : '') + '><summary>' + list.length + ' warning' + (list.length > 1 ? 's' : '') +
+        ' from the service</summary><ul>' + list.map((w) => '<li>' + esc(w) + '</li>').join('') + '</ul></details>'
+      : '';
+    if (el.dataset.html !== html) { el.innerHTML = html; el.dataset.html = html; }
+  }
+  // The printed page's header: plant, what is printed and when.
+  function printHead() {
+    const el = $('print-head');
+    if (!el) return;
+    const plant = ($('plant-name') || {}).textContent || '';
+    const what = document.body.dataset.page === 'component' ? ($('component-name') || {}).textContent || '' : 'plant overview';
+    const d = new Date();
+    el.textContent = plant + ' · ' + what + ' · Printed ' + timeUtc(d.getTime()) + ' UTC';
+  }
+  window.addEventListener('beforeprint', printHead);
   function updated(err) {
     const el = $('updated');
     if (!el) return;
@@ -230,6 +258,10 @@ const LL = (() => {
 
   // ---------- operator token and alarm commands ----------
   const TOKEN_KEY = 'lifeledger.operator-token';
+  // Who acknowledges or shelves: kept in this browser for the next visit.
+  const NAME_KEY = 'lifeledger.operator-name';
+  // The longest shelve the service takes, hours (the snapshot says).
+  let maxShelveH = 720;
   let serverReadOnly = null; // null: unknown, true: no token configured
   let onOperatorChange = () => {};
   function token() {
@@ -243,6 +275,23 @@ const LL = (() => {
     onOperatorChange();
   }
   function canCommand() { return !!token() && serverReadOnly !== true; }
+  function operatorName() {
+    try { return (localStorage.getItem(NAME_KEY) || '').trim(); } catch (e) { return ''; }
+  }
+  function setOperatorName(v) {
+    try {
+      if (v.trim()) localStorage.setItem(NAME_KEY, v.trim()); else localStorage.removeItem(NAME_KEY);
+    } catch (e) { /* storage disabled: asked again next time */ }
+  }
+  // Asks the service whether it would take `t`, changing nothing.
+  async function checkToken(t) {
+    try {
+      const r = await fetch('/api/operator/check', { cache: 'no-store', headers: { Authorization: 'Bearer ' + t } });
+      return r.status;
+    } catch (e) {
+      return 0;
+    }
+  }
   function renderOperator() {
     const el = $('operator');
     if (!el) return;
@@ -251,8 +300,12 @@ const LL = (() => {
       return;
     }
     if (token()) {
+      const focused = document.activeElement && document.activeElement.id === 'op-name';
+      if (focused) return; // typing a name
       el.innerHTML = '<span class="chip good" title="Acknowledge and shelve are enabled for this browser tab">operator</span>' +
+        '<label class="op-name">Name <input type="text" id="op-name" maxlength="80" size="14" autocomplete="name" placeholder="who acknowledges" value="' + esc(operatorName()) + '"></label>' +
         '<button type="button" class="ghost" id="op-signout">Forget token</button>';
+      $('op-name').oninput = (ev) => setOperatorName(ev.target.value);
       $('op-signout').onclick = () => setToken('');
       return;
     }
@@ -260,10 +313,25 @@ const LL = (() => {
       '<form id="op-form" class="op-form" autocomplete="off">' +
       '<input type="password" id="op-token" placeholder="operator token" aria-label="Operator token" size="14">' +
       '<button type="submit">Enable commands</button></form>';
-    $('op-form').onsubmit = (ev) => {
+    $('op-form').onsubmit = async (ev) => {
       ev.preventDefault();
       const v = $('op-token').value.trim();
-      if (v) setToken(v);
+      if (!v) return;
+      // Told at once: a wrong token is not kept.
+      const status = await checkToken(v);
+      if (status === 204) {
+        setToken(v);
+        notice('Token accepted: acknowledge and shelve are enabled' + (operatorName() ? '' : '; enter your name beside it'), 'good');
+      } else if (status === 401) {
+        if ($('op-token')) $('op-token').value = '';
+        notice('The token was not accepted: commands stay off.', 'bad');
+      } else if (status === 403) {
+        serverReadOnly = true;
+        renderOperator();
+        notice('read-only: the service takes no commands over HTTP', 'bad');
+      } else {
+        notice('The token could not be checked (' + (status ? 'HTTP ' + status : 'no answer') + '); try again.', 'bad');
+      }
     };
   }
   // Find out, without changing anything, whether the server takes commands:
@@ -287,7 +355,15 @@ const LL = (() => {
     notice.timer = setTimeout(() => { el.className = 'notice'; }, 6000);
   }
   async function command(body) {
-    body.by = 'status page';
+    // ISA-18.2 asks who acknowledged or shelved: a name, never a default.
+    const by = operatorName();
+    if (!by) {
+      notice('Enter your name (top right, beside the operator token) first: the alarm journal records who acknowledged or shelved.', 'bad');
+      const box = $('op-name');
+      if (box) box.focus();
+      return false;
+    }
+    body.by = by;
     let r;
     try {
       r = await fetch('/api/alarms/command', {
@@ -572,6 +648,7 @@ const LL = (() => {
     POLL_MS, DEFAULT_LEVELS, esc, $, num, frac, capped, sig, fixed, group, hours, years, timeUtc, shortUtc, isoUtc, kindLabel,
     sevRank, sevBadge, flagChips, indexLabel, indexValue, api, poll, renderHeader, updated,
     token, canCommand, command, notice, set onOperatorChange(f) { onOperatorChange = f; },
+    operatorName, get maxShelveH() { return maxShelveH; },
     lineChart, attachHover, histogram, eventItem, STATE_LABEL, CONDITION_INDEX,
   };
 })();

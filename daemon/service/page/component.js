@@ -16,8 +16,13 @@
   let windowMs = 0;
   let yscale = 'data';
   const SCALE_KEY = 'lifeledger.trend-scale';
-  let shelveOpen = null, shelveReason = '';
+  let shelveOpen = null, shelveReason = '', shelveHours = 8;
   let tick = 0;
+  // While printing (between beforeprint and afterprint).
+  let printing = false;
+  // A chart's drawing width on paper, CSS px: half the printable width of
+  // A4 or letter with 12 mm margins, less the gap.
+  const PRINT_CHART_W = 340;
 
   try {
     windowMs = Number(sessionStorage.getItem(WINDOW_KEY) || 0) || 0;
@@ -89,14 +94,19 @@
     t += tile('Remaining life', LL.num(rem) === null ? 'not moving' : LL.hours(rem), LL.num(rem) === null ? '' : ' h',
       (LL.num(rem) === null ? 'no damage accumulating' : LL.years(rem) + ' years') + basis, pr.settling ? 'data' : '');
     if (creep) {
-      const peak = LL.num(c.peak_metal_temperature_c) === null ? '' : 'peak ' + LL.fixed(c.peak_metal_temperature_c, 1) + ' °C';
-      const design = LL.num(c.design_temperature_c) === null ? '' : 'design ' + LL.fixed(c.design_temperature_c, 0) + ' °C';
-      t += tile('Metal temperature', LL.fixed(c.metal_temperature_c, 1), ' °C', [peak, design].filter(Boolean).join(' · '), (c.flags || []).includes('over_design_temperature') ? 'warning' : '');
+      // Amber only while the metal is above design now; hours above design
+      // in the past are history (their own card), not a colour.
+      const now = LL.num(c.metal_temperature_c), design = LL.num(c.design_temperature_c);
+      const hot = now !== null && design !== null && now > design;
+      t += tile('Metal temperature', LL.fixed(c.metal_temperature_c, 1), ' °C', design === null ? '' : (hot ? 'above ' : 'design ') + LL.fixed(design, 0) + ' °C', hot ? 'warning' : '');
+      t += tile('Peak metal temperature', LL.fixed(c.peak_metal_temperature_c, 1), ' °C', 'highest integrated');
       t += tile('Pressure', LL.sig(c.pressure_mpa, 4), ' MPa', 'gauge');
       t += tile('Hoop stress', LL.sig(c.hoop_stress_mpa, 4), ' MPa', '');
       t += tile('Damage rate', LL.sig(c.damage_rate_per_h, 3), ' /h', 'recent, life fraction per hour');
-      t += tile('In creep range', LL.hours(c.hours_in_creep_range), ' h', 'of ' + LL.hours(c.integrated_h) + ' h integrated');
-      t += tile('Over design', LL.hours(c.over_design_h), ' h', 'extrapolated ' + LL.hours(c.extrapolated_h) + ' h', c.over_design_h > 0 ? 'warning' : '');
+      t += tile('In creep range', LL.hours(c.hours_in_creep_range), ' h', 'hours the metal was in the creep range');
+      t += tile('Integrated', LL.hours(c.integrated_h), ' h', 'hours in the ledger');
+      t += tile('Over design', LL.hours(c.over_design_h), ' h', 'hours above the design temperature, ever');
+      t += tile('Extrapolated', LL.hours(c.extrapolated_h), ' h', 'hours outside the material data range');
     } else {
       t += tile('Integrated', LL.hours(c.integrated_h), ' h', '');
     }
@@ -113,7 +123,13 @@
   function renderTitle() {
     const c = comp;
     $('crumb-unit').textContent = '/ unit ' + c.unit + ' / ' + c.component;
-    $('component-sub').textContent = LL.kindLabel(c.kind) + ' · ' + c.material + ' · ' + c.curve_basis + ' rupture curve · integrated to ' + LL.isoUtc(c.integrated_to);
+    // A part's page shows what the part is tracked for: the rupture curve
+    // only for creep parts.
+    const creep = has(c, 'life_fraction');
+    $('component-sub').textContent = LL.kindLabel(c.kind) + ' · ' + c.material + (creep ? ' · ' + c.curve_basis + ' rupture curve' : '') + ' · integrated to ' + LL.isoUtc(c.integrated_to);
+    // Creep-only panels (time at temperature and pressure, the class
+    // table) leave the page of a part that is not tracked for creep.
+    if (!creep) for (const el of document.querySelectorAll('[data-track="creep"]')) el.remove();
     const a = alarms || {};
     $('component-alarm').innerHTML = LL.sevBadge(a.worst_severity) +
       (a.unacknowledged ? '<span class="pill unack">' + a.unacknowledged + ' unack</span>' : '') +
@@ -137,10 +153,12 @@
     }
     const t1 = pts[pts.length - 1].t;
     const t0 = windowMs ? Math.max(pts[0].t, t1 - windowMs) : pts[0].t;
-    // Two charts a row on wide screens (control room), one on a laptop.
-    const cols = box.clientWidth >= 1400 ? 2 : 1;
+    // Two charts a row on wide screens (control room), one on a laptop;
+    // on paper two a row, drawn at the width they print at so that their
+    // text keeps its size.
+    const cols = printing || box.clientWidth >= 1400 ? 2 : 1;
     box.style.gridTemplateColumns = 'repeat(' + cols + ', minmax(0, 1fr))';
-    const width = Math.max(320, (box.clientWidth - (cols - 1) * 10) / cols - 24);
+    const width = printing ? PRINT_CHART_W : Math.max(320, (box.clientWidth - (cols - 1) * 10) / cols - 24);
     const creep = has(comp, 'life_fraction'), wear = has(comp, 'wear_index');
     const defs = [];
     if (creep) {
@@ -160,7 +178,14 @@
         defs.push({ key: 'creep_strain', title: 'Creep strain', unit: '%', scale: 100, fmt: LL.frac, levels: levelLines('creep_strain', 100), floor0: all, cls: 's-strain' });
       }
     }
-    if (wear) defs.push({ key: 'wear_index', title: 'Wear index', unit: '', fmt: LL.frac, levels: levelLines('wear_index'), floor0: all, cls: 's-wear' });
+    if (wear) {
+      defs.push({ key: 'wear_index', title: 'Wear index', unit: '', fmt: LL.frac, levels: levelLines('wear_index'), floor0: all, cls: 's-wear' });
+      // The contact's own inputs, where its model uses them (null otherwise).
+      defs.push({ key: 'wear_load_n', title: 'Normal load', unit: 'N', fmt: (v) => LL.sig(v, 4), cls: 's-press', input: true });
+      defs.push({ key: 'wear_sliding_speed_mm_s', title: 'Sliding speed', unit: 'mm/s', fmt: (v) => LL.sig(v, 4), cls: 's-stress', input: true });
+      defs.push({ key: 'wear_slip_mm', title: 'Slip amplitude', unit: 'µm', scale: 1000, fmt: (v) => LL.sig(v, 4), cls: 's-stress', input: true });
+      defs.push({ key: 'wear_frequency_hz', title: 'Frequency', unit: 'Hz', fmt: (v) => LL.sig(v, 4), cls: 's-temp', input: true });
+    }
     if (comp.fatigue) {
       // Points stored before the ledger had fatigue figures carry null.
       defs.push({ key: 'fatigue_stress_mpa', title: 'Stress at the fatigue location', unit: 'MPa', fmt: (v) => LL.sig(v, 4), cls: 's-stress', fatigue: true });
@@ -172,7 +197,7 @@
       // A point at 0 K is the ledger before its first interval: no
       // temperature, pressure or stress yet.
       let src = d.state ? pts.filter((p) => p.metal_temperature_c > -273) : pts;
-      if (d.fatigue) src = src.filter((p) => LL.num(p[d.key]) !== null);
+      if (d.fatigue || d.input) src = src.filter((p) => LL.num(p[d.key]) !== null);
       const series = src.map((p) => [p.t, p[d.key] * s]);
       if (!series.length) continue;
       const last = series[series.length - 1][1];
@@ -192,6 +217,7 @@
 
   function renderHistograms() {
     const c = comp;
+    if (!$('hist-temperature-box')) return; // not a creep part
     const w = Math.max(320, $('hist-temperature-box').clientWidth - 2);
     const design = LL.num(c.design_temperature_c);
     $('hist-temperature-box').innerHTML = LL.histogram({
@@ -208,6 +234,7 @@
   // "≥ 660".
   function renderClassTable() {
     const box = $('class-table-box');
+    if (!box) return; // not a creep part
     const t = (comp.histograms || {}).temperature_pressure;
     if (!t || !t.hours) {
       box.innerHTML = '<p class="muted">No class table from this service.</p>';
@@ -244,7 +271,7 @@
 
   function renderAlarms() {
     const box = $('alarms');
-    if (box.contains(document.activeElement) && document.activeElement.tagName === 'INPUT') return; // typing a reason
+    if (box.contains(document.activeElement) && ['INPUT', 'SELECT'].includes(document.activeElement.tagName)) return; // typing a reason
     $('alarm-mode').textContent = LL.canCommand() ? 'operator: acknowledge and shelve enabled' : 'read-only';
     const recs = ((alarms && alarms.alarms) || []).slice();
     if (!recs.length) {
@@ -267,7 +294,7 @@
       if (cmd) {
         if (r.state === 'unacknowledged' || r.state === 'rtn_unacknowledged') actions += '<button type="button" data-act="acknowledge" data-index="' + esc(r.index) + '">Acknowledge</button>';
         if (r.state === 'shelved') actions += '<button type="button" class="ghost" data-act="unshelve" data-index="' + esc(r.index) + '">Unshelve</button>';
-        else if (r.state !== 'normal') actions += '<button type="button" class="ghost" data-act="shelve-open" data-index="' + esc(r.index) + '">Shelve 8 h…</button>';
+        else if (r.state !== 'normal') actions += '<button type="button" class="ghost" data-act="shelve-open" data-index="' + esc(r.index) + '">Shelve…</button>';
       }
       h += '<tr class="st-' + esc(r.state) + ' sev-' + esc(r.severity || 'none') + '">' +
         '<td>' + esc(LL.indexLabel(r.index)) + '</td>' +
@@ -278,13 +305,31 @@
         '<td class="notes">' + esc(notes.join('; ')) + '</td>' +
         (cmd ? '<td class="actions">' + actions + '</td>' : '') + '</tr>';
       if (cmd && shelveOpen === key) {
+        const choices = shelveChoices();
+        if (!choices.includes(shelveHours)) shelveHours = choices.includes(8) ? 8 : choices[choices.length - 1];
         h += '<tr class="shelve-row"><td colspan="7"><form class="shelve-form" data-index="' + esc(r.index) + '">' +
-          '<label>Reason for shelving ' + esc(LL.indexLabel(r.index).toLowerCase()) + ' for 8 h ' +
+          '<label>Reason for shelving ' + esc(LL.indexLabel(r.index).toLowerCase()) + ' ' +
           '<input type="text" name="reason" required maxlength="200" value="' + esc(shelveReason) + '" placeholder="for example thermocouple replacement"></label>' +
-          '<button type="submit">Shelve 8 h</button><button type="button" class="ghost" data-act="shelve-cancel">Cancel</button></form></td></tr>';
+          '<label class="shelve-for">For <select name="duration_h">' +
+          choices.map((v) => '<option value="' + v + '"' + (v === shelveHours ? ' selected' : '') + '>' + esc(shelveLabel(v)) + '</option>').join('') +
+          '</select></label>' +
+          '<button type="submit">Shelve</button><button type="button" class="ghost" data-act="shelve-cancel">Cancel</button></form></td></tr>';
       }
     }
     box.innerHTML = h + '</tbody></table>';
+  }
+
+  // Shelve durations offered: common lengths up to the service's maximum
+  // (the snapshot's max_shelve_h), and the maximum itself.
+  function shelveChoices() {
+    const max = LL.maxShelveH;
+    const out = [1, 2, 4, 8, 12, 24, 48, 72, 168, 336, 720].filter((h) => h < max);
+    out.push(max);
+    return out;
+  }
+  function shelveLabel(h) {
+    if (h >= 48 && h % 24 === 0) return (h / 24) + ' days';
+    return String(h) + ' h';
   }
 
   function renderEvents() {
@@ -314,6 +359,16 @@
     let h = '<div class="mat-head"><span class="grade">' + esc(m.grade) + '</span>' +
       (m.aliases && m.aliases.length ? '<span class="muted">also ' + esc(m.aliases.join(', ')) + '</span>' : '') +
       (m.description ? '<p>' + esc(m.description) + '</p>' : '') + '</div>';
+    // A part not tracked for creep shows no creep data of its grade: its
+    // wear constants are the contact's own, in the configuration.
+    if (comp && !has(comp, 'life_fraction')) {
+      h += '<table class="mat"><thead><tr><th>Quantity</th><th class="num">Value</th><th>Source</th></tr></thead><tbody>';
+      h += sourced('Melting point', m.melting_point_k, k2c);
+      if (m.hardness_hv) h += sourced('Hardness', m.hardness_hv, (v) => esc(LL.sig(v, 3)) + ' HV');
+      h += '</tbody></table><p class="muted small">The wear coefficient, contact area and allowable depth are this contact\'s own, set in its <code>[component.wear]</code> configuration.</p>';
+      box.innerHTML = h;
+      return;
+    }
     h += '<table class="mat"><thead><tr><th>Quantity</th><th class="num">Value</th><th>Source</th></tr></thead><tbody>';
     h += sourced('Melting point', m.melting_point_k, k2c);
     if (m.creep_threshold_k) h += sourced('Creep threshold', m.creep_threshold_k, k2c);
@@ -425,12 +480,15 @@
     b.disabled = false;
   });
   $('alarms').addEventListener('input', (ev) => { if (ev.target.name === 'reason') shelveReason = ev.target.value; });
+  $('alarms').addEventListener('change', (ev) => { if (ev.target.name === 'duration_h') shelveHours = Number(ev.target.value); });
   $('alarms').addEventListener('submit', async (ev) => {
     ev.preventDefault();
     const f = ev.target;
     const reason = f.reason.value.trim();
     if (!reason) return;
-    if (await LL.command({ action: 'shelve', component: name, index: f.dataset.index, duration_h: 8, reason })) {
+    const hours = Number(f.duration_h.value);
+    if (!(hours > 0 && hours <= LL.maxShelveH)) return;
+    if (await LL.command({ action: 'shelve', component: name, index: f.dataset.index, duration_h: hours, reason })) {
       shelveOpen = null; shelveReason = '';
       document.activeElement.blur();
       refreshSoon();
@@ -438,6 +496,19 @@
     renderAlarms();
   });
   LL.onOperatorChange = () => { if (comp) renderAlarms(); };
+
+  // Printing: charts redrawn for the paper, and back after.
+  const onPrint = (on) => {
+    if (printing === on) return;
+    printing = on;
+    if (comp) renderCharts();
+  };
+  window.addEventListener('beforeprint', () => onPrint(true));
+  window.addEventListener('afterprint', () => onPrint(false));
+  if (window.matchMedia) {
+    const mq = window.matchMedia('print');
+    if (mq.addEventListener) mq.addEventListener('change', (e) => onPrint(e.matches));
+  }
 
   let resizeTimer = null;
   window.addEventListener('resize', () => {

@@ -3,6 +3,10 @@
 //! polls the JSON API (`/api/components`, `/api/components/{name}/trend`,
 //! `/api/components/{name}/alarms`, `/api/materials/{grade}`). Charts are inline SVG drawn by that script.
 //!
+//! `print.css` (loaded with `media="print"`) lays the pages out for A4 and
+//! US letter paper. Operator actions ask `/api/operator/check` whether a
+//! token is right when it is entered.
+//!
 //! Every asset is compiled into the binary (`include_str!`): the page works
 //! on an isolated plant network with no internet access. The caution is put
 //! into the HTML on the server as well, so it shows even before (or
@@ -20,6 +24,7 @@ const FRAME_HTML: &str = include_str!("frame.html");
 const INDEX_HTML: &str = include_str!("index.html");
 const COMPONENT_HTML: &str = include_str!("component.html");
 const APP_CSS: &str = include_str!("app.css");
+const PRINT_CSS: &str = include_str!("print.css");
 const APP_JS: &str = include_str!("app.js");
 const OVERVIEW_JS: &str = include_str!("overview.js");
 const COMPONENT_JS: &str = include_str!("component.js");
@@ -33,6 +38,7 @@ pub fn routes() -> Router<HttpState> {
         .route("/", get(index))
         .route("/component/*name", get(component))
         .route("/page/app.css", get(|| async { asset("text/css; charset=utf-8", APP_CSS) }))
+        .route("/page/print.css", get(|| async { asset("text/css; charset=utf-8", PRINT_CSS) }))
         .route("/page/app.js", get(|| async { asset("text/javascript; charset=utf-8", APP_JS) }))
         .route("/page/overview.js", get(|| async { asset("text/javascript; charset=utf-8", OVERVIEW_JS) }))
         .route("/page/component.js", get(|| async { asset("text/javascript; charset=utf-8", COMPONENT_JS) }))
@@ -101,7 +107,7 @@ mod tests {
     fn pages_have_their_placeholders_and_assets() {
         assert!(FRAME_HTML.contains("{{CAUTION}}") && FRAME_HTML.contains("{{PLANT}}"));
         assert!(FRAME_HTML.contains("{{TITLE}}") && FRAME_HTML.contains("{{PAGE}}"));
-        assert!(FRAME_HTML.contains("/page/app.css"));
+        assert!(FRAME_HTML.contains("/page/app.css") && FRAME_HTML.contains("/page/print.css"));
         // No asset may come from elsewhere: the plant network is closed.
         for t in [FRAME_HTML, INDEX_HTML, COMPONENT_HTML] {
             assert!(!t.contains("http://") && !t.contains("https://"));
@@ -110,7 +116,7 @@ mod tests {
             assert!(t.starts_with("{{FRAME}}"));
             assert!(t.contains("/page/app.js"));
         }
-        for a in [APP_CSS, APP_JS, OVERVIEW_JS, COMPONENT_JS, ICON_SVG, INSPECTION_JS] {
+        for a in [APP_CSS, PRINT_CSS, APP_JS, OVERVIEW_JS, COMPONENT_JS, ICON_SVG, INSPECTION_JS] {
             // The SVG namespace is a name, not a download.
             let a = a.replace("http://www.w3.org/2000/svg", "");
             assert!(!a.contains("http://") && !a.contains("https://"), "assets must not load from the internet");
