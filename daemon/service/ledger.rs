@@ -966,7 +966,20 @@ impl Ledger {
             if t < self.next_series_ms[ci] || !crate::report::conditions_known(plan, st) {
                 continue;
             }
-            if let Some(l) = component_point(plant, plan, st, t).to_line() {
+            let mut point = component_point(plant, plan, st, t);
+            // The attention score of the latest published snapshot (at most
+            // one snapshot period old): the ranking needs every part's alarms.
+            let score = self
+                .snapshot_tx
+                .borrow()
+                .components
+                .get(ci)
+                .filter(|c| c.component == plan.name)
+                .and_then(|c| c.attention_score);
+            if let Some(a) = score {
+                point = point.float("attention_score", a);
+            }
+            if let Some(l) = point.to_line() {
                 self.extra_outbox.push(l);
                 self.series_pending += 1;
             }
@@ -1427,7 +1440,7 @@ impl Ledger {
         let service: BTreeSet<String> =
             self.book.records().map(|r| r.component.clone()).filter(|c| c.starts_with("lifeledger")).collect();
         alarms.extend(service.iter().map(|c| self.book.current(c)));
-        let snap = Snapshot {
+        let mut snap = Snapshot {
             plant: self.cfg.plan.plant.clone(),
             started: self.started.clone(),
             mqtt_connected: self.mqtt_connected,
@@ -1460,6 +1473,7 @@ impl Ledger {
             warnings: Vec::new(),
             caution: crate::CAUTION,
         };
+        super::attention::annotate(&mut snap);
         let _ = self.snapshot_tx.send(Arc::new(snap));
     }
 }
