@@ -306,7 +306,7 @@ fn overview_rows_follow_the_attention_ranking_and_sort_by_column() {
     let _ = std::fs::remove_file(&png);
     chromium_run(
         &format!("http://127.0.0.1:{port}/"),
-        &[&format!("--screenshot={}", png.display()), "--window-size=390,844"],
+        &[&format!("--screenshot={}", png.display()), "--window-size=390,2000"],
         profile.path(),
         &[],
     );

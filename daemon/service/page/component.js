@@ -181,7 +181,7 @@
         LL.lineChart({ id: 'trend-' + d.key, label: d.title + ' trend', points: series, t0, t1, unit: d.unit, fmt: d.fmt, levels: d.levels, floor0: d.floor0, allLevels: all, width, height: 210, cls: d.cls }) +
         '</figure>';
     }
-    html += '<p class="muted small span-all">' + n + ' of ' + pts.length + ' points shown, ' + LL.timeUtc(t0) + ' to ' + LL.timeUtc(t1) + ' UTC</p>';
+    html += '<p class="muted small span-all">' + n + ' of ' + pts.length + ' points shown, ' + LL.timeUtc(t0) + ' to ' + LL.timeUtc(t1) + ' ' + LL.esc(LL.timeBase()) + '</p>';
     box.innerHTML = html;
     for (const d of defs) LL.attachHover('trend-' + d.key);
     const own = comp.thresholds && comp.thresholds.life_fraction;
@@ -438,6 +438,8 @@
     renderAlarms();
   });
   LL.onOperatorChange = () => { if (comp) renderAlarms(); };
+  // Time base and units chosen in the top bar: redraw at once.
+  LL.onDisplayChange(() => { if (comp) renderAll(); });
 
   let resizeTimer = null;
   window.addEventListener('resize', () => {

@@ -275,6 +275,8 @@ const LLFormat = (() => {
         '" data-value="' + v + '" aria-pressed="' + (prefs[key] === v) + '">' + text + '</button>').join('') + '</span>';
   }
   function renderPrefs() {
+    // Headings that name the time base (class time-base) follow the choice.
+    for (const t of document.querySelectorAll('.time-base')) t.textContent = timeBase();
     const el = document.getElementById('display-prefs');
     if (!el) return;
     el.innerHTML = seg('time', [['utc', 'UTC'], ['local', 'Local']], 'Time') +
