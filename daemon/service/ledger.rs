@@ -1487,6 +1487,10 @@ mod sensors;
 mod alarm_tests;
 
 #[cfg(test)]
+#[path = "ledger_attention_tests.rs"]
+mod attention_tests;
+
+#[cfg(test)]
 mod tests {
     use super::*;
 
