@@ -29,7 +29,7 @@ pub fn input_of(
         ("wear_index", c.wear_index, &th.wear_index),
     ] {
         if tracked(key) {
-            indices.push((value, levels.clone()));
+            indices.push((value, *levels));
         }
     }
     if let Some(f) = &c.fatigue {

@@ -60,8 +60,7 @@ fn parts_reading_a_silent_transmitter_rank_first_and_their_points_carry_the_scor
     let last = lines
         .iter()
         .map(|(_, l)| l)
-        .filter(|l| l.starts_with("component_state,") && l.contains(&format!("component={name},")))
-        .next_back()
+        .rfind(|l| l.starts_with("component_state,") && l.contains(&format!("component={name},")))
         .unwrap_or_else(|| panic!("no component_state point of {name}"));
     assert!(last.contains(&format!("attention_score={want}")), "{last}");
 }
