@@ -623,6 +623,13 @@ fn formats_times_and_units_follow_the_display_rules() {
     let at = dom.find("id=\"trend-hoop_stress_mpa\"").expect("stress trend");
     let svg = &dom[at..at + dom[at..].find("</svg>").unwrap()];
     assert!(svg.contains(">ksi</text>"), "stress chart not in ksi");
+    // The figures and the class table follow too; the material's data
+    // stay in the units of their sources (the material panel).
+    assert!(dom.contains("°F / psi</th>"), "class table not in °F and psi");
+    let page = &dom[..dom.find("id=\"material\"").expect("material panel")];
+    let left: Vec<&str> =
+        [" °C<", " MPa<"].iter().filter_map(|u| page.find(u).map(|i| &page[i.saturating_sub(120)..i + 5])).collect();
+    assert!(left.is_empty(), "°C or MPa left on the component page in °F/psi: {left:?}");
     assert!(
         scientific(&visible_text(&dom)).is_none(),
         "scientific notation on the component page: {:?}",
