@@ -552,7 +552,7 @@ fn formats_times_and_units_follow_the_display_rules() {
     assert_eq!(out["remaining_exhausted"], "exhausted");
     assert_eq!(out["remaining_long"]["text"], "> 100");
     assert_eq!(out["remaining_long"]["unit"], "years");
-    assert_eq!(out["hours_long"], "> 1\u{2009}000\u{2009}000");
+    assert_eq!(out["hours_long"], "> 1\u{202f}000\u{202f}000");
     assert_eq!(out["years_long"], "> 100");
     // Dates carry the year outside the current one.
     assert_eq!(out["y2062"], "2062-12-03 02:01");

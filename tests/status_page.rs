@@ -144,13 +144,13 @@ fn frac(v: f64) -> String {
     }
 }
 
-/// Whole numbers as the page groups them (thin-space thousands).
+/// Whole numbers as the page groups them (narrow no-break space between thousands).
 fn group(n: u64) -> String {
     let s = n.to_string();
     let mut out = String::new();
     for (i, ch) in s.chars().enumerate() {
         if i > 0 && (s.len() - i) % 3 == 0 {
-            out.push('\u{2009}');
+            out.push('\u{202f}');
         }
         out.push(ch);
     }

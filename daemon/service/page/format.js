@@ -59,12 +59,13 @@ const LLFormat = (() => {
   function onPrefs(f) { listeners.push(f); }
 
   // ---------- numbers ----------
-  // Whole numbers with thin-space thousands groups.
+  // Whole numbers in thousands groups separated by a narrow no-break space
+  // (a thin space that never breaks a number across lines).
   function group(v) {
     v = num(v);
     if (v === null) return '—';
     // BigInt: whole digits even beyond 1e21, where toString() turns to exponents.
-    const s = BigInt(Math.round(Math.abs(v))).toString().replace(/\B(?=(\d{3})+(?!\d))/g, '\u2009');
+    const s = BigInt(Math.round(Math.abs(v))).toString().replace(/\B(?=(\d{3})+(?!\d))/g, '\u202f');
     return (v < 0 && Math.round(Math.abs(v)) !== 0 ? '−' : '') + s;
   }
   // `v` with `d` decimals (0..12), never in exponent form, the integer part
@@ -76,9 +77,10 @@ const LLFormat = (() => {
     let s = Math.abs(v).toFixed(d);
     if (s.includes('e')) return group(v); // from 1e21 up: whole number
     let [i, f] = s.split('.');
-    i = i.replace(/\B(?=(\d{3})+(?!\d))/g, '\u2009');
-    if (f && f.length > 4) f = f.replace(/(\d{3})(?=\d)/g, '$1\u2009');
-    const zero = /^[0.\u2009]*$/.test(i + (f || ''));
+    i = i.replace(/\B(?=(\d{3})+(?!\d))/g, '\u202f');
+    // Narrow no-break spaces: a number never breaks across lines.
+    if (f && f.length > 4) f = f.replace(/(\d{3})(?=\d)/g, '$1\u202f');
+    const zero = /^[0.\u202f]*$/.test(i + (f || ''));
     return (neg && !zero ? '−' : '') + i + (f ? '.' + f : '');
   }
   const SUP = { '-': '⁻', 0: '⁰', 1: '¹', 2: '²', 3: '³', 4: '⁴', 5: '⁵', 6: '⁶', 7: '⁷', 8: '⁸', 9: '⁹' };
