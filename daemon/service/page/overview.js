@@ -78,18 +78,32 @@
     if (!sortBy) $('order-note').textContent = 'needing attention first';
   }
 
-  // The index nearest its own next level (the ranking's third tier), for
-  // the compact column: name, value and the fraction of that level.
+  // The index nearest its own next level (the ranking's third tier, as
+  // alarm::attention judges it), for the compact column: name, value shown
+  // as the page shows that index, and the fraction of that level.
   function worstIndex(c) {
-    let best = { fraction: null, label: '', value: null, key: '' };
-    for (const [key, label, value] of [['life_fraction', 'life fraction', c.creep_life_fraction], ['wear_index', 'wear index', c.wear_index]]) {
-      if (!has(c, key) || LL.num(value) === null) continue;
-      const lv = levelsOf(c, key);
-      const set = ['advisory', 'warning', 'critical'].map((k) => lv && lv[k]).filter((l) => LL.num(l) !== null && l > 0);
+    let best = { fraction: null, label: '', value: null, key: '', text: '' };
+    const lv = (key) => levelsOf(c, key);
+    const fromHours = (list) => {
+      const o = {};
+      for (const x of list || []) o[x.severity] = x.level;
+      return o;
+    };
+    const f = c.fatigue || null;
+    const cands = [
+      ['life_fraction', 'life fraction', c.creep_life_fraction, has(c, 'life_fraction') && lv('life_fraction'), (v) => LL.capped(v, c.display_ceiling)],
+      ['creep_strain', 'creep strain', c.creep_strain, has(c, 'creep_strain') && lv('creep_strain'), (v) => LL.capped(v * 100, 100) + ' %'],
+      ['wear_index', 'wear index', c.wear_index, has(c, 'wear_index') && lv('wear_index'), (v) => LL.capped(v, c.display_ceiling)],
+      ['fatigue_usage', 'fatigue usage', f && f.fatigue_usage, f && fromHours(f.hours_to_usage), LL.frac],
+      ['creep_fatigue_index', 'creep-fatigue index', f && f.creep_fatigue_index, f && fromHours(f.hours_to_combined), LL.frac],
+    ];
+    for (const [key, label, value, levels, show] of cands) {
+      if (!levels || LL.num(value) === null) continue;
+      const set = ['advisory', 'warning', 'critical'].map((k) => levels[k]).filter((l) => LL.num(l) !== null && l > 0);
       if (!set.length) continue;
       const next = set.filter((l) => l > value).reduce((m, l) => Math.min(m, l), Infinity);
-      const f = value / (isFinite(next) ? next : Math.max(...set));
-      if (best.fraction === null || f > best.fraction) best = { fraction: f, label, value, key };
+      const fr = Math.max(0, value) / (isFinite(next) ? next : Math.max(...set));
+      if (best.fraction === null || fr > best.fraction) best = { fraction: fr, label, value, key, text: show(value) };
     }
     return best;
   }
@@ -184,8 +198,8 @@
           '<td class="alarm col-alarm">' + alarmCell + '</td>' +
           '<td class="name col-component"><a href="' + href + '">' + esc(c.component) + '</a><span class="sub">' + esc(c.unit) + ' · ' + esc(LL.kindLabel(c.kind)) + ' · ' + esc(c.material) + '</span></td>' +
           '<td class="num worst col-worst">' + (worst.fraction === null ? '<span class="muted">—</span>' :
-            '<span class="big">' + LL.capped(worst.value, c.display_ceiling) + '</span><span class="sub">' + esc(worst.label) + '</span>' +
-            meter(worst.value, levelsOf(c, worst.key), lr[worst.key])) + '</td>' +
+            '<span class="big">' + esc(worst.text) + '</span><span class="sub">' + esc(worst.label) + '</span>' +
+            (['life_fraction', 'wear_index'].includes(worst.key) ? meter(worst.value, levelsOf(c, worst.key), lr[worst.key]) : '')) + '</td>' +
           '<td class="num lf col-detail' + (creep ? '' : ' na') + '" data-value="' + esc(c.creep_life_fraction) + '"><span class="big">' + (creep ? LL.capped(c.creep_life_fraction, c.display_ceiling) : '—') + '</span>' + (c.exhausted ? '<span class="sub exhausted">exhausted</span>' : '') +
             (creep ? meter(c.creep_life_fraction, levelsOf(c, 'life_fraction'), lr.life_fraction) : '') + '</td>' +
           '<td class="num col-detail' + (strain || creep ? '' : ' na') + '" data-value="' + esc(c.creep_strain) + '"><span class="big">' + (strain || creep ? LL.capped(c.creep_strain * 100, 100) : '—') + '</span>' + (strain || creep ? '<span class="sub">%</span>' : '') +
