@@ -128,6 +128,13 @@ pub struct ComponentReport {
     /// without one.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub fatigue: Option<fatigue::FatigueReport>,
+    /// Attention score (`alarm::attention`: larger needs attention first),
+    /// set by the service for its snapshot and API; absent elsewhere.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub attention_score: Option<f64>,
+    /// Place in the attention ranking, 1 first (service snapshot and API).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub rank: Option<usize>,
 }
 
 fn classes(edges: &[f64], hours: &[f64], conv: impl Fn(f64) -> f64) -> Vec<ClassHours> {
@@ -335,6 +342,8 @@ impl ComponentReport {
             thresholds: plan.thresholds.clone(),
             design_temperature_c: plan.design_temperature_k.map(kelvin_to_celsius),
             fatigue,
+            attention_score: None,
+            rank: None,
         }
     }
 }

@@ -130,24 +130,27 @@ fn screenshot(port: u16, path: &str, file: &str, size: &str) -> PathBuf {
     png
 }
 
-/// The page's number format for life fraction and wear index (app.js `frac`).
+/// The page's number format for life fraction and wear index (format.js
+/// `frac`): three decimals from 0.01 up, four down to 0.001, then "< 0.001".
 fn frac(v: f64) -> String {
     if v == 0.0 {
         "0".into()
     } else if v.abs() >= 0.01 {
         format!("{v:.3}")
+    } else if v.abs() >= 0.001 {
+        format!("{v:.4}")
     } else {
-        format!("{v:.2e}")
+        "&lt; 0.001".into()
     }
 }
 
-/// Whole numbers as the page groups them (thin-space thousands).
+/// Whole numbers as the page groups them (narrow no-break space between thousands).
 fn group(n: u64) -> String {
     let s = n.to_string();
     let mut out = String::new();
     for (i, ch) in s.chars().enumerate() {
         if i > 0 && (s.len() - i) % 3 == 0 {
-            out.push('\u{2009}');
+            out.push('\u{202f}');
         }
         out.push(ch);
     }
@@ -159,33 +162,13 @@ fn text_node(s: &str) -> String {
     s.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('\u{a0}', "&nbsp;")
 }
 
-fn sev_rank(v: &serde_json::Value) -> u8 {
-    match v.as_str() {
-        Some("critical") => 3,
-        Some("warning") => 2,
-        Some("advisory") => 1,
-        _ => 0,
-    }
-}
-
-/// The overview's order: worst alarm severity first, then the larger of
-/// life fraction and wear index.
+/// The overview's order: the API's, which lists the components in the
+/// attention ranking with their `rank` (tests/page_overview.rs checks it).
 fn worst_first(snap: &serde_json::Value) -> Vec<String> {
-    let alarms = snap["alarms"].as_array().unwrap();
-    let mut v: Vec<(u8, f64, String)> = snap["components"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|c| {
-            let name = c["component"].as_str().unwrap().to_string();
-            let sev =
-                alarms.iter().find(|a| a["component"] == name.as_str()).map_or(0, |a| sev_rank(&a["worst_severity"]));
-            let worst = c["creep_life_fraction"].as_f64().unwrap().max(c["wear_index"].as_f64().unwrap());
-            (sev, worst, name)
-        })
-        .collect();
-    v.sort_by(|a, b| b.0.cmp(&a.0).then(b.1.total_cmp(&a.1)).then(a.2.cmp(&b.2)));
-    v.into_iter().map(|x| x.2).collect()
+    let comps = snap["components"].as_array().unwrap();
+    let ranks: Vec<u64> = comps.iter().map(|c| c["rank"].as_u64().expect("rank in /api/components")).collect();
+    assert_eq!(ranks, (1..=comps.len() as u64).collect::<Vec<_>>(), "ranks 1..n in order");
+    comps.iter().map(|c| c["component"].as_str().unwrap().to_string()).collect()
 }
 
 struct Fixture {

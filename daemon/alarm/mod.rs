@@ -22,6 +22,7 @@
 //! Levels are defaults or configuration, not limits: every event and
 //! summary carries [`crate::CAUTION`].
 
+pub mod attention;
 pub mod book;
 pub mod command;
 pub mod deadband;

@@ -88,7 +88,8 @@ async fn metrics(State(s): State<HttpState>) -> Response {
 
 async fn components(State(s): State<HttpState>) -> Json<Snapshot> {
     let snap = s.snapshot.borrow().clone();
-    Json((*snap).clone())
+    // Components in the attention ranking's order, each with its rank.
+    Json(super::attention::ranked(&snap))
 }
 
 /// Reads the rows of component `name` from the ledger file with `read`,

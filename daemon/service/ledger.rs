@@ -967,7 +967,20 @@ impl Ledger {
             if t < self.next_series_ms[ci] || !crate::report::conditions_known(plan, st) {
                 continue;
             }
-            if let Some(l) = component_point(plant, plan, st, t).to_line() {
+            let mut point = component_point(plant, plan, st, t);
+            // The attention score of the latest published snapshot (at most
+            // one snapshot period old): the ranking needs every part's alarms.
+            let score = self
+                .snapshot_tx
+                .borrow()
+                .components
+                .get(ci)
+                .filter(|c| c.component == plan.name)
+                .and_then(|c| c.attention_score);
+            if let Some(a) = score {
+                point = point.float("attention_score", a);
+            }
+            if let Some(l) = point.to_line() {
                 self.extra_outbox.push(l);
                 self.series_pending += 1;
             }
@@ -1429,7 +1442,7 @@ impl Ledger {
         let service: BTreeSet<String> =
             self.book.records().map(|r| r.component.clone()).filter(|c| c.starts_with("lifeledger")).collect();
         alarms.extend(service.iter().map(|c| self.book.current(c)));
-        let snap = Snapshot {
+        let mut snap = Snapshot {
             plant: self.cfg.plan.plant.clone(),
             started: self.started.clone(),
             mqtt_connected: self.mqtt_connected,
@@ -1471,6 +1484,7 @@ impl Ledger {
             },
             caution: crate::CAUTION,
         };
+        super::attention::annotate(&mut snap);
         let _ = self.snapshot_tx.send(Arc::new(snap));
     }
 }
@@ -1483,6 +1497,10 @@ mod wear_inputs;
 #[cfg(test)]
 #[path = "ledger_alarm_tests.rs"]
 mod alarm_tests;
+
+#[cfg(test)]
+#[path = "ledger_attention_tests.rs"]
+mod attention_tests;
 
 #[cfg(test)]
 mod tests {

@@ -19,6 +19,7 @@
 
 /// The alarm-system figures (pure; kept in the alarm core).
 pub use crate::alarm::kpi as alarm_kpi;
+pub mod attention;
 pub mod command_reply;
 pub mod commit_retry;
 pub mod http;

@@ -5,7 +5,6 @@
 
 const LL = (() => {
   const POLL_MS = 2000;
-  const HOURS_PER_YEAR = 8766; // 365.25 d
   const SEV_RANK = { critical: 3, warning: 2, advisory: 1 };
   const DEFAULT_LEVELS = {
     life_fraction: { advisory: 0.3, warning: 0.5, critical: 0.7 },
@@ -58,76 +57,14 @@ const LL = (() => {
   const $ = (id) => document.getElementById(id);
   const num = (v) => (typeof v === 'number' && isFinite(v) ? v : null);
 
-  // Life fraction, wear index and similar small dimensionless numbers:
-  // three decimals from 0.01 up, three significant digits below.
-  function frac(v) {
-    v = num(v);
-    if (v === null) return '—';
-    if (v === 0) return '0';
-    return Math.abs(v) >= 0.01 ? v.toFixed(3) : v.toExponential(2);
-  }
-  // A life fraction or wear index as reports cap it: at the ceiling it is
-  // "≥ ceiling" (the ledger's sum is beyond it; the part is exhausted).
-  function capped(v, ceiling) {
-    v = num(v);
-    if (v === null) return '—';
-    return num(ceiling) !== null && v >= ceiling ? '≥ ' + ceiling : frac(v);
-  }
-  // A general number with about `sig` significant digits.
-  function sig(v, sigd) {
-    v = num(v);
-    if (v === null) return '—';
-    if (v === 0) return '0';
-    const a = Math.abs(v);
-    if (a >= 1e7 || a < 1e-3) return v.toExponential(Math.max(0, (sigd || 3) - 1));
-    const d = Math.max(0, (sigd || 3) - 1 - Math.floor(Math.log10(a)));
-    return v.toFixed(Math.min(d, 6));
-  }
-  function fixed(v, d) {
-    v = num(v);
-    return v === null ? '—' : v.toFixed(d);
-  }
-  // Whole numbers with thin-space thousands groups.
-  function group(v) {
-    v = num(v);
-    if (v === null) return '—';
-    const s = Math.round(Math.abs(v)).toString().replace(/\B(?=(\d{3})+(?!\d))/g, '\u2009');
-    return (v < 0 ? '−' : '') + s;
-  }
-  function hours(v) {
-    v = num(v);
-    if (v === null) return '—';
-    if (Math.abs(v) >= 1e7) return v.toExponential(2);
-    return Math.abs(v) < 10 ? v.toFixed(1) : group(v);
-  }
-  function years(h) {
-    h = num(h);
-    if (h === null) return '—';
-    const y = h / HOURS_PER_YEAR;
-    if (y >= 1000) return '> 1000';
-    if (y >= 100) return group(y);
-    return y.toFixed(1);
-  }
-  function pad2(n) { return (n < 10 ? '0' : '') + n; }
-  // Event times are shown in UTC, like the API.
-  function timeUtc(ms, withDate) {
-    if (num(ms) === null) return '—';
-    const d = new Date(ms);
-    const hm = pad2(d.getUTCHours()) + ':' + pad2(d.getUTCMinutes());
-    if (withDate === false) return hm;
-    return d.getUTCFullYear() + '-' + pad2(d.getUTCMonth() + 1) + '-' + pad2(d.getUTCDate()) + ' ' + hm;
-  }
-  function isoUtc(s) {
-    if (!s) return '—';
-    const t = Date.parse(s);
-    return isNaN(t) ? String(s) : timeUtc(t) + ' UTC';
-  }
-  // Event time without the year, for narrow columns.
-  function shortUtc(ms) {
-    if (num(ms) === null) return '—';
-    const d = new Date(ms);
-    return pad2(d.getUTCMonth() + 1) + '-' + pad2(d.getUTCDate()) + ' ' + timeUtc(ms, false);
-  }
+  // Numbers, times and units: format.js (LLFormat), served in front of
+  // this file. The names stay, so every page keeps working; times follow
+  // the time base chosen in the top bar (UTC unless changed).
+  const F = LLFormat;
+  const { frac, capped, sig, fixed, group, hours, years, pad2 } = F;
+  const timeUtc = F.time;
+  const isoUtc = F.iso;
+  const shortUtc = F.short;
   function kindLabel(k) { return String(k || '').replace(/_/g, ' '); }
   function sevRank(s) { return SEV_RANK[s] || 0; }
   function sevBadge(sev, extra) {
@@ -147,7 +84,7 @@ const LL = (() => {
     if (v === null) return '—';
     switch (index) {
       case 'creep_strain': return frac(v * 100) + ' %';
-      case 'metal_temperature_over_design': return sig(v, 3) + ' K';
+      case 'metal_temperature_over_design': return sig(F.temperatureDelta(v), 3) + ' ' + F.units.temperatureDelta();
       case 'damage_rate': return sig(v, 3) + ' /h';
       case 'hours_to_critical': return hours(v) + ' h';
       default: return frac(v);
@@ -407,13 +344,7 @@ const LL = (() => {
     for (let v = Math.ceil(lo / step - 1e-9) * step; v <= hi + step * 1e-9; v += step) out.push(Math.abs(v) < step * 1e-9 ? 0 : v);
     return { step, list: out };
   }
-  function tickLabel(v, step) {
-    if (v === 0) return '0';
-    const a = Math.max(Math.abs(v), step);
-    if (a >= 1e6 || step < 1e-4) return v.toExponential(Math.max(0, Math.ceil(-Math.log10(step / Math.pow(10, Math.floor(Math.log10(Math.abs(v)))) - 1e-9))));
-    const d = Math.max(0, Math.ceil(-Math.log10(step) - 1e-9));
-    return v.toFixed(Math.min(d, 6));
-  }
+  const tickLabel = F.tick;
   const TIME_STEPS = [60e3, 300e3, 900e3, 1800e3, 3600e3, 3 * 3600e3, 6 * 3600e3, 12 * 3600e3, 86400e3, 2 * 86400e3, 7 * 86400e3, 14 * 86400e3, 30 * 86400e3];
   function timeTicks(t0, t1, n) {
     const span = Math.max(1, t1 - t0);
@@ -423,19 +354,22 @@ const LL = (() => {
     for (let t = Math.ceil(t0 / step) * step; t <= t1; t += step) out.push(t);
     return { step, list: out };
   }
-  function timeTickLabel(t, step, first) {
-    const d = new Date(t);
-    if (step >= 86400e3) return pad2(d.getUTCMonth() + 1) + '-' + pad2(d.getUTCDate());
-    const hm = timeUtc(t, false);
-    if (first || (d.getUTCHours() === 0 && d.getUTCMinutes() === 0)) return pad2(d.getUTCMonth() + 1) + '-' + pad2(d.getUTCDate()) + ' ' + hm;
-    return hm;
-  }
+  const timeTickLabel = F.timeTick;
 
   const charts = new Map();
 
   // A line chart. opts: {id, points: [[t, v]...] sorted by t, t0, t1,
   // unit, fmt, levels: [{value, label, cls, dashed}], width, height, floor0}
   function lineChart(opts) {
+    // Temperatures and pressures (stresses) in the unit chosen for display.
+    const conv = F.converterFor(opts.unit, /stress/.test(opts.id || '') ? 'stress' : 'pressure');
+    if (conv) {
+      opts = Object.assign({}, opts, {
+        unit: conv.unit,
+        points: opts.points.map((p) => [p[0], conv.f(p[1])]),
+        levels: (opts.levels || []).map((l) => Object.assign({}, l, { value: conv.f(l.value) })),
+      });
+    }
     const W = Math.max(320, Math.round(opts.width || 800));
     const H = opts.height || 220;
     const m = { l: 76, r: 124, t: 16, b: 30 };
@@ -587,6 +521,13 @@ const LL = (() => {
   // unit, width, height, hot: v => bool (bars to mark)}
   function histogram(opts) {
     let cls = opts.classes || [];
+    // Class edges in the unit chosen for display; `hot` sees the original.
+    const conv = F.converterFor(opts.unit, 'pressure');
+    if (conv) {
+      cls = cls.map((c) => ({ from: conv.f(c.from), to: conv.f(c.to), hours: c.hours, orig: c }));
+      const hot = opts.hot;
+      opts = Object.assign({}, opts, { unit: conv.unit, hot: hot && ((c) => hot(c.orig || c)) });
+    }
     let a = cls.findIndex((c) => c.hours > 0);
     let b = cls.length - 1 - [...cls].reverse().findIndex((c) => c.hours > 0);
     const W = Math.max(320, Math.round(opts.width || 600));
@@ -650,5 +591,6 @@ const LL = (() => {
     token, canCommand, command, notice, set onOperatorChange(f) { onOperatorChange = f; },
     operatorName, get maxShelveH() { return maxShelveH; },
     lineChart, attachHover, histogram, eventItem, STATE_LABEL, CONDITION_INDEX,
+    F, remaining: F.remaining, timeBase: F.timeBase, onDisplayChange: F.onPrefs,
   };
 })();

@@ -91,17 +91,20 @@
     const basis = pr.settling
       ? '; settling: larger of recent and design rate until ' + LL.hours(pr.settling_h) + ' operating h (' + LL.hours(pr.window_h) + ' so far)'
       : ' at the recent rate';
-    t += tile('Remaining life', LL.num(rem) === null ? 'not moving' : LL.hours(rem), LL.num(rem) === null ? '' : ' h',
-      (LL.num(rem) === null ? 'no damage accumulating' : LL.years(rem) + ' years') + basis, pr.settling ? 'data' : '');
+    const rl = LL.remaining(rem, c.exhausted);
+    t += tile('Remaining life', rl.text, rl.unit ? ' ' + rl.unit : '',
+      (LL.num(rem) === null ? 'no damage accumulating' : rl.sub) + basis, pr.settling ? 'data' : '');
     if (creep) {
       // Amber only while the metal is above design now; hours above design
       // in the past are history (their own card), not a colour.
+      // Temperatures and pressures in the units chosen in the top bar.
+      const U = LL.F;
       const now = LL.num(c.metal_temperature_c), design = LL.num(c.design_temperature_c);
       const hot = now !== null && design !== null && now > design;
-      t += tile('Metal temperature', LL.fixed(c.metal_temperature_c, 1), ' °C', design === null ? '' : (hot ? 'above ' : 'design ') + LL.fixed(design, 0) + ' °C', hot ? 'warning' : '');
-      t += tile('Peak metal temperature', LL.fixed(c.peak_metal_temperature_c, 1), ' °C', 'highest integrated');
-      t += tile('Pressure', LL.sig(c.pressure_mpa, 4), ' MPa', 'gauge');
-      t += tile('Hoop stress', LL.sig(c.hoop_stress_mpa, 4), ' MPa', '');
+      t += tile('Metal temperature', LL.fixed(U.temperature(c.metal_temperature_c), 1), ' ' + U.units.temperature(), design === null ? '' : (hot ? 'above ' : 'design ') + U.showTemperature(design, 0), hot ? 'warning' : '');
+      t += tile('Peak metal temperature', LL.fixed(U.temperature(c.peak_metal_temperature_c), 1), ' ' + U.units.temperature(), 'highest integrated');
+      t += tile('Pressure', LL.sig(U.pressure(c.pressure_mpa), 4), ' ' + U.units.pressure(), 'gauge');
+      t += tile('Hoop stress', LL.sig(U.stress(c.hoop_stress_mpa), 4), ' ' + U.units.stress(), '');
       t += tile('Damage rate', LL.sig(c.damage_rate_per_h, 3), ' /h', 'recent, life fraction per hour');
       t += tile('In creep range', LL.hours(c.hours_in_creep_range), ' h', 'hours the metal was in the creep range');
       t += tile('Integrated', LL.hours(c.integrated_h), ' h', 'hours in the ledger');
@@ -206,7 +209,7 @@
         LL.lineChart({ id: 'trend-' + d.key, label: d.title + ' trend', points: series, t0, t1, unit: d.unit, fmt: d.fmt, levels: d.levels, floor0: d.floor0, allLevels: all, width, height: 210, cls: d.cls }) +
         '</figure>';
     }
-    html += '<p class="muted small span-all">' + n + ' of ' + pts.length + ' points shown, ' + LL.timeUtc(t0) + ' to ' + LL.timeUtc(t1) + ' UTC</p>';
+    html += '<p class="muted small span-all">' + n + ' of ' + pts.length + ' points shown, ' + LL.timeUtc(t0) + ' to ' + LL.timeUtc(t1) + ' ' + LL.esc(LL.timeBase()) + '</p>';
     box.innerHTML = html;
     for (const d of defs) LL.attachHover('trend-' + d.key);
     const own = comp.thresholds && comp.thresholds.life_fraction;
@@ -223,7 +226,7 @@
     $('hist-temperature-box').innerHTML = LL.histogram({
       id: 'hist-temperature', label: 'Hours at metal temperature', classes: (c.histograms || {}).temperature_c, unit: '°C', width: w, height: 250,
       hot: design === null ? null : (k) => LL.num(k.from) !== null && k.from >= design,
-    }) + (design === null ? '' : '<p class="muted small"><span class="key hot"></span> classes at or above the design temperature ' + LL.fixed(design, 0) + ' °C</p>');
+    }) + (design === null ? '' : '<p class="muted small"><span class="key hot"></span> classes at or above the design temperature ' + LL.F.showTemperature(design, 0) + '</p>');
     $('hist-pressure-box').innerHTML = LL.histogram({
       id: 'hist-pressure', label: 'Hours at pressure', classes: (c.histograms || {}).pressure_mpa, unit: 'MPa', width: Math.max(320, $('hist-pressure-box').clientWidth - 2), height: 250,
     });
@@ -242,8 +245,8 @@
     }
     const label = (edges, i, fmt) => i === 0 ? '< ' + fmt(edges[0])
       : i === edges.length ? '≥ ' + fmt(edges[edges.length - 1]) : fmt(edges[i - 1]) + ' – ' + fmt(edges[i]);
-    const tc = (v) => LL.fixed(v, Number.isInteger(v) ? 0 : 1);
-    const pc = (v) => LL.sig(v, 3);
+    const tc = (v) => { const x = LL.F.temperature(v); return LL.fixed(x, Number.isInteger(x) ? 0 : 1); };
+    const pc = (v) => LL.sig(LL.F.pressure(v), 3);
     const rows = t.hours.map((r, i) => ({ i, r })).filter((x) => x.r.some((h) => h > 0));
     if (!rows.length) {
       box.innerHTML = '<p class="muted">No hours booked yet.</p>';
@@ -251,7 +254,7 @@
     }
     const cols = t.pressure_edges_mpa.length + 1;
     const colSum = new Array(cols).fill(0);
-    let h = '<table class="classes" id="class-table"><thead><tr><th>°C / MPa</th>';
+    let h = '<table class="classes" id="class-table"><thead><tr><th>' + esc(LL.F.units.temperature() + ' / ' + LL.F.units.pressure()) + '</th>';
     for (let j = 0; j < cols; j++) h += '<th class="num">' + esc(label(t.pressure_edges_mpa, j, pc)) + '</th>';
     h += '<th class="num">all</th></tr></thead><tbody>';
     for (const { i, r } of rows) {
@@ -496,6 +499,8 @@
     renderAlarms();
   });
   LL.onOperatorChange = () => { if (comp) renderAlarms(); };
+  // Time base and units chosen in the top bar: redraw at once.
+  LL.onDisplayChange(() => { if (comp) renderAll(); });
 
   // Printing: charts redrawn for the paper, and back after.
   const onPrint = (on) => {

@@ -23,9 +23,13 @@ use axum::Router;
 const FRAME_HTML: &str = include_str!("frame.html");
 const INDEX_HTML: &str = include_str!("index.html");
 const COMPONENT_HTML: &str = include_str!("component.html");
-const APP_CSS: &str = include_str!("app.css");
+/// The shared stylesheet, followed by the overview's and the display
+/// choices' rules (`overview.css`).
+const APP_CSS: &str = concat!(include_str!("app.css"), "\n", include_str!("overview.css"));
 const PRINT_CSS: &str = include_str!("print.css");
-const APP_JS: &str = include_str!("app.js");
+/// The shared helpers, preceded by the number, time and unit formats they
+/// hand out (`format.js`): one script for every page.
+const APP_JS: &str = concat!(include_str!("format.js"), "\n", include_str!("app.js"));
 const OVERVIEW_JS: &str = include_str!("overview.js");
 const COMPONENT_JS: &str = include_str!("component.js");
 const FATIGUE_JS: &str = include_str!("fatigue.js");
