@@ -39,6 +39,7 @@ pub mod physics;
 pub mod recovery;
 pub mod replay;
 pub mod report;
+pub mod series_model;
 pub mod service;
 pub mod settings;
 pub mod sink;

@@ -364,7 +364,7 @@ pub fn conditions_known(plan: &ComponentPlan, st: &ComponentState) -> bool {
 /// are left out otherwise.
 pub fn component_point(plant: &str, plan: &ComponentPlan, st: &ComponentState, time_ms: i64) -> Point {
     let r = ComponentReport::new(plan, st);
-    let mut p = Point::new("component_state", time_ms * 1_000_000)
+    let mut p = Point::new(crate::series_model::COMPONENT_STATE.name, time_ms * 1_000_000)
         .tag("plant", plant)
         .tag("unit", &plan.unit)
         .tag("component", &plan.name)
@@ -432,7 +432,7 @@ pub fn threshold_points(plant: &str, plan: &ComponentPlan, time_ms: i64) -> Vec<
     for (index, l) in indexed_levels(plan) {
         for (sev, v) in l.iter() {
             out.push(
-                Point::new("alarm_threshold", time_ms * 1_000_000)
+                Point::new(crate::series_model::ALARM_THRESHOLD.name, time_ms * 1_000_000)
                     .tag("plant", plant)
                     .tag("unit", &plan.unit)
                     .tag("component", &plan.name)

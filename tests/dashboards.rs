@@ -24,6 +24,7 @@ use lifeledger::alarm::{AlarmEvent, AlarmIndex, AlarmState, Severity, Transition
 use lifeledger::engine::Rejection;
 use lifeledger::ingest::decode::DecodeError;
 use lifeledger::lineproto::Point;
+use lifeledger::series_model::{self, MEASUREMENTS};
 use lifeledger::settings::Overrides;
 use serde_json::Value;
 use std::collections::{BTreeMap, BTreeSet};
@@ -38,14 +39,11 @@ const DEMO_UNIT: &str = "U2";
 const DEMO_COMPONENTS: [&str; 3] = ["U2-SH3-OUTLET-LEG-A", "U2-SH1-SUPPORT-R07", "U2-SH2-OUTLET-HEADER"];
 /// Lines per InfluxDB v2 write request.
 const CHUNK_LINES: usize = 5000;
-/// `component_state` fields the dashboards already use that the ranking
-/// work of issue 14 adds on another branch (`attention_score`: higher
-/// needs attention first). Until it is merged, a query of them may answer
-/// empty and their names are not in the schema; nothing else is excused.
-const AWAITED_FIELDS: [&str; 1] = ["attention_score"];
-
-fn awaited_metric(name: &str) -> bool {
-    AWAITED_FIELDS.iter().any(|f| name == format!("component_state_{f}"))
+/// A series only the live service writes (`series_model`'s `live_only`,
+/// such as `component_state_attention_score`): a query of it may answer
+/// empty on replayed demo data; nothing else is excused.
+fn live_only_metric(name: &str) -> bool {
+    MEASUREMENTS.iter().any(|m| m.live_only.iter().any(|f| name == format!("{}_{f}", m.name)))
 }
 
 fn repo() -> PathBuf {
@@ -61,77 +59,21 @@ struct Measurement {
     fields: Vec<String>,
 }
 
-/// The database schema the dashboards may use, by name, from
-/// `daemon/report.rs` (`component_point`, `threshold_points`),
-/// `daemon/alarm/event.rs` (`AlarmEvent::to_point`) and
-/// `daemon/service/ledger.rs` (`health_point`). The first three are checked
-/// against real points in `schema_matches_the_points_the_product_writes`.
+/// The database schema the dashboards may use: the product's data model
+/// (`lifeledger::series_model`), with the `rejected_<reason>` family of
+/// `service_health` spelt out. The point builders are checked against it
+/// with real points in `schema_matches_the_points_the_product_writes`.
 fn schema() -> Vec<Measurement> {
-    let strs = |v: &[&str]| v.iter().map(|s| s.to_string()).collect::<Vec<_>>();
-    let mut health = strs(&[
-        "samples_accepted",
-        "duplicates",
-        "outbox_lines",
-        "outbox_bytes",
-        "commit_latency_ms",
-        "mqtt_connected",
-    ]);
-    health.extend(health_rejection_fields());
-    vec![
-        Measurement {
-            name: "component_state",
-            tags: &["plant", "unit", "component", "material"],
-            fields: strs(&[
-                "metal_temperature_k",
-                "pressure_mpa",
-                "hoop_stress_mpa",
-                "creep_life_fraction",
-                "damage_rate_per_h",
-                "creep_rate_per_h",
-                "creep_strain",
-                "hours_in_creep_range",
-                "wear_depth_mm",
-                "wear_index",
-                "remaining_life_h",
-                "unmonitored_h",
-                "exhausted",
-                "fatigue_stress_mpa",
-                "fatigue_thermal_stress_mpa",
-                "fatigue_usage",
-                "creep_fatigue_index",
-                "fatigue_cycles",
-                "fatigue_cycles_last_day",
-                "fatigue_cycles_last_month",
-                // Where the part stands against its own levels (0 to 3).
-                "creep_life_fraction_level",
-                "creep_strain_level",
-                "wear_index_level",
-                "fatigue_usage_level",
-                "creep_fatigue_index_level",
-            ]),
-        },
-        Measurement {
-            name: "alarm_threshold",
-            tags: &["plant", "unit", "component", "material", "index", "severity"],
-            fields: strs(&["value"]),
-        },
-        Measurement {
-            name: "alarm_event",
-            tags: &["plant", "unit", "component", "index", "severity", "state", "class", "priority"],
-            // (`affects` too, on sensor alarms only.)
-            fields: strs(&[
-                "value",
-                "threshold",
-                "message",
-                "transition",
-                "seq",
-                "consequence",
-                "corrective_action",
-                "time_to_respond_min",
-            ]),
-        },
-        Measurement { name: "service_health", tags: &["plant"], fields: health },
-    ]
+    MEASUREMENTS
+        .iter()
+        .map(|m| {
+            let mut fields: Vec<String> = m.fields.iter().chain(m.live_only).map(|s| s.to_string()).collect();
+            if m.name == "service_health" {
+                fields.extend(health_rejection_fields());
+            }
+            Measurement { name: m.name, tags: m.tags, fields }
+        })
+        .collect()
 }
 
 /// `rejected_*` fields of `service_health`: one per engine rejection reason
@@ -502,11 +444,20 @@ fn schema_matches_the_points_the_product_writes() {
         let m = by_name[name];
         let (tags, fields) = seen.get(name).unwrap_or_else(|| panic!("no {name} points"));
         let want_tags: BTreeSet<String> = m.tags.iter().map(|s| s.to_string()).collect();
+        // Every field written is in the model; every field of the model is
+        // written here, except those only the live service writes and
+        // `affects` (sensor alarms only, none in these points).
+        let model = series_model::measurement(name).unwrap();
         let want_fields: BTreeSet<String> = m.fields.iter().cloned().collect();
-        assert_eq!(tags, &want_tags, "tags of {name}: update the schema in tests/dashboards.rs and the dashboards");
-        assert_eq!(
-            fields, &want_fields,
-            "fields of {name}: update the schema in tests/dashboards.rs and the dashboards"
+        let must: BTreeSet<String> = want_fields
+            .iter()
+            .filter(|f| !model.live_only.contains(&f.as_str()) && f.as_str() != "affects")
+            .cloned()
+            .collect();
+        assert_eq!(tags, &want_tags, "tags of {name}: update daemon/series_model.rs and the dashboards");
+        assert!(
+            fields.is_subset(&want_fields) && must.is_subset(fields),
+            "fields of {name}: written {fields:?}, model {want_fields:?}: update daemon/series_model.rs and the dashboards"
         );
     }
     assert!(seen.contains_key("service_health"));
@@ -554,7 +505,7 @@ fn prometheus_dashboard_metrics_are_in_the_schema() {
         for (panel, expr) in exprs {
             for m in promql_metrics(&expr) {
                 assert!(
-                    names.contains(&m) || awaited_metric(&m),
+                    names.contains(&m) || live_only_metric(&m),
                     "{file}: panel {panel:?} uses {m}, which lifeledger does not write"
                 );
             }
@@ -700,7 +651,7 @@ fn check_prometheus_dashboards(vm: &VictoriaMetrics, start: i64, end: i64) {
                 n > 0
             });
             assert!(
-                found || promql_metrics(expr).iter().any(|m| awaited_metric(m)),
+                found || promql_metrics(expr).iter().any(|m| live_only_metric(m)),
                 "{file}: panel {panel:?} query {ref_id} returns no series on the demo data:\n  {}",
                 answers.join("\n  ")
             );
@@ -881,11 +832,7 @@ fn influxdb_dashboards_use_only_names_the_product_writes() {
             let fields: BTreeSet<&str> = used.iter().flat_map(|m| m.fields.iter().map(String::as_str)).collect();
             let tags: BTreeSet<&str> = used.iter().flat_map(|m| m.tags.iter().copied()).collect();
             for f in &names.fields {
-                assert!(
-                    fields.contains(f.as_str()) || AWAITED_FIELDS.contains(&f.as_str()),
-                    "{file}: {what}: unknown field {f:?} of {:?}",
-                    names.measurements
-                );
+                assert!(fields.contains(f.as_str()), "{file}: {what}: unknown field {f:?} of {:?}", names.measurements);
             }
             for p in &names.field_prefixes {
                 assert!(fields.iter().any(|f| f.starts_with(p.as_str())), "{file}: {what}: no field starts with {p:?}");
@@ -893,7 +840,7 @@ fn influxdb_dashboards_use_only_names_the_product_writes() {
             for c in &names.columns {
                 // After a pivot, fields are columns too.
                 assert!(
-                    tags.contains(c.as_str()) || fields.contains(c.as_str()) || AWAITED_FIELDS.contains(&c.as_str()),
+                    tags.contains(c.as_str()) || fields.contains(c.as_str()),
                     "{file}: {what}: unknown tag or column {c:?} of {:?}",
                     names.measurements
                 );
@@ -1556,7 +1503,7 @@ fn rate_panels_carry_a_per_second_unit() {
 
 /// The overview's component table lists the parts most needing attention
 /// first: sorted by `attention_score` (higher first), a column the ranking
-/// adds to `component_state` (AWAITED_FIELDS until that work is merged).
+/// adds to `component_state` (live service only: `series_model::COMPONENT_STATE.live_only`).
 #[test]
 fn overview_table_sorts_by_attention_score() {
     for kind in ["prometheus", "influxdb2"] {

@@ -167,7 +167,7 @@ impl AlarmEvent {
     /// time_to_respond_min and, for a sensor alarm, `affects` (component
     /// names, comma-separated).
     pub fn to_point(&self, plant: &str) -> Point {
-        let mut p = Point::new("alarm_event", self.time_ms.saturating_mul(1_000_000))
+        let mut p = Point::new(crate::series_model::ALARM_EVENT.name, self.time_ms.saturating_mul(1_000_000))
             .tag("plant", plant)
             .tag("unit", &self.unit)
             .tag("component", &self.component)

@@ -88,7 +88,7 @@ pub fn collect(cfg: &LoadedConfig, ledger: &Path, scope: &Scope, from_ms: i64, t
 /// `crate::report::component_point` gives the same figures (a field the
 /// trend holds as not a number is left out).
 pub fn point(plant: &str, plan: &ComponentPlan, p: &TrendPoint) -> Point {
-    let mut point = Point::new("component_state", p.t * 1_000_000)
+    let mut point = Point::new(crate::series_model::COMPONENT_STATE.name, p.t * 1_000_000)
         .tag("plant", plant)
         .tag("unit", &plan.unit)
         .tag("component", &plan.name)
