@@ -54,9 +54,9 @@ pub(super) fn feed_all(l: &mut Ledger, t_ms: i64, skip: &[&str]) {
 /// time) and commit; the events it raised.
 pub(super) fn check(l: &mut Ledger) -> Vec<AlarmEvent> {
     l.last_sensor_check = Instant::now() - Duration::from_secs(1);
-    let before = l.events.len();
+    let before = l.batch.events().len();
     l.sensor_check();
-    let ev: Vec<AlarmEvent> = l.events[before..].to_vec();
+    let ev: Vec<AlarmEvent> = l.batch.events()[before..].to_vec();
     l.commit();
     ev
 }
