@@ -187,19 +187,43 @@ impl MqttSettings {
     /// rumqttc options: persistent session, manual acks, last will (the
     /// offline status naming this instance of `plant`).
     pub fn options(&self, plant: &str) -> Result<MqttOptions, String> {
-        let mut o = MqttOptions::new(&self.client_id, &self.host, self.port);
-        o.set_keep_alive(Duration::from_secs(self.keep_alive_s.max(5)));
+        let mut o = self.connection_options(&self.client_id)?;
         o.set_clean_session(false);
         o.set_manual_acks(true);
-        o.set_request_channel_capacity(4096);
-        o.set_inflight(1000);
-        o.set_max_packet_size(self.max_message_bytes, self.max_message_bytes);
         o.set_last_will(LastWill::new(
             self.status_topic(),
             status::payload("offline", &self.identity(plant)),
             QoS::AtLeastOnce,
             true,
         ));
+        Ok(o)
+    }
+
+    /// The client id of the alarm-event publisher's own connection:
+    /// `client_id` with `-events` appended.
+    pub fn event_client_id(&self) -> String {
+        format!("{}-events", self.client_id)
+    }
+
+    /// rumqttc options of the alarm-event publisher
+    /// (`service::event_publish`): its own connection with the same broker,
+    /// credentials and TLS, a clean session and no last will. Only it
+    /// publishes on that connection, so the broker's PUBACKs can be matched
+    /// to the events it sent.
+    pub fn event_options(&self) -> Result<MqttOptions, String> {
+        let mut o = self.connection_options(&self.event_client_id())?;
+        o.set_clean_session(true);
+        Ok(o)
+    }
+
+    /// Broker, keep-alive, sizes, credentials and TLS, shared by both
+    /// connections.
+    fn connection_options(&self, client_id: &str) -> Result<MqttOptions, String> {
+        let mut o = MqttOptions::new(client_id, &self.host, self.port);
+        o.set_keep_alive(Duration::from_secs(self.keep_alive_s.max(5)));
+        o.set_request_channel_capacity(4096);
+        o.set_inflight(1000);
+        o.set_max_packet_size(self.max_message_bytes, self.max_message_bytes);
         if let Some(user) = &self.username {
             o.set_credentials(user, self.password()?.unwrap_or_default());
         }

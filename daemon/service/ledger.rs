@@ -191,6 +191,10 @@ pub struct Ledger {
     inspections_accepted: Vec<(i64, String)>,
     /// Subscriptions in force and what the last reloads left undone.
     reloads: Reloads,
+    /// Where the newest committed event sequence number goes for the alarm
+    /// event publisher (`service::event_publish`); without one (unit
+    /// tests) event messages are published directly after the commit.
+    event_feed: Option<watch::Sender<u64>>,
 }
 
 /// The ledger's record of SIGHUP reloads (see [`super::reload`]).
@@ -379,6 +383,7 @@ impl Ledger {
             database_refused: false,
             command_replies: vec![],
             inspections_accepted: vec![],
+            event_feed: None,
             service,
         };
         l.offer_stored_inspections()?;
@@ -403,6 +408,14 @@ impl Ledger {
     /// `None` (or empty): MQTT commands are refused, counted `unauthorised`.
     pub fn set_command_token(&mut self, token: Option<String>) {
         self.command_token = token.filter(|t| !t.is_empty());
+    }
+
+    /// Alarm event messages are published by the journal's publisher,
+    /// which `feed` tells the newest committed sequence number; the ledger
+    /// thread then publishes only the retained alarm states.
+    pub fn set_event_feed(&mut self, feed: watch::Sender<u64>) {
+        feed.send_replace(self.next_event_seq.saturating_sub(1));
+        self.event_feed = Some(feed);
     }
 
     /// Where the outbox sender says whether the database took its last
@@ -1216,9 +1229,21 @@ impl Ledger {
 
     fn publish_alarms(&self, events: &[AlarmEvent]) {
         let mut comps = BTreeSet::new();
+        if let Some(feed) = &self.event_feed {
+            // Committed: the publisher sends them from the journal.
+            if !events.is_empty() {
+                feed.send_replace(self.next_event_seq.saturating_sub(1));
+            }
+        }
         for e in events {
-            let _ =
-                self.client.try_publish(self.service.mqtt.alarm_event_topic(), QoS::AtLeastOnce, false, e.to_json());
+            if self.event_feed.is_none() {
+                let _ = self.client.try_publish(
+                    self.service.mqtt.alarm_event_topic(),
+                    QoS::AtLeastOnce,
+                    false,
+                    e.to_json(),
+                );
+            }
             comps.insert(e.component.clone());
             // A tag's sensor alarm shows in the state of every part it feeds.
             comps.extend(e.affects.iter().cloned());

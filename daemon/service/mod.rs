@@ -21,6 +21,7 @@
 pub use crate::alarm::kpi as alarm_kpi;
 pub mod command_reply;
 pub mod commit_retry;
+pub mod event_publish;
 pub mod http;
 pub mod http_inspection;
 pub mod ledger;
@@ -28,6 +29,7 @@ pub mod outbox;
 pub mod page;
 pub mod reload;
 pub mod settings;
+pub mod shutdown;
 pub mod snapshot;
 pub mod systemd;
 
@@ -140,6 +142,18 @@ pub async fn run_until_with(
         ledger.set_database_reachability(reach_rx);
     }
     let filters = ledger.shared_filters();
+    // Alarm event messages go out from the journal, on their own
+    // connection, until the broker acknowledges them (event_publish).
+    let (events_tx, events_rx) = watch::channel(0u64);
+    ledger.set_event_feed(events_tx);
+    let publisher_stop = shutdown::Shutdown::new();
+    let mut publisher_task = tokio::spawn(event_publish::run(
+        svc.mqtt.clone(),
+        svc.store.path.clone(),
+        events_rx,
+        publisher_stop.listener(),
+    ));
+    let mut publisher_done = false;
 
     // HTTP first, so health is visible from the start.
     let listener = tokio::net::TcpListener::bind(&svc.http.listen)
@@ -233,6 +247,11 @@ pub async fn run_until_with(
                     ingest_done = true;
                     break;
                 }
+                r = &mut publisher_task => {
+                    failure = Some(anyhow::anyhow!("the alarm event publisher stopped unexpectedly: {r:?}"));
+                    publisher_done = true;
+                    break;
+                }
                 r = &mut sender_ended => {
                     failure = Some(anyhow::anyhow!("the outbox sender stopped unexpectedly (see the log above): {r:?}"));
                     sender_task = None;
@@ -266,6 +285,14 @@ pub async fn run_until_with(
     let _ = ctl_tx.send(Control::Stop);
     if ledger_done.is_none() {
         let _ = ledger_task.await;
+    }
+    // The ledger's last events are committed: the publisher hands them to
+    // the broker and waits (bounded) for the acknowledgements.
+    if !publisher_stop.stop_and_wait(Duration::from_secs(5)).await {
+        tracing::warn!("the alarm event publisher did not finish within 5 s; the rest go out at the next start");
+    }
+    if !publisher_done {
+        let _ = tokio::time::timeout(Duration::from_secs(1), publisher_task).await;
     }
     let offline = crate::ingest::status::payload("offline", &identity);
     let _ = client.try_publish(svc.mqtt.status_topic(), rumqttc::QoS::AtLeastOnce, true, offline);

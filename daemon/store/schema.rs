@@ -63,6 +63,11 @@ pub const MIGRATIONS: &[Migration] = &[
         summary: "fatigue in the component trends: stress at the fatigue location and fatigue usage",
         apply: v9_trend_fatigue,
     },
+    Migration {
+        summary:
+            "alarm-event publish cursor: events the broker acknowledged, the rest published again from the journal",
+        apply: super::event_cursor::v10_event_publish_cursor,
+    },
 ];
 
 /// The newest schema version this build knows: the number of migrations.
