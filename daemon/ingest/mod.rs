@@ -17,7 +17,7 @@ use rumqttc::{
 use serde::Deserialize;
 use std::path::PathBuf;
 use std::time::Duration;
-use tokio::sync::{broadcast, mpsc};
+use tokio::sync::mpsc;
 
 /// TLS settings of the broker connection.
 #[derive(Debug, Clone, PartialEq, Deserialize)]
@@ -290,7 +290,7 @@ pub async fn run_event_loop(
     mut eventloop: EventLoop,
     filters: std::sync::Arc<std::sync::Mutex<Vec<String>>>,
     to_ledger: mpsc::Sender<Inbound>,
-    mut shutdown: broadcast::Receiver<()>,
+    mut shutdown: crate::service::shutdown::ShutdownListener,
     instance: InstanceWatch,
 ) {
     let status_topic = settings.status_topic();
@@ -309,7 +309,7 @@ pub async fn run_event_loop(
         let ev = if waiting.is_empty() {
             tokio::select! {
                 ev = eventloop.poll() => ev,
-                _ = shutdown.recv() => break,
+                _ = shutdown.stopped() => break,
             }
         } else {
             tokio::select! {
@@ -328,7 +328,7 @@ pub async fn run_event_loop(
                     continue;
                 }
                 ev = eventloop.poll() => ev,
-                _ = shutdown.recv() => break,
+                _ = shutdown.stopped() => break,
             }
         };
         match ev {
@@ -397,7 +397,7 @@ pub async fn run_event_loop(
                     // Validated settings keep `wait` positive and finite; a
                     // second's wait stands in should one ever not be.
                     _ = tokio::time::sleep(Duration::try_from_secs_f64(wait).unwrap_or(Duration::from_secs(1))) => {}
-                    _ = shutdown.recv() => break,
+                    _ = shutdown.stopped() => break,
                 }
             }
         }
