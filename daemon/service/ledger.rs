@@ -110,16 +110,8 @@ pub struct Ledger {
     next_series_ms: Vec<i64>,
     /// Newest event time seen on any tag.
     newest_ms: Option<i64>,
-    /// Per tag: (out of range now, bad quality now).
-    sensor: Vec<(bool, bool)>,
-    /// Per tag: the same faults seen since the last sensor check.
-    sensor_latched: Vec<(bool, bool)>,
-    /// Per tag: the first-out tag of the common-cause group whose one
-    /// stale alarm stands for this tag's silence too (see `sensors`).
-    stale_leader: Vec<Option<usize>>,
-    /// Per tag: (event time, arrival) of the newest sample rejected as a
-    /// sensor fault; a fault that old no longer hides the tag's silence.
-    last_fault: Vec<Option<(i64, i64)>>,
+    /// Per-tag sensor judgement ([`sensors::SensorJudge`]).
+    sensors: sensors::SensorJudge,
     /// Sequence number the next committed alarm event gets (durable, in
     /// the store's meta with the journal).
     next_event_seq: u64,
@@ -157,14 +149,6 @@ pub struct Ledger {
     /// commit, like the outbox lines).
     held_added: Vec<(crate::engine::TagId, crate::engine::HeldSample)>,
     held_released: Vec<u64>,
-    /// Per tag: wall-clock time of the newest accepted sample.
-    last_arrival: Vec<Option<i64>>,
-    /// Wall-clock time of the newest accepted sample of any tag.
-    last_any_arrival: Option<i64>,
-    /// Wall-clock start of this run (never-reporting tags count from it).
-    started_ms: i64,
-    /// No accepted sample from any tag for `[alarms] no_data_alarm_s`.
-    no_plant_data: bool,
     /// Scratch list of components the engine advanced.
     touched: Vec<u32>,
     /// Per component: event time from which threshold lines are due again.
@@ -330,10 +314,7 @@ impl Ledger {
             dirty_alarms: BTreeSet::new(),
             next_series_ms: vec![i64::MIN; ncomp],
             newest_ms,
-            sensor: vec![(false, false); ntags],
-            sensor_latched: vec![(false, false); ntags],
-            stale_leader: vec![None; ntags],
-            last_fault: vec![None; ntags],
+            sensors: sensors::SensorJudge::new(ntags, now_ms()),
             next_event_seq: stored.next_event_seq,
             alarm_clock_ms: i64::MIN,
             mqtt_replies: vec![],
@@ -363,10 +344,6 @@ impl Ledger {
             last_sensor_check: Instant::now() - Duration::from_secs(60),
             held_added: vec![],
             held_released: vec![],
-            last_arrival: vec![None; ntags],
-            last_any_arrival: None,
-            started_ms: now_ms(),
-            no_plant_data: false,
             touched: vec![],
             next_threshold_ms: vec![i64::MIN; ncomp],
             series_pending: 0,
@@ -769,9 +746,9 @@ impl Ledger {
     /// lags.
     fn alarm_now(&mut self) -> i64 {
         let now = now_ms();
-        let t = match (self.newest_ms, self.last_any_arrival) {
+        let t = match (self.newest_ms, self.sensors.last_any_arrival) {
             (Some(n), Some(a)) => n.saturating_add((now - a).max(0)),
-            (Some(n), None) => n.saturating_add((now - self.started_ms).max(0)),
+            (Some(n), None) => n.saturating_add((now - self.sensors.started_ms).max(0)),
             // No data yet: the wall clock, not kept (data may be older).
             (None, _) => return self.alarm_clock_ms.max(now),
         };
@@ -822,35 +799,16 @@ impl Ledger {
         let r = self.engine.offer(&s, received_ms);
         self.collect_series();
         let ti = id as usize;
-        let (oor, badq) = self.sensor[ti];
         match r {
             Ok(()) => {
                 self.newest_ms = Some(self.newest_ms.map_or(d.time_ms, |n| n.max(d.time_ms)));
-                self.last_arrival[ti] = Some(received_ms);
-                self.last_any_arrival = Some(received_ms);
-                if oor || badq {
-                    self.sensor[ti] = (false, false);
-                }
+                self.sensors.accepted(ti, received_ms);
             }
             Err(reason) => {
                 self.log.warn(reason.name(), || {
                     format!("sample of {tag} at {} rejected: {}", rfc3339_ms(d.time_ms), reason.name())
                 });
-                match reason {
-                    // A sample stamped in the future or before the plant
-                    // existed is a sensor (gateway clock) fault.
-                    Rejection::OutOfRange | Rejection::NotFinite | Rejection::ImplausibleTime => {
-                        self.sensor[ti].0 = true;
-                        self.sensor_latched[ti].0 = true;
-                        self.last_fault[ti] = Some((d.time_ms, received_ms));
-                    }
-                    Rejection::BadQuality => {
-                        self.sensor[ti].1 = true;
-                        self.sensor_latched[ti].1 = true;
-                        self.last_fault[ti] = Some((d.time_ms, received_ms));
-                    }
-                    _ => {}
-                }
+                self.sensors.rejected(ti, reason, d.time_ms, received_ms);
             }
         }
     }
@@ -1277,9 +1235,11 @@ impl Ledger {
         let mut state = self.engine.export_state();
         state.components.append(&mut self.retired);
         state.tags.append(&mut self.retired_tags);
-        let arrivals: HashMap<String, Option<i64>> =
-            self.engine.plan().tags.iter().zip(&self.last_arrival).map(|(t, a)| (t.name.clone(), *a)).collect();
-        self.last_arrival = cfg.plan.tags.iter().map(|t| arrivals.get(&t.name).copied().flatten()).collect();
+        {
+            let old: Vec<&str> = self.engine.plan().tags.iter().map(|t| t.name.as_str()).collect();
+            let new: Vec<&str> = cfg.plan.tags.iter().map(|t| t.name.as_str()).collect();
+            self.sensors.reloaded(&old, &new);
+        }
         let mut engine = Engine::new(cfg.plan.clone());
         // The store mirrors the reorder window: record what enters and leaves.
         engine.track_held_changes(true);
@@ -1311,10 +1271,6 @@ impl Ledger {
         self.retry.set_give_up_after(commit_failure_limit(&service));
         self.next_series_ms = vec![i64::MIN; cfg.plan.components.len()];
         self.next_threshold_ms = vec![i64::MIN; cfg.plan.components.len()];
-        self.sensor = vec![(false, false); cfg.plan.tags.len()];
-        self.sensor_latched = vec![(false, false); cfg.plan.tags.len()];
-        self.stale_leader = vec![None; cfg.plan.tags.len()];
-        self.last_fault = vec![None; cfg.plan.tags.len()];
         self.cfg = Arc::new(cfg);
         self.service = service;
         let t = self.newest_ms.unwrap_or_else(now_ms);
@@ -1337,11 +1293,11 @@ impl Ledger {
         let tags = plan
             .tags
             .iter()
-            .zip(&self.last_arrival)
+            .zip(&self.sensors.last_arrival)
             .map(|(t, a)| TagFreshness {
                 tag: t.name.clone(),
                 data_age_s: age(*a),
-                stale: now - a.unwrap_or(self.started_ms) > t.max_hold_ms.saturating_add(grace_ms),
+                stale: now - a.unwrap_or(self.sensors.started_ms) > t.max_hold_ms.saturating_add(grace_ms),
             })
             .collect();
         let components = plan
@@ -1357,7 +1313,7 @@ impl Ledger {
                 } else {
                     inputs
                         .iter()
-                        .map(|&t| age(self.last_arrival[t as usize]))
+                        .map(|&t| age(self.sensors.last_arrival[t as usize]))
                         .try_fold(0.0f64, |m, a| a.map(|a| m.max(a)))
                 };
                 let lag_s = self.engine.components()[ci].integrated_to_ms.map(|t| (now - t) as f64 / 1000.0);
@@ -1412,7 +1368,7 @@ impl Ledger {
             },
             retired_components: self.retired.iter().map(|(n, _)| n.clone()).collect(),
             recent_events: self.recent_events.iter().cloned().collect(),
-            no_plant_data: self.no_plant_data,
+            no_plant_data: self.sensors.no_plant_data,
             freshness: self.freshness(),
             held_samples: self.engine.held_len() as u64,
             restart_required: self.reloads.restart_required.clone(),

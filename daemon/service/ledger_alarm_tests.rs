@@ -170,7 +170,7 @@ fn tags_going_silent_together_are_one_first_out_alarm() {
     }
     let ev = check(&mut l);
     let act: Vec<AlarmEvent> = activated(&ev).into_iter().cloned().collect();
-    assert_eq!(act.len(), 1, "{ev:#?} {:?}", l.stale_leader);
+    assert_eq!(act.len(), 1, "{ev:#?} {:?}", l.sensors.stale_leader);
     assert_eq!(act[0].component, "U2.SH3.TE-321");
     let d = act[0].detail.clone().unwrap_or_default();
     assert!(d.contains("first out of 4 tags silent together"), "{d}");
