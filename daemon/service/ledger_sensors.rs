@@ -330,3 +330,31 @@ fn plant_state_rules(engine: &Engine, alarms: &AlarmConfig) -> Vec<crate::alarm:
         .map(|ps| ps.rule())
         .collect()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Time is an argument: tags that never report are judged silent once
+    /// their hold time plus the grace has passed since the start by the
+    /// `now` given, not before, and all of them together are one
+    /// first-out alarm (common practice: one cause, one alarm).
+    #[test]
+    fn never_reporting_tags_are_one_first_out_alarm_after_their_hold_time() {
+        let cfg = crate::settings::load_plan(std::path::Path::new("config/demo/plant.toml")).unwrap();
+        let engine = Engine::new(cfg.plan.clone());
+        let mut alarms: AlarmConfig = toml::from_str("").unwrap();
+        alarms.no_data_alarm_s = 1e9; // the plant-level alarm out of the way
+        let mut book = AlarmBook::default().with_config(alarms.clone());
+        let start = 1_790_812_800_000i64;
+        let mut judge = SensorJudge::new(cfg.plan.tags.len(), start);
+        let grace_ms = (alarms.stale_grace_s * 1000.0) as i64;
+        let hold = cfg.plan.tags.iter().map(|t| t.max_hold_ms).min().unwrap();
+        let before = judge.judge(&engine, &mut book, &alarms, None, start + hold + grace_ms);
+        assert!(before.is_empty(), "nothing at exactly hold + grace: {before:#?}");
+        let all = cfg.plan.tags.iter().map(|t| t.max_hold_ms).max().unwrap();
+        let ev = judge.judge(&engine, &mut book, &alarms, None, start + all + grace_ms + 1);
+        let stale: Vec<&AlarmEvent> = ev.iter().filter(|e| e.index == AlarmIndex::SensorStale).collect();
+        assert_eq!(stale.len(), 1, "one first-out alarm for the tags silent together: {ev:#?}");
+    }
+}
