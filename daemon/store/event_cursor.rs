@@ -124,4 +124,30 @@ mod tests {
         assert_eq!(store.published_seq().unwrap(), 4, "never backwards");
         assert_eq!(store.journal_events_after(4, 10).unwrap().len(), 1);
     }
+
+    /// A ledger written before the cursor existed starts it at the newest
+    /// event of its journal, so an upgrade does not send the journal's
+    /// history again; events without a number (older builds) are skipped.
+    #[test]
+    fn an_upgraded_ledger_starts_at_its_newest_event() {
+        use crate::store::schema::{migrate, MIGRATIONS};
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("old.db");
+        let mut conn = rusqlite::Connection::open(&path).unwrap();
+        let before = &MIGRATIONS[..MIGRATIONS.len() - 1];
+        migrate(&mut conn, &path, before).unwrap();
+        for (i, event) in ["{\"component\":\"C\"}", "{\"seq\":7}", "{\"seq\":9}"].iter().enumerate() {
+            conn.execute(
+                "INSERT INTO alarm_journal (time_ms, component, alarm_index, event) VALUES (?1, 'C', 'x', ?2)",
+                (i as i64, event),
+            )
+            .unwrap();
+        }
+        migrate(&mut conn, &path, MIGRATIONS).unwrap();
+        drop(conn);
+        let store = Store::open_with(&path, false).unwrap();
+        assert_eq!(store.published_seq().unwrap(), 9);
+        assert!(store.journal_events_after(9, 10).unwrap().is_empty());
+        assert_eq!(store.journal_events_after(0, 10).unwrap().iter().map(|e| e.seq).collect::<Vec<_>>(), [7, 9]);
+    }
 }
