@@ -43,7 +43,8 @@
 //! minutes on 2 cores. Cargo builds the release binary and passes its path
 //! as `CARGO_BIN_EXE_lifeledger` (set for benches as for integration
 //! tests). Needs `/usr/sbin/mosquitto` (tests/run installs it).
-//! Environment: `LIVE_BENCH_N` overrides N; `LIVE_BENCH_PARTS` (default
+//! Environment: `LIVE_BENCH_BIN` runs another `lifeledger` binary (an
+//! older build, for before/after figures); `LIVE_BENCH_N` overrides N; `LIVE_BENCH_PARTS` (default
 //! `123`) selects parts; `LIVE_BENCH_KEEP=1` keeps each part's directory
 //! (config, service log, ledger) and prints its path. Everything listens on
 //! 127.0.0.1 only; every wait is a bounded count of polls that gives up
@@ -73,6 +74,13 @@ type Msg = (String, Vec<u8>);
 
 fn payload(ts: i64, v: f64) -> Vec<u8> {
     format!("{{\"value\": {v:.3}, \"timestamp\": {ts}}}").into_bytes()
+}
+
+/// The `lifeledger` binary under test: `LIVE_BENCH_BIN` if set (to compare
+/// two builds with the same load generator, run alternately), else the one
+/// Cargo built with this benchmark.
+fn service_binary() -> PathBuf {
+    std::env::var_os("LIVE_BENCH_BIN").map_or_else(|| PathBuf::from(env!("CARGO_BIN_EXE_lifeledger")), PathBuf::from)
 }
 
 // ---------------------------------------------------------------- config
@@ -146,7 +154,7 @@ struct Service {
 impl Service {
     fn start(config: &Path, http_port: u16) -> Service {
         let log = config.with_extension("log");
-        let child = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+        let child = Command::new(service_binary())
             .args(["run", "--config", config.to_str().unwrap(), "--init-ledger"])
             .env("RUST_LOG", "info")
             .stdin(Stdio::null())

@@ -17,7 +17,7 @@ use rumqttc::{
 use serde::Deserialize;
 use std::path::PathBuf;
 use std::time::Duration;
-use tokio::sync::{broadcast, mpsc};
+use tokio::sync::mpsc;
 
 /// TLS settings of the broker connection.
 #[derive(Debug, Clone, PartialEq, Deserialize)]
@@ -187,19 +187,43 @@ impl MqttSettings {
     /// rumqttc options: persistent session, manual acks, last will (the
     /// offline status naming this instance of `plant`).
     pub fn options(&self, plant: &str) -> Result<MqttOptions, String> {
-        let mut o = MqttOptions::new(&self.client_id, &self.host, self.port);
-        o.set_keep_alive(Duration::from_secs(self.keep_alive_s.max(5)));
+        let mut o = self.connection_options(&self.client_id)?;
         o.set_clean_session(false);
         o.set_manual_acks(true);
-        o.set_request_channel_capacity(4096);
-        o.set_inflight(1000);
-        o.set_max_packet_size(self.max_message_bytes, self.max_message_bytes);
         o.set_last_will(LastWill::new(
             self.status_topic(),
             status::payload("offline", &self.identity(plant)),
             QoS::AtLeastOnce,
             true,
         ));
+        Ok(o)
+    }
+
+    /// The client id of the alarm-event publisher's own connection:
+    /// `client_id` with `-events` appended.
+    pub fn event_client_id(&self) -> String {
+        format!("{}-events", self.client_id)
+    }
+
+    /// rumqttc options of the alarm-event publisher
+    /// (`service::event_publish`): its own connection with the same broker,
+    /// credentials and TLS, a clean session and no last will. Only it
+    /// publishes on that connection, so the broker's PUBACKs can be matched
+    /// to the events it sent.
+    pub fn event_options(&self) -> Result<MqttOptions, String> {
+        let mut o = self.connection_options(&self.event_client_id())?;
+        o.set_clean_session(true);
+        Ok(o)
+    }
+
+    /// Broker, keep-alive, sizes, credentials and TLS, shared by both
+    /// connections.
+    fn connection_options(&self, client_id: &str) -> Result<MqttOptions, String> {
+        let mut o = MqttOptions::new(client_id, &self.host, self.port);
+        o.set_keep_alive(Duration::from_secs(self.keep_alive_s.max(5)));
+        o.set_request_channel_capacity(4096);
+        o.set_inflight(1000);
+        o.set_max_packet_size(self.max_message_bytes, self.max_message_bytes);
         if let Some(user) = &self.username {
             o.set_credentials(user, self.password()?.unwrap_or_default());
         }
@@ -266,7 +290,7 @@ pub async fn run_event_loop(
     mut eventloop: EventLoop,
     filters: std::sync::Arc<std::sync::Mutex<Vec<String>>>,
     to_ledger: mpsc::Sender<Inbound>,
-    mut shutdown: broadcast::Receiver<()>,
+    mut shutdown: crate::service::shutdown::ShutdownListener,
     instance: InstanceWatch,
 ) {
     let status_topic = settings.status_topic();
@@ -285,7 +309,7 @@ pub async fn run_event_loop(
         let ev = if waiting.is_empty() {
             tokio::select! {
                 ev = eventloop.poll() => ev,
-                _ = shutdown.recv() => break,
+                _ = shutdown.stopped() => break,
             }
         } else {
             tokio::select! {
@@ -304,7 +328,7 @@ pub async fn run_event_loop(
                     continue;
                 }
                 ev = eventloop.poll() => ev,
-                _ = shutdown.recv() => break,
+                _ = shutdown.stopped() => break,
             }
         };
         match ev {
@@ -373,7 +397,7 @@ pub async fn run_event_loop(
                     // Validated settings keep `wait` positive and finite; a
                     // second's wait stands in should one ever not be.
                     _ = tokio::time::sleep(Duration::try_from_secs_f64(wait).unwrap_or(Duration::from_secs(1))) => {}
-                    _ = shutdown.recv() => break,
+                    _ = shutdown.stopped() => break,
                 }
             }
         }

@@ -25,9 +25,9 @@ use super::commit_retry::{AfterFailure, CommitRetry};
 use super::reload::SharedFilters;
 use super::settings::ServiceSettings;
 use super::snapshot::{ComponentFreshness, Freshness, ServiceCounters, Snapshot, TagFreshness};
-use crate::alarm::{carries_token, parse_command, AlarmBook, AlarmError, AlarmEvent, AlarmIndex, AlarmRecord};
+use crate::alarm::{carries_token, parse_command, AlarmBook, AlarmError, AlarmEvent, AlarmIndex};
 use crate::engine::tags::{tag_index, TagIndex};
-use crate::engine::{ComponentState, Engine, EngineState, Rejection, Sample, TagState};
+use crate::engine::{ComponentState, Engine, Rejection, Sample, TagState};
 use crate::event_time::rfc3339_ms;
 use crate::ingest::decode::{decode_payload, PayloadSettings, TopicTemplate};
 use crate::ingest::{now_ms, CommandOutcome, Inbound};
@@ -41,6 +41,8 @@ use std::collections::{BTreeSet, HashMap};
 use std::sync::Arc;
 use std::time::{Duration, Instant};
 use tokio::sync::{mpsc, watch};
+
+pub use stored::StoredLedger;
 
 /// Control messages from the main task.
 #[derive(Debug)]
@@ -97,25 +99,20 @@ pub struct Ledger {
     templates: Vec<(TopicTemplate, PayloadSettings)>,
     index: TagIndex,
     command_topic: String,
-    /// Messages of the open batch, acknowledged after the commit.
-    pending: Vec<Publish>,
-    pending_samples: usize,
+    /// The open batch: messages to acknowledge and events to publish once
+    /// it is committed (the pure protocol, [`step`]).
+    batch: step::Batch<Publish>,
+    /// Origin of the monotonic milliseconds the batch is timed in.
+    clock: Instant,
+    /// The message being handled carried a sample of a configured tag.
+    took_sample: bool,
     dirty_tags: BTreeSet<usize>,
     dirty_alarms: BTreeSet<String>,
-    events: Vec<AlarmEvent>,
     next_series_ms: Vec<i64>,
     /// Newest event time seen on any tag.
     newest_ms: Option<i64>,
-    /// Per tag: (out of range now, bad quality now).
-    sensor: Vec<(bool, bool)>,
-    /// Per tag: the same faults seen since the last sensor check.
-    sensor_latched: Vec<(bool, bool)>,
-    /// Per tag: the first-out tag of the common-cause group whose one
-    /// stale alarm stands for this tag's silence too (see `sensors`).
-    stale_leader: Vec<Option<usize>>,
-    /// Per tag: (event time, arrival) of the newest sample rejected as a
-    /// sensor fault; a fault that old no longer hides the tag's silence.
-    last_fault: Vec<Option<(i64, i64)>>,
+    /// Per-tag sensor judgement ([`sensors::SensorJudge`]).
+    sensors: sensors::SensorJudge,
     /// Sequence number the next committed alarm event gets (durable, in
     /// the store's meta with the journal).
     next_event_seq: u64,
@@ -138,7 +135,8 @@ pub struct Ledger {
     started: String,
     mqtt_connected: bool,
     outbox: crate::store::OutboxStats,
-    holding: bool,
+    /// Intake held while the outbox is over its quota ([`gate`]).
+    gate: gate::IntakeGate,
     /// Outbox lines not tied to a component change (thresholds, health).
     extra_outbox: Vec<String>,
     /// Trend points of a commit that failed, written with the next one
@@ -147,22 +145,11 @@ pub struct Ledger {
     recent_events: std::collections::VecDeque<AlarmEvent>,
     /// Commit even with nothing pending (an HTTP command changed alarms).
     force_commit: bool,
-    /// When the open batch took its first message: it is committed once it
-    /// is `[store] commit_interval_ms` old (group commit).
-    batch_opened: Option<Instant>,
     last_sensor_check: Instant,
     /// Reorder-window changes not yet committed (kept across a failed
     /// commit, like the outbox lines).
     held_added: Vec<(crate::engine::TagId, crate::engine::HeldSample)>,
     held_released: Vec<u64>,
-    /// Per tag: wall-clock time of the newest accepted sample.
-    last_arrival: Vec<Option<i64>>,
-    /// Wall-clock time of the newest accepted sample of any tag.
-    last_any_arrival: Option<i64>,
-    /// Wall-clock start of this run (never-reporting tags count from it).
-    started_ms: i64,
-    /// No accepted sample from any tag for `[alarms] no_data_alarm_s`.
-    no_plant_data: bool,
     /// Scratch list of components the engine advanced.
     touched: Vec<u32>,
     /// Per component: event time from which threshold lines are due again.
@@ -189,6 +176,10 @@ pub struct Ledger {
     inspections_accepted: Vec<(i64, String)>,
     /// Subscriptions in force and what the last reloads left undone.
     reloads: Reloads,
+    /// Where the newest committed event sequence number goes for the alarm
+    /// event publisher (`service::event_publish`); without one (unit
+    /// tests) event messages are published directly after the commit.
+    event_feed: Option<watch::Sender<u64>>,
 }
 
 /// The ledger's record of SIGHUP reloads (see [`super::reload`]).
@@ -217,82 +208,6 @@ pub const DATABASE_ALARM: &str = "lifeledger:database";
 
 /// Alarm events kept in memory for the snapshot (`recent_events`).
 const RECENT_EVENTS: usize = 200;
-
-/// What a loaded ledger holds, typed: what the service starts from and
-/// what `lifeledger ledger` shows.
-pub struct StoredLedger {
-    /// Tag cursors, component ledgers and engine counters.
-    pub engine: EngineState,
-    /// The decoder's rejection counts by reason.
-    pub decode_rejected: std::collections::BTreeMap<String, u64>,
-    /// Alarm records that parse.
-    pub alarms: Vec<AlarmRecord>,
-    /// Alarm records that do not parse: (key, why). They start afresh.
-    pub unreadable_alarms: Vec<(String, String)>,
-    /// Sequence number the next alarm event gets.
-    pub next_event_seq: u64,
-}
-
-impl StoredLedger {
-    /// Type a loaded ledger. A tag or component state that does not parse is
-    /// an error naming the ledger and the entry: the service must not start
-    /// over a ledger it cannot read. An unreadable alarm record is only
-    /// listed: the alarm starts afresh.
-    pub fn parse(loaded: &crate::store::Loaded, path: &std::path::Path) -> anyhow::Result<StoredLedger> {
-        let mut tags = vec![];
-        for (name, json) in &loaded.tags {
-            let t: TagState = serde_json::from_str(json)
-                .map_err(|e| anyhow::anyhow!("ledger {}: tag {name}: {e}", path.display()))?;
-            tags.push((name.clone(), t));
-        }
-        let mut components = vec![];
-        for (name, json) in &loaded.components {
-            let c: ComponentState = serde_json::from_str(json)
-                .map_err(|e| anyhow::anyhow!("ledger {}: component {name}: {e}", path.display()))?;
-            components.push((name.clone(), c));
-        }
-        let mut counters = crate::engine::Counters::default();
-        let mut decode_rejected = Default::default();
-        let mut next_event_seq = 1;
-        for (k, json) in &loaded.meta {
-            match k.as_str() {
-                "alarm_event_seq" => next_event_seq = serde_json::from_str(json).unwrap_or(1),
-                "engine_counters" => counters = serde_json::from_str(json).unwrap_or_default(),
-                "decode_rejected" => decode_rejected = serde_json::from_str(json).unwrap_or_default(),
-                _ => {}
-            }
-        }
-        let (mut alarms, mut unreadable_alarms) = (vec![], vec![]);
-        for (key, json) in &loaded.alarms {
-            match serde_json::from_str::<AlarmRecord>(json) {
-                Ok(r) => alarms.push(r),
-                Err(e) => unreadable_alarms.push((key.clone(), e.to_string())),
-            }
-        }
-        let held = loaded
-            .held
-            .iter()
-            .map(|h| {
-                (
-                    h.tag.clone(),
-                    crate::engine::HeldSample {
-                        seq: h.seq,
-                        time_ms: h.time_ms,
-                        value: h.value,
-                        arrival_ms: h.arrival_ms,
-                    },
-                )
-            })
-            .collect();
-        Ok(StoredLedger {
-            engine: EngineState { tags, components, counters, held },
-            decode_rejected,
-            alarms,
-            unreadable_alarms,
-            next_event_seq,
-        })
-    }
-}
 
 /// The newest [`RECENT_EVENTS`] events of the alarm journal, oldest first
 /// (as `recent_events` keeps them). An unreadable entry is logged and
@@ -393,17 +308,14 @@ impl Ledger {
             client,
             templates,
             index,
-            pending: vec![],
-            pending_samples: 0,
+            batch: step::Batch::default(),
+            clock: Instant::now(),
+            took_sample: false,
             dirty_tags: BTreeSet::new(),
             dirty_alarms: BTreeSet::new(),
-            events: vec![],
             next_series_ms: vec![i64::MIN; ncomp],
             newest_ms,
-            sensor: vec![(false, false); ntags],
-            sensor_latched: vec![(false, false); ntags],
-            stale_leader: vec![None; ntags],
-            last_fault: vec![None; ntags],
+            sensors: sensors::SensorJudge::new(ntags, now_ms()),
             next_event_seq: stored.next_event_seq,
             alarm_clock_ms: i64::MIN,
             mqtt_replies: vec![],
@@ -425,19 +337,14 @@ impl Ledger {
             started: rfc3339_ms(now_ms()),
             mqtt_connected: false,
             outbox: stats,
-            holding: false,
+            gate: gate::IntakeGate::default(),
             extra_outbox: vec![],
             trend_points: vec![],
             recent_events,
             force_commit: false,
-            batch_opened: None,
             last_sensor_check: Instant::now() - Duration::from_secs(60),
             held_added: vec![],
             held_released: vec![],
-            last_arrival: vec![None; ntags],
-            last_any_arrival: None,
-            started_ms: now_ms(),
-            no_plant_data: false,
             touched: vec![],
             next_threshold_ms: vec![i64::MIN; ncomp],
             series_pending: 0,
@@ -454,6 +361,7 @@ impl Ledger {
             database_refused: false,
             command_replies: vec![],
             inspections_accepted: vec![],
+            event_feed: None,
             service,
         };
         l.offer_stored_inspections()?;
@@ -478,6 +386,14 @@ impl Ledger {
     /// `None` (or empty): MQTT commands are refused, counted `unauthorised`.
     pub fn set_command_token(&mut self, token: Option<String>) {
         self.command_token = token.filter(|t| !t.is_empty());
+    }
+
+    /// Alarm event messages are published by the journal's publisher,
+    /// which `feed` tells the newest committed sequence number; the ledger
+    /// thread then publishes only the retained alarm states.
+    pub fn set_event_feed(&mut self, feed: watch::Sender<u64>) {
+        feed.send_replace(self.next_event_seq.saturating_sub(1));
+        self.event_feed = Some(feed);
     }
 
     /// Where the outbox sender says whether the database took its last
@@ -548,18 +464,28 @@ impl Ledger {
                 self.periodic();
                 continue;
             }
-            if self.holding {
+            if self.gate.holding() {
                 self.check_quota();
-                if self.holding {
+                if self.gate.holding() {
                     std::thread::sleep(Duration::from_millis(200));
                     self.periodic();
                     continue;
                 }
             }
-            let msg = if self.pending.is_empty() && self.extra_outbox.is_empty() && !self.force_commit {
+            if self.batch.is_empty() && (!self.extra_outbox.is_empty() || self.force_commit) {
+                // Rows without messages (series, health, a command) wait
+                // for the group-commit interval like a batch of messages.
+                self.batch.open(self.mono_ms());
+            }
+            let due = self.batch.due(
+                self.mono_ms(),
+                self.service.store.commit_interval_ms,
+                self.service.store.commit_max_samples,
+            );
+            let msg = if matches!(due, step::Due::Idle) && self.extra_outbox.is_empty() && !self.force_commit {
                 match rt.block_on(async { tokio::time::timeout(Duration::from_millis(500), rx.recv()).await }) {
                     Ok(Some(m)) => {
-                        self.batch_opened = Some(Instant::now());
+                        self.batch.open(self.mono_ms());
                         Some(m)
                     }
                     Ok(None) => {
@@ -574,17 +500,18 @@ impl Ledger {
             } else {
                 // Group commit: take more messages until the open batch is
                 // commit_interval_ms old (0: until the queue runs dry).
-                let interval = Duration::from_millis(self.service.store.commit_interval_ms);
-                let left = interval.saturating_sub(self.batch_opened.get_or_insert_with(Instant::now).elapsed());
-                let next = if interval.is_zero() {
-                    rx.try_recv().map_err(|e| e == mpsc::error::TryRecvError::Disconnected)
-                } else if left.is_zero() {
-                    Err(false)
-                } else {
-                    match rt.block_on(async { tokio::time::timeout(left, rx.recv()).await }) {
-                        Ok(Some(m)) => Ok(m),
-                        Ok(None) => Err(true),
-                        Err(_) => Err(false),
+                let next = match due {
+                    step::Due::Now => Err(false),
+                    step::Due::Within(0) | step::Due::Idle => {
+                        rx.try_recv().map_err(|e| e == mpsc::error::TryRecvError::Disconnected)
+                    }
+                    step::Due::Within(left) => {
+                        match rt.block_on(async { tokio::time::timeout(Duration::from_millis(left), rx.recv()).await })
+                        {
+                            Ok(Some(m)) => Ok(m),
+                            Ok(None) => Err(true),
+                            Err(_) => Err(false),
+                        }
                     }
                 };
                 match next {
@@ -599,16 +526,16 @@ impl Ledger {
             match msg {
                 Some(m) => {
                     self.handle(m);
-                    if self.pending_samples >= self.service.store.commit_max_samples {
+                    if self.batch.samples() >= self.service.store.commit_max_samples {
                         self.commit();
-                        self.batch_opened = None;
+                        self.batch.reset_age();
                     }
                 }
                 // The batch is old enough (or the queue ran dry with an
                 // interval of 0): commit what we have (group commit).
                 None => {
                     self.commit();
-                    self.batch_opened = None;
+                    self.batch.reset_age();
                     self.periodic();
                 }
             }
@@ -636,7 +563,7 @@ impl Ledger {
         self.database_check();
         // Commit what the releases and the checks produced before the
         // snapshot is published, so it never shows a point not yet queued.
-        if !self.events.is_empty() || !self.extra_outbox.is_empty() || !self.trend_points.is_empty() {
+        if !self.batch.events().is_empty() || !self.extra_outbox.is_empty() || !self.trend_points.is_empty() {
             self.commit();
         }
         if let Ok(s) = self.store.outbox_stats() {
@@ -645,10 +572,7 @@ impl Ledger {
         let alarm_now = self.alarm_now();
         let ev = self.book.tick(alarm_now);
         if !ev.is_empty() {
-            for e in &ev {
-                self.dirty_alarms.insert(e.key());
-            }
-            self.events.extend(ev);
+            self.note_events(ev);
             self.commit();
         }
         // Retained states carry values that move without an event (a wear
@@ -668,7 +592,7 @@ impl Ledger {
 
     fn health_point(&self, now: i64) -> String {
         let e = self.engine.counters();
-        let mut p = crate::lineproto::Point::new("service_health", now * 1_000_000)
+        let mut p = crate::lineproto::Point::new(crate::series_model::SERVICE_HEALTH.name, now * 1_000_000)
             .tag("plant", &self.cfg.plan.plant)
             .int("samples_accepted", e.accepted as i64)
             .int("duplicates", (e.duplicate + e.late) as i64)
@@ -717,7 +641,9 @@ impl Ledger {
                 } else {
                     self.sample(&topic, &publish.payload, received_ms);
                 }
-                self.pending.push(publish);
+                let sample = std::mem::take(&mut self.took_sample);
+                let now = self.mono_ms();
+                self.batch.offer(publish, sample, now);
             }
         }
     }
@@ -796,10 +722,7 @@ impl Ledger {
             Ok(ev) => {
                 self.counters.commands_applied += 1;
                 tracing::info!(by = cmd.by(), "alarm command carried out: {} event(s)", ev.len());
-                for e in &ev {
-                    self.dirty_alarms.insert(e.key());
-                }
-                self.events.extend(ev);
+                self.note_events(ev);
                 Ok(cmd.target().clone())
             }
             Err(e) => {
@@ -824,9 +747,9 @@ impl Ledger {
     /// lags.
     fn alarm_now(&mut self) -> i64 {
         let now = now_ms();
-        let t = match (self.newest_ms, self.last_any_arrival) {
+        let t = match (self.newest_ms, self.sensors.last_any_arrival) {
             (Some(n), Some(a)) => n.saturating_add((now - a).max(0)),
-            (Some(n), None) => n.saturating_add((now - self.started_ms).max(0)),
+            (Some(n), None) => n.saturating_add((now - self.sensors.started_ms).max(0)),
             // No data yet: the wall clock, not kept (data may be older).
             (None, _) => return self.alarm_clock_ms.max(now),
         };
@@ -871,41 +794,22 @@ impl Ledger {
             self.log.warn("unknown_tag", || format!("message on {topic}: tag {tag:?} is not in the configuration"));
             return;
         };
-        self.pending_samples += 1;
+        self.took_sample = true;
         let s = Sample { tag: id, time_ms: d.time_ms, value: d.value, quality: d.quality };
         // The receive time is the wall clock the event time is judged by.
         let r = self.engine.offer(&s, received_ms);
         self.collect_series();
         let ti = id as usize;
-        let (oor, badq) = self.sensor[ti];
         match r {
             Ok(()) => {
                 self.newest_ms = Some(self.newest_ms.map_or(d.time_ms, |n| n.max(d.time_ms)));
-                self.last_arrival[ti] = Some(received_ms);
-                self.last_any_arrival = Some(received_ms);
-                if oor || badq {
-                    self.sensor[ti] = (false, false);
-                }
+                self.sensors.accepted(ti, received_ms);
             }
             Err(reason) => {
                 self.log.warn(reason.name(), || {
                     format!("sample of {tag} at {} rejected: {}", rfc3339_ms(d.time_ms), reason.name())
                 });
-                match reason {
-                    // A sample stamped in the future or before the plant
-                    // existed is a sensor (gateway clock) fault.
-                    Rejection::OutOfRange | Rejection::NotFinite | Rejection::ImplausibleTime => {
-                        self.sensor[ti].0 = true;
-                        self.sensor_latched[ti].0 = true;
-                        self.last_fault[ti] = Some((d.time_ms, received_ms));
-                    }
-                    Rejection::BadQuality => {
-                        self.sensor[ti].1 = true;
-                        self.sensor_latched[ti].1 = true;
-                        self.last_fault[ti] = Some((d.time_ms, received_ms));
-                    }
-                    _ => {}
-                }
+                self.sensors.rejected(ti, reason, d.time_ms, received_ms);
             }
         }
     }
@@ -1031,9 +935,8 @@ impl Ledger {
         if changed.is_empty()
             && self.held_added.is_empty()
             && self.held_released.is_empty()
-            && self.pending.is_empty()
+            && self.batch.is_empty()
             && self.extra_outbox.is_empty()
-            && self.events.is_empty()
             && self.dirty_alarms.is_empty()
             && self.trend_points.is_empty()
         {
@@ -1057,7 +960,7 @@ impl Ledger {
                 for e in &ev {
                     self.dirty_alarms.insert(e.key());
                 }
-                self.events.extend(ev);
+                self.batch.note_events(ev);
             }
         }
         self.sensor_check();
@@ -1082,12 +985,9 @@ impl Ledger {
         let before_events = outbox.len();
         // Sequence numbers, given afresh by each attempt (the count moves
         // only when one succeeds), so consumers can see a gap.
-        let seq_base = self.next_event_seq;
-        for (i, e) in self.events.iter_mut().enumerate() {
-            e.seq = Some(seq_base + i as u64);
-        }
-        let seq_next = seq_base + self.events.len() as u64;
-        for e in &self.events {
+        let plan = self.batch.plan(self.next_event_seq);
+        let seq_next = plan.next_seq;
+        for e in &plan.events {
             if let Some(l) = e.to_point(&plant).to_line() {
                 outbox.push(l);
             }
@@ -1101,7 +1001,7 @@ impl Ledger {
             ("decode_rejected".to_string(), serde_json::to_string(&self.counters.decode_rejected).unwrap_or_default()),
             ("alarm_event_seq".to_string(), seq_next.to_string()),
         ];
-        let journal: Vec<JournalEntry> = self
+        let journal: Vec<JournalEntry> = plan
             .events
             .iter()
             .map(|e| JournalEntry {
@@ -1156,21 +1056,21 @@ impl Ledger {
                 c.max_commit_ms = c.max_commit_ms.max(ms);
                 c.total_commit_ms += ms;
                 // Durable: now, and only now, acknowledge.
-                for p in self.pending.drain(..) {
-                    if let Err(e) = self.client.try_ack(&p) {
+                let after = self.batch.committed(plan);
+                for p in &after.ack {
+                    if let Err(e) = self.client.try_ack(p) {
                         tracing::error!("MQTT acknowledge failed (the broker will redeliver): {e}");
                     } else {
                         c.acked += 1;
                     }
                 }
-                self.pending_samples = 0;
                 self.dirty_tags.clear();
                 self.held_added.clear();
                 self.held_released.clear();
                 self.inspections_accepted.clear();
                 self.dirty_alarms.clear();
-                self.next_event_seq = seq_next;
-                let events = std::mem::take(&mut self.events);
+                self.next_event_seq = after.next_seq;
+                let events = after.publish;
                 self.kpi.record(&events);
                 self.publish_alarms(&events);
                 for e in events {
@@ -1185,6 +1085,7 @@ impl Ledger {
             Err(e) => {
                 // Nothing is acknowledged; the state stays in memory and the
                 // next commit writes it (upserts carry whole ledgers).
+                self.batch.failed(plan);
                 self.counters.commit_failures += 1;
                 let failures = self.counters.commit_failures;
                 let after = self.retry.failed(Instant::now());
@@ -1228,45 +1129,51 @@ impl Ledger {
         if let Ok(s) = self.store.outbox_stats() {
             self.outbox = s;
         }
-        let over = self.outbox.bytes > q;
-        let under = (self.outbox.bytes as f64) < 0.9 * q as f64;
         let t = now_ms();
-        if over && !self.holding {
-            self.holding = true;
-            tracing::error!(
-                outbox_bytes = self.outbox.bytes,
-                quota = q,
-                "outbox over its disk quota: intake paused (the broker keeps the backlog) until the database accepts points again"
-            );
-            let ev = self.book.evaluate_condition(
-                "lifeledger",
-                "",
-                AlarmIndex::ServiceHealth,
-                true,
-                "outbox over quota; intake paused",
-                t,
-            );
-            self.note_events(ev);
-        } else if self.holding && under {
-            self.holding = false;
-            tracing::info!("outbox below its quota again: intake resumed");
-            let ev = self.book.evaluate_condition(
-                "lifeledger",
-                "",
-                AlarmIndex::ServiceHealth,
-                false,
-                "outbox below quota",
-                t,
-            );
-            self.note_events(ev);
+        match self.gate.observe(self.outbox.bytes, q) {
+            Some(gate::GateChange::Hold) => {
+                tracing::error!(
+                    outbox_bytes = self.outbox.bytes,
+                    quota = q,
+                    "outbox over its disk quota: intake paused (the broker keeps the backlog) until the database accepts points again"
+                );
+                let ev = self.book.evaluate_condition(
+                    "lifeledger",
+                    "",
+                    AlarmIndex::ServiceHealth,
+                    true,
+                    "outbox over quota; intake paused",
+                    t,
+                );
+                self.note_events(ev);
+            }
+            Some(gate::GateChange::Resume) => {
+                tracing::info!("outbox below its quota again: intake resumed");
+                let ev = self.book.evaluate_condition(
+                    "lifeledger",
+                    "",
+                    AlarmIndex::ServiceHealth,
+                    false,
+                    "outbox below quota",
+                    t,
+                );
+                self.note_events(ev);
+            }
+            None => {}
         }
+    }
+
+    /// Milliseconds since the ledger opened, on the monotonic clock: what
+    /// the batch's group-commit rule is timed in.
+    fn mono_ms(&self) -> u64 {
+        self.clock.elapsed().as_millis() as u64
     }
 
     fn note_events(&mut self, ev: Vec<AlarmEvent>) {
         for e in &ev {
             self.dirty_alarms.insert(e.key());
         }
-        self.events.extend(ev);
+        self.batch.note_events(ev);
     }
 
     /// Publish the retained alarm state of every component in the alarm
@@ -1295,9 +1202,21 @@ impl Ledger {
 
     fn publish_alarms(&self, events: &[AlarmEvent]) {
         let mut comps = BTreeSet::new();
+        if let Some(feed) = &self.event_feed {
+            // Committed: the publisher sends them from the journal.
+            if !events.is_empty() {
+                feed.send_replace(self.next_event_seq.saturating_sub(1));
+            }
+        }
         for e in events {
-            let _ =
-                self.client.try_publish(self.service.mqtt.alarm_event_topic(), QoS::AtLeastOnce, false, e.to_json());
+            if self.event_feed.is_none() {
+                let _ = self.client.try_publish(
+                    self.service.mqtt.alarm_event_topic(),
+                    QoS::AtLeastOnce,
+                    false,
+                    e.to_json(),
+                );
+            }
             comps.insert(e.component.clone());
             // A tag's sensor alarm shows in the state of every part it feeds.
             comps.extend(e.affects.iter().cloned());
@@ -1331,9 +1250,11 @@ impl Ledger {
         let mut state = self.engine.export_state();
         state.components.append(&mut self.retired);
         state.tags.append(&mut self.retired_tags);
-        let arrivals: HashMap<String, Option<i64>> =
-            self.engine.plan().tags.iter().zip(&self.last_arrival).map(|(t, a)| (t.name.clone(), *a)).collect();
-        self.last_arrival = cfg.plan.tags.iter().map(|t| arrivals.get(&t.name).copied().flatten()).collect();
+        {
+            let old: Vec<&str> = self.engine.plan().tags.iter().map(|t| t.name.as_str()).collect();
+            let new: Vec<&str> = cfg.plan.tags.iter().map(|t| t.name.as_str()).collect();
+            self.sensors.reloaded(&old, &new);
+        }
         let mut engine = Engine::new(cfg.plan.clone());
         // The store mirrors the reorder window: record what enters and leaves.
         engine.track_held_changes(true);
@@ -1365,10 +1286,6 @@ impl Ledger {
         self.retry.set_give_up_after(commit_failure_limit(&service));
         self.next_series_ms = vec![i64::MIN; cfg.plan.components.len()];
         self.next_threshold_ms = vec![i64::MIN; cfg.plan.components.len()];
-        self.sensor = vec![(false, false); cfg.plan.tags.len()];
-        self.sensor_latched = vec![(false, false); cfg.plan.tags.len()];
-        self.stale_leader = vec![None; cfg.plan.tags.len()];
-        self.last_fault = vec![None; cfg.plan.tags.len()];
         self.cfg = Arc::new(cfg);
         self.service = service;
         let t = self.newest_ms.unwrap_or_else(now_ms);
@@ -1391,11 +1308,11 @@ impl Ledger {
         let tags = plan
             .tags
             .iter()
-            .zip(&self.last_arrival)
+            .zip(&self.sensors.last_arrival)
             .map(|(t, a)| TagFreshness {
                 tag: t.name.clone(),
                 data_age_s: age(*a),
-                stale: now - a.unwrap_or(self.started_ms) > t.max_hold_ms.saturating_add(grace_ms),
+                stale: now - a.unwrap_or(self.sensors.started_ms) > t.max_hold_ms.saturating_add(grace_ms),
             })
             .collect();
         let components = plan
@@ -1411,7 +1328,7 @@ impl Ledger {
                 } else {
                     inputs
                         .iter()
-                        .map(|&t| age(self.last_arrival[t as usize]))
+                        .map(|&t| age(self.sensors.last_arrival[t as usize]))
                         .try_fold(0.0f64, |m, a| a.map(|a| m.max(a)))
                 };
                 let lag_s = self.engine.components()[ci].integrated_to_ms.map(|t| (now - t) as f64 / 1000.0);
@@ -1451,7 +1368,7 @@ impl Ledger {
             outbox_bytes: self.outbox.bytes,
             outbox_parked_lines: self.outbox.parked,
             outbox_quota_bytes: quota(&self.service),
-            holding: self.holding,
+            holding: self.gate.holding(),
             commit_failing: self.commit_error.clone(),
             database_configured: self.service.database.is_some(),
             database_reachable: self.database_link.as_ref().and_then(|r| r.borrow().reachable),
@@ -1466,7 +1383,7 @@ impl Ledger {
             },
             retired_components: self.retired.iter().map(|(n, _)| n.clone()).collect(),
             recent_events: self.recent_events.iter().cloned().collect(),
-            no_plant_data: self.no_plant_data,
+            no_plant_data: self.sensors.no_plant_data,
             freshness: self.freshness(),
             held_samples: self.engine.held_len() as u64,
             restart_required: self.reloads.restart_required.clone(),
@@ -1489,9 +1406,12 @@ impl Ledger {
     }
 }
 
+pub mod gate;
 mod inspection;
 #[path = "ledger_sensors.rs"]
 mod sensors;
+pub mod step;
+mod stored;
 mod wear_inputs;
 
 #[cfg(test)]

@@ -54,9 +54,9 @@ pub(super) fn feed_all(l: &mut Ledger, t_ms: i64, skip: &[&str]) {
 /// time) and commit; the events it raised.
 pub(super) fn check(l: &mut Ledger) -> Vec<AlarmEvent> {
     l.last_sensor_check = Instant::now() - Duration::from_secs(1);
-    let before = l.events.len();
+    let before = l.batch.events().len();
     l.sensor_check();
-    let ev: Vec<AlarmEvent> = l.events[before..].to_vec();
+    let ev: Vec<AlarmEvent> = l.batch.events()[before..].to_vec();
     l.commit();
     ev
 }
@@ -170,7 +170,7 @@ fn tags_going_silent_together_are_one_first_out_alarm() {
     }
     let ev = check(&mut l);
     let act: Vec<AlarmEvent> = activated(&ev).into_iter().cloned().collect();
-    assert_eq!(act.len(), 1, "{ev:#?} {:?}", l.stale_leader);
+    assert_eq!(act.len(), 1, "{ev:#?} {:?}", l.sensors.stale_leader);
     assert_eq!(act[0].component, "U2.SH3.TE-321");
     let d = act[0].detail.clone().unwrap_or_default();
     assert!(d.contains("first out of 4 tags silent together"), "{d}");

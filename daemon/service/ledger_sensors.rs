@@ -24,8 +24,14 @@
 //!
 //! Judged in event time for the records (the newest event time seen), the
 //! silence by the wall clock; see README "Alarms".
+//!
+//! [`SensorJudge`] owns the per-tag judgement state and judges without
+//! reading a clock (the wall-clock time is an argument); the ledger thread
+//! only rate-limits the checks and records the events.
 
 use super::*;
+use crate::alarm::AlarmBook;
+use crate::alarm::AlarmConfig;
 
 /// Most tag names listed in one alarm's detail.
 const LIST_MAX: usize = 8;
@@ -45,13 +51,104 @@ impl Ledger {
             return;
         }
         self.last_sensor_check = Instant::now();
-        let newest = self.newest_ms;
-        let t = newest.unwrap_or_else(now_ms);
-        let now = now_ms();
-        let grace_ms = (self.service.alarms.stale_grace_s * 1000.0) as i64;
+        let ev = self.sensors.judge(&self.engine, &mut self.book, &self.service.alarms, self.newest_ms, now_ms());
+        self.note_events(ev);
+    }
+}
+
+/// Per-tag sensor judgement: what each tag's samples said since the last
+/// check, when each tag last delivered, and the first-out groups.
+#[derive(Debug, Clone)]
+pub struct SensorJudge {
+    /// Per tag: (out of range now, bad quality now).
+    sensor: Vec<(bool, bool)>,
+    /// Per tag: the same faults seen since the last check.
+    sensor_latched: Vec<(bool, bool)>,
+    /// Per tag: the first-out tag of the common-cause group whose one
+    /// stale alarm stands for this tag's silence too.
+    pub(super) stale_leader: Vec<Option<usize>>,
+    /// Per tag: (event time, arrival) of the newest sample rejected as a
+    /// sensor fault; a fault that old no longer hides the tag's silence.
+    last_fault: Vec<Option<(i64, i64)>>,
+    /// Per tag: wall-clock time of the newest accepted sample.
+    pub(super) last_arrival: Vec<Option<i64>>,
+    /// Wall-clock time of the newest accepted sample of any tag.
+    pub(super) last_any_arrival: Option<i64>,
+    /// Wall-clock start of this run (never-reporting tags count from it).
+    pub(super) started_ms: i64,
+    /// No accepted sample from any tag for `[alarms] no_data_alarm_s`.
+    pub(super) no_plant_data: bool,
+}
+
+impl SensorJudge {
+    /// For `ntags` tags, started at wall-clock `started_ms`.
+    pub fn new(ntags: usize, started_ms: i64) -> SensorJudge {
+        SensorJudge {
+            sensor: vec![(false, false); ntags],
+            sensor_latched: vec![(false, false); ntags],
+            stale_leader: vec![None; ntags],
+            last_fault: vec![None; ntags],
+            last_arrival: vec![None; ntags],
+            last_any_arrival: None,
+            started_ms,
+            no_plant_data: false,
+        }
+    }
+
+    /// Tag `ti` delivered an accepted sample that arrived at `received_ms`.
+    pub fn accepted(&mut self, ti: usize, received_ms: i64) {
+        self.last_arrival[ti] = Some(received_ms);
+        self.last_any_arrival = Some(received_ms);
+        self.sensor[ti] = (false, false);
+    }
+
+    /// Tag `ti`'s sample of event time `time_ms`, arrived at
+    /// `received_ms`, was rejected for `reason`; a value, time or quality
+    /// fault counts as a sensor fault.
+    pub fn rejected(&mut self, ti: usize, reason: Rejection, time_ms: i64, received_ms: i64) {
+        let which = match reason {
+            // A sample stamped in the future or before the plant existed is
+            // a sensor (gateway clock) fault.
+            Rejection::OutOfRange | Rejection::NotFinite | Rejection::ImplausibleTime => 0,
+            Rejection::BadQuality => 1,
+            _ => return,
+        };
+        if which == 0 {
+            self.sensor[ti].0 = true;
+            self.sensor_latched[ti].0 = true;
+        } else {
+            self.sensor[ti].1 = true;
+            self.sensor_latched[ti].1 = true;
+        }
+        self.last_fault[ti] = Some((time_ms, received_ms));
+    }
+
+    /// The configuration changed from tags `old` to tags `new` (names):
+    /// arrival times follow their tags; the fault state starts afresh.
+    pub fn reloaded(&mut self, old: &[&str], new: &[&str]) {
+        let arrivals: HashMap<&str, Option<i64>> = old.iter().copied().zip(self.last_arrival.iter().copied()).collect();
+        let mut next = SensorJudge::new(new.len(), self.started_ms);
+        next.last_arrival = new.iter().map(|n| arrivals.get(n).copied().flatten()).collect();
+        next.last_any_arrival = self.last_any_arrival;
+        next.no_plant_data = self.no_plant_data;
+        *self = next;
+    }
+
+    /// Judge every tag now (`now`: wall-clock ms; `newest`: the newest
+    /// event time seen): the alarm events the book raised.
+    pub fn judge(
+        &mut self,
+        engine: &Engine,
+        book: &mut AlarmBook,
+        alarms: &AlarmConfig,
+        newest: Option<i64>,
+        now: i64,
+    ) -> Vec<AlarmEvent> {
+        let mut out = vec![];
+        let t = newest.unwrap_or(now);
+        let grace_ms = (alarms.stale_grace_s * 1000.0) as i64;
         let silent_ms = now - self.last_any_arrival.unwrap_or(self.started_ms);
-        let no_data =
-            !self.engine.plan().tags.is_empty() && silent_ms > (self.service.alarms.no_data_alarm_s * 1000.0) as i64;
+        let no_data = !engine.plan().tags.is_empty() && silent_ms > (alarms.no_data_alarm_s * 1000.0) as i64;
         if no_data != self.no_plant_data {
             self.no_plant_data = no_data;
             let detail = if no_data {
@@ -64,19 +161,19 @@ impl Ledger {
             } else {
                 tracing::info!("{detail}");
             }
-            let ev = self.book.evaluate_condition(PLANT_DATA_ALARM, "", AlarmIndex::ServiceHealth, no_data, &detail, t);
-            self.note_events(ev);
+            let ev = book.evaluate_condition(PLANT_DATA_ALARM, "", AlarmIndex::ServiceHealth, no_data, &detail, t);
+            out.extend(ev);
         }
         // Plant states first, so alarms raised in this check already see them.
-        let rules = self.plant_state_rules();
-        let ev = self.book.set_suppression(rules, t);
-        self.note_events(ev);
-        let plan = self.engine.plan();
+        let rules = plant_state_rules(engine, alarms);
+        let ev = book.set_suppression(rules, t);
+        out.extend(ev);
+        let plan = engine.plan();
         let ntags = plan.tags.len();
         // Per tag: (stale, out of range, bad quality) before grouping.
         let mut faults = Vec::with_capacity(ntags);
         for (ti, tp) in plan.tags.iter().enumerate() {
-            let event_stale = match (newest, self.engine.tags()[ti].cursor_ms) {
+            let event_stale = match (newest, engine.tags()[ti].cursor_ms) {
                 (Some(n), Some(last)) => n - last > tp.max_hold_ms,
                 _ => false,
             };
@@ -101,7 +198,7 @@ impl Ledger {
         // fault, and read by some component. (An out-of-range alarm held
         // by its off-delay does not hide a silence that follows it: the
         // fault has changed, no data at all now.)
-        let read = |ti: usize| !self.engine.consumers(ti).is_empty();
+        let read = |ti: usize| !engine.consumers(ti).is_empty();
         let stale: Vec<bool> =
             (0..ntags).map(|ti| faults[ti].0 && !faults[ti].1 && !faults[ti].2 && read(ti)).collect();
         // First-out grouping: a group holds while its leader is stale.
@@ -113,8 +210,7 @@ impl Ledger {
             }
         }
         let was_alarmed = |ti: usize| {
-            self.book
-                .record(&crate::alarm::record::key(&plan.tags[ti].name, AlarmIndex::SensorStale))
+            book.record(&crate::alarm::record::key(&plan.tags[ti].name, AlarmIndex::SensorStale))
                 .is_some_and(|r| r.is_active())
         };
         let newly: Vec<usize> =
@@ -123,7 +219,7 @@ impl Ledger {
             // The one silent longest is the first out.
             let lead = *newly
                 .iter()
-                .min_by_key(|&&ti| (self.last_arrival[ti].unwrap_or(i64::MIN), self.engine.tags()[ti].cursor_ms))
+                .min_by_key(|&&ti| (self.last_arrival[ti].unwrap_or(i64::MIN), engine.tags()[ti].cursor_ms))
                 .expect("two or more");
             for &ti in &newly {
                 if ti != lead {
@@ -140,7 +236,7 @@ impl Ledger {
         // The components some tags feed: sorted names, their units joined,
         // and words for the detail.
         let describe = |tags: &[usize]| -> (Vec<String>, String, String) {
-            let mut cis: Vec<u32> = tags.iter().flat_map(|&t| self.engine.consumers(t).iter().copied()).collect();
+            let mut cis: Vec<u32> = tags.iter().flat_map(|&t| engine.consumers(t).iter().copied()).collect();
             cis.sort_unstable();
             cis.dedup();
             let mut affects: Vec<String> = cis.iter().map(|&ci| plan.components[ci as usize].name.clone()).collect();
@@ -159,7 +255,7 @@ impl Ledger {
         };
         let mut evaluations = vec![];
         for (ti, tp) in plan.tags.iter().enumerate() {
-            if self.engine.consumers(ti).is_empty() {
+            if engine.consumers(ti).is_empty() {
                 continue;
             }
             let (affects, unit, parts) = describe(&[ti]);
@@ -183,7 +279,7 @@ impl Ledger {
                 )
             };
             let key = crate::alarm::record::key(&tp.name, AlarmIndex::SensorStale);
-            if stale_alarm || self.book.record(&key).is_some() {
+            if stale_alarm || book.record(&key).is_some() {
                 evaluations.push((
                     tp.name.clone(),
                     group_unit,
@@ -203,7 +299,7 @@ impl Ledger {
             ] {
                 // No record until the fault first happens.
                 let key = crate::alarm::record::key(&tp.name, index);
-                if !active && self.book.record(&key).is_none() {
+                if !active && book.record(&key).is_none() {
                     continue;
                 }
                 evaluations.push((tp.name.clone(), unit.clone(), affects.clone(), index, active, detail));
@@ -211,26 +307,54 @@ impl Ledger {
         }
         for (name, unit, affects, index, active, detail) in evaluations {
             let detail = if active { detail } else { String::new() };
-            let ev = self.book.evaluate_sensor(&name, &unit, &affects, index, active, &detail, t);
-            self.note_events(ev);
+            let ev = book.evaluate_sensor(&name, &unit, &affects, index, active, &detail, t);
+            out.extend(ev);
         }
+        out
     }
+}
 
-    /// The plant states in force now, from their tags' newest accepted
-    /// values (in the tag's own unit).
-    fn plant_state_rules(&self) -> Vec<crate::alarm::SuppressionRule> {
-        let plan = self.engine.plan();
-        self.service
-            .alarms
-            .plant_states
-            .iter()
-            .filter(|ps| {
-                plan.tags.iter().position(|t| t.name == ps.tag).is_some_and(|ti| {
-                    let tp = &plan.tags[ti];
-                    self.engine.tags()[ti].last.is_some_and(|(_, v)| ps.holds(tp.unit.from_internal(v)))
-                })
+/// The plant states in force now, from their tags' newest accepted
+/// values (in the tag's own unit).
+fn plant_state_rules(engine: &Engine, alarms: &AlarmConfig) -> Vec<crate::alarm::SuppressionRule> {
+    let plan = engine.plan();
+    alarms
+        .plant_states
+        .iter()
+        .filter(|ps| {
+            plan.tags.iter().position(|t| t.name == ps.tag).is_some_and(|ti| {
+                let tp = &plan.tags[ti];
+                engine.tags()[ti].last.is_some_and(|(_, v)| ps.holds(tp.unit.from_internal(v)))
             })
-            .map(|ps| ps.rule())
-            .collect()
+        })
+        .map(|ps| ps.rule())
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Time is an argument: tags that never report are judged silent once
+    /// their hold time plus the grace has passed since the start by the
+    /// `now` given, not before, and all of them together are one
+    /// first-out alarm (common practice: one cause, one alarm).
+    #[test]
+    fn never_reporting_tags_are_one_first_out_alarm_after_their_hold_time() {
+        let cfg = crate::settings::load_plan(std::path::Path::new("config/demo/plant.toml")).unwrap();
+        let engine = Engine::new(cfg.plan.clone());
+        let mut alarms: AlarmConfig = toml::from_str("").unwrap();
+        alarms.no_data_alarm_s = 1e9; // the plant-level alarm out of the way
+        let mut book = AlarmBook::default().with_config(alarms.clone());
+        let start = 1_790_812_800_000i64;
+        let mut judge = SensorJudge::new(cfg.plan.tags.len(), start);
+        let grace_ms = (alarms.stale_grace_s * 1000.0) as i64;
+        let hold = cfg.plan.tags.iter().map(|t| t.max_hold_ms).min().unwrap();
+        let before = judge.judge(&engine, &mut book, &alarms, None, start + hold + grace_ms);
+        assert!(before.is_empty(), "nothing at exactly hold + grace: {before:#?}");
+        let all = cfg.plan.tags.iter().map(|t| t.max_hold_ms).max().unwrap();
+        let ev = judge.judge(&engine, &mut book, &alarms, None, start + all + grace_ms + 1);
+        let stale: Vec<&AlarmEvent> = ev.iter().filter(|e| e.index == AlarmIndex::SensorStale).collect();
+        assert_eq!(stale.len(), 1, "one first-out alarm for the tags silent together: {ev:#?}");
     }
 }

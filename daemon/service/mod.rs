@@ -7,14 +7,20 @@
 //! * ledger thread ([`ledger`]): owns engine, alarms and the store's write
 //!   connection; group-commits, then acknowledges;
 //! * outbox sender ([`outbox`]): drains the outbox to the database;
+//! * event publisher ([`event_publish`]): alarm event messages from the
+//!   journal, until the broker acknowledges them;
 //! * HTTP ([`http`]): health, readiness, metrics, JSON snapshot, alarm
 //!   history and component trends (from the store's alarm journal and
 //!   trend table).
 //!
-//! Shutdown is a broadcast signal every task listens for. SIGTERM or SIGINT:
-//! intake stops, the ledger commits and acknowledges what it has, the
-//! outbox gets a last flush, the service publishes its offline status and
-//! disconnects. SIGHUP reloads the configuration and keeps every ledger
+//! Shutdown is one type every task listens to ([`shutdown::Shutdown`]),
+//! raised in order and awaited through each task's completion guard
+//! (bounded), never by fixed sleeps. SIGTERM or SIGINT: the ledger takes
+//! what is queued, commits and acknowledges; the event publisher sends
+//! what was committed and waits for the broker's acknowledgements; the
+//! service publishes its offline status and disconnects, and the event
+//! loop ends once the broker has closed the connection; then HTTP, the
+//! watchdog and the outbox sender (one last flush) stop. SIGHUP reloads the configuration and keeps every ledger
 //! ([`reload`] says what a reload may change).
 
 /// The alarm-system figures (pure; kept in the alarm core).
@@ -22,6 +28,7 @@ pub use crate::alarm::kpi as alarm_kpi;
 pub mod attention;
 pub mod command_reply;
 pub mod commit_retry;
+pub mod event_publish;
 pub mod http;
 pub mod http_inspection;
 pub mod ledger;
@@ -29,6 +36,7 @@ pub mod outbox;
 pub mod page;
 pub mod reload;
 pub mod settings;
+pub mod shutdown;
 pub mod snapshot;
 pub mod systemd;
 
@@ -40,7 +48,7 @@ pub use settings::ServiceSettings;
 use std::path::Path;
 use std::sync::Arc;
 use std::time::Duration;
-use tokio::sync::{broadcast, mpsc, watch};
+use tokio::sync::{mpsc, watch};
 
 /// Load and type a configuration for the service (with `LIFELEDGER__…`
 /// environment overrides).
@@ -110,7 +118,10 @@ pub async fn run_until_with(
         tracing::warn!("{w}");
     }
     tracing::info!("{}", crate::CAUTION);
-    let (shutdown_tx, _) = broadcast::channel::<()>(4);
+    // One shutdown signal for HTTP, the watchdog and the outbox sender,
+    // raised last; intake and the event publisher have their own, raised
+    // in order before it (see the end of this function).
+    let shutdown = shutdown::Shutdown::new();
     let identity = svc.mqtt.identity(&cfg.plan.plant);
     let options = svc.mqtt.options(&cfg.plan.plant).map_err(|e| anyhow::anyhow!(e))?;
     let (client, eventloop) = rumqttc::AsyncClient::new(options, 4096);
@@ -141,6 +152,18 @@ pub async fn run_until_with(
         ledger.set_database_reachability(reach_rx);
     }
     let filters = ledger.shared_filters();
+    // Alarm event messages go out from the journal, on their own
+    // connection, until the broker acknowledges them (event_publish).
+    let (events_tx, events_rx) = watch::channel(0u64);
+    ledger.set_event_feed(events_tx);
+    let publisher_stop = shutdown::Shutdown::new();
+    let mut publisher_task = tokio::spawn(event_publish::run(
+        svc.mqtt.clone(),
+        svc.store.path.clone(),
+        events_rx,
+        publisher_stop.listener(),
+    ));
+    let mut publisher_done = false;
 
     // HTTP first, so health is visible from the start.
     let listener = tokio::net::TcpListener::bind(&svc.http.listen)
@@ -157,11 +180,11 @@ pub async fn run_until_with(
         trend: crate::store::TrendReader::new(&svc.store.path),
         config: Some(report_config),
     };
-    let mut http_shutdown = shutdown_tx.subscribe();
+    let mut http_shutdown = shutdown.listener();
     let http_task = tokio::spawn(async move {
         let _ = axum::serve(listener, http::router(http_state))
             .with_graceful_shutdown(async move {
-                let _ = http_shutdown.recv().await;
+                http_shutdown.stopped().await;
             })
             .await;
     });
@@ -172,14 +195,14 @@ pub async fn run_until_with(
 
     // The event loop keeps polling until the very end so that the last
     // acknowledgements and the offline status reach the broker.
-    let (loop_stop_tx, _) = broadcast::channel::<()>(1);
+    let intake_stop = shutdown::Shutdown::new();
     let mut ingest_task = tokio::spawn(run_event_loop(
         svc.mqtt.clone(),
         client.clone(),
         eventloop,
         filters,
         in_tx,
-        loop_stop_tx.subscribe(),
+        intake_stop.listener(),
         InstanceWatch { identity: identity.clone(), warnings: warn_tx },
     ));
 
@@ -188,13 +211,13 @@ pub async fn run_until_with(
     let notifier = Arc::new(systemd::Notifier::from_env());
     notifier.ready(&format!("intake running; status on http://{}/", svc.http.listen));
     let watchdog_task = notifier.watchdog.map(|interval| {
-        tokio::spawn(feed_watchdog(notifier.clone(), ledger_snap.clone(), interval / 2, shutdown_tx.subscribe()))
+        tokio::spawn(feed_watchdog(notifier.clone(), ledger_snap.clone(), interval / 2, shutdown.listener()))
     });
 
     let mut sender_task = svc
         .database
         .clone()
-        .map(|d| tokio::spawn(outbox::run_sender(d, svc.store.path.clone(), reach_tx, shutdown_tx.subscribe())));
+        .map(|d| tokio::spawn(outbox::run_sender(d, svc.store.path.clone(), reach_tx, shutdown.listener())));
     // The outbox sender, while it runs (never, without a database).
     let sender_ended = async {
         match sender_task.as_mut() {
@@ -234,6 +257,11 @@ pub async fn run_until_with(
                     ingest_done = true;
                     break;
                 }
+                r = &mut publisher_task => {
+                    failure = Some(anyhow::anyhow!("the alarm event publisher stopped unexpectedly: {r:?}"));
+                    publisher_done = true;
+                    break;
+                }
                 r = &mut sender_ended => {
                     failure = Some(anyhow::anyhow!("the outbox sender stopped unexpectedly (see the log above): {r:?}"));
                     sender_task = None;
@@ -268,21 +296,45 @@ pub async fn run_until_with(
     if ledger_done.is_none() {
         let _ = ledger_task.await;
     }
+    // The ledger's last events are committed: the publisher hands them to
+    // the broker and waits (bounded) for the acknowledgements.
+    if !publisher_stop.stop_and_wait(Duration::from_secs(5)).await {
+        tracing::warn!("the alarm event publisher did not finish within 5 s; the rest go out at the next start");
+    }
+    if !publisher_done {
+        let _ = tokio::time::timeout(Duration::from_secs(1), publisher_task).await;
+    }
     let offline = crate::ingest::status::payload("offline", &identity);
     let _ = client.try_publish(svc.mqtt.status_topic(), rumqttc::QoS::AtLeastOnce, true, offline);
-    // Let the event loop carry the last acknowledgements and the status out.
-    tokio::time::sleep(Duration::from_millis(300)).await;
+    // The last acknowledgements and the status are queued before the
+    // DISCONNECT, and the client sends its queue in order: the event loop
+    // ends by itself once the broker closes the connection after it. Wait
+    // for that (bounded; not at all while the broker is away), then tell
+    // it to stop in any case.
     let _ = client.try_disconnect();
-    tokio::time::sleep(Duration::from_millis(200)).await;
-    let _ = loop_stop_tx.send(());
-    let _ = shutdown_tx.send(());
-    if let Some(t) = sender_task {
-        let _ = tokio::time::timeout(Duration::from_secs(10), t).await;
+    if !ingest_done {
+        let connected = ledger_snap.borrow().mqtt_connected;
+        let limit = if connected { Duration::from_secs(3) } else { Duration::ZERO };
+        if tokio::time::timeout(limit, &mut ingest_task).await.is_ok() {
+            ingest_done = true;
+        } else if connected {
+            tracing::warn!("the MQTT connection did not close within 3 s of the disconnect");
+        }
+    }
+    if !intake_stop.stop_and_wait(Duration::from_secs(2)).await {
+        tracing::warn!("the MQTT intake task did not stop within 2 s");
     }
     if !ingest_done {
-        let _ = tokio::time::timeout(Duration::from_secs(2), ingest_task).await;
+        let _ = tokio::time::timeout(Duration::from_secs(1), ingest_task).await;
     }
-    let _ = tokio::time::timeout(Duration::from_secs(2), http_task).await;
+    // HTTP, watchdog and the outbox sender's last flush (bounded).
+    if !shutdown.stop_and_wait(Duration::from_secs(10)).await {
+        tracing::warn!("HTTP or the outbox sender did not finish within 10 s");
+    }
+    if let Some(t) = sender_task {
+        let _ = tokio::time::timeout(Duration::from_secs(1), t).await;
+    }
+    let _ = tokio::time::timeout(Duration::from_secs(1), http_task).await;
     if let Some(t) = watchdog_task {
         t.abort();
     }
@@ -329,13 +381,13 @@ async fn feed_watchdog(
     notifier: Arc<systemd::Notifier>,
     mut snapshots: watch::Receiver<Arc<snapshot::Snapshot>>,
     every: Duration,
-    mut shutdown: broadcast::Receiver<()>,
+    mut shutdown: shutdown::ShutdownListener,
 ) {
     let mut tick = tokio::time::interval(every);
     loop {
         tokio::select! {
             _ = tick.tick() => {}
-            _ = shutdown.recv() => break,
+            _ = shutdown.stopped() => break,
         }
         let moved = snapshots.has_changed().unwrap_or(false);
         let s = snapshots.borrow_and_update().clone();

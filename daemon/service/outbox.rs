@@ -12,11 +12,12 @@
 //! time, a batch that was accepted but not yet removed when the process
 //! died is simply written again and overwrites itself.
 
+use super::shutdown::ShutdownListener;
 use crate::sink::{Backoff, DatabaseSettings, Writer};
 use crate::store::Store;
 use std::path::PathBuf;
 use std::time::Duration;
-use tokio::sync::{broadcast, watch};
+use tokio::sync::watch;
 
 /// What the outbox sender last learned of the database, for the ledger
 /// thread (snapshot, `/metrics`, the service-health alarm).
@@ -41,7 +42,7 @@ pub async fn run_sender(
     settings: DatabaseSettings,
     ledger_path: PathBuf,
     reachable: watch::Sender<DatabaseLink>,
-    mut shutdown: broadcast::Receiver<()>,
+    mut shutdown: ShutdownListener,
 ) {
     let writer = match Writer::new(&settings) {
         Ok(w) => w,
@@ -76,7 +77,7 @@ pub async fn run_sender(
             }
             tokio::select! {
                 _ = tokio::time::sleep(Duration::from_millis(200)) => {}
-                _ = shutdown.recv() => { stopping = true; }
+                _ = shutdown.stopped() => { stopping = true; }
             }
             continue;
         }
@@ -106,10 +107,13 @@ pub async fn run_sender(
                     ),
                     Err(pe) => {
                         tracing::error!("database refused a batch as malformed ({e}) and parking it failed: {pe}");
+                        if stopping {
+                            break;
+                        }
                         let d = backoff.next_delay();
                         tokio::select! {
                             _ = tokio::time::sleep(d) => {}
-                            _ = shutdown.recv() => { stopping = true; }
+                            _ = shutdown.stopped() => { stopping = true; }
                         }
                     }
                 }
@@ -133,7 +137,7 @@ pub async fn run_sender(
                 tracing::warn!("database write failed, retrying in {:.1} s: {e}", d.as_secs_f64());
                 tokio::select! {
                     _ = tokio::time::sleep(d) => {}
-                    _ = shutdown.recv() => { stopping = true; }
+                    _ = shutdown.stopped() => { stopping = true; }
                 }
             }
         }

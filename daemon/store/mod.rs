@@ -45,6 +45,7 @@
 
 pub mod checkpoint;
 pub mod error;
+pub mod event_cursor;
 pub mod held;
 pub mod inspection;
 pub mod journal;
@@ -60,6 +61,7 @@ use rusqlite::{Connection, OpenFlags, TransactionBehavior};
 
 pub use checkpoint::{CheckpointRow, Restore, StoredCheckpoint};
 pub use error::StoreError;
+pub use event_cursor::JournalEvent;
 pub use journal::{JournalEntry, JournalReader};
 pub use outbox::OutboxStats;
 pub use schema::{APPLICATION_ID, SCHEMA_VERSION};

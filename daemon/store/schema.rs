@@ -67,6 +67,11 @@ pub const MIGRATIONS: &[Migration] = &[
         summary: "wear inputs in the component trends: normal load, sliding speed, slip amplitude, frequency",
         apply: super::trend::v10_trend_wear_inputs,
     },
+    Migration {
+        summary:
+            "alarm-event publish cursor: events the broker acknowledged, the rest published again from the journal",
+        apply: super::event_cursor::v11_event_publish_cursor,
+    },
 ];
 
 /// The newest schema version this build knows: the number of migrations.
