@@ -42,6 +42,7 @@ pub mod report;
 pub mod series_model;
 pub mod service;
 pub mod settings;
+pub mod shutdown;
 pub mod sink;
 pub mod store;
 

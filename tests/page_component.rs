@@ -49,7 +49,8 @@ struct Fixture {
 
 /// The shared test plant, SH-TUBE carrying 0.31 of its life in (past the
 /// default advisory 0.3, so it has an unacknowledged alarm), fed ten hours
-/// in twenty-minute batches (the trend keeps a point per commit). With
+/// in one-hour batches (the trend keeps a point per commit; each batch
+/// waits about 2 s for the reorder window to release its last samples). With
 /// `commands`, an operator token and `[alarms] max_shelve_h`.
 fn fixture(commands: bool) -> Fixture {
     chromium();
@@ -79,11 +80,11 @@ fn fixture(commands: bool) -> Fixture {
     Fixture { _broker: broker, _dir: dir, svc, snap }
 }
 
-/// Publishes `s` twenty minutes at a time, each integrated before the next;
-/// the last snapshot.
+/// Publishes `s` an hour at a time, each integrated before the next; the
+/// last snapshot.
 fn feed(broker: &Mosquitto, svc: &Service, s: &[Sample], id: &str) -> serde_json::Value {
     let mut snap = serde_json::Value::Null;
-    for (i, chunk) in s.chunks(4 * 20).enumerate() {
+    for (i, chunk) in s.chunks(4 * 60).enumerate() {
         publish_all(broker.port, chunk, &format!("publisher-page-{id}-{i}"));
         snap = svc.wait_until_integrated(chunk.last().unwrap().1);
     }

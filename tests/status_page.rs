@@ -186,11 +186,13 @@ fn fixture() -> Fixture {
     let cfg = config(dir.path(), broker.port, http_port);
     let svc = Service::start(&cfg, http_port);
     svc.wait_connected();
-    // As a plant sends them: a few minutes at a time, each integrated
-    // before the next (the trend keeps one point per ledger commit).
+    // As a plant sends them after an outage of its link: an hour at a
+    // time, each integrated before the next (the trend keeps one point per
+    // ledger commit; each batch waits about 2 s for the reorder window to
+    // release its last samples).
     let s = samples_with_header(600);
     let mut snap = serde_json::Value::Null;
-    for (i, chunk) in s.chunks(5 * 10).enumerate() {
+    for (i, chunk) in s.chunks(5 * 60).enumerate() {
         publish_all(broker.port, chunk, &format!("publisher-status-page-{i}"));
         snap = svc.wait_until_integrated(chunk.last().unwrap().1);
     }

@@ -290,7 +290,7 @@ pub async fn run_event_loop(
     mut eventloop: EventLoop,
     filters: std::sync::Arc<std::sync::Mutex<Vec<String>>>,
     to_ledger: mpsc::Sender<Inbound>,
-    mut shutdown: crate::service::shutdown::ShutdownListener,
+    mut shutdown: crate::shutdown::ShutdownListener,
     instance: InstanceWatch,
 ) {
     let status_topic = settings.status_topic();

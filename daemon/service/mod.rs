@@ -36,7 +36,7 @@ pub mod outbox;
 pub mod page;
 pub mod reload;
 pub mod settings;
-pub mod shutdown;
+pub use crate::shutdown;
 pub mod snapshot;
 pub mod systemd;
 
