@@ -32,6 +32,11 @@ pub const EXCURSION_DAY: f64 = 3.0;
 pub const EXCURSION_HOURS: f64 = 6.0;
 pub const FAILURE_DAY: f64 = 5.0;
 pub const SILENCE_HOURS: f64 = 20.0;
+/// Good readings between the burn-out spikes and the silence: longer than
+/// the hour of good data an out-of-range alarm needs to clear, so the
+/// silence raises its own stale-tag alarm (one fault is one alarm: a tag
+/// still out of range when it falls silent would stay out of range).
+pub const RECOVERY_HOURS: f64 = 2.0;
 pub const SHUTDOWN_DAY: f64 = 12.0;
 pub const SHUTDOWN_HOURS: f64 = 30.0;
 
@@ -167,7 +172,7 @@ impl Simulator {
                     // Burn-out spikes: 5000 in the tag's unit, outside any
                     // valid range, so they are rejected as out of range.
                     spike = true;
-                } else if (0.5..0.5 + SILENCE_HOURS / 24.0).contains(&f) {
+                } else if (0.5 + RECOVERY_HOURS / 24.0..0.5 + (RECOVERY_HOURS + SILENCE_HOURS) / 24.0).contains(&f) {
                     continue; // silent: the stale-tag alarm fires
                 }
             }
@@ -202,5 +207,10 @@ mod tests {
         let n_normal = sim.samples_at(2 * 86_400_000).len();
         let n_silent = sim.samples_at(((FAILURE_DAY + 0.6) * 86_400_000.0) as i64).len();
         assert_eq!(n_silent + 1, n_normal);
+        // Between the spikes and the silence the thermocouple reads well
+        // for longer than an out-of-range alarm needs to clear.
+        let recovering = ((FAILURE_DAY + 0.5 + 0.5 * RECOVERY_HOURS / 24.0) * 86_400_000.0) as i64;
+        assert_eq!(sim.samples_at(recovering).len(), n_normal);
+        assert!(RECOVERY_HOURS > 1.0, "an out-of-range alarm clears after an hour of good data");
     }
 }
