@@ -22,23 +22,15 @@ use common::{free_port, BoundedOutput, Mosquitto};
 use std::io::{Read, Write};
 use std::net::{TcpListener, TcpStream};
 use std::path::{Path, PathBuf};
-use std::process::{Command, Stdio};
+use std::process::Command;
 
-const CHROMIUM: &str = "/usr/bin/chromium";
+use common::chromium::chromium;
 const CAUTION: &str = "Screening estimate only: limits, material data and acceptance must come from the plant's governing code and a responsible engineer.";
 const PLANT: &str = "Component Page Test Station";
 /// The operator token of the fixtures that take commands.
 const TOKEN: &str = "page-test-token-7f3a";
 /// The longest shelve those fixtures configure, hours.
 const MAX_SHELVE_H: f64 = 12.0;
-
-fn chromium() -> &'static str {
-    assert!(
-        Path::new(CHROMIUM).exists(),
-        "headless Chromium not found at {CHROMIUM}: these tests need the Debian package `chromium`; run tests/run"
-    );
-    CHROMIUM
-}
 
 struct Fixture {
     _broker: Mosquitto,
@@ -99,33 +91,7 @@ fn component<'a>(snap: &'a serde_json::Value, name: &str) -> &'a serde_json::Val
 /// profile; stdout returned.
 fn chromium_run(url: &str, budget_ms: u32, extra: &[&str]) -> String {
     let profile = tempfile::tempdir().unwrap();
-    let mut args: Vec<String> = [
-        "--headless",
-        "--no-sandbox",
-        "--disable-gpu",
-        "--disable-quic",
-        "--no-first-run",
-        "--disable-background-networking",
-        "--disable-component-update",
-        "--disable-sync",
-        "--disable-dev-shm-usage",
-        "--hide-scrollbars",
-    ]
-    .iter()
-    .map(|s| s.to_string())
-    .collect();
-    args.push(format!("--virtual-time-budget={budget_ms}"));
-    args.push(format!("--user-data-dir={}", profile.path().display()));
-    args.extend(extra.iter().map(|s| s.to_string()));
-    args.push(url.to_string());
-    let out = Command::new(chromium()).args(&args).stdin(Stdio::null()).bounded_output().expect("run chromium");
-    assert!(
-        out.status.success(),
-        "chromium {args:?} failed ({}):\n{}",
-        out.status,
-        String::from_utf8_lossy(&out.stderr)
-    );
-    String::from_utf8_lossy(&out.stdout).into_owned()
+    common::chromium::run(url, budget_ms, extra, profile.path(), &[])
 }
 
 fn dump_dom(port: u16, path: &str) -> String {

@@ -20,56 +20,18 @@
 mod common;
 
 use common::service::{publish_all, Sample, Service, ServiceConfig, T0};
-use common::{free_port, poll_until, BoundedOutput, Mosquitto};
+use common::{free_port, poll_until, Mosquitto};
 use std::path::{Path, PathBuf};
-use std::process::{Command, Stdio};
 
-const CHROMIUM: &str = "/usr/bin/chromium";
-
-fn chromium() -> &'static str {
-    if !Path::new(CHROMIUM).exists() {
-        panic!("headless Chromium not found at {CHROMIUM}: install the Debian package `chromium` (tests/run does)");
-    }
-    CHROMIUM
-}
+use common::chromium::chromium;
 
 /// Headless Chromium on `url` with `extra` arguments, in `profile` (kept
 /// between runs where a test checks what a page remembers), with the
 /// environment `env` (a time zone); stdout returned.
 fn chromium_run(url: &str, extra: &[&str], profile: &Path, env: &[(&str, &str)]) -> String {
-    let mut args: Vec<String> = [
-        "--headless",
-        "--no-sandbox",
-        "--disable-gpu",
-        "--disable-quic",
-        "--no-first-run",
-        "--disable-background-networking",
-        "--disable-component-update",
-        "--disable-sync",
-        "--disable-dev-shm-usage",
-        "--hide-scrollbars",
-        "--allow-file-access-from-files",
-        "--virtual-time-budget=5000",
-    ]
-    .iter()
-    .map(|s| s.to_string())
-    .collect();
-    args.push(format!("--user-data-dir={}", profile.display()));
-    args.extend(extra.iter().map(|s| s.to_string()));
-    args.push(url.to_string());
-    let mut cmd = Command::new(chromium());
-    cmd.args(&args).stdin(Stdio::null());
-    for (k, v) in env {
-        cmd.env(k, v);
-    }
-    let out = cmd.bounded_output().expect("run chromium");
-    assert!(
-        out.status.success(),
-        "chromium {args:?} failed ({}):\n{}",
-        out.status,
-        String::from_utf8_lossy(&out.stderr)
-    );
-    String::from_utf8_lossy(&out.stdout).into_owned()
+    let mut extra = extra.to_vec();
+    extra.push("--allow-file-access-from-files");
+    common::chromium::run(url, 5000, &extra, profile, env)
 }
 
 fn dump(url: &str, profile: &Path, extra: &[&str], env: &[(&str, &str)]) -> String {

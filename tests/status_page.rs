@@ -10,25 +10,12 @@
 
 mod common;
 
-use common::BoundedOutput;
-
 use common::service::{publish_all, samples_with_header, Service, ServiceConfig};
 use common::{free_port, Mosquitto};
 use std::path::{Path, PathBuf};
-use std::process::{Command, Stdio};
 
-const CHROMIUM: &str = "/usr/bin/chromium";
+use common::chromium::chromium;
 const CAUTION: &str = "Screening estimate only: limits, material data and acceptance must come from the plant's governing code and a responsible engineer.";
-
-fn chromium() -> &'static str {
-    if !Path::new(CHROMIUM).exists() {
-        panic!(
-            "headless Chromium not found at {CHROMIUM}: the status-page tests need the Debian packages \
-             `chromium`; run tests/run, which installs it"
-        );
-    }
-    CHROMIUM
-}
 
 /// The header's metal temperature, TE-2.
 const HEADER_TAG: &str = r#"[[tag]]
@@ -72,33 +59,7 @@ fn config(dir: &Path, mqtt_port: u16, http_port: u16) -> PathBuf {
 /// `--screenshot=...`); its own throw-away profile; stdout returned.
 fn chromium_run(url: &str, extra: &[&str]) -> String {
     let profile = tempfile::tempdir().unwrap();
-    let mut args: Vec<String> = [
-        "--headless",
-        "--no-sandbox",
-        "--disable-gpu",
-        "--disable-quic",
-        "--no-first-run",
-        "--disable-background-networking",
-        "--disable-component-update",
-        "--disable-sync",
-        "--disable-dev-shm-usage",
-        "--hide-scrollbars",
-        "--virtual-time-budget=5000",
-    ]
-    .iter()
-    .map(|s| s.to_string())
-    .collect();
-    args.push(format!("--user-data-dir={}", profile.path().display()));
-    args.extend(extra.iter().map(|s| s.to_string()));
-    args.push(url.to_string());
-    let out = Command::new(chromium()).args(&args).stdin(Stdio::null()).bounded_output().expect("run chromium");
-    assert!(
-        out.status.success(),
-        "chromium {args:?} failed ({}):\n{}",
-        out.status,
-        String::from_utf8_lossy(&out.stderr)
-    );
-    String::from_utf8_lossy(&out.stdout).into_owned()
+    common::chromium::run(url, 5000, extra, profile.path(), &[])
 }
 
 fn dump_dom(port: u16, path: &str) -> String {

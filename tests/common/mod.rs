@@ -23,6 +23,7 @@
 //! this module again and uses only part of it, hence the `allow` below.
 #![allow(dead_code, unused_imports)]
 
+pub mod chromium;
 pub mod http;
 mod mosquitto;
 mod process;
