@@ -186,3 +186,51 @@ fn demo_refuses_a_taken_http_port_before_its_banner() {
     assert!(err.contains(&addr), "the error names the address: {err}");
     assert!(!out.contains("status page"), "no banner for a page that cannot be served:\n{out}");
 }
+
+/// A terminal that goes away (the reader of the demo's output closes its
+/// end, as `lifeledger demo | head` does) must not stop the demo: alarm
+/// lines are then dropped quietly, no task panics, and the simulated plant
+/// keeps feeding the service.
+#[test]
+fn demo_keeps_running_when_its_output_is_closed() {
+    use std::io::{BufRead, BufReader};
+    let port = free_port();
+    let dir = tempfile::tempdir().unwrap();
+    let err_path = dir.path().join("stderr");
+    let mut child = Command::new(env!("CARGO_BIN_EXE_lifeledger"))
+        .args(["demo", "--duration", "120", "--http", &format!("127.0.0.1:{port}")])
+        .arg("--state-dir")
+        .arg(dir.path().join("state"))
+        .stdout(Stdio::piped())
+        .stderr(std::fs::File::create(&err_path).unwrap())
+        .spawn()
+        .unwrap();
+    // Read the banner up to its last line, then close our end of the pipe.
+    {
+        let mut out = BufReader::new(child.stdout.take().unwrap());
+        let mut line = String::new();
+        for _ in 0..40 {
+            line.clear();
+            if out.read_line(&mut line).unwrap_or(0) == 0 || line.contains("Ctrl-C stops") {
+                break;
+            }
+        }
+        assert!(line.contains("Ctrl-C stops"), "the banner did not end as expected: {line:?}");
+    }
+    let snapshot =
+        || -> Option<serde_json::Value> { serde_json::from_str(&http::get(port, "/api/components").ok()?.text()).ok() };
+    // An alarm event, which the demo prints as it happens: into the closed pipe.
+    let s = poll_until("an alarm event in the demo's status API", || {
+        snapshot().filter(|s| s["recent_events"].as_array().is_some_and(|e| !e.is_empty()))
+    });
+    let accepted = s["engine"]["accepted"].as_u64().unwrap_or(0);
+    // The simulator must go on publishing after that print (a dead printer
+    // task used to stop the simulator's MQTT loop, so intake stalled).
+    poll_until("the demo to keep accepting samples after printing into a closed pipe", || {
+        snapshot().filter(|s| s["engine"]["accepted"].as_u64().unwrap_or(0) > accepted + 20_000)
+    });
+    let _ = child.kill();
+    let _ = child.wait();
+    let stderr = std::fs::read_to_string(&err_path).unwrap_or_default();
+    assert!(!stderr.contains("panicked"), "a demo task panicked:\n{stderr}");
+}

@@ -19,6 +19,17 @@ use rumqttc::{AsyncClient, MqttOptions, QoS};
 use std::path::PathBuf;
 use std::time::{Duration, Instant};
 
+/// A line on the demo's terminal. A terminal that went away (a closed
+/// pipe, `lifeledger demo | head`) is not an error of the demo: the line is
+/// dropped quietly and the demo goes on (`println!` would panic the task
+/// that prints, and with it the simulator's MQTT loop).
+macro_rules! say {
+    ($($arg:tt)*) => {{
+        use std::io::Write as _;
+        let _ = writeln!(std::io::stdout().lock(), $($arg)*);
+    }};
+}
+
 /// The shipped demo plant (also used by `replay` in the quick start).
 pub const DEMO_PLANT: &str = include_str!("../../config/demo/plant.toml");
 
@@ -145,24 +156,24 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
     };
     let start_ms = ((now_ms() - span_ms) / 60_000) * 60_000;
     let simulator = sim::Simulator::new(&plan, start_ms);
-    println!("lifeledger demo: {} (invented plant, demo data only)", plan.plant);
-    println!("  status page      http://{}/", opts.http);
-    println!(
+    say!("lifeledger demo: {} (invented plant, demo data only)", plan.plant);
+    say!("  status page      http://{}/", opts.http);
+    say!(
         "  embedded broker  mqtt://127.0.0.1:{broker_port} (tags on brackenmoor/<tag>, alarms on lifeledger/alarms/#)"
     );
-    println!("  ledger           {}", dir.join("ledger.sqlite").display());
-    println!(
+    say!("  ledger           {}", dir.join("ledger.sqlite").display());
+    say!(
         "  settings         the demo's own only: LIFELEDGER__… environment variables are ignored{}",
         if opts.database_url.is_some() { "" } else { "; no database (--database-url to add one)" }
     );
-    println!(
+    say!(
         "  speed            {:.0} simulated seconds per second ({:.1} simulated days per second)",
         opts.speed,
         opts.speed / 86_400.0
     );
-    println!("  what to watch    day {:.0}: start-up; day {:.0}: over-temperature on outlet leg A (warning); day {:.0}: thermocouple of leg B fails (out-of-range, then stale-tag alarm); day {:.0}: shutdown and restart", 0.0, sim::EXCURSION_DAY, sim::FAILURE_DAY, sim::SHUTDOWN_DAY);
-    println!("  {}", crate::CAUTION);
-    println!("  Ctrl-C stops.");
+    say!("  what to watch    day {:.0}: start-up; day {:.0}: over-temperature on outlet leg A (warning); day {:.0}: thermocouple of leg B fails (out-of-range, then stale-tag alarm); day {:.0}: shutdown and restart", 0.0, sim::EXCURSION_DAY, sim::FAILURE_DAY, sim::SHUTDOWN_DAY);
+    say!("  {}", crate::CAUTION);
+    say!("  Ctrl-C stops.");
 
     let stop = async {
         match opts.duration_s {
@@ -192,7 +203,7 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
         loop {
             match eventloop.poll().await {
                 Ok(rumqttc::Event::Incoming(rumqttc::Packet::Publish(p))) if p.topic == events => {
-                    println!("{}", alarm_line(&p.payload, start_ms));
+                    say!("{}", alarm_line(&p.payload, start_ms));
                 }
                 Ok(rumqttc::Event::Incoming(rumqttc::Packet::ConnAck(_))) => {
                     // A new session after a broker hiccup: subscribe again.
@@ -233,7 +244,7 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
                 let finding_ms = start_ms + (sim::SHUTDOWN_DAY * 86_400_000.0) as i64 + 3_600_000;
                 match inspections::enter(&ledger_path, finding_ms, now_ms()) {
                     Ok(n) if n > 0 => {
-                        println!("  outage inspection: {n} findings entered for {}", inspections::COMPONENT)
+                        say!("  outage inspection: {n} findings entered for {}", inspections::COMPONENT)
                     }
                     Ok(_) => {}
                     Err(e) => tracing::warn!("demo inspection records not entered: {e}"),
@@ -241,7 +252,7 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
             }
             if last_print.elapsed() >= Duration::from_secs(5) {
                 last_print = Instant::now();
-                println!("  simulated day {:.1} — see http://{http}/", (sim_now - start_ms) as f64 / 86_400_000.0);
+                say!("  simulated day {:.1} — see http://{http}/", (sim_now - start_ms) as f64 / 86_400_000.0);
             }
             tokio::time::sleep(Duration::from_millis(50)).await;
         }
@@ -252,14 +263,14 @@ pub async fn run(opts: DemoOptions) -> anyhow::Result<()> {
     publisher.abort();
     sim_loop.abort();
     if opts.state_dir.is_some() {
-        println!("lifeledger demo stopped; the ledger is in {}", dir.display());
+        say!("lifeledger demo stopped; the ledger is in {}", dir.display());
     } else {
         match std::fs::remove_dir_all(&dir) {
-            Ok(()) => println!(
+            Ok(()) => say!(
                 "lifeledger demo stopped; its temporary state {} was removed (--state-dir DIR keeps it)",
                 dir.display()
             ),
-            Err(e) => println!("lifeledger demo stopped; could not remove its temporary state {}: {e}", dir.display()),
+            Err(e) => say!("lifeledger demo stopped; could not remove its temporary state {}: {e}", dir.display()),
         }
     }
     result
