@@ -32,6 +32,8 @@ pub const LEVEL_INDICES: [&str; 5] =
 pub const COMPONENT_STATE: Measurement = Measurement {
     name: "component_state",
     tags: &["plant", "unit", "component", "material"],
+    // In the column order of `replay --format series-csv` (which takes its
+    // columns from here).
     fields: &[
         "metal_temperature_k",
         "pressure_mpa",
@@ -41,11 +43,6 @@ pub const COMPONENT_STATE: Measurement = Measurement {
         "creep_rate_per_h",
         "creep_strain",
         "hours_in_creep_range",
-        "wear_depth_mm",
-        "wear_index",
-        "remaining_life_h",
-        "unmonitored_h",
-        "exhausted",
         "fatigue_stress_mpa",
         "fatigue_thermal_stress_mpa",
         "fatigue_usage",
@@ -53,11 +50,17 @@ pub const COMPONENT_STATE: Measurement = Measurement {
         "fatigue_cycles",
         "fatigue_cycles_last_day",
         "fatigue_cycles_last_month",
+        "wear_depth_mm",
+        "wear_index",
+        // The part's own level reached per index (report::levels).
         "creep_life_fraction_level",
         "creep_strain_level",
         "wear_index_level",
         "fatigue_usage_level",
         "creep_fatigue_index_level",
+        "exhausted",
+        "remaining_life_h",
+        "unmonitored_h",
     ],
     live_only: &["attention_score"],
     patterns: &["<index>_level"],

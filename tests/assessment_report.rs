@@ -14,17 +14,13 @@ mod common;
 
 use std::io::Read;
 use std::path::{Path, PathBuf};
-use std::process::{Command, Stdio};
-use std::time::{Duration, Instant};
+use std::process::Command;
 
 use flate2::read::GzDecoder;
 use lifeledger::store::inspection::NewInspection;
 use lifeledger::store::Store;
 
 const LEG_A: &str = "U2-SH3-OUTLET-LEG-A";
-const CHROMIUM: &str = "/usr/bin/chromium";
-/// Longest a print may take before the test gives up on it.
-const PRINT_BUDGET: Duration = Duration::from_secs(180);
 
 fn record(kind: &str, date: &str, value: f64, detail: &str, method: &str, location: &str) -> NewInspection {
     NewInspection {
@@ -79,46 +75,18 @@ fn demo_ledger(dir: &Path) -> (PathBuf, PathBuf) {
     (config, ledger)
 }
 
-/// Prints `html` to `pdf` with headless Chromium, waiting at most
-/// [`PRINT_BUDGET`].
+/// Prints `html` to `pdf` with the tests' one headless Chromium runner
+/// (bounded; a failed run fails the test with Chromium's stderr).
 fn print_pdf(html: &Path, pdf: &Path) {
-    assert!(
-        Path::new(CHROMIUM).exists(),
-        "{CHROMIUM} is missing: install the Debian package chromium (tests/run does)"
-    );
     let profile = tempfile::tempdir().unwrap();
-    let mut child = Command::new(CHROMIUM)
-        .args([
-            "--headless",
-            "--no-sandbox",
-            "--disable-gpu",
-            "--no-first-run",
-            "--disable-background-networking",
-            "--disable-component-update",
-            "--disable-dev-shm-usage",
-            "--no-pdf-header-footer",
-        ])
-        .arg(format!("--user-data-dir={}", profile.path().display()))
-        .arg(format!("--print-to-pdf={}", pdf.display()))
-        .arg(format!("file://{}", html.display()))
-        .stdin(Stdio::null())
-        .stdout(Stdio::null())
-        .stderr(Stdio::null())
-        .spawn()
-        .expect("start chromium");
-    let start = Instant::now();
-    loop {
-        if let Some(status) = child.try_wait().unwrap() {
-            assert!(status.success(), "chromium printing {} failed: {status}", html.display());
-            break;
-        }
-        if start.elapsed() > PRINT_BUDGET {
-            let _ = child.kill();
-            let _ = child.wait();
-            panic!("chromium did not print {} to PDF within {} s", html.display(), PRINT_BUDGET.as_secs());
-        }
-        std::thread::sleep(Duration::from_millis(100));
-    }
+    let print = format!("--print-to-pdf={}", pdf.display());
+    common::chromium::run(
+        &format!("file://{}", html.display()),
+        2_000,
+        &["--no-pdf-header-footer", &print],
+        profile.path(),
+        &[],
+    );
     assert!(pdf.exists(), "chromium ended without writing {}", pdf.display());
 }
 

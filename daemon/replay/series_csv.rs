@@ -14,38 +14,12 @@
 use crate::lineproto::{FieldValue, Point};
 use std::io::{self, Write};
 
-/// Tag columns, after `time`.
-pub const TAGS: [&str; 4] = ["plant", "unit", "component", "material"];
+/// Tag columns, after `time`: the data model's tags of `component_state`.
+pub const TAGS: &[&str] = crate::series_model::COMPONENT_STATE.tags;
 
-/// Field columns: every field `report::component_point` writes.
-pub const FIELDS: [&str; 25] = [
-    "metal_temperature_k",
-    "pressure_mpa",
-    "hoop_stress_mpa",
-    "creep_life_fraction",
-    "damage_rate_per_h",
-    "creep_rate_per_h",
-    "creep_strain",
-    "hours_in_creep_range",
-    "fatigue_stress_mpa",
-    "fatigue_thermal_stress_mpa",
-    "fatigue_usage",
-    "creep_fatigue_index",
-    "fatigue_cycles",
-    "fatigue_cycles_last_day",
-    "fatigue_cycles_last_month",
-    "wear_depth_mm",
-    "wear_index",
-    // The part's own level reached per index (report::levels).
-    "creep_life_fraction_level",
-    "creep_strain_level",
-    "wear_index_level",
-    "fatigue_usage_level",
-    "creep_fatigue_index_level",
-    "exhausted",
-    "remaining_life_h",
-    "unmonitored_h",
-];
+/// Field columns: the data model's `component_state` fields every writer
+/// gives (the live-only attention score is not a replay column).
+pub const FIELDS: &[&str] = crate::series_model::COMPONENT_STATE.fields;
 
 /// The header line (no line ending).
 pub fn header() -> String {
@@ -153,7 +127,7 @@ mod tests {
             assert!(row(&p).is_ok(), "{p:?}");
         }
         for f in FIELDS {
-            assert!(seen.contains(f), "column {f} is never written by component_point");
+            assert!(seen.contains(*f), "column {f} is never written by component_point");
         }
     }
 

@@ -19,6 +19,16 @@
 //! them from there. Once a UTC day of event time, each component's ledger
 //! and its tags' states are copied into the store's checkpoints in the same
 //! transaction too (`crate::recovery::checkpoint_rows`), for rollback.
+//!
+//! The thread is a shell around pure parts, each unit-tested without a
+//! broker or a store: [`intake`] (topic and payload to a sample, or the
+//! reason it is refused), [`series`] (points at event-time spacing),
+//! [`rows`] (one commit's rows, and what a failed attempt gives back),
+//! [`step`] (the batch: acknowledge and publish only after the commit),
+//! [`gate`] (intake held over the outbox quota), [`stored`] (the loaded
+//! ledger, typed) and the sensor judgement ([`sensors`]). What stays here
+//! is I/O and clocks: the channel, the store, the MQTT client, the wall
+//! and monotonic clocks, the snapshot.
 
 use super::command_reply::{command_action, command_id, CommandReply};
 use super::commit_retry::{AfterFailure, CommitRetry};
@@ -27,15 +37,13 @@ use super::settings::ServiceSettings;
 use super::snapshot::{ComponentFreshness, Freshness, ServiceCounters, Snapshot, TagFreshness};
 use crate::alarm::{carries_token, parse_command, AlarmBook, AlarmError, AlarmEvent, AlarmIndex};
 use crate::engine::tags::{tag_index, TagIndex};
-use crate::engine::{ComponentState, Engine, Rejection, Sample, TagState};
+use crate::engine::{ComponentState, Engine, Rejection, TagState};
 use crate::event_time::rfc3339_ms;
-use crate::ingest::decode::{decode_payload, PayloadSettings, TopicTemplate};
+use crate::ingest::decode::{PayloadSettings, TopicTemplate};
 use crate::ingest::{now_ms, CommandOutcome, Inbound};
-use crate::report::{
-    capped, component_point, threshold_points, ComponentReport, CREEP_STRAIN_CEILING, DISPLAY_CEILING,
-};
+use crate::report::{threshold_points, ComponentReport};
 use crate::settings::LoadedConfig;
-use crate::store::{Commit, JournalEntry, Store, TrendPoint};
+use crate::store::Store;
 use rumqttc::{AsyncClient, Publish, QoS};
 use std::collections::{BTreeSet, HashMap};
 use std::sync::Arc;
@@ -106,9 +114,10 @@ pub struct Ledger {
     clock: Instant,
     /// The message being handled carried a sample of a configured tag.
     took_sample: bool,
-    dirty_tags: BTreeSet<usize>,
-    dirty_alarms: BTreeSet<String>,
-    next_series_ms: Vec<i64>,
+    /// What the next commit writes besides the batch ([`rows`]).
+    pending: rows::Pending,
+    /// When each component's next series point is due ([`series`]).
+    series: series::SeriesClock,
     /// Newest event time seen on any tag.
     newest_ms: Option<i64>,
     /// Per-tag sensor judgement ([`sensors::SensorJudge`]).
@@ -137,25 +146,10 @@ pub struct Ledger {
     outbox: crate::store::OutboxStats,
     /// Intake held while the outbox is over its quota ([`gate`]).
     gate: gate::IntakeGate,
-    /// Outbox lines not tied to a component change (thresholds, health).
-    extra_outbox: Vec<String>,
-    /// Trend points of a commit that failed, written with the next one
-    /// (like `extra_outbox`).
-    trend_points: Vec<(String, TrendPoint)>,
     recent_events: std::collections::VecDeque<AlarmEvent>,
     /// Commit even with nothing pending (an HTTP command changed alarms).
     force_commit: bool,
     last_sensor_check: Instant,
-    /// Reorder-window changes not yet committed (kept across a failed
-    /// commit, like the outbox lines).
-    held_added: Vec<(crate::engine::TagId, crate::engine::HeldSample)>,
-    held_released: Vec<u64>,
-    /// Scratch list of components the engine advanced.
-    touched: Vec<u32>,
-    /// Per component: event time from which threshold lines are due again.
-    next_threshold_ms: Vec<i64>,
-    /// Series points made but not yet committed to the outbox.
-    series_pending: u64,
     /// When to try a failed commit again, and when to give up.
     retry: CommitRetry,
     /// The last commit error while commits fail (readiness shows it).
@@ -172,8 +166,6 @@ pub struct Ledger {
     /// HTTP commands carried out but not yet committed: the component
     /// addressed and where the outcome goes once the commit succeeded.
     command_replies: Vec<(crate::alarm::AlarmTarget, tokio::sync::oneshot::Sender<CommandOutcome>)>,
-    /// Inspection records accepted into the engine, written with the next commit.
-    inspections_accepted: Vec<(i64, String)>,
     /// Subscriptions in force and what the last reloads left undone.
     reloads: Reloads,
     /// Where the newest committed event sequence number goes for the alarm
@@ -191,10 +183,6 @@ struct Reloads {
     /// Why the last reload was refused (cleared by one that is applied).
     refused: Option<String>,
 }
-
-/// Threshold lines go out with a component's series at most this often in
-/// event time (1 h), besides start-up and reloads.
-const THRESHOLD_REFRESH_MS: i64 = 3_600_000;
 
 /// Seconds of wall time between two publications of every retained alarm
 /// state (besides every connection and every change).
@@ -311,9 +299,8 @@ impl Ledger {
             batch: step::Batch::default(),
             clock: Instant::now(),
             took_sample: false,
-            dirty_tags: BTreeSet::new(),
-            dirty_alarms: BTreeSet::new(),
-            next_series_ms: vec![i64::MIN; ncomp],
+            pending: rows::Pending::default(),
+            series: series::SeriesClock::new(ncomp),
             newest_ms,
             sensors: sensors::SensorJudge::new(ntags, now_ms()),
             next_event_seq: stored.next_event_seq,
@@ -338,16 +325,9 @@ impl Ledger {
             mqtt_connected: false,
             outbox: stats,
             gate: gate::IntakeGate::default(),
-            extra_outbox: vec![],
-            trend_points: vec![],
             recent_events,
             force_commit: false,
             last_sensor_check: Instant::now() - Duration::from_secs(60),
-            held_added: vec![],
-            held_released: vec![],
-            touched: vec![],
-            next_threshold_ms: vec![i64::MIN; ncomp],
-            series_pending: 0,
             retry: CommitRetry::new(commit_failure_limit(&service)),
             commit_error: None,
             fatal: None,
@@ -360,7 +340,6 @@ impl Ledger {
             database_link: None,
             database_refused: false,
             command_replies: vec![],
-            inspections_accepted: vec![],
             event_feed: None,
             service,
         };
@@ -408,7 +387,7 @@ impl Ledger {
         for c in &self.cfg.plan.components {
             lines.extend(threshold_points(&plant, c, t).into_iter().filter_map(|p| p.to_line()));
         }
-        self.extra_outbox.extend(lines);
+        self.pending.lines.extend(lines);
     }
 
     /// The subscription filters: tag templates and the command topic.
@@ -472,7 +451,7 @@ impl Ledger {
                     continue;
                 }
             }
-            if self.batch.is_empty() && (!self.extra_outbox.is_empty() || self.force_commit) {
+            if self.batch.is_empty() && (!self.pending.lines.is_empty() || self.force_commit) {
                 // Rows without messages (series, health, a command) wait
                 // for the group-commit interval like a batch of messages.
                 self.batch.open(self.mono_ms());
@@ -482,7 +461,7 @@ impl Ledger {
                 self.service.store.commit_interval_ms,
                 self.service.store.commit_max_samples,
             );
-            let msg = if matches!(due, step::Due::Idle) && self.extra_outbox.is_empty() && !self.force_commit {
+            let msg = if matches!(due, step::Due::Idle) && self.pending.lines.is_empty() && !self.force_commit {
                 match rt.block_on(async { tokio::time::timeout(Duration::from_millis(500), rx.recv()).await }) {
                     Ok(Some(m)) => {
                         self.batch.open(self.mono_ms());
@@ -563,7 +542,7 @@ impl Ledger {
         self.database_check();
         // Commit what the releases and the checks produced before the
         // snapshot is published, so it never shows a point not yet queued.
-        if !self.batch.events().is_empty() || !self.extra_outbox.is_empty() || !self.trend_points.is_empty() {
+        if !self.batch.events().is_empty() || !self.pending.lines.is_empty() || !self.pending.trend_points.is_empty() {
             self.commit();
         }
         if let Ok(s) = self.store.outbox_stats() {
@@ -584,7 +563,7 @@ impl Ledger {
         if self.last_health.elapsed() >= Duration::from_secs(self.service.store.health_interval_s.max(1)) {
             self.last_health = Instant::now();
             let p = self.health_point(now);
-            self.extra_outbox.push(p);
+            self.pending.lines.push(p);
             self.commit();
         }
         self.publish_snapshot(false);
@@ -774,42 +753,38 @@ impl Ledger {
     }
 
     fn sample(&mut self, topic: &str, payload: &[u8], received_ms: i64) {
-        let Some((tag, p)) = self.templates.iter().find_map(|(t, p)| t.tag_for(topic).map(|tag| (tag, p))) else {
-            self.reject("unknown_topic", topic, "no topic template matches".into());
-            return;
-        };
-        let d = match decode_payload(p, payload, received_ms) {
-            Ok(d) => d,
-            Err(e) => {
-                let reason = e.reason();
-                self.reject(reason, topic, e.to_string());
+        let taken = match intake::take(&self.templates, &self.index, topic, payload, received_ms) {
+            Ok(t) => t,
+            Err(intake::Refused::UnknownTopic) => {
+                return self.reject("unknown_topic", topic, "no topic template matches".into());
+            }
+            Err(intake::Refused::Decode { reason, detail }) => return self.reject(reason, topic, detail),
+            Err(intake::Refused::UnknownTag(tag)) => {
+                self.engine.count_unknown_tag();
+                self.log.warn("unknown_tag", || format!("message on {topic}: tag {tag:?} is not in the configuration"));
                 return;
             }
         };
-        if d.receive_time {
+        if taken.receive_time {
             self.counters.receive_time_used += 1;
         }
-        let Some(&id) = self.index.get(tag.as_str()) else {
-            self.engine.count_unknown_tag();
-            self.log.warn("unknown_tag", || format!("message on {topic}: tag {tag:?} is not in the configuration"));
-            return;
-        };
         self.took_sample = true;
-        let s = Sample { tag: id, time_ms: d.time_ms, value: d.value, quality: d.quality };
+        let (s, tag) = (taken.sample, taken.tag);
+        let id = s.tag;
         // The receive time is the wall clock the event time is judged by.
         let r = self.engine.offer(&s, received_ms);
         self.collect_series();
         let ti = id as usize;
         match r {
             Ok(()) => {
-                self.newest_ms = Some(self.newest_ms.map_or(d.time_ms, |n| n.max(d.time_ms)));
+                self.newest_ms = Some(self.newest_ms.map_or(s.time_ms, |n| n.max(s.time_ms)));
                 self.sensors.accepted(ti, received_ms);
             }
             Err(reason) => {
                 self.log.warn(reason.name(), || {
-                    format!("sample of {tag} at {} rejected: {}", rfc3339_ms(d.time_ms), reason.name())
+                    format!("sample of {tag} at {} rejected: {}", rfc3339_ms(s.time_ms), reason.name())
                 });
-                self.sensors.rejected(ti, reason, d.time_ms, received_ms);
+                self.sensors.rejected(ti, reason, s.time_ms, received_ms);
             }
         }
     }
@@ -853,71 +828,13 @@ impl Ledger {
     /// reorder window, each clock advance), so a burst of scans committed
     /// together still gives one point per interval, as `replay` does.
     fn collect_series(&mut self) {
-        let mut touched = std::mem::take(&mut self.touched);
-        self.engine.drain_touched(&mut touched);
-        if touched.is_empty() {
-            self.touched = touched;
-            return;
-        }
-        let plant = &self.cfg.plan.plant;
-        let interval = self.service.store.series_interval_s.max(1) * 1000;
-        for &ci in &touched {
-            let ci = ci as usize;
-            let plan = &self.engine.plan().components[ci];
-            let st = &self.engine.components()[ci];
-            let Some(t) = st.integrated_to_ms else { continue };
-            // No point before the conditions are known (only the first
-            // sample seen): the rule replay keeps too.
-            if t < self.next_series_ms[ci] || !crate::report::conditions_known(plan, st) {
-                continue;
-            }
-            let mut point = component_point(plant, plan, st, t);
-            // The attention score of the latest published snapshot (at most
-            // one snapshot period old): the ranking needs every part's alarms.
-            let score = self
-                .snapshot_tx
-                .borrow()
-                .components
-                .get(ci)
-                .filter(|c| c.component == plan.name)
-                .and_then(|c| c.attention_score);
-            if let Some(a) = score {
-                point = point.float("attention_score", a);
-            }
-            if let Some(l) = point.to_line() {
-                self.extra_outbox.push(l);
-                self.series_pending += 1;
-            }
-            self.trend_points.push((
-                plan.name.clone(),
-                TrendPoint {
-                    t,
-                    metal_temperature_c: crate::physics::units::kelvin_to_celsius(st.now.metal_temperature_k),
-                    pressure_mpa: st.now.pressure_mpa,
-                    hoop_stress_mpa: st.now.hoop_stress_mpa,
-                    // As reports show them: capped past exhaustion.
-                    creep_life_fraction: capped(st.life_fraction, DISPLAY_CEILING),
-                    creep_strain: capped(st.creep_strain, CREEP_STRAIN_CEILING),
-                    wear_index: capped(st.wear_index(plan), DISPLAY_CEILING),
-                    fatigue_stress_mpa: st
-                        .fatigue
-                        .as_ref()
-                        .filter(|_| plan.fatigue.is_some())
-                        .map_or(f64::NAN, |f| f.stress_mpa),
-                    fatigue_usage: crate::engine::fatigue::figures(plan, st).map_or(f64::NAN, |f| f.fatigue_usage),
-                    wear: wear_inputs::at(plan, self.engine.tags(), t),
-                },
-            ));
-            // Threshold lines beside the series at most once an hour of
-            // event time per component (and at start and reload): they
-            // change only with the configuration.
-            if t >= self.next_threshold_ms[ci] {
-                self.extra_outbox.extend(threshold_points(plant, plan, t).into_iter().filter_map(|p| p.to_line()));
-                self.next_threshold_ms[ci] = (t.div_euclid(THRESHOLD_REFRESH_MS) + 1) * THRESHOLD_REFRESH_MS;
-            }
-            self.next_series_ms[ci] = (t.div_euclid(interval) + 1) * interval;
-        }
-        self.touched = touched;
+        // The attention score of the latest published snapshot (at most
+        // one snapshot period old): the ranking needs every part's alarms.
+        let snapshot = self.snapshot_tx.borrow();
+        let attention = |ci: usize, name: &str| {
+            snapshot.components.get(ci).filter(|c| c.component == name).and_then(|c| c.attention_score)
+        };
+        self.series.collect(&mut self.engine, self.service.store.series_interval_s, attention, &mut self.pending);
     }
 
     /// Write the batch in one transaction, then acknowledge and publish.
@@ -927,19 +844,8 @@ impl Ledger {
             return;
         }
         self.collect_series();
-        let changed = self.engine.take_changed();
-        self.dirty_tags.extend(self.engine.take_changed_tags());
-        let held = self.engine.take_held_changes();
-        self.held_added.extend(held.added);
-        self.held_released.extend(held.released);
-        if changed.is_empty()
-            && self.held_added.is_empty()
-            && self.held_released.is_empty()
-            && self.batch.is_empty()
-            && self.extra_outbox.is_empty()
-            && self.dirty_alarms.is_empty()
-            && self.trend_points.is_empty()
-        {
+        let changed = self.pending.take_engine_changes(&mut self.engine);
+        if changed.is_empty() && self.pending.is_empty() && self.batch.is_empty() {
             self.force_commit = false;
             // Nothing to write: what the commands did is already durable.
             self.answer_commands();
@@ -947,99 +853,35 @@ impl Ledger {
         }
         self.force_commit = false;
         let started = Instant::now();
-        let plant = self.cfg.plan.plant.clone();
-        let mut components = Vec::with_capacity(changed.len());
-        let mut outbox = std::mem::take(&mut self.extra_outbox);
-        let trend_points = std::mem::take(&mut self.trend_points);
+        // Every changed ledger judged at its own integration frontier.
         for &ci in &changed {
-            let plan = &self.engine.plan().components[ci];
-            let st = &self.engine.components()[ci];
-            components.push((plan.name.clone(), serde_json::to_string(st).unwrap_or_default()));
+            let (plan, st) = (&self.engine.plan().components[ci], &self.engine.components()[ci]);
             if let Some(t) = st.integrated_to_ms {
                 let ev = self.book.evaluate_component(plan, st, t);
-                for e in &ev {
-                    self.dirty_alarms.insert(e.key());
-                }
-                self.batch.note_events(ev);
+                self.note_events(ev);
             }
         }
         self.sensor_check();
         self.database_check();
-        let tags: Vec<(String, String)> = self
-            .dirty_tags
-            .iter()
-            .map(|&ti| {
-                (
-                    self.engine.plan().tags[ti].name.clone(),
-                    serde_json::to_string(&self.engine.tags()[ti]).unwrap_or_default(),
-                )
-            })
-            .collect();
-        let alarms: Vec<(String, String)> = self
-            .dirty_alarms
-            .iter()
-            .filter_map(|k| self.book.record(k).map(|r| (k.clone(), serde_json::to_string(r).unwrap_or_default())))
-            .collect();
-        // The events' lines are made afresh by each attempt: a failed one
-        // keeps everything before them, not them (no duplicates on retries).
-        let before_events = outbox.len();
-        // Sequence numbers, given afresh by each attempt (the count moves
-        // only when one succeeds), so consumers can see a gap.
+        // The rows of this attempt (pure, [`rows`]); the events are numbered
+        // afresh by each attempt, from the durable count, so consumers can
+        // see a gap and a retry never writes an event twice.
         let plan = self.batch.plan(self.next_event_seq);
-        let seq_next = plan.next_seq;
-        for e in &plan.events {
-            if let Some(l) = e.to_point(&plant).to_line() {
-                outbox.push(l);
-            }
-        }
-        if self.service.database.is_none() {
-            // No database configured: nothing will ever drain an outbox.
-            outbox.clear();
-        }
-        let meta = vec![
-            ("engine_counters".to_string(), serde_json::to_string(self.engine.counters()).unwrap_or_default()),
-            ("decode_rejected".to_string(), serde_json::to_string(&self.counters.decode_rejected).unwrap_or_default()),
-            ("alarm_event_seq".to_string(), seq_next.to_string()),
-        ];
-        let journal: Vec<JournalEntry> = plan
-            .events
-            .iter()
-            .map(|e| JournalEntry {
-                time_ms: e.time_ms,
-                component: e.component.clone(),
-                index: e.index.name().to_string(),
-                event: e.to_json(),
-            })
-            .collect();
-        let tag_names = &self.engine.plan().tags;
-        let held_added: Vec<crate::store::held::HeldRow> = self
-            .held_added
-            .iter()
-            .map(|(t, h)| crate::store::held::HeldRow {
-                seq: h.seq,
-                tag: tag_names[*t as usize].name.as_str(),
-                time_ms: h.time_ms,
-                value: h.value,
-                arrival_ms: h.arrival_ms,
-            })
-            .collect();
+        let rows = self.pending.rows(
+            &self.engine,
+            &self.book,
+            changed,
+            &plan,
+            &self.counters.decode_rejected,
+            self.service.database.is_some(),
+        );
         // A daily copy of each changed component whose day has turned.
-        let checkpoints = crate::recovery::checkpoint_rows(&self.engine, &changed, &self.store);
-        let commit = Commit {
-            held_added: &held_added,
-            held_released: &self.held_released,
-            components: &components,
-            tags: &tags,
-            alarms: &alarms,
-            meta: &meta,
-            outbox: &outbox,
-            alarm_events: &journal,
-            trend_points: &trend_points,
-            checkpoints: &checkpoints,
-            inspections_accepted: &self.inspections_accepted,
-            history: &crate::inspection::history_points(&self.engine, &changed),
-        };
-        match self.store.commit(&commit) {
+        let checkpoints = crate::recovery::checkpoint_rows(&self.engine, &rows.changed, &self.store);
+        let history = crate::inspection::history_points(&self.engine, &rows.changed);
+        let held = self.pending.held_rows(&self.engine);
+        let outcome = self.store.commit(&rows.commit(&self.pending, &held, &checkpoints, &history));
+        drop(held);
+        match outcome {
             Ok(stats) => {
                 if let Some(d) = self.retry.succeeded(Instant::now()) {
                     tracing::info!("ledger commits succeed again after failing for {:.1} s", d.as_secs_f64());
@@ -1049,7 +891,7 @@ impl Ledger {
                 self.outbox = stats.outbox;
                 let ms = started.elapsed().as_secs_f64() * 1000.0;
                 // Counted once the points are in the outbox, not before.
-                self.counters.series_points += std::mem::take(&mut self.series_pending);
+                self.counters.series_points += self.pending.committed(rows);
                 let c = &mut self.counters;
                 c.commits += 1;
                 c.last_commit_ms = ms;
@@ -1064,11 +906,6 @@ impl Ledger {
                         c.acked += 1;
                     }
                 }
-                self.dirty_tags.clear();
-                self.held_added.clear();
-                self.held_released.clear();
-                self.inspections_accepted.clear();
-                self.dirty_alarms.clear();
                 self.next_event_seq = after.next_seq;
                 let events = after.publish;
                 self.kpi.record(&events);
@@ -1110,12 +947,7 @@ impl Ledger {
                         self.service.store.commit_failure_limit_s
                     ));
                 }
-                for &ci in &changed {
-                    self.engine.mark_changed(ci);
-                }
-                outbox.truncate(before_events);
-                self.extra_outbox = outbox;
-                self.trend_points = trend_points;
+                self.pending.failed(rows, &mut self.engine);
             }
         }
         self.publish_snapshot(false);
@@ -1171,7 +1003,7 @@ impl Ledger {
 
     fn note_events(&mut self, ev: Vec<AlarmEvent>) {
         for e in &ev {
-            self.dirty_alarms.insert(e.key());
+            self.pending.dirty_alarms.insert(e.key());
         }
         self.batch.note_events(ev);
     }
@@ -1284,8 +1116,7 @@ impl Ledger {
         self.store.set_trend_points_per_component(service.store.trend_points_per_component);
         self.store.set_checkpoint_days(service.store.checkpoint_days);
         self.retry.set_give_up_after(commit_failure_limit(&service));
-        self.next_series_ms = vec![i64::MIN; cfg.plan.components.len()];
-        self.next_threshold_ms = vec![i64::MIN; cfg.plan.components.len()];
+        self.series = series::SeriesClock::new(cfg.plan.components.len());
         self.cfg = Arc::new(cfg);
         self.service = service;
         let t = self.newest_ms.unwrap_or_else(now_ms);
@@ -1408,8 +1239,11 @@ impl Ledger {
 
 pub mod gate;
 mod inspection;
+mod intake;
+pub mod rows;
 #[path = "ledger_sensors.rs"]
 mod sensors;
+mod series;
 pub mod step;
 mod stored;
 mod wear_inputs;
@@ -1474,7 +1308,7 @@ mod tests {
             assert!(l.retry.failing(), "attempt {attempt} failed");
             assert_eq!(l.counters.commit_failures, attempt);
             assert!(l.commit_error.as_deref().is_some_and(|e| e.contains("refused")), "{:?}", l.commit_error);
-            assert!(!l.extra_outbox.iter().any(|p| p.starts_with("alarm_event,")), "{:?}", l.extra_outbox);
+            assert!(!l.pending.lines.iter().any(|p| p.starts_with("alarm_event,")), "{:?}", l.pending.lines);
         }
         // Until the wait is over, commit() does not even try.
         l.commit();

@@ -41,6 +41,11 @@ pub use victoria::{ExportedSeries, VictoriaMetrics};
 pub const POLL_TRIES: u32 = 1200;
 /// Pause between two tries of [`poll_until`].
 pub const POLL_PAUSE: Duration = Duration::from_millis(50);
+/// How many [`POLL_PAUSE`]s a command run by [`BoundedOutput`] may take to
+/// exit (5 minutes): a guard against a hang, not a speed limit, so it is
+/// generous enough for a debug-build replay of the demo history on a
+/// loaded 2-core machine (about 70 s seen there, against 10 s when quiet).
+pub const EXIT_TRIES: u32 = 6000;
 
 /// A TCP port on 127.0.0.1 that was free a moment ago (bind to port 0 and
 /// let the kernel choose). Another process could take it before the server
@@ -107,7 +112,7 @@ fn run_within_budget(cmd: &mut std::process::Command, what: &str) -> std::proces
         .spawn()
         .unwrap_or_else(|e| panic!("cannot start {what}: {e}"));
     let mut status = None;
-    for _ in 0..POLL_TRIES {
+    for _ in 0..EXIT_TRIES {
         if let Some(s) = child.try_wait().unwrap() {
             status = Some(s);
             break;
@@ -118,7 +123,7 @@ fn run_within_budget(cmd: &mut std::process::Command, what: &str) -> std::proces
         let _ = child.kill();
         let _ = child.wait();
         panic!(
-            "{what} did not exit within {POLL_TRIES} polls {POLL_PAUSE:?} apart; stderr:\n{}",
+            "{what} did not exit within {EXIT_TRIES} polls {POLL_PAUSE:?} apart; stderr:\n{}",
             std::fs::read_to_string(&err_path).unwrap_or_default()
         );
     };

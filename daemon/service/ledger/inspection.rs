@@ -11,13 +11,17 @@ impl Ledger {
     /// components' new states.
     pub(super) fn take_inspections(&mut self) {
         let mut skipped = vec![];
-        match crate::inspection::accept_pending(&mut self.engine, &self.store, &self.inspections_accepted, &mut skipped)
-        {
+        match crate::inspection::accept_pending(
+            &mut self.engine,
+            &self.store,
+            &self.pending.inspections_accepted,
+            &mut skipped,
+        ) {
             Ok(new) if !new.is_empty() => {
                 for (id, _) in &new {
                     tracing::info!("inspection record {id} accepted into the ledger");
                 }
-                self.inspections_accepted.extend(new);
+                self.pending.inspections_accepted.extend(new);
                 self.force_commit = true;
                 self.commit();
             }
