@@ -16,8 +16,6 @@
 //! CAUTION: what a finding does to the ledger rests on built-in screening
 //! correlations (see `physics::inspection`); they are not authoritative.
 
-pub mod cli;
-
 use serde::{Deserialize, Serialize};
 
 use crate::engine::inspection::{Event, Finding, NewFinding, Reference};

@@ -17,7 +17,9 @@
 //! * [`report`]: human and JSON renderings of ledgers and derived checks.
 //! * [`assessment`]: the assessment report (HTML, CSV, JSON) of `lifeledger report`.
 //! * [`store`]: the durable ledger (SQLite, one transaction per batch).
-//! * [`recovery`]: checkpoints, rollback and backfill of a poisoned ledger.
+//! * [`ledger_file`]: a ledger file's contents typed (the stored ledger,
+//!   the daily checkpoints), shared by the service, recovery and reports.
+//! * [`recovery`]: rollback, backfill and resend of a poisoned ledger.
 //! * [`sink`]: delivery of line protocol to the time-series database.
 //! * [`alarm`]: threshold alarms with ISA-18.2 states.
 //! * [`inspection`]: inspection records between people, the ledger file and the engine.
@@ -34,6 +36,7 @@ pub mod event_time;
 pub mod fit;
 pub mod ingest;
 pub mod inspection;
+pub mod ledger_file;
 pub mod lineproto;
 pub mod physics;
 pub mod recovery;

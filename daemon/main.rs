@@ -341,7 +341,7 @@ enum Command {
     #[command(after_help = CAUTION_HELP)]
     Inspection {
         #[command(subcommand)]
-        cmd: lifeledger::inspection::cli::InspectionCommand,
+        cmd: lifeledger::service::inspection_cli::InspectionCommand,
     },
 }
 
@@ -454,7 +454,7 @@ fn main() {
         }
         Command::Materials { action } => cmd_materials(action),
         Command::Fit { cmd } => lifeledger::fit::run(&cmd).map(|_| 0),
-        Command::Inspection { cmd } => lifeledger::inspection::cli::run(&cmd),
+        Command::Inspection { cmd } => lifeledger::service::inspection_cli::run(&cmd),
         Command::Report { config, ledger, component, unit, out, shift_k } => {
             let scope = match (component, unit) {
                 (Some(c), _) => lifeledger::assessment::Scope::Component(c),
@@ -737,7 +737,7 @@ fn cmd_ledger(config: &std::path::Path, format: Format) -> Result<i32> {
     let (cfg, service) = lifeledger::service::load_service(config)?;
     let path = &service.store.path;
     let loaded = lifeledger::store::read_ledger(path)?;
-    let stored = lifeledger::service::ledger::StoredLedger::parse(&loaded, path)?;
+    let stored = lifeledger::ledger_file::StoredLedger::parse(&loaded, path)?;
     for (key, e) in &stored.unreadable_alarms {
         eprintln!("warning: ledger {}: alarm record {key} unreadable ({e}); not shown", path.display());
     }

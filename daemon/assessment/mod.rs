@@ -659,7 +659,7 @@ pub fn build(
     // ledger (see `store::read_ledger_beside`).
     let loaded =
         if beside_the_service { crate::store::read_ledger_beside(path)? } else { crate::store::read_ledger(path)? };
-    let stored = crate::service::ledger::StoredLedger::parse(&loaded, path)?;
+    let stored = crate::ledger_file::StoredLedger::parse(&loaded, path)?;
     let mut engine = Engine::new(cfg.plan.clone());
     engine.import_state(stored.engine);
     let journal = crate::store::JournalReader::new(path);

@@ -25,11 +25,11 @@ use std::path::PathBuf;
 use anyhow::Context;
 use serde::Serialize;
 
-use super::checkpoint::checkpoint_rows;
 use super::rollback::Figures;
 use crate::engine::{Counters, Engine};
+use crate::ledger_file::checkpoint_rows;
+use crate::ledger_file::StoredLedger;
 use crate::replay::{open_input, ReplayOptions, ReplayOutcome};
-use crate::service::ledger::StoredLedger;
 use crate::service::ServiceSettings;
 use crate::settings::LoadedConfig;
 use crate::store::{Commit, Store};

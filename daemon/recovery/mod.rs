@@ -1,12 +1,12 @@
 //! Recovery of a poisoned ledger: the way back after a bad gateway clock or
 //! a bad historian export put wrong hours into a service's ledger.
 //!
-//! Three pieces, each small:
+//! The daily checkpoints they start from are made by the ledger thread
+//! with every commit (`crate::ledger_file::checkpoint_rows`: each
+//! component's whole ledger, and the states of the tags it reads, copied
+//! once per UTC day of event time; the store keeps them, see
+//! `crate::store::checkpoint`). Here:
 //!
-//! * [`checkpoint`]: what the ledger thread hands the store with every
-//!   commit so that each component's whole ledger, and the states of the
-//!   tags it reads, are copied once per UTC day of event time (the store
-//!   keeps them, see `crate::store::checkpoint`).
 //! * [`rollback`]: `lifeledger rollback` puts one component, or every
 //!   component, back to its newest checkpoint at or before a given time,
 //!   rewinds the tags it reads, and records who did it and why in the
@@ -29,10 +29,8 @@
 //! done.
 
 pub mod backfill;
-pub mod checkpoint;
 pub mod resend;
 pub mod rollback;
 
 pub use backfill::{backfill, BackfillOutcome};
-pub use checkpoint::{checkpoint_rows, Checkpoint};
 pub use rollback::{plan_rollback, rollback, RollbackOutcome, RollbackPlan, RollbackRequest, Scope};

@@ -43,10 +43,10 @@ use std::path::PathBuf;
 use anyhow::Context;
 use serde::Serialize;
 
-use super::checkpoint::Checkpoint;
 use crate::engine::{ComponentState, Engine, TagState};
 use crate::event_time::rfc3339_ms;
-use crate::service::ledger::StoredLedger;
+use crate::ledger_file::Checkpoint;
+use crate::ledger_file::StoredLedger;
 use crate::service::ServiceSettings;
 use crate::settings::LoadedConfig;
 use crate::store::{JournalEntry, Restore, Store};

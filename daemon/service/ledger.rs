@@ -18,14 +18,14 @@
 //! the store's trend table in the same transaction, and the HTTP side reads
 //! them from there. Once a UTC day of event time, each component's ledger
 //! and its tags' states are copied into the store's checkpoints in the same
-//! transaction too (`crate::recovery::checkpoint_rows`), for rollback.
+//! transaction too (`crate::ledger_file::checkpoint_rows`), for rollback.
 //!
 //! The thread is a shell around pure parts, each unit-tested without a
 //! broker or a store: [`intake`] (topic and payload to a sample, or the
 //! reason it is refused), [`series`] (points at event-time spacing),
 //! [`rows`] (one commit's rows, and what a failed attempt gives back),
 //! [`step`] (the batch: acknowledge and publish only after the commit),
-//! [`gate`] (intake held over the outbox quota), [`stored`] (the loaded
+//! [`gate`] (intake held over the outbox quota), `ledger_file` (the loaded
 //! ledger, typed) and the sensor judgement ([`sensors`]). What stays here
 //! is I/O and clocks: the channel, the store, the MQTT client, the wall
 //! and monotonic clocks, the snapshot.
@@ -50,7 +50,7 @@ use std::sync::Arc;
 use std::time::{Duration, Instant};
 use tokio::sync::{mpsc, watch};
 
-pub use stored::StoredLedger;
+use crate::ledger_file::StoredLedger;
 
 /// Control messages from the main task.
 #[derive(Debug)]
@@ -876,7 +876,7 @@ impl Ledger {
             self.service.database.is_some(),
         );
         // A daily copy of each changed component whose day has turned.
-        let checkpoints = crate::recovery::checkpoint_rows(&self.engine, &rows.changed, &self.store);
+        let checkpoints = crate::ledger_file::checkpoint_rows(&self.engine, &rows.changed, &self.store);
         let history = crate::inspection::history_points(&self.engine, &rows.changed);
         let held = self.pending.held_rows(&self.engine);
         let outcome = self.store.commit(&rows.commit(&self.pending, &held, &checkpoints, &history));
@@ -1245,7 +1245,6 @@ pub mod rows;
 mod sensors;
 mod series;
 pub mod step;
-mod stored;
 mod wear_inputs;
 
 #[cfg(test)]

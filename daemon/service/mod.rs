@@ -31,6 +31,7 @@ pub mod commit_retry;
 pub mod event_publish;
 pub mod http;
 pub mod http_inspection;
+pub mod inspection_cli;
 pub mod ledger;
 pub mod outbox;
 pub mod page;

@@ -98,7 +98,7 @@ pub enum InspectionCommand {
 
 /// The detail JSON of the arguments.
 fn detail_of(a: &FindingArgs) -> String {
-    let d = super::Detail {
+    let d = crate::inspection::Detail {
         class: a.class.clone(),
         rebase: a.rebase,
         service_h: a.service_hours,
@@ -145,7 +145,7 @@ pub fn line(r: &InspectionRow, all: &[InspectionRow]) -> String {
     let value = match (r.value, r.kind.as_str()) {
         (_, "replica") => format!(
             "class {}",
-            serde_json::from_str::<super::Detail>(&r.detail).ok().and_then(|d| d.class).unwrap_or_default()
+            serde_json::from_str::<crate::inspection::Detail>(&r.detail).ok().and_then(|d| d.class).unwrap_or_default()
         ),
         (Some(v), _) => format!("{v} {}", r.unit),
         (None, _) => String::new(),
@@ -193,7 +193,7 @@ fn append(component: String, supersedes: Option<i64>, a: &FindingArgs) -> Result
         supersedes,
     };
     let names: Vec<&str> = cfg.plan.components.iter().map(|c| c.name.as_str()).collect();
-    super::check_new(&n, &names).map_err(|e| anyhow::anyhow!("{e}"))?;
+    crate::inspection::check_new(&n, &names).map_err(|e| anyhow::anyhow!("{e}"))?;
     let (id, running) = match Store::open_exclusive(&path, false) {
         Ok(mut s) => (s.append_inspection(&n)?, false),
         Err(StoreError::InUse { .. }) => (Store::attach(&path)?.append_inspection(&n)?, true),
