@@ -259,10 +259,10 @@ pub fn projection(plan: &ComponentPlan, state: &ComponentState) -> Projection {
 #[derive(Debug, Clone, Default)]
 pub struct Scratch {
     memo: Option<(Point, Rates)>,
-    /// (piece length h, weight of the recent-rate update, 1/h) of the last
-    /// piece: regular sampling repeats the length, so neither the weight's
-    /// exponential nor the reciprocal is recomputed.
-    alpha: Option<(f64, f64, f64)>,
+    /// The last piece's length: (ms, h, weight of the recent-rate update,
+    /// 1/h). Regular sampling repeats the length, so neither the hours'
+    /// division, the weight's exponential nor the reciprocal is recomputed.
+    length: Option<(i64, f64, f64, f64)>,
     /// Hoop stress per MPa of gauge pressure (stress factor included) and
     /// whether the wall is at the formula floor, when the wall does not
     /// thin in service: every hoop formula is linear in pressure.
@@ -398,15 +398,28 @@ pub fn advance(
     }
     // Fast path: no sample instant or end of hold inside the interval (the
     // common case of regular sampling) means one piece.
-    let inside = |t: i64| t > from_ms && t < to_ms;
-    let single = comp_tags.iter().all(|&id| {
+    //
+    // `t` is strictly inside (from, to) when 0 < t − from < to − from. In
+    // wrapping u64 arithmetic that is one comparison, exact for every i64
+    // `t` because to > from: for t ≤ from, t − from − 1 wraps to
+    // 2^64 + (t − from) − 1, not below to − from − 1 since to − t < 2^64;
+    // for t > from, t − from never exceeds 2^64 − 1 and does not wrap. The
+    // checks are or-ed without branches: all of them are needed in the
+    // common case, where none is inside.
+    let span_1 = (to_ms.wrapping_sub(from_ms) as u64).wrapping_sub(1);
+    let inside = |t: i64| (t.wrapping_sub(from_ms) as u64).wrapping_sub(1) < span_1;
+    let mut split = false;
+    for &id in comp_tags {
         let st = &tags[id as usize];
         let h = tag_plans[id as usize].max_hold_ms;
-        let p = st.prev.is_some_and(|(t, _)| inside(t) || inside(t.saturating_add(h)));
-        let l = st.last.is_some_and(|(t, _)| inside(t) || inside(t.saturating_add(h)));
-        !p && !l
-    });
-    if single {
+        if let Some((t, _)) = st.prev {
+            split |= inside(t) | inside(t.saturating_add(h));
+        }
+        if let Some((t, _)) = st.last {
+            split |= inside(t) | inside(t.saturating_add(h));
+        }
+    }
+    if !split {
         integrate_piece(plan, scratch, state, tags, tag_plans, from_ms, to_ms, policy, tau_h);
         state.integrated_to_ms = Some(to_ms);
         return;
@@ -436,7 +449,19 @@ fn integrate_piece(
     tau_h: f64,
 ) {
     let (a, b) = (a_ms as f64, b_ms as f64);
-    let dt_h = (b_ms - a_ms) as f64 / MS_PER_H;
+    // The piece's hours, recent-rate weight and reciprocal hours, computed
+    // once per piece length (the same values, bit for bit, as computing
+    // them afresh).
+    let span_ms = b_ms - a_ms;
+    let (dt_h, alpha, per_h) = match scratch.length {
+        Some((l, h, a, r)) if l == span_ms => (h, a, r),
+        _ => {
+            let h = span_ms as f64 / MS_PER_H;
+            let (a, r) = (interval_weight(h, tau_h), 1.0 / h);
+            scratch.length = Some((span_ms, h, a, r));
+            (h, a, r)
+        }
+    };
     let design_t = plan.design_temperature_k;
     let design_p = plan.design_pressure_mpa;
     // Gap values by policy: conservative takes the worse of design and the
@@ -492,7 +517,7 @@ fn integrate_piece(
         stress_per_mpa: scratch.stress_per_mpa,
         thinning,
         start_ms: state.first_sample_ms.unwrap_or(a_ms),
-        threshold_k: plan.creep_threshold_k(),
+        threshold_k: scratch.bounds.threshold_k,
         bounds: scratch.bounds,
     };
     let span = b - a;
@@ -527,16 +552,8 @@ fn integrate_piece(
     state.creep_strain += d_strain;
     state.wear_depth_mm += d_wear;
     if dt_h > 0.0 {
-        // The normalised recent rates of physics::remaining::update_recent_rate;
-        // the interval weight is computed once per piece length.
-        let (alpha, per_h) = match scratch.alpha {
-            Some((h, a, r)) if h == dt_h => (a, r),
-            _ => {
-                let (a, r) = (interval_weight(dt_h, tau_h), 1.0 / dt_h);
-                scratch.alpha = Some((dt_h, a, r));
-                (a, r)
-            }
-        };
+        // The normalised recent rates of physics::remaining::update_recent_rate
+        // (the interval weight `alpha` is taken above, once per piece length).
         let w = next_weight(state.recent_weight, alpha);
         // α/W' is 1 on the first piece (W = 0): the rates become the
         // piece's, whatever an old ledger held.

@@ -42,6 +42,21 @@ pub fn class_index_hinted(edges: &[f64], x: f64, hint: usize) -> usize {
     }
 }
 
+/// Whether `x0` and `x1` are both in class `class` of ascending `edges`
+/// (false for NaN, as [`class_index_hinted`] would then search).
+#[inline]
+fn both_in_class(edges: &[f64], x0: f64, x1: f64, class: usize) -> bool {
+    let above_low = match class.checked_sub(1) {
+        None => true,
+        Some(i) => edges.get(i).is_some_and(|&e| e <= x0 && e <= x1),
+    };
+    let below_high = match edges.get(class) {
+        Some(&e) => x0 < e && x1 < e,
+        None => class == edges.len(),
+    };
+    above_low && below_high
+}
+
 impl TimeAtCondition {
     /// An empty histogram with the given class edges.
     pub fn new(temperature_edges_k: Vec<f64>, pressure_edges_mpa: Vec<f64>) -> Self {
@@ -81,12 +96,21 @@ impl TimeAtCondition {
     /// for [`TimeAtCondition::add_hinted`]) and becomes those at its end.
     #[inline]
     pub fn add_line_hinted(&mut self, from: (f64, f64), to: (f64, f64), dt_h: f64, hint: &mut (usize, usize)) {
+        let w = self.pressure_edges_mpa.len() + 1;
+        // Common case: both ends in the hinted cell (a slowly moving line
+        // stays in the class of the previous piece's end), checked with one
+        // pair of edges per axis; the same result as the search below.
+        if both_in_class(&self.temperature_edges_k, from.0, to.0, hint.0)
+            && both_in_class(&self.pressure_edges_mpa, from.1, to.1, hint.1)
+        {
+            self.hours[hint.0 * w + hint.1] += dt_h;
+            return;
+        }
         let t_start = class_index_hinted(&self.temperature_edges_k, from.0, hint.0);
         let p_start = class_index_hinted(&self.pressure_edges_mpa, from.1, hint.1);
         let t_end = class_index_hinted(&self.temperature_edges_k, to.0, t_start);
         let p_end = class_index_hinted(&self.pressure_edges_mpa, to.1, p_start);
         *hint = (t_end, p_end);
-        let w = self.pressure_edges_mpa.len() + 1;
         if t_start == t_end && p_start == p_end {
             // Both ends in one cell: so is the whole line (classes are intervals).
             self.hours[t_start * w + p_start] += dt_h;
