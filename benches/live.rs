@@ -51,6 +51,26 @@
 //!    tags): VmRSS after start, then one sample per tag is published and
 //!    VmRSS / VmHWM are read once all are accepted or after a poll budget
 //!    of 90 s, whichever comes first (the accepted count is reported).
+//! 4. **Write volume per sample** with a database: VictoriaMetrics
+//!    (`victoria-metrics`, started here on a free loopback port with its
+//!    own data directory) behind a counting relay (`live/write_tap.rs`),
+//!    so the outbox is kept and drained as in production. 100 tubes × 2
+//!    tags, the part-1 stream paced at `LIVE_BENCH_WRITE_RATE` msg/s
+//!    (default 1 000) for `LIVE_BENCH_WRITE_S` s (default 30), 60 s of
+//!    event time between rounds (every tag once a round; a historian's
+//!    1-minute scan compressed in time). The window opens once the
+//!    start-up points are delivered and closes when every sample is
+//!    integrated, none waits in the reorder window and the outbox is
+//!    empty. Per sample: ledger commits (`service.commits`), write
+//!    requests to the database (each accepted one also removes its lines
+//!    from the outbox in a transaction of its own), line-protocol lines
+//!    and bytes sent, per measurement (`alarm_threshold`'s share
+//!    included), and bytes the service wrote to storage (/proc/PID/io).
+//!    The figures depend on the event-time spacing and on the ratio of
+//!    components to tags: `component_state` is one line per component per
+//!    60 s of event time, `alarm_threshold` lines at most once an hour of
+//!    event time per component, `service_health` one line per 10 s of
+//!    wall time.
 //!
 //! **Older builds.** `LIVE_BENCH_BIN` runs another `lifeledger` binary,
 //! e.g. one from before issue 10, for before/after figures; the bench asks
@@ -63,12 +83,14 @@
 //! later builds; earlier ones are timed by the `shelved` event, which they
 //! publish right after the commit as later builds publish the reply.
 //!
-//! Run: `cargo bench --bench live` (or `tests/bench/live.sh`); about 5
+//! Run: `cargo bench --bench live` (or `tests/bench/live.sh`); about 7
 //! minutes on 2 cores. Cargo builds the release binary and passes its path
 //! as `CARGO_BIN_EXE_lifeledger` (set for benches as for integration
-//! tests). Needs `/usr/sbin/mosquitto` (tests/run installs it).
-//! Environment: `LIVE_BENCH_BIN` (above); `LIVE_BENCH_N` overrides N;
-//! `LIVE_BENCH_PARTS` (default `123`) selects parts; `LIVE_BENCH_KEEP=1` keeps each part's directory (config, service log,
+//! tests). Needs `/usr/sbin/mosquitto` and `victoria-metrics` (tests/run
+//! installs both). Environment: `LIVE_BENCH_BIN` (above); `LIVE_BENCH_N`
+//! overrides N; `LIVE_BENCH_PARTS` (default `1234`) selects parts;
+//! `LIVE_BENCH_WRITE_RATE`, `LIVE_BENCH_WRITE_S` (part 4);
+//! `LIVE_BENCH_KEEP=1` keeps each part's directory (config, service log,
 //! ledger) and prints its path. Everything listens on 127.0.0.1 only;
 //! every wait is a bounded count of polls that gives up (and reports) on a
 //! stall. This is a benchmark: it prints figures and asserts nothing about
@@ -76,14 +98,17 @@
 
 #[path = "../tests/common/mod.rs"]
 mod common;
+#[path = "live/write_tap.rs"]
+mod write_tap;
 
-use common::{free_port, http, Mosquitto};
+use common::{free_port, http, Mosquitto, VictoriaMetrics};
 use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
 use std::path::{Path, PathBuf};
 use std::process::{Child, Command, Stdio};
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::{mpsc, Arc, Mutex, OnceLock};
 use std::time::{Duration, Instant};
+use write_tap::{WriteTally, WriteTap};
 
 const T0: i64 = 1_790_812_800; // 2026-10-01T00:00:00Z
 const PAUSE: Duration = Duration::from_millis(20);
@@ -384,6 +409,14 @@ impl Service {
                 .unwrap_or(f64::NAN)
         };
         (kib("VmRSS:") / 1024.0, kib("VmHWM:") / 1024.0)
+    }
+
+    /// Bytes the service caused to be written to storage so far
+    /// (`write_bytes` of /proc/PID/io: the ledger, its WAL and checkpoints,
+    /// the log); `None` where the kernel does not say.
+    fn disk_write_bytes(&self) -> Option<u64> {
+        let s = std::fs::read_to_string(format!("/proc/{}/io", self.child.id())).ok()?;
+        s.lines().find_map(|l| l.strip_prefix("write_bytes:")).and_then(|v| v.trim().parse().ok())
     }
 
     fn stop(mut self) {
@@ -1046,12 +1079,169 @@ fn memory() -> Memory {
     r
 }
 
+// ---------------------------------------------------------------- 4. write volume
+
+struct WriteVolume {
+    n: usize,
+    target_rate: usize,
+    achieved_rate: f64,
+    accepted: u64,
+    window_s: f64,
+    commits: u64,
+    stream_s: f64,
+    stream_commits: u64,
+    window: WriteTally,
+    startup: WriteTally,
+    disk_bytes: Option<u64>,
+    /// Lines ever appended to the outbox (its AUTOINCREMENT sequence) and
+    /// lines the relay saw, both over the whole run including shutdown.
+    outbox_appended: Option<u64>,
+    relayed_lines: u64,
+}
+
+/// Event time between two rounds of the stream (every tag once a round).
+const ROUND_S: i64 = 60;
+
+fn write_volume(target_rate: usize, seconds: usize) -> WriteVolume {
+    let n = target_rate * seconds;
+    eprintln!(
+        "[4]  write volume: {n} samples at {target_rate} msg/s into lifeledger run with a database (VictoriaMetrics behind a counting relay)"
+    );
+    let broker = Mosquitto::start();
+    let vm = VictoriaMetrics::start();
+    let tap = WriteTap::start(vm.port);
+    let dir = WorkDir::new("writes");
+    let http_port = free_port();
+    let body: String = (0..100).map(tube).collect();
+    let tail = format!("[database]\nurl = \"{}\"\norg = \"bench\"\nbucket = \"bench\"\n", tap.url());
+    let cfg = service_config(dir.path(), broker.port, http_port, &body, &tail, true);
+    let events = listen(broker.port, "bench-listener-4", &["lifeledger/status"]);
+    let mut svc = Service::start(&cfg, http_port);
+    wait_online(&events);
+    // The start-up writes (threshold lines of every component, the first
+    // health point) are delivered before the window opens.
+    let s0 = svc.poll("the start-up points delivered (outbox empty after a write)", |s| {
+        s.snapshot().filter(|v| v["outbox_lines"].as_u64() == Some(0) && tap.tally().accepted > 0)
+    });
+    let (startup, commits0, disk0) = (tap.tally(), counter(&s0, "service", "commits"), svc.disk_write_bytes());
+
+    // Paced: `per_slice` messages every 10 ms, round by round as in part 1.
+    let msgs = throughput_stream(n, 100, 0);
+    let per_slice = target_rate.div_ceil(100).max(1);
+    let mut o = options("bench-load-writes", broker.port);
+    o.set_inflight(500);
+    let (client, mut conn) = Client::new(o, 1000);
+    let acker = std::thread::spawn(move || {
+        let mut acked = 0;
+        for ev in conn.iter() {
+            match ev {
+                Ok(Event::Incoming(Packet::PubAck(_))) => {
+                    acked += 1;
+                    if acked == n {
+                        break;
+                    }
+                }
+                Ok(_) => {}
+                Err(e) => panic!("paced load generator connection failed: {e}"),
+            }
+        }
+        acked
+    });
+    let start = Instant::now();
+    for (k, slice) in msgs.chunks(per_slice).enumerate() {
+        for (topic, p) in slice {
+            client.publish(topic.clone(), QoS::AtLeastOnce, false, p.clone()).unwrap();
+        }
+        let next = start + Duration::from_millis(10 * (k as u64 + 1));
+        if let Some(d) = next.checked_duration_since(Instant::now()) {
+            std::thread::sleep(d);
+        }
+    }
+    let achieved_rate = rate(n, start.elapsed());
+    let acked = acker.join().unwrap();
+    let _ = client.disconnect();
+    // Commits while the stream runs (to its last PUBACK): the steady rate,
+    // without the idle tail below (health points, the reorder window's
+    // release after one window of wall time).
+    let stream_s = start.elapsed().as_secs_f64();
+    let stream_commits = svc.snapshot().map(|v| counter(&v, "service", "commits")).unwrap_or(commits0) - commits0;
+    // Done when every sample is accepted, none waits in the reorder window
+    // and the outbox is empty, twice 1.5 s apart (the outbox figure of a
+    // snapshot can be a moment old).
+    let done = |s: &Service| {
+        s.snapshot().filter(|v| {
+            counter(v, "engine", "accepted") + counter(v, "engine", "duplicate") >= n as u64
+                && v["held_samples"].as_u64() == Some(0)
+                && v["outbox_lines"].as_u64() == Some(0)
+        })
+    };
+    let mut snap = svc.poll("every sample integrated and every point delivered", done);
+    for _ in 0..20 {
+        std::thread::sleep(Duration::from_millis(1500));
+        match done(&svc) {
+            Some(v) => {
+                snap = v;
+                break;
+            }
+            None => snap = svc.poll("every sample integrated and every point delivered", done),
+        }
+    }
+    let window_s = start.elapsed().as_secs_f64();
+    let window = tap.tally().since(&startup);
+    let disk_bytes = svc.disk_write_bytes().zip(disk0).map(|(a, b)| a - b);
+    let commits = counter(&snap, "service", "commits") - commits0;
+    let accepted = counter(&snap, "engine", "accepted");
+    svc.stop();
+    let relayed_lines = tap.tally().lines;
+    let outbox_appended = rusqlite::Connection::open_with_flags(
+        dir.path().join("ledger.sqlite"),
+        rusqlite::OpenFlags::SQLITE_OPEN_READ_ONLY,
+    )
+    .and_then(|c| c.query_row("SELECT seq FROM sqlite_sequence WHERE name = 'outbox'", [], |r| r.get::<_, i64>(0)))
+    .ok()
+    .map(|v| v as u64);
+    let r = WriteVolume {
+        n,
+        target_rate,
+        achieved_rate,
+        accepted,
+        window_s,
+        commits,
+        stream_s,
+        stream_commits,
+        window,
+        startup,
+        disk_bytes,
+        outbox_appended,
+        relayed_lines,
+    };
+    let per = |x: u64| x as f64 / n as f64;
+    eprintln!(
+        "     {acked}/{n} PUBACKs at {achieved_rate:.0} msg/s; accepted {accepted}; in {window_s:.1} s: {commits} commits ({:.4}/sample), {} write requests ({} accepted), {} lines ({:.3}/sample), {} bytes ({:.1}/sample); by measurement {:?}; disk {:?} bytes; outbox sequence {:?}, relayed lines {relayed_lines}",
+        per(commits),
+        r.window.requests,
+        r.window.accepted,
+        r.window.lines,
+        per(r.window.lines),
+        r.window.bytes,
+        per(r.window.bytes),
+        r.window.by_measurement,
+        r.disk_bytes,
+        r.outbox_appended,
+    );
+    drop(vm);
+    r
+}
+
 // ---------------------------------------------------------------- main
 
 fn main() {
     // `cargo bench` passes `--bench`; accept and ignore any arguments.
     let n: usize = std::env::var("LIVE_BENCH_N").ok().and_then(|v| v.parse().ok()).unwrap_or(200_000);
-    let parts = std::env::var("LIVE_BENCH_PARTS").unwrap_or_else(|_| "123".into());
+    let parts = std::env::var("LIVE_BENCH_PARTS").unwrap_or_else(|_| "1234".into());
+    let env_usize = |k: &str, d: usize| std::env::var(k).ok().and_then(|v| v.parse().ok()).unwrap_or(d);
+    let write_rate = env_usize("LIVE_BENCH_WRITE_RATE", 1000).max(1);
+    let write_s = env_usize("LIVE_BENCH_WRITE_S", 30).max(1);
     let b = Build::probe();
     eprintln!(
         "     build under test {}: run --init-ledger {}, [alarms.delays] {}, MQTT commands with token and id {}",
@@ -1064,6 +1254,7 @@ fn main() {
     let t = parts.contains('1').then(|| throughput(n));
     let l = parts.contains('2').then(latency);
     let m = parts.contains('3').then(memory);
+    let w = parts.contains('4').then(|| write_volume(write_rate, write_s));
     let yes = |b: bool| if b { "met" } else { "NOT MET" };
     println!();
     println!("Live service (load generator)");
@@ -1118,6 +1309,57 @@ fn main() {
         println!(
             "| tag-to-alarm latency p50 / p99 / max ({} of {} matched, background {:.0} samples/s) | {:.1} / {:.1} / {:.1} ms | |",
             l.samples, l.expected, l.achieved_rate, l.p50_ms, l.p99_ms, l.max_ms
+        );
+    }
+    if let Some(w) = w {
+        let per = |x: u64| x as f64 / w.n as f64;
+        let (lines, bytes) = (w.window.lines, w.window.bytes);
+        println!(
+            "| write volume: samples paced (100 tubes × 2 tags, {ROUND_S} s of event time per round), target / achieved | {} at {} / {:.0} msg/s, {} accepted, window {:.1} s | |",
+            w.n, w.target_rate, w.achieved_rate, w.accepted, w.window_s
+        );
+        println!(
+            "| ledger commits per sample: while the stream runs ({:.1} s) / to all delivered ({:.1} s, idle tail included) | {:.4} ({} commits) / {:.4} ({}) | |",
+            w.stream_s,
+            w.window_s,
+            per(w.stream_commits),
+            w.stream_commits,
+            per(w.commits),
+            w.commits
+        );
+        println!(
+            "| database writes per sample (each accepted one removes its lines from the outbox in one more transaction) | {:.4} ({} requests, {} accepted) | |",
+            per(w.window.requests),
+            w.window.requests,
+            w.window.accepted
+        );
+        println!(
+            "| outbox lines / bytes per sample (sent to the database) | {:.3} / {:.1} ({lines} lines, {bytes} bytes) | |",
+            per(lines),
+            per(bytes)
+        );
+        for (m, (l, b)) in &w.window.by_measurement {
+            println!(
+                "| lines of `{m}`: per sample, share of lines (bytes) | {:.4}, {:.1} % ({b} bytes, {:.1} % ) | |",
+                per(*l),
+                100.0 * *l as f64 / lines.max(1) as f64,
+                100.0 * *b as f64 / bytes.max(1) as f64
+            );
+        }
+        if let Some(d) = w.disk_bytes {
+            println!(
+                "| bytes written to storage by the service per sample (/proc/PID/io) | {:.0} ({d} bytes) | |",
+                per(d)
+            );
+        }
+        println!(
+            "| start-up writes before the stream (not counted above): lines / bytes / requests | {} / {} / {} | |",
+            w.startup.lines, w.startup.bytes, w.startup.requests
+        );
+        println!(
+            "| lines appended to the outbox over the run (its sequence) / lines the relay passed on | {} / {} | equal |",
+            w.outbox_appended.map_or("?".to_string(), |v| v.to_string()),
+            w.relayed_lines
         );
     }
     if let Some(m) = m {
