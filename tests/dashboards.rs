@@ -542,7 +542,11 @@ fn prometheus_dashboards_answer_after_a_short_demo_run() {
     let port = common::free_port();
     let dir = tempfile::tempdir().unwrap();
     let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_lifeledger"))
-        .args(["demo", "--duration", "25", "--http", &format!("127.0.0.1:{port}"), "--database-url", &vm.url()])
+        // The duration only bounds a demo the test fails to stop: SIGTERM
+        // below stops it once its points are in (25 s was too short on a
+        // loaded 2-core machine, where the service fell behind the
+        // simulated clock).
+        .args(["demo", "--duration", "120", "--http", &format!("127.0.0.1:{port}"), "--database-url", &vm.url()])
         .arg("--state-dir")
         .arg(dir.path())
         .stdout(std::process::Stdio::null())
