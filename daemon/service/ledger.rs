@@ -41,6 +41,7 @@ use crate::engine::{ComponentState, Engine, Rejection, TagState};
 use crate::event_time::rfc3339_ms;
 use crate::ingest::decode::{PayloadSettings, TopicTemplate};
 use crate::ingest::{now_ms, CommandOutcome, Inbound};
+use crate::ledger_file::StoredLedger;
 use crate::report::{threshold_points, ComponentReport};
 use crate::settings::LoadedConfig;
 use crate::store::Store;
@@ -49,8 +50,6 @@ use std::collections::{BTreeSet, HashMap};
 use std::sync::Arc;
 use std::time::{Duration, Instant};
 use tokio::sync::{mpsc, watch};
-
-use crate::ledger_file::StoredLedger;
 
 /// Control messages from the main task.
 #[derive(Debug)]
