@@ -685,7 +685,16 @@ impl<const WEAR: bool> RateEval<'_, WEAR> {
             }
         }
         let r = rates(self.plan, self.stress_per_mpa, p, tau_ms, self.start_ms, self.threshold_k);
-        *self.memo = Some((*p, r));
+        match self.memo {
+            // Without wear inputs the memo's wear fields stay zero: only
+            // temperature, pressure and the rates are stored.
+            Some((mp, mr)) if !WEAR => {
+                mp.t_k = p.t_k;
+                mp.p_mpa = p.p_mpa;
+                *mr = r;
+            }
+            _ => *self.memo = Some((*p, r)),
+        }
         r
     }
 }
