@@ -419,8 +419,15 @@ pub fn advance(
             split |= inside(t) | inside(t.saturating_add(h));
         }
     }
+    // A part without wear inputs takes the piece path for two input lines
+    // (temperature and pressure), the wear lines being zero.
+    let wear = plan.wear.is_some();
     if !split {
-        integrate_piece(plan, scratch, state, tags, tag_plans, from_ms, to_ms, policy, tau_h);
+        if wear {
+            integrate_piece::<true>(plan, scratch, state, tags, tag_plans, from_ms, to_ms, policy, tau_h);
+        } else {
+            integrate_piece::<false>(plan, scratch, state, tags, tag_plans, from_ms, to_ms, policy, tau_h);
+        }
         state.integrated_to_ms = Some(to_ms);
         return;
     }
@@ -430,14 +437,21 @@ pub fn advance(
     }
     let pieces = breaks.segments(from_ms, to_ms);
     for w in pieces.windows(2) {
-        integrate_piece(plan, scratch, state, tags, tag_plans, w[0], w[1], policy, tau_h);
+        if wear {
+            integrate_piece::<true>(plan, scratch, state, tags, tag_plans, w[0], w[1], policy, tau_h);
+        } else {
+            integrate_piece::<false>(plan, scratch, state, tags, tag_plans, w[0], w[1], policy, tau_h);
+        }
     }
     state.integrated_to_ms = Some(to_ms);
 }
 
+/// One piece `[a_ms, b_ms]` of a component; `WEAR` is whether the part has
+/// wear inputs (without them the four wear lines are zero and the rate
+/// memo compares temperature and pressure only).
 #[allow(clippy::too_many_arguments)]
 #[inline]
-fn integrate_piece(
+fn integrate_piece<const WEAR: bool>(
     plan: &ComponentPlan,
     scratch: &mut Scratch,
     state: &mut ComponentState,
@@ -485,7 +499,7 @@ fn integrate_piece(
     let (lp, gp) = line_of(plan.pressure, tags, tag_plans, a, b, pick(design_p));
     let (mut ll, mut ls, mut lsl, mut lf) = (Line::default(), Line::default(), Line::default(), Line::default());
     let mut gw = false;
-    if let Some(w) = &plan.wear {
+    if let (true, Some(w)) = (WEAR, &plan.wear) {
         let (x, g1) = line_of(Some(w.normal_load), tags, tag_plans, a, b, hold);
         let (y, g2) = line_of(w.sliding_speed, tags, tag_plans, a, b, hold);
         let (z, g3) = line_of(w.slip_amplitude, tags, tag_plans, a, b, hold);
@@ -511,7 +525,7 @@ fn integrate_piece(
         matches!(plan.stress, StressPlan::Hoop { thinning_rate_mm_per_year, .. } if thinning_rate_mm_per_year > 0.0);
     let constant = lines.constant() && !thinning;
     let mut classes = scratch.classes;
-    let mut eval = RateEval {
+    let mut eval = RateEval::<WEAR> {
         plan,
         memo: &mut scratch.memo,
         stress_per_mpa: scratch.stress_per_mpa,
@@ -542,7 +556,7 @@ fn integrate_piece(
         }
     };
     let Piece { d_life, d_strain, mut d_wear, last_rates, last_point } = piece;
-    if !constant && lines.wear_varies() {
+    if WEAR && !constant && lines.wear_varies() {
         if let Some(w) = &plan.wear {
             d_wear = wear_exact(w, &lines, span, dt_h);
         }
@@ -644,7 +658,7 @@ impl PieceLines {
 }
 
 /// Rate evaluation for one piece, through the component's memo.
-struct RateEval<'a> {
+struct RateEval<'a, const WEAR: bool> {
     plan: &'a ComponentPlan,
     memo: &'a mut Option<(Point, Rates)>,
     stress_per_mpa: Option<(f64, bool)>,
@@ -657,19 +671,30 @@ struct RateEval<'a> {
     bounds: DataBounds,
 }
 
-impl RateEval<'_> {
+impl<const WEAR: bool> RateEval<'_, WEAR> {
     /// Rates at inputs `p` and event time `tau_ms`.
     #[inline(always)]
     fn at(&mut self, p: &Point, tau_ms: f64) -> Rates {
         if !self.thinning {
             if let Some((mp, mr)) = &*self.memo {
-                if mp == p {
+                // Without wear inputs every point's wear fields are zero.
+                let same = if WEAR { mp == p } else { mp.t_k == p.t_k && mp.p_mpa == p.p_mpa };
+                if same {
                     return *mr;
                 }
             }
         }
         let r = rates(self.plan, self.stress_per_mpa, p, tau_ms, self.start_ms, self.threshold_k);
-        *self.memo = Some((*p, r));
+        match self.memo {
+            // Without wear inputs the memo's wear fields stay zero: only
+            // temperature, pressure and the rates are stored.
+            Some((mp, mr)) if !WEAR => {
+                mp.t_k = p.t_k;
+                mp.p_mpa = p.p_mpa;
+                *mr = r;
+            }
+            _ => *self.memo = Some((*p, r)),
+        }
         r
     }
 }
@@ -685,8 +710,8 @@ struct Piece {
 
 /// A piece with constant inputs: exact, one evaluation.
 #[inline]
-fn piece_constant(
-    eval: &mut RateEval,
+fn piece_constant<const WEAR: bool>(
+    eval: &mut RateEval<WEAR>,
     state: &mut ComponentState,
     classes: &mut (usize, usize),
     lines: &PieceLines,
@@ -707,8 +732,8 @@ fn piece_constant(
 
 /// A piece with small steps: the trapezoid rule on the end rates.
 #[inline]
-fn piece_trapezoid(
-    eval: &mut RateEval,
+fn piece_trapezoid<const WEAR: bool>(
+    eval: &mut RateEval<WEAR>,
     state: &mut ComponentState,
     classes: &mut (usize, usize),
     lines: &PieceLines,
@@ -737,8 +762,8 @@ fn piece_trapezoid(
 /// the middle of theirs slows them.
 #[inline(never)]
 #[allow(clippy::too_many_arguments)]
-fn piece_simpson(
-    eval: &mut RateEval,
+fn piece_simpson<const WEAR: bool>(
+    eval: &mut RateEval<WEAR>,
     state: &mut ComponentState,
     classes: &mut (usize, usize),
     lines: &PieceLines,
@@ -822,8 +847,8 @@ fn account_creep(state: &mut ComponentState, r: &Rates, w_h: f64) {
 /// throughout, and the piece is booked whole (the common case of small
 /// steps inside one class).
 #[inline(always)]
-fn account_line(
-    eval: &RateEval,
+fn account_line<const WEAR: bool>(
+    eval: &RateEval<WEAR>,
     state: &mut ComponentState,
     classes: &mut (usize, usize),
     (p0, r0): (&Point, &Rates),
@@ -911,8 +936,8 @@ fn len(a: (f64, f64)) -> f64 {
 /// Stress is a line in pressure (every hoop formula is linear in pressure;
 /// a thinning wall is taken as the straight line between the end stresses).
 #[inline(never)]
-fn account_creep_line(
-    eval: &RateEval,
+fn account_creep_line<const WEAR: bool>(
+    eval: &RateEval<WEAR>,
     state: &mut ComponentState,
     (p0, r0): (&Point, &Rates),
     (p1, r1): (&Point, &Rates),

@@ -94,18 +94,27 @@ impl TimeAtCondition {
     /// the cell's edges (crossing at `u = (edge − v0)/(v1 − v0)` of the
     /// way). `hint` is the classes at the line's start (a search hint, as
     /// for [`TimeAtCondition::add_hinted`]) and becomes those at its end.
-    #[inline]
+    #[inline(always)]
     pub fn add_line_hinted(&mut self, from: (f64, f64), to: (f64, f64), dt_h: f64, hint: &mut (usize, usize)) {
-        let w = self.pressure_edges_mpa.len() + 1;
         // Common case: both ends in the hinted cell (a slowly moving line
         // stays in the class of the previous piece's end), checked with one
-        // pair of edges per axis; the same result as the search below.
+        // pair of edges per axis; the same result as the search. Inlined
+        // into the caller; the search is kept out of line.
         if both_in_class(&self.temperature_edges_k, from.0, to.0, hint.0)
             && both_in_class(&self.pressure_edges_mpa, from.1, to.1, hint.1)
         {
+            let w = self.pressure_edges_mpa.len() + 1;
             self.hours[hint.0 * w + hint.1] += dt_h;
             return;
         }
+        self.add_line_searched(from, to, dt_h, hint);
+    }
+
+    /// [`TimeAtCondition::add_line_hinted`] for a line with an end outside
+    /// the hinted cell: the classes of both ends searched from the hint.
+    #[inline(never)]
+    fn add_line_searched(&mut self, from: (f64, f64), to: (f64, f64), dt_h: f64, hint: &mut (usize, usize)) {
+        let w = self.pressure_edges_mpa.len() + 1;
         let t_start = class_index_hinted(&self.temperature_edges_k, from.0, hint.0);
         let p_start = class_index_hinted(&self.pressure_edges_mpa, from.1, hint.1);
         let t_end = class_index_hinted(&self.temperature_edges_k, to.0, t_start);
