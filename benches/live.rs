@@ -454,6 +454,32 @@ fn options(id: &str, port: u16) -> MqttOptions {
     o
 }
 
+/// A paced load generator's client (inflight 500) and the thread that
+/// polls its connection, counting PUBACKs until `total` have come (the
+/// count is what the thread returns; a failed connection panics it).
+fn paced_publisher(id: &str, port: u16, total: usize) -> (Client, std::thread::JoinHandle<usize>) {
+    let mut o = options(id, port);
+    o.set_inflight(500);
+    let (client, mut conn) = Client::new(o, 1000);
+    let acker = std::thread::spawn(move || {
+        let mut acked = 0;
+        for ev in conn.iter() {
+            match ev {
+                Ok(Event::Incoming(Packet::PubAck(_))) => {
+                    acked += 1;
+                    if acked == total {
+                        break;
+                    }
+                }
+                Ok(_) => {}
+                Err(e) => panic!("paced load generator connection failed: {e}"),
+            }
+        }
+        acked
+    });
+    (client, acker)
+}
+
 /// A listener: forwards `(receipt instant, topic, payload)` of every
 /// message on `topics`; returns once its subscriptions are acknowledged.
 /// The thread ends when the receiver is dropped or the broker goes away.
@@ -901,25 +927,7 @@ fn latency() -> Latency {
 
     let slices = ALARMS * CYCLE;
     let total = slices * 100 + ALARMS * 2;
-    let mut o = options("bench-load-paced", broker.port);
-    o.set_inflight(500);
-    let (client, mut conn) = Client::new(o, 1000);
-    let acker = std::thread::spawn(move || {
-        let mut acked = 0;
-        for ev in conn.iter() {
-            match ev {
-                Ok(Event::Incoming(Packet::PubAck(_))) => {
-                    acked += 1;
-                    if acked == total {
-                        break;
-                    }
-                }
-                Ok(_) => {}
-                Err(e) => panic!("paced load generator connection failed: {e}"),
-            }
-        }
-        acked
-    });
+    let (client, acker) = paced_publisher("bench-load-paced", broker.port, total);
     // Event time advances one second per 10 ms slice on every tag alike,
     // so no tag ever looks stale next to the others.
     let mut sent_at: Vec<Instant> = vec![];
@@ -1128,25 +1136,7 @@ fn write_volume(target_rate: usize, seconds: usize) -> WriteVolume {
     // Paced: `per_slice` messages every 10 ms, round by round as in part 1.
     let msgs = throughput_stream(n, 100, 0);
     let per_slice = target_rate.div_ceil(100).max(1);
-    let mut o = options("bench-load-writes", broker.port);
-    o.set_inflight(500);
-    let (client, mut conn) = Client::new(o, 1000);
-    let acker = std::thread::spawn(move || {
-        let mut acked = 0;
-        for ev in conn.iter() {
-            match ev {
-                Ok(Event::Incoming(Packet::PubAck(_))) => {
-                    acked += 1;
-                    if acked == n {
-                        break;
-                    }
-                }
-                Ok(_) => {}
-                Err(e) => panic!("paced load generator connection failed: {e}"),
-            }
-        }
-        acked
-    });
+    let (client, acker) = paced_publisher("bench-load-writes", broker.port, n);
     let start = Instant::now();
     for (k, slice) in msgs.chunks(per_slice).enumerate() {
         for (topic, p) in slice {

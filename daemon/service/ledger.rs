@@ -829,9 +829,11 @@ impl Ledger {
     fn collect_series(&mut self) {
         // The attention score of the latest published snapshot (at most
         // one snapshot period old): the ranking needs every part's alarms.
-        let snapshot = self.snapshot_tx.borrow();
+        // Read only when a point is due (the snapshot's lock is not taken
+        // for every sample).
+        let snapshot_tx = &self.snapshot_tx;
         let attention = |ci: usize, name: &str| {
-            snapshot.components.get(ci).filter(|c| c.component == name).and_then(|c| c.attention_score)
+            snapshot_tx.borrow().components.get(ci).filter(|c| c.component == name).and_then(|c| c.attention_score)
         };
         self.series.collect(&mut self.engine, self.service.store.series_interval_s, attention, &mut self.pending);
     }

@@ -109,57 +109,26 @@ mod tests {
     use super::*;
     use crate::engine::Sample;
 
-    const PLANT: &str = r#"
-[plant]
-name = "UNIT"
-[engine]
-reorder_window_s = 0
-max_hold_s = 3600
-[[tag]]
-name = "TE"
-unit = "degC"
-[[tag]]
-name = "PT"
-unit = "MPa"
-[[component]]
-name = "TUBE"
-kind = "tube"
-material = "2.25Cr-1Mo"
-design_temperature = { value = 580.0, unit = "degC" }
-design_pressure = { value = 18.0, unit = "MPa" }
-metal_temperature = "TE"
-pressure = "PT"
-[component.geometry]
-outside_diameter = { value = 44.5, unit = "mm" }
-wall = { value = 8.0, unit = "mm" }
-"#;
-
-    fn engine() -> Engine {
-        let dir = tempfile::tempdir().unwrap();
-        let path = dir.path().join("plant.toml");
-        std::fs::write(&path, PLANT).unwrap();
-        let cfg = crate::settings::load_plan(&path).unwrap();
-        // No reorder window: every sample is integrated on arrival.
-        Engine::new(cfg.plan)
-    }
-
     /// Feeds one scan (both tags) a minute for `minutes` from t0, collecting
     /// after every scan as the ledger thread does, and returns the component
     /// points' times and the number of threshold lines.
     fn point_times(minutes: i64) -> (Vec<i64>, usize) {
-        let mut e = engine();
-        let mut clock = SeriesClock::new(1);
+        // The engine tests' plant: TUBE (tags TT and PT) and a wear contact
+        // whose tags never report, so only TUBE is advanced.
+        let mut e = crate::engine::tests::engine();
+        let mut clock = SeriesClock::new(e.plan().components.len());
         let mut pending = Pending::default();
         let t0 = 1_790_000_000_000_i64;
         for m in 0..minutes {
             let t = t0 + m * 60_000;
-            for (tag, v) in [(0, 560.0), (1, 17.0 + (m % 7) as f64 * 0.1)] {
-                e.offer(&Sample { tag, time_ms: t, value: v, quality: crate::engine::Quality::Good }, t + 1).unwrap();
+            for (tag, v) in [("TT", 540.0), ("PT", 170.0 + (m % 7) as f64)] {
+                let tag = e.tag_id(tag).unwrap();
+                e.ingest(&Sample { tag, time_ms: t, value: v, quality: crate::engine::Quality::Good }).unwrap();
             }
             clock.collect(&mut e, 600, |_, _| None, &mut pending);
         }
         let thresholds = pending.lines.iter().filter(|l| l.starts_with("alarm_threshold,")).count();
-        (pending.trend_points.iter().map(|(_, p)| p.t).collect(), thresholds)
+        (pending.trend_points.iter().filter(|(c, _)| c == "TUBE").map(|(_, p)| p.t).collect(), thresholds)
     }
 
     /// Issue 10, defect 8: points follow event time, not commits. The
