@@ -205,9 +205,13 @@ fn demo_keeps_running_when_its_output_is_closed() {
         .stderr(std::fs::File::create(&err_path).unwrap())
         .spawn()
         .unwrap();
-    // Read the banner up to its last line, then close our end of the pipe.
-    {
-        let mut out = BufReader::new(child.stdout.take().unwrap());
+    // Read the banner up to its last line, then close our end of the pipe
+    // (the reader thread drops it). Bounded: a demo that prints nothing
+    // fails the test instead of blocking the read for ever.
+    let stdout = child.stdout.take().unwrap();
+    let (tx, rx) = std::sync::mpsc::channel();
+    std::thread::spawn(move || {
+        let mut out = BufReader::new(stdout);
         let mut line = String::new();
         for _ in 0..40 {
             line.clear();
@@ -215,8 +219,13 @@ fn demo_keeps_running_when_its_output_is_closed() {
                 break;
             }
         }
-        assert!(line.contains("Ctrl-C stops"), "the banner did not end as expected: {line:?}");
-    }
+        let _ = tx.send(line);
+    });
+    let Ok(line) = rx.recv_timeout(common::POLL_PAUSE * common::POLL_TRIES) else {
+        let _ = child.kill();
+        panic!("the demo printed no banner within {:?}", common::POLL_PAUSE * common::POLL_TRIES);
+    };
+    assert!(line.contains("Ctrl-C stops"), "the banner did not end as expected: {line:?}");
     let snapshot =
         || -> Option<serde_json::Value> { serde_json::from_str(&http::get(port, "/api/components").ok()?.text()).ok() };
     // An alarm event, which the demo prints as it happens: into the closed pipe.
