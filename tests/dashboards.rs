@@ -545,8 +545,8 @@ fn prometheus_dashboards_answer_after_a_short_demo_run() {
         // The duration only bounds a demo the test fails to stop: SIGTERM
         // below stops it once its points are in (25 s was too short on a
         // loaded 2-core machine, where the service fell behind the
-        // simulated clock).
-        .args(["demo", "--duration", "120", "--http", &format!("127.0.0.1:{port}"), "--database-url", &vm.url()])
+        // simulated clock, and 60 s of waiting was once too short too).
+        .args(["demo", "--duration", "300", "--http", &format!("127.0.0.1:{port}"), "--database-url", &vm.url()])
         .arg("--state-dir")
         .arg(dir.path())
         .stdout(std::process::Stdio::null())
@@ -556,7 +556,13 @@ fn prometheus_dashboards_answer_after_a_short_demo_run() {
     let snapshot = || -> Option<Value> { serde_json::from_str(&http::get(port, "/api/components").ok()?.text()).ok() };
     // Wait until the scenario is past its alarms, then stop the demo with
     // SIGTERM: the service flushes its outbox to the database on the way out.
-    let snap = common::poll_until("the demo to write its points", || {
+    // The scenario runs on the demo's own clock, which falls behind on a
+    // loaded machine: wait up to EXIT_TRIES polls, and fail at once if the
+    // demo ends first.
+    let snap = common::poll_until_tries("the demo to write its points", common::EXIT_TRIES, || {
+        if let Some(status) = child.try_wait().unwrap() {
+            panic!("the demo ended ({status}) before it wrote its points and raised its stale-tag alarm");
+        }
         snapshot().filter(|s| {
             s["service"]["series_points"].as_u64().unwrap_or(0) > 200
                 && s["recent_events"].as_array().is_some_and(|e| e.iter().any(|e| e["index"] == "sensor_stale"))

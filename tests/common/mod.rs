@@ -59,14 +59,21 @@ pub fn free_port() -> u16 {
 /// returns `Some`; panics naming `what` when it never does. Bounded by count
 /// so a slow machine waits longer per try but never flakes on a deadline
 /// tighter than the count allows.
-pub fn poll_until<T>(what: &str, mut probe: impl FnMut() -> Option<T>) -> T {
-    for _ in 0..POLL_TRIES {
+pub fn poll_until<T>(what: &str, probe: impl FnMut() -> Option<T>) -> T {
+    poll_until_tries(what, POLL_TRIES, probe)
+}
+
+/// [`poll_until`] with its own count of tries, for waits on something that
+/// runs on its own clock (a demo scenario) and so needs more than
+/// [`POLL_TRIES`] on a loaded machine; still bounded.
+pub fn poll_until_tries<T>(what: &str, tries: u32, mut probe: impl FnMut() -> Option<T>) -> T {
+    for _ in 0..tries {
         if let Some(v) = probe() {
             return v;
         }
         std::thread::sleep(POLL_PAUSE);
     }
-    panic!("gave up waiting for {what} after {POLL_TRIES} tries {POLL_PAUSE:?} apart");
+    panic!("gave up waiting for {what} after {tries} tries {POLL_PAUSE:?} apart");
 }
 
 /// Path of the `lifeledger` binary cargo built for these tests.
