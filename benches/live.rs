@@ -456,23 +456,20 @@ fn options(id: &str, port: u16) -> MqttOptions {
 
 /// A paced load generator's client (inflight 500) and the thread that
 /// polls its connection, counting PUBACKs until `total` have come (the
-/// count is what the thread returns; a failed connection panics it).
+/// count is what the thread returns; a failed connection, or a minute
+/// without any event, panics it rather than leaving the bench waiting).
 fn paced_publisher(id: &str, port: u16, total: usize) -> (Client, std::thread::JoinHandle<usize>) {
     let mut o = options(id, port);
     o.set_inflight(500);
     let (client, mut conn) = Client::new(o, 1000);
     let acker = std::thread::spawn(move || {
         let mut acked = 0;
-        for ev in conn.iter() {
-            match ev {
-                Ok(Event::Incoming(Packet::PubAck(_))) => {
-                    acked += 1;
-                    if acked == total {
-                        break;
-                    }
-                }
-                Ok(_) => {}
-                Err(e) => panic!("paced load generator connection failed: {e}"),
+        while acked < total {
+            match conn.recv_timeout(Duration::from_secs(60)) {
+                Ok(Ok(Event::Incoming(Packet::PubAck(_)))) => acked += 1,
+                Ok(Ok(_)) => {}
+                Ok(Err(e)) => panic!("paced load generator connection failed: {e}"),
+                Err(e) => panic!("paced load generator: {acked} of {total} acknowledged, then {e:?}"),
             }
         }
         acked

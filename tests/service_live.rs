@@ -15,7 +15,7 @@ mod common;
 
 use common::BoundedOutput;
 
-use common::service::{publish_all, publish_messages, samples, Sample, Service, ServiceConfig};
+use common::service::{publish_all, publish_all_paced, publish_messages, samples, Sample, Service, ServiceConfig};
 use common::{free_port, http, poll_until, Mosquitto, VictoriaMetrics};
 use rumqttc::{Client, Event, MqttOptions, Packet, QoS};
 use std::path::{Path, PathBuf};
@@ -776,41 +776,6 @@ fn series_points_follow_event_time_not_commits() {
     assert!(svc.sigterm().success());
 }
 
-/// Publishes `s` to `plant/{tag}` with QoS 1, one message every `pause`
-/// (a steady stream, as a plant's gateways send), and returns once the
-/// broker acknowledged every message.
-fn publish_steadily(port: u16, s: &[Sample], id: &str, pause: Duration) {
-    let mut o = MqttOptions::new(id, "127.0.0.1", port);
-    o.set_keep_alive(Duration::from_secs(30));
-    let (client, mut conn) = Client::new(o, 1000);
-    let messages: Vec<(String, Vec<u8>)> = s
-        .iter()
-        .map(|(tag, ts, v)| (format!("plant/{tag}"), format!("{{\"value\": {v:?}, \"timestamp\": {ts}}}").into_bytes()))
-        .collect();
-    let n = messages.len();
-    let pubber = std::thread::spawn(move || {
-        for (topic, p) in messages {
-            client.publish(topic, QoS::AtLeastOnce, false, p).unwrap();
-            std::thread::sleep(pause);
-        }
-        client
-    });
-    let mut acked = 0;
-    for ev in conn.iter() {
-        match ev {
-            Ok(Event::Incoming(Packet::PubAck(_))) => {
-                acked += 1;
-                if acked == n {
-                    break;
-                }
-            }
-            Ok(_) => {}
-            Err(e) => panic!("publisher connection failed: {e}"),
-        }
-    }
-    let _ = pubber.join().unwrap().disconnect();
-}
-
 /// Group commit: 2 000 samples arriving steadily at about 500 a second
 /// (a rate at which the ledger thread's queue runs dry after every
 /// message) are written in far fewer transactions than samples, because an
@@ -825,7 +790,7 @@ fn a_steady_stream_is_group_committed_and_nothing_is_lost() {
     let before = commits(&svc.snapshot().unwrap());
     let s = samples(500);
     assert_eq!(s.len(), 2000);
-    publish_steadily(broker.port, &s, "steady-publisher", Duration::from_millis(2));
+    publish_all_paced(broker.port, &s, "steady-publisher", Duration::from_millis(2));
     let live = svc.wait_until_integrated(s.last().unwrap().1);
     let used = commits(&live) - before;
     // About 4 s of stream at 150 ms per batch is some 30 commits, plus one

@@ -389,6 +389,29 @@ pub fn advance(
     policy: GapPolicy,
     tau_h: f64,
 ) {
+    // A part without wear inputs takes the piece path for two input lines
+    // (temperature and pressure), the wear lines being zero.
+    if plan.wear.is_some() {
+        advance_as::<true>(plan, comp_tags, scratch, state, tags, tag_plans, to_ms, policy, tau_h);
+    } else {
+        advance_as::<false>(plan, comp_tags, scratch, state, tags, tag_plans, to_ms, policy, tau_h);
+    }
+}
+
+/// [`advance`] for a part with (`WEAR`) or without wear inputs.
+#[allow(clippy::too_many_arguments)]
+#[inline(always)]
+fn advance_as<const WEAR: bool>(
+    plan: &ComponentPlan,
+    comp_tags: &[super::plan::TagId],
+    scratch: &mut Scratch,
+    state: &mut ComponentState,
+    tags: &[TagState],
+    tag_plans: &[TagPlan],
+    to_ms: i64,
+    policy: GapPolicy,
+    tau_h: f64,
+) {
     let Some(from_ms) = state.integrated_to_ms else {
         state.integrated_to_ms = Some(to_ms);
         return;
@@ -419,15 +442,8 @@ pub fn advance(
             split |= inside(t) | inside(t.saturating_add(h));
         }
     }
-    // A part without wear inputs takes the piece path for two input lines
-    // (temperature and pressure), the wear lines being zero.
-    let wear = plan.wear.is_some();
     if !split {
-        if wear {
-            integrate_piece::<true>(plan, scratch, state, tags, tag_plans, from_ms, to_ms, policy, tau_h);
-        } else {
-            integrate_piece::<false>(plan, scratch, state, tags, tag_plans, from_ms, to_ms, policy, tau_h);
-        }
+        integrate_piece::<WEAR>(plan, scratch, state, tags, tag_plans, from_ms, to_ms, policy, tau_h);
         state.integrated_to_ms = Some(to_ms);
         return;
     }
@@ -437,11 +453,7 @@ pub fn advance(
     }
     let pieces = breaks.segments(from_ms, to_ms);
     for w in pieces.windows(2) {
-        if wear {
-            integrate_piece::<true>(plan, scratch, state, tags, tag_plans, w[0], w[1], policy, tau_h);
-        } else {
-            integrate_piece::<false>(plan, scratch, state, tags, tag_plans, w[0], w[1], policy, tau_h);
-        }
+        integrate_piece::<WEAR>(plan, scratch, state, tags, tag_plans, w[0], w[1], policy, tau_h);
     }
     state.integrated_to_ms = Some(to_ms);
 }

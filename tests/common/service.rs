@@ -189,13 +189,25 @@ pub const MQTT_MAX_PACKET_BYTES: usize = 268_435_455;
 /// as MQTT client `id`, and returns once the broker acknowledged every
 /// message.
 pub fn publish_all(port: u16, s: &[Sample], id: &str) {
-    publish_messages(port, s.iter().map(|(tag, ts, v)| (format!("plant/{tag}"), payload(*ts, *v))).collect(), id);
+    publish_all_paced(port, s, id, Duration::ZERO);
+}
+
+/// [`publish_all`] with `pause` after each message.
+pub fn publish_all_paced(port: u16, s: &[Sample], id: &str, pause: Duration) {
+    let messages = s.iter().map(|(tag, ts, v)| (format!("plant/{tag}"), payload(*ts, *v))).collect();
+    publish_paced(port, messages, id, pause);
 }
 
 /// Publishes each (topic, payload) in order on 127.0.0.1:`port` with QoS 1
 /// as MQTT client `id`, and returns once the broker acknowledged every
 /// message.
 pub fn publish_messages(port: u16, messages: Vec<(impl Into<String>, Vec<u8>)>, id: &str) {
+    publish_paced(port, messages, id, Duration::ZERO);
+}
+
+/// [`publish_messages`] with `pause` after each message (a steady stream,
+/// as a plant's gateways send).
+pub fn publish_paced(port: u16, messages: Vec<(impl Into<String>, Vec<u8>)>, id: &str, pause: Duration) {
     let messages: Vec<(String, Vec<u8>)> = messages.into_iter().map(|(t, p)| (t.into(), p)).collect();
     if messages.is_empty() {
         return;
@@ -210,6 +222,9 @@ pub fn publish_messages(port: u16, messages: Vec<(impl Into<String>, Vec<u8>)>, 
     let pubber = std::thread::spawn(move || {
         for (topic, p) in messages {
             client.publish(topic, QoS::AtLeastOnce, false, p).unwrap();
+            if !pause.is_zero() {
+                std::thread::sleep(pause);
+            }
         }
         client
     });
