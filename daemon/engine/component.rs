@@ -25,7 +25,7 @@
 use super::plan::{ComponentPlan, Input, StressPlan, TagPlan, WearPlan};
 use super::plan::{GapPolicy, WearModel};
 use super::signal::{Breaks, Segment, TagState};
-use crate::physics::histogram::TimeAtCondition;
+use crate::physics::histogram::{CellHint, TimeAtCondition};
 use crate::physics::larson_miller::RangeFlags;
 use crate::physics::norton::creep_rate_per_h_ln;
 use crate::physics::remaining::{interval_weight, next_weight, projection_rate};
@@ -252,12 +252,22 @@ pub fn projection(plan: &ComponentPlan, state: &ComponentState) -> Projection {
     }
 }
 
-/// Per-component memo of the last rate evaluation. Rates are a pure
-/// function of the inputs, so reusing them for bit-identical inputs changes
-/// no result; it only saves work when values are steady or when one
-/// piece's end is the next piece's start.
+/// Per-component working block of the integrator: the plan's values a
+/// piece reads, and memos of the last piece. Rates are a pure function of
+/// the inputs, so reusing them for bit-identical inputs changes no result;
+/// it only saves work when values are steady or when one piece's end is
+/// the next piece's start.
+///
+/// Built from the plan by [`Scratch::new`]. The plan changes in service
+/// only through `engine::inspection::derive`, which builds a new scratch
+/// when it does; a ledger replaced by an import gets a new scratch too
+/// (the histogram hint belongs to the ledger's histogram).
 #[derive(Debug, Clone, Default)]
 pub struct Scratch {
+    /// The plan's values every piece reads, in one small block: read from
+    /// the 2 kB plan, their cache lines were evicted between two pieces of
+    /// a part (BENCHMARKS.md, "one working block").
+    hot: Hot,
     memo: Option<(Point, Rates)>,
     /// The last piece's length: (ms, h, weight of the recent-rate update,
     /// 1/h). Regular sampling repeats the length, so neither the hours'
@@ -267,8 +277,8 @@ pub struct Scratch {
     /// whether the wall is at the formula floor, when the wall does not
     /// thin in service: every hoop formula is linear in pressure.
     stress_per_mpa: Option<(f64, bool)>,
-    /// Histogram classes of the last node (a search hint only).
-    classes: (usize, usize),
+    /// Histogram cell of the last node (a search hint only).
+    classes: CellHint,
     /// The creep threshold and the material data's range, for booking
     /// hours on a line.
     bounds: DataBounds,
@@ -307,8 +317,44 @@ impl Scratch {
         };
         let (stress_mpa, t_k) = plan.curve.data_range();
         let bounds = DataBounds { threshold_k: plan.creep_threshold_k(), t_k, stress_mpa };
-        Scratch { stress_per_mpa, bounds, ..Scratch::default() }
+        let hot = Hot {
+            metal_temperature: plan.metal_temperature,
+            pressure: plan.pressure,
+            design_temperature_k: plan.design_temperature_k,
+            design_pressure_mpa: plan.design_pressure_mpa,
+            temperature_correction_k: plan.temperature_correction_k,
+            thinning: matches!(plan.stress, StressPlan::Hoop { thinning_rate_mm_per_year, .. } if thinning_rate_mm_per_year > 0.0),
+            wear: plan.wear.is_some(),
+            fatigue: plan.fatigue.is_some(),
+            initial_as_of: plan.initial_as_of_ms.is_some(),
+        };
+        Scratch { hot, stress_per_mpa, bounds, ..Scratch::default() }
     }
+
+    /// Whether the plan re-bases the initial values at an `as_of` instant.
+    #[inline(always)]
+    pub(super) fn initial_as_of(&self) -> bool {
+        self.hot.initial_as_of
+    }
+}
+
+/// The plan's values a piece reads (see [`Scratch::hot`]).
+#[derive(Debug, Clone, Copy, Default)]
+struct Hot {
+    metal_temperature: Option<Input>,
+    pressure: Option<Input>,
+    design_temperature_k: Option<f64>,
+    design_pressure_mpa: Option<f64>,
+    /// An inspection's temperature correction, K.
+    temperature_correction_k: f64,
+    /// The wall thins with service time (rates depend on time too).
+    thinning: bool,
+    /// The part has wear inputs.
+    wear: bool,
+    /// The part has `[component.fatigue]`.
+    fatigue: bool,
+    /// The plan has `[component.initial] as_of`.
+    initial_as_of: bool,
 }
 
 /// Input values at one instant, internal units.
@@ -391,7 +437,7 @@ pub fn advance(
 ) {
     // A part without wear inputs takes the piece path for two input lines
     // (temperature and pressure), the wear lines being zero.
-    if plan.wear.is_some() {
+    if scratch.hot.wear {
         advance_as::<true>(plan, comp_tags, scratch, state, tags, tag_plans, to_ms, policy, tau_h);
     } else {
         advance_as::<false>(plan, comp_tags, scratch, state, tags, tag_plans, to_ms, policy, tau_h);
@@ -488,8 +534,9 @@ fn integrate_piece<const WEAR: bool>(
             (h, a, r)
         }
     };
-    let design_t = plan.design_temperature_k;
-    let design_p = plan.design_pressure_mpa;
+    let hot = scratch.hot;
+    let design_t = hot.design_temperature_k;
+    let design_p = hot.design_pressure_mpa;
     // Gap values by policy: conservative takes the worse of design and the
     // last good value; hold-last takes the last good value (design when
     // there is none); wear inputs hold their last value.
@@ -502,13 +549,13 @@ fn integrate_piece<const WEAR: bool>(
         }
     };
     let hold = |last: Option<f64>| last.unwrap_or(0.0);
-    let (mut lt, gt) = line_of(plan.metal_temperature, tags, tag_plans, a, b, pick(design_t));
-    if plan.temperature_correction_k != 0.0 {
+    let (mut lt, gt) = line_of(hot.metal_temperature, tags, tag_plans, a, b, pick(design_t));
+    if hot.temperature_correction_k != 0.0 {
         // An inspection's correction (engine::inspection), measured and gap values alike.
-        lt.v0 += plan.temperature_correction_k;
-        lt.v1 += plan.temperature_correction_k;
+        lt.v0 += hot.temperature_correction_k;
+        lt.v1 += hot.temperature_correction_k;
     }
-    let (lp, gp) = line_of(plan.pressure, tags, tag_plans, a, b, pick(design_p));
+    let (lp, gp) = line_of(hot.pressure, tags, tag_plans, a, b, pick(design_p));
     let (mut ll, mut ls, mut lsl, mut lf) = (Line::default(), Line::default(), Line::default(), Line::default());
     let mut gw = false;
     if let (true, Some(w)) = (WEAR, &plan.wear) {
@@ -533,12 +580,11 @@ fn integrate_piece<const WEAR: bool>(
         }
     }
     let lines = PieceLines { t: lt, p: lp, load: ll, speed: ls, slip: lsl, freq: lf };
-    let thinning =
-        matches!(plan.stress, StressPlan::Hoop { thinning_rate_mm_per_year, .. } if thinning_rate_mm_per_year > 0.0);
+    let thinning = hot.thinning;
     let constant = lines.constant() && !thinning;
-    let mut classes = scratch.classes;
     let mut eval = RateEval::<WEAR> {
         plan,
+        hot: &scratch.hot,
         memo: &mut scratch.memo,
         stress_per_mpa: scratch.stress_per_mpa,
         thinning,
@@ -548,7 +594,7 @@ fn integrate_piece<const WEAR: bool>(
     };
     let span = b - a;
     let piece = if constant {
-        piece_constant(&mut eval, state, &mut classes, &lines, a, dt_h)
+        piece_constant(&mut eval, state, &mut scratch.classes, &lines, a, dt_h)
     } else {
         let dtk = (lt.k * span).abs();
         let pmax = lp.v0.abs().max(lp.v1.abs()).max(1e-9);
@@ -560,11 +606,11 @@ fn integrate_piece<const WEAR: bool>(
         // damage for a convex rate (conservative).
         let small = dtk <= TRAPEZOID_TEMPERATURE_STEP_K && dp <= TRAPEZOID_PRESSURE_STEP * pmax && !thinning;
         if small {
-            piece_trapezoid(&mut eval, state, &mut classes, &lines, a, b, dt_h)
+            piece_trapezoid(&mut eval, state, &mut scratch.classes, &lines, a, b, dt_h)
         } else {
             let n = ((dtk / PANEL_TEMPERATURE_STEP_K).max(dp / pmax / PANEL_PRESSURE_STEP).ceil() as usize)
                 .clamp(1, MAX_PANELS);
-            piece_simpson(&mut eval, state, &mut classes, &lines, a, span, dt_h, n)
+            piece_simpson(&mut eval, state, &mut scratch.classes, &lines, a, span, dt_h, n)
         }
     };
     let Piece { d_life, d_strain, mut d_wear, last_rates, last_point } = piece;
@@ -573,7 +619,6 @@ fn integrate_piece<const WEAR: bool>(
             d_wear = wear_exact(w, &lines, span, dt_h);
         }
     }
-    scratch.classes = classes;
     state.life_fraction += d_life;
     state.creep_strain += d_strain;
     state.wear_depth_mm += d_wear;
@@ -602,14 +647,21 @@ fn integrate_piece<const WEAR: bool>(
         life_fraction_rate_per_h: last_rates.life_per_h,
         creep_rate_per_h: last_rates.strain_per_h,
         wear_rate_mm_per_h: last_rates.wear_mm_per_h,
-        fretting_regime: plan.wear.as_ref().and_then(|w| match w.model {
-            WearModel::Fretting => Some(fretting_regime(last_point.slip_mm, &w.regime_bounds)),
-            WearModel::Archard => None,
-        }),
+        // Without wear inputs there is no wear model (`hot.wear`).
+        fretting_regime: if WEAR {
+            plan.wear.as_ref().and_then(|w| match w.model {
+                WearModel::Fretting => Some(fretting_regime(last_point.slip_mm, &w.regime_bounds)),
+                WearModel::Archard => None,
+            })
+        } else {
+            None
+        },
         unmonitored,
     };
-    if let Some(f) = &plan.fatigue {
-        super::fatigue::on_piece(plan, f, state, tags, tag_plans, a_ms, b_ms, unmonitored);
+    if hot.fatigue {
+        if let Some(f) = &plan.fatigue {
+            super::fatigue::on_piece(plan, f, state, tags, tag_plans, a_ms, b_ms, unmonitored);
+        }
     }
 }
 
@@ -672,6 +724,8 @@ impl PieceLines {
 /// Rate evaluation for one piece, through the component's memo.
 struct RateEval<'a, const WEAR: bool> {
     plan: &'a ComponentPlan,
+    /// The plan's per-piece values ([`Scratch::hot`]).
+    hot: &'a Hot,
     memo: &'a mut Option<(Point, Rates)>,
     stress_per_mpa: Option<(f64, bool)>,
     /// The wall thins with service time, so rates depend on time too and
@@ -725,14 +779,14 @@ struct Piece {
 fn piece_constant<const WEAR: bool>(
     eval: &mut RateEval<WEAR>,
     state: &mut ComponentState,
-    classes: &mut (usize, usize),
+    classes: &mut CellHint,
     lines: &PieceLines,
     a: f64,
     dt_h: f64,
 ) -> Piece {
     let p = lines.at(0.0);
     let r = eval.at(&p, a);
-    account_node(eval.plan, state, classes, &p, &r, dt_h);
+    account_node(eval.hot, state, classes, &p, &r, dt_h);
     Piece {
         d_life: r.life_per_h * dt_h,
         d_strain: r.strain_per_h * dt_h,
@@ -747,7 +801,7 @@ fn piece_constant<const WEAR: bool>(
 fn piece_trapezoid<const WEAR: bool>(
     eval: &mut RateEval<WEAR>,
     state: &mut ComponentState,
-    classes: &mut (usize, usize),
+    classes: &mut CellHint,
     lines: &PieceLines,
     a: f64,
     b: f64,
@@ -777,7 +831,7 @@ fn piece_trapezoid<const WEAR: bool>(
 fn piece_simpson<const WEAR: bool>(
     eval: &mut RateEval<WEAR>,
     state: &mut ComponentState,
-    classes: &mut (usize, usize),
+    classes: &mut CellHint,
     lines: &PieceLines,
     a: f64,
     span: f64,
@@ -809,20 +863,13 @@ fn piece_simpson<const WEAR: bool>(
 
 /// Book-keeping at one quadrature node carrying `w_h` hours.
 #[inline]
-fn account_node(
-    plan: &ComponentPlan,
-    state: &mut ComponentState,
-    classes: &mut (usize, usize),
-    p: &Point,
-    r: &Rates,
-    w_h: f64,
-) {
-    if plan.metal_temperature.is_some() {
+fn account_node(hot: &Hot, state: &mut ComponentState, classes: &mut CellHint, p: &Point, r: &Rates, w_h: f64) {
+    if hot.metal_temperature.is_some() {
         state.histogram.add_hinted(p.t_k, p.p_mpa, w_h, classes);
         if p.t_k > state.peak_temperature_k {
             state.peak_temperature_k = p.t_k;
         }
-        if let Some(d) = plan.design_temperature_k {
+        if let Some(d) = hot.design_temperature_k {
             if p.t_k > d {
                 state.over_design_h += w_h;
                 state.flags.over_design_temperature = true;
@@ -862,19 +909,19 @@ fn account_creep(state: &mut ComponentState, r: &Rates, w_h: f64) {
 fn account_line<const WEAR: bool>(
     eval: &RateEval<WEAR>,
     state: &mut ComponentState,
-    classes: &mut (usize, usize),
+    classes: &mut CellHint,
     (p0, r0): (&Point, &Rates),
     (p1, r1): (&Point, &Rates),
     dt_h: f64,
 ) {
-    let plan = eval.plan;
-    if plan.metal_temperature.is_some() {
+    let hot = eval.hot;
+    if hot.metal_temperature.is_some() {
         state.histogram.add_line_hinted((p0.t_k, p0.p_mpa), (p1.t_k, p1.p_mpa), dt_h, classes);
         let peak = p0.t_k.max(p1.t_k);
         if peak > state.peak_temperature_k {
             state.peak_temperature_k = peak;
         }
-        if let Some(d) = plan.design_temperature_k {
+        if let Some(d) = hot.design_temperature_k {
             let over = if p0.t_k > d && p1.t_k > d {
                 dt_h
             } else if p0.t_k <= d && p1.t_k <= d {
@@ -892,7 +939,7 @@ fn account_line<const WEAR: bool>(
     let whole = match (r0.creep, r1.creep) {
         (true, true) => r0.flags == r1.flags,
         (false, false) => {
-            plan.metal_temperature.is_none()
+            hot.metal_temperature.is_none()
                 || ((p0.t_k >= b.threshold_k) == (p1.t_k >= b.threshold_k)
                     && (r0.stress_mpa > 0.0) == (r1.stress_mpa > 0.0))
         }
@@ -955,7 +1002,7 @@ fn account_creep_line<const WEAR: bool>(
     (p1, r1): (&Point, &Rates),
     dt_h: f64,
 ) {
-    if eval.plan.metal_temperature.is_none() {
+    if eval.hot.metal_temperature.is_none() {
         return;
     }
     let b = &eval.bounds;

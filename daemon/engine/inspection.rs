@@ -178,8 +178,8 @@ impl InspectionState {
     }
 
     #[inline(always)]
-    fn idle(&self, plan: &ComponentPlan) -> bool {
-        (plan.initial_as_of_ms.is_none() || self.initial_rebased) && self.events.iter().all(|e| e.applied)
+    fn idle(&self, initial_as_of: bool) -> bool {
+        (!initial_as_of || self.initial_rebased) && self.events.iter().all(|e| e.applied)
     }
 
     /// Ids of events superseded by applied events.
@@ -372,7 +372,7 @@ pub fn advance(
     policy: GapPolicy,
     tau_h: f64,
 ) {
-    if state.inspection.idle(plan) {
+    if state.inspection.idle(scratch.initial_as_of()) {
         component::advance(plan, comp_tags, scratch, state, tags, tag_plans, to_ms, policy, tau_h);
     } else {
         advance_through_findings(plan, comp_tags, scratch, state, tags, tag_plans, to_ms, policy, tau_h);

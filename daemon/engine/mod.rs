@@ -835,6 +835,9 @@ impl Engine {
         let newest_held = self.held.back().map(|(_, h)| h.time_ms);
         self.frontier_ms = newest_cursor.max(newest_held);
         self.clock_ms = self.clockless.iter().filter_map(|&ci| self.components[ci as usize].integrated_to_ms).max();
+        // New ledgers: new working blocks (their histogram hints belong to
+        // the ledgers they replace).
+        self.scratch = self.plan.components.iter().map(component::Scratch::new).collect();
         self.derive_inspections();
         left
     }

@@ -261,6 +261,45 @@ fn state_round_trips() {
     assert_eq!(a.export_state(), b.export_state());
 }
 
+/// The integrator keeps a hint to the histogram cell of the last piece
+/// (in its working block, not in the ledger). A ledger imported with other
+/// class edges (a stored ledger from before a change of
+/// `temperature_class_k`) must not be booked through a hint into the old
+/// edges: the hours land in the imported histogram's own cells, as in an
+/// engine that imports the same ledger fresh.
+#[test]
+fn an_imported_ledger_is_booked_in_its_own_classes() {
+    let fine = TEST_CONFIG.replace("max_hold_s = 900", "max_hold_s = 900\ntemperature_class_k = 2.5");
+    let mut a = Engine::new(plan_settings("test", toml::from_str(&fine).unwrap()).unwrap().plan);
+    for i in 0..=10 {
+        feed(&mut a, "TT", i * 60, 575.0).unwrap();
+        feed(&mut a, "PT", i * 60, 180.0).unwrap();
+    }
+    let stored = a.export_state();
+    // Engine b has booked steadily into a cell of its own (10 K) classes,
+    // at the temperature the imported ledger goes on at.
+    let mut b = engine();
+    for i in 0..=10 {
+        feed(&mut b, "TT", i * 60, 575.0).unwrap();
+        feed(&mut b, "PT", i * 60, 180.0).unwrap();
+    }
+    b.import_state(stored.clone());
+    let mut c = engine();
+    c.import_state(stored);
+    for i in 11..=40 {
+        for e in [&mut b, &mut c] {
+            feed(e, "TT", i * 60, 575.0).unwrap();
+            feed(e, "PT", i * 60, 180.0).unwrap();
+        }
+    }
+    assert_eq!(b.export_state(), c.export_state());
+    // 575 °C is in the 2.5 K class [575, 577.5) °C of the imported edges.
+    let h = &tube(&b).histogram;
+    let ti = crate::physics::histogram::class_index(&h.temperature_edges_k, 575.0 + 273.15);
+    assert!((h.temperature_edges_k[ti - 1] - (575.0 + 273.15)).abs() < 1e-9, "{:?}", h.temperature_edges_k);
+    assert!((h.temperature_hours()[ti] - 40.0 / 60.0).abs() < 1e-12, "40 min at 575 °C: {:?}", h.temperature_hours());
+}
+
 proptest! {
     #![proptest_config(ProptestConfig::with_cases(64))]
     /// Splitting an interval changes nothing for constant inputs.

@@ -42,19 +42,47 @@ pub fn class_index_hinted(edges: &[f64], x: f64, hint: usize) -> usize {
     }
 }
 
-/// Whether `x0` and `x1` are both in class `class` of ascending `edges`
-/// (false for NaN, as [`class_index_hinted`] would then search).
-#[inline]
-fn both_in_class(edges: &[f64], x0: f64, x1: f64, class: usize) -> bool {
-    let above_low = match class.checked_sub(1) {
-        None => true,
-        Some(i) => edges.get(i).is_some_and(|&e| e <= x0 && e <= x1),
-    };
-    let below_high = match edges.get(class) {
-        Some(&e) => x0 < e && x1 < e,
-        None => class == edges.len(),
-    };
-    above_low && below_high
+/// The cell of the previous booking with its edges: a search hint that
+/// needs no look at the histogram's edges while values stay inside it, so
+/// a steady or slowly moving signal reads only the hour it adds to. Outside
+/// it (or for NaN) the classes are searched and the hint moves; the result
+/// is always that of [`class_index`] on both axes. A hint belongs to the
+/// histogram that moved it: start from [`CellHint::default`] for another.
+#[derive(Debug, Clone, Copy)]
+pub struct CellHint {
+    /// The cell's classes (temperature, pressure).
+    t: usize,
+    p: usize,
+    /// The cell is `[t_lo, t_hi) × [p_lo, p_hi)`, infinite at the open
+    /// ends; NaN (nothing inside) until the first booking.
+    t_lo: f64,
+    t_hi: f64,
+    p_lo: f64,
+    p_hi: f64,
+    /// The cell's index in `hours`.
+    index: usize,
+}
+
+impl Default for CellHint {
+    fn default() -> Self {
+        CellHint { t: 0, p: 0, t_lo: f64::NAN, t_hi: f64::NAN, p_lo: f64::NAN, p_hi: f64::NAN, index: 0 }
+    }
+}
+
+impl CellHint {
+    /// Whether (t, p) is in the hinted cell. For ascending edges this is
+    /// exactly `class_index(t) == self.t && class_index(p) == self.p`
+    /// where it says yes (the cell is `edges[c−1] ≤ x < edges[c]`); it says
+    /// no for NaN and for +∞, which are then searched.
+    #[inline(always)]
+    fn holds(&self, t: f64, p: f64) -> bool {
+        self.t_lo <= t && t < self.t_hi && self.p_lo <= p && p < self.p_hi
+    }
+
+    /// The hinted classes (temperature, pressure).
+    pub fn classes(&self) -> (usize, usize) {
+        (self.t, self.p)
+    }
 }
 
 impl TimeAtCondition {
@@ -78,33 +106,56 @@ impl TimeAtCondition {
         self.hours[ti * (self.pressure_edges_mpa.len() + 1) + pi] += dt_h;
     }
 
-    /// [`TimeAtCondition::add`] with the classes of the previous call as a
-    /// search hint (updated to this call's classes).
+    /// [`TimeAtCondition::add`] with the cell of the previous call as a
+    /// search hint (moved to this call's cell).
+    #[inline(always)]
+    pub fn add_hinted(&mut self, t_k: f64, p_mpa: f64, dt_h: f64, hint: &mut CellHint) {
+        if !hint.holds(t_k, p_mpa) {
+            *hint = self.search(t_k, p_mpa, hint);
+        }
+        self.hours[hint.index] += dt_h;
+    }
+
+    /// The cell of (t, p), searched from `hint`'s classes (out of line: the
+    /// common booking stays in its cell).
+    #[inline(never)]
+    fn search(&self, t_k: f64, p_mpa: f64, hint: &CellHint) -> CellHint {
+        let ti = class_index_hinted(&self.temperature_edges_k, t_k, hint.t);
+        let pi = class_index_hinted(&self.pressure_edges_mpa, p_mpa, hint.p);
+        self.cell(ti, pi)
+    }
+
+    /// The hint for cell (`ti`, `pi`).
     #[inline]
-    pub fn add_hinted(&mut self, t_k: f64, p_mpa: f64, dt_h: f64, hint: &mut (usize, usize)) {
-        let ti = class_index_hinted(&self.temperature_edges_k, t_k, hint.0);
-        let pi = class_index_hinted(&self.pressure_edges_mpa, p_mpa, hint.1);
-        *hint = (ti, pi);
-        self.hours[ti * (self.pressure_edges_mpa.len() + 1) + pi] += dt_h;
+    fn cell(&self, ti: usize, pi: usize) -> CellHint {
+        let (te, pe) = (&self.temperature_edges_k, &self.pressure_edges_mpa);
+        let lo = |e: &[f64], i: usize| if i == 0 { f64::NEG_INFINITY } else { e[i - 1] };
+        let hi = |e: &[f64], i: usize| e.get(i).copied().unwrap_or(f64::INFINITY);
+        CellHint {
+            t: ti,
+            p: pi,
+            t_lo: lo(te, ti),
+            t_hi: hi(te, ti),
+            p_lo: lo(pe, pi),
+            p_hi: hi(pe, pi),
+            index: ti * (pe.len() + 1) + pi,
+        }
     }
 
     /// Add `dt_h` hours spent on a straight line from temperature and
     /// pressure `from = (t0, p0)` to `to = (t1, p1)`: each cell gets the
     /// fraction of the time the line spends in it, between its crossings of
     /// the cell's edges (crossing at `u = (edge − v0)/(v1 − v0)` of the
-    /// way). `hint` is the classes at the line's start (a search hint, as
-    /// for [`TimeAtCondition::add_hinted`]) and becomes those at its end.
+    /// way). `hint` is the cell at the line's start (a search hint, as for
+    /// [`TimeAtCondition::add_hinted`]) and becomes the one at its end.
     #[inline(always)]
-    pub fn add_line_hinted(&mut self, from: (f64, f64), to: (f64, f64), dt_h: f64, hint: &mut (usize, usize)) {
+    pub fn add_line_hinted(&mut self, from: (f64, f64), to: (f64, f64), dt_h: f64, hint: &mut CellHint) {
         // Common case: both ends in the hinted cell (a slowly moving line
-        // stays in the class of the previous piece's end), checked with one
-        // pair of edges per axis; the same result as the search. Inlined
-        // into the caller; the search is kept out of line.
-        if both_in_class(&self.temperature_edges_k, from.0, to.0, hint.0)
-            && both_in_class(&self.pressure_edges_mpa, from.1, to.1, hint.1)
-        {
-            let w = self.pressure_edges_mpa.len() + 1;
-            self.hours[hint.0 * w + hint.1] += dt_h;
+        // stays in the cell of the previous piece's end), so is the whole
+        // line (cells are intervals); the same result as the search.
+        // Inlined into the caller; the search is kept out of line.
+        if hint.holds(from.0, from.1) && hint.holds(to.0, to.1) {
+            self.hours[hint.index] += dt_h;
             return;
         }
         self.add_line_searched(from, to, dt_h, hint);
@@ -113,13 +164,13 @@ impl TimeAtCondition {
     /// [`TimeAtCondition::add_line_hinted`] for a line with an end outside
     /// the hinted cell: the classes of both ends searched from the hint.
     #[inline(never)]
-    fn add_line_searched(&mut self, from: (f64, f64), to: (f64, f64), dt_h: f64, hint: &mut (usize, usize)) {
+    fn add_line_searched(&mut self, from: (f64, f64), to: (f64, f64), dt_h: f64, hint: &mut CellHint) {
         let w = self.pressure_edges_mpa.len() + 1;
-        let t_start = class_index_hinted(&self.temperature_edges_k, from.0, hint.0);
-        let p_start = class_index_hinted(&self.pressure_edges_mpa, from.1, hint.1);
+        let t_start = class_index_hinted(&self.temperature_edges_k, from.0, hint.t);
+        let p_start = class_index_hinted(&self.pressure_edges_mpa, from.1, hint.p);
         let t_end = class_index_hinted(&self.temperature_edges_k, to.0, t_start);
         let p_end = class_index_hinted(&self.pressure_edges_mpa, to.1, p_start);
-        *hint = (t_end, p_end);
+        *hint = self.cell(t_end, p_end);
         if t_start == t_end && p_start == p_end {
             // Both ends in one cell: so is the whole line (classes are intervals).
             self.hours[t_start * w + p_start] += dt_h;
@@ -216,9 +267,9 @@ mod tests {
         // 0 → 4 across edge 3. By hand: T passes 10, 20, 30 at 2, 4, 6 h;
         // p passes 3 at 6 h as well.
         let mut h = TimeAtCondition::new(vec![10.0, 20.0, 30.0], vec![3.0]);
-        let mut hint = (0, 0);
+        let mut hint = CellHint::default();
         h.add_line_hinted((0.0, 0.0), (40.0, 4.0), 8.0, &mut hint);
-        assert_eq!(hint, (3, 1));
+        assert_eq!(hint.classes(), (3, 1));
         let want = [[2.0, 0.0], [2.0, 0.0], [2.0, 0.0], [0.0, 2.0]];
         for (ti, row) in want.iter().enumerate() {
             for (pi, &v) in row.iter().enumerate() {
@@ -227,7 +278,7 @@ mod tests {
         }
         // Falling the other way books the same cells.
         let mut g = TimeAtCondition::new(vec![10.0, 20.0, 30.0], vec![3.0]);
-        let mut hint = (3, 1);
+        let mut hint = g.cell(3, 1);
         g.add_line_hinted((40.0, 4.0), (0.0, 0.0), 8.0, &mut hint);
         for (a, b) in g.hours.iter().zip(&h.hours) {
             assert!((a - b).abs() < 1e-12);
@@ -236,13 +287,29 @@ mod tests {
 
     proptest! {
         #[test]
-        fn a_line_loses_no_time(t0 in 600.0f64..900.0, t1 in 600.0f64..900.0, p0 in 0.0f64..25.0, p1 in 0.0f64..25.0, dt in 0.0f64..10.0, hint in (0usize..25, 0usize..5)) {
+        fn a_line_loses_no_time(t0 in 600.0f64..900.0, t1 in 600.0f64..900.0, p0 in 0.0f64..25.0, p1 in 0.0f64..25.0, dt in 0.0f64..10.0, hint in (0usize..22, 0usize..4)) {
             let mut h = TimeAtCondition::new(TimeAtCondition::even_edges(700.0, 900.0, 10.0), vec![5.0, 10.0, 20.0]);
-            let mut hint = hint;
+            let mut hint = h.cell(hint.0, hint.1);
             h.add_line_hinted((t0, p0), (t1, p1), dt, &mut hint);
             prop_assert!((h.total_h() - dt).abs() < 1e-12);
             prop_assert!(h.hours.iter().all(|&x| x >= 0.0));
-            prop_assert_eq!(hint, (class_index(&h.temperature_edges_k, t1), class_index(&h.pressure_edges_mpa, p1)));
+            prop_assert_eq!(hint.classes(), (class_index(&h.temperature_edges_k, t1), class_index(&h.pressure_edges_mpa, p1)));
+        }
+
+        /// The hinted booking puts every value in the cell of the plain
+        /// search, from any previous cell, NaN and infinities included.
+        #[test]
+        fn the_hinted_cell_is_the_cell(v in proptest::collection::vec((prop_oneof![690.0f64..910.0, Just(700.0), Just(900.0), Just(f64::NAN), Just(f64::INFINITY), Just(f64::NEG_INFINITY)], prop_oneof![0.0f64..25.0, Just(5.0), Just(20.0), Just(f64::NAN), Just(f64::INFINITY)]), 1..40)) {
+            let edges = (TimeAtCondition::even_edges(700.0, 900.0, 10.0), vec![5.0, 10.0, 20.0]);
+            let (mut hinted, mut plain) = (TimeAtCondition::new(edges.0.clone(), edges.1.clone()), TimeAtCondition::new(edges.0, edges.1));
+            let mut hint = CellHint::default();
+            for (i, (t, p)) in v.into_iter().enumerate() {
+                let dt = (i + 1) as f64;
+                hinted.add_hinted(t, p, dt, &mut hint);
+                plain.add(t, p, dt);
+                prop_assert_eq!(&hinted.hours, &plain.hours);
+                prop_assert_eq!(hint.classes(), (class_index(&plain.temperature_edges_k, t), class_index(&plain.pressure_edges_mpa, p)));
+            }
         }
 
         #[test]
