@@ -534,7 +534,7 @@ fn integrate_piece<const WEAR: bool>(
             (h, a, r)
         }
     };
-    let hot = scratch.hot;
+    let hot = &scratch.hot;
     let design_t = hot.design_temperature_k;
     let design_p = hot.design_pressure_mpa;
     // Gap values by policy: conservative takes the worse of design and the
@@ -584,12 +584,10 @@ fn integrate_piece<const WEAR: bool>(
     let constant = lines.constant() && !thinning;
     let mut eval = RateEval::<WEAR> {
         plan,
-        hot: &scratch.hot,
+        hot,
         memo: &mut scratch.memo,
         stress_per_mpa: scratch.stress_per_mpa,
-        thinning,
         start_ms: state.first_sample_ms.unwrap_or(a_ms),
-        threshold_k: scratch.bounds.threshold_k,
         bounds: scratch.bounds,
     };
     let span = b - a;
@@ -658,10 +656,8 @@ fn integrate_piece<const WEAR: bool>(
         },
         unmonitored,
     };
-    if hot.fatigue {
-        if let Some(f) = &plan.fatigue {
-            super::fatigue::on_piece(plan, f, state, tags, tag_plans, a_ms, b_ms, unmonitored);
-        }
+    if let (true, Some(f)) = (hot.fatigue, &plan.fatigue) {
+        super::fatigue::on_piece(plan, f, state, tags, tag_plans, a_ms, b_ms, unmonitored);
     }
 }
 
@@ -724,16 +720,15 @@ impl PieceLines {
 /// Rate evaluation for one piece, through the component's memo.
 struct RateEval<'a, const WEAR: bool> {
     plan: &'a ComponentPlan,
-    /// The plan's per-piece values ([`Scratch::hot`]).
+    /// The plan's per-piece values ([`Scratch::hot`]). Where its wall
+    /// thins with service time, rates depend on time too and the memo
+    /// (keyed by inputs only) is not used.
     hot: &'a Hot,
     memo: &'a mut Option<(Point, Rates)>,
     stress_per_mpa: Option<(f64, bool)>,
-    /// The wall thins with service time, so rates depend on time too and
-    /// the memo (keyed by inputs only) is not used.
-    thinning: bool,
     start_ms: i64,
-    threshold_k: f64,
-    /// Where rupture life is extrapolated (for booking hours on a line).
+    /// The creep threshold, and where rupture life is extrapolated (for
+    /// booking hours on a line).
     bounds: DataBounds,
 }
 
@@ -741,7 +736,7 @@ impl<const WEAR: bool> RateEval<'_, WEAR> {
     /// Rates at inputs `p` and event time `tau_ms`.
     #[inline(always)]
     fn at(&mut self, p: &Point, tau_ms: f64) -> Rates {
-        if !self.thinning {
+        if !self.hot.thinning {
             if let Some((mp, mr)) = &*self.memo {
                 // Without wear inputs every point's wear fields are zero.
                 let same = if WEAR { mp == p } else { mp.t_k == p.t_k && mp.p_mpa == p.p_mpa };
@@ -750,7 +745,7 @@ impl<const WEAR: bool> RateEval<'_, WEAR> {
                 }
             }
         }
-        let r = rates(self.plan, self.stress_per_mpa, p, tau_ms, self.start_ms, self.threshold_k);
+        let r = rates(self.plan, self.stress_per_mpa, p, tau_ms, self.start_ms, self.bounds.threshold_k);
         match self.memo {
             // Without wear inputs the memo's wear fields stay zero: only
             // temperature, pressure and the rates are stored.
